@@ -1,0 +1,171 @@
+"""The public face of strata13, for the CLI and for notebooks.
+
+>>> from strata13.compile import api
+>>> store = api.init_store("compilation")                        # or api.open_store(...)
+>>> result = api.ingest(store, "sheets/a.xlsx", "sheets/a.toml")
+>>> df = api.query(store, api.Filters(interval=(185, 180)))     # a pandas DataFrame
+>>> api.export(store, "export")                                   # Parquet, CSV, manifest
+
+Every function returns data or raises a :mod:`strata13.compile.errors` exception; none
+prints.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.derive import DEFAULT_TIME_SCALE, Settings
+from strata13.compile.errors import OptionError
+from strata13.compile.export import ExportResult
+from strata13.compile.ingest import IngestResult
+from strata13.compile.query import Filters, parse_interval
+from strata13.compile.store import Store, Version, is_store
+
+if TYPE_CHECKING:
+    import pandas as pd
+    import pyarrow as pa
+
+    from strata13.compile.sqlguard import SqlResult
+
+__all__ = [
+    "Filters", "IngestResult", "Settings", "Store", "Version", "export", "history", "ingest",
+    "init_store", "open_store", "parse_interval", "query", "query_arrow", "region",
+    "sources", "sql", "store_path",
+]
+
+
+def store_path(given: str | Path | None) -> Path:
+    """--store, else STRATA13_STORE, else ./compilation."""
+    return Path(given or os.environ.get("STRATA13_STORE") or "compilation")
+
+
+def open_store(path: str | Path) -> Store:
+    """Open an existing store (NotAStoreError if the folder is not one)."""
+    return Store.open(Path(path))
+
+
+def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
+               regions: str | Path | None = None) -> Store:
+    """Create a store with its settings (time scale) and optional named regions."""
+    from strata13.compile.regions import load_regions_file
+    from strata13.schemas.vocabularies import vocabulary
+
+    voc = vocabulary("time_scale")
+    ts = voc.resolve(time_scale)
+    if ts is None:
+        sug = voc.suggest(time_scale)
+        raise OptionError(f"--time-scale {time_scale!r} is not a shipped time scale."
+                          + (f" Did you mean {sug!r}?" if sug else ""),
+                          f"Time scales: {', '.join(voc.terms)}.")
+    named = load_regions_file(Path(regions)) if regions else []
+    settings = Settings(time_scale=ts)
+    return Store.create(Path(path), json.dumps(settings.as_dict()["extra"] | {"time_scale": ts}),
+                        settings.hash(),
+                        [(n, g, Path(regions).name) for n, g in named] if regions else [])
+
+
+def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | Path, *,
+           dry_run: bool = False, keep_valid: bool = False, progress: Any = None
+           ) -> IngestResult:
+    """Ingest a sheet through its mapping file; creates the store if the folder is new."""
+    from strata13.compile import ingest as _ingest
+
+    if not isinstance(store, Store):
+        path = Path(store)
+        store = Store.open(path) if is_store(path) else None  # type: ignore[assignment]
+        if store is None:
+            if dry_run:
+                # validate only: a throwaway in-memory view of the defaults
+                return _ingest.ingest(_DryStore(), Path(sheet) if sheet else None,
+                                      Path(mapping), dry_run=True, keep_valid=keep_valid,
+                                      progress=progress)
+            store = init_store(path)
+    return _ingest.ingest(store, Path(sheet) if sheet else None, Path(mapping), dry_run=dry_run,
+                          keep_valid=keep_valid, progress=progress)
+
+
+class _DryStore(Store):
+    """Stand-in for a store that does not exist yet, for --dry-run (default settings)."""
+
+    def __init__(self) -> None:
+        self.path = Path(".")
+
+    def settings(self, version: int | None = None) -> dict[str, Any]:
+        return Settings().as_dict()["extra"] | {"time_scale": DEFAULT_TIME_SCALE}
+
+
+def _named_regions(con: Any) -> dict[str, str]:
+    return dict(con.execute("SELECT name, geojson FROM regions").fetchall())
+
+
+def region(store: Store, spec: str) -> Any:
+    """Resolve a --region value against the store's named regions."""
+    from strata13.compile.regions import resolve_region
+
+    con, _ = store.reader()
+    try:
+        return resolve_region(spec, _named_regions(con))
+    finally:
+        con.close()
+
+
+def query_arrow(store: Store, filters: Filters | None = None,
+                as_of: int | None = None) -> pa.Table:
+    from strata13.compile.query import run
+
+    con, _ = store.reader(as_of)
+    try:
+        return run(con, filters or Filters())
+    finally:
+        con.close()
+
+
+def query(store: Store, filters: Filters | None = None, as_of: int | None = None
+          ) -> pd.DataFrame:
+    """Records matching ``filters`` as a pandas DataFrame (columns of the records view)."""
+    return query_arrow(store, filters, as_of).to_pandas()
+
+
+def export(store: Store, out: str | Path, filters: Filters | None = None,
+           as_of: int | None = None) -> ExportResult:
+    from strata13.compile import export as _export
+    from strata13.compile.ingest import settings_from_store
+
+    con, version = store.reader(as_of)
+    try:
+        settings_hash = settings_from_store(store).hash()
+        return _export.export(con, version, Path(out), filters or Filters(), settings_hash,
+                              store.path)
+    finally:
+        con.close()
+
+
+def sql(store: Store, statement: str, timeout_s: float = 30.0,
+        row_cap: int = 100_000) -> SqlResult:
+    from strata13.compile.sqlguard import run_sql
+
+    con, _ = store.reader()
+    try:
+        return run_sql(con, statement, timeout_s, row_cap)
+    finally:
+        con.close()
+
+
+def sources(store: Store) -> list[dict[str, Any]]:
+    con, _ = store.reader()
+    try:
+        cur = con.execute("SELECT s.source_id, s.kind, s.year, s.n_records, "
+                          "(SELECT count(*) FROM quarantine q WHERE q.source_id = s.source_id) "
+                          "AS quarantined, s.ingested_version, s.file_name, s.citation "
+                          "FROM sources s ORDER BY s.source_id")
+        cols = [d[0] for d in cur.description]
+        return [dict(zip(cols, r, strict=True)) for r in cur.fetchall()]
+    finally:
+        con.close()
+
+
+def history(store: Store) -> list[Version]:
+    return store.history()

@@ -1,0 +1,193 @@
+"""Ingest: mapping -> prepare (read, clean, validate) -> derive -> one commit.
+
+Re-ingesting a source replaces that source only and reports added / removed / changed
+records by stable record id; an identical file, mapping and settings is a no-op. Nothing
+reaches the store unless every row passed, or ``keep_valid`` puts the failures in
+quarantine. A Ctrl-C is answered truthfully: the commit either landed or it did not.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.derive import Settings, derive
+from strata13.compile.errors import DomainError, ValidationFailed
+from strata13.compile.mapping import load_mapping
+from strata13.compile.report import Report
+from strata13.compile.store import Store
+from strata13.compile.validate import prepare
+from strata13.schemas.fields import SCHEMA_VERSION
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+
+
+class Interrupted(KeyboardInterrupt):
+    """Ctrl-C during an ingest; ``landed`` says whether the commit made it."""
+
+    def __init__(self, message: str, landed: bool) -> None:
+        super().__init__(message)
+        self.message = message
+        self.landed = landed
+
+
+@dataclass
+class IngestResult:
+    source_id: str
+    report: Report
+    version: int | None  # the new store version, None when nothing was committed
+    committed: int = 0
+    quarantined: int = 0
+    added: int = 0
+    removed: int = 0
+    changed: int = 0
+    unchanged: bool = False  # identical re-ingest: no new version
+    dry_run: bool = False
+    pending: dict[str, int] = field(default_factory=dict)
+
+
+def settings_from_store(store: Store) -> Settings:
+    s = store.settings()
+    return Settings(time_scale=s.get("time_scale", Settings().time_scale),
+                    extra={k: v for k, v in s.items() if k != "time_scale"})
+
+
+def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: bool = False,
+           keep_valid: bool = False, progress: Any = None) -> IngestResult:
+    """Ingest one mapping's sheet into ``store``. Raises ValidationFailed (exit 1)."""
+    step = progress or (lambda _msg: None)
+    step("reading the mapping")
+    mapping = load_mapping(mapping_path)
+    if sheet is not None and sheet.resolve() != mapping.table.file:
+        raise DomainError(f"{sheet} is not the file {mapping_path.name} maps "
+                          f"({mapping.table.file.name}).",
+                          "Give the sheet named in the mapping's [table] file, or edit it.")
+    step("reading and validating the sheet")
+    prepared = prepare(mapping)
+    report = prepared.report
+    result = IngestResult(mapping.source_id, report, None, dry_run=dry_run)
+    if report.errors and not keep_valid:
+        raise ValidationFailed(
+            f"{len(report.errors)} problem{'s' if len(report.errors) != 1 else ''} in "
+            f"{mapping.table.file.name}; nothing was written.", report,
+            "Fix the cells listed, or use --keep-valid to commit the valid rows and "
+            "quarantine the rest.")
+    settings = settings_from_store(store)
+    step("deriving harmonised values and ages")
+    derived = derive(prepared.records, settings)
+    records = derived.table
+    result.pending = _pending_counts(records)
+    result.quarantined = len(prepared.quarantine)
+    result.committed = records.num_rows
+    if dry_run:
+        return result
+    step("committing")
+    with store.writer() as con:
+        old = _old_state(con, mapping.source_id)
+        new_hash = dict(zip(records.column("record_id").to_pylist(),
+                            records.column("row_hash").to_pylist(), strict=True))
+        result.added = len(new_hash.keys() - old["hashes"].keys())
+        result.removed = len(old["hashes"].keys() - new_hash.keys())
+        result.changed = sum(1 for k, h in new_hash.items()
+                             if k in old["hashes"] and old["hashes"][k] != h)
+        same_inputs = old["source"] is not None and old["source"][:3] == (
+            prepared.file_sha256, mapping.sha256, SCHEMA_VERSION)
+        if same_inputs and not (result.added or result.removed or result.changed) \
+                and old["n_quarantine"] == len(prepared.quarantine):
+            result.unchanged = True
+            result.version = None
+            return result
+        before = store._latest(con)
+        try:
+            result.version = _commit(store, con, prepared, records, derived.chains, settings,
+                                     result)
+        except KeyboardInterrupt:
+            landed = store.latest_version() > before
+            raise Interrupted(
+                "interrupted: " + ("the commit landed" if landed else
+                                   "the commit did not land; the store is unchanged"),
+                landed) from None
+    return result
+
+
+def _pending_counts(records: pa.Table) -> dict[str, int]:
+    import pyarrow.compute as pc
+
+    out = {}
+    for col in ("d13c_carb_status", "d18o_carb_status", "d13c_org_status", "age_status"):
+        st = records.column(col)
+        n = pc.sum(pc.fill_null(pc.starts_with(st, "pending"), False)).as_py() or 0
+        if n:
+            out[col.removesuffix("_status")] = int(n)
+    return out
+
+
+def _old_state(con: Any, source_id: str) -> dict[str, Any]:
+    rows = con.execute("SELECT record_id, row_hash FROM lake.analyses WHERE source_id = ?",
+                       [source_id]).fetchall()
+    src = con.execute("SELECT file_sha256, mapping_sha256, schema_version FROM lake.sources "
+                      "WHERE source_id = ?", [source_id]).fetchone()
+    nq = con.execute("SELECT count(*) FROM lake.quarantine WHERE source_id = ?",
+                     [source_id]).fetchone()[0]
+    return {"hashes": dict(rows), "source": tuple(src) if src else None, "n_quarantine": nq}
+
+
+def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: dict[str, str],
+            settings: Settings, result: IngestResult) -> int:
+    """One transaction across all tables: replace the source, add chains, log the commit."""
+    import pyarrow as pa
+
+    from strata13.schemas.records import PER_SOURCE, QUARANTINE, SOURCES, arrow_schema
+
+    m = prepared.mapping
+    sid = m.source_id
+    con.execute("BEGIN")
+    for table in PER_SOURCE:
+        con.execute(f"DELETE FROM lake.{table} WHERE source_id = ?", [sid])
+    version = store._latest(con) + 1
+    src = m.source
+    sources = pa.Table.from_pylist([{
+        "source_id": sid, "citation": src.get("citation"), "year": src.get("year"),
+        "doi": src.get("doi"), "url": src.get("url"), "kind": src.get("kind"),
+        "lab": src.get("lab"), "republishes": "|".join(src.get("republishes", [])),
+        "note": src.get("note"), "file_name": m.table.file.name,
+        "file_sha256": prepared.file_sha256, "mapping_sha256": m.sha256,
+        "n_records": records.num_rows, "ingested_version": version,
+        "schema_version": SCHEMA_VERSION}], schema=arrow_schema(SOURCES))
+    quarantine = pa.Table.from_pylist(
+        [{"source_id": sid, **q, "ingested_version": version} for q in prepared.quarantine],
+        schema=arrow_schema(QUARANTINE))
+    for name, table in (("analyses", records), ("sources", sources),
+                        ("localities", prepared.localities), ("sections", prepared.sections),
+                        ("samples", prepared.samples), ("quarantine", quarantine)):
+        if table.num_rows:
+            con.register("incoming", table)
+            con.execute(f"INSERT INTO lake.{name} SELECT * FROM incoming")
+            con.unregister("incoming")
+    known = {r[0] for r in con.execute("SELECT chain_id FROM lake.chains").fetchall()}
+    for cid, steps in sorted(chains.items()):
+        if cid not in known:
+            con.execute("INSERT INTO lake.chains VALUES (?, ?)", [cid, steps])
+    summary = {"source": sid, "records": records.num_rows, "added": result.added,
+               "removed": result.removed, "changed": result.changed,
+               "quarantined": result.quarantined}
+    got = store._record_commit(con, "ingest", sid, settings.hash(), summary)
+    con.execute("COMMIT")
+    return got
+
+
+def reconcile(result: IngestResult) -> str:
+    """The row accounting sentence: read = committed + quarantined + blank."""
+    r = result.report
+    return (f"read {r.rows_read} rows = {result.committed} committed + {result.quarantined} "
+            f"quarantined + {r.rows_blank} blank")
+
+
+def summary_json(result: IngestResult) -> str:
+    return json.dumps({"source": result.source_id, "version": result.version,
+                       "committed": result.committed, "quarantined": result.quarantined,
+                       "added": result.added, "removed": result.removed,
+                       "changed": result.changed, "unchanged": result.unchanged})

@@ -1,0 +1,267 @@
+"""The mapping file: how one author's sheet becomes strata13 fields.
+
+A mapping file is TOML with the blocks ``[source]``, ``[table]``, ``[columns]``,
+``[constants]``, ``[[sections]]``, ``[[localities]]`` and ``[localities_table]``; the
+commented example is ``demo_compilation/mappings/example.toml``. Paths resolve relative to
+the mapping file and may not leave its folder. Every problem is a ConfigError (exit 2)
+naming the key and the fix.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from strata13.compile.errors import ConfigError, InputFileError
+from strata13.schemas.fields import (
+    BASIS_KEYS,
+    BY_NAME,
+    CONC_BASES,
+    DELTA_SCALES,
+    SCALE_KEYS,
+    UNITS,
+    field_names,
+)
+from strata13.schemas.vocabularies import vocabulary
+
+SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
+TOP_KEYS = {"source", "table", "columns", "constants", "sections", "localities",
+            "localities_table"}
+SOURCE_KEYS = {"id", "citation", "year", "doi", "url", "kind", "lab", "republishes", "note"}
+TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
+COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
+SECTION_KEYS = {"id", "locality", "name", "datum", "position_kind", "datum_offset_m",
+                "offset_from", "offset_source", "note"}
+LOCALITY_KEYS = {"id", "name", "lat", "lon", "precision_km", "aliases", "note"}
+
+
+@dataclass(frozen=True)
+class ColumnMap:
+    header: str
+    field: str
+    unit: str | None = None
+    scale: str | None = None
+    basis: str | None = None
+    detection_limit: float | None = None
+
+
+@dataclass
+class TableSpec:
+    file: Path
+    sheet: str | int | None = None
+    header_row: int | None = None
+    decimal: str = "auto"
+    delimiter: str = "auto"
+    encoding: str = "auto"
+    columns: list[ColumnMap] = field(default_factory=list)
+
+
+@dataclass
+class Mapping:
+    path: Path
+    sha256: str
+    source: dict[str, Any]
+    table: TableSpec
+    constants: dict[str, Any]
+    sections: list[dict[str, Any]]
+    localities: list[dict[str, Any]]
+    localities_table: TableSpec | None
+
+    @property
+    def source_id(self) -> str:
+        return str(self.source["id"])
+
+
+def _did_you_mean(word: str, options: set[str] | list[str]) -> str:
+    import difflib
+
+    hit = difflib.get_close_matches(word, sorted(options), n=1, cutoff=0.6)
+    return f" Did you mean {hit[0]!r}?" if hit else ""
+
+
+def _unknown_keys(where: str, given: dict[str, Any], allowed: set[str], path: Path) -> None:
+    for key in given:
+        if key not in allowed:
+            raise ConfigError(f"{path.name}: unknown key {key!r} in {where}."
+                              + _did_you_mean(key, allowed),
+                              f"Allowed keys in {where}: {', '.join(sorted(allowed))}.")
+
+
+def safe_path(base: Path, relative: str, what: str, mapping: Path) -> Path:
+    """Resolve ``relative`` against ``base``; refuse anything that leaves ``base``."""
+    if not isinstance(relative, str) or not relative.strip():
+        raise ConfigError(f"{mapping.name}: {what} must be a file name.", "Give a path "
+                          "relative to the mapping file.")
+    p = Path(relative)
+    if p.is_absolute():
+        raise ConfigError(f"{mapping.name}: {what} = {relative!r} is an absolute path.",
+                          "Paths in a mapping file are relative to its folder.")
+    resolved = (base / p).resolve()
+    if not resolved.is_relative_to(base.resolve()):
+        raise ConfigError(f"{mapping.name}: {what} = {relative!r} leaves the mapping file's "
+                          "folder.", "Put the sheet in the mapping file's folder or below it.")
+    return resolved
+
+
+def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) -> TableSpec:
+    allowed = TABLE_KEYS | ({"columns"} if with_columns else set())
+    _unknown_keys(where, block, allowed, path)
+    if "file" not in block:
+        raise ConfigError(f"{path.name}: {where} needs file = \"…\".",
+                          "Name the sheet file, relative to the mapping file.")
+    spec = TableSpec(file=safe_path(path.parent, block["file"], f"{where} file", path))
+    sheet = block.get("sheet")
+    if sheet is not None and not isinstance(sheet, (str, int)):
+        raise ConfigError(f"{path.name}: {where} sheet must be a name or a number.", "")
+    spec.sheet = sheet
+    hr = block.get("header_row")
+    if hr is not None and (not isinstance(hr, int) or isinstance(hr, bool) or hr < 1):
+        raise ConfigError(f"{path.name}: {where} header_row must be a row number from 1.",
+                          "Give the spreadsheet row that holds the column names.")
+    spec.header_row = hr
+    dec = block.get("decimal", "auto")
+    if dec not in ("auto", ".", ","):
+        raise ConfigError(f"{path.name}: {where} decimal = {dec!r} is not one of auto . ,",
+                          "Use decimal = \",\" for comma decimals.")
+    spec.decimal = dec
+    spec.delimiter = str(block.get("delimiter", "auto"))
+    spec.encoding = str(block.get("encoding", "auto"))
+    return spec
+
+
+def _column(header: str, spec: Any, path: Path) -> ColumnMap:
+    where = f"[columns] {header!r}"
+    if isinstance(spec, str):
+        spec = {"field": spec}
+    if not isinstance(spec, dict) or "field" not in spec:
+        raise ConfigError(f"{path.name}: {where} must be a field name or {{ field = … }}.",
+                          "Example: \"Height (ft)\" = { field = \"position\", unit = \"ft\" }")
+    _unknown_keys(where, spec, COLUMN_KEYS, path)
+    name = spec["field"]
+    if name not in BY_NAME and name not in SCALE_KEYS and name not in BASIS_KEYS:
+        raise ConfigError(f"{path.name}: {where} names unknown field {name!r}."
+                          + _did_you_mean(name, field_names()),
+                          "Run `strata13 fields` … or see DEVELOPERS.md for the field list.")
+    f = BY_NAME.get(name)
+    unit = spec.get("unit")
+    if unit is not None:
+        kinds = UNITS.get(f.unit_kind or "", {}) if f else {}
+        if unit not in kinds:
+            raise ConfigError(f"{path.name}: {where} unit {unit!r} does not fit field {name}.",
+                              f"Units for {name}: {', '.join(kinds) or 'none'}.")
+    scale = spec.get("scale")
+    if scale is not None:
+        _check_scale(name, scale, where, path)
+    basis = spec.get("basis")
+    if basis is not None and basis not in CONC_BASES:
+        raise ConfigError(f"{path.name}: {where} basis {basis!r} is not one of "
+                          f"{', '.join(CONC_BASES)}.", "")
+    dl = spec.get("detection_limit")
+    if dl is not None and (not isinstance(dl, (int, float)) or isinstance(dl, bool) or dl < 0):
+        raise ConfigError(f"{path.name}: {where} detection_limit must be a number ≥ 0.", "")
+    return ColumnMap(header, name, unit, scale, basis, float(dl) if dl is not None else None)
+
+
+def _check_scale(name: str, scale: str, where: str, path: Path) -> None:
+    if name not in DELTA_SCALES:
+        raise ConfigError(f"{path.name}: {where} gives a scale, but {name} is not a δ field.",
+                          "Scales go on d13c_carb, d18o_carb and d13c_org.")
+    if scale not in DELTA_SCALES[name]:
+        raise ConfigError(f"{path.name}: {where} scale {scale!r} is not known for {name}."
+                          + _did_you_mean(scale, set(DELTA_SCALES[name])),
+                          f"Scales for {name}: {', '.join(DELTA_SCALES[name])}.")
+
+
+def load_mapping(path: Path) -> Mapping:
+    """Read and check a mapping file. Raises InputFileError or ConfigError (exit 2)."""
+    if not path.exists() or path.is_dir():
+        raise InputFileError(f"mapping file {path} does not exist.", "Check --map.")
+    raw = path.read_bytes()
+    try:
+        doc = tomllib.loads(raw.decode("utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"{path.name} is not valid TOML ({exc}).",
+                          "Check quotes and brackets on the line named.") from None
+    _unknown_keys("the top level", doc, TOP_KEYS, path)
+    for block in ("source", "table", "columns"):
+        if not isinstance(doc.get(block), dict):
+            raise ConfigError(f"{path.name} has no [{block}] block.",
+                              "See demo_compilation/mappings/example.toml.")
+    source = dict(doc["source"])
+    _unknown_keys("[source]", source, SOURCE_KEYS, path)
+    sid = source.get("id")
+    if not isinstance(sid, str) or not SLUG.match(sid):
+        raise ConfigError(f"{path.name}: [source] id = {sid!r} is not a valid source id.",
+                          "Use 3–64 lowercase letters, digits and hyphens, e.g. "
+                          "\"obrien-delta-2019\".")
+    if not isinstance(source.get("citation"), str) or not source["citation"].strip():
+        raise ConfigError(f"{path.name}: [source] needs a citation.", "Give the full "
+                          "reference (or a description of the in-house run).")
+    kind = source.get("kind", "published")
+    if vocabulary("source_kind").resolve(str(kind)) is None:
+        raise ConfigError(f"{path.name}: [source] kind = {kind!r} is not published or in-house.",
+                          "")
+    source["kind"] = vocabulary("source_kind").resolve(str(kind))
+    if "year" in source and not isinstance(source["year"], int):
+        raise ConfigError(f"{path.name}: [source] year must be a whole number.", "")
+    rep = source.get("republishes", [])
+    if not isinstance(rep, list) or not all(isinstance(x, str) for x in rep):
+        raise ConfigError(f"{path.name}: [source] republishes must be a list of source ids "
+                          "or citations.", "")
+
+    table = _table(doc["table"], "[table]", path, with_columns=False)
+    columns = doc["columns"]
+    if not columns:
+        raise ConfigError(f"{path.name}: [columns] is empty.", "Map at least one column.")
+    table.columns = [_column(h, spec, path) for h, spec in columns.items()]
+    seen: dict[str, str] = {}
+    for c in table.columns:
+        if c.field in seen:
+            raise ConfigError(f"{path.name}: columns {seen[c.field]!r} and {c.header!r} both map "
+                              f"to {c.field}.", "Map each field from one column.")
+        seen[c.field] = c.header
+
+    constants = dict(doc.get("constants", {}))
+    for key, value in constants.items():
+        if key not in BY_NAME and key not in SCALE_KEYS and key not in BASIS_KEYS:
+            raise ConfigError(f"{path.name}: [constants] names unknown field {key!r}."
+                              + _did_you_mean(key, field_names()), "")
+        if key in seen:
+            raise ConfigError(f"{path.name}: {key} is both a column ({seen[key]!r}) and a "
+                              "constant.", "Keep one.")
+        if key in SCALE_KEYS:
+            _check_scale(SCALE_KEYS[key], value, f"[constants] {key}", path)
+        if key in BASIS_KEYS and value not in CONC_BASES:
+            raise ConfigError(f"{path.name}: [constants] {key} = {value!r} is not one of "
+                              f"{', '.join(CONC_BASES)}.", "")
+
+    sections = doc.get("sections", [])
+    localities = doc.get("localities", [])
+    if not isinstance(sections, list) or not isinstance(localities, list):
+        raise ConfigError(f"{path.name}: sections and localities are [[sections]] / "
+                          "[[localities]] blocks.", "")
+    for s in sections:
+        _unknown_keys("[[sections]]", s, SECTION_KEYS, path)
+        if not s.get("id"):
+            raise ConfigError(f"{path.name}: a [[sections]] block has no id.", "")
+    for loc in localities:
+        _unknown_keys("[[localities]]", loc, LOCALITY_KEYS, path)
+        if not loc.get("id"):
+            raise ConfigError(f"{path.name}: a [[localities]] block has no id.", "")
+    loc_table = None
+    if "localities_table" in doc:
+        block = doc["localities_table"]
+        loc_table = _table(block, "[localities_table]", path, with_columns=True)
+        cols = block.get("columns") or {}
+        loc_table.columns = [_column(h, spec, path) for h, spec in cols.items()]
+        allowed = {"locality_id", "locality_name", "lat", "lon"}
+        for c in loc_table.columns:
+            if c.field not in allowed:
+                raise ConfigError(f"{path.name}: [localities_table] maps {c.header!r} to "
+                                  f"{c.field}; only {', '.join(sorted(allowed))} belong there.", "")
+    return Mapping(path, hashlib.sha256(raw).hexdigest(), source, table, constants, sections,
+                   localities, loc_table)

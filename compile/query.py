@@ -1,0 +1,111 @@
+"""Filters -> SQL with bound parameters -> records, then the exact polygon test.
+
+``Filters`` is the one structure every command's FILTERS options become. ``where()`` turns
+it into a WHERE clause over the ``records`` view with ``?`` parameters only (no user text
+ever enters the SQL string); a region adds a bounding-box predicate there and an exact
+shapely test afterwards. The filter is recorded in export manifests via ``describe()``.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.errors import OptionError
+from strata13.compile.regions import Region
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+
+SCREENED = ("pass", "fail", "untested", "all")
+_RANGE = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*-\s*(\d+(?:\.\d+)?)\s*$")
+
+
+def parse_interval(text: str) -> tuple[float, float]:
+    """``'190-180'`` or ``'180-190'`` -> (180.0, 190.0) Ma.
+
+    Stage, series and period names are resolved by the time-scale tables; until a store
+    has them, only numeric ranges are accepted.
+    """
+    m = _RANGE.match(text)
+    if not m:
+        raise OptionError(f"--interval {text!r} is not a range in Ma like 185-180.",
+                          "Give two ages in Ma separated by '-', in either order; stage names "
+                          "need the time-scale tables.")
+    a, b = float(m.group(1)), float(m.group(2))
+    return (min(a, b), max(a, b))
+
+
+@dataclass
+class Filters:
+    interval: tuple[float, float] | None = None
+    region: Region | None = None
+    frame: str = "present"
+    lithology: list[str] = field(default_factory=list)
+    component: list[str] = field(default_factory=list)
+    source: list[str] = field(default_factory=list)
+    screened: str = "all"
+
+    def where(self) -> tuple[str, list[Any]]:
+        parts: list[str] = []
+        params: list[Any] = []
+        if self.interval is not None:
+            parts.append("age_ma BETWEEN ? AND ?")
+            params += list(self.interval)
+        if self.region is not None:
+            if self.frame == "paleo":
+                sql, p = self.region.sql("paleolon", "paleolat")
+            else:
+                sql, p = self.region.sql()
+            parts.append(sql)
+            params += p
+        for column, values in (("lithology", self.lithology), ("component", self.component),
+                               ("source_id", self.source)):
+            if values:
+                parts.append(f"{column} IN ({', '.join('?' for _ in values)})")
+                params += list(values)
+        if self.screened != "all":
+            parts.append("screen = ?")
+            params.append(self.screened)
+        return (" AND ".join(parts) if parts else "TRUE"), params
+
+    def describe(self) -> dict[str, Any]:
+        """The filter as plain data, for manifests and messages."""
+        return {"interval_ma": list(self.interval) if self.interval else None,
+                "region": self.region.describe() if self.region else None,
+                "frame": self.frame, "lithology": self.lithology, "component": self.component,
+                "source": self.source, "screened": self.screened}
+
+
+def check_vocab(values: list[str], vocab: str, option: str) -> list[str]:
+    """Canonical vocabulary terms for filter values, with a "did you mean" on a miss."""
+    from strata13.schemas.vocabularies import vocabulary
+
+    voc = vocabulary(vocab)
+    out = []
+    for v in values:
+        term = voc.resolve(v)
+        if term is None:
+            sug = voc.suggest(v)
+            raise OptionError(f"{option} {v!r} is not a known {vocab}."
+                              + (f" Did you mean {sug!r}?" if sug else ""),
+                              f"Known: {', '.join(voc.terms)}.")
+        out.append(term)
+    return out
+
+
+def run(con: Any, filters: Filters, columns: list[str] | None = None) -> pa.Table:
+    """Records matching ``filters`` as an Arrow table, ordered by record id."""
+    import pyarrow as pa
+
+    where, params = filters.where()
+    cols = ", ".join(f'"{c}"' for c in columns) if columns else "*"
+    table = con.execute(f"SELECT {cols} FROM records WHERE {where} ORDER BY record_id",
+                        params).fetch_arrow_table()
+    if filters.region is not None and table.num_rows:
+        lon_c, lat_c = ("paleolon", "paleolat") if filters.frame == "paleo" else ("lon", "lat")
+        keep = filters.region.contains(table.column(lon_c).to_numpy(zero_copy_only=False),
+                                       table.column(lat_c).to_numpy(zero_copy_only=False))
+        table = table.filter(pa.array(keep))
+    return table

@@ -1,0 +1,162 @@
+"""Regions: a bounding box, a GeoJSON polygon/multipolygon, or a named region of the store.
+
+Boundary rule: a point on a region's edge is inside (closed sets), in the SQL bounding-box
+prefilter and in the exact shapely test alike. Longitudes are degrees east; records are
+stored in −180…180. A bbox whose west edge is greater than its east edge
+(``bbox:170,-10,-170,10``) crosses the antimeridian; so does a GeoJSON polygon drawn with
+longitudes beyond 180 (``[175, …], [185, …]``) or split into parts at ±180 (RFC 7946).
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.errors import ConfigError, OptionError
+
+if TYPE_CHECKING:
+    import numpy as np
+
+
+@dataclass
+class Region:
+    name: str
+    geojson: dict[str, Any]  # a GeoJSON geometry, longitudes possibly beyond ±180
+    boxes: list[tuple[float, float, float, float]]  # (west, south, east, north), west ≤ east
+
+    def describe(self) -> dict[str, Any]:
+        return {"name": self.name, "geometry": self.geojson}
+
+    def sql(self, lon: str = "lon", lat: str = "lat") -> tuple[str, list[float]]:
+        """Bounding-box predicate with bound parameters (a prefilter; exact test after)."""
+        parts, params = [], []
+        for w, s, e, n in self.boxes:
+            parts.append(f"({lat} BETWEEN ? AND ? AND ({lon} BETWEEN ? AND ? "
+                         f"OR {lon} + 360 BETWEEN ? AND ? OR {lon} - 360 BETWEEN ? AND ?))")
+            params += [s, n, w, e, w, e, w, e]
+        return "(" + " OR ".join(parts) + ")", params
+
+    def contains(self, lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
+        """Exact closed-set test with shapely, trying lon, lon+360 and lon−360."""
+        import numpy as np
+        import shapely
+
+        geom = shapely.geometry.shape(self.geojson)
+        shapely.prepare(geom)
+        lon = np.asarray(lon, dtype=float)
+        lat = np.asarray(lat, dtype=float)
+        hit = np.zeros(len(lon), dtype=bool)
+        for shift in (0.0, 360.0, -360.0):
+            hit |= shapely.intersects_xy(geom, lon + shift, lat)
+        return hit
+
+
+def _box_geojson(w: float, s: float, e: float, n: float) -> dict[str, Any]:
+    if w > e:
+        e += 360.0
+    return {"type": "Polygon", "coordinates": [[[w, s], [e, s], [e, n], [w, n], [w, s]]]}
+
+
+def parse_bbox(text: str) -> Region:
+    body = text.split(":", 1)[1]
+    try:
+        w, s, e, n = (float(x) for x in body.split(","))
+    except ValueError:
+        raise OptionError(f"--region {text!r} is not bbox:W,S,E,N with four numbers.",
+                          "Example: --region bbox:-10,30,25,50") from None
+    if not (-90 <= s <= n <= 90) or not (-180 <= w <= 180 and -180 <= e <= 180):
+        raise OptionError(f"--region {text!r} is out of range or has south above north.",
+                          "Longitudes −180…180, latitudes −90…90, S ≤ N; W > E crosses the "
+                          "antimeridian.")
+    geo = _box_geojson(w, s, e, n)
+    return Region(text, geo, _boxes(geo))
+
+
+def _boxes(geo: dict[str, Any]) -> list[tuple[float, float, float, float]]:
+    import shapely
+
+    geom = shapely.geometry.shape(geo)
+    parts = list(getattr(geom, "geoms", [geom]))
+    return [tuple(float(v) for v in p.bounds) for p in parts]  # type: ignore[misc]
+
+
+def from_geojson(doc: Any, name: str, where: str) -> Region:
+    """A Region from a GeoJSON geometry, Feature or FeatureCollection (all parts united)."""
+    import shapely
+
+    geoms = []
+    if isinstance(doc, dict) and doc.get("type") == "FeatureCollection":
+        geoms = [f.get("geometry") for f in doc.get("features", [])]
+    elif isinstance(doc, dict) and doc.get("type") == "Feature":
+        geoms = [doc.get("geometry")]
+    elif isinstance(doc, dict):
+        geoms = [doc]
+    polys = []
+    for g in geoms:
+        if not isinstance(g, dict) or g.get("type") not in ("Polygon", "MultiPolygon"):
+            raise ConfigError(f"{where}: only Polygon and MultiPolygon geometries make a region.",
+                              "Draw the region as a polygon.")
+        try:
+            shp = shapely.geometry.shape(g)
+        except Exception as exc:  # shapely raises several types for bad coordinates
+            raise ConfigError(f"{where}: the polygon cannot be read ({exc}).",
+                              "Check the coordinate nesting: [[[lon, lat], …]].") from None
+        if not shp.is_valid:
+            raise ConfigError(f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
+                              "Fix self-intersections; close each ring.")
+        polys.append(shp)
+    if not polys:
+        raise ConfigError(f"{where} holds no polygon.", "")
+    union = shapely.union_all(polys)
+    geo = shapely.geometry.mapping(union)
+    geo = json.loads(json.dumps(geo))  # tuples -> lists
+    return Region(name, geo, _boxes(geo))
+
+
+def load_regions_file(path: Path) -> list[tuple[str, str]]:
+    """(name, geometry JSON) for each named feature of a regions GeoJSON file."""
+    if not path.is_file():
+        raise ConfigError(f"regions file {path} does not exist.", "Check --regions.")
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).", "") from None
+    if not isinstance(doc, dict) or doc.get("type") != "FeatureCollection":
+        raise ConfigError(f"{path.name} must be a GeoJSON FeatureCollection.",
+                          "Each feature a polygon with a 'name' property.")
+    out = []
+    for k, feat in enumerate(doc.get("features", [])):
+        name = (feat.get("properties") or {}).get("name")
+        if not isinstance(name, str) or not name.strip():
+            raise ConfigError(f"{path.name}: feature {k + 1} has no 'name' property.", "")
+        region = from_geojson(feat, name, f"{path.name} feature {name!r}")
+        out.append((name, json.dumps(region.geojson, sort_keys=True)))
+    names = [n for n, _ in out]
+    if len(set(names)) != len(names):
+        raise ConfigError(f"{path.name}: region names repeat.", "Give each region its own name.")
+    return out
+
+
+def resolve_region(spec: str, named: dict[str, str]) -> Region:
+    """``bbox:W,S,E,N``, a GeoJSON file path, or a name from the store's regions."""
+    if spec.startswith("bbox:"):
+        return parse_bbox(spec)
+    if spec in named:
+        return from_geojson(json.loads(named[spec]), spec, f"region {spec!r}")
+    path = Path(spec)
+    if path.suffix.lower() in (".json", ".geojson") or path.exists():
+        if not path.is_file():
+            raise ConfigError(f"region file {spec} does not exist.", "Check --region.")
+        try:
+            doc = json.loads(path.read_text(encoding="utf-8"))
+        except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+            raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).", "") from None
+        return from_geojson(doc, path.name, path.name)
+    import difflib
+
+    hit = difflib.get_close_matches(spec, list(named), n=1)
+    raise OptionError(f"--region {spec!r} is not a bbox, a GeoJSON file or a region of this store."
+                      + (f" Did you mean {hit[0]!r}?" if hit else ""),
+                      "Regions of this store: " + (", ".join(sorted(named)) or "none") + ".")

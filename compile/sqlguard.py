@@ -1,0 +1,108 @@
+"""`strata13 sql`: read-only SQL over the store's views, and nothing else.
+
+A statement runs only if DuckDB's own parser says it is one SELECT (or EXPLAIN of one)
+whose every table reference is one of the documented views (or a CTE of the statement)
+and whose table functions are on a short list of harmless generators. On top of that the
+connection has external access off, its configuration locked, a time limit and a row cap.
+The store's catalog is never reachable: it is not a view, and file access is off.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import threading
+from dataclasses import dataclass
+from typing import Any
+
+from strata13.compile.errors import QueryRefused
+
+VIEWS = ("records", "sources", "localities", "sections", "samples", "quarantine", "regions",
+         "chains", "settings", "commits")
+SAFE_TABLE_FUNCTIONS = {"range", "generate_series", "unnest"}
+DEFAULT_TIMEOUT_S = 30.0
+DEFAULT_ROW_CAP = 100_000
+
+
+@dataclass
+class SqlResult:
+    columns: list[str]
+    rows: list[tuple[Any, ...]]
+    truncated: bool
+
+
+def _walk(node: Any, ctes: set[str], problems: list[str]) -> None:
+    if isinstance(node, dict):
+        cte_map = node.get("cte_map")
+        if isinstance(cte_map, dict):
+            for entry in cte_map.get("map", []):
+                ctes.add(str(entry.get("key", "")).lower())
+        t = node.get("type")
+        if t == "BASE_TABLE":
+            name = str(node.get("table_name", "")).lower()
+            qualified = node.get("catalog_name") or node.get("schema_name")
+            if qualified or (name not in VIEWS and name not in ctes):
+                full = ".".join(x for x in (node.get("catalog_name"), node.get("schema_name"),
+                                            node.get("table_name")) if x)
+                problems.append(f"table {full!r} is not one of the views")
+        elif t == "TABLE_FUNCTION":
+            fn = node.get("function", {}).get("function_name", "")
+            if str(fn).lower() not in SAFE_TABLE_FUNCTIONS:
+                problems.append(f"table function {fn}() is not allowed")
+        for v in node.values():
+            _walk(v, ctes, problems)
+    elif isinstance(node, list):
+        for v in node:
+            _walk(v, ctes, problems)
+
+
+def check(con: Any, sql: str) -> str:
+    """The statement to run (EXPLAIN kept), or QueryRefused with the reason."""
+    text = sql.strip().rstrip(";").strip()
+    if not text:
+        raise QueryRefused("the SQL statement is empty.", "Example: strata13 sql \"SELECT "
+                           "count(*) FROM records\"")
+    if ";" in text and len(con.extract_statements(text)) > 1:
+        raise QueryRefused("only one statement at a time is allowed.", "Remove the extra ';'.")
+    explain = re.match(r"^\s*explain\s+(analyze\s+)?", text, re.IGNORECASE)
+    body = text[explain.end():] if explain else text
+    tree = json.loads(con.execute("SELECT json_serialize_sql(?)", [body]).fetchone()[0])
+    if tree.get("error"):
+        msg = tree.get("error_message", "not a SELECT statement")
+        raise QueryRefused(f"only SELECT (or EXPLAIN SELECT) statements are allowed ({msg}).",
+                           f"Query the views: {', '.join(VIEWS)}.")
+    problems: list[str] = []
+    _walk(tree.get("statements", []), set(), problems)
+    if problems:
+        raise QueryRefused(f"refused: {problems[0]}.",
+                           f"`sql` reads only the views {', '.join(VIEWS)}.")
+    return text
+
+
+def lock_down(con: Any) -> None:
+    """External access off and configuration locked, after the views exist."""
+    con.execute("SET enable_external_access = false")
+    con.execute("SET lock_configuration = true")
+
+
+def run_sql(con: Any, sql: str, timeout_s: float = DEFAULT_TIMEOUT_S,
+            row_cap: int = DEFAULT_ROW_CAP) -> SqlResult:
+    import duckdb
+
+    statement = check(con, sql)
+    lock_down(con)
+    timer = threading.Timer(timeout_s, con.interrupt)
+    timer.start()
+    try:
+        cur = con.execute(statement)
+        columns = [d[0] for d in cur.description]
+        rows = cur.fetchmany(row_cap + 1)
+    except duckdb.InterruptException:
+        raise QueryRefused(f"the query ran longer than {timeout_s:g} s and was stopped.",
+                           "Add a WHERE clause or a LIMIT.") from None
+    except duckdb.Error as exc:
+        raise QueryRefused(f"the query failed: {str(exc).splitlines()[0]}",
+                           f"Views: {', '.join(VIEWS)}; see DEVELOPERS.md for columns.") from None
+    finally:
+        timer.cancel()
+    return SqlResult(columns, rows[:row_cap], len(rows) > row_cap)

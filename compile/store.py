@@ -1,0 +1,274 @@
+"""The store: a DuckLake lakehouse (SQLite catalog + Parquet files) in one folder.
+
+Layout of a store folder::
+
+    strata13-store.json   marker: what this folder is (only init/ingest/demo create it)
+    catalog.sqlite        DuckLake catalog (WAL journal, busy timeout)
+    data/                 Parquet data files (inlining off: all data are Parquet)
+    writer.lock           flock target: one writer at a time, released by the kernel on crash
+
+Every write (init, ingest, recompute) is one transaction across all tables; its DuckLake
+snapshot id is the store version. Writers take the OS lock *before* attaching and write
+from one connection and one thread; readers attach READ_ONLY and pin one snapshot.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import fcntl
+import json
+import os
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass
+from functools import cache
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.errors import NotAStoreError, StoreError
+from strata13.schemas.fields import SCHEMA_VERSION
+from strata13.schemas.records import RECORDS_COLUMNS, TABLES
+
+if TYPE_CHECKING:
+    import duckdb
+
+MARKER = "strata13-store.json"
+CATALOG = "catalog.sqlite"
+DATA = "data"
+LOCK = "writer.lock"
+LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
+READ_VIEWS = ("analyses", "sources", "localities", "sections", "samples", "quarantine",
+              "regions", "chains", "settings", "commits", "runs", "age_ties", "screen_results")
+
+
+@cache
+def _extension_files() -> dict[str, str | None]:
+    """Paths of the signed DuckLake and SQLite extension binaries shipped as wheels."""
+    out: dict[str, str | None] = {}
+    for name, module in (("ducklake", "duckdb_extension_ducklake"),
+                         ("sqlite_scanner", "duckdb_extension_sqlite_scanner")):
+        try:
+            mod = __import__(module)
+            hits = sorted(Path(mod.__file__).parent.glob("extensions/*/*.duckdb_extension"))
+            out[name] = str(hits[-1]) if hits else None
+        except ImportError:
+            out[name] = None
+    return out
+
+
+def connect() -> duckdb.DuckDBPyConnection:
+    """An in-memory DuckDB with the DuckLake and SQLite extensions loaded."""
+    import duckdb
+
+    con = duckdb.connect(":memory:")
+    for name, path in _extension_files().items():
+        try:
+            if path:
+                con.execute(f"LOAD '{path}'")
+            else:  # no wheel for this platform: DuckDB's own signed INSTALL
+                con.execute(f"INSTALL {name}")
+                con.execute(f"LOAD {name}")
+        except duckdb.Error as exc:
+            raise StoreError(f"the DuckDB extension {name} could not be loaded ({exc}).",
+                             "Install duckdb-extension-ducklake and "
+                             "duckdb-extension-sqlite-scanner matching your duckdb version.") \
+                from None
+    return con
+
+
+def _q(text: str) -> str:
+    return "'" + text.replace("'", "''") + "'"
+
+
+def is_store(path: Path) -> bool:
+    return (path / MARKER).is_file()
+
+
+@dataclass
+class Version:
+    version: int
+    time: str
+    command: str
+    detail: str
+    summary: dict[str, Any]
+
+
+class Store:
+    """One store folder. Open it with :meth:`open` or create it with :meth:`create`."""
+
+    def __init__(self, path: Path) -> None:
+        self.path = path.resolve()
+
+    # ------------------------------------------------------------ creation and opening
+    @classmethod
+    def open(cls, path: Path) -> Store:
+        if not is_store(path):
+            what = "does not exist" if not path.exists() else "is not a strata13 store"
+            raise NotAStoreError(f"{path} {what}.",
+                                 "Create one with `strata13 init --store DIR` or name an "
+                                 "existing store with --store (or STRATA13_STORE).")
+        return cls(path)
+
+    @classmethod
+    def create(cls, path: Path, settings_json: str, settings_hash: str,
+               regions: list[tuple[str, str, str]] | None = None) -> Store:
+        """Make a new store folder with every table, the settings and (optional) regions."""
+        if is_store(path):
+            raise StoreError(f"{path} is already a strata13 store.",
+                             "Use it as it is, or choose another folder.")
+        if path.exists() and (not path.is_dir() or any(path.iterdir())):
+            raise StoreError(f"{path} exists and is not empty.",
+                             "Choose a new or empty folder for the store.")
+        path.mkdir(parents=True, exist_ok=True)
+        store = cls(path)
+        (store.path / DATA).mkdir(exist_ok=True)
+        try:
+            with store.writer() as con:
+                con.execute("BEGIN")
+                for name, columns in TABLES.items():
+                    cols = ", ".join(f'"{c}" {t}' for c, t in columns)
+                    con.execute(f"CREATE TABLE lake.{name} ({cols})")
+                for key, value in json.loads(settings_json).items():
+                    con.execute("INSERT INTO lake.settings VALUES (?, ?, ?)",
+                                [key, json.dumps(value, sort_keys=True), settings_hash])
+                for name, geojson, src in regions or []:
+                    con.execute("INSERT INTO lake.regions VALUES (?, ?, ?)", [name, geojson, src])
+                store._record_commit(con, "init", "", settings_hash, {"regions": len(regions or [])})
+                con.execute("COMMIT")
+            (store.path / MARKER).write_text(json.dumps(
+                {"format": "strata13 store", "schema_version": SCHEMA_VERSION,
+                 "catalog": CATALOG, "data": DATA + "/"}, indent=1) + "\n")
+        except BaseException:
+            if not is_store(store.path):
+                import shutil
+
+                shutil.rmtree(store.path, ignore_errors=True)
+            raise
+        return store
+
+    # ------------------------------------------------------------ connections
+    def _attach(self, con: duckdb.DuckDBPyConnection, read_only: bool) -> None:
+        import duckdb
+
+        catalog = self.path / CATALOG
+        data = str(self.path / DATA) + "/"
+        opts = [f"DATA_PATH {_q(data)}", "OVERRIDE_DATA_PATH TRUE"]
+        if read_only:
+            opts.append("READ_ONLY")
+        else:
+            opts += ["DATA_INLINING_ROW_LIMIT 0", "META_JOURNAL_MODE 'WAL'",
+                     "META_BUSY_TIMEOUT 30000"]
+        try:
+            con.execute(f"ATTACH {_q('ducklake:sqlite:' + str(catalog))} AS lake ({', '.join(opts)})")
+        except duckdb.Error as exc:
+            raise StoreError(f"the store catalog {catalog} could not be opened ({exc}).",
+                             "Check the folder's permissions; if another program changed the "
+                             "catalog, restore it from a copy.") from None
+
+    @contextlib.contextmanager
+    def writer(self) -> Iterator[duckdb.DuckDBPyConnection]:
+        """Exclusive writer: flock first, then attach read-write; one connection, one thread."""
+        lock_path = self.path / LOCK
+        fd = os.open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            deadline = time.monotonic() + LOCK_TIMEOUT_S
+            while True:
+                try:
+                    fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                    break
+                except BlockingIOError:
+                    if time.monotonic() > deadline:
+                        raise StoreError(f"another strata13 process has been writing to {self.path}"
+                                         f" for over {LOCK_TIMEOUT_S:g} s.",
+                                         "Wait for it to finish, or check for a hung process.") \
+                            from None
+                    time.sleep(0.05)
+            con = connect()
+            try:
+                self._attach(con, read_only=False)
+                yield con
+            finally:
+                with contextlib.suppress(Exception):
+                    con.execute("ROLLBACK")
+                con.close()
+        finally:
+            with contextlib.suppress(OSError):
+                fcntl.flock(fd, fcntl.LOCK_UN)
+            os.close(fd)
+
+    def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
+        import duckdb
+
+        con = connect()
+        self._attach(con, read_only=True)
+        latest = self._latest(con)
+        v = latest if version is None else version
+        if version is not None and not (1 <= version <= latest):
+            con.close()
+            raise StoreError(f"version {version} does not exist; this store has versions 1 to "
+                             f"{latest}.", "See `strata13 history`.")
+        try:
+            for name in READ_VIEWS:
+                cols = "*"
+                if name == "analyses":
+                    cols = ", ".join(f'"{c}"' for c in RECORDS_COLUMNS)
+                    con.execute(f"CREATE TEMP VIEW records AS SELECT {cols} FROM "
+                                f"lake.analyses AT (VERSION => {int(v)})")
+                    continue
+                con.execute(f"CREATE TEMP VIEW {name} AS SELECT {cols} FROM lake.{name} "
+                            f"AT (VERSION => {int(v)})")
+        except duckdb.Error as exc:
+            con.close()
+            raise StoreError(f"version {v} of the store cannot be read ({exc}).",
+                             "The version may predate the store's tables; see "
+                             "`strata13 history`.") from None
+        return con, v
+
+    @staticmethod
+    def _latest(con: duckdb.DuckDBPyConnection) -> int:
+        return int(con.execute("SELECT max(snapshot_id) FROM lake.snapshots()").fetchone()[0])
+
+    def latest_version(self) -> int:
+        con = connect()
+        try:
+            self._attach(con, read_only=True)
+            return self._latest(con)
+        finally:
+            con.close()
+
+    def _record_commit(self, con: duckdb.DuckDBPyConnection, command: str, detail: str,
+                       settings_hash: str, summary: dict[str, Any]) -> int:
+        """Write the commits row and commit message; returns the version this commit gets."""
+        from strata13 import __version__
+
+        version = self._latest(con) + 1  # the writer lock makes this prediction safe
+        con.execute("INSERT INTO lake.commits VALUES (?, ?, ?, ?, ?, ?, ?)",
+                    [version, command, detail, __version__, SCHEMA_VERSION, settings_hash,
+                     json.dumps(summary, sort_keys=True)])
+        extra = json.dumps({"schema_version": SCHEMA_VERSION, "tool_version": __version__,
+                            "settings_hash": settings_hash})
+        con.execute(f"CALL lake.set_commit_message('strata13', {_q(command + ' ' + detail)}, "
+                    f"extra_info => {_q(extra)})")
+        return version
+
+    # ------------------------------------------------------------ reading helpers
+    def settings(self, version: int | None = None) -> dict[str, Any]:
+        con, _ = self.reader(version)
+        try:
+            rows = con.execute("SELECT key, value_json FROM settings").fetchall()
+        finally:
+            con.close()
+        return {k: json.loads(v) for k, v in rows}
+
+    def history(self) -> list[Version]:
+        con, _ = self.reader()
+        try:
+            snaps = dict(con.execute("SELECT snapshot_id, CAST(snapshot_time AS VARCHAR) FROM "
+                                     "lake.snapshots()").fetchall())
+            rows = con.execute("SELECT version, command, detail, summary_json FROM commits "
+                               "ORDER BY version").fetchall()
+        finally:
+            con.close()
+        return [Version(int(v), str(snaps.get(v, ""))[:19], c, d, json.loads(s or "{}"))
+                for v, c, d, s in rows]

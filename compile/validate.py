@@ -1,0 +1,713 @@
+"""Validate: a mapping plus its sheet -> reported records, hierarchy tables and a report.
+
+Everything is checked at once and reported by cell: cleaning problems, vocabularies with
+"did you mean", a stated scale for every δ value, required ids, unique record ids, the
+pandera schema (types and named plausible ranges), superposition against reported ages,
+and plausibility warnings (swapped δ13C/δ18O columns, unit slips). Nothing is written.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.cleaning import CellContext, parse_coordinate, parse_numbers
+from strata13.compile.errors import ConfigError
+from strata13.compile.mapping import ColumnMap, Mapping, TableSpec
+from strata13.compile.readers import RawTable, norm_header, read_table, strip_unit
+from strata13.compile.report import Issue, Report
+from strata13.schemas.fields import (
+    BASIS_KEYS,
+    BY_NAME,
+    CONC_FIELDS,
+    DELTA_FIELDS,
+    DELTA_SCALES,
+    SCALE_KEYS,
+    UNITS,
+)
+from strata13.schemas.records import ANALYSES, LOCALITIES, SAMPLES, SECTIONS
+from strata13.schemas.vocabularies import vocabulary
+
+if TYPE_CHECKING:
+    import numpy as np
+    import pyarrow as pa
+
+
+@dataclass
+class Prepared:
+    """What one mapping yields before anything is written."""
+
+    mapping: Mapping
+    file_sha256: str
+    records: pa.Table  # valid rows only, analyses columns (derived ones still empty)
+    localities: pa.Table
+    sections: pa.Table
+    samples: pa.Table
+    quarantine: list[dict[str, Any]]
+    report: Report = field(default_factory=Report)
+
+    @property
+    def ok(self) -> bool:
+        return not self.report.errors
+
+
+def record_id(source: str, section: str, sample: str, replicate: int) -> str:
+    """Stable id: a hash of (source, section, sample, replicate)."""
+    key = "\x1f".join([source, section, sample, str(replicate)])
+    return hashlib.sha256(key.encode("utf-8")).hexdigest()[:20]
+
+
+def _file_sha(path: Any) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+class _Rows:
+    """Per-row error bookkeeping shared by the checks."""
+
+    def __init__(self, raw: RawTable, report: Report) -> None:
+        import numpy as np
+
+        self.raw = raw
+        self.report = report
+        self.bad = np.zeros(raw.n_rows, dtype=bool)
+        self.reasons: dict[int, list[str]] = {}
+
+    def error(self, i: int, letter: str, column: str, value: Any, rule: str, hint: str) -> None:
+        cell = f"{letter}{int(self.raw.row_numbers[i])}"
+        self.report.add(Issue("error", self.raw.sheet, cell, column, _s(value), rule, hint))
+        self.bad[i] = True
+        self.reasons.setdefault(i, []).append(f"{cell}: {rule}")
+
+    def mark(self, indices: np.ndarray, rule: str, letter: str) -> None:
+        for i in indices:
+            self.bad[int(i)] = True
+            cell = f"{letter}{int(self.raw.row_numbers[int(i)])}"
+            self.reasons.setdefault(int(i), []).append(f"{cell}: {rule}")
+
+
+def _s(value: Any) -> str:
+    return "" if value is None else str(value)
+
+
+def _match_columns(raw: RawTable, spec: TableSpec, report: Report) -> dict[str, tuple[int, str | None]]:
+    """Mapped header -> (column index, unit found in the header)."""
+    exact = {norm_header(h): j for j, h in enumerate(raw.headers)}
+    bare: dict[str, tuple[int, str | None]] = {}
+    for j, h in enumerate(raw.headers):
+        name, unit = strip_unit(h)
+        bare.setdefault(norm_header(name), (j, unit))
+    out: dict[str, tuple[int, str | None]] = {}
+    missing = []
+    for c in spec.columns:
+        key = norm_header(c.header)
+        if key in exact:
+            out[c.header] = (exact[key], None)
+        elif norm_header(strip_unit(c.header)[0]) in bare:
+            out[c.header] = bare[norm_header(strip_unit(c.header)[0])]
+        else:
+            missing.append(c.header)
+    if missing:
+        import difflib
+
+        hint = difflib.get_close_matches(missing[0], raw.headers, n=1, cutoff=0.5)
+        raise ConfigError(
+            f"{raw.file} ({raw.sheet}): column {missing[0]!r} of the mapping is not in the header "
+            f"row {raw.header_row}." + (f" Did you mean {hint[0]!r}?" if hint else ""),
+            f"Header cells found: {', '.join(h for h in raw.headers if h)}. Set header_row "
+            "in [table] if the header is elsewhere.")
+    return out
+
+
+def _unit_for(c: ColumnMap, header_unit: str | None, raw: RawTable, letter: str,
+              report: Report) -> str | None:
+    f = BY_NAME.get(c.field)
+    if f is None or f.unit_kind is None:
+        return None
+    units = UNITS[f.unit_kind]
+    if c.unit:
+        if header_unit and header_unit in units and header_unit != c.unit:
+            report.add(Issue("warning", raw.sheet, f"{letter}{raw.header_row}", c.header,
+                             header_unit, "unit conflict",
+                             f"the header says {header_unit} but the mapping says {c.unit}; "
+                             f"the mapping's {c.unit} is used"))
+        return c.unit
+    if header_unit:
+        hu = header_unit.replace(" ", "")
+        for u in units:
+            if hu.lower() == u.lower().replace(" ", ""):
+                report.add(Issue("info", raw.sheet, f"{letter}{raw.header_row}", c.header, u,
+                                 "unit from header", f"unit {u} taken from the header"))
+                return u
+    if f.unit_kind == "length":
+        report.add(Issue("warning", raw.sheet, f"{letter}{raw.header_row}", c.header, "",
+                         "unit not stated", "no unit for this length column; metres assumed — "
+                         "set unit = \"m\", \"cm\" or \"ft\" in the mapping"))
+    return f.stored_unit
+
+
+def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
+    """Read, clean, map and validate one mapping's sheet. Never writes anything."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    spec = mapping.table
+    raw = read_table(spec.file, spec.sheet, spec.header_row, [c.header for c in spec.columns],
+                     spec.delimiter, spec.encoding)
+    report = Report()
+    report.extend(raw.issues)
+    report.rows_read = raw.n_rows + raw.blank_rows + raw.rejected_rows
+    report.rows_blank = raw.blank_rows
+    rows = _Rows(raw, report)
+    n = raw.n_rows
+    sid = mapping.source_id
+    found = _match_columns(raw, spec, report)
+    cols: dict[str, Any] = {}  # stored column -> array (numpy object/float or arrow)
+    letters: dict[str, tuple[str, str]] = {}  # stored column -> (letter, header)
+
+    for c in spec.columns:
+        j, header_unit = found[c.header]
+        letter, header = raw.letters[j], raw.headers[j]
+        ctx = CellContext(raw.sheet, header, letter, raw.row_numbers)
+        text = raw.column(j)
+        target = c.field
+        f = BY_NAME.get(target)
+        if target in SCALE_KEYS or target in BASIS_KEYS:
+            _text_column(cols, letters, target, text, letter, header)
+            continue
+        assert f is not None
+        letters[f.stored] = (letter, header)
+        if f.kind in ("text",):
+            _text_column(cols, letters, f.stored, text, letter, header)
+        elif f.kind == "vocab":
+            cols[f.stored] = _vocab_column(text, f.vocab or "", rows, letter, header)
+        elif f.kind == "coord":
+            cols[f.stored] = _coord_column(text, target, rows, letter, header)
+        else:
+            parsed = parse_numbers(text, ctx, spec.decimal)
+            report.extend(parsed.issues)
+            rows.mark(np.nonzero(parsed.bad)[0], "bad number", letter)
+            unit = _unit_for(c, header_unit, raw, letter, report)
+            values = parsed.values
+            if unit and f.unit_kind:
+                factor = UNITS[f.unit_kind][unit]
+                if factor != 1.0:
+                    values = pc.multiply(values, pa.scalar(factor))
+                    report.add(Issue("info", raw.sheet, f"{letter}{raw.header_row}", header, unit,
+                                     "unit conversion",
+                                     f"{unit} converted to {f.stored_unit} (× {factor:g})"))
+            if f.kind == "int":
+                arr = values.to_numpy(zero_copy_only=False)
+                frac = ~np.isnan(arr) & (np.floor(arr) != arr)
+                for i in np.nonzero(frac)[0]:
+                    rows.error(int(i), letter, header, raw.column(j)[int(i)].as_py(),
+                               "whole number", "this column takes whole numbers")
+                cols[f.stored] = values
+            else:
+                cols[f.stored] = values
+            if f.kind == "conc":
+                q = parsed.qualifier
+                cols[f"{target}_qualifier"] = q
+                if c.detection_limit is not None:
+                    is_bdl = pc.fill_null(pc.equal(q, "bdl"), False)
+                    cols[f"{target}_dl"] = pc.if_else(is_bdl, pa.scalar(c.detection_limit),
+                                                      pa.scalar(None, pa.float64()))
+                if c.basis:
+                    cols[f"{target}_basis"] = c.basis
+            elif parsed.qualifier.null_count < len(parsed.qualifier):
+                idx = np.nonzero(pc.is_valid(parsed.qualifier).to_numpy(zero_copy_only=False))[0]
+                for i in idx:
+                    rows.error(int(i), letter, header, raw.column(j)[int(i)].as_py(),
+                               "censored value", f"{target} takes plain numbers; "
+                               "'<x' and 'bdl' belong to concentration columns")
+            if f.kind == "delta" and c.scale:
+                cols[f"{target}_scale"] = c.scale
+
+    # constants fill whole columns (a column given in the sheet wins; load_mapping forbids both)
+    for key, value in mapping.constants.items():
+        f = BY_NAME.get(key)
+        stored = f.stored if f else key
+        if f and f.kind == "vocab":
+            term = vocabulary(f.vocab or "").resolve(str(value))
+            if term is None:
+                sug = vocabulary(f.vocab or "").suggest(str(value))
+                raise ConfigError(f"{mapping.path.name}: [constants] {key} = {value!r} is not in "
+                                  f"the {f.vocab} vocabulary." + (f" Did you mean {sug!r}?" if sug
+                                                                  else ""),
+                                  f"Known terms: {', '.join(vocabulary(f.vocab or '').terms)}.")
+            value = term
+        if f and f.kind in ("float", "delta", "conc", "int", "coord") and not isinstance(
+                value, (int, float)):
+            if f.kind == "coord":
+                try:
+                    value = parse_coordinate(str(value), key)
+                except ValueError as exc:
+                    raise ConfigError(f"{mapping.path.name}: [constants] {key}: {exc}.", "") \
+                        from None
+            else:
+                raise ConfigError(f"{mapping.path.name}: [constants] {key} must be a number.", "")
+        cols[stored] = value
+        letters.setdefault(stored, ("", f"[constants] {key}"))
+
+    def column(name: str) -> np.ndarray:
+        v = cols.get(name)
+        if v is None:
+            return np.full(n, None, dtype=object)
+        if isinstance(v, (pa.Array, pa.ChunkedArray)):
+            return v.to_numpy(zero_copy_only=False)
+        if isinstance(v, np.ndarray):
+            return v
+        return np.full(n, v, dtype=object)
+
+    # sections and localities
+    section_blocks = {str(s["id"]): s for s in mapping.sections}
+    sec = column("section_id")
+    if "section_id" not in cols:
+        if len(section_blocks) == 1:
+            sec = np.full(n, next(iter(section_blocks)), dtype=object)
+        elif n:
+            for i in range(n):
+                rows.error(i, "", "section_id", "", "section missing",
+                           "map a section column, set section_id in [constants], or define "
+                           "exactly one [[sections]] block")
+    locality_blocks = _localities(mapping, report)
+    loc = column("locality_id")
+    if "locality_id" not in cols:
+        sec_loc = {k: v.get("locality") for k, v in section_blocks.items()}
+        loc = np.array([sec_loc.get(s) if s is not None else None for s in sec], dtype=object)
+        if len(locality_blocks) == 1:
+            only = next(iter(locality_blocks))
+            loc = np.array([v if v is not None else only for v in loc], dtype=object)
+    lat, lon = column("lat").astype(object), column("lon").astype(object)
+    for i in range(n):
+        if lat[i] is None or (isinstance(lat[i], float) and np.isnan(lat[i])):
+            block = locality_blocks.get(loc[i]) if loc[i] is not None else None
+            if block is not None:
+                lat[i], lon[i] = block["lat"], block["lon"]
+    for s_id, block in section_blocks.items():
+        if block.get("locality") and block["locality"] not in locality_blocks:
+            raise ConfigError(f"{mapping.path.name}: section {s_id!r} names locality "
+                              f"{block['locality']!r}, which is not defined.",
+                              "Add a [[localities]] block or a [localities_table].")
+
+    sample = column("sample_id")
+    letter_s, header_s = letters.get("sample_id", ("", "sample_id"))
+    if "sample_id" not in cols:
+        raise ConfigError(f"{mapping.path.name}: no column is mapped to sample_id.",
+                          "Every record needs a sample identifier.")
+    for i in np.nonzero(np.array([v is None for v in sample], dtype=bool))[0]:
+        rows.error(int(i), letter_s, header_s, "", "sample missing",
+                   "every row needs a sample id; fill it or delete the row")
+
+    replicate = column("replicate")
+    replicate = np.array([1 if (v is None or (isinstance(v, float) and np.isnan(v))) else int(v)
+                          for v in replicate], dtype=np.int64) if n else np.zeros(0, np.int64)
+
+    # δ scales: every δ value needs one
+    for d in DELTA_FIELDS:
+        stored = BY_NAME[d].stored
+        if stored not in cols:
+            continue
+        vals = column(stored).astype(float)
+        scale = column(f"{d}_scale")
+        letter, header = letters[stored]
+        for i in np.nonzero(~np.isnan(vals))[0]:
+            sc = scale[i]
+            if sc is None:
+                rows.error(int(i), letter, header, vals[i], "scale not stated",
+                           f"state the reference scale of {d}: scale = \"VPDB\" on the column "
+                           f"or {d}_scale in [constants]")
+            elif sc not in DELTA_SCALES[d]:
+                rows.error(int(i), letter, header, sc, "unknown scale",
+                           f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
+
+    ids = np.array([record_id(sid, str(s), str(m), int(r)) if s is not None and m is not None
+                    else None for s, m, r in zip(sec, sample, replicate, strict=True)],
+                   dtype=object)
+    first_seen: dict[str, int] = {}
+    for i, rid in enumerate(ids):
+        if rid is None:
+            continue
+        if rid in first_seen:
+            rows.error(i, letter_s, header_s, sample[i], "duplicate record",
+                       f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is "
+                       f"already in row {raw.row_numbers[first_seen[rid]]}; give replicates "
+                       "a replicate number")
+        else:
+            first_seen[rid] = i
+
+    # assemble the analyses table
+    out: dict[str, Any] = {}
+    types = {name: t for name, t in ANALYSES}
+    for name, t in ANALYSES:
+        if name in cols or name in ("lat", "lon", "section_id", "locality_id"):
+            arr = {"lat": lat, "lon": lon, "section_id": sec, "locality_id": loc}.get(name)
+            if arr is None:
+                arr = cols[name] if isinstance(cols[name], (pa.Array, pa.ChunkedArray)) \
+                    else column(name)
+            out[name] = arr
+    out["record_id"] = ids
+    out["source_id"] = np.full(n, sid, dtype=object)
+    out["sample_id"] = sample
+    out["replicate"] = replicate
+    out["sheet"] = np.full(n, raw.sheet, dtype=object)
+    out["sheet_row"] = raw.row_numbers
+    if "position_kind" not in cols:
+        kinds = {k: v.get("position_kind") for k, v in section_blocks.items()}
+        out["position_kind"] = np.array([kinds.get(s) for s in sec], dtype=object)
+    for name in list(out):
+        out[name] = _to_arrow(out[name], types[name], n)
+    frame = pa.table(out)
+
+    _schema_check(frame, rows, letters)
+    _superposition(frame, rows, letters)
+    _plausibility(frame, raw, report, letters)
+
+    valid = ~rows.bad
+    report.rows_valid = int(valid.sum())
+    report.rows_rejected = int(rows.bad.sum()) + raw.rejected_rows
+    quarantine = []
+    for i in np.nonzero(rows.bad)[0]:
+        cells = {raw.headers[j]: raw.column(j)[int(i)].as_py() for j in range(len(raw.headers))}
+        quarantine.append({"sheet": raw.sheet, "sheet_row": int(raw.row_numbers[i]),
+                           "cells_json": json.dumps(cells, ensure_ascii=False),
+                           "reasons": "; ".join(rows.reasons.get(int(i), []))})
+    for issue in raw.issues:  # rows the reader could not split: quarantined with their text
+        if issue.rule == "row shape":
+            digits = "".join(ch for ch in issue.cell if ch.isdigit())
+            quarantine.append({"sheet": raw.sheet, "sheet_row": int(digits) if digits else None,
+                               "cells_json": json.dumps({"line": issue.value},
+                                                        ensure_ascii=False),
+                               "reasons": f"{issue.cell}: row shape"})
+    records = _complete(frame.filter(pa.array(valid)))
+    records = records.append_column("row_hash", _row_hashes(records)) \
+        if "row_hash" not in records.column_names else records
+    return Prepared(mapping, _file_sha(spec.file), records,
+                    _localities_table(sid, locality_blocks),
+                    _sections_table(sid, section_blocks, sec, loc),
+                    _samples_table(records), quarantine, report)
+
+
+def _to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
+    import numpy as np
+    import pyarrow as pa
+
+    t = {"VARCHAR": pa.string(), "DOUBLE": pa.float64(), "INTEGER": pa.int32(),
+         "BIGINT": pa.int64()}[sqltype]
+    if isinstance(values, pa.ChunkedArray):
+        values = values.combine_chunks()
+    if isinstance(values, pa.Array):
+        return values.cast(t)
+    if isinstance(values, np.ndarray) and values.dtype != object:
+        return pa.array(values, from_pandas=True).cast(t)  # NaN -> null
+    if sqltype == "DOUBLE":  # object arrays (lat/lon filled from localities)
+        return pa.array([None if v is None or (isinstance(v, float) and np.isnan(v)) else float(v)
+                         for v in values], type=t)
+    return pa.array(list(values), type=t) if sqltype != "VARCHAR" else \
+        pa.array([None if v is None else str(v) for v in values], type=t)
+
+
+def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stored: str,
+                 text: pa.ChunkedArray, letter: str, header: str) -> None:
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    t = pc.utf8_trim_whitespace(text.combine_chunks())
+    cols[stored] = pc.if_else(pc.equal(t, ""), pa.scalar(None, pa.string()), t)
+    letters[stored] = (letter, header)
+
+
+def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: _Rows, letter: str,
+                  header: str) -> Any:
+    import numpy as np
+    import pyarrow.compute as pc
+
+    voc = vocabulary(vocab)
+    arr = pc.utf8_trim_whitespace(text.combine_chunks()).to_numpy(zero_copy_only=False)
+    uniq = {v for v in arr if v}
+    resolved = {v: voc.resolve(v) for v in uniq}
+    out = np.array([resolved.get(v) if v else None for v in arr], dtype=object)
+    for i in np.nonzero(np.array([bool(v) and resolved.get(v) is None for v in arr],
+                                 dtype=bool))[0]:
+        sug = voc.suggest(arr[i])
+        rows.error(int(i), letter, header, arr[i], f"{vocab} vocabulary",
+                   (f"did you mean {sug!r}? " if sug else "") +
+                   f"known terms: {', '.join(voc.terms)}")
+    return out
+
+
+def _coord_column(text: pa.ChunkedArray, axis: str, rows: _Rows, letter: str,
+                  header: str) -> Any:
+    import numpy as np
+
+    arr = text.combine_chunks().to_numpy(zero_copy_only=False)
+    out = np.full(len(arr), np.nan)
+    cache: dict[str, float | str] = {}
+    for i, v in enumerate(arr):
+        if v is None or not str(v).strip():
+            continue
+        if v not in cache:
+            try:
+                cache[v] = parse_coordinate(v, axis)
+            except ValueError as exc:
+                cache[v] = str(exc)
+        r = cache[v]
+        if isinstance(r, str):
+            rows.error(i, letter, header, v, "coordinate", r)
+        else:
+            out[i] = r
+    return out
+
+
+def _localities(mapping: Mapping, report: Report) -> dict[str, dict[str, Any]]:
+    """Locality id -> block with decimal lat/lon, from inline blocks and a localities sheet."""
+    out: dict[str, dict[str, Any]] = {}
+    for block in mapping.localities:
+        b = dict(block)
+        for axis in ("lat", "lon"):
+            if axis not in b:
+                raise ConfigError(f"{mapping.path.name}: locality {b['id']!r} has no {axis}.", "")
+            try:
+                b[axis] = parse_coordinate(str(b[axis]), axis)
+            except ValueError as exc:
+                raise ConfigError(f"{mapping.path.name}: locality {b['id']!r} {axis} "
+                                  f"{block[axis]!r}: {exc}.", "") from None
+        _check_range(b, mapping)
+        out[str(b["id"])] = b
+    spec = mapping.localities_table
+    if spec is not None:
+        raw = read_table(spec.file, spec.sheet, spec.header_row, [c.header for c in spec.columns],
+                         spec.delimiter, spec.encoding)
+        found = _match_columns(raw, spec, report)
+        by_field = {c.field: raw.column(found[c.header][0]).to_pylist() for c in spec.columns}
+        for k in ("locality_id", "lat", "lon"):
+            if k not in by_field:
+                raise ConfigError(f"{mapping.path.name}: [localities_table] needs a column for "
+                                  f"{k}.", "")
+        for i, lid in enumerate(by_field["locality_id"]):
+            if not lid:
+                continue
+            try:
+                b = {"id": lid, "name": (by_field.get("locality_name") or [None] * (i + 1))[i],
+                     "lat": parse_coordinate(str(by_field["lat"][i]), "lat"),
+                     "lon": parse_coordinate(str(by_field["lon"][i]), "lon")}
+            except ValueError as exc:
+                raise ConfigError(f"{raw.file} ({raw.sheet}) row {raw.row_numbers[i]}: locality "
+                                  f"{lid!r}: {exc}.", "Fix the coordinate in the localities "
+                                  "sheet.") from None
+            _check_range(b, mapping)
+            out[str(lid)] = b
+    return out
+
+
+def _check_range(b: dict[str, Any], mapping: Mapping) -> None:
+    if not -90 <= b["lat"] <= 90 or not -180 <= b["lon"] <= 360:
+        raise ConfigError(f"{mapping.path.name}: locality {b['id']!r} has coordinates out of "
+                          f"range ({b['lat']}, {b['lon']}).", "Latitude −90…90, longitude "
+                          "−180…180; check for swapped lat/lon.")
+    if b["lon"] > 180:
+        b["lon"] -= 360
+
+
+def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
+    """Run the pandera schema lazily and turn its failure cases into cell errors."""
+    import pandera.errors as pe
+
+    from strata13.schemas.records import record_schema
+
+    df = frame.to_pandas(types_mapper=_pandas_types)
+    # rows already rejected (or lacking ids) are not re-reported by the schema
+    df = df[df["record_id"].notna()]
+    try:
+        record_schema().validate(df, lazy=True)
+    except pe.SchemaErrors as err:
+        fc = err.failure_cases
+        for _, r in fc.iterrows():
+            idx = r.get("index")
+            col = r.get("column")
+            check = str(r.get("check"))
+            if idx is None or col is None or (isinstance(idx, float) and idx != idx):
+                continue
+            letter, header = letters.get(str(col), ("", str(col)))
+            hint = f"value outside the plausible {check}" if "range" in check or \
+                check.endswith("range") else f"failed {check}"
+            if "vocabulary" in check:
+                hint = f"not a term of the {check}"
+            rows.error(int(idx), letter, header, r.get("failure_case"), check, hint +
+                       (" — check the unit and the column mapping" if "range" in hint else ""))
+
+
+def _pandas_types(t: Any) -> Any:
+    import pandas as pd
+    import pyarrow as pa
+
+    if t == pa.int32():
+        return pd.Int32Dtype()
+    if t == pa.string():
+        return pd.StringDtype() if False else None
+    return None
+
+
+def _superposition(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
+    """Within a section, reported ages must not contradict the order of positions."""
+    import numpy as np
+
+    if "age_reported_ma" not in frame.column_names or "position_m" not in frame.column_names:
+        return
+    sec = frame.column("section_id").to_pylist()
+    pos = frame.column("position_m").to_numpy(zero_copy_only=False).astype(float)
+    age = frame.column("age_reported_ma").to_numpy(zero_copy_only=False).astype(float)
+    sig = frame.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float) \
+        if "age_reported_sigma_ma" in frame.column_names else np.zeros(len(age))
+    sig = np.nan_to_num(sig)
+    kind = frame.column("position_kind").to_pylist() if "position_kind" in frame.column_names \
+        else [None] * len(age)
+    letter, header = letters.get("age_reported_ma", ("", "age"))
+    groups: dict[Any, list[int]] = {}
+    for i, s in enumerate(sec):
+        if s is not None and not np.isnan(pos[i]) and not np.isnan(age[i]):
+            groups.setdefault(s, []).append(i)
+    for _, idx in groups.items():
+        idx.sort(key=lambda i: pos[i])
+        depth = kind[idx[0]] == "depth"
+        for a, b in zip(idx, idx[1:], strict=False):
+            if pos[a] == pos[b]:
+                continue
+            # height: higher is younger (age falls); depth: deeper is older (age rises)
+            wrong = (age[b] - age[a] > sig[a] + sig[b]) if not depth else \
+                (age[a] - age[b] > sig[a] + sig[b])
+            if wrong:
+                rows.error(b, letter, header, age[b], "superposition",
+                           f"age {age[b]:g} Ma at {pos[b]:g} m contradicts {age[a]:g} Ma at "
+                           f"{pos[a]:g} m (row {rows.raw.row_numbers[a]}) in the same section")
+
+
+def _plausibility(frame: pa.Table, raw: RawTable, report: Report,
+                  letters: dict[str, tuple[str, str]]) -> None:
+    """Warnings for swapped δ columns and unit slips (common-practice heuristics)."""
+    import numpy as np
+
+    def values(name: str) -> np.ndarray:
+        if name not in frame.column_names:
+            return np.zeros(0)
+        v = frame.column(name).to_numpy(zero_copy_only=False).astype(float)
+        return v[~np.isnan(v)]
+
+    c13, o18 = values("d13c_carb_reported"), values("d18o_carb_reported")
+    scales = set(frame.column("d18o_carb_scale").to_pylist()) \
+        if "d18o_carb_scale" in frame.column_names else set()
+    if len(c13) >= 5 and len(o18) >= 5 and scales <= {"VPDB", "PDB", None}:
+        # Marine carbonate δ18O (VPDB) is mostly below δ13C (common practice, from memory:
+        # Phanerozoic δ13C ~ -3…+6 ‰, δ18O ~ -10…0 ‰); the reverse suggests swapped columns.
+        if np.median(o18) > np.median(c13) + 2:
+            letter, header = letters.get("d13c_carb_reported", ("", ""))
+            report.add(Issue("warning", raw.sheet, letter, header, f"{np.median(c13):.2f}",
+                             "swapped δ columns?", "median δ18O is well above median δ13C; "
+                             "check that the δ13C and δ18O columns are not swapped"))
+    pos = values("position_m")
+    letter, header = letters.get("position_m", ("", ""))
+    if len(pos) >= 5 and np.nanmax(np.abs(pos)) > 2000:
+        report.add(Issue("warning", raw.sheet, letter, header, f"{np.nanmax(pos):g}",
+                         "unit slip?", "positions above 2000 m: were they given in cm or ft?"))
+    for c in CONC_FIELDS:
+        v = values(BY_NAME[c].stored)
+        letter, header = letters.get(BY_NAME[c].stored, ("", ""))
+        if c in ("mn", "sr", "fe") and len(v) >= 5 and np.nanmax(v) < 1.0:
+            report.add(Issue("warning", raw.sheet, letter, header, f"{np.nanmax(v):g}",
+                             "unit slip?", f"all {c} values below 1 ppm: were they in %?"))
+
+
+def _complete(table: pa.Table) -> pa.Table:
+    """Every analyses column present, with the stored type, in the stored order."""
+    import pyarrow as pa
+
+    from strata13.schemas.records import arrow_schema
+
+    schema = arrow_schema([c for c in ANALYSES if c[0] != "row_hash"])
+    cols = []
+    for f in schema:
+        if f.name in table.column_names:
+            cols.append(table.column(f.name).cast(f.type))
+        else:
+            cols.append(pa.nulls(table.num_rows, f.type))
+    return pa.Table.from_arrays(cols, schema=schema)
+
+
+def _row_hashes(table: pa.Table) -> pa.Array:
+    """A content hash per record over its reported columns, for re-ingest diffs.
+
+    Computed by DuckDB in one vectorised pass (no Python object per cell)."""
+    import duckdb
+
+    from strata13.compile.derive import DERIVED_COLUMNS
+
+    names = [c for c in table.column_names if c not in DERIVED_COLUMNS
+             and c not in ("sheet", "sheet_row")]
+    parts = ", ".join(f"coalesce(CAST(\"{c}\" AS VARCHAR), '\u2205')" for c in names)
+    con = duckdb.connect()
+    try:
+        con.register("t", table)
+        return con.execute(f"SELECT substr(sha256(concat_ws('\x1f', {parts})), 1, 16) AS h "
+                           "FROM t").fetch_arrow_table().column(0).combine_chunks()
+    finally:
+        con.close()
+
+
+def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:
+    import pyarrow as pa
+
+    from strata13.schemas.records import arrow_schema
+
+    rows = [{"source_id": sid, "locality_id": k, "name": b.get("name"), "lat": b["lat"],
+             "lon": b["lon"], "precision_km": b.get("precision_km"),
+             "aliases": "|".join(b.get("aliases", []) or []), "note": b.get("note")}
+            for k, b in sorted(blocks.items())]
+    return pa.Table.from_pylist(rows, schema=arrow_schema(LOCALITIES))
+
+
+def _sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: Any) -> pa.Table:
+    import pyarrow as pa
+
+    from strata13.schemas.records import arrow_schema
+
+    ids = sorted({str(s) for s in sec if s is not None} | set(blocks))
+    first_loc = {}
+    for s, lo in zip(sec, loc, strict=False):
+        if s is not None:
+            first_loc.setdefault(str(s), lo)
+    rows = []
+    for s in ids:
+        b = blocks.get(s, {})
+        rows.append({"source_id": sid, "section_id": s,
+                     "locality_id": b.get("locality") or first_loc.get(s),
+                     "name": b.get("name"), "datum": b.get("datum"),
+                     "position_kind": b.get("position_kind"),
+                     "datum_offset_m": b.get("datum_offset_m"),
+                     "offset_from": b.get("offset_from"), "offset_source": b.get("offset_source"),
+                     "note": b.get("note")})
+    return pa.Table.from_pylist(rows, schema=arrow_schema(SECTIONS))
+
+
+def _samples_table(records: pa.Table) -> pa.Table:
+    import pyarrow as pa
+
+    from strata13.schemas.records import arrow_schema
+
+    names = [c for c, _ in SAMPLES]
+    if records.num_rows == 0:
+        return pa.Table.from_pylist([], schema=arrow_schema(SAMPLES))
+    t = records.select(names)
+    grouped = t.group_by(["source_id", "section_id", "sample_id"], use_threads=False).aggregate(
+        [("position_m", "min"), ("top_m", "min"), ("base_m", "max"),
+         ("lithostrat_unit", "min")])
+    grouped = grouped.rename_columns([
+        {"position_m_min": "position_m", "top_m_min": "top_m", "base_m_max": "base_m",
+         "lithostrat_unit_min": "lithostrat_unit"}.get(c, c) for c in grouped.column_names])
+    return grouped.select(names).cast(arrow_schema(SAMPLES)).sort_by(
+        [("section_id", "ascending"), ("sample_id", "ascending")])

@@ -1,0 +1,1 @@
+"""The strata13 data model: pandera schemas, vocabularies and reference tables."""

@@ -1,0 +1,155 @@
+"""Stored tables and the pandera schema that a sheet's rows must pass.
+
+``ANALYSES`` is the record table: one row per analysis, carrying its hierarchy (source,
+locality, section, sample), material, isotopes as reported and harmonised, screening
+inputs with qualifiers and basis, ages, paleogeography and lineage. Columns that later
+derive steps fill are present now and nullable. The other tables hold the hierarchy
+(sources, localities, sections, samples) and the store's bookkeeping.
+
+Types are fixed here, never inferred, so an export is byte-stable (no float32 anywhere).
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from strata13.schemas.fields import BY_NAME, CONC_FIELDS, DELTA_FIELDS, FIELDS
+
+if TYPE_CHECKING:
+    import pandera.pandas as pa_schema
+    import pyarrow as pa
+
+TEXT, REAL, INT, BIGINT = "VARCHAR", "DOUBLE", "INTEGER", "BIGINT"
+
+
+def _delta_columns() -> list[tuple[str, str]]:
+    out = []
+    for d in DELTA_FIELDS:
+        out += [(f"{d}_reported", REAL), (f"{d}_scale", TEXT), (f"{d}_sd", REAL),
+                (f"{d}_precision", REAL), (d, REAL), (f"{d}_chain", TEXT), (f"{d}_status", TEXT)]
+    return out
+
+
+def _conc_columns() -> list[tuple[str, str]]:
+    out = []
+    for c in CONC_FIELDS:
+        out += [(BY_NAME[c].stored, REAL), (f"{c}_qualifier", TEXT), (f"{c}_dl", REAL),
+                (f"{c}_basis", TEXT)]
+    return out
+
+
+ANALYSES: list[tuple[str, str]] = [
+    ("record_id", TEXT), ("source_id", TEXT), ("locality_id", TEXT), ("section_id", TEXT),
+    ("sample_id", TEXT), ("replicate", INT), ("n_replicates", INT),
+    ("lat", REAL), ("lon", REAL),
+    ("position_m", REAL), ("top_m", REAL), ("base_m", REAL), ("position_kind", TEXT),
+    ("lithostrat_unit", TEXT),
+    ("lithology", TEXT), ("texture", TEXT), ("component", TEXT), ("mineralogy", TEXT),
+    ("setting", TEXT), ("preservation", TEXT),
+    *_delta_columns(),
+    *_conc_columns(),
+    ("age_reported_ma", REAL), ("age_reported_sigma_ma", REAL), ("age_reported_scale", TEXT),
+    ("stage_reported", TEXT),
+    ("age_ma", REAL), ("age_sigma_ma", REAL), ("age_basis", TEXT), ("time_scale", TEXT),
+    ("age_status", TEXT),
+    ("plate_id", INT), ("paleolat", REAL), ("paleolon", REAL), ("paleo_model", TEXT),
+    ("paleo_frame", TEXT), ("paleo_status", TEXT),
+    ("reported_paleolat", REAL), ("reported_paleolon", REAL),
+    ("screen", TEXT),
+    ("original_source_id", TEXT), ("run_id", TEXT), ("note", TEXT),
+    ("sheet", TEXT), ("sheet_row", INT), ("row_hash", TEXT),
+]
+
+SOURCES = [
+    ("source_id", TEXT), ("citation", TEXT), ("year", INT), ("doi", TEXT), ("url", TEXT),
+    ("kind", TEXT), ("lab", TEXT), ("republishes", TEXT), ("note", TEXT),
+    ("file_name", TEXT), ("file_sha256", TEXT), ("mapping_sha256", TEXT),
+    ("n_records", BIGINT), ("ingested_version", BIGINT), ("schema_version", TEXT),
+]
+LOCALITIES = [
+    ("source_id", TEXT), ("locality_id", TEXT), ("name", TEXT), ("lat", REAL), ("lon", REAL),
+    ("precision_km", REAL), ("aliases", TEXT), ("note", TEXT),
+]
+SECTIONS = [
+    ("source_id", TEXT), ("section_id", TEXT), ("locality_id", TEXT), ("name", TEXT),
+    ("datum", TEXT), ("position_kind", TEXT), ("datum_offset_m", REAL), ("offset_from", TEXT),
+    ("offset_source", TEXT), ("note", TEXT),
+]
+SAMPLES = [
+    ("source_id", TEXT), ("section_id", TEXT), ("sample_id", TEXT), ("position_m", REAL),
+    ("top_m", REAL), ("base_m", REAL), ("lithostrat_unit", TEXT),
+]
+QUARANTINE = [
+    ("source_id", TEXT), ("sheet", TEXT), ("sheet_row", INT), ("cells_json", TEXT),
+    ("reasons", TEXT), ("ingested_version", BIGINT),
+]
+SETTINGS = [("key", TEXT), ("value_json", TEXT), ("hash", TEXT)]
+COMMITS = [
+    ("version", BIGINT), ("command", TEXT), ("detail", TEXT), ("tool_version", TEXT),
+    ("schema_version", TEXT), ("settings_hash", TEXT), ("summary_json", TEXT),
+]
+REGIONS = [("name", TEXT), ("geojson", TEXT), ("source_file", TEXT)]
+CHAINS = [("chain_id", TEXT), ("steps_json", TEXT)]
+# Filled by later capabilities; present now so no migration is needed.
+RUNS = [("source_id", TEXT), ("run_id", TEXT), ("material", TEXT), ("d13c_measured", REAL),
+        ("d18o_measured", REAL), ("note", TEXT)]
+AGE_TIES = [("source_id", TEXT), ("section_id", TEXT), ("position_m", REAL), ("age_ma", REAL),
+            ("age_sigma_ma", REAL), ("basis", TEXT), ("chart", TEXT), ("note", TEXT)]
+SCREEN_RESULTS = [("record_id", TEXT), ("rule", TEXT), ("outcome", TEXT), ("detail", TEXT)]
+
+TABLES: dict[str, list[tuple[str, str]]] = {
+    "analyses": ANALYSES, "sources": SOURCES, "localities": LOCALITIES, "sections": SECTIONS,
+    "samples": SAMPLES, "quarantine": QUARANTINE, "settings": SETTINGS, "commits": COMMITS,
+    "regions": REGIONS, "chains": CHAINS, "runs": RUNS, "age_ties": AGE_TIES,
+    "screen_results": SCREEN_RESULTS,
+}
+# Tables replaced source by source on (re-)ingest.
+PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine")
+
+# The public `records` view: DESIGN.md's names first, then every other analyses column.
+RECORDS_PUBLIC = [
+    "record_id", "source_id", "locality_id", "section_id", "sample_id", "replicate", "lat",
+    "lon", "position_m", "position_kind", "age_ma", "age_sigma_ma", "age_basis", "time_scale",
+    "lithology", "texture", "component", "mineralogy", "setting", "d13c_carb",
+    "d13c_carb_reported", "d13c_carb_scale", "d18o_carb", "d18o_carb_reported",
+    "d18o_carb_scale", "d13c_org", "d13c_org_reported", "d13c_org_scale", "plate_id",
+    "paleolat", "paleolon", "screen",
+]
+RECORDS_COLUMNS = RECORDS_PUBLIC + [c for c, _ in ANALYSES if c not in RECORDS_PUBLIC
+                                    and c != "row_hash"]
+
+
+def arrow_schema(columns: list[tuple[str, str]]) -> pa.Schema:
+    import pyarrow as pa
+
+    types = {TEXT: pa.string(), REAL: pa.float64(), INT: pa.int32(), BIGINT: pa.int64()}
+    return pa.schema([(n, types[t]) for n, t in columns])
+
+
+def record_schema() -> pa_schema.DataFrameSchema:
+    """The pandera schema every ingested row passes (ranges named, vocabularies closed)."""
+    import pandera.pandas as pa_schema
+
+    from strata13.schemas.vocabularies import vocabulary
+
+    cols: dict[str, pa_schema.Column] = {
+        "record_id": pa_schema.Column(str, nullable=False),  # uniqueness: validate.py
+        "source_id": pa_schema.Column(str, nullable=False),
+        "section_id": pa_schema.Column(str, nullable=False),
+        "sample_id": pa_schema.Column(str, nullable=False),
+        "replicate": pa_schema.Column("Int32", pa_schema.Check.ge(1), nullable=False),
+        "lat": pa_schema.Column(float, pa_schema.Check.in_range(-90, 90), nullable=True),
+        "lon": pa_schema.Column(float, pa_schema.Check.in_range(-180, 180), nullable=True),
+    }
+    for f in FIELDS:
+        if f.stored in cols or f.kind in ("text", "coord"):
+            continue
+        checks = []
+        if f.plausible:
+            checks.append(pa_schema.Check.in_range(*f.plausible, name=f.plausible_name))
+        if f.vocab:
+            checks.append(pa_schema.Check.isin(vocabulary(f.vocab).terms,
+                                               name=f"{f.vocab} vocabulary"))
+        dtype = "Int32" if f.kind == "int" else (str if f.kind == "vocab" else float)
+        cols[f.stored] = pa_schema.Column(dtype, checks, nullable=True, required=False)
+    return pa_schema.DataFrameSchema(cols, strict=False, coerce=False, name="analysis record")
