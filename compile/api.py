@@ -73,18 +73,18 @@ def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | P
     """Ingest a sheet through its mapping file; creates the store if the folder is new."""
     from strata13.compile import ingest as _ingest
 
+    create = None
     if not isinstance(store, Store):
         path = Path(store)
-        store = Store.open(path) if is_store(path) else None  # type: ignore[assignment]
-        if store is None:
-            if dry_run:
-                # validate only: a throwaway in-memory view of the defaults
-                return _ingest.ingest(_DryStore(), Path(sheet) if sheet else None,
-                                      Path(mapping), dry_run=True, keep_valid=keep_valid,
-                                      progress=progress)
-            store = init_store(path)
+        if is_store(path):
+            store = Store.open(path)
+        else:  # created only once the sheet has passed validation
+            def create() -> Store:
+                return init_store(path)
+
+            store = _DryStore()
     return _ingest.ingest(store, Path(sheet) if sheet else None, Path(mapping), dry_run=dry_run,
-                          keep_valid=keep_valid, progress=progress)
+                          keep_valid=keep_valid, progress=progress, create=create)
 
 
 class _DryStore(Store):

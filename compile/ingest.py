@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive import Settings, derive
-from strata13.compile.errors import DomainError, ValidationFailed
+from strata13.compile.errors import InputFileError, OptionError, ValidationFailed
 from strata13.compile.mapping import load_mapping
 from strata13.compile.report import Report
 from strata13.compile.store import Store
@@ -56,13 +56,16 @@ def settings_from_store(store: Store) -> Settings:
 
 
 def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: bool = False,
-           keep_valid: bool = False, progress: Any = None) -> IngestResult:
+           keep_valid: bool = False, progress: Any = None,
+           create: Any = None) -> IngestResult:
     """Ingest one mapping's sheet into ``store``. Raises ValidationFailed (exit 1)."""
     step = progress or (lambda _msg: None)
     step("reading the mapping")
     mapping = load_mapping(mapping_path)
+    if sheet is not None and not sheet.is_file():
+        raise InputFileError(f"{sheet} does not exist.", "Check the path of the sheet.")
     if sheet is not None and sheet.resolve() != mapping.table.file:
-        raise DomainError(f"{sheet} is not the file {mapping_path.name} maps "
+        raise OptionError(f"{sheet} is not the file {mapping_path.name} maps "
                           f"({mapping.table.file.name}).",
                           "Give the sheet named in the mapping's [table] file, or edit it.")
     step("reading and validating the sheet")
@@ -85,6 +88,8 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     if dry_run:
         return result
     step("committing")
+    if create is not None:
+        store = create()
     with store.writer() as con:
         old = _old_state(con, mapping.source_id)
         new_hash = dict(zip(records.column("record_id").to_pylist(),

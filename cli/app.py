@@ -1,0 +1,94 @@
+"""The strata13 command line: one module per command; this module wires them and maps
+errors to exit codes (0 done, 1 refused, 2 wrong instructions, 130 interrupted)."""
+
+from __future__ import annotations
+
+import sys
+from typing import Annotated
+
+import typer
+
+from strata13 import __version__
+from strata13.cli import demo, export, ingest, init, listing, query
+
+app = typer.Typer(
+    name="strata13", add_completion=False, no_args_is_help=True,
+    pretty_exceptions_enable=False, rich_markup_mode=None,
+    help="A local compilation database for carbonate carbon-isotope chemostratigraphy.",
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"strata13 {__version__}")
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _root(version: Annotated[bool, typer.Option("--version", callback=_version,
+                                                is_eager=True, help="Show the version.")]
+          = False,
+          debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks.")] = False
+          ) -> None:
+    """strata13: ingest, harmonise, query and export carbonate δ13C compilations."""
+
+
+app.command("demo")(demo.demo)
+app.command("init")(init.init)
+app.command("ingest")(ingest.ingest)
+app.command("sources")(listing.sources)
+app.command("history")(listing.history)
+app.command("query")(query.query)
+app.command("sql")(query.sql)
+app.command("export")(export.export)
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Entry point: run the app and turn every outcome into one exit code."""
+    try:  # recent typer releases carry their own copy of click
+        from typer._click import exceptions as cx
+    except ImportError:  # pragma: no cover - older typer with click as a dependency
+        from click import exceptions as cx
+
+    from strata13.cli import render
+    from strata13.compile.errors import Strata13Error
+
+    args = list(sys.argv[1:] if argv is None else argv)
+    debug = "--debug" in args
+    command = typer.main.get_command(app)
+    try:
+        rv = command.main(args=args, prog_name="strata13", standalone_mode=False)
+        code = rv if isinstance(rv, int) else 0
+    except typer.Exit as exc:
+        code = exc.exit_code
+    except cx.UsageError as exc:
+        if isinstance(exc, getattr(cx, "NoArgsIsHelpError", ())):
+            sys.stderr.write((exc.ctx.get_help() if exc.ctx else "") + "\n")
+            code = 0 if not args else 2
+        else:
+            usage = exc.ctx.get_usage() if exc.ctx else ""
+            render.error(exc.format_message(), (usage.replace("\n", " ") + "  (--help for "
+                                                "more)") if usage else "Run strata13 --help.")
+            code = 2
+    except (typer.Abort, KeyboardInterrupt) as exc:
+        text = getattr(exc, "message", "") or "interrupted"
+        render.error(text, "")
+        code = 130
+    except Strata13Error as exc:
+        if debug:
+            import traceback
+
+            traceback.print_exc()
+        render.error(exc.message, exc.hint)
+        code = exc.exit_code
+    except cx.ClickException as exc:
+        render.error(exc.format_message(), "")
+        code = exc.exit_code if exc.exit_code in (1, 2) else 2
+    except Exception as exc:  # an internal fault: one line, details with --debug
+        if debug:
+            raise
+        render.error(f"internal error: {type(exc).__name__}: {exc}",
+                     "Run again with --debug for the traceback, and report it.")
+        code = 1
+    sys.exit(code)

@@ -1,0 +1,72 @@
+"""Options shared by several commands, defined once."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+StoreOpt = Annotated[Path | None, typer.Option(
+    "--store", help="Store folder (default: $STRATA13_STORE or ./compilation).",
+    show_default=False)]
+FormatOpt = Annotated[str, typer.Option("--format", help="table | csv | json | parquet.")]
+OutOpt = Annotated[Path | None, typer.Option("--out", help="Write to this file instead of "
+                                             "stdout.", show_default=False)]
+IntervalOpt = Annotated[str | None, typer.Option(
+    "--interval", help="Time bin: 'A-B' in Ma (either order).", show_default=False)]
+TimeScaleOpt = Annotated[str | None, typer.Option(
+    "--time-scale", help="Time scale for --interval names (default: the store's).",
+    show_default=False)]
+RegionOpt = Annotated[str | None, typer.Option(
+    "--region", help="A region name of the store, a GeoJSON file, or bbox:W,S,E,N.",
+    show_default=False)]
+FrameOpt = Annotated[str, typer.Option("--frame", help="present | paleo: where --region "
+                                       "applies.")]
+LithologyOpt = Annotated[list[str] | None, typer.Option("--lithology", help="Repeatable.",
+                                                        show_default=False)]
+ComponentOpt = Annotated[list[str] | None, typer.Option("--component", help="Repeatable.",
+                                                        show_default=False)]
+SourceOpt = Annotated[list[str] | None, typer.Option("--source", help="Source id; repeatable.",
+                                                     show_default=False)]
+ScreenedOpt = Annotated[str, typer.Option("--screened", help="pass | fail | untested | all.")]
+
+
+def check_format(fmt: str, out: Path | None, allowed: tuple[str, ...] = ("table", "csv",
+                                                                         "json", "parquet")) -> None:
+    from strata13.compile.errors import OptionError
+
+    if fmt not in allowed:
+        raise OptionError(f"--format {fmt!r} is not one of {', '.join(allowed)}.",
+                          "Example: --format csv")
+    if fmt == "parquet" and out is None:
+        raise OptionError("--format parquet needs --out FILE.", "Parquet is binary; name a file.")
+
+
+def build_filters(store: Any, interval: str | None, time_scale: str | None, region: str | None,
+                  frame: str, lithology: list[str] | None, component: list[str] | None,
+                  source: list[str] | None, screened: str) -> Any:
+    """Turn the FILTERS options into the library's Filters (validated, vocabulary-checked)."""
+    from strata13.compile import api
+    from strata13.compile.errors import OptionError
+    from strata13.compile.query import SCREENED, Filters, check_vocab, parse_interval
+
+    if frame not in ("present", "paleo"):
+        raise OptionError(f"--frame {frame!r} is not present or paleo.", "")
+    if screened not in SCREENED:
+        raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.", "")
+    if time_scale is not None:
+        from strata13.schemas.vocabularies import vocabulary
+
+        if vocabulary("time_scale").resolve(time_scale) is None:
+            raise OptionError(f"--time-scale {time_scale!r} is not a shipped time scale.",
+                              f"Time scales: {', '.join(vocabulary('time_scale').terms)}.")
+    return Filters(
+        interval=parse_interval(interval) if interval else None,
+        region=api.region(store, region) if region else None,
+        frame=frame,
+        lithology=check_vocab(lithology or [], "lithology", "--lithology"),
+        component=check_vocab(component or [], "component", "--component"),
+        source=list(source or []),
+        screened=screened,
+    )

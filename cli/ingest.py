@@ -1,0 +1,62 @@
+"""`strata13 ingest`: validate a sheet through its mapping and commit it as one version."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from strata13.cli import render
+from strata13.cli.common import StoreOpt
+
+
+def ingest(file: Annotated[Path, typer.Argument(help="The sheet (xlsx, ods, csv, tsv).")],
+           map_: Annotated[Path, typer.Option("--map", help="The mapping file (TOML).")],
+           dry_run: Annotated[bool, typer.Option("--dry-run", help="Validate and report; "
+                                                 "write nothing.")] = False,
+           keep_valid: Annotated[bool, typer.Option("--keep-valid", help="Commit valid rows; "
+                                                    "quarantine the rest.")] = False,
+           report: Annotated[Path | None, typer.Option("--report", help="Write the full "
+                                                       "report (.csv or .json).",
+                                                       show_default=False)] = None,
+           store: StoreOpt = None) -> None:
+    """Ingest one sheet: every problem reported at once; nothing bad enters the store."""
+    from strata13.compile import api
+    from strata13.compile.errors import ValidationFailed
+    from strata13.compile.ingest import reconcile
+
+    try:
+        with render.progress() as step:
+            result = api.ingest(api.store_path(store), file, map_, dry_run=dry_run,
+                                keep_valid=keep_valid, progress=step)
+    except ValidationFailed as exc:
+        render.report(exc.report, limit_info=True)
+        if report:
+            exc.report.write(report)
+            render.note(f"full report written to {report}")
+        raise
+    if report:
+        result.report.write(report)
+    shown = [i for i in result.report.issues if i.severity != "info"]
+    if shown:
+        render.report(result.report, limit_info=True)
+    n_info = len(result.report.issues) - len(shown)
+    if n_info:
+        render.note(f"{n_info} cleaning notes (decimal commas, minus signs, units …)"
+                    + ("; see the --report file" if report else "; add --report PATH to see "
+                       "them"))
+    if result.dry_run:
+        render.message(f"dry run: {result.source_id} would commit {result.committed} records "
+                       f"and quarantine {result.quarantined}; nothing was written.")
+    elif result.unchanged:
+        render.message(f"{result.source_id}: unchanged (same file, mapping and settings); "
+                       "no new version.")
+    else:
+        render.message(f"{result.source_id}: committed as version {result.version} — "
+                       f"{result.added} added, {result.removed} removed, {result.changed} "
+                       "changed.")
+    render.message(reconcile(result))
+    if result.pending:
+        render.note("pending (kept as reported, not yet harmonised or dated): " + ", ".join(
+            f"{k} {v}" for k, v in sorted(result.pending.items())))

@@ -1,0 +1,25 @@
+"""`strata13 init`: create a store with its settings."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from strata13.cli import render
+from strata13.cli.common import StoreOpt
+
+
+def init(store: StoreOpt = None,
+         time_scale: Annotated[str, typer.Option("--time-scale", help="Time scale of the "
+                                                 "store's ages.")] = "ICS2024/12",
+         regions: Annotated[Path | None, typer.Option("--regions", help="GeoJSON "
+                                                      "FeatureCollection of named regions.",
+                                                      show_default=False)] = None) -> None:
+    """Create a new, empty store and choose its settings."""
+    from strata13.compile import api
+
+    s = api.init_store(api.store_path(store), time_scale=time_scale, regions=regions)
+    render.message(f"created store {s.path} (version 1; time scale "
+                   f"{api.open_store(s.path).settings()['time_scale']})")

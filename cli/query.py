@@ -1,0 +1,71 @@
+"""`strata13 query` and `strata13 sql`: records by filters, or read-only SQL over the views."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import typer
+
+from strata13.cli import render
+from strata13.cli.common import (
+    ComponentOpt,
+    FormatOpt,
+    FrameOpt,
+    IntervalOpt,
+    LithologyOpt,
+    OutOpt,
+    RegionOpt,
+    ScreenedOpt,
+    SourceOpt,
+    StoreOpt,
+    TimeScaleOpt,
+    build_filters,
+    check_format,
+)
+
+BRIEF = ["record_id", "source_id", "section_id", "sample_id", "position_m", "age_ma",
+         "component", "d13c_carb", "d18o_carb", "screen"]
+
+
+def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
+          region: RegionOpt = None, frame: FrameOpt = "present",
+          lithology: LithologyOpt = None, component: ComponentOpt = None,
+          source: SourceOpt = None, screened: ScreenedOpt = "all",
+          fmt: FormatOpt = "table", out: OutOpt = None,
+          all_columns: Annotated[bool, typer.Option("--all-columns", help="Every column of the "
+                                                    "records view in table output.")] = False,
+          store: StoreOpt = None) -> None:
+    """Records for a time bin, a region, materials and sources."""
+    from strata13.compile import api
+
+    check_format(fmt, out)
+    s = api.open_store(api.store_path(store))
+    filters = build_filters(s, interval, time_scale, region, frame, lithology, component,
+                            source, screened)
+    tbl = api.query_arrow(s, filters)
+    if fmt == "table" and not all_columns:
+        tbl = tbl.select(BRIEF)
+    if tbl.num_rows == 0:
+        render.message("no records match.")
+    render.arrow_out(tbl, fmt, out)
+    if tbl.num_rows:
+        render.note(f"{tbl.num_rows} records")
+
+
+def sql(statement: Annotated[str, typer.Argument(help="One SELECT (or EXPLAIN) over the "
+                                                 "views.")],
+        fmt: FormatOpt = "table", out: OutOpt = None,
+        timeout: Annotated[float, typer.Option("--timeout", help="Seconds before the query is "
+                                               "stopped.")] = 30.0,
+        max_rows: Annotated[int, typer.Option("--max-rows", help="Row cap.")] = 100_000,
+        store: StoreOpt = None) -> None:
+    """Read-only SQL over the views records, sources, localities, sections, samples, …"""
+    from strata13.compile import api
+
+    check_format(fmt, out)
+    res = api.sql(api.open_store(api.store_path(store)), statement, timeout, max_rows)
+    render.table(res.columns, res.rows, fmt, out)
+    if res.truncated:
+        render.message(f"only the first {max_rows} rows are shown (--max-rows).")
+    elif not res.rows:
+        render.message("no rows.")
