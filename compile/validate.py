@@ -22,6 +22,7 @@ from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
     CONC_FIELDS,
+    FIELDS,
     DELTA_FIELDS,
     DELTA_SCALES,
     SCALE_KEYS,
@@ -166,6 +167,13 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     report.rows_blank = raw.blank_rows
     rows = _Rows(raw, report)
     n = raw.n_rows
+    row_index = {int(r): i for i, r in enumerate(raw.row_numbers)}
+    for issue in raw.issues:  # reader errors on a data cell reject that row
+        digits = "".join(ch for ch in issue.cell if ch.isdigit())
+        if issue.severity == "error" and digits and int(digits) in row_index:
+            i = row_index[int(digits)]
+            rows.bad[i] = True
+            rows.reasons.setdefault(i, []).append(f"{issue.cell}: {issue.rule}")
     sid = mapping.source_id
     found = _match_columns(raw, spec, report)
     cols: dict[str, Any] = {}  # stored column -> array (numpy object/float or arrow)
@@ -535,12 +543,18 @@ def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, st
             if idx is None or col is None or (isinstance(idx, float) and idx != idx):
                 continue
             letter, header = letters.get(str(col), ("", str(col)))
-            hint = f"value outside the plausible {check}" if "range" in check or \
-                check.endswith("range") else f"failed {check}"
-            if "vocabulary" in check:
-                hint = f"not a term of the {check}"
-            rows.error(int(idx), letter, header, r.get("failure_case"), check, hint +
-                       (" — check the unit and the column mapping" if "range" in hint else ""))
+            f = next((x for x in FIELDS if x.stored == col), None)
+            if check.startswith("in_range") and f is not None and f.plausible:
+                lo, hi = f.plausible
+                rule = f"plausible {f.plausible_name or 'range'}"
+                hint = (f"outside {lo:g} … {hi:g}"
+                        f"{' ' + f.stored_unit if f.stored_unit else ''}; check the unit and the "
+                        "column mapping")
+            elif check.startswith("in_range"):
+                rule, hint = "plausible range", f"outside {check}; check the unit and mapping"
+            else:
+                rule, hint = check, f"failed the {check} check"
+            rows.error(int(idx), letter, header, r.get("failure_case"), rule, hint)
 
 
 def _pandas_types(t: Any) -> Any:

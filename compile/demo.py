@@ -1,0 +1,66 @@
+"""The demo: a fresh store from the invented demo compilation, end to end.
+
+Yields ("say" | "note" | "report" | "table", payload) steps so the CLI only renders.
+"""
+
+from __future__ import annotations
+
+import shutil
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+from strata13.compile import api
+from strata13.compile.errors import StoreError, ValidationFailed
+from strata13.compile.query import Filters
+
+SHEETS = [("quillar_2011.xlsx", "quillar_2011.toml"),
+          ("mossaret_fennoway_2018.ods", "mossaret_fennoway_2018.toml"),
+          ("ystrel_cores_2021.csv", "ystrel_cores_2021.toml")]
+BROKEN = ("harnholt_2016_broken.xlsx", "harnholt_2016_broken.toml")
+
+
+def demo_folder() -> Path:
+    """Where the demo data live (installed as strata13.demo_compilation)."""
+    from importlib.resources import files
+
+    return Path(str(files("strata13.demo_compilation")))
+
+
+def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
+    data = demo_folder()
+    sheets = data / "sheets"
+    store_dir = out / "compilation"
+    export_dir = out / "export"
+    if store_dir.exists():
+        if not (store_dir / "strata13-store.json").exists():
+            raise StoreError(f"{store_dir} exists and is not a strata13 store.",
+                             "Choose another --out folder.")
+        shutil.rmtree(store_dir)  # the demo always starts from a fresh store
+    yield "say", "strata13 demo — every name and number in it is invented."
+    store = api.init_store(store_dir, regions=data / "regions.geojson")
+    yield "say", f"store: {store.path}   (try: strata13 sources --store {store.path})"
+    for sheet, mapping in SHEETS:
+        r = api.ingest(store, sheets / sheet, sheets / mapping)
+        pend = ", ".join(f"{k} {v}" for k, v in sorted(r.pending.items()))
+        yield "say", (f"ingested {sheet}: {r.committed} records as version {r.version}"
+                      + (f" (pending: {pend})" if pend else ""))
+    sheet, mapping = BROKEN
+    yield "say", f"ingesting the deliberately broken {sheet} (dry run):"
+    try:
+        api.ingest(store, sheets / sheet, sheets / mapping, dry_run=True)
+    except ValidationFailed as exc:
+        yield "report", exc.report
+        yield "say", f"→ {exc.message} (as intended)"
+    filters = Filters(interval=(182.5, 183.5), region=api.region(store, "northern shelf"))
+    tbl = api.query_arrow(store, filters).select(
+        ["section_id", "sample_id", "position_m", "age_ma", "component", "d13c_carb"])
+    yield "say", ("query: --interval 183.5-182.5 --region 'northern shelf' → "
+                  f"{tbl.num_rows} records")
+    rows = [tuple(r.values()) for r in tbl.to_pylist()[:8]]
+    yield "table", (tbl.column_names, rows)
+    res = api.export(store, export_dir)
+    yield "say", f"export: {res.records} records of version {res.version} → {export_dir}"
+    yield "note", ("next: strata13 history --store " + str(store.path) +
+                   " ; strata13 sql \"SELECT section_id, count(*) FROM records GROUP BY 1\" "
+                   "--store " + str(store.path))

@@ -1,0 +1,1 @@
+"""The invented demo compilation (sheets, mapping files, regions), shipped with strata13."""
