@@ -32,7 +32,7 @@ if TYPE_CHECKING:
     import numpy as np
     import pyarrow as pa
 
-GENERATOR_VERSION = "1"
+GENERATOR_VERSION = "2"
 HERE = Path(__file__).resolve().parent
 DATA = HERE / "_data"
 SEED = 13
@@ -40,6 +40,9 @@ SEED = 13
 FULL_ROWS, QUICK_ROWS = 1_000_000, 100_000
 FULL_RECORDS, QUICK_RECORDS = 10_000_000, 1_000_000
 WARMUP_ROWS = 200
+RECORDS_PER_SECTION = 500  # query store: 250 samples x 2 replicates per section
+STUDIED_SHARE = 0.15  # query store: share of sources inside STUDIED_BOX
+STUDIED_BOX = (-20.0, 15.0, 45.0, 65.0)  # west, south, east, north (degrees)
 
 # Invented vocabulary weights: every term is in the shipped vocabularies.
 LITHOLOGIES = (("limestone", 0.55), ("marl", 0.2), ("dolostone", 0.1), ("chalk", 0.1),
@@ -307,7 +310,6 @@ def _store_chunk(start: int, stop: int, rps: int, sec_lat: np.ndarray, sec_lon: 
     import numpy as np
     import pyarrow as pa
     import pyarrow.compute as pc
-
     from strata13.compile.derive import chain_id
     from strata13.schemas.records import ANALYSES, arrow_schema
 
@@ -375,10 +377,9 @@ def make_store(n_records: int, folder: Path | None = None, seed: int = SEED,
     """A strata13 store of ``n_records`` synthetic records, committed in one transaction."""
     import numpy as np
     import pyarrow as pa
-
     from strata13.compile import api
-    from strata13.schemas.records import SOURCES, arrow_schema
     from strata13.schemas.fields import SCHEMA_VERSION
+    from strata13.schemas.records import SOURCES, arrow_schema
 
     say = log or (lambda _msg: None)
     folder = folder or DATA / f"store_{n_records}"
@@ -390,12 +391,16 @@ def make_store(n_records: int, folder: Path | None = None, seed: int = SEED,
         shutil.rmtree(folder)
     shutil.rmtree(stamp_dir, ignore_errors=True)
     rng = np.random.default_rng(seed)
-    rps, sections_per_source = 2000, 10
+    rps, sections_per_source = RECORDS_PER_SECTION, 10
     n_sections = -(-n_records // rps)
     n_sources = -(-n_sections // sections_per_source)
-    # each source works one region and one age window; its sections scatter around it
+    # each source works one region and one age window; its sections scatter around it.
+    # A share of the sources cluster in one well-studied (invented) box, as compilations do.
     src_lat = rng.uniform(-60, 70, n_sources)
     src_lon = rng.uniform(-180, 180, n_sources)
+    studied = rng.random(n_sources) < STUDIED_SHARE
+    src_lat[studied] = rng.uniform(STUDIED_BOX[1], STUDIED_BOX[3], studied.sum())
+    src_lon[studied] = rng.uniform(STUDIED_BOX[0], STUDIED_BOX[2], studied.sum())
     src_age = rng.uniform(5, 540, n_sources)
     owner = np.arange(n_sections) // sections_per_source
     sec_lat = np.round(np.clip(src_lat[owner] + rng.normal(0, 3, n_sections), -89, 89), 4)

@@ -149,7 +149,7 @@ def sql(store: Store, statement: str, timeout_s: float = 30.0,
 
     con, _ = store.reader()
     try:
-        return run_sql(con, statement, timeout_s, row_cap)
+        return run_sql(con, statement, timeout_s, row_cap, str(store.path / "data") + "/")
     finally:
         con.close()
 

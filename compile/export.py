@@ -122,7 +122,7 @@ def export(con: Any, version: int, out: Path, filters: Filters, settings_hash: s
     if ids:
         srcs = con.execute(
             f"SELECT source_id, citation, year, doi, url, kind FROM sources WHERE source_id IN "
-            f"({', '.join('?' for _ in ids)}) ORDER BY source_id", ids).fetch_arrow_table()
+            f"({', '.join('?' for _ in ids)}) ORDER BY source_id", ids).to_arrow_table()
         srcs = srcs.to_pylist()
     (out / "bibliography.bib").write_text(_bibtex(srcs), encoding="utf-8")
     (out / "bibliography.txt").write_text(

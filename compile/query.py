@@ -102,7 +102,7 @@ def run(con: Any, filters: Filters, columns: list[str] | None = None) -> pa.Tabl
     where, params = filters.where()
     cols = ", ".join(f'"{c}"' for c in columns) if columns else "*"
     table = con.execute(f"SELECT {cols} FROM records WHERE {where} ORDER BY record_id",
-                        params).fetch_arrow_table()
+                        params).to_arrow_table()
     if filters.region is not None and table.num_rows:
         lon_c, lat_c = ("paleolon", "paleolat") if filters.frame == "paleo" else ("lon", "lat")
         keep = filters.region.contains(table.column(lon_c).to_numpy(zero_copy_only=False),

@@ -79,18 +79,21 @@ def check(con: Any, sql: str) -> str:
     return text
 
 
-def lock_down(con: Any) -> None:
-    """External access off and configuration locked, after the views exist."""
+def lock_down(con: Any, data_dir: str | None = None) -> None:
+    """External access off (but for the store's own Parquet folder) and configuration
+    locked, after the views exist."""
+    if data_dir:
+        con.execute("SET allowed_directories = ?", [[data_dir]])
     con.execute("SET enable_external_access = false")
     con.execute("SET lock_configuration = true")
 
 
 def run_sql(con: Any, sql: str, timeout_s: float = DEFAULT_TIMEOUT_S,
-            row_cap: int = DEFAULT_ROW_CAP) -> SqlResult:
+            row_cap: int = DEFAULT_ROW_CAP, data_dir: str | None = None) -> SqlResult:
     import duckdb
 
     statement = check(con, sql)
-    lock_down(con)
+    lock_down(con, data_dir)
     timer = threading.Timer(timeout_s, con.interrupt)
     timer.start()
     try:

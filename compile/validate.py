@@ -668,7 +668,7 @@ def _row_hashes(table: pa.Table) -> pa.Array:
     try:
         con.register("t", table)
         return con.execute(f"SELECT substr(sha256(concat_ws('\x1f', {parts})), 1, 16) AS h "
-                           "FROM t").fetch_arrow_table().column(0).combine_chunks()
+                           "FROM t").to_arrow_table().column(0).combine_chunks()
     finally:
         con.close()
 

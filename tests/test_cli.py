@@ -1,0 +1,101 @@
+"""The command line: exit codes, stdout/stderr split, light --help, every command's
+refusals (subprocess, as a user runs it)."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from tests.conftest import tree_bytes
+
+EXE = [sys.executable, "-m", "strata13"]
+
+
+def run(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
+    return subprocess.run([*EXE, *args], capture_output=True, text=True, cwd=cwd, timeout=300)
+
+
+def test_help_loads_no_heavy_library() -> None:
+    code = ("import sys; sys.argv=['strata13','--help']\n"
+            "from strata13.cli.app import main\n"
+            "try:\n    main()\nexcept SystemExit:\n    pass\n"
+            "heavy = [m for m in ('pandas','pandera','duckdb','pyarrow','matplotlib') "
+            "if m in sys.modules]\nprint('HEAVY', heavy, file=sys.stderr)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert "HEAVY []" in out.stderr
+
+
+@pytest.mark.parametrize("args,code", [
+    (["--version"], 0),
+    (["query", "--no-such-option"], 2),
+    (["query", "--format", "xml"], 2),
+    (["ingest", "missing.csv", "--map", "missing.toml"], 2),
+    (["sql", "DROP TABLE records"], 1),
+    (["query", "--interval", "abc"], 2),
+    (["query", "--region", "nowhere"], 2),
+    (["export", "--out", "x", "--as-of", "999"], 1),
+])
+def test_exit_codes(demo_store: Path, args: list[str], code: int) -> None:
+    res = run(*args, *([] if args == ["--version"] else ["--store", str(demo_store)]))
+    assert res.returncode == code, res.stderr
+    if code:
+        assert "error:" in res.stderr and "Traceback" not in res.stderr
+
+
+def test_not_a_store_is_refused_and_nothing_created(tmp_path: Path) -> None:
+    target = tmp_path / "empty"
+    target.mkdir()
+    res = run("query", "--store", str(target))
+    assert res.returncode == 1
+    assert list(target.iterdir()) == []
+    res = run("sources", "--store", str(tmp_path / "nope"))
+    assert res.returncode == 1 and not (tmp_path / "nope").exists()
+
+
+def test_query_piped_is_tab_separated_and_json_is_array(demo_store: Path) -> None:
+    res = run("query", "--interval", "183.5-182.5", "--region", "northern shelf",
+              "--store", str(demo_store))
+    assert res.returncode == 0
+    lines = res.stdout.splitlines()
+    assert lines[0].split("\t")[0] == "record_id" and all("\t" in ln for ln in lines)
+    res = run("query", "--format", "json", "--paleolat" if False else "--screened", "all",
+              "--store", str(demo_store))
+    rows = json.loads(res.stdout)
+    assert isinstance(rows, list) and {"d13c_carb", "age_ma", "screen"} <= set(rows[0])
+
+
+def test_empty_result_exits_zero_and_says_so(demo_store: Path) -> None:
+    res = run("query", "--interval", "10-20", "--store", str(demo_store))
+    assert res.returncode == 0 and "no records" in res.stderr
+
+
+def test_broken_demo_sheet_report_and_unchanged_store(demo_store: Path, demo_sheets: Path,
+                                                       tmp_path: Path) -> None:
+    before = tree_bytes(demo_store)
+    rep = tmp_path / "report.json"
+    res = run("ingest", str(demo_sheets / "harnholt_2016_broken.xlsx"), "--map",
+              str(demo_sheets / "harnholt_2016_broken.toml"), "--report", str(rep),
+              "--store", str(demo_store))
+    assert res.returncode == 1
+    assert tree_bytes(demo_store) == before
+    issues = json.loads(rep.read_text())["issues"]
+    rules = {(i["cell"], i["rule"]) for i in issues if i["severity"] == "error"}
+    for expected in [("C3", "lithology vocabulary"), ("E4", "not a number"),
+                     ("A6", "duplicate record"), ("A7", "sample missing"),
+                     ("D9", "component vocabulary"), ("F10", "date in numeric column"),
+                     ("G11", "ambiguous comma"), ("H12", "superposition"),
+                     ("I13", "plausible latitude range"),
+                     ("E14", "formula without cached value"), ("E2", "scale not stated"),
+                     ("E8", "plausible carbonate δ13C range")]:
+        assert expected in rules
+
+
+def test_demo_runs_and_exports(tmp_path: Path) -> None:
+    res = run("demo", "--out", str(tmp_path / "d"))
+    assert res.returncode == 0, res.stderr
+    manifest = json.loads((tmp_path / "d" / "export" / "manifest.json").read_text())
+    assert manifest["counts"]["records"] > 100 and manifest["counts"]["sections"] >= 6

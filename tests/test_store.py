@@ -1,0 +1,198 @@
+"""The store: refusal leaves it unchanged, re-ingest diffs by record id, versions, export
+reproducibility, the sql guard, concurrency and a kill -9 during a commit."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import multiprocessing as mp
+import os
+import signal
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import pytest
+
+from strata13.compile import api
+from strata13.compile.errors import QueryRefused, ValidationFailed
+from tests.conftest import tree_bytes
+
+MAPPING = """
+[source]
+id = "obrien-delta-2019"
+citation = "O'Brien–Δ 2019 (invented)"
+[table]
+file = "{file}"
+[columns]
+"Sample" = "sample_id"
+"Height" = {{ field = "position", unit = "m" }}
+"d13C" = {{ field = "d13c_carb", scale = "VPDB" }}
+[constants]
+section_id = "s1"
+position_kind = "height"
+[[localities]]
+id = "l1"
+lat = 10.0
+lon = 20.0
+"""
+
+
+def write_source(folder: Path, rows: list[tuple[str, float, str]], name: str = "o.csv") -> Path:
+    (folder / name).write_text("Sample,Height,d13C\n" + "".join(
+        f"{s},{h},{d}\n" for s, h, d in rows), encoding="utf-8")
+    m = folder / "o.toml"
+    m.write_text(MAPPING.format(file=name), encoding="utf-8")
+    return m
+
+
+def test_reingest_reports_added_removed_changed_and_keeps_ids(tmp_path: Path) -> None:
+    m = write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "1.5"), ("c", 3, "2.0")])
+    store = api.init_store(tmp_path / "st")
+    first = api.ingest(store, None, m)
+    assert (first.added, first.removed, first.changed) == (3, 0, 0)
+    ids_before = dict(zip(api.query(store)["sample_id"], api.query(store)["record_id"]))
+    m = write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "9.9"), ("d", 4, "0.5")])
+    second = api.ingest(store, None, m)
+    assert (second.added, second.removed, second.changed) == (1, 1, 1)
+    after = api.query(store)
+    assert dict(zip(after["sample_id"], after["record_id"]))["a"] == ids_before["a"]
+    assert dict(zip(after["sample_id"], after["record_id"]))["b"] == ids_before["b"]
+    again = api.ingest(store, None, m)
+    assert again.unchanged and again.version is None
+
+
+def test_refused_ingest_leaves_store_bytes_unchanged(tmp_path: Path) -> None:
+    m = write_source(tmp_path, [("a", 1, "1.0")])
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, m)
+    before = tree_bytes(store.path)
+    m = write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "abc"), ("", 3, "1")])
+    with pytest.raises(ValidationFailed) as err:
+        api.ingest(store, None, m)
+    assert {i.cell for i in err.value.report.errors} >= {"C3", "A4"}
+    assert tree_bytes(store.path) == before
+
+
+def test_keep_valid_reconciles_counts(tmp_path: Path) -> None:
+    (tmp_path / "k.csv").write_text("Sample,Height,d13C\na,1,1.0\n\nb,2,abc\nc,3,2\n",
+                                    encoding="utf-8")
+    (tmp_path / "o.toml").write_text(MAPPING.format(file="k.csv"), encoding="utf-8")
+    store = api.init_store(tmp_path / "st")
+    r = api.ingest(store, None, tmp_path / "o.toml", keep_valid=True)
+    assert (r.committed, r.quarantined, r.report.rows_blank) == (2, 1, 1)
+    assert r.report.rows_read == r.committed + r.quarantined + r.report.rows_blank
+    assert api.sql(store, "SELECT count(*) FROM quarantine").rows == [(1,)]
+
+
+def test_pending_values_are_not_copied(demo_store: Path) -> None:
+    store = api.open_store(demo_store)
+    res = api.sql(store, "SELECT count(*) FROM records WHERE d18o_carb_scale = 'VSMOW' "
+                  "AND d18o_carb IS NOT NULL")
+    assert res.rows == [(0,)]
+    res = api.sql(store, "SELECT count(*) FROM records WHERE age_reported_scale = 'ICS2012' "
+                  "AND age_ma IS NOT NULL")
+    assert res.rows == [(0,)]
+
+
+def test_interval_and_region_query_returns_exactly_the_matching_records(demo_store: Path) -> None:
+    store = api.open_store(demo_store)
+    got = api.query(store, api.Filters(interval=(182.5, 183.5),
+                                       region=api.region(store, "northern shelf")))
+    everything = api.query(store)
+    expected = everything[(everything.age_ma >= 182.5) & (everything.age_ma <= 183.5)
+                          & everything.lat.between(45.5, 49.5)
+                          & everything.lon.between(8.0, 14.0)]
+    assert sorted(got.record_id) == sorted(expected.record_id)
+    assert len(got) > 0
+
+
+def test_export_is_byte_stable_and_as_of_reproduces(demo_store: Path, tmp_path: Path) -> None:
+    store = api.open_store(demo_store)
+    a = api.export(store, tmp_path / "a")
+    m = write_source(tmp_path, [("z", 1, "=cmd()"), ("y", 2, "-3.2")])
+    (tmp_path / "o.csv").write_text("Sample,Height,d13C\n=cmd(),1,-3.2\n", encoding="utf-8")
+    api.ingest(store, None, m)
+    b = api.export(store, tmp_path / "b", as_of=a.version)
+    for name in ("records.parquet", "records.csv", "bibliography.bib", "manifest.json"):
+        assert (tmp_path / "a" / name).read_bytes() == (tmp_path / "b" / name).read_bytes()
+    manifest = json.loads((tmp_path / "a" / "manifest.json").read_text())
+    for f in manifest["files"]:
+        digest = hashlib.sha256((tmp_path / "a" / f["path"]).read_bytes()).hexdigest()
+        assert f["sha256"] == digest and len(digest) == 64
+    latest = api.export(store, tmp_path / "c", api.Filters(source=["obrien-delta-2019"]))
+    csv_text = (tmp_path / "c" / "records.csv").read_text()
+    assert "'=cmd()" in csv_text and ",-3.2," in csv_text
+    assert latest.version == b.version + 1
+
+
+@pytest.mark.parametrize("statement", [
+    "DELETE FROM records", "COPY records TO 'x.csv'", "ATTACH 'x.db' AS y", "INSTALL httpfs",
+    "SET threads = 1", "PRAGMA version", "SELECT * FROM read_csv('/etc/passwd')",
+    "SELECT * FROM __ducklake_metadata_lake.ducklake_snapshot",
+    "SELECT * FROM sqlite_scan('catalog.sqlite', 'ducklake_snapshot')",
+    "SELECT * FROM lake.analyses", "SELECT 1; DROP TABLE records",
+])
+def test_sql_refuses_anything_but_reading_views(demo_store: Path, statement: str) -> None:
+    store = api.open_store(demo_store)
+    before = tree_bytes(demo_store)
+    with pytest.raises(QueryRefused):
+        api.sql(store, statement)
+    assert tree_bytes(demo_store) == before
+
+
+def test_sql_reads_views_with_row_cap(demo_store: Path) -> None:
+    res = api.sql(api.open_store(demo_store), "SELECT record_id FROM records", row_cap=5)
+    assert len(res.rows) == 5 and res.truncated
+
+
+def _ingest_worker(store: str, mapping: str) -> None:
+    api.ingest(store, None, mapping)
+
+
+def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: Path) -> None:
+    store = api.init_store(tmp_path / "st")
+    maps = []
+    for k in range(2):
+        d = tmp_path / f"src{k}"
+        d.mkdir()
+        m = write_source(d, [(f"s{k}-{i}", i, "1.0") for i in range(50)])
+        m.write_text(m.read_text().replace("obrien-delta-2019", f"conc-{k}"))
+        maps.append(m)
+    con, version = store.reader()
+    n_before = con.execute("SELECT count(*) FROM records").fetchone()[0]
+    ctx = mp.get_context("spawn")
+    procs = [ctx.Process(target=_ingest_worker, args=(str(store.path), str(m))) for m in maps]
+    for p in procs:
+        p.start()
+    for p in procs:
+        p.join(120)
+    # the pinned reader still sees its snapshot
+    assert con.execute("SELECT count(*) FROM records").fetchone()[0] == n_before
+    con.close()
+    assert all(p.exitcode == 0 for p in procs)
+    assert {s["source_id"] for s in api.sources(store)} == {"conc-0", "conc-1"}
+    assert store.latest_version() == version + 2
+
+
+def test_kill_during_commit_leaves_previous_version_served(tmp_path: Path) -> None:
+    m = write_source(tmp_path, [(f"a{i}", i, "1.0") for i in range(20)])
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, m)
+    v = store.latest_version()
+    rows = [(f"b{i}", i, "2.0") for i in range(200000)]
+    m2 = write_source(tmp_path, rows, "big.csv")
+    script = textwrap.dedent(f"""
+        from strata13.compile import api
+        api.ingest({str(store.path)!r}, None, {str(m2)!r})
+    """)
+    proc = subprocess.Popen([sys.executable, "-c", script])
+    time.sleep(3.0)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    latest = store.latest_version()
+    assert latest in (v, v + 1)  # landed whole or not at all
+    n = api.sql(store, "SELECT count(*) FROM records").rows[0][0]
+    assert n == (20 if latest == v else 200000)
