@@ -7,9 +7,9 @@ import sys
 from typing import Annotated
 
 import typer
+from strata13.cli import demo, export, ingest, init, listing, query
 
 from strata13 import __version__
-from strata13.cli import demo, export, ingest, init, listing, query
 
 app = typer.Typer(
     name="strata13", add_completion=False, no_args_is_help=True,

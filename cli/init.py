@@ -6,7 +6,6 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
-
 from strata13.cli import render
 from strata13.cli.common import StoreOpt
 

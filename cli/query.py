@@ -5,7 +5,6 @@ from __future__ import annotations
 from typing import Annotated
 
 import typer
-
 from strata13.cli import render
 from strata13.cli.common import (
     ComponentOpt,

@@ -27,7 +27,6 @@ from strata13.compile.store import Store, Version, is_store
 if TYPE_CHECKING:
     import pandas as pd
     import pyarrow as pa
-
     from strata13.compile.sqlguard import SqlResult
 
 __all__ = [

@@ -101,7 +101,6 @@ def _harmonise(table: pa.Table, chains: dict[str, str]) -> pa.Table:
 def _ages(table: pa.Table, settings: Settings) -> pa.Table:
     import pyarrow as pa
     import pyarrow.compute as pc
-
     from strata13.schemas.vocabularies import vocabulary
 
     voc = vocabulary("time_scale")

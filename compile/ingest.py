@@ -144,7 +144,6 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
             settings: Settings, result: IngestResult) -> int:
     """One transaction across all tables: replace the source, add chains, log the commit."""
     import pyarrow as pa
-
     from strata13.schemas.records import PER_SOURCE, QUARANTINE, SOURCES, arrow_schema
 
     m = prepared.mapping

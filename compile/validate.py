@@ -22,9 +22,9 @@ from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
     CONC_FIELDS,
-    FIELDS,
     DELTA_FIELDS,
     DELTA_SCALES,
+    FIELDS,
     SCALE_KEYS,
     UNITS,
 )
@@ -526,7 +526,6 @@ def _check_range(b: dict[str, Any], mapping: Mapping) -> None:
 def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
     """Run the pandera schema lazily and turn its failure cases into cell errors."""
     import pandera.errors as pe
-
     from strata13.schemas.records import record_schema
 
     df = frame.to_pandas(types_mapper=_pandas_types)
@@ -640,7 +639,6 @@ def _plausibility(frame: pa.Table, raw: RawTable, report: Report,
 def _complete(table: pa.Table) -> pa.Table:
     """Every analyses column present, with the stored type, in the stored order."""
     import pyarrow as pa
-
     from strata13.schemas.records import arrow_schema
 
     schema = arrow_schema([c for c in ANALYSES if c[0] != "row_hash"])
@@ -658,7 +656,6 @@ def _row_hashes(table: pa.Table) -> pa.Array:
 
     Computed by DuckDB in one vectorised pass (no Python object per cell)."""
     import duckdb
-
     from strata13.compile.derive import DERIVED_COLUMNS
 
     names = [c for c in table.column_names if c not in DERIVED_COLUMNS
@@ -675,7 +672,6 @@ def _row_hashes(table: pa.Table) -> pa.Array:
 
 def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:
     import pyarrow as pa
-
     from strata13.schemas.records import arrow_schema
 
     rows = [{"source_id": sid, "locality_id": k, "name": b.get("name"), "lat": b["lat"],
@@ -687,7 +683,6 @@ def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:
 
 def _sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: Any) -> pa.Table:
     import pyarrow as pa
-
     from strata13.schemas.records import arrow_schema
 
     ids = sorted({str(s) for s in sec if s is not None} | set(blocks))
@@ -710,7 +705,6 @@ def _sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: 
 
 def _samples_table(records: pa.Table) -> pa.Table:
     import pyarrow as pa
-
     from strata13.schemas.records import arrow_schema
 
     names = [c for c, _ in SAMPLES]

@@ -129,7 +129,6 @@ def arrow_schema(columns: list[tuple[str, str]]) -> pa.Schema:
 def record_schema() -> pa_schema.DataFrameSchema:
     """The pandera schema every ingested row passes (ranges named, vocabularies closed)."""
     import pandera.pandas as pa_schema
-
     from strata13.schemas.vocabularies import vocabulary
 
     cols: dict[str, pa_schema.Column] = {

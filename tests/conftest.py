@@ -6,7 +6,6 @@ import shutil
 from pathlib import Path
 
 import pytest
-
 from strata13.compile import api
 from strata13.compile.demo import SHEETS, demo_folder
 

@@ -5,7 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 
 import openpyxl
-
 from strata13.compile.readers import col_letter, read_table
 
 

@@ -9,7 +9,6 @@ import pytest
 import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
 from strata13.compile.errors import OptionError
 from strata13.compile.regions import from_geojson, parse_bbox
 

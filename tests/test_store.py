@@ -15,9 +15,9 @@ import time
 from pathlib import Path
 
 import pytest
-
 from strata13.compile import api
 from strata13.compile.errors import QueryRefused, ValidationFailed
+
 from tests.conftest import tree_bytes
 
 MAPPING = """
