@@ -30,6 +30,7 @@ import shutil
 import statistics
 import subprocess
 import sys
+import threading
 import time
 import traceback
 from collections.abc import Callable
@@ -114,7 +115,7 @@ def print_table(rows: list[Row]) -> None:
 
 
 def _median_time(fn: Callable[[], Any], repeat: int) -> tuple[float, Any]:
-    """Median wall time of ``repeat`` calls (after none) and the last call's result."""
+    """Median wall time of ``repeat`` calls and the last call's result."""
     times, out = [], None
     for _ in range(max(1, repeat)):
         t = time.perf_counter()
@@ -136,10 +137,13 @@ def child_ingest(store_dir: str, mapping: str, warmup: str, profile: str | None)
     api.ingest(api.init_store(work.with_name(work.name + "-warmup")), None, warmup)
     store = api.init_store(work)
     phases: list[tuple[str, float]] = []
+    sampler = _RssSampler()
+    sampler.start()
     t0 = time.perf_counter()
 
     def progress(msg: str) -> None:
         phases.append((msg, time.perf_counter() - t0))
+        sampler.phase = msg
 
     prof = None
     if profile:
@@ -147,14 +151,17 @@ def child_ingest(store_dir: str, mapping: str, warmup: str, profile: str | None)
 
         prof = cProfile.Profile()
         prof.enable()
-    result = api.ingest(store, None, mapping, progress=progress)
-    seconds = time.perf_counter() - t0
+    try:
+        result = api.ingest(store, None, mapping, progress=progress)
+    finally:
+        seconds = time.perf_counter() - t0
+        sampler.stop()
     if prof is not None:
         prof.disable()
         prof.dump_stats(profile)
     out: dict[str, Any] = {"seconds": seconds, "phases": phases, "vmhwm_kb": _vmhwm_kb(),
                            "committed": result.committed, "pending": result.pending,
-                           "version": result.version}
+                           "version": result.version, "phase_peak_kb": sampler.peaks}
     con, _ = store.reader()
     try:
         status: dict[str, dict[str, int]] = {}
@@ -167,6 +174,29 @@ def child_ingest(store_dir: str, mapping: str, warmup: str, profile: str | None)
     finally:
         con.close()
     return out
+
+
+class _RssSampler(threading.Thread):
+    """Samples this process's resident memory every 20 ms; keeps the peak per phase."""
+
+    def __init__(self) -> None:
+        super().__init__(daemon=True)
+        self.phase = "start"
+        self.peaks: dict[str, int] = {}
+        self._halt = threading.Event()
+        self._page_kb = os.sysconf("SC_PAGE_SIZE") // 1024
+
+    def run(self) -> None:
+        statm = Path("/proc/self/statm")
+        if not statm.exists():
+            return
+        while not self._halt.wait(0.02):
+            kb = int(statm.read_text().split()[1]) * self._page_kb
+            self.peaks[self.phase] = max(kb, self.peaks.get(self.phase, 0))
+
+    def stop(self) -> None:
+        self._halt.set()
+        self.join()
 
 
 def _vmhwm_kb() -> int:
@@ -271,7 +301,10 @@ def case_ingest(rows: int, repeat: int, profile: bool) -> Outcome:
 
     last = results[-1]
     marks = [*last["phases"], ["(done)", last["seconds"]]]
-    steps = [f"{marks[i][0]} {marks[i + 1][1] - marks[i][1]:.1f} s" for i in range(len(marks) - 1)]
+    peaks = last.get("phase_peak_kb", {})
+    steps = [f"{marks[i][0]} {marks[i + 1][1] - marks[i][1]:.1f} s"
+             + (f" (peak RSS {peaks[marks[i][0]] * 1024 / GB:.2f} GB)" if marks[i][0] in peaks
+                else "") for i in range(len(marks) - 1)]
     out.notes += [
         f"ingest: ours = median of {len(results)} run(s) of api.ingest into a fresh store, "
         "timed in a child after a 200-row warm-up ingest; baseline = best of 3 "

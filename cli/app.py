@@ -62,6 +62,8 @@ def main(argv: list[str] | None = None) -> None:
         code = rv if isinstance(rv, int) else 0
     except typer.Exit as exc:
         code = exc.exit_code
+        if code == 130:  # typer turns Ctrl-C into Exit(130); say what happened
+            render.error("interrupted", "")
     except cx.UsageError as exc:
         if isinstance(exc, getattr(cx, "NoArgsIsHelpError", ())):
             sys.stderr.write((exc.ctx.get_help() if exc.ctx else "") + "\n")

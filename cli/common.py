@@ -32,8 +32,10 @@ SourceOpt = Annotated[list[str] | None, typer.Option("--source", help="Source id
 ScreenedOpt = Annotated[str, typer.Option("--screened", help="pass | fail | untested | all.")]
 
 
-def check_format(fmt: str, out: Path | None, allowed: tuple[str, ...] = ("table", "csv",
-                                                                         "json", "parquet")) -> None:
+ALL_FORMATS = ("table", "csv", "json", "parquet")
+
+
+def check_format(fmt: str, out: Path | None, allowed: tuple[str, ...] = ALL_FORMATS) -> None:
     from strata13.compile.errors import OptionError
 
     if fmt not in allowed:

@@ -13,6 +13,7 @@
         ├── StoreError            the store refused an operation (lock, version, commit)
         ├── QueryRefused          a filter or a `sql` statement was refused
         └── DomainError           a request that contradicts the data (unknown record …)
+    Interrupted                   Ctrl-C during a write; .landed   -> exit 130
 
 The CLI maps InstructionError to exit 2, RefusedError to exit 1 and KeyboardInterrupt to
 130. Library users catch the class that matters to them.
@@ -79,3 +80,13 @@ class QueryRefused(RefusedError):
 
 class DomainError(RefusedError):
     pass
+
+
+class Interrupted(Strata13Error):
+    """Ctrl-C during a write; ``landed`` says truthfully whether the commit made it."""
+
+    exit_code = 130
+
+    def __init__(self, message: str, landed: bool) -> None:
+        super().__init__(message, "")
+        self.landed = landed

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive import Settings, derive
-from strata13.compile.errors import InputFileError, OptionError, ValidationFailed
+from strata13.compile.errors import InputFileError, Interrupted, OptionError, ValidationFailed
 from strata13.compile.mapping import load_mapping
 from strata13.compile.report import Report
 from strata13.compile.store import Store
@@ -23,15 +23,6 @@ from strata13.schemas.fields import SCHEMA_VERSION
 
 if TYPE_CHECKING:
     import pyarrow as pa
-
-
-class Interrupted(KeyboardInterrupt):
-    """Ctrl-C during an ingest; ``landed`` says whether the commit made it."""
-
-    def __init__(self, message: str, landed: bool) -> None:
-        super().__init__(message)
-        self.message = message
-        self.landed = landed
 
 
 @dataclass

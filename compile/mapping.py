@@ -145,7 +145,7 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
     if name not in BY_NAME and name not in SCALE_KEYS and name not in BASIS_KEYS:
         raise ConfigError(f"{path.name}: {where} names unknown field {name!r}."
                           + _did_you_mean(name, field_names()),
-                          "Run `strata13 fields` … or see DEVELOPERS.md for the field list.")
+                          "The fields are listed in DEVELOPERS.md (schemas/fields.py).")
     f = BY_NAME.get(name)
     unit = spec.get("unit")
     if unit is not None:

@@ -98,7 +98,8 @@ def read_table(path: Path, sheet: str | int | None = None, header_row: int | Non
         return _read_spreadsheet(path, sheet, header_row, expected)
     if suffix in TEXT_SUFFIXES:
         return _read_text(path, header_row, expected, delimiter, encoding)
-    raise InputFileError(f"{path.name} is not a spreadsheet strata13 reads ({suffix or 'no suffix'}).",
+    raise InputFileError(f"{path.name} is not a spreadsheet strata13 reads "
+                         f"({suffix or 'no suffix'}).",
                          "Use .xlsx, .ods, .csv or .tsv.")
 
 
@@ -245,7 +246,8 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
     while end:
         filled = [c for c in rows[end - 1] if c]
         if len(filled) == 1 and (FOOTNOTE_START.match(filled[0]) or not _numberish(filled[0])):
-            issues.append(Issue("info", sheet, f"{_first_col(body[end - 1], keep)}{numbers[end - 1]}",
+            ref = f"{_first_col(body[end - 1], keep)}{numbers[end - 1]}"
+            issues.append(Issue("info", sheet, ref,
                                 "", filled[0], "footnote row", "row below the data skipped"))
             end -= 1
             while end and not any(rows[end - 1]):
@@ -425,7 +427,8 @@ def _drop_blank_and_footnotes(raw: RawTable) -> None:
         col = raw.table.column(name)
         f = pc.and_(pc.is_valid(col), pc.not_equal(pc.utf8_trim_whitespace(col), ""))
         f = pc.fill_null(f, False)
-        filled = f if filled is None else pc.add(pc.cast(filled, pa.int32()), pc.cast(f, pa.int32()))
+        f = pc.cast(f, pa.int32())
+        filled = f if filled is None else pc.add(filled, f)
     counts = pc.cast(filled, pa.int32()).to_numpy(zero_copy_only=False)
     keep = counts > 0
     end = len(counts)

@@ -133,7 +133,8 @@ class Store:
                                 [key, json.dumps(value, sort_keys=True), settings_hash])
                 for name, geojson, src in regions or []:
                     con.execute("INSERT INTO lake.regions VALUES (?, ?, ?)", [name, geojson, src])
-                store._record_commit(con, "init", "", settings_hash, {"regions": len(regions or [])})
+                store._record_commit(con, "init", "", settings_hash,
+                                     {"regions": len(regions or [])})
                 con.execute("COMMIT")
             (store.path / MARKER).write_text(json.dumps(
                 {"format": "strata13 store", "schema_version": SCHEMA_VERSION,
@@ -159,7 +160,8 @@ class Store:
             opts += ["DATA_INLINING_ROW_LIMIT 0", "META_JOURNAL_MODE 'WAL'",
                      "META_BUSY_TIMEOUT 30000"]
         try:
-            con.execute(f"ATTACH {_q('ducklake:sqlite:' + str(catalog))} AS lake ({', '.join(opts)})")
+            target = _q("ducklake:sqlite:" + str(catalog))
+            con.execute(f"ATTACH {target} AS lake ({', '.join(opts)})")
         except duckdb.Error as exc:
             raise StoreError(f"the store catalog {catalog} could not be opened ({exc}).",
                              "Check the folder's permissions; if another program changed the "

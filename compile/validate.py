@@ -96,7 +96,8 @@ def _s(value: Any) -> str:
     return "" if value is None else str(value)
 
 
-def _match_columns(raw: RawTable, spec: TableSpec, report: Report) -> dict[str, tuple[int, str | None]]:
+def _match_columns(raw: RawTable, spec: TableSpec,
+                   report: Report) -> dict[str, tuple[int, str | None]]:
     """Mapped header -> (column index, unit found in the header)."""
     exact = {norm_header(h): j for j, h in enumerate(raw.headers)}
     bare: dict[str, tuple[int, str | None]] = {}
@@ -353,7 +354,7 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     # assemble the analyses table
     out: dict[str, Any] = {}
     types = {name: t for name, t in ANALYSES}
-    for name, t in ANALYSES:
+    for name, _t in ANALYSES:
         if name in cols or name in ("lat", "lon", "section_id", "locality_id"):
             arr = {"lat": lat, "lon": lon, "section_id": sec, "locality_id": loc}.get(name)
             if arr is None:

@@ -17,7 +17,8 @@ def sql_hits(region, lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
     con = duckdb.connect()
     con.execute("CREATE TABLE p (i INTEGER, lon DOUBLE, lat DOUBLE)")
     con.executemany("INSERT INTO p VALUES (?, ?, ?)",
-                    [(i, float(a), float(b)) for i, (a, b) in enumerate(zip(lon, lat))])
+                    [(i, float(a), float(b))
+                     for i, (a, b) in enumerate(zip(lon, lat, strict=True))])
     where, params = region.sql()
     ids = {r[0] for r in con.execute(f"SELECT i FROM p WHERE {where}", params).fetchall()}
     return np.array([i in ids for i in range(len(lon))])

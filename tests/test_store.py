@@ -10,13 +10,14 @@ import os
 import signal
 import subprocess
 import sys
-import textwrap
 import time
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from strata13.compile import api
-from strata13.compile.errors import QueryRefused, ValidationFailed
+from strata13.compile.errors import InstructionError, QueryRefused, ValidationFailed
 
 from tests.conftest import tree_bytes
 
@@ -31,7 +32,7 @@ file = "{file}"
 "Height" = {{ field = "position", unit = "m" }}
 "d13C" = {{ field = "d13c_carb", scale = "VPDB" }}
 [constants]
-section_id = "s1"
+section_id = "O'Brien–Δ 2019"
 position_kind = "height"
 [[localities]]
 id = "l1"
@@ -53,13 +54,14 @@ def test_reingest_reports_added_removed_changed_and_keeps_ids(tmp_path: Path) ->
     store = api.init_store(tmp_path / "st")
     first = api.ingest(store, None, m)
     assert (first.added, first.removed, first.changed) == (3, 0, 0)
-    ids_before = dict(zip(api.query(store)["sample_id"], api.query(store)["record_id"]))
+    before = api.query(store)
+    ids_before = dict(zip(before["sample_id"], before["record_id"], strict=True))
     m = write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "9.9"), ("d", 4, "0.5")])
     second = api.ingest(store, None, m)
     assert (second.added, second.removed, second.changed) == (1, 1, 1)
     after = api.query(store)
-    assert dict(zip(after["sample_id"], after["record_id"]))["a"] == ids_before["a"]
-    assert dict(zip(after["sample_id"], after["record_id"]))["b"] == ids_before["b"]
+    assert dict(zip(after["sample_id"], after["record_id"], strict=False))["a"] == ids_before["a"]
+    assert dict(zip(after["sample_id"], after["record_id"], strict=False))["b"] == ids_before["b"]
     again = api.ingest(store, None, m)
     assert again.unchanged and again.version is None
 
@@ -177,22 +179,131 @@ def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: P
     assert store.latest_version() == version + 2
 
 
-def test_kill_during_commit_leaves_previous_version_served(tmp_path: Path) -> None:
+HOOK = """
+import contextlib, os, sys, time
+from strata13.compile import api, store as st
+
+real_writer = st.Store.writer
+marker, when = sys.argv[3], sys.argv[4]
+
+
+class Proxy:
+    def __init__(self, con):
+        self._con = con
+
+    def execute(self, sql, *args):
+        if sql == "COMMIT" and when == "before":
+            open(marker, "w").close()
+            time.sleep(60)
+        if sql == "COMMIT" and when == "fault":
+            raise RuntimeError("injected fault before COMMIT")
+        out = self._con.execute(sql, *args)
+        if sql == "COMMIT" and when == "after":
+            open(marker, "w").close()
+            time.sleep(60)
+        return out
+
+    def __getattr__(self, name):
+        return getattr(self._con, name)
+
+
+@contextlib.contextmanager
+def writer(self):
+    with real_writer(self) as con:
+        yield Proxy(con)
+
+
+st.Store.writer = writer
+if len(sys.argv) > 5 and sys.argv[5] == "cli":
+    from strata13.cli.app import main
+    main(["ingest", sys.argv[2].replace(".toml", ".csv"), "--map", sys.argv[2],
+          "--store", sys.argv[1]])
+api.ingest(sys.argv[1], None, sys.argv[2])
+"""
+
+
+@pytest.mark.parametrize("when", ["before", "after"])
+def test_kill_9_around_commit_is_all_or_nothing(tmp_path: Path, when: str) -> None:
     m = write_source(tmp_path, [(f"a{i}", i, "1.0") for i in range(20)])
     store = api.init_store(tmp_path / "st")
     api.ingest(store, None, m)
     v = store.latest_version()
-    rows = [(f"b{i}", i, "2.0") for i in range(200000)]
-    m2 = write_source(tmp_path, rows, "big.csv")
-    script = textwrap.dedent(f"""
-        from strata13.compile import api
-        api.ingest({str(store.path)!r}, None, {str(m2)!r})
-    """)
-    proc = subprocess.Popen([sys.executable, "-c", script])
-    time.sleep(3.0)
+    m2 = write_source(tmp_path, [(f"b{i}", i, "2.0") for i in range(500)], "big.csv")
+    marker = tmp_path / "at-commit"
+    proc = subprocess.Popen([sys.executable, "-c", HOOK, str(store.path), str(m2), str(marker),
+                             when])
+    deadline = time.monotonic() + 120
+    while not marker.exists() and time.monotonic() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    assert marker.exists(), "the ingest never reached its commit"
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait()
-    latest = store.latest_version()
-    assert latest in (v, v + 1)  # landed whole or not at all
     n = api.sql(store, "SELECT count(*) FROM records").rows[0][0]
-    assert n == (20 if latest == v else 200000)
+    if when == "before":
+        assert store.latest_version() == v and n == 20
+    else:
+        assert store.latest_version() == v + 1 and n == 500
+    # the store still takes writes after the crash (the kernel released the lock)
+    api.ingest(store, None, write_source(tmp_path, [("c", 1, "0.1")], "c.csv"))
+    assert api.sql(store, "SELECT count(*) FROM records").rows[0][0] == 1
+
+
+def test_fault_before_commit_leaves_store_unchanged(tmp_path: Path) -> None:
+    m = write_source(tmp_path, [(f"a{i}", i, "1.0") for i in range(5)])
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, m)
+    v = store.latest_version()
+    m2 = write_source(tmp_path, [("x", 1, "3.0")], "x.csv")
+    res = subprocess.run([sys.executable, "-c", HOOK, str(store.path), str(m2),
+                          str(tmp_path / "unused"), "fault"], capture_output=True, text=True)
+    assert res.returncode != 0 and "injected fault" in res.stderr
+    assert store.latest_version() == v
+    assert api.sql(store, "SELECT count(*) FROM records").rows == [(5,)]
+
+
+JUNK = st.one_of(st.text(max_size=10), st.sampled_from(
+    ["n.d.", "bdl", "<0.5", "−1,5", "1,234", "2021-03-04", "=A1", "—", "1e400", "nan", "'",
+     "\"", ";", "\t", "′"]))
+
+
+@settings(max_examples=25, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(cells=st.lists(st.tuples(JUNK, JUNK, JUNK), min_size=1, max_size=6))
+def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(tmp_path: Path,
+                                                                    cells: list) -> None:
+    import csv as _csv
+
+    folder = tmp_path / f"j{abs(hash(str(cells))) % 10**9}"
+    folder.mkdir()
+    with (folder / "j.csv").open("w", encoding="utf-8", newline="") as fh:
+        w = _csv.writer(fh)
+        w.writerow(["Sample", "Height", "d13C"])
+        w.writerows(cells)
+    (folder / "o.toml").write_text(MAPPING.format(file="j.csv"), encoding="utf-8")
+    store = api.init_store(folder / "st")
+    before = tree_bytes(store.path)
+    try:
+        r = api.ingest(store, None, folder / "o.toml")
+    except (ValidationFailed, InstructionError):
+        assert tree_bytes(store.path) == before
+    else:
+        assert r.report.rows_read == r.committed + r.quarantined + r.report.rows_blank
+
+
+@pytest.mark.parametrize("when,said", [("before", "did not land"), ("after", "landed")])
+def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(tmp_path: Path, when: str,
+                                                              said: str) -> None:
+    store = api.init_store(tmp_path / "st")
+    v = store.latest_version()
+    m = write_source(tmp_path, [("a", 1, "1.0")], "o.csv")
+    marker = tmp_path / "at-commit"
+    proc = subprocess.Popen([sys.executable, "-c", HOOK, str(store.path), str(m), str(marker),
+                             when, "cli"], stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 120
+    while not marker.exists() and time.monotonic() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130
+    assert said in err
+    assert store.latest_version() == (v if when == "before" else v + 1)
