@@ -467,8 +467,10 @@ def _environment() -> str:
     import duckdb
     import pyarrow
 
+    load = f", load average {os.getloadavg()[0]:.1f}" if hasattr(os, "getloadavg") \
+        else ""
     return (f"python {platform.python_version()}, duckdb {duckdb.__version__}, pyarrow "
-            f"{pyarrow.__version__}, {os.cpu_count()} CPUs, {platform.machine()}")
+            f"{pyarrow.__version__}, {os.cpu_count()} CPUs, {platform.machine()}{load}")
 
 
 def main(argv: list[str] | None = None) -> int:

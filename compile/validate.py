@@ -293,12 +293,18 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         if len(locality_blocks) == 1:
             only = next(iter(locality_blocks))
             loc = np.array([v if v is not None else only for v in loc], dtype=object)
-    lat, lon = column("lat").astype(object), column("lon").astype(object)
-    for i in range(n):
-        if lat[i] is None or (isinstance(lat[i], float) and np.isnan(lat[i])):
-            block = locality_blocks.get(loc[i]) if loc[i] is not None else None
-            if block is not None:
-                lat[i], lon[i] = block["lat"], block["lon"]
+    # coordinates: the row's own, else its locality's (vectorised through pandas)
+    import pandas as pd
+
+    lat = pd.to_numeric(pd.Series(column("lat")), errors="coerce").to_numpy(dtype=float, copy=True)
+    lon = pd.to_numeric(pd.Series(column("lon")), errors="coerce").to_numpy(dtype=float, copy=True)
+    loc_series = pd.Series(loc, dtype=object)
+    block_lat = loc_series.map({k: b["lat"] for k, b in locality_blocks.items()})
+    block_lon = loc_series.map({k: b["lon"] for k, b in locality_blocks.items()})
+    fill = np.isnan(lat) & block_lat.notna().to_numpy()
+    lat[fill] = block_lat.to_numpy(dtype=float, na_value=np.nan)[fill]
+    lon[fill] = block_lon.to_numpy(dtype=float, na_value=np.nan)[fill]
+    lon = np.where(lon > 180, lon - 360, lon)
     for s_id, block in section_blocks.items():
         if block.get("locality") and block["locality"] not in locality_blocks:
             raise ConfigError(f"{mapping.path.name}: section {s_id!r} names locality "
@@ -314,9 +320,8 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         rows.error(int(i), letter_s, header_s, "", "sample missing",
                    "every row needs a sample id; fill it or delete the row")
 
-    replicate = column("replicate")
-    replicate = np.array([1 if (v is None or (isinstance(v, float) and np.isnan(v))) else int(v)
-                          for v in replicate], dtype=np.int64) if n else np.zeros(0, np.int64)
+    rep = pd.to_numeric(pd.Series(column("replicate")), errors="coerce").to_numpy(dtype=float)
+    replicate = np.where(np.isnan(rep), 1, np.nan_to_num(rep)).astype(np.int64)
 
     # δ scales: every δ value needs one
     for d in DELTA_FIELDS:
@@ -324,32 +329,29 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         if stored not in cols:
             continue
         vals = column(stored).astype(float)
-        scale = column(f"{d}_scale")
+        scale = pd.Series(column(f"{d}_scale"), dtype=object)
         letter, header = letters[stored]
-        for i in np.nonzero(~np.isnan(vals))[0]:
-            sc = scale[i]
-            if sc is None:
-                rows.error(int(i), letter, header, vals[i], "scale not stated",
-                           f"state the reference scale of {d}: scale = \"VPDB\" on the column "
-                           f"or {d}_scale in [constants]")
-            elif sc not in DELTA_SCALES[d]:
-                rows.error(int(i), letter, header, sc, "unknown scale",
-                           f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
+        has = ~np.isnan(vals)
+        no_scale = has & scale.isna().to_numpy()
+        unknown = has & ~no_scale & ~scale.isin(DELTA_SCALES[d]).to_numpy()
+        for i in np.nonzero(no_scale)[0]:
+            rows.error(int(i), letter, header, vals[i], "scale not stated",
+                       f"state the reference scale of {d}: scale = \"VPDB\" on the column "
+                       f"or {d}_scale in [constants]")
+        for i in np.nonzero(unknown)[0]:
+            rows.error(int(i), letter, header, scale[i], "unknown scale",
+                       f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
 
-    ids = np.array([record_id(sid, str(s), str(m), int(r)) if s is not None and m is not None
-                    else None for s, m, r in zip(sec, sample, replicate, strict=True)],
-                   dtype=object)
-    first_seen: dict[str, int] = {}
-    for i, rid in enumerate(ids):
-        if rid is None:
-            continue
-        if rid in first_seen:
-            rows.error(i, letter_s, header_s, sample[i], "duplicate record",
+    ids = _record_ids(sid, sec, sample, replicate)
+    id_series = pd.Series(ids, dtype=object)
+    dup = (id_series.duplicated(keep="first") & id_series.notna()).to_numpy()
+    if dup.any():
+        first_row = {rid: raw.row_numbers[i] for i, rid in
+                     zip(np.nonzero(~dup)[0], ids[~dup], strict=True) if rid is not None}
+        for i in np.nonzero(dup)[0]:
+            rows.error(int(i), letter_s, header_s, sample[i], "duplicate record",
                        f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is "
-                       f"already in row {raw.row_numbers[first_seen[rid]]}; give replicates "
-                       "a replicate number")
-        else:
-            first_seen[rid] = i
+                       f"already in row {first_row[ids[i]]}; give replicates a replicate number")
 
     # assemble the analyses table
     out: dict[str, Any] = {}
@@ -401,6 +403,26 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                     _localities_table(sid, locality_blocks),
                     _sections_table(sid, section_blocks, sec, loc),
                     _samples_table(records), quarantine, report)
+
+
+def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> Any:
+    """``record_id`` for every row at once (DuckDB's sha256 over the same key text)."""
+    import duckdb
+    import numpy as np
+    import pyarrow as pa
+
+    t = pa.table({"sec": pa.array(list(sec), pa.string()),
+                  "sample": pa.array(list(sample), pa.string()),
+                  "rep": pa.array(np.asarray(replicate, dtype=np.int64))})
+    con = duckdb.connect()
+    try:
+        con.register("k", t)
+        out = con.execute("SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
+                          "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))),"
+                          " 1, 20) END FROM k", [sid]).to_arrow_table()
+    finally:
+        con.close()
+    return out.column(0).to_numpy(zero_copy_only=False).astype(object)
 
 
 def _to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
@@ -583,23 +605,24 @@ def _superposition(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, s
     kind = frame.column("position_kind").to_pylist() if "position_kind" in frame.column_names \
         else [None] * len(age)
     letter, header = letters.get("age_reported_ma", ("", "age"))
-    groups: dict[Any, list[int]] = {}
-    for i, s in enumerate(sec):
-        if s is not None and not np.isnan(pos[i]) and not np.isnan(age[i]):
-            groups.setdefault(s, []).append(i)
-    for _, idx in groups.items():
-        idx.sort(key=lambda i: pos[i])
-        depth = kind[idx[0]] == "depth"
-        for a, b in zip(idx, idx[1:], strict=False):
-            if pos[a] == pos[b]:
-                continue
-            # height: higher is younger (age falls); depth: deeper is older (age rises)
-            wrong = (age[b] - age[a] > sig[a] + sig[b]) if not depth else \
-                (age[a] - age[b] > sig[a] + sig[b])
-            if wrong:
-                rows.error(b, letter, header, age[b], "superposition",
-                           f"age {age[b]:g} Ma at {pos[b]:g} m contradicts {age[a]:g} Ma at "
-                           f"{pos[a]:g} m (row {rows.raw.row_numbers[a]}) in the same section")
+    import pandas as pd
+
+    codes = pd.factorize(pd.Series(sec, dtype=object))[0]
+    ok = (codes >= 0) & ~np.isnan(pos) & ~np.isnan(age)
+    idx = np.nonzero(ok)[0]
+    if len(idx) < 2:
+        return
+    idx = idx[np.lexsort((pos[idx], codes[idx]))]
+    a, b = idx[:-1], idx[1:]
+    same = (codes[a] == codes[b]) & (pos[a] != pos[b])
+    depth = np.array([k == "depth" for k in kind], dtype=bool)[a]
+    # height: higher is younger (age falls); depth: deeper is older (age rises)
+    gap = np.where(depth, age[a] - age[b], age[b] - age[a])
+    wrong = same & (gap > sig[a] + sig[b])
+    for i, j in zip(a[wrong], b[wrong], strict=True):
+        rows.error(int(j), letter, header, age[j], "superposition",
+                   f"age {age[j]:g} Ma at {pos[j]:g} m contradicts {age[i]:g} Ma at "
+                   f"{pos[i]:g} m (row {rows.raw.row_numbers[i]}) in the same section")
 
 
 def _plausibility(frame: pa.Table, raw: RawTable, report: Report,
