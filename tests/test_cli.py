@@ -99,3 +99,22 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
     assert res.returncode == 0, res.stderr
     manifest = json.loads((tmp_path / "d" / "export" / "manifest.json").read_text())
     assert manifest["counts"]["records"] > 100 and manifest["counts"]["sections"] >= 6
+
+
+COMMANDS = ["demo", "init", "ingest", "sources", "history", "query", "sql", "export"]
+
+
+@pytest.mark.parametrize("command", COMMANDS)
+def test_every_command_has_help_and_refuses_bad_options_with_2(command: str) -> None:
+    assert run(command, "--help").returncode == 0
+    res = run(command, "--definitely-not-an-option")
+    assert res.returncode == 2 and "Traceback" not in res.stderr
+
+
+@pytest.mark.parametrize("command", ["sources", "history", "query", "export --out x",
+                                     "sql 'SELECT 1'"])
+def test_every_reader_refuses_a_missing_store_with_1(tmp_path: Path, command: str) -> None:
+    res = subprocess.run(" ".join([*EXE, command, "--store", str(tmp_path / "none")]),
+                         shell=True, capture_output=True, text=True, cwd=tmp_path)
+    assert res.returncode == 1 and "not" in res.stderr
+    assert not (tmp_path / "none").exists()
