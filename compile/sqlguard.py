@@ -62,14 +62,25 @@ def check(con: Any, sql: str) -> str:
     if not text:
         raise QueryRefused("the SQL statement is empty.", "Example: strata13 sql \"SELECT "
                            "count(*) FROM records\"")
-    if ";" in text and len(con.extract_statements(text)) > 1:
+    import duckdb
+
+    try:
+        statements = con.extract_statements(text)
+    except duckdb.Error as exc:
+        raise QueryRefused(f"the statement does not parse: {str(exc).splitlines()[0]}",
+                           "Check the SQL syntax.") from None
+    if len(statements) > 1:
         raise QueryRefused("only one statement at a time is allowed.", "Remove the extra ';'.")
+    kind = str(statements[0].type).rsplit(".", 1)[-1]
+    if kind not in ("SELECT", "EXPLAIN"):
+        raise QueryRefused(f"only SELECT (or EXPLAIN SELECT) statements are allowed; this is a "
+                           f"{kind} statement.", f"Query the views: {', '.join(VIEWS)}.")
     explain = re.match(r"^\s*explain\s+(analyze\s+)?", text, re.IGNORECASE)
     body = text[explain.end():] if explain else text
     tree = json.loads(con.execute("SELECT json_serialize_sql(?)", [body]).fetchone()[0])
     if tree.get("error"):
-        msg = tree.get("error_message", "not a SELECT statement")
-        raise QueryRefused(f"only SELECT (or EXPLAIN SELECT) statements are allowed ({msg}).",
+        raise QueryRefused("only SELECT (or EXPLAIN SELECT) statements over the views are "
+                           "allowed, and this statement is not one.",
                            f"Query the views: {', '.join(VIEWS)}.")
     problems: list[str] = []
     _walk(tree.get("statements", []), set(), problems)
