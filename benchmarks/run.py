@@ -283,6 +283,8 @@ def case_ingest(rows: int, repeat: int, profile: bool) -> Outcome:
             return out
         results.append(res)
     rusage_kb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    for scratch in WORK.glob("ingest-store-*"):  # scratch stores are not needed any more
+        shutil.rmtree(scratch, ignore_errors=True)
 
     def baseline() -> None:
         table = pcsv.read_csv(sheet.csv)
@@ -323,6 +325,8 @@ def case_ingest(rows: int, repeat: int, profile: bool) -> Outcome:
         if "error" in res:
             out.notes += ["profiled ingest failed:", res["error"]]
         else:
+            for scratch in WORK.glob("ingest-store-*"):
+                shutil.rmtree(scratch, ignore_errors=True)
             out.notes += [f"cProfile of one ingest ({res['seconds']:.1f} s under the profiler; "
                           f"stats in {prof_path}):", *_top_functions(prof_path)]
     return out

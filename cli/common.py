@@ -15,9 +15,6 @@ OutOpt = Annotated[Path | None, typer.Option("--out", help="Write to this file i
                                              "stdout.", show_default=False)]
 IntervalOpt = Annotated[str | None, typer.Option(
     "--interval", help="Time bin: 'A-B' in Ma (either order).", show_default=False)]
-TimeScaleOpt = Annotated[str | None, typer.Option(
-    "--time-scale", help="Time scale for --interval names (default: the store's).",
-    show_default=False)]
 RegionOpt = Annotated[str | None, typer.Option(
     "--region", help="A region name of the store, a GeoJSON file, or bbox:W,S,E,N.",
     show_default=False)]
@@ -45,7 +42,7 @@ def check_format(fmt: str, out: Path | None, allowed: tuple[str, ...] = ALL_FORM
         raise OptionError("--format parquet needs --out FILE.", "Parquet is binary; name a file.")
 
 
-def build_filters(store: Any, interval: str | None, time_scale: str | None, region: str | None,
+def build_filters(store: Any, interval: str | None, region: str | None,
                   frame: str, lithology: list[str] | None, component: list[str] | None,
                   source: list[str] | None, screened: str) -> Any:
     """Turn the FILTERS options into the library's Filters (validated, vocabulary-checked)."""
@@ -57,12 +54,6 @@ def build_filters(store: Any, interval: str | None, time_scale: str | None, regi
         raise OptionError(f"--frame {frame!r} is not present or paleo.", "")
     if screened not in SCREENED:
         raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.", "")
-    if time_scale is not None:
-        from strata13.schemas.vocabularies import vocabulary
-
-        if vocabulary("time_scale").resolve(time_scale) is None:
-            raise OptionError(f"--time-scale {time_scale!r} is not a shipped time scale.",
-                              f"Time scales: {', '.join(vocabulary('time_scale').terms)}.")
     return Filters(
         interval=parse_interval(interval) if interval else None,
         region=api.region(store, region) if region else None,

@@ -17,7 +17,6 @@ from strata13.cli.common import (
     ScreenedOpt,
     SourceOpt,
     StoreOpt,
-    TimeScaleOpt,
     build_filters,
     check_format,
 )
@@ -26,7 +25,7 @@ BRIEF = ["record_id", "source_id", "section_id", "sample_id", "position_m", "age
          "component", "d13c_carb", "d18o_carb", "screen"]
 
 
-def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
+def query(interval: IntervalOpt = None,
           region: RegionOpt = None, frame: FrameOpt = "present",
           lithology: LithologyOpt = None, component: ComponentOpt = None,
           source: SourceOpt = None, screened: ScreenedOpt = "all",
@@ -39,7 +38,7 @@ def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
 
     check_format(fmt, out)
     s = api.open_store(api.store_path(store))
-    filters = build_filters(s, interval, time_scale, region, frame, lithology, component,
+    filters = build_filters(s, interval, region, frame, lithology, component,
                             source, screened)
     tbl = api.query_arrow(s, filters)
     if fmt == "table" and not all_columns:

@@ -342,6 +342,7 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
             rows.error(int(i), letter, header, scale[i], "unknown scale",
                        f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
 
+    _interval_order(cols, column, rows, letters, section_blocks, sec)
     ids = _record_ids(sid, sec, sample, replicate)
     id_series = pd.Series(ids, dtype=object)
     dup = (id_series.duplicated(keep="first") & id_series.notna()).to_numpy()
@@ -403,6 +404,29 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                     _localities_table(sid, locality_blocks),
                     _sections_table(sid, section_blocks, sec, loc),
                     _samples_table(records), quarantine, report)
+
+
+def _interval_order(cols: dict[str, Any], column: Any, rows: _Rows,
+                    letters: dict[str, tuple[str, str]], section_blocks: dict[str, Any],
+                    sec: Any) -> None:
+    """A sampled interval's top must lie above its base (heights: top ≥ base; depths: top ≤
+    base)."""
+    import numpy as np
+    import pandas as pd
+
+    if "top_m" not in cols or "base_m" not in cols:
+        return
+    top = pd.to_numeric(pd.Series(column("top_m")), errors="coerce").to_numpy(dtype=float)
+    base = pd.to_numeric(pd.Series(column("base_m")), errors="coerce").to_numpy(dtype=float)
+    kinds = column("position_kind") if "position_kind" in cols else np.array(
+        [section_blocks.get(s, {}).get("position_kind") for s in sec], dtype=object)
+    depth = np.array([k == "depth" for k in kinds], dtype=bool)
+    wrong = np.where(depth, top > base, top < base)
+    letter, header = letters.get("top_m", ("", "top"))
+    for i in np.nonzero(wrong)[0]:
+        rows.error(int(i), letter, header, top[i], "interval order",
+                   f"top {top[i]:g} m is {'below' if not depth[i] else 'deeper than'} base "
+                   f"{base[i]:g} m; check that top and base are not swapped")
 
 
 def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> Any:

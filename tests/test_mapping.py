@@ -96,3 +96,15 @@ def test_feet_are_exactly_0_3048_m(tmp_path: Path) -> None:
     store = api.init_store(tmp_path / "st")
     api.ingest(store, None, m)
     assert api.query(store).position_m.tolist() == [pytest.approx(3.048, abs=1e-12)]
+
+
+def test_interval_top_below_base_is_refused(tmp_path: Path) -> None:
+    (tmp_path / "i.csv").write_text("Sample,Top,Base,d13C,d18O\na,2.0,1.0,1.0,-2\nb,3.0,4.0,1,-2\n",
+                                    encoding="utf-8")
+    m = tmp_path / "m.toml"
+    m.write_text(BASE.format(file="i.csv", extra="", constants='position_kind = "height"')
+                 .replace('"Height" = { field = "position", unit = "m" }',
+                          '"Top" = { field = "position_top", unit = "m" }\n'
+                          '"Base" = { field = "position_base", unit = "m" }'), encoding="utf-8")
+    r = api.ingest(tmp_path / "st", None, m, dry_run=True, keep_valid=True)
+    assert [(i.cell, i.rule) for i in r.report.errors] == [("B3", "interval order")]
