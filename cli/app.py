@@ -56,6 +56,7 @@ def main(argv: list[str] | None = None) -> None:
 
     args = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in args
+    args = [a for a in args if a != "--debug"]  # accepted anywhere on the line
     command = typer.main.get_command(app)
     try:
         rv = command.main(args=args, prog_name="strata13", standalone_mode=False)

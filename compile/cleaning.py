@@ -88,13 +88,44 @@ def _summary(ctx: CellContext, mask: np.ndarray, original: pa.Array, rule: str,
 
 def parse_numbers(col: pa.Array | pa.ChunkedArray, ctx: CellContext,
                   decimal: str = "auto") -> Parsed:
-    """Parse a column of cell texts into float64 values with qualifiers and report lines."""
+    """Parse a column of cell texts into float64 values with qualifiers and report lines.
+
+    Fast path: cells that are already plain numbers are cast in one pass; only the others
+    (tokens, commas, odd minus signs, junk) go through the full cleaning pipeline.
+    """
     import numpy as np
     import pyarrow as pa
     import pyarrow.compute as pc
 
     if isinstance(col, pa.ChunkedArray):
         col = col.combine_chunks()
+    col = col.cast(pa.string())
+    s = pc.utf8_trim_whitespace(col)
+    plain = _mask(pc.match_substring_regex(s, NUMBER_PATTERN))
+    rest = ~plain & _mask(pc.is_valid(s)) & _mask(pc.not_equal(s, ""))
+    values = pc.cast(pc.if_else(pa.array(plain), s, pa.scalar(None, pa.string())), pa.float64())
+    n = len(col)
+    if not rest.any():
+        return Parsed(values, pa.nulls(n, pa.string()), np.zeros(n, dtype=bool), [])
+    idx = np.nonzero(rest)[0]
+    sub_ctx = CellContext(ctx.sheet, ctx.header, ctx.letter, ctx.row_numbers[idx])
+    slow = _parse_slow(col.take(pa.array(idx)), sub_ctx, decimal)
+    merged = values.to_numpy(zero_copy_only=False).astype(float, copy=True)
+    merged[idx] = slow.values.to_numpy(zero_copy_only=False)
+    qual = np.full(n, None, dtype=object)
+    qual[idx] = slow.qualifier.to_numpy(zero_copy_only=False)
+    bad = np.zeros(n, dtype=bool)
+    bad[idx] = slow.bad
+    return Parsed(pa.array(merged, type=pa.float64(), from_pandas=True),
+                  pa.array(qual, type=pa.string()), bad, slow.issues)
+
+
+def _parse_slow(col: pa.Array, ctx: CellContext, decimal: str) -> Parsed:
+    """The full cleaning pipeline, for cells that are not plain numbers."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
     original = col
     n = len(col)
     issues: list[Issue] = []

@@ -69,34 +69,36 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
             f"{mapping.table.file.name}; nothing was written.", report,
             "Fix the cells listed, or use --keep-valid to commit the valid rows and "
             "quarantine the rest.")
-    settings = settings_from_store(store)
-    step("deriving harmonised values and ages")
-    derived = derive(prepared.records, settings)
-    records = derived.table
-    result.pending = _pending_counts(records)
     result.quarantined = len(prepared.quarantine)
-    result.committed = records.num_rows
     if dry_run:
+        derived = derive(prepared.records, settings_from_store(store))
+        result.pending = _pending_counts(derived.table)
+        result.committed = derived.table.num_rows
         return result
     step("committing")
     if create is not None:
         store = create()
     with store.writer() as con:
-        old = _old_state(con, mapping.source_id)
-        new_hash = dict(zip(records.column("record_id").to_pylist(),
-                            records.column("row_hash").to_pylist(), strict=True))
-        result.added = len(new_hash.keys() - old["hashes"].keys())
-        result.removed = len(old["hashes"].keys() - new_hash.keys())
-        result.changed = sum(1 for k, h in new_hash.items()
-                             if k in old["hashes"] and old["hashes"][k] != h)
-        same_inputs = old["source"] is not None and old["source"][:3] == (
+        # settings are read under the lock, so the commit uses exactly what it derived with
+        settings = _settings(con)
+        step("deriving harmonised values and ages")
+        derived = derive(prepared.records, settings)
+        records = derived.table
+        result.pending = _pending_counts(records)
+        result.committed = records.num_rows
+        result.added, result.removed, result.changed = _diff(con, mapping.source_id, records)
+        old = con.execute("SELECT file_sha256, mapping_sha256, schema_version, (SELECT count(*) "
+                          "FROM lake.quarantine q WHERE q.source_id = s.source_id) FROM "
+                          "lake.sources s WHERE source_id = ?", [mapping.source_id]).fetchone()
+        same_inputs = old is not None and tuple(old[:3]) == (
             prepared.file_sha256, mapping.sha256, SCHEMA_VERSION)
         if same_inputs and not (result.added or result.removed or result.changed) \
-                and old["n_quarantine"] == len(prepared.quarantine):
+                and old[3] == len(prepared.quarantine):
             result.unchanged = True
             result.version = None
             return result
         before = store._latest(con)
+        step("committing")
         try:
             result.version = _commit(store, con, prepared, records, derived.chains, settings,
                                      result)
@@ -109,6 +111,30 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     return result
 
 
+def _settings(con: Any) -> Settings:
+    rows = dict(con.execute("SELECT key, value_json FROM lake.settings").fetchall())
+    s = {k: json.loads(v) for k, v in rows.items()}
+    return Settings(time_scale=s.get("time_scale", Settings().time_scale),
+                    extra={k: v for k, v in s.items() if k != "time_scale"})
+
+
+def _diff(con: Any, source_id: str, records: pa.Table) -> tuple[int, int, int]:
+    """(added, removed, changed) record counts against the stored source, in DuckDB."""
+    con.register("incoming_ids", records.select(["record_id", "row_hash"]))
+    try:
+        old = "(SELECT record_id, row_hash FROM lake.analyses WHERE source_id = ?)"
+        added = con.execute(f"SELECT count(*) FROM incoming_ids n ANTI JOIN {old} o "
+                            "USING (record_id)", [source_id]).fetchone()[0]
+        removed = con.execute(f"SELECT count(*) FROM {old} o ANTI JOIN incoming_ids n "
+                              "USING (record_id)", [source_id]).fetchone()[0]
+        changed = con.execute(f"SELECT count(*) FROM incoming_ids n JOIN {old} o "
+                              "USING (record_id) WHERE n.row_hash <> o.row_hash",
+                              [source_id]).fetchone()[0]
+    finally:
+        con.unregister("incoming_ids")
+    return int(added), int(removed), int(changed)
+
+
 def _pending_counts(records: pa.Table) -> dict[str, int]:
     import pyarrow.compute as pc
 
@@ -119,16 +145,6 @@ def _pending_counts(records: pa.Table) -> dict[str, int]:
         if n:
             out[col.removesuffix("_status")] = int(n)
     return out
-
-
-def _old_state(con: Any, source_id: str) -> dict[str, Any]:
-    rows = con.execute("SELECT record_id, row_hash FROM lake.analyses WHERE source_id = ?",
-                       [source_id]).fetchall()
-    src = con.execute("SELECT file_sha256, mapping_sha256, schema_version FROM lake.sources "
-                      "WHERE source_id = ?", [source_id]).fetchone()
-    nq = con.execute("SELECT count(*) FROM lake.quarantine WHERE source_id = ?",
-                     [source_id]).fetchone()[0]
-    return {"hashes": dict(rows), "source": tuple(src) if src else None, "n_quarantine": nq}
 
 
 def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: dict[str, str],

@@ -298,6 +298,17 @@ def decode_bytes(data: bytes, encoding: str = "auto") -> tuple[str, str]:
     raise AssertionError("latin-1 decodes every byte")  # pragma: no cover
 
 
+def _is_utf8(data: bytes) -> bool:
+    """UTF-8 check without building a Python string of the whole file."""
+    import pyarrow as pa
+
+    try:
+        pa.array([data], type=pa.binary()).cast(pa.string())
+        return True
+    except (pa.ArrowInvalid, UnicodeDecodeError):
+        return False
+
+
 def sniff_delimiter(sample: str) -> str:
     lines = [ln for ln in sample.splitlines()[:50] if ln.strip()]
     best, best_score = ",", -1.0
@@ -322,33 +333,53 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     if b"\x00" in data[:4096]:
         raise InputFileError(f"{path.name} is a binary file, not a CSV/TSV text table.",
                              "Export the table as CSV or give the .xlsx/.ods file.")
-    text, enc = decode_bytes(data, encoding)
+    if encoding == "auto" and _is_utf8(data):
+        text, enc = "", "utf-8"
+    else:
+        text, enc = decode_bytes(data, encoding)
     issues: list[Issue] = []
     sheet = path.name
     if enc != "utf-8":
         issues.append(Issue("info", sheet, "", "", enc, "encoding",
                             f"file is not UTF-8; decoded as {enc}"))
+        data = text.encode("utf-8")
+    elif data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]
+    del text  # work on the UTF-8 bytes from here: no Python object per line
+    head_text = data[:1 << 16].decode("utf-8", errors="replace")
     if delimiter == "auto":
-        delim = "\t" if path.suffix.lower() == ".tsv" else sniff_delimiter(text[:65536])
+        delim = "\t" if path.suffix.lower() == ".tsv" else sniff_delimiter(head_text)
     else:
         delim = {"tab": "\t", "\\t": "\t"}.get(delimiter, delimiter)
-    lines = text.split("\n")
-    head = list(csv.reader(io.StringIO("\n".join(lines[:60])), delimiter=delim))
+    head = list(csv.reader(io.StringIO("\n".join(head_text.split("\n")[:60])), delimiter=delim))
     head_rows = [[c if c.strip() else None for c in r] for r in head]
     h = header_row - 1 if header_row is not None else _find_header(head_rows, expected)
-    if h >= len(lines):
+    buf = np.frombuffer(data, dtype=np.uint8)
+    newlines = np.flatnonzero(buf == 10)
+    starts = np.concatenate([[0], newlines + 1])
+    ends = np.concatenate([newlines, [len(data)]])
+    if ends[-1] == starts[-1]:  # the file ends with a newline: no last line
+        starts, ends = starts[:-1], ends[:-1]
+    if h >= len(starts):
         raise ConfigError(f"header_row = {header_row} is past the end of {path.name}.",
                           "Give the line number of the header.")
     for i in range(min(h, len(head_rows))):
         if any(head_rows[i]):
             issues.append(Issue("info", sheet, f"A{i + 1}", "", next(c for c in head_rows[i] if c),
                                 "title row", "line above the header skipped"))
-    body_lines = lines[h + 1:]
-    if body_lines and body_lines[-1] == "":
-        body_lines = body_lines[:-1]
+    lengths = ends[h + 1:] - starts[h + 1:]
+    cr_only = np.zeros(len(lengths), dtype=bool)
+    one = np.flatnonzero(lengths == 1)
+    cr_only[one] = buf[starts[h + 1:][one]] == 13
     # pyarrow skips empty lines: keep the line numbers of the others
-    nonempty = np.array([bool(ln.rstrip("\r")) for ln in body_lines], dtype=bool)
+    nonempty = (lengths > 0) & ~cr_only
     line_numbers = np.nonzero(nonempty)[0] + h + 2
+    body = memoryview(data)[int(starts[h]):]
+
+    def body_line(k: int) -> str:
+        j = h + 1 + k
+        return bytes(data[starts[j]:ends[j]]).decode("utf-8", errors="replace")
+
     bad_rows: list[tuple[int | None, str, int, int]] = []
 
     def on_invalid(row: Any) -> str:
@@ -357,7 +388,7 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
 
     try:
         table = pcsv.read_csv(
-            io.BytesIO("\n".join([lines[h], *body_lines]).encode("utf-8")),
+            pa.BufferReader(pa.py_buffer(body)),
             read_options=pcsv.ReadOptions(block_size=1 << 24),
             parse_options=pcsv.ParseOptions(delimiter=delim, newlines_in_values=False,
                                             invalid_row_handler=on_invalid),
@@ -375,7 +406,7 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
         for number, text_, actual, expected_n in bad_rows:
             # row.number counts the header as row 1 of the text pyarrow saw; when pyarrow
             # does not know it, find the line by its text
-            idx = (number - 2) if number else _find_line(body_lines, nonempty, text_, skip_idx)
+            idx = (number - 2) if number else _find_line(body_line, nonempty, text_, skip_idx)
             line = int(line_numbers[idx]) if idx is not None and 0 <= idx < len(line_numbers) \
                 else None
             is_last = idx is not None and idx >= len(line_numbers) - len(bad_rows)
@@ -404,13 +435,13 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     return raw
 
 
-def _find_line(body_lines: list[str], nonempty: Any, text: str, taken: list[int]) -> int | None:
+def _find_line(body_line: Any, nonempty: Any, text: str, taken: list[int]) -> int | None:
     """Index (among non-empty lines) of the first not-yet-taken line equal to ``text``."""
     k = -1
-    for ln, ok in zip(body_lines, nonempty, strict=True):
+    for j, ok in enumerate(nonempty):
         if ok:
             k += 1
-            if ln.rstrip("\r") == text.rstrip("\r") and k not in taken:
+            if k not in taken and body_line(j).rstrip("\r") == text.rstrip("\r"):
                 return k
     return None
 

@@ -397,7 +397,7 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                                "cells_json": json.dumps({"line": issue.value},
                                                         ensure_ascii=False),
                                "reasons": f"{issue.cell}: row shape"})
-    records = _complete(frame.filter(pa.array(valid)))
+    records = _complete(frame if valid.all() else frame.filter(pa.array(valid)))
     records = records.append_column("row_hash", _row_hashes(records)) \
         if "row_hash" not in records.column_names else records
     return Prepared(mapping, _file_sha(spec.file), records,
@@ -435,8 +435,7 @@ def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> Any:
     import numpy as np
     import pyarrow as pa
 
-    t = pa.table({"sec": pa.array(list(sec), pa.string()),
-                  "sample": pa.array(list(sample), pa.string()),
+    t = pa.table({"sec": _strings(sec), "sample": _strings(sample),
                   "rep": pa.array(np.asarray(replicate, dtype=np.int64))})
     con = duckdb.connect()
     try:
@@ -447,6 +446,19 @@ def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> Any:
     finally:
         con.close()
     return out.column(0).to_numpy(zero_copy_only=False).astype(object)
+
+
+def _strings(values: Any) -> pa.Array:
+    """Text column as Arrow; C-speed for str/None objects, str() only as a fallback."""
+    import pyarrow as pa
+
+    if isinstance(values, (pa.Array, pa.ChunkedArray)):
+        return values.cast(pa.string())
+    try:
+        return pa.array(values, type=pa.string(), from_pandas=True)
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        return pa.array([None if v is None or v != v else str(v) for v in values],
+                        type=pa.string())
 
 
 def _to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
@@ -464,8 +476,9 @@ def _to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
     if sqltype == "DOUBLE":  # object arrays (lat/lon filled from localities)
         return pa.array([None if v is None or (isinstance(v, float) and np.isnan(v)) else float(v)
                          for v in values], type=t)
-    return pa.array(list(values), type=t) if sqltype != "VARCHAR" else \
-        pa.array([None if v is None else str(v) for v in values], type=t)
+    if sqltype == "VARCHAR":
+        return _strings(values)
+    return pa.array(list(values), type=t)
 
 
 def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stored: str,
@@ -480,33 +493,47 @@ def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stor
 
 def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: _Rows, letter: str,
                   header: str) -> Any:
+    """Resolve each distinct cell once; map the column through the result (vectorised)."""
     import numpy as np
+    import pyarrow as pa
     import pyarrow.compute as pc
 
     voc = vocabulary(vocab)
-    arr = pc.utf8_trim_whitespace(text.combine_chunks()).to_numpy(zero_copy_only=False)
-    uniq = {v for v in arr if v}
-    resolved = {v: voc.resolve(v) for v in uniq}
-    out = np.array([resolved.get(v) if v else None for v in arr], dtype=object)
-    for i in np.nonzero(np.array([bool(v) and resolved.get(v) is None for v in arr],
-                                 dtype=bool))[0]:
-        sug = voc.suggest(arr[i])
-        rows.error(int(i), letter, header, arr[i], f"{vocab} vocabulary",
-                   (f"did you mean {sug!r}? " if sug else "") +
-                   f"known terms: {', '.join(voc.terms)}")
+    arr = pc.utf8_trim_whitespace(text.combine_chunks().cast(pa.string()))
+    arr = pc.if_else(pc.equal(arr, ""), pa.scalar(None, pa.string()), arr)
+    uniq = [v for v in pc.unique(arr).to_pylist() if v is not None]
+    resolved = [voc.resolve(v) for v in uniq]
+    pos = pc.index_in(arr, value_set=pa.array(uniq, pa.string()))
+    out = pc.take(pa.array(resolved, pa.string()), pos) if uniq else arr
+    unknown = {v for v, r in zip(uniq, resolved, strict=True) if r is None}
+    if unknown:
+        bad = pc.is_in(arr, value_set=pa.array(sorted(unknown), pa.string()))
+        for i in np.nonzero(pc.fill_null(bad, False).to_numpy(zero_copy_only=False))[0]:
+            v = arr[int(i)].as_py()
+            sug = voc.suggest(v)
+            rows.error(int(i), letter, header, v, f"{vocab} vocabulary",
+                       (f"did you mean {sug!r}? " if sug else "") +
+                       f"known terms: {', '.join(voc.terms)}")
     return out
 
 
 def _coord_column(text: pa.ChunkedArray, axis: str, rows: _Rows, letter: str,
                   header: str) -> Any:
+    """Decimal degrees: plain numbers cast at once, DMS and hemisphere letters cell by cell."""
     import numpy as np
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    from strata13.compile.cleaning import NUMBER_PATTERN
 
-    arr = text.combine_chunks().to_numpy(zero_copy_only=False)
-    out = np.full(len(arr), np.nan)
+    col = pc.utf8_trim_whitespace(text.combine_chunks().cast(pa.string()))
+    plain = pc.fill_null(pc.match_substring_regex(col, NUMBER_PATTERN), False)
+    out = pc.cast(pc.if_else(plain, col, pa.scalar(None, pa.string())), pa.float64())
+    out = out.to_numpy(zero_copy_only=False).astype(float, copy=True)
+    rest = ~plain.to_numpy(zero_copy_only=False) & \
+        pc.fill_null(pc.not_equal(col, ""), False).to_numpy(zero_copy_only=False)
     cache: dict[str, float | str] = {}
-    for i, v in enumerate(arr):
-        if v is None or not str(v).strip():
-            continue
+    for i in np.nonzero(rest)[0]:
+        v = col[int(i)].as_py()
         if v not in cache:
             try:
                 cache[v] = parse_coordinate(v, axis)
@@ -514,7 +541,7 @@ def _coord_column(text: pa.ChunkedArray, axis: str, rows: _Rows, letter: str,
                 cache[v] = str(exc)
         r = cache[v]
         if isinstance(r, str):
-            rows.error(i, letter, header, v, "coordinate", r)
+            rows.error(int(i), letter, header, v, "coordinate", r)
         else:
             out[i] = r
     return out
@@ -573,13 +600,21 @@ def _check_range(b: dict[str, Any], mapping: Mapping) -> None:
 def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
     """Run the pandera schema lazily and turn its failure cases into cell errors."""
     import pandera.errors as pe
+    import pyarrow as pa
     from strata13.schemas.records import record_schema
 
-    df = frame.to_pandas(types_mapper=_pandas_types)
-    # rows already rejected (or lacking ids) are not re-reported by the schema
-    df = df[df["record_id"].notna()]
+    schema = record_schema()
+    # the schema sees the columns this sheet filled (ids and text are checked above, row by
+    # row); vocabulary columns go in dictionary-encoded, so no Python object per cell
+    keep = [c for c in frame.column_names if c in schema.columns and c not in TEXT_CHECKED
+            and frame.column(c).null_count < frame.num_rows]
+    sub = frame.select(keep)
+    sub = pa.table({c: (sub.column(c).dictionary_encode() if pa.types.is_string(sub.column(c).type)
+                        else sub.column(c)) for c in keep})
+    df = sub.to_pandas(types_mapper=_pandas_types)
+    schema = schema.select_columns(keep) if keep else schema.select_columns([])
     try:
-        record_schema().validate(df, lazy=True)
+        schema.validate(df, lazy=True)
     except pe.SchemaErrors as err:
         fc = err.failure_cases
         for _, r in fc.iterrows():
@@ -603,15 +638,15 @@ def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, st
             rows.error(int(idx), letter, header, r.get("failure_case"), rule, hint)
 
 
+TEXT_CHECKED = ("record_id", "source_id", "section_id", "sample_id")
+
+
 def _pandas_types(t: Any) -> Any:
+    """Nullable integers stay integers in pandas (pandera checks them as Int32)."""
     import pandas as pd
     import pyarrow as pa
 
-    if t == pa.int32():
-        return pd.Int32Dtype()
-    if t == pa.string():
-        return pd.StringDtype() if False else None
-    return None
+    return pd.Int32Dtype() if t == pa.int32() else None
 
 
 def _superposition(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
@@ -620,13 +655,14 @@ def _superposition(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, s
 
     if "age_reported_ma" not in frame.column_names or "position_m" not in frame.column_names:
         return
-    sec = frame.column("section_id").to_pylist()
+    sec = frame.column("section_id").to_numpy(zero_copy_only=False)
     pos = frame.column("position_m").to_numpy(zero_copy_only=False).astype(float)
     age = frame.column("age_reported_ma").to_numpy(zero_copy_only=False).astype(float)
     sig = frame.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float) \
         if "age_reported_sigma_ma" in frame.column_names else np.zeros(len(age))
     sig = np.nan_to_num(sig)
-    kind = frame.column("position_kind").to_pylist() if "position_kind" in frame.column_names \
+    kind = frame.column("position_kind").to_numpy(zero_copy_only=False) \
+        if "position_kind" in frame.column_names \
         else [None] * len(age)
     letter, header = letters.get("age_reported_ma", ("", "age"))
     import pandas as pd
@@ -661,7 +697,7 @@ def _plausibility(frame: pa.Table, raw: RawTable, report: Report,
         return v[~np.isnan(v)]
 
     c13, o18 = values("d13c_carb_reported"), values("d18o_carb_reported")
-    scales = set(frame.column("d18o_carb_scale").to_pylist()) \
+    scales = set(frame.column("d18o_carb_scale").unique().to_pylist()) \
         if "d18o_carb_scale" in frame.column_names else set()
     if len(c13) >= 5 and len(o18) >= 5 and scales <= {"VPDB", "PDB", None}:
         # Marine carbonate δ18O (VPDB) is mostly below δ13C (common practice, from memory:
@@ -707,12 +743,14 @@ def _row_hashes(table: pa.Table) -> pa.Array:
     from strata13.compile.derive import DERIVED_COLUMNS
 
     names = [c for c in table.column_names if c not in DERIVED_COLUMNS
-             and c not in ("sheet", "sheet_row")]
-    parts = ", ".join(f"coalesce(CAST(\"{c}\" AS VARCHAR), '\u2205')" for c in names)
+             and c not in ("sheet", "sheet_row") and table.column(c).null_count < len(table)]
+    # 'name=' || NULL is NULL and concat_ws skips NULLs: an empty cell adds nothing, so a
+    # row's hash does not depend on which columns other rows fill
+    parts = ", ".join(f"'{c}=' || CAST(\"{c}\" AS VARCHAR)" for c in names) or "''"
     con = duckdb.connect()
     try:
         con.register("t", table)
-        return con.execute(f"SELECT substr(sha256(concat_ws('\x1f', {parts})), 1, 16) AS h "
+        return con.execute(f"SELECT substr(md5(concat_ws('\x1f', {parts})), 1, 16) AS h "
                            "FROM t").to_arrow_table().column(0).combine_chunks()
     finally:
         con.close()
@@ -730,14 +768,14 @@ def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:
 
 
 def _sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: Any) -> pa.Table:
+    import pandas as pd
     import pyarrow as pa
     from strata13.schemas.records import arrow_schema
 
-    ids = sorted({str(s) for s in sec if s is not None} | set(blocks))
-    first_loc = {}
-    for s, lo in zip(sec, loc, strict=False):
-        if s is not None:
-            first_loc.setdefault(str(s), lo)
+    pairs = pd.DataFrame({"s": pd.Series(sec, dtype=object), "l": pd.Series(loc, dtype=object)})
+    pairs = pairs[pairs.s.notna()].drop_duplicates("s")
+    first_loc = {str(k): v for k, v in zip(pairs.s, pairs.l, strict=True)}
+    ids = sorted(set(first_loc) | set(blocks))
     rows = []
     for s in ids:
         b = blocks.get(s, {})

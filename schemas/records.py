@@ -149,6 +149,8 @@ def record_schema() -> pa_schema.DataFrameSchema:
         if f.vocab:
             checks.append(pa_schema.Check.isin(vocabulary(f.vocab).terms,
                                                name=f"{f.vocab} vocabulary"))
-        dtype = "Int32" if f.kind == "int" else (str if f.kind == "vocab" else float)
+        # vocabulary columns arrive dictionary-encoded (categorical): no dtype check, the
+        # closed set is what matters
+        dtype = "Int32" if f.kind == "int" else (None if f.kind == "vocab" else float)
         cols[f.stored] = pa_schema.Column(dtype, checks, nullable=True, required=False)
     return pa_schema.DataFrameSchema(cols, strict=False, coerce=False, name="analysis record")

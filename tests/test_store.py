@@ -307,3 +307,12 @@ def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(tmp_path: Path, wh
     assert proc.returncode == 130
     assert said in err
     assert store.latest_version() == (v if when == "before" else v + 1)
+
+
+def test_keep_valid_with_every_row_invalid_commits_nothing_but_quarantine(tmp_path: Path) -> None:
+    (tmp_path / "k.csv").write_text("Sample,Height,d13C\na,1,abc\nb,2,xyz\n", encoding="utf-8")
+    (tmp_path / "o.toml").write_text(MAPPING.format(file="k.csv"), encoding="utf-8")
+    store = api.init_store(tmp_path / "st")
+    r = api.ingest(store, None, tmp_path / "o.toml", keep_valid=True)
+    assert (r.committed, r.quarantined) == (0, 2)
+    assert api.sql(store, "SELECT count(*) FROM quarantine").rows == [(2,)]
