@@ -75,7 +75,7 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
         result.pending = _pending_counts(derived.table)
         result.committed = derived.table.num_rows
         return result
-    step("committing")
+    step("waiting for the store's writer lock")
     if create is not None:
         store = create()
     with store.writer() as con:

@@ -267,7 +267,7 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     def column(name: str) -> np.ndarray:
         v = cols.get(name)
         if v is None:
-            return np.full(n, None, dtype=object)
+            return np.empty(n, dtype=object)  # all None
         if isinstance(v, (pa.Array, pa.ChunkedArray)):
             return v.to_numpy(zero_copy_only=False)
         if isinstance(v, np.ndarray):
@@ -354,25 +354,30 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                        f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is "
                        f"already in row {first_row[ids[i]]}; give replicates a replicate number")
 
-    # assemble the analyses table
+    # assemble the analyses table: Arrow columns pass through, constants are broadcast
     out: dict[str, Any] = {}
     types = {name: t for name, t in ANALYSES}
     for name, _t in ANALYSES:
-        if name in cols or name in ("lat", "lon", "section_id", "locality_id"):
-            arr = {"lat": lat, "lon": lon, "section_id": sec, "locality_id": loc}.get(name)
-            if arr is None:
-                arr = cols[name] if isinstance(cols[name], (pa.Array, pa.ChunkedArray)) \
-                    else column(name)
-            out[name] = arr
+        if name in ("lat", "lon"):
+            out[name] = lat if name == "lat" else lon
+        elif name in ("section_id", "locality_id") and not isinstance(
+                cols.get(name), (pa.Array, pa.ChunkedArray)):
+            out[name] = sec if name == "section_id" else loc
+        elif name in cols:
+            v = cols[name]
+            out[name] = v if isinstance(v, (pa.Array, pa.ChunkedArray, np.ndarray)) \
+                else _const(v, n, types[name])
     out["record_id"] = ids
-    out["source_id"] = np.full(n, sid, dtype=object)
-    out["sample_id"] = sample
+    out["source_id"] = _const(sid, n, "VARCHAR")
     out["replicate"] = replicate
-    out["sheet"] = np.full(n, raw.sheet, dtype=object)
+    out["sheet"] = _const(raw.sheet, n, "VARCHAR")
     out["sheet_row"] = raw.row_numbers
     if "position_kind" not in cols:
         kinds = {k: v.get("position_kind") for k, v in section_blocks.items()}
-        out["position_kind"] = np.array([kinds.get(s) for s in sec], dtype=object)
+        if len(set(kinds.values())) <= 1:
+            out["position_kind"] = _const(next(iter(kinds.values()), None), n, "VARCHAR")
+        else:
+            out["position_kind"] = pd.Series(sec, dtype=object).map(kinds).to_numpy()
     for name in list(out):
         out[name] = _to_arrow(out[name], types[name], n)
     frame = pa.table(out)
@@ -446,6 +451,20 @@ def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> Any:
     finally:
         con.close()
     return out.column(0).to_numpy(zero_copy_only=False).astype(object)
+
+
+def _const(value: Any, n: int, sqltype: str) -> pa.Array:
+    """One value for every row, built by Arrow (no Python object per row)."""
+    import pyarrow as pa
+
+    t = {"VARCHAR": pa.string(), "DOUBLE": pa.float64(), "INTEGER": pa.int32(),
+         "BIGINT": pa.int64()}[sqltype]
+    if value is None:
+        return pa.nulls(n, t)
+    import numpy as np
+
+    one = pa.array([str(value) if sqltype == "VARCHAR" else value], type=t)
+    return one.take(pa.array(np.zeros(n, dtype=np.int64)))
 
 
 def _strings(values: Any) -> pa.Array:
@@ -743,14 +762,15 @@ def _row_hashes(table: pa.Table) -> pa.Array:
     from strata13.compile.derive import DERIVED_COLUMNS
 
     names = [c for c in table.column_names if c not in DERIVED_COLUMNS
-             and c not in ("sheet", "sheet_row") and table.column(c).null_count < len(table)]
-    # 'name=' || NULL is NULL and concat_ws skips NULLs: an empty cell adds nothing, so a
-    # row's hash does not depend on which columns other rows fill
-    parts = ", ".join(f"'{c}=' || CAST(\"{c}\" AS VARCHAR)" for c in names) or "''"
+             and c not in ("sheet", "sheet_row")]
+    # DuckDB's hash() over the typed columns (no casting to text); stable within the pinned
+    # DuckDB series — an upgrade that changed it would report a re-ingested source's records
+    # as changed once, never lose them
+    parts = ", ".join(f'"{c}"' for c in names) or "''"
     con = duckdb.connect()
     try:
         con.register("t", table)
-        return con.execute(f"SELECT substr(md5(concat_ws('\x1f', {parts})), 1, 16) AS h "
+        return con.execute(f"SELECT lpad(to_hex(hash({parts})), 16, '0') AS h "
                            "FROM t").to_arrow_table().column(0).combine_chunks()
     finally:
         con.close()
@@ -790,18 +810,16 @@ def _sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: 
 
 
 def _samples_table(records: pa.Table) -> pa.Table:
-    import pyarrow as pa
+    """One row per sample (replicates folded), grouped by DuckDB."""
+    import duckdb
     from strata13.schemas.records import arrow_schema
 
-    names = [c for c, _ in SAMPLES]
-    if records.num_rows == 0:
-        return pa.Table.from_pylist([], schema=arrow_schema(SAMPLES))
-    t = records.select(names)
-    grouped = t.group_by(["source_id", "section_id", "sample_id"], use_threads=False).aggregate(
-        [("position_m", "min"), ("top_m", "min"), ("base_m", "max"),
-         ("lithostrat_unit", "min")])
-    grouped = grouped.rename_columns([
-        {"position_m_min": "position_m", "top_m_min": "top_m", "base_m_max": "base_m",
-         "lithostrat_unit_min": "lithostrat_unit"}.get(c, c) for c in grouped.column_names])
-    return grouped.select(names).cast(arrow_schema(SAMPLES)).sort_by(
-        [("section_id", "ascending"), ("sample_id", "ascending")])
+    con = duckdb.connect()
+    try:
+        con.register("r", records.select([c for c, _ in SAMPLES]))
+        t = con.execute("SELECT source_id, section_id, sample_id, min(position_m), min(top_m), "
+                        "max(base_m), min(lithostrat_unit) FROM r GROUP BY ALL "
+                        "ORDER BY section_id, sample_id").to_arrow_table()
+    finally:
+        con.close()
+    return t.rename_columns([c for c, _ in SAMPLES]).cast(arrow_schema(SAMPLES))
