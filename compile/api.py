@@ -91,6 +91,7 @@ class _DryStore(Store):
 
     def __init__(self) -> None:
         self.path = Path(".")
+        self._pending_files = []
 
     def settings(self, version: int | None = None) -> dict[str, Any]:
         return Settings().as_dict()["extra"] | {"time_scale": DEFAULT_TIME_SCALE}

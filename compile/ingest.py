@@ -171,7 +171,9 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
     quarantine = pa.Table.from_pylist(
         [{"source_id": sid, **q, "ingested_version": version} for q in prepared.quarantine],
         schema=arrow_schema(QUARANTINE))
-    for name, table in (("analyses", records), ("sources", sources),
+    if records.num_rows:
+        store.add_parquet(con, "analyses", records)
+    for name, table in (("sources", sources),
                         ("localities", prepared.localities), ("sections", prepared.sections),
                         ("samples", prepared.samples), ("quarantine", quarantine)):
         if table.num_rows:

@@ -254,11 +254,14 @@ def test_fault_before_commit_leaves_store_unchanged(tmp_path: Path) -> None:
     api.ingest(store, None, m)
     v = store.latest_version()
     m2 = write_source(tmp_path, [("x", 1, "3.0")], "x.csv")
+    files_before = sorted((store.path / "data").rglob("*.parquet"))
     res = subprocess.run([sys.executable, "-c", HOOK, str(store.path), str(m2),
                           str(tmp_path / "unused"), "fault"], capture_output=True, text=True)
     assert res.returncode != 0 and "injected fault" in res.stderr
     assert store.latest_version() == v
     assert api.sql(store, "SELECT count(*) FROM records").rows == [(5,)]
+    # the Parquet file written for the failed transaction was removed
+    assert sorted((store.path / "data").rglob("*.parquet")) == files_before
 
 
 JUNK = st.one_of(st.text(max_size=10), st.sampled_from(
