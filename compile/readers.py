@@ -393,7 +393,9 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
             parse_options=pcsv.ParseOptions(delimiter=delim, newlines_in_values=False,
                                             invalid_row_handler=on_invalid),
             convert_options=pcsv.ConvertOptions(
-                column_types=None, strings_can_be_null=True, quoted_strings_can_be_null=True,
+                # every cell stays text, exactly as written; cleaning parses it
+                column_types={name: pa.string() for name in (head[h] if h < len(head) else [])},
+                strings_can_be_null=True, quoted_strings_can_be_null=True,
                 null_values=[""], check_utf8=False, auto_dict_encode=False,
                 timestamp_parsers=[]),
         )
@@ -424,7 +426,8 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     stripped = nonempty
     headers = [str(n) for n in table.column_names]
     table = table.rename_columns([f"c{j}" for j in range(len(headers))])
-    table = pa.table({n: table.column(n).cast(pa.string()) for n in table.column_names})
+    table = pa.table({n: table.column(n) if table.column(n).type == pa.string()
+                      else table.column(n).cast(pa.string()) for n in table.column_names})
     if table.num_rows != len(nonblank_numbers):  # quoted newlines: fall back to counting
         nonblank_numbers = np.arange(h + 2, h + 2 + table.num_rows)
     raw = RawTable(path.name, sheet, h + 1, headers, [col_letter(j) for j in range(len(headers))],

@@ -156,6 +156,7 @@ def _unit_for(c: ColumnMap, header_unit: str | None, raw: RawTable, letter: str,
 def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     """Read, clean, map and validate one mapping's sheet. Never writes anything."""
     import numpy as np
+    import pandas as pd
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -168,13 +169,13 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     report.rows_blank = raw.blank_rows
     rows = _Rows(raw, report)
     n = raw.n_rows
-    row_index = {int(r): i for i, r in enumerate(raw.row_numbers)}
     for issue in raw.issues:  # reader errors on a data cell reject that row
         digits = "".join(ch for ch in issue.cell if ch.isdigit())
-        if issue.severity == "error" and digits and int(digits) in row_index:
-            i = row_index[int(digits)]
-            rows.bad[i] = True
-            rows.reasons.setdefault(i, []).append(f"{issue.cell}: {issue.rule}")
+        if issue.severity == "error" and digits:
+            hit = np.flatnonzero(raw.row_numbers == int(digits))
+            for i in hit:
+                rows.bad[i] = True
+                rows.reasons.setdefault(int(i), []).append(f"{issue.cell}: {issue.rule}")
     sid = mapping.source_id
     found = _match_columns(raw, spec, report)
     cols: dict[str, Any] = {}  # stored column -> array (numpy object/float or arrow)
@@ -289,13 +290,11 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     loc = column("locality_id")
     if "locality_id" not in cols:
         sec_loc = {k: v.get("locality") for k, v in section_blocks.items()}
-        loc = np.array([sec_loc.get(s) if s is not None else None for s in sec], dtype=object)
+        loc_s = pd.Series(sec, dtype=object).map(sec_loc).astype(object)
         if len(locality_blocks) == 1:
-            only = next(iter(locality_blocks))
-            loc = np.array([v if v is not None else only for v in loc], dtype=object)
+            loc_s = loc_s.fillna(next(iter(locality_blocks)))
+        loc = loc_s.astype(object).where(loc_s.notna(), None).to_numpy()
     # coordinates: the row's own, else its locality's (vectorised through pandas)
-    import pandas as pd
-
     lat = pd.to_numeric(pd.Series(column("lat")), errors="coerce").to_numpy(dtype=float, copy=True)
     lon = pd.to_numeric(pd.Series(column("lon")), errors="coerce").to_numpy(dtype=float, copy=True)
     loc_series = pd.Series(loc, dtype=object)
@@ -461,10 +460,10 @@ def _const(value: Any, n: int, sqltype: str) -> pa.Array:
          "BIGINT": pa.int64()}[sqltype]
     if value is None:
         return pa.nulls(n, t)
-    import numpy as np
+    import pyarrow.compute as pc
 
-    one = pa.array([str(value) if sqltype == "VARCHAR" else value], type=t)
-    return one.take(pa.array(np.zeros(n, dtype=np.int64)))
+    return pc.fill_null(pa.nulls(n, t), pa.scalar(str(value) if sqltype == "VARCHAR"
+                                                   else value, t))
 
 
 def _strings(values: Any) -> pa.Array:
