@@ -342,16 +342,15 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                        f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
 
     _interval_order(cols, column, rows, letters, section_blocks, sec)
-    ids = _record_ids(sid, sec, sample, replicate)
-    id_series = pd.Series(ids, dtype=object)
-    dup = (id_series.duplicated(keep="first") & id_series.notna()).to_numpy()
-    if dup.any():
-        first_row = {rid: raw.row_numbers[i] for i, rid in
-                     zip(np.nonzero(~dup)[0], ids[~dup], strict=True) if rid is not None}
-        for i in np.nonzero(dup)[0]:
-            rows.error(int(i), letter_s, header_s, sample[i], "duplicate record",
-                       f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is "
-                       f"already in row {first_row[ids[i]]}; give replicates a replicate number")
+    def text(name: str, fallback: Any) -> Any:
+        v = cols.get(name)
+        return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback
+
+    ids, first = _record_ids(sid, text("section_id", sec), text("sample_id", sample), replicate)
+    for i in np.flatnonzero(first >= 0):
+        rows.error(int(i), letter_s, header_s, sample[i], "duplicate record",
+                   f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is already "
+                   f"in row {raw.row_numbers[first[i]]}; give replicates a replicate number")
 
     # assemble the analyses table: Arrow columns pass through, constants are broadcast
     out: dict[str, Any] = {}
@@ -433,23 +432,32 @@ def _interval_order(cols: dict[str, Any], column: Any, rows: _Rows,
                    f"{base[i]:g} m; check that top and base are not swapped")
 
 
-def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> Any:
-    """``record_id`` for every row at once (DuckDB's sha256 over the same key text)."""
+def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Array, Any]:
+    """``record_id`` of every row (DuckDB's sha256 over the same key text as
+    :func:`record_id`) and, for a repeated id, the row index of its first occurrence
+    (−1 otherwise)."""
     import duckdb
     import numpy as np
     import pyarrow as pa
 
+    n = len(replicate)
     t = pa.table({"sec": _strings(sec), "sample": _strings(sample),
-                  "rep": pa.array(np.asarray(replicate, dtype=np.int64))})
+                  "rep": pa.array(np.asarray(replicate, dtype=np.int64)),
+                  "i": pa.array(np.arange(n, dtype=np.int64))})
     con = duckdb.connect()
     try:
         con.register("k", t)
-        out = con.execute("SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
-                          "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))),"
-                          " 1, 20) END FROM k", [sid]).to_arrow_table()
+        out = con.execute(
+            "WITH ids AS (SELECT i, CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
+            "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
+            "END AS id FROM k) SELECT id, CASE WHEN id IS NULL THEN -1 ELSE "
+            "min(i) OVER (PARTITION BY id) END AS first FROM ids ORDER BY i",
+            [sid]).to_arrow_table()
     finally:
         con.close()
-    return out.column(0).to_numpy(zero_copy_only=False).astype(object)
+    first = out.column("first").to_numpy(zero_copy_only=False)
+    first = np.where(first == np.arange(n), -1, first)
+    return out.column("id").combine_chunks(), first
 
 
 def _const(value: Any, n: int, sqltype: str) -> pa.Array:
