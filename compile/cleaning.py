@@ -254,7 +254,7 @@ def _commas(work: pa.Array, has_comma: np.ndarray, ctx: CellContext, original: p
 # ---------------------------------------------------------------- coordinates
 
 _DMS = re.compile(
-    r"^\s*(?P<h1>[NSEW])?\s*(?P<deg>[-+]?\d+(?:[.,]\d+)?)\s*(?:°|º|d|deg|\s)\s*"
+    r"^\s*(?P<h1>[NSEW])?\s*(?P<deg>[-+]?\d+(?:[.,]\d+)?)\s*(?:°|º|d|deg|\s|(?=[NSEW]\s*$))\s*"
     r"(?:(?P<min>\d+(?:[.,]\d+)?)\s*(?:'|′|’|m|min|\s)\s*)?"
     r"(?:(?P<sec>\d+(?:[.,]\d+)?)\s*(?:\"|″|''|s|sec)?\s*)?(?P<h2>[NSEW])?\s*$",
     re.IGNORECASE)

@@ -128,8 +128,22 @@ def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) ->
         raise ConfigError(f"{path.name}: {where} decimal = {dec!r} is not one of auto . ,",
                           "Use decimal = \",\" for comma decimals.")
     spec.decimal = dec
-    spec.delimiter = str(block.get("delimiter", "auto"))
-    spec.encoding = str(block.get("encoding", "auto"))
+    delim = str(block.get("delimiter", "auto"))
+    if delim not in ("auto", "tab", "\\t") and len(delim) != 1:
+        raise ConfigError(f"{path.name}: {where} delimiter = {delim!r} must be one character, "
+                          "\"tab\" or \"auto\".", "Example: delimiter = \";\"")
+    spec.delimiter = delim
+    enc = str(block.get("encoding", "auto"))
+    if enc != "auto":
+        import codecs
+
+        try:
+            codecs.lookup(enc)
+        except LookupError:
+            raise ConfigError(f"{path.name}: {where} encoding = {enc!r} is not an encoding "
+                              "Python knows.", "Use \"auto\", \"utf-8\", \"cp1252\" or "
+                              "\"latin-1\".") from None
+    spec.encoding = enc
     return spec
 
 
@@ -162,7 +176,8 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
                           f"{', '.join(CONC_BASES)}.", "")
     dl = spec.get("detection_limit")
     if dl is not None and (not isinstance(dl, (int, float)) or isinstance(dl, bool) or dl < 0):
-        raise ConfigError(f"{path.name}: {where} detection_limit must be a number ≥ 0.", "")
+        raise ConfigError(f"{path.name}: {where} detection_limit must be a number ≥ 0.",
+                          "Example: detection_limit = 5 (in the column's unit).")
     return ColumnMap(header, name, unit, scale, basis, float(dl) if dl is not None else None)
 
 
@@ -190,10 +205,14 @@ def load_mapping(path: Path) -> Mapping:
     for block in ("source", "table", "columns"):
         if not isinstance(doc.get(block), dict):
             raise ConfigError(f"{path.name} has no [{block}] block.",
-                              "See demo_compilation/mappings/example.toml.")
+                              "See the commented example "
+                              "demo_compilation/sheets/quillar_2011.toml.")
     source = dict(doc["source"])
     _unknown_keys("[source]", source, SOURCE_KEYS, path)
     sid = source.get("id")
+    if sid is None:
+        raise ConfigError(f"{path.name}: [source] has no id.",
+                          "Add id = \"…\": 3–64 lowercase letters, digits and hyphens.")
     if not isinstance(sid, str) or not SLUG.match(sid):
         raise ConfigError(f"{path.name}: [source] id = {sid!r} is not a valid source id.",
                           "Use 3–64 lowercase letters, digits and hyphens, e.g. "
@@ -204,20 +223,35 @@ def load_mapping(path: Path) -> Mapping:
     kind = source.get("kind", "published")
     if vocabulary("source_kind").resolve(str(kind)) is None:
         raise ConfigError(f"{path.name}: [source] kind = {kind!r} is not published or in-house.",
-                          "")
+                          "Use kind = \"published\" or kind = \"in-house\".")
     source["kind"] = vocabulary("source_kind").resolve(str(kind))
-    if "year" in source and not isinstance(source["year"], int):
-        raise ConfigError(f"{path.name}: [source] year must be a whole number.", "")
+    year = source.get("year")
+    if year is not None and (not isinstance(year, int) or isinstance(year, bool)
+                             or not 1600 <= year <= 2200):
+        raise ConfigError(f"{path.name}: [source] year = {year!r} is not a plausible year.",
+                          "Write the publication year, e.g. year = 2019.")
     rep = source.get("republishes", [])
     if not isinstance(rep, list) or not all(isinstance(x, str) for x in rep):
         raise ConfigError(f"{path.name}: [source] republishes must be a list of source ids "
-                          "or citations.", "")
+                          "or citations.", "Example: republishes = [\"other-source-2015\"]")
+    if sid in rep:
+        raise ConfigError(f"{path.name}: source {sid!r} cannot re-publish itself.",
+                          "List the sources whose data this one re-publishes.")
 
     table = _table(doc["table"], "[table]", path, with_columns=False)
     columns = doc["columns"]
     if not columns:
         raise ConfigError(f"{path.name}: [columns] is empty.", "Map at least one column.")
     table.columns = [_column(h, spec, path) for h, spec in columns.items()]
+    from strata13.compile.readers import norm_header
+
+    by_norm: dict[str, str] = {}
+    for c in table.columns:
+        key = norm_header(c.header)
+        if key in by_norm:
+            raise ConfigError(f"{path.name}: [columns] {by_norm[key]!r} and {c.header!r} name the "
+                              "same header (case and spacing are ignored).", "Keep one of them.")
+        by_norm[key] = c.header
     seen: dict[str, str] = {}
     for c in table.columns:
         if c.field in seen:
@@ -229,7 +263,8 @@ def load_mapping(path: Path) -> Mapping:
     for key, value in constants.items():
         if key not in BY_NAME and key not in SCALE_KEYS and key not in BASIS_KEYS:
             raise ConfigError(f"{path.name}: [constants] names unknown field {key!r}."
-                              + _did_you_mean(key, field_names()), "")
+                              + _did_you_mean(key, field_names()),
+                              "The fields are listed in DEVELOPERS.md.")
         if key in seen:
             raise ConfigError(f"{path.name}: {key} is both a column ({seen[key]!r}) and a "
                               "constant.", "Keep one.")
@@ -244,14 +279,35 @@ def load_mapping(path: Path) -> Mapping:
     if not isinstance(sections, list) or not isinstance(localities, list):
         raise ConfigError(f"{path.name}: sections and localities are [[sections]] / "
                           "[[localities]] blocks.", "")
+    for kind, blocks, keys in (("sections", sections, SECTION_KEYS),
+                               ("localities", localities, LOCALITY_KEYS)):
+        ids: set[str] = set()
+        for block in blocks:
+            if not isinstance(block, dict):
+                raise ConfigError(f"{path.name}: [[{kind}]] entries must be tables.", "")
+            _unknown_keys(f"[[{kind}]]", block, keys, path)
+            if not block.get("id"):
+                raise ConfigError(f"{path.name}: a [[{kind}]] block has no id.",
+                                  f"Give every [[{kind}]] block an id = \"…\".")
+            if str(block["id"]) in ids:
+                raise ConfigError(f"{path.name}: two [[{kind}]] blocks have the id "
+                                  f"{block['id']!r}.", "Give each its own id.")
+            ids.add(str(block["id"]))
     for s in sections:
-        _unknown_keys("[[sections]]", s, SECTION_KEYS, path)
-        if not s.get("id"):
-            raise ConfigError(f"{path.name}: a [[sections]] block has no id.", "")
-    for loc in localities:
-        _unknown_keys("[[localities]]", loc, LOCALITY_KEYS, path)
-        if not loc.get("id"):
-            raise ConfigError(f"{path.name}: a [[localities]] block has no id.", "")
+        for key, vocab in (("position_kind", "position_kind"), ("datum", "datum")):
+            if key in s:
+                term = vocabulary(vocab).resolve(str(s[key]))
+                if term is None:
+                    sug = vocabulary(vocab).suggest(str(s[key]))
+                    raise ConfigError(
+                        f"{path.name}: section {s['id']!r} {key} = {s[key]!r} is not known."
+                        + (f" Did you mean {sug!r}?" if sug else ""),
+                        f"Known: {', '.join(vocabulary(vocab).terms)}.")
+                s[key] = term
+    if "section_id" not in seen and "section_id" not in constants and len(sections) != 1:
+        raise ConfigError(f"{path.name} does not say which section the rows belong to.",
+                          "Map a section column to section_id, set section_id in [constants], "
+                          "or define exactly one [[sections]] block.")
     loc_table = None
     if "localities_table" in doc:
         block = doc["localities_table"]

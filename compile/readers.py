@@ -138,11 +138,15 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, header_row: int | Non
                               f"Sheets: {', '.join(names)}.")
         name = names[sheet - 1]
     else:
-        by_norm = {norm_header(n): n for n in names}
-        if norm_header(sheet) not in by_norm:
-            raise ConfigError(f"{path.name} has no sheet named {sheet!r}.",
-                              f"Sheets: {', '.join(names)}.")
-        name = by_norm[norm_header(sheet)]
+        loose = [n for n in names if norm_header(n) == norm_header(sheet)]
+        if sheet in names:  # the exact name wins
+            name = sheet
+        elif len(loose) == 1:
+            name = loose[0]
+        else:
+            raise ConfigError(f"{path.name} has no sheet named {sheet!r}"
+                              + (" (several match loosely)." if loose else "."),
+                              "Sheets: " + ", ".join(repr(n) for n in names) + ".")
     ws = wb.get_sheet_by_name(name)
     grid = [list(r) for r in ws.to_python(skip_empty_area=False)]
     issues: list[Issue] = []
@@ -246,7 +250,7 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
     while end:
         filled = [c for c in rows[end - 1] if c]
         if len(filled) == 1 and (FOOTNOTE_START.match(filled[0]) or not _numberish(filled[0])):
-            ref = f"{_first_col(body[end - 1], keep)}{numbers[end - 1]}"
+            ref = f"{_first_col(body[end - 1])}{numbers[end - 1]}"
             issues.append(Issue("info", sheet, ref,
                                 "", filled[0], "footnote row", "row below the data skipped"))
             end -= 1
@@ -269,10 +273,11 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
                     np.asarray(kept_numbers, dtype=np.int64), blank, issues=issues)
 
 
-def _first_col(row: list[str | None], keep: list[int] | None = None) -> str:
+def _first_col(row: list[str | None]) -> str:
+    """Letter of the first filled cell of a full-width grid row."""
     for j, v in enumerate(row):
         if v:
-            return col_letter(keep[j] if keep else j)
+            return col_letter(j)
     return "A"
 
 
@@ -330,7 +335,9 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     import pyarrow.csv as pcsv
 
     data = path.read_bytes()
-    if b"\x00" in data[:4096]:
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")) and encoding == "auto":
+        encoding = "utf-16"  # "Unicode text" exports of spreadsheet programs
+    if b"\x00" in data[:4096] and not encoding.lower().startswith("utf-16"):
         raise InputFileError(f"{path.name} is a binary file, not a CSV/TSV text table.",
                              "Export the table as CSV or give the .xlsx/.ods file.")
     if encoding == "auto" and _is_utf8(data):

@@ -98,22 +98,40 @@ def _s(value: Any) -> str:
 
 def _match_columns(raw: RawTable, spec: TableSpec,
                    report: Report) -> dict[str, tuple[int, str | None]]:
-    """Mapped header -> (column index, unit found in the header)."""
-    exact = {norm_header(h): j for j, h in enumerate(raw.headers)}
-    bare: dict[str, tuple[int, str | None]] = {}
+    """Mapped header -> (column index, unit found in the header).
+
+    An exact header (ignoring case and spacing) wins over one matched without its unit;
+    a mapped header that matches two columns of the sheet is refused, naming both cells.
+    """
+    exact: dict[str, list[int]] = {}
+    bare: dict[str, list[tuple[int, str | None]]] = {}
     for j, h in enumerate(raw.headers):
+        exact.setdefault(norm_header(h), []).append(j)
         name, unit = strip_unit(h)
-        bare.setdefault(norm_header(name), (j, unit))
+        bare.setdefault(norm_header(name), []).append((j, unit))
     out: dict[str, tuple[int, str | None]] = {}
     missing = []
     for c in spec.columns:
         key = norm_header(c.header)
-        if key in exact:
-            out[c.header] = (exact[key], None)
-        elif norm_header(strip_unit(c.header)[0]) in bare:
-            out[c.header] = bare[norm_header(strip_unit(c.header)[0])]
+        hits = [(j, None) for j in exact.get(key, [])] or \
+            bare.get(norm_header(strip_unit(c.header)[0]), [])
+        if len(hits) > 1:
+            cells = " and ".join(f"{raw.letters[j]}{raw.header_row}" for j, _ in hits)
+            raise ConfigError(f"{raw.file} ({raw.sheet}): the mapped column {c.header!r} matches "
+                              f"more than one header ({cells}).",
+                              "Give the columns distinct headers in the sheet, or map the "
+                              "exact header text including its unit.")
+        if hits:
+            out[c.header] = hits[0]
         else:
             missing.append(c.header)
+    taken: dict[int, str] = {}
+    for header, (j, _) in out.items():
+        if j in taken:
+            raise ConfigError(f"{spec.file.name}: mapping keys {taken[j]!r} and {header!r} both "
+                              f"name column {raw.letters[j]} ({raw.headers[j]!r}).",
+                              "Map each sheet column once.")
+        taken[j] = header
     if missing:
         import difflib
 
@@ -279,13 +297,13 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     section_blocks = {str(s["id"]): s for s in mapping.sections}
     sec = column("section_id")
     if "section_id" not in cols:
-        if len(section_blocks) == 1:
-            sec = np.full(n, next(iter(section_blocks)), dtype=object)
-        elif n:
-            for i in range(n):
-                rows.error(i, "", "section_id", "", "section missing",
-                           "map a section column, set section_id in [constants], or define "
-                           "exactly one [[sections]] block")
+        # load_mapping guarantees exactly one [[sections]] block in this case
+        sec = np.full(n, next(iter(section_blocks)), dtype=object)
+    else:
+        letter_sec, header_sec = letters.get("section_id", ("", "section_id"))
+        for i in np.flatnonzero(pd.isna(pd.Series(sec, dtype=object)).to_numpy()):
+            rows.error(int(i), letter_sec, header_sec, "", "section missing",
+                       "every row needs a section; fill the cell")
     locality_blocks = _localities(mapping, report)
     loc = column("locality_id")
     if "locality_id" not in cols:
