@@ -32,14 +32,19 @@ ScreenedOpt = Annotated[str, typer.Option("--screened", help="pass | fail | unte
 ALL_FORMATS = ("table", "csv", "json", "parquet")
 
 
-def check_format(fmt: str, out: Path | None, allowed: tuple[str, ...] = ALL_FORMATS) -> None:
+def check_format(fmt: str, out: Path | None, store: Path | None = None,
+                 allowed: tuple[str, ...] = ALL_FORMATS) -> None:
+    """Refuse an unknown format, parquet to a terminal, and an --out that is unsafe."""
     from strata13.compile.errors import OptionError
+    from strata13.compile.outputs import output_file
 
     if fmt not in allowed:
         raise OptionError(f"--format {fmt!r} is not one of {', '.join(allowed)}.",
                           "Example: --format csv")
     if fmt == "parquet" and out is None:
         raise OptionError("--format parquet needs --out FILE.", "Parquet is binary; name a file.")
+    if out is not None:
+        output_file(out, option="--out", stores=[store] if store else [])
 
 
 def build_filters(store: Any, interval: str | None, region: str | None,

@@ -24,6 +24,11 @@ def ingest(file: Annotated[Path, typer.Argument(help="The sheet (xlsx, ods, csv,
     from strata13.compile import api
     from strata13.compile.errors import ValidationFailed
     from strata13.compile.ingest import reconcile
+    from strata13.compile.outputs import output_file
+
+    if report is not None:
+        output_file(report, option="--report", protect=[file, map_],
+                    stores=[api.store_path(store)])
 
     try:
         with render.progress() as step:

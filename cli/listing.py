@@ -13,7 +13,7 @@ def sources(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None
     """List the sources in the store with their record and quarantine counts."""
     from strata13.compile import api
 
-    check_format(fmt, out)
+    check_format(fmt, out, api.store_path(store))
     rows = api.sources(api.open_store(api.store_path(store)))
     cols = ["source_id", "kind", "year", "n_records", "quarantined", "ingested_version",
             "file_name", "citation"]
@@ -26,7 +26,7 @@ def history(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None
     """List every version of the store: when, what command, what changed."""
     from strata13.compile import api
 
-    check_format(fmt, out)
+    check_format(fmt, out, api.store_path(store))
     versions = api.history(api.open_store(api.store_path(store)))
     render.table(["version", "time_utc", "command", "detail", "summary"],
                  [[v.version, v.time, v.command, v.detail, json.dumps(v.summary, sort_keys=True)]

@@ -36,7 +36,7 @@ def query(interval: IntervalOpt = None,
     """Records for a time bin, a region, materials and sources."""
     from strata13.compile import api
 
-    check_format(fmt, out)
+    check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
                             source, screened)
@@ -60,7 +60,7 @@ def sql(statement: Annotated[str, typer.Argument(help="One SELECT (or EXPLAIN) o
     """Read-only SQL over the views records, sources, localities, sections, samples, …"""
     from strata13.compile import api
 
-    check_format(fmt, out)
+    check_format(fmt, out, api.store_path(store))
     res = api.sql(api.open_store(api.store_path(store)), statement, timeout, max_rows)
     render.table(res.columns, res.rows, fmt, out)
     if res.truncated:

@@ -47,7 +47,7 @@ def open_store(path: str | Path) -> Store:
 
 
 def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
-               regions: str | Path | None = None) -> Store:
+               regions: str | Path | None = None, made_by: str = "init") -> Store:
     """Create a store with its settings (time scale) and optional named regions."""
     from strata13.compile.regions import load_regions_file
     from strata13.schemas.vocabularies import vocabulary
@@ -63,7 +63,8 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
     settings = Settings(time_scale=ts)
     return Store.create(Path(path), json.dumps(settings.as_dict()["extra"] | {"time_scale": ts}),
                         settings.hash(),
-                        [(n, g, Path(regions).name) for n, g in named] if regions else [])
+                        [(n, g, Path(regions).name) for n, g in named] if regions else [],
+                        made_by=made_by)
 
 
 def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | Path, *,
@@ -133,7 +134,9 @@ def export(store: Store, out: str | Path, filters: Filters | None = None,
            as_of: int | None = None) -> ExportResult:
     from strata13.compile import export as _export
     from strata13.compile.ingest import settings_from_store
+    from strata13.compile.outputs import output_dir
 
+    output_dir(Path(out), option="--out", stores=[store.path])
     con, version = store.reader(as_of)
     try:
         settings_hash = settings_from_store(store).hash()

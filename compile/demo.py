@@ -28,17 +28,30 @@ def demo_folder() -> Path:
 
 
 def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
+    import json
+
+    from strata13.compile.outputs import output_dir
+
     data = demo_folder()
     sheets = data / "sheets"
+    output_dir(out, option="--out")
     store_dir = out / "compilation"
     export_dir = out / "export"
     if store_dir.exists():
-        if not (store_dir / "strata13-store.json").exists():
-            raise StoreError(f"{store_dir} exists and is not a strata13 store.",
-                             "Choose another --out folder.")
-        shutil.rmtree(store_dir)  # the demo always starts from a fresh store
+        marker = store_dir / "strata13-store.json"
+        made_by = None
+        if marker.is_file():
+            try:
+                made_by = json.loads(marker.read_text(encoding="utf-8")).get("made_by")
+            except (json.JSONDecodeError, UnicodeDecodeError, AttributeError):
+                made_by = None
+        if made_by != "demo":
+            raise StoreError(f"{store_dir} exists and was not made by the demo; the demo will "
+                             "not touch it.", "Choose another --out folder for the demo.")
+        shutil.rmtree(store_dir)  # a previous demo store: start afresh
     yield "say", "strata13 demo — every name and number in it is invented."
-    store = api.init_store(store_dir, regions=data / "regions.geojson")
+    out.mkdir(parents=True, exist_ok=True)
+    store = api.init_store(store_dir, regions=data / "regions.geojson", made_by="demo")
     yield "say", f"store: {store.path}   (try: strata13 sources --store {store.path})"
     for sheet, mapping in SHEETS:
         r = api.ingest(store, sheets / sheet, sheets / mapping)

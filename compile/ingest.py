@@ -14,7 +14,13 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive import Settings, derive
-from strata13.compile.errors import InputFileError, Interrupted, OptionError, ValidationFailed
+from strata13.compile.errors import (
+    DomainError,
+    InputFileError,
+    Interrupted,
+    OptionError,
+    ValidationFailed,
+)
 from strata13.compile.mapping import load_mapping
 from strata13.compile.report import Report
 from strata13.compile.store import Store
@@ -70,6 +76,16 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
             "Fix the cells listed, or use --keep-valid to commit the valid rows and "
             "quarantine the rest.")
     result.quarantined = len(prepared.quarantine)
+    if prepared.records.num_rows == 0:
+        if report.rows_read == report.rows_blank:
+            raise DomainError(f"{mapping.table.file.name} has no data rows under its header; "
+                              "nothing was written.",
+                              "Check the sheet and header_row in the mapping's [table]; a source "
+                              "is never replaced by an empty one.")
+        raise ValidationFailed(f"all {report.rows_rejected} rows of {mapping.table.file.name} "
+                               "were refused; nothing was written.", report,
+                               "Fix the cells listed; a source is never replaced by an empty "
+                               "one.")
     if dry_run:
         derived = derive(prepared.records, settings_from_store(store))
         result.pending = _pending_counts(derived.table)

@@ -112,7 +112,8 @@ class Store:
 
     @classmethod
     def create(cls, path: Path, settings_json: str, settings_hash: str,
-               regions: list[tuple[str, str, str]] | None = None) -> Store:
+               regions: list[tuple[str, str, str]] | None = None,
+               made_by: str = "init") -> Store:
         """Make a new store folder with every table, the settings and (optional) regions."""
         if is_store(path):
             raise StoreError(f"{path} is already a strata13 store.",
@@ -139,7 +140,7 @@ class Store:
                 con.execute("COMMIT")
             (store.path / MARKER).write_text(json.dumps(
                 {"format": "strata13 store", "schema_version": SCHEMA_VERSION,
-                 "catalog": CATALOG, "data": DATA + "/"}, indent=1) + "\n")
+                 "catalog": CATALOG, "data": DATA + "/", "made_by": made_by}, indent=1) + "\n")
         except BaseException:
             if not is_store(store.path):
                 import shutil

@@ -17,7 +17,13 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from strata13.compile import api
-from strata13.compile.errors import InstructionError, QueryRefused, ValidationFailed
+from strata13.compile.errors import (
+    DomainError,
+    InstructionError,
+    QueryRefused,
+    RefusedError,
+    ValidationFailed,
+)
 
 from tests.conftest import tree_bytes
 
@@ -275,9 +281,9 @@ JUNK = st.one_of(st.text(max_size=10), st.sampled_from(
 def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(tmp_path: Path,
                                                                     cells: list) -> None:
     import csv as _csv
+    import tempfile
 
-    folder = tmp_path / f"j{abs(hash(str(cells))) % 10**9}"
-    folder.mkdir()
+    folder = Path(tempfile.mkdtemp(dir=tmp_path))
     with (folder / "j.csv").open("w", encoding="utf-8", newline="") as fh:
         w = _csv.writer(fh)
         w.writerow(["Sample", "Height", "d13C"])
@@ -287,7 +293,7 @@ def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(tmp_path: Pat
     before = tree_bytes(store.path)
     try:
         r = api.ingest(store, None, folder / "o.toml")
-    except (ValidationFailed, InstructionError):
+    except (RefusedError, InstructionError):
         assert tree_bytes(store.path) == before
     else:
         assert r.report.rows_read == r.committed + r.quarantined + r.report.rows_blank
@@ -312,10 +318,17 @@ def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(tmp_path: Path, wh
     assert store.latest_version() == (v if when == "before" else v + 1)
 
 
-def test_keep_valid_with_every_row_invalid_commits_nothing_but_quarantine(tmp_path: Path) -> None:
+def test_a_source_is_never_replaced_by_an_empty_one(tmp_path: Path) -> None:
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "1.1")]))
+    before = tree_bytes(store.path)
+    # every row invalid, even with --keep-valid
     (tmp_path / "k.csv").write_text("Sample,Height,d13C\na,1,abc\nb,2,xyz\n", encoding="utf-8")
     (tmp_path / "o.toml").write_text(MAPPING.format(file="k.csv"), encoding="utf-8")
-    store = api.init_store(tmp_path / "st")
-    r = api.ingest(store, None, tmp_path / "o.toml", keep_valid=True)
-    assert (r.committed, r.quarantined) == (0, 2)
-    assert api.sql(store, "SELECT count(*) FROM quarantine").rows == [(2,)]
+    with pytest.raises(ValidationFailed, match="all 2 rows"):
+        api.ingest(store, None, tmp_path / "o.toml", keep_valid=True)
+    # a header without rows
+    (tmp_path / "k.csv").write_text("Sample,Height,d13C\n", encoding="utf-8")
+    with pytest.raises(DomainError, match="no data rows"):
+        api.ingest(store, None, tmp_path / "o.toml")
+    assert tree_bytes(store.path) == before
