@@ -45,7 +45,47 @@ app.command("export")(export.export)
 
 
 def main(argv: list[str] | None = None) -> None:
-    """Entry point: run the app and turn every outcome into one exit code."""
+    """Entry point: run the app and turn every outcome into one exit code.
+
+    A Ctrl-C anywhere — in a command, in DuckDB, or while the result is being printed —
+    ends with exit 130 and one line on stderr, never a traceback.
+    """
+    import signal
+    import threading
+
+    from strata13.compile.interrupts import pressed
+
+    def on_sigint(signum: int, frame: object) -> None:
+        pressed.set()
+        raise KeyboardInterrupt
+
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGINT, on_sigint)
+    try:
+        code = _run(list(sys.argv[1:] if argv is None else argv))
+        if pressed.is_set() and code != 130:  # swallowed by a library, but the user asked
+            code = _interrupted("")
+    except KeyboardInterrupt:
+        code = _interrupted("")
+    sys.exit(code)
+
+
+def _interrupted(message: str) -> int:
+    try:
+        sys.stderr.write(f"error: {message or 'interrupted'}\n")
+        sys.stderr.flush()
+    except (KeyboardInterrupt, OSError):
+        pass
+    return 130
+
+
+def _is_duckdb_interrupt(exc: BaseException) -> bool:
+    """DuckDB turns SIGINT during a query into its own exception."""
+    return type(exc).__name__ == "InterruptException" or (
+        isinstance(exc, RuntimeError) and "interrupted" in str(exc).lower())
+
+
+def _run(args: list[str]) -> int:
     try:  # recent typer releases carry their own copy of click
         from typer._click import exceptions as cx
     except ImportError:  # pragma: no cover - older typer with click as a dependency
@@ -54,44 +94,43 @@ def main(argv: list[str] | None = None) -> None:
     from strata13.cli import render
     from strata13.compile.errors import Strata13Error
 
-    args = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in args
     args = [a for a in args if a != "--debug"]  # accepted anywhere on the line
     command = typer.main.get_command(app)
     try:
         rv = command.main(args=args, prog_name="strata13", standalone_mode=False)
-        code = rv if isinstance(rv, int) else 0
+        if rv == 130:  # typer turns Ctrl-C into a return value here
+            return _interrupted("")
+        return rv if isinstance(rv, int) else 0
     except typer.Exit as exc:
-        code = exc.exit_code
-        if code == 130:  # typer turns Ctrl-C into Exit(130); say what happened
-            render.error("interrupted", "")
+        if exc.exit_code == 130:  # typer turns Ctrl-C into Exit(130); say what happened
+            return _interrupted("")
+        return exc.exit_code
     except cx.UsageError as exc:
         if isinstance(exc, getattr(cx, "NoArgsIsHelpError", ())):
             sys.stderr.write((exc.ctx.get_help() if exc.ctx else "") + "\n")
-            code = 0 if not args else 2
-        else:
-            usage = exc.ctx.get_usage() if exc.ctx else ""
-            render.error(exc.format_message(), (usage.replace("\n", " ") + "  (--help for "
-                                                "more)") if usage else "Run strata13 --help.")
-            code = 2
+            return 0 if not args else 2
+        usage = exc.ctx.get_usage() if exc.ctx else ""
+        render.error(exc.format_message(), (usage.replace("\n", " ") + "  (--help for more)")
+                     if usage else "Run strata13 --help.")
+        return 2
     except (typer.Abort, KeyboardInterrupt) as exc:
-        text = getattr(exc, "message", "") or "interrupted"
-        render.error(text, "")
-        code = 130
+        return _interrupted(getattr(exc, "message", ""))
     except Strata13Error as exc:
         if debug:
             import traceback
 
             traceback.print_exc()
         render.error(exc.message, exc.hint)
-        code = exc.exit_code
+        return exc.exit_code
     except cx.ClickException as exc:
         render.error(exc.format_message(), "")
-        code = exc.exit_code if exc.exit_code in (1, 2) else 2
+        return exc.exit_code if exc.exit_code in (1, 2) else 2
     except Exception as exc:  # an internal fault: one line, details with --debug
+        if _is_duckdb_interrupt(exc):
+            return _interrupted("")
         if debug:
             raise
         render.error(f"internal error: {type(exc).__name__}: {exc}",
                      "Run again with --debug for the traceback, and report it.")
-        code = 1
-    sys.exit(code)
+        return 1

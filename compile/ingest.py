@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile import interrupts
 from strata13.compile.derive import Settings, derive
 from strata13.compile.errors import (
     DomainError,
@@ -115,6 +116,7 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
             return result
         before = store._latest(con)
         step("committing")
+        interrupts.check()  # a Ctrl-C a library swallowed still stops us before the commit
         try:
             result.version = _commit(store, con, prepared, records, derived.chains, settings,
                                      result)

@@ -15,13 +15,16 @@ import threading
 from dataclasses import dataclass
 from typing import Any
 
-from strata13.compile.errors import QueryRefused
+from strata13.compile import interrupts
+from strata13.compile.errors import OptionError, QueryRefused
 
 VIEWS = ("records", "sources", "localities", "sections", "samples", "quarantine", "regions",
-         "chains", "settings", "commits")
+         "chains", "settings", "commits", "runs", "age_ties", "screen_results")
 SAFE_TABLE_FUNCTIONS = {"range", "generate_series", "unnest"}
 DEFAULT_TIMEOUT_S = 30.0
 DEFAULT_ROW_CAP = 100_000
+MAX_TIMEOUT_S = 3600.0
+MAX_ROW_CAP = 10_000_000
 
 
 @dataclass
@@ -73,8 +76,8 @@ def check(con: Any, sql: str) -> str:
         raise QueryRefused("only one statement at a time is allowed.", "Remove the extra ';'.")
     kind = str(statements[0].type).rsplit(".", 1)[-1]
     if kind not in ("SELECT", "EXPLAIN"):
-        raise QueryRefused(f"only SELECT (or EXPLAIN SELECT) statements are allowed; this is a "
-                           f"{kind} statement.", f"Query the views: {', '.join(VIEWS)}.")
+        raise QueryRefused(f"only SELECT (or EXPLAIN SELECT) statements are allowed, and this "
+                           f"one is of kind {kind}.", f"Query the views: {', '.join(VIEWS)}.")
     explain = re.match(r"^\s*explain\s+(analyze\s+)?", text, re.IGNORECASE)
     body = text[explain.end():] if explain else text
     tree = json.loads(con.execute("SELECT json_serialize_sql(?)", [body]).fetchone()[0])
@@ -103,20 +106,55 @@ def run_sql(con: Any, sql: str, timeout_s: float = DEFAULT_TIMEOUT_S,
             row_cap: int = DEFAULT_ROW_CAP, data_dir: str | None = None) -> SqlResult:
     import duckdb
 
+    if not 0 < timeout_s <= MAX_TIMEOUT_S:
+        raise OptionError(f"--timeout {timeout_s:g} is outside 0 … {MAX_TIMEOUT_S:g} s.",
+                          "Example: --timeout 60")
+    if not 1 <= row_cap <= MAX_ROW_CAP:
+        raise OptionError(f"--max-rows {row_cap} is outside 1 … {MAX_ROW_CAP}.",
+                          "Example: --max-rows 1000")
     statement = check(con, sql)
     lock_down(con, data_dir)
-    timer = threading.Timer(timeout_s, con.interrupt)
+    fired = threading.Event()
+
+    def stop() -> None:
+        fired.set()
+        con.interrupt()
+
+    cancelled = threading.Event()
+
+    def on_sigint(signum: int, frame: Any) -> None:
+        cancelled.set()
+        interrupts.pressed.set()
+        con.interrupt()
+
+    timer = threading.Timer(timeout_s, stop)
+    previous = _swap_sigint(on_sigint)
+    interrupts.check()
     timer.start()
     try:
         cur = con.execute(statement)
         columns = [d[0] for d in cur.description]
         rows = cur.fetchmany(row_cap + 1)
     except duckdb.InterruptException:
+        if cancelled.is_set() or not fired.is_set():  # Ctrl-C, not our time limit
+            raise KeyboardInterrupt from None
         raise QueryRefused(f"the query ran longer than {timeout_s:g} s and was stopped.",
-                           "Add a WHERE clause or a LIMIT.") from None
+                           "Add a WHERE clause or a LIMIT, or raise --timeout.") from None
     except duckdb.Error as exc:
         raise QueryRefused(f"the query failed: {str(exc).splitlines()[0]}",
                            f"Views: {', '.join(VIEWS)}; see DEVELOPERS.md for columns.") from None
     finally:
         timer.cancel()
+        _swap_sigint(previous)
+    if cancelled.is_set():
+        raise KeyboardInterrupt
     return SqlResult(columns, rows[:row_cap], len(rows) > row_cap)
+
+
+def _swap_sigint(handler: Any) -> Any:
+    """Install ``handler`` for SIGINT (main thread only); return the previous one."""
+    import signal
+
+    if handler is None or threading.current_thread() is not threading.main_thread():
+        return None
+    return signal.signal(signal.SIGINT, handler)
