@@ -118,3 +118,51 @@ def test_every_reader_refuses_a_missing_store_with_1(tmp_path: Path, command: st
                          shell=True, capture_output=True, text=True, cwd=tmp_path)
     assert res.returncode == 1 and "not" in res.stderr
     assert not (tmp_path / "none").exists()
+
+
+def test_ctrl_c_during_a_long_sql_query_exits_130(demo_store: Path) -> None:
+    import signal
+    import time
+
+    proc = subprocess.Popen([*EXE, "sql", "SELECT sum(a.range * b.range) FROM range(100000) a, "
+                             "range(100000) b", "--store", str(demo_store)],
+                            stderr=subprocess.PIPE, text=True)
+    time.sleep(2.0)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130 and "interrupted" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("args", [["--timeout", "0"], ["--timeout", "1e9"], ["--max-rows", "0"]])
+def test_sql_limits_are_bounded(demo_store: Path, args: list[str]) -> None:
+    res = run("sql", "SELECT 1", *args, "--store", str(demo_store))
+    assert res.returncode == 2
+
+
+@pytest.mark.parametrize("target", ["report.csv", "o.toml", "o.csv", "st/catalog.sqlite"])
+def test_report_never_overwrites_inputs_or_the_store(tmp_path: Path, target: str) -> None:
+    from tests.test_store import write_source
+
+    m = write_source(tmp_path, [("a", 1, "1.0")])
+    from strata13.compile import api
+
+    api.init_store(tmp_path / "st")
+    before = {p: p.read_bytes() for p in tmp_path.rglob("*") if p.is_file()
+              and not p.name.endswith(("-wal", "-shm", ".lock"))}
+    res = run("ingest", str(tmp_path / "o.csv"), "--map", str(m), "--store", str(tmp_path / "st"),
+              "--dry-run", "--report", str(tmp_path / target))
+    if target == "report.csv":
+        assert res.returncode == 0 and (tmp_path / "report.csv").exists()
+    else:
+        assert res.returncode == 2, res.stderr
+        after = {p: p.read_bytes() for p in before}
+        assert after == before
+
+
+def test_demo_refuses_to_replace_a_store_it_did_not_make(tmp_path: Path) -> None:
+    from strata13.compile import api
+
+    api.init_store(tmp_path / "compilation")
+    res = run("demo", "--out", str(tmp_path))
+    assert res.returncode == 1 and "not made by the demo" in res.stderr
+    assert api.open_store(tmp_path / "compilation").latest_version() == 1
