@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive import DEFAULT_TIME_SCALE, Settings
-from strata13.compile.errors import OptionError
+from strata13.compile.errors import NotAStoreError, OptionError, StoreError
 from strata13.compile.export import ExportResult
 from strata13.compile.ingest import IngestResult
 from strata13.compile.query import Filters, parse_interval
@@ -79,8 +79,17 @@ def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | P
         if is_store(path):
             store = Store.open(path)
         else:  # created only once the sheet has passed validation
+            if path.exists() and (not path.is_dir() or any(path.iterdir())):
+                raise NotAStoreError(f"{path} exists and is not a strata13 store.",
+                                     "Name a store, a new folder or an empty one with --store.")
+
             def create() -> Store:
-                return init_store(path)
+                try:
+                    return init_store(path)
+                except StoreError:
+                    if is_store(path):  # another ingest created it meanwhile: use it
+                        return Store.open(path)
+                    raise
 
             store = _DryStore()
     return _ingest.ingest(store, Path(sheet) if sheet else None, Path(mapping), dry_run=dry_run,

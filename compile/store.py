@@ -114,17 +114,27 @@ class Store:
     def create(cls, path: Path, settings_json: str, settings_hash: str,
                regions: list[tuple[str, str, str]] | None = None,
                made_by: str = "init") -> Store:
-        """Make a new store folder with every table, the settings and (optional) regions."""
+        """Make a new store folder with every table, the settings and (optional) regions.
+
+        The store is built in a hidden sibling folder and renamed into place, so a store
+        folder either does not exist or is complete; two processes creating the same store
+        at once get one store (the loser raises StoreError and can open the winner's).
+        """
+        import shutil
+        import uuid
+
         if is_store(path):
             raise StoreError(f"{path} is already a strata13 store.",
                              "Use it as it is, or choose another folder.")
         if path.exists() and (not path.is_dir() or any(path.iterdir())):
-            raise StoreError(f"{path} exists and is not empty.",
+            raise StoreError(f"{path} exists and is not an empty folder.",
                              "Choose a new or empty folder for the store.")
-        path.mkdir(parents=True, exist_ok=True)
-        store = cls(path)
-        (store.path / DATA).mkdir(exist_ok=True)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp = path.parent / f".{path.name}.creating-{uuid.uuid4().hex[:12]}"
+        tmp.mkdir()
         try:
+            store = cls(tmp)
+            (tmp / DATA).mkdir()
             with store.writer() as con:
                 con.execute("BEGIN")
                 for name, columns in TABLES.items():
@@ -138,16 +148,18 @@ class Store:
                 store._record_commit(con, "init", "", settings_hash,
                                      {"regions": len(regions or [])})
                 con.execute("COMMIT")
-            (store.path / MARKER).write_text(json.dumps(
+            (tmp / MARKER).write_text(json.dumps(
                 {"format": "strata13 store", "schema_version": SCHEMA_VERSION,
                  "catalog": CATALOG, "data": DATA + "/", "made_by": made_by}, indent=1) + "\n")
+            try:
+                os.rename(tmp, path)  # atomic; replaces an empty folder, fails on a full one
+            except OSError:
+                raise StoreError(f"{path} was created by another process meanwhile.",
+                                 "Run the command again; it will use that store.") from None
         except BaseException:
-            if not is_store(store.path):
-                import shutil
-
-                shutil.rmtree(store.path, ignore_errors=True)
+            shutil.rmtree(tmp, ignore_errors=True)
             raise
-        return store
+        return cls(path)
 
     # ------------------------------------------------------------ connections
     def _attach(self, con: duckdb.DuckDBPyConnection, read_only: bool) -> None:

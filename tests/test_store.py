@@ -332,3 +332,24 @@ def test_a_source_is_never_replaced_by_an_empty_one(tmp_path: Path) -> None:
     with pytest.raises(DomainError, match="no data rows"):
         api.ingest(store, None, tmp_path / "o.toml")
     assert tree_bytes(store.path) == before
+
+
+def test_two_first_ingests_into_a_new_folder_both_land(tmp_path: Path) -> None:
+    maps = []
+    for k in range(2):
+        d = tmp_path / f"src{k}"
+        d.mkdir()
+        m = write_source(d, [(f"s{k}-{i}", i, "1.0") for i in range(30)])
+        m.write_text(m.read_text().replace("obrien-delta-2019", f"first-{k}"))
+        maps.append(m)
+    target = tmp_path / "fresh"
+    ctx = mp.get_context("spawn")
+    procs = [ctx.Process(target=_ingest_worker, args=(str(target), str(m))) for m in maps]
+    for p in procs:
+        p.start()
+    for p in procs:
+        p.join(120)
+    assert all(p.exitcode == 0 for p in procs)
+    store = api.open_store(target)
+    assert {s["source_id"] for s in api.sources(store)} == {"first-0", "first-1"}
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".fresh.creating")]
