@@ -122,13 +122,21 @@ def region(store: Store, spec: str) -> Any:
         con.close()
 
 
+def _store_read_error(exc: Exception, store: Store) -> StoreError:
+    return StoreError(f"the store {store.path} could not be read ({str(exc).splitlines()[0]}).",
+                      "A data file may be missing or damaged; restore the store from a copy.")
+
+
 def query_arrow(store: Store, filters: Filters | None = None,
                 as_of: int | None = None) -> pa.Table:
+    import duckdb
     from strata13.compile.query import run
 
     con, _ = store.reader(as_of)
     try:
         return run(con, filters or Filters())
+    except (duckdb.IOException, duckdb.InvalidInputException) as exc:
+        raise _store_read_error(exc, store) from None
     finally:
         con.close()
 
@@ -141,6 +149,7 @@ def query(store: Store, filters: Filters | None = None, as_of: int | None = None
 
 def export(store: Store, out: str | Path, filters: Filters | None = None,
            as_of: int | None = None) -> ExportResult:
+    import duckdb
     from strata13.compile import export as _export
     from strata13.compile.ingest import settings_from_store
     from strata13.compile.outputs import output_dir
@@ -151,6 +160,8 @@ def export(store: Store, out: str | Path, filters: Filters | None = None,
         settings_hash = settings_from_store(store).hash()
         return _export.export(con, version, Path(out), filters or Filters(), settings_hash,
                               store.path)
+    except (duckdb.IOException, duckdb.InvalidInputException) as exc:
+        raise _store_read_error(exc, store) from None
     finally:
         con.close()
 

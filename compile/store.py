@@ -108,6 +108,20 @@ class Store:
             raise NotAStoreError(f"{path} {what}.",
                                  "Create one with `strata13 init --store DIR` or name an "
                                  "existing store with --store (or STRATA13_STORE).")
+        try:
+            marker = json.loads((path / MARKER).read_text(encoding="utf-8"))
+            ok = isinstance(marker, dict) and marker.get("format") == "strata13 store"
+        except (json.JSONDecodeError, UnicodeDecodeError, OSError):
+            ok = False
+        if not ok:
+            raise NotAStoreError(f"{path / MARKER} is damaged, so {path} cannot be trusted as a "
+                                 "store.", "Restore the folder from a copy.")
+        if str(marker.get("schema_version")) > SCHEMA_VERSION:
+            raise StoreError(f"{path} was written by a newer strata13 (schema "
+                             f"{marker.get('schema_version')}; this one reads {SCHEMA_VERSION}).",
+                             "Upgrade strata13 to use this store.")
+        if not (path / CATALOG).is_file():
+            raise StoreError(f"{path} has no catalog ({CATALOG}).", "Restore it from a copy.")
         return cls(path)
 
     @classmethod

@@ -782,23 +782,19 @@ def _complete(table: pa.Table) -> pa.Table:
 def _row_hashes(table: pa.Table) -> pa.Array:
     """A content hash per record over its reported columns, for re-ingest diffs.
 
-    Computed by DuckDB in one vectorised pass (no Python object per cell)."""
-    import duckdb
+    pandas' ``hash_pandas_object`` (SipHash-2-4 with pandas' fixed default key) over the
+    typed columns: a documented, deterministic content hash that does not depend on the
+    database engine's version. Vectorised; no Python object per numeric cell.
+    """
+    import pyarrow as pa
+    from pandas.util import hash_pandas_object
     from strata13.compile.derive import DERIVED_COLUMNS
 
     names = [c for c in table.column_names if c not in DERIVED_COLUMNS
              and c not in ("sheet", "sheet_row")]
-    # DuckDB's hash() over the typed columns (no casting to text); stable within the pinned
-    # DuckDB series — an upgrade that changed it would report a re-ingested source's records
-    # as changed once, never lose them
-    parts = ", ".join(f'"{c}"' for c in names) or "''"
-    con = duckdb.connect()
-    try:
-        con.register("t", table)
-        return con.execute(f"SELECT lpad(to_hex(hash({parts})), 16, '0') AS h "
-                           "FROM t").to_arrow_table().column(0).combine_chunks()
-    finally:
-        con.close()
+    df = table.select(names).to_pandas(types_mapper=_pandas_types)
+    h = hash_pandas_object(df, index=False).to_numpy()
+    return pa.array(h.view("int64"), type=pa.int64())
 
 
 def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:

@@ -57,7 +57,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("reported_paleolat", REAL), ("reported_paleolon", REAL),
     ("screen", TEXT),
     ("original_source_id", TEXT), ("run_id", TEXT), ("note", TEXT),
-    ("sheet", TEXT), ("sheet_row", INT), ("row_hash", TEXT),
+    ("sheet", TEXT), ("sheet_row", INT), ("row_hash", BIGINT),
 ]
 
 SOURCES = [
