@@ -54,12 +54,13 @@ def ingest(file: Annotated[Path, typer.Argument(help="The sheet (xlsx, ods, csv,
         render.message(f"dry run: {result.source_id} would commit {result.committed} records "
                        f"and quarantine {result.quarantined}; nothing was written.")
     elif result.unchanged:
-        render.message(f"{result.source_id}: unchanged (same file, mapping and settings); "
+        render.message(f"{result.source_id}: no record, row or source detail would change; "
                        "no new version.")
     else:
+        moved = f", {result.moved} moved to other rows" if result.moved else ""
         render.message(f"{result.source_id}: committed as version {result.version} — "
                        f"{result.added} added, {result.removed} removed, {result.changed} "
-                       "changed.")
+                       f"changed{moved}.")
     render.message(reconcile(result))
     if result.pending:
         render.note("pending (kept as reported, not yet harmonised or dated): " + ", ".join(

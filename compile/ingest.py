@@ -42,7 +42,8 @@ class IngestResult:
     added: int = 0
     removed: int = 0
     changed: int = 0
-    unchanged: bool = False  # identical re-ingest: no new version
+    moved: int = 0  # same content, another sheet row (provenance updated)
+    unchanged: bool = False  # nothing would change: no new version
     dry_run: bool = False
     pending: dict[str, int] = field(default_factory=dict)
 
@@ -104,13 +105,15 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
         result.pending = _pending_counts(records)
         result.committed = records.num_rows
         result.added, result.removed, result.changed = _diff(con, mapping.source_id, records)
-        old = con.execute("SELECT file_sha256, mapping_sha256, schema_version, (SELECT count(*) "
-                          "FROM lake.quarantine q WHERE q.source_id = s.source_id) FROM "
+        # nothing to commit when no record, no row position, no quarantined row and no
+        # source metadata would change (a mapping edited only in its comments, say)
+        old = con.execute(f"SELECT {', '.join(META)}, schema_version, (SELECT count(*) FROM "
+                          "lake.quarantine q WHERE q.source_id = s.source_id) FROM "
                           "lake.sources s WHERE source_id = ?", [mapping.source_id]).fetchone()
-        same_inputs = old is not None and tuple(old[:3]) == (
-            prepared.file_sha256, mapping.sha256, SCHEMA_VERSION)
-        if same_inputs and not (result.added or result.removed or result.changed) \
-                and old[3] == len(prepared.quarantine):
+        result.moved = _moved(con, mapping.source_id, records)
+        if old is not None and tuple(old[:-2]) == _meta(mapping.source) \
+                and old[-2] == SCHEMA_VERSION and old[-1] == len(prepared.quarantine) \
+                and not (result.added or result.removed or result.changed or result.moved):
             result.unchanged = True
             result.version = None
             return result
@@ -127,6 +130,27 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
                                    "the commit did not land; the store is unchanged"),
                 landed) from None
     return result
+
+
+META = ("citation", "year", "doi", "url", "kind", "lab", "republishes", "note")
+
+
+def _meta(source: dict[str, Any]) -> tuple[Any, ...]:
+    """The source's metadata as stored in the sources table."""
+    return tuple("|".join(source.get("republishes", [])) if k == "republishes"
+                 else source.get(k) for k in META)
+
+
+def _moved(con: Any, source_id: str, records: pa.Table) -> int:
+    """Records that kept their content but sit in another sheet row than before."""
+    con.register("incoming_rows", records.select(["record_id", "sheet", "sheet_row"]))
+    try:
+        return int(con.execute(
+            "SELECT count(*) FROM incoming_rows n JOIN (SELECT record_id, sheet, sheet_row FROM "
+            "lake.analyses WHERE source_id = ?) o USING (record_id) WHERE n.sheet <> o.sheet "
+            "OR n.sheet_row <> o.sheet_row", [source_id]).fetchone()[0])
+    finally:
+        con.unregister("incoming_rows")
 
 
 def _settings(con: Any) -> Settings:
@@ -181,7 +205,7 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
     sources = pa.Table.from_pylist([{
         "source_id": sid, "citation": src.get("citation"), "year": src.get("year"),
         "doi": src.get("doi"), "url": src.get("url"), "kind": src.get("kind"),
-        "lab": src.get("lab"), "republishes": "|".join(src.get("republishes", [])),
+        "lab": src.get("lab"), "republishes": _meta(src)[META.index("republishes")],
         "note": src.get("note"), "file_name": m.table.file.name,
         "file_sha256": prepared.file_sha256, "mapping_sha256": m.sha256,
         "n_records": records.num_rows, "ingested_version": version,
@@ -203,7 +227,7 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
         if cid not in known:
             con.execute("INSERT INTO lake.chains VALUES (?, ?)", [cid, steps])
     summary = {"source": sid, "records": records.num_rows, "added": result.added,
-               "removed": result.removed, "changed": result.changed,
+               "removed": result.removed, "changed": result.changed, "moved": result.moved,
                "quarantined": result.quarantined}
     got = store._record_commit(con, "ingest", sid, settings.hash(), summary)
     con.execute("COMMIT")

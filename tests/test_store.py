@@ -353,3 +353,15 @@ def test_two_first_ingests_into_a_new_folder_both_land(tmp_path: Path) -> None:
     store = api.open_store(target)
     assert {s["source_id"] for s in api.sources(store)} == {"first-0", "first-1"}
     assert not [p for p in tmp_path.iterdir() if p.name.startswith(".fresh.creating")]
+
+
+def test_mapping_comment_edit_makes_no_version_but_a_citation_edit_does(tmp_path: Path) -> None:
+    m = write_source(tmp_path, [("a", 1, "1.0")])
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, m)
+    m.write_text(m.read_text() + "\n# a comment only\n")
+    assert api.ingest(store, None, m).unchanged
+    m.write_text(m.read_text().replace("(invented)", "(invented, corrected)"))
+    r = api.ingest(store, None, m)
+    assert not r.unchanged and (r.added, r.removed, r.changed) == (0, 0, 0)
+    assert "corrected" in api.sources(store)[0]["citation"]
