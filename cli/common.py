@@ -65,6 +65,6 @@ def build_filters(store: Any, interval: str | None, region: str | None,
         frame=frame,
         lithology=check_vocab(lithology or [], "lithology", "--lithology"),
         component=check_vocab(component or [], "component", "--component"),
-        source=list(source or []),
+        source=api.check_sources(store, list(source or [])),
         screened=screened,
     )

@@ -47,7 +47,7 @@ def query(interval: IntervalOpt = None,
         render.message("no records match.")
     render.arrow_out(tbl, fmt, out)
     if tbl.num_rows:
-        render.note(f"{tbl.num_rows} records")
+        render.note(render.plural(tbl.num_rows, "record"))
 
 
 def sql(statement: Annotated[str, typer.Argument(help="One SELECT (or EXPLAIN) over the "

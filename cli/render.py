@@ -76,7 +76,10 @@ def table(columns: Sequence[str], rows: Sequence[Sequence[Any]], fmt: str = "tab
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow(columns)
-        w.writerows([[_cell(v) for v in r] for r in rows])
+        from strata13.compile.export import neutralise
+
+        w.writerows([[neutralise(v) if isinstance(v, str) else _cell(v) for v in r]
+                     for r in rows])
         text = buf.getvalue()
     else:
         stream = sys.stderr if stderr else sys.stdout
@@ -130,9 +133,19 @@ def progress(enabled: bool = True) -> Iterator[Any]:
         yield lambda msg: status.update(msg)
 
 
+REPORT_LINES = 200
+
+
 def report(rep: Any, limit_info: bool = False) -> None:
-    """The validation report on stderr: errors and warnings, info lines counted."""
+    """The validation report on stderr: errors and warnings (the first 200; --report PATH
+    writes them all), info lines counted by the caller."""
     items = [i for i in rep.sorted() if limit_info is False or i.severity != "info"]
     cols = ["severity", "sheet", "cell", "column", "value", "rule", "hint"]
-    table(cols, [[getattr(i, c) for c in cols] for i in items], "table", None,
+    table(cols, [[getattr(i, c) for c in cols] for i in items[:REPORT_LINES]], "table", None,
           title="validation report", stderr=True)
+    if len(items) > REPORT_LINES:
+        message(f"… and {len(items) - REPORT_LINES} more lines; --report PATH writes them all.")
+
+
+def plural(n: int, word: str) -> str:
+    return f"{n} {word}" + ("" if n == 1 else "s")

@@ -127,6 +127,22 @@ def _store_read_error(exc: Exception, store: Store) -> StoreError:
                       "A data file may be missing or damaged; restore the store from a copy.")
 
 
+def check_sources(store: Store, ids: list[str]) -> list[str]:
+    """Refuse --source values that name no source of the store, with a hint."""
+    if not ids:
+        return ids
+    import difflib
+
+    known = [s["source_id"] for s in sources(store)]
+    for sid in ids:
+        if sid not in known:
+            hit = difflib.get_close_matches(sid, known, n=1)
+            raise OptionError(f"--source {sid!r} is not a source of this store."
+                              + (f" Did you mean {hit[0]!r}?" if hit else ""),
+                              "See `strata13 sources`.")
+    return ids
+
+
 def query_arrow(store: Store, filters: Filters | None = None,
                 as_of: int | None = None) -> pa.Table:
     import duckdb

@@ -266,6 +266,12 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
             kept_numbers.append(n)
         else:
             blank += 1
+    by_letter = {col_letter(j): headers_raw[j] for j in keep}
+    for k, issue in enumerate(issues):  # name the column of cell findings made before the header
+        letter = "".join(ch for ch in issue.cell if ch.isalpha())
+        if not issue.column and letter in by_letter and issue.rule != "title row":
+            issues[k] = Issue(issue.severity, issue.sheet, issue.cell, by_letter[letter] or "",
+                              issue.value, issue.rule, issue.hint)
     cols = {f"c{j}": pa.array([r[j] for r in kept_rows], type=pa.string())
             for j in range(len(headers))}
     table = pa.table(cols) if cols else pa.table({})

@@ -4,7 +4,10 @@ Boundary rule: a point on a region's edge is inside (closed sets), in the SQL bo
 prefilter and in the exact shapely test alike. Longitudes are degrees east; records are
 stored in −180…180. A bbox whose west edge is greater than its east edge
 (``bbox:170,-10,-170,10``) crosses the antimeridian; so does a GeoJSON polygon drawn with
-longitudes beyond 180 (``[175, …], [185, …]``) or split into parts at ±180 (RFC 7946).
+longitudes beyond 180 (``[175, …], [185, …]``), split into parts at ±180 (RFC 7946), or a
+ring with a jump of more than 180° between two vertices (``170 → −170``), which is read
+the short way across the antimeridian. A region cannot be wider than 180° of longitude
+in one ring.
 """
 
 from __future__ import annotations
@@ -53,6 +56,29 @@ class Region:
         return hit
 
 
+def _unwrap_ring(ring: list[Any]) -> list[Any]:
+    """A ring that jumps more than 180° in longitude between two vertices crosses the
+    antimeridian: shift its western longitudes by +360 so it is drawn the short way."""
+    try:
+        lons = [float(p[0]) for p in ring]
+    except (TypeError, ValueError, IndexError):
+        return ring
+    if not any(abs(b - a) > 180 for a, b in zip(lons, lons[1:], strict=False)):
+        return ring
+    return [[float(p[0]) + 360 if float(p[0]) < 0 else float(p[0]), *p[1:]] for p in ring]
+
+
+def _unwrap(geom: dict[str, Any]) -> dict[str, Any]:
+    coords = geom.get("coordinates")
+    if not isinstance(coords, list):
+        return geom
+    if geom.get("type") == "Polygon":
+        return {**geom, "coordinates": [_unwrap_ring(r) for r in coords]}
+    if geom.get("type") == "MultiPolygon":
+        return {**geom, "coordinates": [[_unwrap_ring(r) for r in poly] for poly in coords]}
+    return geom
+
+
 def _box_geojson(w: float, s: float, e: float, n: float) -> dict[str, Any]:
     if w > e:
         e += 360.0
@@ -98,6 +124,7 @@ def from_geojson(doc: Any, name: str, where: str) -> Region:
         if not isinstance(g, dict) or g.get("type") not in ("Polygon", "MultiPolygon"):
             raise ConfigError(f"{where}: only Polygon and MultiPolygon geometries make a region.",
                               "Draw the region as a polygon.")
+        g = _unwrap(g)
         try:
             shp = shapely.geometry.shape(g)
         except Exception as exc:  # shapely raises several types for bad coordinates
@@ -108,7 +135,7 @@ def from_geojson(doc: Any, name: str, where: str) -> Region:
                               "Fix self-intersections; close each ring.")
         polys.append(shp)
     if not polys:
-        raise ConfigError(f"{where} holds no polygon.", "")
+        raise ConfigError(f"{where} holds no polygon.", "A region is a Polygon or MultiPolygon.")
     union = shapely.union_all(polys)
     geo = shapely.geometry.mapping(union)
     geo = json.loads(json.dumps(geo))  # tuples -> lists
@@ -122,7 +149,8 @@ def load_regions_file(path: Path) -> list[tuple[str, str]]:
     try:
         doc = json.loads(path.read_text(encoding="utf-8"))
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).", "") from None
+        raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).",
+                          "Check the file with a GeoJSON validator.") from None
     if not isinstance(doc, dict) or doc.get("type") != "FeatureCollection":
         raise ConfigError(f"{path.name} must be a GeoJSON FeatureCollection.",
                           "Each feature a polygon with a 'name' property.")
@@ -130,7 +158,8 @@ def load_regions_file(path: Path) -> list[tuple[str, str]]:
     for k, feat in enumerate(doc.get("features", [])):
         name = (feat.get("properties") or {}).get("name")
         if not isinstance(name, str) or not name.strip():
-            raise ConfigError(f"{path.name}: feature {k + 1} has no 'name' property.", "")
+            raise ConfigError(f"{path.name}: feature {k + 1} has no 'name' property.",
+                              "Give each feature properties: {\"name\": \"…\"}.")
         region = from_geojson(feat, name, f"{path.name} feature {name!r}")
         out.append((name, json.dumps(region.geojson, sort_keys=True)))
     names = [n for n, _ in out]
@@ -140,19 +169,27 @@ def load_regions_file(path: Path) -> list[tuple[str, str]]:
 
 
 def resolve_region(spec: str, named: dict[str, str]) -> Region:
-    """``bbox:W,S,E,N``, a GeoJSON file path, or a name from the store's regions."""
+    """``bbox:W,S,E,N``, a GeoJSON file path, or a name from the store's regions (names
+    compare without regard to case)."""
+    if not spec.strip():
+        raise OptionError("--region is empty.", "Give a region name, a GeoJSON file or "
+                          "bbox:W,S,E,N.")
     if spec.startswith("bbox:"):
         return parse_bbox(spec)
-    if spec in named:
-        return from_geojson(json.loads(named[spec]), spec, f"region {spec!r}")
+    by_case = {k.casefold(): k for k in named}
+    if spec.casefold() in by_case:
+        name = by_case[spec.casefold()]
+        return from_geojson(json.loads(named[name]), name, f"region {name!r}")
     path = Path(spec)
     if path.suffix.lower() in (".json", ".geojson") or path.exists():
         if not path.is_file():
-            raise ConfigError(f"region file {spec} does not exist.", "Check --region.")
+            raise ConfigError(f"region file {spec} " + ("is a folder." if path.is_dir() else
+                                                        "does not exist."), "Check --region.")
         try:
             doc = json.loads(path.read_text(encoding="utf-8"))
         except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-            raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).", "") from None
+            raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).",
+                              "Check the file with a GeoJSON validator.") from None
         return from_geojson(doc, path.name, path.name)
     import difflib
 

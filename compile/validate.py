@@ -220,7 +220,10 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         else:
             parsed = parse_numbers(text, ctx, spec.decimal)
             report.extend(parsed.issues)
-            rows.mark(np.nonzero(parsed.bad)[0], "bad number", letter)
+            rules = {i.cell: i.rule for i in parsed.issues if i.severity == "error"}
+            for i in np.nonzero(parsed.bad)[0]:
+                cell = f"{letter}{int(raw.row_numbers[i])}"
+                rows.mark(np.array([i]), rules.get(cell, "not a number"), letter)
             unit = _unit_for(c, header_unit, raw, letter, report)
             values = parsed.values
             if unit and f.unit_kind:
@@ -398,7 +401,15 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         out[name] = _to_arrow(out[name], types[name], n)
     frame = pa.table(out)
 
-    _schema_check(frame, rows, letters)
+    col_index = {letter: j for j, letter in enumerate(raw.letters)}
+
+    def raw_text(stored: str, i: int) -> str | None:
+        """The cell as the sheet wrote it, for report lines about parsed values."""
+        letter = letters.get(stored, ("", ""))[0]
+        j = col_index.get(letter)
+        return raw.column(j)[i].as_py() if j is not None else None
+
+    _schema_check(frame, rows, letters, raw_text)
     _superposition(frame, rows, letters)
     _plausibility(frame, raw, report, letters)
 
@@ -641,7 +652,8 @@ def _check_range(b: dict[str, Any], mapping: Mapping) -> None:
         b["lon"] -= 360
 
 
-def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
+def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]],
+                  raw_text: Any = lambda col, i: None) -> None:
     """Run the pandera schema lazily and turn its failure cases into cell errors."""
     import pandera.errors as pe
     import pyarrow as pa
@@ -679,7 +691,9 @@ def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, st
                 rule, hint = "plausible range", f"outside {check}; check the unit and mapping"
             else:
                 rule, hint = check, f"failed the {check} check"
-            rows.error(int(idx), letter, header, r.get("failure_case"), rule, hint)
+            shown = raw_text(str(col), int(idx))
+            rows.error(int(idx), letter, header,
+                       shown if shown is not None else r.get("failure_case"), rule, hint)
 
 
 TEXT_CHECKED = ("record_id", "source_id", "section_id", "sample_id")

@@ -166,3 +166,21 @@ def test_demo_refuses_to_replace_a_store_it_did_not_make(tmp_path: Path) -> None
     res = run("demo", "--out", str(tmp_path))
     assert res.returncode == 1 and "not made by the demo" in res.stderr
     assert api.open_store(tmp_path / "compilation").latest_version() == 1
+
+
+def test_unknown_source_is_refused_with_a_hint(demo_store: Path) -> None:
+    res = run("query", "--source", "quillar-2012", "--store", str(demo_store))
+    assert res.returncode == 2 and "quillar-2011" in res.stderr
+
+
+def test_query_csv_neutralises_formula_text(tmp_path: Path) -> None:
+    from strata13.compile import api
+
+    from tests.test_store import write_source
+
+    (tmp_path / "o.csv").write_text("Sample,Height,d13C\n=HYPERLINK(1),1,-3.2\n", encoding="utf-8")
+    m = write_source(tmp_path, [])
+    (tmp_path / "o.csv").write_text("Sample,Height,d13C\n=HYPERLINK(1),1,-3.2\n", encoding="utf-8")
+    api.ingest(tmp_path / "st", None, m)
+    res = run("query", "--format", "csv", "--store", str(tmp_path / "st"))
+    assert "'=HYPERLINK(1)" in res.stdout and ",-3.2," in res.stdout

@@ -73,3 +73,26 @@ def test_random_boxes_agree_with_shapely(w: float, s: float, width: float, heigh
 def test_bad_bbox_is_an_option_error(bad: str) -> None:
     with pytest.raises(OptionError):
         parse_bbox(bad)
+
+
+def test_ring_jumping_the_antimeridian_is_read_the_short_way() -> None:
+    geo = {"type": "Polygon", "coordinates": [[[170, -10], [-170, -10], [-170, 10], [170, 10],
+                                               [170, -10]]]}
+    region = from_geojson(geo, "pacific", "test")
+    lon = np.array([175.0, -175.0, 180.0, 0.0, 100.0, -100.0])
+    lat = np.zeros(len(lon))
+    # the same polygon drawn with longitudes beyond 180, tested with shapely directly
+    box = shapely.box(170, -10, 190, 10)
+    expected = shapely.intersects_xy(box, lon, lat) | shapely.intersects_xy(box, lon + 360, lat)
+    assert region.contains(lon, lat).tolist() == expected.tolist() == [True, True, True, False,
+                                                                        False, False]
+    assert sql_hits(region, lon, lat).tolist() == expected.tolist()
+
+
+def test_named_regions_ignore_case_and_empty_is_refused() -> None:
+    from strata13.compile.regions import resolve_region
+
+    named = {"Northern Shelf": '{"type": "Polygon", "coordinates": [[[0,0],[1,0],[1,1],[0,0]]]}'}
+    assert resolve_region("northern shelf", named).name == "Northern Shelf"
+    with pytest.raises(OptionError):
+        resolve_region("  ", named)
