@@ -97,6 +97,9 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     if create is not None:
         store = create()
     with store.writer() as con:
+        # one transaction from here: schema migration, diff and commit see one state
+        con.execute("BEGIN")
+        store.migrate(con)
         # settings are read under the lock, so the commit uses exactly what it derived with
         settings = _settings(con)
         step("deriving harmonised values and ages")
@@ -116,6 +119,7 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
                 and not (result.added or result.removed or result.changed or result.moved):
             result.unchanged = True
             result.version = None
+            con.execute("ROLLBACK")
             return result
         before = store._latest(con)
         step("committing")
@@ -197,7 +201,6 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
 
     m = prepared.mapping
     sid = m.source_id
-    con.execute("BEGIN")
     for table in PER_SOURCE:
         con.execute(f"DELETE FROM lake.{table} WHERE source_id = ?", [sid])
     version = store._latest(con) + 1

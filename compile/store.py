@@ -247,13 +247,16 @@ class Store:
                              f"{latest}.", "See `strata13 history`.")
         try:
             for name in READ_VIEWS:
-                cols = "*"
-                if name == "analyses":
-                    cols = ", ".join(f'"{c}"' for c in RECORDS_COLUMNS)
-                    con.execute(f"CREATE TEMP VIEW records AS SELECT {cols} FROM "
-                                f"lake.analyses AT (VERSION => {int(v)})")
-                    continue
-                con.execute(f"CREATE TEMP VIEW {name} AS SELECT {cols} FROM lake.{name} "
+                # a version written before a column existed shows it as NULL: the views
+                # always have today's columns, so old versions stay readable
+                have = {r[0] for r in con.execute(
+                    f"DESCRIBE SELECT * FROM lake.{name} AT (VERSION => {int(v)})").fetchall()}
+                wanted = RECORDS_COLUMNS if name == "analyses" else [c for c, _ in TABLES[name]]
+                types = dict(TABLES[name])
+                cols = ", ".join(f'"{c}"' if c in have else f'CAST(NULL AS {types[c]}) AS "{c}"'
+                                 for c in wanted)
+                view = "records" if name == "analyses" else name
+                con.execute(f"CREATE TEMP VIEW {view} AS SELECT {cols} FROM lake.{name} "
                             f"AT (VERSION => {int(v)})")
         except duckdb.Error as exc:
             con.close()
@@ -284,6 +287,23 @@ class Store:
             return self._latest(con)
         finally:
             con.close()
+
+    def migrate(self, con: duckdb.DuckDBPyConnection) -> list[str]:
+        """Add the columns today's schema has and the store's tables lack (inside the
+        caller's transaction, under the writer lock). Returns what was added."""
+        added = []
+        for name, columns in TABLES.items():
+            have = {r[0]: r[1] for r in con.execute(f"DESCRIBE lake.{name}").fetchall()}
+            for col, sqltype in columns:
+                if col in have and have[col] != sqltype:
+                    raise StoreError(f"{self.path}: column {name}.{col} is {have[col]} but this "
+                                     f"strata13 writes {sqltype}.",
+                                     "The store was made by an incompatible development "
+                                     "version; export what you need and build a new store.")
+                if col not in have:
+                    con.execute(f'ALTER TABLE lake.{name} ADD COLUMN "{col}" {sqltype}')
+                    added.append(f"{name}.{col}")
+        return added
 
     def add_parquet(self, con: duckdb.DuckDBPyConnection, table: str, data: Any) -> None:
         """Add an Arrow table to ``table`` inside the open transaction.

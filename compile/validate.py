@@ -468,6 +468,7 @@ def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arr
     import duckdb
     import numpy as np
     import pyarrow as pa
+    import pyarrow.compute as pc
 
     n = len(replicate)
     t = pa.table({"sec": _strings(sec), "sample": _strings(sample),
@@ -476,17 +477,24 @@ def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arr
     con = duckdb.connect()
     try:
         con.register("k", t)
-        out = con.execute(
-            "WITH ids AS (SELECT i, CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
+        ids = con.execute(
+            "SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
             "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
-            "END AS id FROM k) SELECT id, CASE WHEN id IS NULL THEN -1 ELSE "
-            "min(i) OVER (PARTITION BY id) END AS first FROM ids ORDER BY i",
-            [sid]).to_arrow_table()
+            "END AS id FROM k ORDER BY i", [sid]).to_arrow_table().column("id").combine_chunks()
     finally:
         con.close()
-    first = out.column("first").to_numpy(zero_copy_only=False)
-    first = np.where(first == np.arange(n), -1, first)
-    return out.column("id").combine_chunks(), first
+    first = np.full(n, -1, dtype=np.int64)
+    codes = pc.fill_null(ids.dictionary_encode().indices, -1).to_numpy(zero_copy_only=False)
+    counts = np.bincount(codes[codes >= 0]) if n else np.zeros(0, dtype=np.int64)
+    if len(counts) and counts.max() > 1:  # rare: find each repeat's first occurrence
+        _, first_index = np.unique(codes, return_index=True)
+        by_code = np.full(len(counts) + 1, -1, dtype=np.int64)
+        uniq = np.unique(codes)
+        by_code[uniq + 1] = first_index
+        first_of = by_code[codes + 1]
+        repeat = (codes >= 0) & (first_of != np.arange(n))
+        first[repeat] = first_of[repeat]
+    return ids, first
 
 
 def _const(value: Any, n: int, sqltype: str) -> pa.Array:
@@ -667,12 +675,16 @@ def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, st
     sub = frame.select(keep)
     sub = pa.table({c: (sub.column(c).dictionary_encode() if pa.types.is_string(sub.column(c).type)
                         else sub.column(c)) for c in keep})
-    df = sub.to_pandas(types_mapper=_pandas_types)
     schema = schema.select_columns(keep) if keep else schema.select_columns([])
-    try:
-        schema.validate(df, lazy=True)
-    except pe.SchemaErrors as err:
-        fc = err.failure_cases
+    failures = []
+    for start in range(0, max(sub.num_rows, 1), SCHEMA_CHUNK):  # bounded memory
+        df = sub.slice(start, SCHEMA_CHUNK).to_pandas(types_mapper=_pandas_types)
+        df.index = df.index + start
+        try:
+            schema.validate(df, lazy=True)
+        except pe.SchemaErrors as err:
+            failures.append(err.failure_cases)
+    for fc in failures:
         for _, r in fc.iterrows():
             idx = r.get("index")
             col = r.get("column")
@@ -697,6 +709,7 @@ def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, st
 
 
 TEXT_CHECKED = ("record_id", "source_id", "section_id", "sample_id")
+SCHEMA_CHUNK = 250_000  # rows per pandera pass
 
 
 def _pandas_types(t: Any) -> Any:
@@ -796,19 +809,38 @@ def _complete(table: pa.Table) -> pa.Table:
 def _row_hashes(table: pa.Table) -> pa.Array:
     """A content hash per record over its reported columns, for re-ingest diffs.
 
-    pandas' ``hash_pandas_object`` (SipHash-2-4 with pandas' fixed default key) over the
-    typed columns: a documented, deterministic content hash that does not depend on the
-    database engine's version. Vectorised; no Python object per numeric cell.
+    Each filled cell contributes hash(value) × K(column), summed modulo 2**64; an empty
+    cell contributes nothing, so a row's hash does not depend on which columns other rows
+    fill, and all-empty columns cost nothing. hash and K are pandas' ``hash_array``
+    (SipHash-2-4 with pandas' fixed default key; numbers as float64, text as UTF-8) — a
+    documented, engine-independent content hash. One column in memory at a time.
     """
+    import numpy as np
     import pyarrow as pa
-    from pandas.util import hash_pandas_object
+    import pyarrow.compute as pc
+    from pandas.util import hash_array
     from strata13.compile.derive import DERIVED_COLUMNS
 
-    names = [c for c in table.column_names if c not in DERIVED_COLUMNS
-             and c not in ("sheet", "sheet_row")]
-    df = table.select(names).to_pandas(types_mapper=_pandas_types)
-    h = hash_pandas_object(df, index=False).to_numpy()
-    return pa.array(h.view("int64"), type=pa.int64())
+    n = table.num_rows
+    h = np.zeros(n, dtype=np.uint64)
+    for name in table.column_names:
+        col = table.column(name)
+        if name in DERIVED_COLUMNS or name in ("sheet", "sheet_row") or col.null_count == n:
+            continue
+        k = hash_array(np.array([name], dtype=object))[0] | np.uint64(1)
+        if pa.types.is_string(col.type):  # hash each distinct text once, spread by index
+            d = col.combine_chunks().dictionary_encode()
+            per_value = hash_array(d.dictionary.to_numpy(zero_copy_only=False),
+                                   categorize=False)
+            idx = pc.fill_null(d.indices, -1).to_numpy(zero_copy_only=False)
+            v = np.where(idx >= 0, per_value[np.maximum(idx, 0)], 0).astype(np.uint64)
+        else:
+            values = col.cast(pa.float64())
+            v = hash_array(values.to_numpy(zero_copy_only=False))
+            v[pc.is_null(values).to_numpy(zero_copy_only=False)] = 0
+        with np.errstate(over="ignore"):
+            h += v * k
+    return pa.array(h.view(np.int64), type=pa.int64())
 
 
 def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:

@@ -39,7 +39,8 @@ def _conc_columns() -> list[tuple[str, str]]:
 
 
 ANALYSES: list[tuple[str, str]] = [
-    ("record_id", TEXT), ("source_id", TEXT), ("locality_id", TEXT), ("section_id", TEXT),
+    ("record_id", TEXT), ("source_id", TEXT), ("locality_id", TEXT), ("locality_name", TEXT),
+    ("section_id", TEXT),
     ("sample_id", TEXT), ("replicate", INT), ("n_replicates", INT),
     ("lat", REAL), ("lon", REAL),
     ("position_m", REAL), ("top_m", REAL), ("base_m", REAL), ("position_kind", TEXT),

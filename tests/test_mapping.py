@@ -108,3 +108,15 @@ def test_interval_top_below_base_is_refused(tmp_path: Path) -> None:
                           '"Base" = { field = "position_base", unit = "m" }'), encoding="utf-8")
     r = api.ingest(tmp_path / "st", None, m, dry_run=True, keep_valid=True)
     assert [(i.cell, i.rule) for i in r.report.errors] == [("B3", "interval order")]
+
+
+def test_every_field_has_a_stored_column_and_is_documented() -> None:
+    from strata13.schemas.fields import BASIS_KEYS, FIELDS, SCALE_KEYS
+    from strata13.schemas.records import ANALYSES
+
+    stored = {c for c, _ in ANALYSES}
+    developers = (Path(__file__).parents[1] / "DEVELOPERS.md").read_text(encoding="utf-8")
+    for name in [f.stored for f in FIELDS] + list(SCALE_KEYS) + list(BASIS_KEYS):
+        assert name in stored, name  # nothing a mapping feeds is silently dropped
+    for name in [f.name for f in FIELDS] + list(SCALE_KEYS) + list(BASIS_KEYS):
+        assert f"`{name}`" in developers, name

@@ -365,3 +365,15 @@ def test_mapping_comment_edit_makes_no_version_but_a_citation_edit_does(tmp_path
     r = api.ingest(store, None, m)
     assert not r.unchanged and (r.added, r.removed, r.changed) == (0, 0, 0)
     assert "corrected" in api.sources(store)[0]["citation"]
+
+
+def test_a_store_from_before_a_new_column_reads_and_migrates(tmp_path: Path) -> None:
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0")]))
+    with store.writer() as con:  # make it look like a store written before the column existed
+        con.execute("ALTER TABLE lake.analyses DROP COLUMN locality_name")
+    old = store.latest_version()
+    assert api.sql(store, "SELECT count(locality_name) FROM records").rows == [(0,)]
+    api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "2.0")]))
+    assert api.sql(store, "SELECT count(*) FROM records").rows == [(2,)]
+    assert len(api.query(store, as_of=old)) == 1  # the older version still reads
