@@ -13,22 +13,37 @@ import json
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.checks import (
+    RowErrors,
+    interval_order,
+    plausibility,
+    schema_check,
+    superposition,
+)
 from strata13.compile.cleaning import CellContext, parse_coordinate, parse_numbers
 from strata13.compile.errors import ConfigError
 from strata13.compile.mapping import ColumnMap, Mapping, TableSpec
 from strata13.compile.readers import RawTable, norm_header, read_table, strip_unit
 from strata13.compile.report import Issue, Report
+from strata13.compile.tables import (
+    complete,
+    const,
+    localities_table,
+    record_ids,
+    row_hashes,
+    samples_table,
+    sections_table,
+    to_arrow,
+)
 from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
-    CONC_FIELDS,
     DELTA_FIELDS,
     DELTA_SCALES,
-    FIELDS,
     SCALE_KEYS,
     UNITS,
 )
-from strata13.schemas.records import ANALYSES, LOCALITIES, SAMPLES, SECTIONS
+from strata13.schemas.records import ANALYSES
 from strata13.schemas.vocabularies import vocabulary
 
 if TYPE_CHECKING:
@@ -54,42 +69,12 @@ class Prepared:
         return not self.report.errors
 
 
-def record_id(source: str, section: str, sample: str, replicate: int) -> str:
-    """Stable id: a hash of (source, section, sample, replicate)."""
-    key = "\x1f".join([source, section, sample, str(replicate)])
-    return hashlib.sha256(key.encode("utf-8")).hexdigest()[:20]
-
-
 def _file_sha(path: Any) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         for block in iter(lambda: fh.read(1 << 20), b""):
             h.update(block)
     return h.hexdigest()
-
-
-class _Rows:
-    """Per-row error bookkeeping shared by the checks."""
-
-    def __init__(self, raw: RawTable, report: Report) -> None:
-        import numpy as np
-
-        self.raw = raw
-        self.report = report
-        self.bad = np.zeros(raw.n_rows, dtype=bool)
-        self.reasons: dict[int, list[str]] = {}
-
-    def error(self, i: int, letter: str, column: str, value: Any, rule: str, hint: str) -> None:
-        cell = f"{letter}{int(self.raw.row_numbers[i])}"
-        self.report.add(Issue("error", self.raw.sheet, cell, column, _s(value), rule, hint))
-        self.bad[i] = True
-        self.reasons.setdefault(i, []).append(f"{cell}: {rule}")
-
-    def mark(self, indices: np.ndarray, rule: str, letter: str) -> None:
-        for i in indices:
-            self.bad[int(i)] = True
-            cell = f"{letter}{int(self.raw.row_numbers[int(i)])}"
-            self.reasons.setdefault(int(i), []).append(f"{cell}: {rule}")
 
 
 def _s(value: Any) -> str:
@@ -185,7 +170,7 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     report.extend(raw.issues)
     report.rows_read = raw.n_rows + raw.blank_rows + raw.rejected_rows
     report.rows_blank = raw.blank_rows
-    rows = _Rows(raw, report)
+    rows = RowErrors(raw, report)
     n = raw.n_rows
     for issue in raw.issues:  # reader errors on a data cell reject that row
         digits = "".join(ch for ch in issue.cell if ch.isdigit())
@@ -362,12 +347,12 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
             rows.error(int(i), letter, header, scale[i], "unknown scale",
                        f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
 
-    _interval_order(cols, column, rows, letters, section_blocks, sec)
+    interval_order(cols, column, rows, letters, section_blocks, sec)
     def text(name: str, fallback: Any) -> Any:
         v = cols.get(name)
         return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback
 
-    ids, first = _record_ids(sid, text("section_id", sec), text("sample_id", sample), replicate)
+    ids, first = record_ids(sid, text("section_id", sec), text("sample_id", sample), replicate)
     for i in np.flatnonzero(first >= 0):
         rows.error(int(i), letter_s, header_s, sample[i], "duplicate record",
                    f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is already "
@@ -385,20 +370,20 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         elif name in cols:
             v = cols[name]
             out[name] = v if isinstance(v, (pa.Array, pa.ChunkedArray, np.ndarray)) \
-                else _const(v, n, types[name])
+                else const(v, n, types[name])
     out["record_id"] = ids
-    out["source_id"] = _const(sid, n, "VARCHAR")
+    out["source_id"] = const(sid, n, "VARCHAR")
     out["replicate"] = replicate
-    out["sheet"] = _const(raw.sheet, n, "VARCHAR")
+    out["sheet"] = const(raw.sheet, n, "VARCHAR")
     out["sheet_row"] = raw.row_numbers
     if "position_kind" not in cols:
         kinds = {k: v.get("position_kind") for k, v in section_blocks.items()}
         if len(set(kinds.values())) <= 1:
-            out["position_kind"] = _const(next(iter(kinds.values()), None), n, "VARCHAR")
+            out["position_kind"] = const(next(iter(kinds.values()), None), n, "VARCHAR")
         else:
             out["position_kind"] = pd.Series(sec, dtype=object).map(kinds).to_numpy()
     for name in list(out):
-        out[name] = _to_arrow(out[name], types[name], n)
+        out[name] = to_arrow(out[name], types[name], n)
     frame = pa.table(out)
 
     col_index = {letter: j for j, letter in enumerate(raw.letters)}
@@ -409,9 +394,9 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         j = col_index.get(letter)
         return raw.column(j)[i].as_py() if j is not None else None
 
-    _schema_check(frame, rows, letters, raw_text)
-    _superposition(frame, rows, letters)
-    _plausibility(frame, raw, report, letters)
+    schema_check(frame, rows, letters, raw_text)
+    superposition(frame, rows, letters)
+    plausibility(frame, raw, report, letters)
 
     valid = ~rows.bad
     report.rows_valid = int(valid.sum())
@@ -429,119 +414,13 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                                "cells_json": json.dumps({"line": issue.value},
                                                         ensure_ascii=False),
                                "reasons": f"{issue.cell}: row shape"})
-    records = _complete(frame if valid.all() else frame.filter(pa.array(valid)))
-    records = records.append_column("row_hash", _row_hashes(records)) \
+    records = complete(frame if valid.all() else frame.filter(pa.array(valid)))
+    records = records.append_column("row_hash", row_hashes(records)) \
         if "row_hash" not in records.column_names else records
     return Prepared(mapping, _file_sha(spec.file), records,
-                    _localities_table(sid, locality_blocks),
-                    _sections_table(sid, section_blocks, sec, loc),
-                    _samples_table(records), quarantine, report)
-
-
-def _interval_order(cols: dict[str, Any], column: Any, rows: _Rows,
-                    letters: dict[str, tuple[str, str]], section_blocks: dict[str, Any],
-                    sec: Any) -> None:
-    """A sampled interval's top must lie above its base (heights: top ≥ base; depths: top ≤
-    base)."""
-    import numpy as np
-    import pandas as pd
-
-    if "top_m" not in cols or "base_m" not in cols:
-        return
-    top = pd.to_numeric(pd.Series(column("top_m")), errors="coerce").to_numpy(dtype=float)
-    base = pd.to_numeric(pd.Series(column("base_m")), errors="coerce").to_numpy(dtype=float)
-    kinds = column("position_kind") if "position_kind" in cols else np.array(
-        [section_blocks.get(s, {}).get("position_kind") for s in sec], dtype=object)
-    depth = np.array([k == "depth" for k in kinds], dtype=bool)
-    wrong = np.where(depth, top > base, top < base)
-    letter, header = letters.get("top_m", ("", "top"))
-    for i in np.nonzero(wrong)[0]:
-        rows.error(int(i), letter, header, top[i], "interval order",
-                   f"top {top[i]:g} m is {'below' if not depth[i] else 'deeper than'} base "
-                   f"{base[i]:g} m; check that top and base are not swapped")
-
-
-def _record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Array, Any]:
-    """``record_id`` of every row (DuckDB's sha256 over the same key text as
-    :func:`record_id`) and, for a repeated id, the row index of its first occurrence
-    (−1 otherwise)."""
-    import duckdb
-    import numpy as np
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    n = len(replicate)
-    t = pa.table({"sec": _strings(sec), "sample": _strings(sample),
-                  "rep": pa.array(np.asarray(replicate, dtype=np.int64)),
-                  "i": pa.array(np.arange(n, dtype=np.int64))})
-    con = duckdb.connect()
-    try:
-        con.register("k", t)
-        ids = con.execute(
-            "SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
-            "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
-            "END AS id FROM k ORDER BY i", [sid]).to_arrow_table().column("id").combine_chunks()
-    finally:
-        con.close()
-    first = np.full(n, -1, dtype=np.int64)
-    codes = pc.fill_null(ids.dictionary_encode().indices, -1).to_numpy(zero_copy_only=False)
-    counts = np.bincount(codes[codes >= 0]) if n else np.zeros(0, dtype=np.int64)
-    if len(counts) and counts.max() > 1:  # rare: find each repeat's first occurrence
-        _, first_index = np.unique(codes, return_index=True)
-        by_code = np.full(len(counts) + 1, -1, dtype=np.int64)
-        uniq = np.unique(codes)
-        by_code[uniq + 1] = first_index
-        first_of = by_code[codes + 1]
-        repeat = (codes >= 0) & (first_of != np.arange(n))
-        first[repeat] = first_of[repeat]
-    return ids, first
-
-
-def _const(value: Any, n: int, sqltype: str) -> pa.Array:
-    """One value for every row, built by Arrow (no Python object per row)."""
-    import pyarrow as pa
-
-    t = {"VARCHAR": pa.string(), "DOUBLE": pa.float64(), "INTEGER": pa.int32(),
-         "BIGINT": pa.int64()}[sqltype]
-    if value is None:
-        return pa.nulls(n, t)
-    import pyarrow.compute as pc
-
-    return pc.fill_null(pa.nulls(n, t), pa.scalar(str(value) if sqltype == "VARCHAR"
-                                                   else value, t))
-
-
-def _strings(values: Any) -> pa.Array:
-    """Text column as Arrow; C-speed for str/None objects, str() only as a fallback."""
-    import pyarrow as pa
-
-    if isinstance(values, (pa.Array, pa.ChunkedArray)):
-        return values.cast(pa.string())
-    try:
-        return pa.array(values, type=pa.string(), from_pandas=True)
-    except (pa.ArrowInvalid, pa.ArrowTypeError):
-        return pa.array([None if v is None or v != v else str(v) for v in values],
-                        type=pa.string())
-
-
-def _to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
-    import numpy as np
-    import pyarrow as pa
-
-    t = {"VARCHAR": pa.string(), "DOUBLE": pa.float64(), "INTEGER": pa.int32(),
-         "BIGINT": pa.int64()}[sqltype]
-    if isinstance(values, pa.ChunkedArray):
-        values = values.combine_chunks()
-    if isinstance(values, pa.Array):
-        return values.cast(t)
-    if isinstance(values, np.ndarray) and values.dtype != object:
-        return pa.array(values, from_pandas=True).cast(t)  # NaN -> null
-    if sqltype == "DOUBLE":  # object arrays (lat/lon filled from localities)
-        return pa.array([None if v is None or (isinstance(v, float) and np.isnan(v)) else float(v)
-                         for v in values], type=t)
-    if sqltype == "VARCHAR":
-        return _strings(values)
-    return pa.array(list(values), type=t)
+                    localities_table(sid, locality_blocks),
+                    sections_table(sid, section_blocks, sec, loc),
+                    samples_table(records), quarantine, report)
 
 
 def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stored: str,
@@ -554,7 +433,7 @@ def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stor
     letters[stored] = (letter, header)
 
 
-def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: _Rows, letter: str,
+def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: RowErrors, letter: str,
                   header: str) -> Any:
     """Resolve each distinct cell once; map the column through the result (vectorised)."""
     import numpy as np
@@ -580,7 +459,7 @@ def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: _Rows, letter: str,
     return out
 
 
-def _coord_column(text: pa.ChunkedArray, axis: str, rows: _Rows, letter: str,
+def _coord_column(text: pa.ChunkedArray, axis: str, rows: RowErrors, letter: str,
                   header: str) -> Any:
     """Decimal degrees: plain numbers cast at once, DMS and hemisphere letters cell by cell."""
     import numpy as np
@@ -659,234 +538,3 @@ def _check_range(b: dict[str, Any], mapping: Mapping) -> None:
     if b["lon"] > 180:
         b["lon"] -= 360
 
-
-def _schema_check(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]],
-                  raw_text: Any = lambda col, i: None) -> None:
-    """Run the pandera schema lazily and turn its failure cases into cell errors."""
-    import pandera.errors as pe
-    import pyarrow as pa
-    from strata13.schemas.records import record_schema
-
-    schema = record_schema()
-    # the schema sees the columns this sheet filled (ids and text are checked above, row by
-    # row); vocabulary columns go in dictionary-encoded, so no Python object per cell
-    keep = [c for c in frame.column_names if c in schema.columns and c not in TEXT_CHECKED
-            and frame.column(c).null_count < frame.num_rows]
-    sub = frame.select(keep)
-    sub = pa.table({c: (sub.column(c).dictionary_encode() if pa.types.is_string(sub.column(c).type)
-                        else sub.column(c)) for c in keep})
-    schema = schema.select_columns(keep) if keep else schema.select_columns([])
-    failures = []
-    for start in range(0, max(sub.num_rows, 1), SCHEMA_CHUNK):  # bounded memory
-        df = sub.slice(start, SCHEMA_CHUNK).to_pandas(types_mapper=_pandas_types)
-        df.index = df.index + start
-        try:
-            schema.validate(df, lazy=True)
-        except pe.SchemaErrors as err:
-            failures.append(err.failure_cases)
-    for fc in failures:
-        for _, r in fc.iterrows():
-            idx = r.get("index")
-            col = r.get("column")
-            check = str(r.get("check"))
-            if idx is None or col is None or (isinstance(idx, float) and idx != idx):
-                continue
-            letter, header = letters.get(str(col), ("", str(col)))
-            f = next((x for x in FIELDS if x.stored == col), None)
-            if check.startswith("in_range") and f is not None and f.plausible:
-                lo, hi = f.plausible
-                rule = f"plausible {f.plausible_name or 'range'}"
-                hint = (f"outside {lo:g} … {hi:g}"
-                        f"{' ' + f.stored_unit if f.stored_unit else ''}; check the unit and the "
-                        "column mapping")
-            elif check.startswith("in_range"):
-                rule, hint = "plausible range", f"outside {check}; check the unit and mapping"
-            else:
-                rule, hint = check, f"failed the {check} check"
-            shown = raw_text(str(col), int(idx))
-            rows.error(int(idx), letter, header,
-                       shown if shown is not None else r.get("failure_case"), rule, hint)
-
-
-TEXT_CHECKED = ("record_id", "source_id", "section_id", "sample_id")
-SCHEMA_CHUNK = 250_000  # rows per pandera pass
-
-
-def _pandas_types(t: Any) -> Any:
-    """Nullable integers stay integers in pandas (pandera checks them as Int32)."""
-    import pandas as pd
-    import pyarrow as pa
-
-    return pd.Int32Dtype() if t == pa.int32() else None
-
-
-def _superposition(frame: pa.Table, rows: _Rows, letters: dict[str, tuple[str, str]]) -> None:
-    """Within a section, reported ages must not contradict the order of positions."""
-    import numpy as np
-
-    if "age_reported_ma" not in frame.column_names or "position_m" not in frame.column_names:
-        return
-    sec = frame.column("section_id").to_numpy(zero_copy_only=False)
-    pos = frame.column("position_m").to_numpy(zero_copy_only=False).astype(float)
-    age = frame.column("age_reported_ma").to_numpy(zero_copy_only=False).astype(float)
-    sig = frame.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float) \
-        if "age_reported_sigma_ma" in frame.column_names else np.zeros(len(age))
-    sig = np.nan_to_num(sig)
-    kind = frame.column("position_kind").to_numpy(zero_copy_only=False) \
-        if "position_kind" in frame.column_names \
-        else [None] * len(age)
-    letter, header = letters.get("age_reported_ma", ("", "age"))
-    import pandas as pd
-
-    codes = pd.factorize(pd.Series(sec, dtype=object))[0]
-    ok = (codes >= 0) & ~np.isnan(pos) & ~np.isnan(age)
-    idx = np.nonzero(ok)[0]
-    if len(idx) < 2:
-        return
-    idx = idx[np.lexsort((pos[idx], codes[idx]))]
-    a, b = idx[:-1], idx[1:]
-    same = (codes[a] == codes[b]) & (pos[a] != pos[b])
-    depth = np.array([k == "depth" for k in kind], dtype=bool)[a]
-    # height: higher is younger (age falls); depth: deeper is older (age rises)
-    gap = np.where(depth, age[a] - age[b], age[b] - age[a])
-    wrong = same & (gap > sig[a] + sig[b])
-    for i, j in zip(a[wrong], b[wrong], strict=True):
-        rows.error(int(j), letter, header, age[j], "superposition",
-                   f"age {age[j]:g} Ma at {pos[j]:g} m contradicts {age[i]:g} Ma at "
-                   f"{pos[i]:g} m (row {rows.raw.row_numbers[i]}) in the same section")
-
-
-def _plausibility(frame: pa.Table, raw: RawTable, report: Report,
-                  letters: dict[str, tuple[str, str]]) -> None:
-    """Warnings for swapped δ columns and unit slips (common-practice heuristics)."""
-    import numpy as np
-
-    def values(name: str) -> np.ndarray:
-        if name not in frame.column_names:
-            return np.zeros(0)
-        v = frame.column(name).to_numpy(zero_copy_only=False).astype(float)
-        return v[~np.isnan(v)]
-
-    c13, o18 = values("d13c_carb_reported"), values("d18o_carb_reported")
-    scales = set(frame.column("d18o_carb_scale").unique().to_pylist()) \
-        if "d18o_carb_scale" in frame.column_names else set()
-    if len(c13) >= 5 and len(o18) >= 5 and scales <= {"VPDB", "PDB", None}:
-        # Marine carbonate δ18O (VPDB) is mostly below δ13C (common practice, from memory:
-        # Phanerozoic δ13C ~ -3…+6 ‰, δ18O ~ -10…0 ‰); the reverse suggests swapped columns.
-        if np.median(o18) > np.median(c13) + 2:
-            letter, header = letters.get("d13c_carb_reported", ("", ""))
-            report.add(Issue("warning", raw.sheet, letter, header, f"{np.median(c13):.2f}",
-                             "swapped δ columns?", "median δ18O is well above median δ13C; "
-                             "check that the δ13C and δ18O columns are not swapped"))
-    pos = values("position_m")
-    letter, header = letters.get("position_m", ("", ""))
-    if len(pos) >= 5 and np.nanmax(np.abs(pos)) > 2000:
-        report.add(Issue("warning", raw.sheet, letter, header, f"{np.nanmax(pos):g}",
-                         "unit slip?", "positions above 2000 m: were they given in cm or ft?"))
-    for c in CONC_FIELDS:
-        v = values(BY_NAME[c].stored)
-        letter, header = letters.get(BY_NAME[c].stored, ("", ""))
-        if c in ("mn", "sr", "fe") and len(v) >= 5 and np.nanmax(v) < 1.0:
-            report.add(Issue("warning", raw.sheet, letter, header, f"{np.nanmax(v):g}",
-                             "unit slip?", f"all {c} values below 1 ppm: were they in %?"))
-
-
-def _complete(table: pa.Table) -> pa.Table:
-    """Every analyses column present, with the stored type, in the stored order."""
-    import pyarrow as pa
-    from strata13.schemas.records import arrow_schema
-
-    schema = arrow_schema([c for c in ANALYSES if c[0] != "row_hash"])
-    cols = []
-    for f in schema:
-        if f.name in table.column_names:
-            cols.append(table.column(f.name).cast(f.type))
-        else:
-            cols.append(pa.nulls(table.num_rows, f.type))
-    return pa.Table.from_arrays(cols, schema=schema)
-
-
-def _row_hashes(table: pa.Table) -> pa.Array:
-    """A content hash per record over its reported columns, for re-ingest diffs.
-
-    Each filled cell contributes hash(value) × K(column), summed modulo 2**64; an empty
-    cell contributes nothing, so a row's hash does not depend on which columns other rows
-    fill, and all-empty columns cost nothing. hash and K are pandas' ``hash_array``
-    (SipHash-2-4 with pandas' fixed default key; numbers as float64, text as UTF-8) — a
-    documented, engine-independent content hash. One column in memory at a time.
-    """
-    import numpy as np
-    import pyarrow as pa
-    import pyarrow.compute as pc
-    from pandas.util import hash_array
-    from strata13.compile.derive import DERIVED_COLUMNS
-
-    n = table.num_rows
-    h = np.zeros(n, dtype=np.uint64)
-    for name in table.column_names:
-        col = table.column(name)
-        if name in DERIVED_COLUMNS or name in ("sheet", "sheet_row") or col.null_count == n:
-            continue
-        k = hash_array(np.array([name], dtype=object))[0] | np.uint64(1)
-        if pa.types.is_string(col.type):  # hash each distinct text once, spread by index
-            d = col.combine_chunks().dictionary_encode()
-            per_value = hash_array(d.dictionary.to_numpy(zero_copy_only=False),
-                                   categorize=False)
-            idx = pc.fill_null(d.indices, -1).to_numpy(zero_copy_only=False)
-            v = np.where(idx >= 0, per_value[np.maximum(idx, 0)], 0).astype(np.uint64)
-        else:
-            values = col.cast(pa.float64())
-            v = hash_array(values.to_numpy(zero_copy_only=False))
-            v[pc.is_null(values).to_numpy(zero_copy_only=False)] = 0
-        with np.errstate(over="ignore"):
-            h += v * k
-    return pa.array(h.view(np.int64), type=pa.int64())
-
-
-def _localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:
-    import pyarrow as pa
-    from strata13.schemas.records import arrow_schema
-
-    rows = [{"source_id": sid, "locality_id": k, "name": b.get("name"), "lat": b["lat"],
-             "lon": b["lon"], "precision_km": b.get("precision_km"),
-             "aliases": "|".join(b.get("aliases", []) or []), "note": b.get("note")}
-            for k, b in sorted(blocks.items())]
-    return pa.Table.from_pylist(rows, schema=arrow_schema(LOCALITIES))
-
-
-def _sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: Any) -> pa.Table:
-    import pandas as pd
-    import pyarrow as pa
-    from strata13.schemas.records import arrow_schema
-
-    pairs = pd.DataFrame({"s": pd.Series(sec, dtype=object), "l": pd.Series(loc, dtype=object)})
-    pairs = pairs[pairs.s.notna()].drop_duplicates("s")
-    first_loc = {str(k): v for k, v in zip(pairs.s, pairs.l, strict=True)}
-    ids = sorted(set(first_loc) | set(blocks))
-    rows = []
-    for s in ids:
-        b = blocks.get(s, {})
-        rows.append({"source_id": sid, "section_id": s,
-                     "locality_id": b.get("locality") or first_loc.get(s),
-                     "name": b.get("name"), "datum": b.get("datum"),
-                     "position_kind": b.get("position_kind"),
-                     "datum_offset_m": b.get("datum_offset_m"),
-                     "offset_from": b.get("offset_from"), "offset_source": b.get("offset_source"),
-                     "note": b.get("note")})
-    return pa.Table.from_pylist(rows, schema=arrow_schema(SECTIONS))
-
-
-def _samples_table(records: pa.Table) -> pa.Table:
-    """One row per sample (replicates folded), grouped by DuckDB."""
-    import duckdb
-    from strata13.schemas.records import arrow_schema
-
-    con = duckdb.connect()
-    try:
-        con.register("r", records.select([c for c, _ in SAMPLES]))
-        t = con.execute("SELECT source_id, section_id, sample_id, min(position_m), min(top_m), "
-                        "max(base_m), min(lithostrat_unit) FROM r GROUP BY ALL "
-                        "ORDER BY section_id, sample_id").to_arrow_table()
-    finally:
-        con.close()
-    return t.rename_columns([c for c, _ in SAMPLES]).cast(arrow_schema(SAMPLES))

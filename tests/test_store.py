@@ -377,3 +377,16 @@ def test_a_store_from_before_a_new_column_reads_and_migrates(tmp_path: Path) -> 
     api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "2.0")]))
     assert api.sql(store, "SELECT count(*) FROM records").rows == [(2,)]
     assert len(api.query(store, as_of=old)) == 1  # the older version still reads
+
+
+def test_stored_record_ids_are_the_documented_hash(tmp_path: Path) -> None:
+    import hashlib
+
+    from strata13.compile.tables import record_id
+
+    store = api.init_store(tmp_path / "st")
+    api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0")]))
+    got = api.query(store).record_id.tolist()
+    key = "\x1f".join(["obrien-delta-2019", "O'Brien–Δ 2019", "a", "1"])
+    assert got == [record_id("obrien-delta-2019", "O'Brien–Δ 2019", "a", 1)]
+    assert got == [hashlib.sha256(key.encode("utf-8")).hexdigest()[:20]]
