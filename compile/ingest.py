@@ -62,7 +62,8 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     step("reading the mapping")
     mapping = load_mapping(mapping_path)
     if sheet is not None and not sheet.is_file():
-        raise InputFileError(f"{sheet} does not exist.", "Check the path of the sheet.")
+        raise InputFileError(f"{sheet} " + ("is a folder, not a sheet." if sheet.is_dir()
+                                            else "does not exist."), "Check the path of the sheet.")
     if sheet is not None and sheet.resolve() != mapping.table.file:
         raise OptionError(f"{sheet} is not the file {mapping_path.name} maps "
                           f"({mapping.table.file.name}).",

@@ -115,8 +115,9 @@ def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) ->
                           "Name the sheet file, relative to the mapping file.")
     spec = TableSpec(file=safe_path(path.parent, block["file"], f"{where} file", path))
     sheet = block.get("sheet")
-    if sheet is not None and not isinstance(sheet, (str, int)):
-        raise ConfigError(f"{path.name}: {where} sheet must be a name or a number.", "")
+    if sheet is not None and (not isinstance(sheet, (str, int)) or isinstance(sheet, bool)):
+        raise ConfigError(f"{path.name}: {where} sheet must be a name or a number.",
+                          "Example: sheet = \"Table S1\" or sheet = 2")
     spec.sheet = sheet
     hr = block.get("header_row")
     if hr is not None and (not isinstance(hr, int) or isinstance(hr, bool) or hr < 1):
@@ -193,7 +194,9 @@ def _check_scale(name: str, scale: str, where: str, path: Path) -> None:
 
 def load_mapping(path: Path) -> Mapping:
     """Read and check a mapping file. Raises InputFileError or ConfigError (exit 2)."""
-    if not path.exists() or path.is_dir():
+    if path.is_dir():
+        raise InputFileError(f"mapping file {path} is a folder.", "Name the .toml file.")
+    if not path.exists():
         raise InputFileError(f"mapping file {path} does not exist.", "Check --map.")
     raw = path.read_bytes()
     try:

@@ -341,6 +341,8 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     import pyarrow.csv as pcsv
 
     data = path.read_bytes()
+    if not data.strip():
+        raise InputFileError(f"{path.name} is empty.", "Check that the right file was named.")
     if data.startswith((b"\xff\xfe", b"\xfe\xff")) and encoding == "auto":
         encoding = "utf-16"  # "Unicode text" exports of spreadsheet programs
     if b"\x00" in data[:4096] and not encoding.lower().startswith("utf-16"):

@@ -130,6 +130,11 @@ def from_geojson(doc: Any, name: str, where: str) -> Region:
         except Exception as exc:  # shapely raises several types for bad coordinates
             raise ConfigError(f"{where}: the polygon cannot be read ({exc}).",
                               "Check the coordinate nesting: [[[lon, lat], …]].") from None
+        lo_x, lo_y, hi_x, hi_y = shp.bounds
+        if lo_y < -90 or hi_y > 90 or lo_x < -360 or hi_x > 360:
+            raise ConfigError(f"{where}: the polygon has coordinates out of range "
+                              f"(lon {lo_x:g}…{hi_x:g}, lat {lo_y:g}…{hi_y:g}).",
+                              "GeoJSON is [longitude, latitude]; check for swapped pairs.")
         if not shp.is_valid:
             raise ConfigError(f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
                               "Fix self-intersections; close each ring.")
