@@ -111,7 +111,7 @@ def export(con: Any, version: int, out: Path, filters: Filters, settings_hash: s
     if out.exists() and not out.is_dir():
         raise OptionError(f"--out {out} is a file, not a folder.", "Name a folder.")
     out.mkdir(parents=True, exist_ok=True)
-    table = run(con, filters)
+    table = run(con, filters, order="record_id")
     table = table.select(RECORDS_COLUMNS).cast(_records_schema())
     files: dict[str, str] = {}
     pq.write_table(table, out / "records.parquet", compression="zstd",

@@ -95,13 +95,18 @@ def check_vocab(values: list[str], vocab: str, option: str) -> list[str]:
     return out
 
 
-def run(con: Any, filters: Filters, columns: list[str] | None = None) -> pa.Table:
-    """Records matching ``filters`` as an Arrow table, ordered by record id."""
+READING_ORDER = "source_id, section_id, position_m, top_m, sample_id, replicate, record_id"
+
+
+def run(con: Any, filters: Filters, columns: list[str] | None = None,
+        order: str = READING_ORDER) -> pa.Table:
+    """Records matching ``filters`` as an Arrow table: by default in reading order (source,
+    section, position); exports ask for ``order="record_id"``, which never changes."""
     import pyarrow as pa
 
     where, params = filters.where()
     cols = ", ".join(f'"{c}"' for c in columns) if columns else "*"
-    table = con.execute(f"SELECT {cols} FROM records WHERE {where} ORDER BY record_id",
+    table = con.execute(f"SELECT {cols} FROM records WHERE {where} ORDER BY {order}",
                         params).to_arrow_table()
     if filters.region is not None and table.num_rows:
         lon_c, lat_c = ("paleolon", "paleolat") if filters.frame == "paleo" else ("lon", "lat")
