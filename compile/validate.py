@@ -339,15 +339,23 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         has = ~np.isnan(vals)
         no_scale = has & scale.isna().to_numpy()
         unknown = has & ~no_scale & ~scale.isin(DELTA_SCALES[d]).to_numpy()
-        for i in np.nonzero(no_scale)[0]:
-            rows.error(int(i), letter, header, vals[i], "scale not stated",
-                       f"state the reference scale of {d}: scale = \"VPDB\" on the column "
-                       f"or {d}_scale in [constants]")
+        hint = (f"state the reference scale of {d}: scale = \"VPDB\" on the column or "
+                f"{d}_scale in [constants]")
+        missing = np.nonzero(no_scale)[0]
+        if len(missing) and f"{d}_scale" not in cols:  # the whole column lacks a scale: one line
+            first, last = (int(raw.row_numbers[missing[0]]), int(raw.row_numbers[missing[-1]]))
+            report.add(Issue("error", raw.sheet, f"{letter}{first}:{letter}{last}", header,
+                             f"{len(missing)} values", "scale not stated", hint))
+            rows.mark(missing, "scale not stated", letter)
+        else:
+            for i in missing:
+                rows.error(int(i), letter, header, vals[i], "scale not stated", hint)
         for i in np.nonzero(unknown)[0]:
             rows.error(int(i), letter, header, scale[i], "unknown scale",
                        f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
 
     interval_order(cols, column, rows, letters, section_blocks, sec)
+
     def text(name: str, fallback: Any) -> Any:
         v = cols.get(name)
         return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback

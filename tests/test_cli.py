@@ -89,7 +89,7 @@ def test_broken_demo_sheet_report_and_unchanged_store(demo_store: Path, demo_she
                      ("D9", "component vocabulary"), ("F10", "date in numeric column"),
                      ("G11", "ambiguous comma"), ("H12", "superposition"),
                      ("I13", "plausible latitude range"),
-                     ("E14", "formula without cached value"), ("E2", "scale not stated"),
+                     ("E14", "formula without cached value"), ("E2:E13", "scale not stated"),
                      ("E8", "plausible carbonate δ13C range")]:
         assert expected in rules
 
