@@ -80,6 +80,8 @@ class Report:
 
 
 def _cell_key(cell: str) -> tuple[int, str]:
-    letters = "".join(ch for ch in cell if ch.isalpha())
-    digits = "".join(ch for ch in cell if ch.isdigit())
+    """Sort by row, then column; a range ``E2:E13`` sorts at its first cell."""
+    first = cell.split(":", 1)[0]
+    letters = "".join(ch for ch in first if ch.isalpha())
+    digits = "".join(ch for ch in first if ch.isdigit())
     return (int(digits) if digits else 0, letters.rjust(3))
