@@ -61,7 +61,7 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
                           f"Time scales: {', '.join(voc.terms)}.")
     named = load_regions_file(Path(regions)) if regions else []
     settings = Settings(time_scale=ts)
-    return Store.create(Path(path), json.dumps(settings.as_dict()["extra"] | {"time_scale": ts}),
+    return Store.create(Path(path), json.dumps(settings.stored()),
                         settings.hash(),
                         [(n, g, Path(regions).name) for n, g in named] if regions else [],
                         made_by=made_by)
@@ -104,7 +104,7 @@ class _DryStore(Store):
         self._pending_files = []
 
     def settings(self, version: int | None = None) -> dict[str, Any]:
-        return Settings().as_dict()["extra"] | {"time_scale": DEFAULT_TIME_SCALE}
+        return Settings().stored()
 
 
 def _named_regions(con: Any) -> dict[str, str]:

@@ -41,6 +41,15 @@ class Settings:
     def as_dict(self) -> dict[str, Any]:
         return asdict(self)
 
+    def stored(self) -> dict[str, Any]:
+        """The settings as the store's settings table keeps them (one key each)."""
+        return {"time_scale": self.time_scale, **self.extra}
+
+    @classmethod
+    def from_stored(cls, values: dict[str, Any]) -> Settings:
+        return cls(time_scale=values.get("time_scale", DEFAULT_TIME_SCALE),
+                   extra={k: v for k, v in values.items() if k != "time_scale"})
+
     def hash(self) -> str:
         text = json.dumps(self.as_dict(), sort_keys=True)
         return hashlib.sha256(text.encode()).hexdigest()[:16]

@@ -49,9 +49,7 @@ class IngestResult:
 
 
 def settings_from_store(store: Store) -> Settings:
-    s = store.settings()
-    return Settings(time_scale=s.get("time_scale", Settings().time_scale),
-                    extra={k: v for k, v in s.items() if k != "time_scale"})
+    return Settings.from_stored(store.settings())
 
 
 def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: bool = False,
@@ -160,9 +158,7 @@ def _moved(con: Any, source_id: str, records: pa.Table) -> int:
 
 def _settings(con: Any) -> Settings:
     rows = dict(con.execute("SELECT key, value_json FROM lake.settings").fetchall())
-    s = {k: json.loads(v) for k, v in rows.items()}
-    return Settings(time_scale=s.get("time_scale", Settings().time_scale),
-                    extra={k: v for k, v in s.items() if k != "time_scale"})
+    return Settings.from_stored({k: json.loads(v) for k, v in rows.items()})
 
 
 def _diff(con: Any, source_id: str, records: pa.Table) -> tuple[int, int, int]:
