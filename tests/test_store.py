@@ -160,15 +160,21 @@ def _ingest_worker(store: str, mapping: str) -> None:
     api.ingest(store, None, mapping)
 
 
-def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: Path) -> None:
-    store = api.init_store(tmp_path / "st")
+def two_sources(tmp_path: Path, prefix: str, rows: int) -> list[Path]:
+    """Two mapping files, sources ``{prefix}-0`` and ``{prefix}-1``, in folders of their own."""
     maps = []
     for k in range(2):
         d = tmp_path / f"src{k}"
         d.mkdir()
-        m = write_source(d, [(f"s{k}-{i}", i, "1.0") for i in range(50)])
-        m.write_text(m.read_text().replace("obrien-delta-2019", f"conc-{k}"))
+        m = write_source(d, [(f"s{k}-{i}", i, "1.0") for i in range(rows)])
+        m.write_text(m.read_text().replace("obrien-delta-2019", f"{prefix}-{k}"))
         maps.append(m)
+    return maps
+
+
+def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: Path) -> None:
+    store = api.init_store(tmp_path / "st")
+    maps = two_sources(tmp_path, "conc", 50)
     con, version = store.reader()
     n_before = con.execute("SELECT count(*) FROM records").fetchone()[0]
     ctx = mp.get_context("spawn")
@@ -335,13 +341,7 @@ def test_a_source_is_never_replaced_by_an_empty_one(tmp_path: Path) -> None:
 
 
 def test_two_first_ingests_into_a_new_folder_both_land(tmp_path: Path) -> None:
-    maps = []
-    for k in range(2):
-        d = tmp_path / f"src{k}"
-        d.mkdir()
-        m = write_source(d, [(f"s{k}-{i}", i, "1.0") for i in range(30)])
-        m.write_text(m.read_text().replace("obrien-delta-2019", f"first-{k}"))
-        maps.append(m)
+    maps = two_sources(tmp_path, "first", 30)
     target = tmp_path / "fresh"
     ctx = mp.get_context("spawn")
     procs = [ctx.Process(target=_ingest_worker, args=(str(target), str(m))) for m in maps]
