@@ -5,9 +5,11 @@ command re-runs it with new settings. Reported columns are never touched. Each s
 changes a value records a chain of (method, parameters, source); a value whose step is not
 available yet is *pending* (with the reason in its status column), never copied across.
 
-What exists now: δ values reported on VPDB pass through with an identity step; other
-scales are pending. Reported ages on the store's time scale are taken as ages; others are
-pending. Paleo-positions are pending (no rotation model); screens are "untested".
+What exists now: δ values reported on VPDB (or PDB) pass through with an identity step
+flagged "normalisation not stated"; δ18O on VSMOW is converted with the settings' VSMOW–VPDB
+relation; other scales are pending. Reported ages on the store's time scale are taken as
+ages; others are pending. Paleo-positions are pending (no rotation model); screens are
+"untested".
 """
 
 from __future__ import annotations
@@ -69,7 +71,7 @@ def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
 def derive(records: pa.Table, settings: Settings) -> Derived:
     """Fill the derived columns of ``records`` from its reported columns and ``settings``."""
     chains: dict[str, str] = {}
-    table = _harmonise(records, chains)
+    table = _harmonise(records, chains, settings)
     table = _ages(table, settings)
     table = _paleo(table)
     table = _screens(table)
@@ -81,29 +83,55 @@ def _set(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
     return table.set_column(i, table.schema.field(name), values.cast(table.schema.field(name).type))
 
 
-def _harmonise(table: pa.Table, chains: dict[str, str]) -> pa.Table:
-    import pyarrow as pa
-    import pyarrow.compute as pc
+def _reported_step(scale: str, flags: tuple[str, ...]) -> dict[str, Any]:
+    return {"step": f"reported on {scale}", "method": "as reported (no correction)",
+            "parameters": {"scale": scale}, "source": "the authors' statement of scale",
+            "size_permil": 0.0, "flags": list(flags)}
 
+
+def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings) -> pa.Table:
+    """Each δ column onto ‰ VPDB where a method exists for its reported scale:
+
+    * VPDB: taken as reported (normalisation not stated: flagged, not corrected);
+    * PDB: the historical name of the same scale, taken as reported and flagged
+      (common practice);
+    * δ18O on VSMOW: the VSMOW–VPDB relation named in the settings (IUPAC by default);
+    * anything else (VPDB-LSVEC needs the authors' anchors): pending, not copied.
+    """
+    import numpy as np
+    import pyarrow as pa
+    from strata13.compile.harmonise import oxygen
+
+    constants = settings.extra.get("vsmow_constants", oxygen.DEFAULT)
     for d in DELTA_FIELDS:
-        reported = table.column(f"{d}_reported")
-        scale = table.column(f"{d}_scale")
-        is_vpdb = pc.fill_null(pc.equal(scale, "VPDB"), False)
-        has = pc.is_valid(reported)
-        steps = [{"step": "reported on VPDB", "method": "identity (no correction)",
-                  "parameters": {}, "source": "the authors' statement of scale",
-                  "size_permil": 0.0}]
-        cid, text = chain_id(steps)
-        chains[cid] = text
-        ok = pc.and_(has, is_vpdb)
-        null_s = pa.scalar(None, pa.string())
-        table = _set(table, d, pc.if_else(ok, reported, pa.scalar(None, pa.float64())))
-        table = _set(table, f"{d}_chain", pc.if_else(ok, pa.scalar(cid), null_s))
-        pending = pc.binary_join_element_wise(
-            pa.scalar("pending: harmonisation from "), pc.fill_null(scale, "?"),
-            pa.scalar(" not available yet"), "")
-        status = pc.if_else(ok, pa.scalar("harmonised"), pc.if_else(has, pending, null_s))
-        table = _set(table, f"{d}_status", status)
+        reported = table.column(f"{d}_reported").to_numpy(zero_copy_only=False).astype(float)
+        scale = np.asarray(table.column(f"{d}_scale").to_numpy(zero_copy_only=False), object)
+        has = ~np.isnan(reported)
+        out = np.full(len(reported), np.nan)
+        chain = np.full(len(reported), None, dtype=object)
+        status = np.where(has, "pending", None).astype(object)
+        for sc in sorted({x for x in scale[has] if x is not None}):
+            rows = has & (scale == sc)
+            if sc in ("VPDB", "PDB"):
+                flags = ("normalisation not stated",) + (
+                    ("reported as PDB; read as VPDB (common practice)",) if sc == "PDB" else ())
+                steps = [_reported_step(sc, flags)]
+                values = reported[rows]
+            elif sc == "VSMOW" and d == "d18o_carb":
+                values, step = oxygen.vsmow_to_vpdb(reported[rows], constants)
+                steps = [_reported_step(sc, ()), step.as_dict()]
+            else:
+                status[rows] = f"pending: harmonisation from {sc} not available yet"
+                continue
+            cid, text = chain_id(steps)
+            chains[cid] = text
+            out[rows] = values
+            chain[rows] = cid
+            status[rows] = "harmonised"
+        status[has & (status == "pending")] = "pending: the reported scale is not stated"
+        table = _set(table, d, pa.array(out, type=pa.float64(), from_pandas=True))
+        table = _set(table, f"{d}_chain", pa.array(chain, type=pa.string()))
+        table = _set(table, f"{d}_status", pa.array(status, type=pa.string()))
     return table
 
 

@@ -95,14 +95,31 @@ def test_keep_valid_reconciles_counts(tmp_path: Path) -> None:
     assert api.sql(store, "SELECT count(*) FROM quarantine").rows == [(1,)]
 
 
-def test_pending_values_are_not_copied(demo_store: Path) -> None:
+def test_pending_values_are_not_copied(demo_store: Path, tmp_path: Path) -> None:
     store = api.open_store(demo_store)
-    res = api.sql(store, "SELECT count(*) FROM records WHERE d18o_carb_scale = 'VSMOW' "
-                  "AND d18o_carb IS NOT NULL")
-    assert res.rows == [(0,)]
-    res = api.sql(store, "SELECT count(*) FROM records WHERE age_reported_scale = 'ICS2012' "
-                  "AND age_ma IS NOT NULL")
-    assert res.rows == [(0,)]
+    # ages reported on the 2012 chart wait for time-scale conversion
+    res = api.sql(store, "SELECT count(*), count(age_ma) FROM records "
+                  "WHERE age_reported_scale = 'ICS2012'")
+    assert res.rows == [(28, 0)]
+    # δ13C on VPDB-LSVEC needs the authors' anchors: pending, never copied
+    m = write_source(tmp_path, [("a", 1, "-30.0")])
+    m.write_text(m.read_text().replace('scale = "VPDB"', 'scale = "VPDB-LSVEC"'))
+    s2 = api.init_store(tmp_path / "st")
+    r = api.ingest(s2, None, m)
+    assert r.pending["d13c_carb"] == 1
+    row = api.query(s2).iloc[0]
+    assert row.d13c_carb != row.d13c_carb and row.d13c_carb_reported == -30.0  # NaN: not copied
+    assert row.d13c_carb_status.startswith("pending")
+
+
+def test_vsmow_oxygen_is_harmonised_with_the_iupac_relation(demo_store: Path) -> None:
+    # δ18O(VPDB) = 0.97001 δ18O(VSMOW) − 29.99 (Brand et al. 2014; IUPAC/CIAAW)
+    df = api.query(api.open_store(demo_store), api.Filters(source=["quillar-2011"]))
+    df = df[df.d18o_carb_reported.notna()]
+    assert len(df) == 26
+    expected = 0.97001 * df.d18o_carb_reported - 29.99
+    assert (abs(df.d18o_carb - expected) < 1e-9).all()
+    assert set(df.d18o_carb_status) == {"harmonised"}
 
 
 def test_interval_and_region_query_returns_exactly_the_matching_records(demo_store: Path) -> None:
