@@ -7,7 +7,7 @@ import sys
 from typing import Annotated
 
 import typer
-from strata13.cli import demo, export, ingest, init, listing, query
+from strata13.cli import demo, explain, export, ingest, init, listing, query
 
 from strata13 import __version__
 
@@ -42,6 +42,7 @@ app.command("history")(listing.history)
 app.command("query")(query.query)
 app.command("sql")(query.sql)
 app.command("export")(export.export)
+app.command("explain")(explain.explain)
 
 
 def main(argv: list[str] | None = None) -> None:

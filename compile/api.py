@@ -30,9 +30,9 @@ if TYPE_CHECKING:
     from strata13.compile.sqlguard import SqlResult
 
 __all__ = [
-    "Filters", "IngestResult", "Settings", "Store", "Version", "export", "history", "ingest",
-    "init_store", "open_store", "parse_interval", "query", "query_arrow", "region",
-    "sources", "sql", "store_path",
+    "Filters", "IngestResult", "Settings", "Store", "Version", "check_sources", "explain",
+    "export", "history", "ingest", "init_store", "open_store", "parse_interval", "query",
+    "query_arrow", "region", "sources", "sql", "store_path",
 ]
 
 
@@ -59,8 +59,10 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
         raise OptionError(f"--time-scale {time_scale!r} is not a shipped time scale."
                           + (f" Did you mean {sug!r}?" if sug else ""),
                           f"Time scales: {', '.join(voc.terms)}.")
+    from strata13.compile.harmonise.oxygen import DEFAULT as VSMOW_DEFAULT
+
     named = load_regions_file(Path(regions)) if regions else []
-    settings = Settings(time_scale=ts)
+    settings = Settings(time_scale=ts, extra={"vsmow_constants": VSMOW_DEFAULT})
     return Store.create(Path(path), json.dumps(settings.stored()),
                         settings.hash(),
                         [(n, g, Path(regions).name) for n, g in named] if regions else [],
@@ -208,3 +210,49 @@ def sources(store: Store) -> list[dict[str, Any]]:
 
 def history(store: Store) -> list[Version]:
     return store.history()
+
+
+def explain(store: Store, record: str) -> dict[str, Any]:
+    """One record with its provenance and, for each δ value, the chain of steps from the
+    reported value to the harmonised one. ``record`` may be a unique prefix (≥ 6 chars)."""
+    from strata13.compile.errors import DomainError
+    from strata13.schemas.fields import DELTA_FIELDS
+
+    if len(record) < 6:
+        raise OptionError(f"record id {record!r} is too short.",
+                          "Give at least 6 characters of the record id.")
+    con, version = store.reader()
+    try:
+        cur = con.execute("SELECT * FROM records WHERE starts_with(record_id, ?) LIMIT 3",
+                          [record])
+        cols = [d[0] for d in cur.description]
+        hits = [dict(zip(cols, r, strict=True)) for r in cur.fetchall()]
+        if not hits:
+            raise DomainError(f"no record {record!r} in this store (version {version}).",
+                              "Find record ids with `strata13 query`.")
+        if len(hits) > 1:
+            raise OptionError(f"record id {record!r} matches more than one record.",
+                              "Give more characters of the id.")
+        row = hits[0]
+        chains = {}
+        for d in DELTA_FIELDS:
+            cid = row.get(f"{d}_chain")
+            steps = []
+            if cid:
+                text = con.execute("SELECT steps_json FROM chains WHERE chain_id = ?",
+                                   [cid]).fetchone()
+                steps = json.loads(text[0]) if text else []
+            for k, step in enumerate(steps):  # the value after each step
+                last = k == len(steps) - 1
+                step["value_after"] = row[d] if last else (
+                    row[f"{d}_reported"] if step.get("method", "").startswith("as reported")
+                    else None)
+            chains[d] = {"reported": row[f"{d}_reported"], "scale": row[f"{d}_scale"],
+                         "harmonised": row[d], "status": row[f"{d}_status"], "chain_id": cid,
+                         "steps": steps}
+        source = con.execute("SELECT citation, file_name FROM sources WHERE source_id = ?",
+                             [row["source_id"]]).fetchone()
+    finally:
+        con.close()
+    return {"version": version, "record": row, "isotopes": chains,
+            "citation": source[0] if source else None, "file": source[1] if source else None}

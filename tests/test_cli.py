@@ -101,7 +101,8 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
     assert manifest["counts"]["records"] > 100 and manifest["counts"]["sections"] >= 6
 
 
-COMMANDS = ["demo", "init", "ingest", "sources", "history", "query", "sql", "export"]
+COMMANDS = ["demo", "init", "ingest", "sources", "history", "query", "sql", "export",
+            "explain"]
 
 
 @pytest.mark.parametrize("command", COMMANDS)
@@ -184,3 +185,22 @@ def test_query_csv_neutralises_formula_text(tmp_path: Path) -> None:
     api.ingest(tmp_path / "st", None, m)
     res = run("query", "--format", "csv", "--store", str(tmp_path / "st"))
     assert "'=HYPERLINK(1)" in res.stdout and ",-3.2," in res.stdout
+
+
+def test_explain_shows_each_step_with_numbers(demo_store: Path) -> None:
+    from strata13.compile import api
+
+    store = api.open_store(demo_store)
+    row = api.query(store, api.Filters(source=["quillar-2011"])).dropna(
+        subset=["d18o_carb_reported"]).iloc[0]
+    info = api.explain(store, row.record_id[:8])
+    steps = info["isotopes"]["d18o_carb"]["steps"]
+    assert [s["step"] for s in steps] == ["reported on VSMOW", "δ18O VSMOW → VPDB"]
+    assert steps[0]["value_after"] == row.d18o_carb_reported
+    # IUPAC relation (Brand et al. 2014): 0.97001 × reported − 29.99
+    assert steps[1]["value_after"] == pytest.approx(0.97001 * row.d18o_carb_reported - 29.99)
+    res = run("explain", row.record_id[:8], "--store", str(demo_store))
+    assert res.returncode == 0 and "IUPAC-2014" in res.stdout and "normalisation not stated" \
+        in res.stdout
+    assert run("explain", "ffffffffff", "--store", str(demo_store)).returncode == 1
+    assert run("explain", "ab", "--store", str(demo_store)).returncode == 2
