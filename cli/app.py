@@ -7,7 +7,7 @@ import sys
 from typing import Annotated
 
 import typer
-from strata13.cli import demo, explain, export, ingest, init, listing, query
+from strata13.cli import demo, explain, export, ingest, init, listing, query, scales
 
 from strata13 import __version__
 
@@ -43,6 +43,7 @@ app.command("query")(query.query)
 app.command("sql")(query.sql)
 app.command("export")(export.export)
 app.command("explain")(explain.explain)
+app.command("scales")(scales.scales)
 
 
 def main(argv: list[str] | None = None) -> None:

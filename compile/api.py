@@ -32,7 +32,7 @@ if TYPE_CHECKING:
 __all__ = [
     "Filters", "IngestResult", "Settings", "Store", "Version", "check_sources", "explain",
     "export", "history", "ingest", "init_store", "open_store", "parse_interval", "query",
-    "query_arrow", "region", "sources", "sql", "store_path",
+    "query_arrow", "region", "scales", "sources", "sql", "store_path",
 ]
 
 
@@ -210,6 +210,21 @@ def sources(store: Store) -> list[dict[str, Any]]:
 
 def history(store: Store) -> list[Version]:
     return store.history()
+
+
+def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
+    """The shipped reference-material values and VSMOW–VPDB relations, each with its source;
+    with a store, the relation the store uses is marked ``in_store``."""
+    from dataclasses import asdict
+
+    from strata13.schemas.materials import oxygen_relations, shipped_materials
+
+    used = None
+    if store is not None:
+        used = store.settings().get("vsmow_constants")
+    relations = [{**asdict(r), "in_store": (r.name == used) if store is not None else None}
+                 for r in oxygen_relations().values()]
+    return {"materials": [asdict(m) for m in shipped_materials()], "relations": relations}
 
 
 def explain(store: Store, record: str) -> dict[str, Any]:

@@ -102,7 +102,7 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
 
 
 COMMANDS = ["demo", "init", "ingest", "sources", "history", "query", "sql", "export",
-            "explain"]
+            "explain", "scales"]
 
 
 @pytest.mark.parametrize("command", COMMANDS)
@@ -204,3 +204,19 @@ def test_explain_shows_each_step_with_numbers(demo_store: Path) -> None:
         in res.stdout
     assert run("explain", "ffffffffff", "--store", str(demo_store)).returncode == 1
     assert run("explain", "ab", "--store", str(demo_store)).returncode == 2
+
+
+def test_scales_lists_the_shipped_tables_without_a_store_and_marks_the_store(
+        demo_store: Path, tmp_path: Path) -> None:
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    res = subprocess.run([*EXE, "scales", "--format", "json"], capture_output=True, text=True,
+                         cwd=empty)
+    rows = json.loads(res.stdout)
+    assert res.returncode == 0 and not list(empty.iterdir())  # nothing created
+    # IAEA-603 as assigned by its characterization paper: +2.460 ± 0.010, k = 1
+    iaea603 = next(r for r in rows if r["material"] == "IAEA-603")
+    assert (iaea603["d13c"], iaea603["d13c_unc"], iaea603["d13c_unc_kind"]) == (2.46, 0.01,
+                                                                                 "k=1")
+    res = run("scales", "--store", str(demo_store))
+    assert res.returncode == 0 and "IUPAC-2014" in res.stderr and "True" in res.stderr

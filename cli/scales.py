@@ -1,0 +1,34 @@
+"""`strata13 scales`: the shipped reference-material values and VSMOW–VPDB relations."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from strata13.cli import render
+from strata13.cli.common import FormatOpt, OutOpt, check_format
+
+StoreOnly = Annotated[Path | None, typer.Option(
+    "--store", help="Mark the settings of this store (optional).", show_default=False)]
+MATERIAL_COLUMNS = ["material", "value_set", "status", "d13c", "d13c_unc", "d13c_unc_kind",
+                    "d13c_scale", "d18o", "d18o_unc", "d18o_unc_kind", "d18o_scale",
+                    "valid_from", "valid_to", "confidence", "source"]
+RELATION_COLUMNS = ["name", "form", "slope", "intercept", "status", "confidence", "in_store",
+                    "source"]
+
+
+def scales(store: StoreOnly = None, fmt: FormatOpt = "table", out: OutOpt = None) -> None:
+    """List reference materials (values as published, uncertainty and its kind, scale,
+    years in use, source) and the VSMOW–VPDB relations; works without a store."""
+    from strata13.compile import api
+
+    check_format(fmt, out, store)
+    s = api.open_store(store) if store is not None else None
+    info = api.scales(s)
+    render.table(RELATION_COLUMNS, [[r[c] for c in RELATION_COLUMNS] for r in info["relations"]],
+                 "table", None, title="δ18O VSMOW–VPDB relations", stderr=True)
+    render.table(MATERIAL_COLUMNS, [[m[c] for c in MATERIAL_COLUMNS] for m in info["materials"]],
+                 fmt, out, title="reference materials (‰)")
+    if s is None:
+        render.note("shipped tables; add --store DIR to mark the relation a store uses")
