@@ -7,7 +7,17 @@ import sys
 from typing import Annotated
 
 import typer
-from strata13.cli import demo, explain, export, ingest, init, listing, query, scales
+from strata13.cli import (
+    demo,
+    explain,
+    export,
+    ingest,
+    init,
+    listing,
+    query,
+    reharmonise,
+    scales,
+)
 
 from strata13 import __version__
 
@@ -44,6 +54,7 @@ app.command("sql")(query.sql)
 app.command("export")(export.export)
 app.command("explain")(explain.explain)
 app.command("scales")(scales.scales)
+app.command("reharmonise")(reharmonise.reharmonise)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -32,7 +32,7 @@ if TYPE_CHECKING:
 __all__ = [
     "Filters", "IngestResult", "Settings", "Store", "Version", "check_sources", "explain",
     "export", "history", "ingest", "init_store", "open_store", "parse_interval", "query",
-    "query_arrow", "region", "scales", "sources", "sql", "store_path",
+    "query_arrow", "region", "reharmonise", "scales", "sources", "sql", "store_path",
 ]
 
 
@@ -210,6 +210,18 @@ def sources(store: Store) -> list[dict[str, Any]]:
 
 def history(store: Store) -> list[Version]:
     return store.history()
+
+
+def reharmonise(store: Store, vsmow_constants: str | None = None) -> Any:
+    """Re-derive every record with new harmonisation settings (one commit, or none when
+    nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
+    from strata13.compile.harmonise.oxygen import relation
+    from strata13.compile.recompute import recompute
+
+    change: dict[str, Any] = {}
+    if vsmow_constants is not None:
+        change["vsmow_constants"] = relation(vsmow_constants).name
+    return recompute(store, change, "reharmonise")
 
 
 def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:

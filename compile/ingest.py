@@ -222,10 +222,7 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
             con.register("incoming", table)
             con.execute(f"INSERT INTO lake.{name} SELECT * FROM incoming")
             con.unregister("incoming")
-    known = {r[0] for r in con.execute("SELECT chain_id FROM lake.chains").fetchall()}
-    for cid, steps in sorted(chains.items()):
-        if cid not in known:
-            con.execute("INSERT INTO lake.chains VALUES (?, ?)", [cid, steps])
+    store.add_chains(con, chains)
     summary = {"source": sid, "records": records.num_rows, "added": result.added,
                "removed": result.removed, "changed": result.changed, "moved": result.moved,
                "quarantined": result.quarantined}

@@ -305,6 +305,13 @@ class Store:
                     added.append(f"{name}.{col}")
         return added
 
+    def add_chains(self, con: duckdb.DuckDBPyConnection, chains: dict[str, str]) -> None:
+        """Store each distinct chain of steps once, keyed by its hash."""
+        known = {r[0] for r in con.execute("SELECT chain_id FROM lake.chains").fetchall()}
+        for cid, steps in sorted(chains.items()):
+            if cid not in known:
+                con.execute("INSERT INTO lake.chains VALUES (?, ?)", [cid, steps])
+
     def add_parquet(self, con: duckdb.DuckDBPyConnection, table: str, data: Any) -> None:
         """Add an Arrow table to ``table`` inside the open transaction.
 

@@ -102,7 +102,7 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
 
 
 COMMANDS = ["demo", "init", "ingest", "sources", "history", "query", "sql", "export",
-            "explain", "scales"]
+            "explain", "scales", "reharmonise"]
 
 
 @pytest.mark.parametrize("command", COMMANDS)

@@ -407,3 +407,24 @@ def test_stored_record_ids_are_the_documented_hash(tmp_path: Path) -> None:
     key = "\x1f".join(["obrien-delta-2019", "O'Brien–Δ 2019", "a", "1"])
     assert got == [record_id("obrien-delta-2019", "O'Brien–Δ 2019", "a", 1)]
     assert got == [hashlib.sha256(key.encode("utf-8")).hexdigest()[:20]]
+
+
+def test_reharmonise_is_one_commit_that_reports_its_changes(demo_store: Path) -> None:
+    store = api.open_store(demo_store)
+    before_version = store.latest_version()
+    before = api.query(store).set_index("record_id")
+    same = api.reharmonise(store)
+    assert same.version is None and not same.changed  # "0 changed", no new version
+    res = api.reharmonise(store, vsmow_constants="Coplen-1983")
+    assert res.version == before_version + 1 and res.changed == {"d18o_carb": 26}
+    # Coplen et al. 1983 (1.03091, 30.91; from memory) vs IUPAC (0.97001, −29.99): a
+    # 0.01 ‰-level difference near −2 ‰ (as the reference values note)
+    assert 0 < res.max_change["d18o_carb"] < 0.01
+    after = api.query(store).set_index("record_id")
+    vsmow = (before.d18o_carb_scale == "VSMOW") & before.d18o_carb_reported.notna()
+    expected = (after.d18o_carb_reported[vsmow] - 30.91) / 1.03091
+    assert (abs(after.d18o_carb[vsmow] - expected) < 1e-9).all()
+    assert (after.d13c_carb.fillna(0) == before.d13c_carb.fillna(0)).all()
+    old = api.query(store, as_of=before_version).set_index("record_id")
+    assert (old.d18o_carb.fillna(0) == before.d18o_carb.fillna(0)).all()
+    assert api.reharmonise(store, vsmow_constants="Coplen-1983").version is None
