@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-from pathlib import Path
 
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
@@ -19,7 +18,7 @@ def sources(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None
             "file_name", "citation"]
     if not rows:
         render.message("the store holds no sources yet.")
-    render.table(cols, [[r[c] for c in cols] for r in rows], fmt, _path(out))
+    render.table(cols, [[r[c] for c in cols] for r in rows], fmt, out)
 
 
 def history(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None) -> None:
@@ -30,8 +29,5 @@ def history(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None
     versions = api.history(api.open_store(api.store_path(store)))
     render.table(["version", "time_utc", "command", "detail", "summary"],
                  [[v.version, v.time, v.command, v.detail, json.dumps(v.summary, sort_keys=True)]
-                  for v in versions], fmt, _path(out))
+                  for v in versions], fmt, out)
 
-
-def _path(p: Path | None) -> Path | None:
-    return p
