@@ -63,7 +63,7 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
 
     named = load_regions_file(Path(regions)) if regions else []
     settings = Settings(time_scale=ts, extra={"vsmow_constants": VSMOW_DEFAULT})
-    return Store.create(Path(path), json.dumps(settings.stored()),
+    return Store.create(Path(path), settings.stored(),
                         settings.hash(),
                         [(n, g, Path(regions).name) for n, g in named] if regions else [],
                         made_by=made_by)

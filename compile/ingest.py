@@ -8,7 +8,6 @@ quarantine. A Ctrl-C is answered truthfully: the commit either landed or it did 
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -100,7 +99,7 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
         con.execute("BEGIN")
         store.migrate(con)
         # settings are read under the lock, so the commit uses exactly what it derived with
-        settings = _settings(con)
+        settings = Settings.from_stored(store.read_settings(con))
         step("deriving harmonised values and ages")
         derived = derive(prepared.records, settings)
         records = derived.table
@@ -154,11 +153,6 @@ def _moved(con: Any, source_id: str, records: pa.Table) -> int:
             "OR n.sheet_row <> o.sheet_row", [source_id]).fetchone()[0])
     finally:
         con.unregister("incoming_rows")
-
-
-def _settings(con: Any) -> Settings:
-    rows = dict(con.execute("SELECT key, value_json FROM lake.settings").fetchall())
-    return Settings.from_stored({k: json.loads(v) for k, v in rows.items()})
 
 
 def _diff(con: Any, source_id: str, records: pa.Table) -> tuple[int, int, int]:
@@ -237,9 +231,3 @@ def reconcile(result: IngestResult) -> str:
     return (f"read {r.rows_read} rows = {result.committed} committed + {result.quarantined} "
             f"quarantined + {r.rows_blank} blank")
 
-
-def summary_json(result: IngestResult) -> str:
-    return json.dumps({"source": result.source_id, "version": result.version,
-                       "committed": result.committed, "quarantined": result.quarantined,
-                       "added": result.added, "removed": result.removed,
-                       "changed": result.changed, "unchanged": result.unchanged})

@@ -52,8 +52,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
     with store.writer() as con:
         con.execute("BEGIN")
         store.migrate(con)
-        rows = dict(con.execute("SELECT key, value_json FROM lake.settings").fetchall())
-        before = {k: json.loads(v) for k, v in rows.items()}
+        before = store.read_settings(con)
         after = before | change
         settings = Settings.from_stored(after)
         table = con.execute("SELECT * FROM lake.analyses ORDER BY record_id").to_arrow_table()
@@ -75,11 +74,8 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         con.execute("DELETE FROM lake.analyses")
         if derived.table.num_rows:
             store.add_parquet(con, "analyses", derived.table)
-        con.execute("DELETE FROM lake.settings")
         h = settings.hash()
-        for key, value in sorted(after.items()):
-            con.execute("INSERT INTO lake.settings VALUES (?, ?, ?)",
-                        [key, json.dumps(value, sort_keys=True), h])
+        store.write_settings(con, after, h)
         store.add_chains(con, derived.chains)
         summary = {"records": table.num_rows, "changed": result.changed,
                    "max_change": result.max_change, "settings": change}

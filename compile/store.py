@@ -125,7 +125,7 @@ class Store:
         return cls(path)
 
     @classmethod
-    def create(cls, path: Path, settings_json: str, settings_hash: str,
+    def create(cls, path: Path, settings: dict[str, Any], settings_hash: str,
                regions: list[tuple[str, str, str]] | None = None,
                made_by: str = "init") -> Store:
         """Make a new store folder with every table, the settings and (optional) regions.
@@ -154,9 +154,7 @@ class Store:
                 for name, columns in TABLES.items():
                     cols = ", ".join(f'"{c}" {t}' for c, t in columns)
                     con.execute(f"CREATE TABLE lake.{name} ({cols})")
-                for key, value in json.loads(settings_json).items():
-                    con.execute("INSERT INTO lake.settings VALUES (?, ?, ?)",
-                                [key, json.dumps(value, sort_keys=True), settings_hash])
+                store.write_settings(con, settings, settings_hash)
                 for name, geojson, src in regions or []:
                     con.execute("INSERT INTO lake.regions VALUES (?, ?, ?)", [name, geojson, src])
                 store._record_commit(con, "init", "", settings_hash,
@@ -352,13 +350,28 @@ class Store:
         return version
 
     # ------------------------------------------------------------ reading helpers
+    @staticmethod
+    def read_settings(con: duckdb.DuckDBPyConnection, relation: str = "lake.settings"
+                      ) -> dict[str, Any]:
+        """The settings table as a dict (one key each, values decoded from JSON)."""
+        rows = con.execute(f"SELECT key, value_json FROM {relation}").fetchall()
+        return {k: json.loads(v) for k, v in rows}
+
+    @staticmethod
+    def write_settings(con: duckdb.DuckDBPyConnection, values: dict[str, Any],
+                       settings_hash: str) -> None:
+        """Replace the settings table (inside the caller's transaction)."""
+        con.execute("DELETE FROM lake.settings")
+        for key, value in sorted(values.items()):
+            con.execute("INSERT INTO lake.settings VALUES (?, ?, ?)",
+                        [key, json.dumps(value, sort_keys=True), settings_hash])
+
     def settings(self, version: int | None = None) -> dict[str, Any]:
         con, _ = self.reader(version)
         try:
-            rows = con.execute("SELECT key, value_json FROM settings").fetchall()
+            return self.read_settings(con, "settings")
         finally:
             con.close()
-        return {k: json.loads(v) for k, v in rows}
 
     def history(self) -> list[Version]:
         con, _ = self.reader()

@@ -77,10 +77,6 @@ def _file_sha(path: Any) -> str:
     return h.hexdigest()
 
 
-def _s(value: Any) -> str:
-    return "" if value is None else str(value)
-
-
 def _match_columns(raw: RawTable, spec: TableSpec,
                    report: Report) -> dict[str, tuple[int, str | None]]:
     """Mapped header -> (column index, unit found in the header).
