@@ -18,6 +18,7 @@ SHEETS = [("quillar_2011.xlsx", "quillar_2011.toml"),
           ("mossaret_fennoway_2018.ods", "mossaret_fennoway_2018.toml"),
           ("ystrel_cores_2021.csv", "ystrel_cores_2021.toml")]
 BROKEN = ("harnholt_2016_broken.xlsx", "harnholt_2016_broken.toml")
+TIES = "orvanne_ties_2023.toml"  # a source of age ties only
 
 
 def demo_folder() -> Path:
@@ -56,8 +57,12 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     for sheet, mapping in SHEETS:
         r = api.ingest(store, sheets / sheet, sheets / mapping)
         pend = ", ".join(f"{k} {v}" for k, v in sorted(r.pending.items()))
-        yield "say", (f"ingested {sheet}: {r.committed} records as version {r.version}"
-                      + (f" (pending: {pend})" if pend else ""))
+        yield "say", (f"ingested {sheet}: {r.committed} records"
+                      + (f" and {r.ties} age ties" if r.ties else "")
+                      + f" as version {r.version}" + (f" (pending: {pend})" if pend else ""))
+    r = api.ingest(store, None, sheets / TIES)
+    yield "say", (f"ingested {TIES} (age ties only): {r.ties} ties, {r.redated} records "
+                  f"re-dated, version {r.version}")
     sheet, mapping = BROKEN
     yield "say", f"ingesting the deliberately broken {sheet} (dry run):"
     try:

@@ -7,9 +7,8 @@ available yet is *pending* (with the reason in its status column), never copied 
 
 What exists now: δ values reported on VPDB (or PDB) pass through with an identity step
 flagged "normalisation not stated"; δ18O on VSMOW is converted with the settings' VSMOW–VPDB
-relation; other scales are pending. Reported ages on the store's time scale are taken as
-ages; others are pending. Paleo-positions are pending (no rotation model); screens are
-"untested".
+relation; other scales are pending. Ages come from ``compile.ages`` (age models from ties,
+converted reported ages, stage-only ages). Paleo-positions are pending (no rotation model).
 """
 
 from __future__ import annotations
@@ -26,7 +25,7 @@ if TYPE_CHECKING:
 
 DERIVED_COLUMNS = {
     *DELTA_FIELDS, *(f"{d}_chain" for d in DELTA_FIELDS), *(f"{d}_status" for d in DELTA_FIELDS),
-    "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status",
+    "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status", "age_chain",
     "plate_id", "paleolat", "paleolon", "paleo_model", "paleo_frame", "paleo_status", "screen",
     "row_hash",
 }
@@ -61,6 +60,8 @@ class Settings:
 class Derived:
     table: pa.Table
     chains: dict[str, str]  # chain id -> steps JSON
+    draws: pa.Table | None = None  # age-model draws per section (age_draws rows)
+    screens: pa.Table | None = None  # screen results, long form (screen_results rows)
 
 
 def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
@@ -68,17 +69,20 @@ def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
     return hashlib.sha256(text.encode()).hexdigest()[:16], text
 
 
-def derive(records: pa.Table, settings: Settings) -> Derived:
-    """Fill the derived columns of ``records`` from its reported columns and ``settings``."""
+def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None) -> Derived:
+    """Fill the derived columns of ``records`` from its reported columns, ``settings`` and
+    the age ties of its sections (``ties``: age_ties rows; others are ignored)."""
+    from strata13.compile import ages
+
     chains: dict[str, str] = {}
     table = _harmonise(records, chains, settings)
-    table = _ages(table, settings)
+    table, draws = ages.assign(table, ties, settings, chains)
     table = _paleo(table)
     table = _screens(table)
-    return Derived(table, chains)
+    return Derived(table, chains, draws)
 
 
-def _set(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
+def set_column(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
     i = table.column_names.index(name)
     return table.set_column(i, table.schema.field(name), values.cast(table.schema.field(name).type))
 
@@ -129,53 +133,21 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings) -> p
             chain[rows] = cid
             status[rows] = "harmonised"
         status[has & (status == "pending")] = "pending: the reported scale is not stated"
-        table = _set(table, d, pa.array(out, type=pa.float64(), from_pandas=True))
-        table = _set(table, f"{d}_chain", pa.array(chain, type=pa.string()))
-        table = _set(table, f"{d}_status", pa.array(status, type=pa.string()))
+        table = set_column(table, d, pa.array(out, type=pa.float64(), from_pandas=True))
+        table = set_column(table, f"{d}_chain", pa.array(chain, type=pa.string()))
+        table = set_column(table, f"{d}_status", pa.array(status, type=pa.string()))
     return table
-
-
-def _ages(table: pa.Table, settings: Settings) -> pa.Table:
-    import pyarrow as pa
-    import pyarrow.compute as pc
-    from strata13.schemas.vocabularies import vocabulary
-
-    voc = vocabulary("time_scale")
-    scales = table.column("age_reported_scale").combine_chunks()
-    uniq = {s for s in scales.unique().to_pylist() if s is not None}
-    canon = {s: voc.resolve(s) for s in uniq}
-    keys = sorted(uniq)
-    canon_arr = pc.take(pa.array([canon[k] for k in keys], pa.string()),
-                        pc.index_in(scales, value_set=pa.array(keys, pa.string()))) \
-        if keys else pa.nulls(len(scales), pa.string())
-    age = table.column("age_reported_ma")
-    has = pc.is_valid(age)
-    same = pc.fill_null(pc.equal(canon_arr, settings.time_scale), False)
-    ok = pc.and_(has, same)
-    null_f, null_s = pa.scalar(None, pa.float64()), pa.scalar(None, pa.string())
-    table = _set(table, "age_ma", pc.if_else(ok, age, null_f))
-    table = _set(table, "age_sigma_ma", pc.if_else(ok, table.column("age_reported_sigma_ma"),
-                                                   null_f))
-    table = _set(table, "age_basis", pc.if_else(ok, pa.scalar("reported"), null_s))
-    table = _set(table, "time_scale", pc.if_else(ok, pa.scalar(settings.time_scale), null_s))
-    no_scale = pc.and_(has, pc.is_null(canon_arr))
-    status = pc.if_else(ok, pa.scalar("dated"), pc.if_else(
-        no_scale, pa.scalar("pending: the reported age's time scale is not stated"),
-        pc.if_else(has, pa.scalar(f"pending: conversion to {settings.time_scale} not available "
-                                  "yet"),
-                   pa.scalar("pending: no reported age; age models not available yet"))))
-    return _set(table, "age_status", status)
 
 
 def _paleo(table: pa.Table) -> pa.Table:
     import pyarrow as pa
 
     n = table.num_rows
-    return _set(table, "paleo_status",
+    return set_column(table, "paleo_status",
                 pa.array(["pending: no rotation model in the store"] * n, pa.string()))
 
 
 def _screens(table: pa.Table) -> pa.Table:
     import pyarrow as pa
 
-    return _set(table, "screen", pa.array(["untested"] * table.num_rows, pa.string()))
+    return set_column(table, "screen", pa.array(["untested"] * table.num_rows, pa.string()))

@@ -45,6 +45,8 @@ class IngestResult:
     unchanged: bool = False  # nothing would change: no new version
     dry_run: bool = False
     pending: dict[str, int] = field(default_factory=dict)
+    ties: int = 0  # age ties this source gives
+    redated: int = 0  # records of other sources whose age changed with this source's ties
 
 
 def settings_from_store(store: Store) -> Settings:
@@ -58,6 +60,8 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     step = progress or (lambda _msg: None)
     step("reading the mapping")
     mapping = load_mapping(mapping_path)
+    if mapping.table is None:
+        return _ingest_ties_only(store, sheet, mapping, dry_run, step, create)
     if sheet is not None and not sheet.is_file():
         raise InputFileError(f"{sheet} " + ("is a folder, not a sheet." if sheet.is_dir()
                                             else "does not exist."), "Check the path of the sheet.")
@@ -86,8 +90,34 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
                                "were refused; nothing was written.", report,
                                "Fix the cells listed; a source is never replaced by an empty "
                                "one.")
+    return _land(store, prepared, result, dry_run, step, create)
+
+
+def _ingest_ties_only(store: Store, sheet: Path | None, mapping: Any, dry_run: bool, step: Any,
+                      create: Any) -> IngestResult:
+    """A source of age ties only: no sheet; its ties date sections of other sources."""
+    from strata13.compile.validate import prepare_ties_only
+
+    if sheet is not None:
+        raise OptionError(f"{mapping.path.name} holds only age ties and maps no sheet.",
+                          "Run `strata13 ingest --map …` without a sheet file.")
+    if not mapping.ties:
+        raise DomainError(f"{mapping.path.name} has no ties; nothing was written.",
+                          "Add [[ties]] blocks or a [ties_table] file.")
+    prepared = prepare_ties_only(mapping)
+    return _land(store, prepared, IngestResult(mapping.source_id, prepared.report, None,
+                                               dry_run=dry_run), dry_run, step, create)
+
+
+def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step: Any,
+          create: Any) -> IngestResult:
+    """Derive and commit one prepared source (or, for a dry run, only derive it)."""
+    from strata13.compile.ties import ties_table
+
+    mapping = prepared.mapping
+    new_ties = ties_table(mapping.ties)
     if dry_run:
-        derived = derive(prepared.records, settings_from_store(store))
+        derived = _dry_run(store, prepared, new_ties)
         result.pending = _pending_counts(derived.table)
         result.committed = derived.table.num_rows
         return result
@@ -101,8 +131,23 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
         # settings are read under the lock, so the commit uses exactly what it derived with
         settings = Settings.from_stored(store.read_settings(con))
         step("deriving harmonised values and ages")
-        derived = derive(prepared.records, settings)
+        sid = mapping.source_id
+        old_ties = con.execute("SELECT * FROM lake.age_ties WHERE tie_source_id = ?",
+                               [sid]).to_arrow_table()
+        ties = _all_ties(con, sid, new_ties)
+        _check_tie_targets(con, prepared, new_ties)
+        derived = derive(prepared.records, settings, ties)
         records = derived.table
+        # sources whose sections this source's ties date (now or before) are re-dated too
+        targets = {t for t in old_ties.column("source_id").to_pylist()
+                   + new_ties.column("source_id").to_pylist() if t and t != sid}
+        others = {}
+        for other in sorted(targets):
+            recs = con.execute("SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY "
+                               "record_id", [other]).to_arrow_table()
+            if recs.num_rows:
+                others[other] = (recs, derive(recs, settings, ties))
+        result.redated = sum(_age_changes(r, d.table) for r, d in others.values())
         result.pending = _pending_counts(records)
         result.committed = records.num_rows
         result.added, result.removed, result.changed = _diff(con, mapping.source_id, records)
@@ -114,6 +159,7 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
         result.moved = _moved(con, mapping.source_id, records)
         if old is not None and tuple(old[:-2]) == _meta(mapping.source) \
                 and old[-2] == SCHEMA_VERSION and old[-1] == len(prepared.quarantine) \
+                and _same_rows(old_ties, new_ties) \
                 and not (result.added or result.removed or result.changed or result.moved):
             result.unchanged = True
             result.version = None
@@ -123,8 +169,8 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
         step("committing")
         interrupts.check()  # a Ctrl-C a library swallowed still stops us before the commit
         try:
-            result.version = _commit(store, con, prepared, records, derived.chains, settings,
-                                     result)
+            result.version = _commit(store, con, prepared, records, derived, settings,
+                                     result, new_ties, others)
         except KeyboardInterrupt:
             landed = store.latest_version() > before
             raise Interrupted(
@@ -172,6 +218,77 @@ def _diff(con: Any, source_id: str, records: pa.Table) -> tuple[int, int, int]:
     return int(added), int(removed), int(changed)
 
 
+def _all_ties(con: Any, source_id: str, new_ties: pa.Table, relation: str = "lake.age_ties"
+              ) -> pa.Table:
+    """Every stored tie except this source's old ones, plus its new ones."""
+    import pyarrow as pa
+
+    others = con.execute(f"SELECT * FROM {relation} WHERE tie_source_id IS DISTINCT FROM ?",
+                         [source_id]).to_arrow_table()
+    return pa.concat_tables([others.select(new_ties.column_names).cast(new_ties.schema),
+                             new_ties])
+
+
+def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
+    """Derive as an ingest would, against the store's ties (if the store exists)."""
+    from strata13.compile.store import is_store
+
+    settings = settings_from_store(store)
+    if not is_store(store.path):
+        _check_tie_targets(None, prepared, new_ties)
+        return derive(prepared.records, settings, new_ties)
+    con, _ = store.reader()
+    try:
+        ties = _all_ties(con, prepared.mapping.source_id, new_ties, "age_ties")
+        _check_tie_targets(con, prepared, new_ties, "records")
+    finally:
+        con.close()
+    return derive(prepared.records, settings, ties)
+
+
+def _check_tie_targets(con: Any, prepared: Any, new_ties: pa.Table,
+                       analyses: str = "lake.analyses") -> None:
+    """Every tie dates a section that exists: this source's, or one already in the store."""
+    import pyarrow.compute as pc
+
+    sid = prepared.mapping.source_id
+    own = set(pc.unique(prepared.records.column("section_id")).to_pylist()) \
+        if prepared.records.num_rows else set()
+    for t in new_ties.to_pylist():
+        if t["source_id"] == sid:
+            if t["section_id"] not in own:
+                raise DomainError(
+                    f"{prepared.mapping.path.name}: a tie names section {t['section_id']!r}, "
+                    f"which no row of source {sid!r} has; nothing was written.",
+                    "Check the tie's section (write other-source/section for a section of "
+                    "another source).")
+        elif con is not None and not con.execute(
+                f"SELECT count(*) FROM {analyses} WHERE source_id = ? AND section_id = ?",
+                [t["source_id"], t["section_id"]]).fetchone()[0]:
+            raise DomainError(
+                f"{prepared.mapping.path.name}: a tie names section "
+                f"{t['source_id']}/{t['section_id']}, which is not in the store; nothing was "
+                "written.", "Ingest that source first, or check the section's name.")
+
+
+def _same_rows(a: pa.Table, b: pa.Table) -> bool:
+    """Whether two tie tables hold the same ties (order ignored)."""
+    def rows(t: pa.Table) -> list[tuple[Any, ...]]:
+        cols = [c for c in b.column_names]
+        return sorted(tuple(str(v) for v in r.values()) for r in t.select(cols).to_pylist())
+
+    return a.num_rows == b.num_rows and rows(a) == rows(b)
+
+
+def _age_changes(before: pa.Table, after: pa.Table) -> int:
+    import numpy as np
+
+    a = before.column("age_ma").to_numpy(zero_copy_only=False).astype(float)
+    b = after.column("age_ma").to_numpy(zero_copy_only=False).astype(float)
+    same = (np.isnan(a) & np.isnan(b)) | (np.abs(a - b) <= 1e-12)
+    return int((~same).sum())
+
+
 def _pending_counts(records: pa.Table) -> dict[str, int]:
     import pyarrow.compute as pc
 
@@ -184,9 +301,11 @@ def _pending_counts(records: pa.Table) -> dict[str, int]:
     return out
 
 
-def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: dict[str, str],
-            settings: Settings, result: IngestResult) -> int:
-    """One transaction across all tables: replace the source, add chains, log the commit."""
+def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, derived: Any,
+            settings: Settings, result: IngestResult, ties: pa.Table,
+            others: dict[str, Any]) -> int:
+    """One transaction across all tables: replace the source (records, ties, age draws,
+    screen results), re-date the sources its ties date, add chains, log the commit."""
     import pyarrow as pa
     from strata13.schemas.records import PER_SOURCE, QUARANTINE, SOURCES, arrow_schema
 
@@ -200,7 +319,8 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
         "source_id": sid, "citation": src.get("citation"), "year": src.get("year"),
         "doi": src.get("doi"), "url": src.get("url"), "kind": src.get("kind"),
         "lab": src.get("lab"), "republishes": _meta(src)[META.index("republishes")],
-        "note": src.get("note"), "file_name": m.table.file.name,
+        "note": src.get("note"),
+        "file_name": m.table.file.name if m.table is not None else m.path.name,
         "file_sha256": prepared.file_sha256, "mapping_sha256": m.sha256,
         "n_records": records.num_rows, "ingested_version": version,
         "schema_version": SCHEMA_VERSION}], schema=arrow_schema(SOURCES))
@@ -213,16 +333,46 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, chains: di
                         ("localities", prepared.localities), ("sections", prepared.sections),
                         ("samples", prepared.samples), ("quarantine", quarantine)):
         if table.num_rows:
-            con.register("incoming", table)
-            con.execute(f"INSERT INTO lake.{name} SELECT * FROM incoming")
-            con.unregister("incoming")
-    store.add_chains(con, chains)
+            _insert(con, name, table)
+    con.execute("DELETE FROM lake.age_ties WHERE tie_source_id = ?", [sid])
+    if ties.num_rows:
+        _insert(con, "age_ties", ties)
+    result.ties = ties.num_rows
+    for other, (_, d) in others.items():
+        con.execute("DELETE FROM lake.analyses WHERE source_id = ?", [other])
+        store.add_parquet(con, "analyses", d.table)
+    for d_sid, d in [(sid, derived)] + [(o, d) for o, (_, d) in others.items()]:
+        replace_derived_tables(store, con, [d_sid], d)
+        store.add_chains(con, d.chains)
     summary = {"source": sid, "records": records.num_rows, "added": result.added,
                "removed": result.removed, "changed": result.changed, "moved": result.moved,
-               "quarantined": result.quarantined}
+               "quarantined": result.quarantined, "ties": ties.num_rows,
+               "redated": result.redated}
     got = store._record_commit(con, "ingest", sid, settings.hash(), summary)
     con.execute("COMMIT")
     return got
+
+
+def _insert(con: Any, name: str, table: pa.Table) -> None:
+    """Insert by column name (a migrated store's columns may sit in another order)."""
+    cols = ", ".join(f'"{c}"' for c in table.column_names)
+    con.register("incoming", table)
+    try:
+        con.execute(f"INSERT INTO lake.{name} ({cols}) SELECT {cols} FROM incoming")
+    finally:
+        con.unregister("incoming")
+
+
+def replace_derived_tables(store: Store, con: Any, source_ids: list[str] | None,
+                           derived: Any) -> None:
+    """Replace the age draws and screen results of ``source_ids`` (None: all) with
+    ``derived``'s; the records themselves are written by the caller."""
+    where, params = ("", []) if source_ids is None else (
+        f" WHERE source_id IN ({', '.join('?' for _ in source_ids)})", list(source_ids))
+    for name, table in (("age_draws", derived.draws), ("screen_results", derived.screens)):
+        con.execute(f"DELETE FROM lake.{name}{where}", params)
+        if table is not None and table.num_rows:
+            _insert(con, name, table)
 
 
 def reconcile(result: IngestResult) -> str:

@@ -30,7 +30,7 @@ from strata13.schemas.vocabularies import vocabulary
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {"source", "table", "columns", "constants", "sections", "localities",
-            "localities_table"}
+            "localities_table", "ties", "ties_table"}
 SOURCE_KEYS = {"id", "citation", "year", "doi", "url", "kind", "lab", "republishes", "note"}
 TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
 COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
@@ -65,11 +65,12 @@ class Mapping:
     path: Path
     sha256: str
     source: dict[str, Any]
-    table: TableSpec
+    table: TableSpec | None  # None: a source of age ties only
     constants: dict[str, Any]
     sections: list[dict[str, Any]]
     localities: list[dict[str, Any]]
     localities_table: TableSpec | None
+    ties: list[dict[str, Any]] = field(default_factory=list)  # stored age_ties rows
 
     @property
     def source_id(self) -> str:
@@ -205,7 +206,9 @@ def load_mapping(path: Path) -> Mapping:
         raise ConfigError(f"{path.name} is not valid TOML ({exc}).",
                           "Check quotes and brackets on the line named.") from None
     _unknown_keys("the top level", doc, TOP_KEYS, path)
-    for block in ("source", "table", "columns"):
+    ties_only = "table" not in doc and "columns" not in doc and (
+        "ties" in doc or "ties_table" in doc)
+    for block in ("source",) if ties_only else ("source", "table", "columns"):
         if not isinstance(doc.get(block), dict):
             raise ConfigError(f"{path.name} has no [{block}] block.",
                               "See the commented example "
@@ -241,6 +244,14 @@ def load_mapping(path: Path) -> Mapping:
         raise ConfigError(f"{path.name}: source {sid!r} cannot re-publish itself.",
                           "List the sources whose data this one re-publishes.")
 
+    ties = _ties(doc, path, sid)
+    if ties_only:
+        extra = sorted(set(doc) - {"source", "ties", "ties_table"})
+        if extra:
+            raise ConfigError(f"{path.name} has ties but no [table]; [{extra[0]}] needs a sheet.",
+                              "A ties-only mapping holds [source], [[ties]] and [ties_table].")
+        return Mapping(path, hashlib.sha256(raw).hexdigest(), source, None, {}, [], [], None,
+                       ties)
     table = _table(doc["table"], "[table]", path, with_columns=False)
     columns = doc["columns"]
     if not columns:
@@ -323,4 +334,23 @@ def load_mapping(path: Path) -> Mapping:
                 raise ConfigError(f"{path.name}: [localities_table] maps {c.header!r} to "
                                   f"{c.field}; only {', '.join(sorted(allowed))} belong there.", "")
     return Mapping(path, hashlib.sha256(raw).hexdigest(), source, table, constants, sections,
-                   localities, loc_table)
+                   localities, loc_table, ties)
+
+
+def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any]]:
+    """The mapping's age ties (``[[ties]]`` blocks and a ``[ties_table]`` CSV)."""
+    from strata13.compile.ties import read_ties
+
+    table_file = None
+    if "ties_table" in doc:
+        block = doc["ties_table"]
+        if not isinstance(block, dict):
+            raise ConfigError(f"{path.name}: [ties_table] must be a table with file = \"…\".", "")
+        _unknown_keys("[ties_table]", block, {"file"}, path)
+        if "file" not in block:
+            raise ConfigError(f"{path.name}: [ties_table] needs file = \"…\".",
+                              "Name the CSV of ties, relative to the mapping file.")
+        table_file = safe_path(path.parent, block["file"], "[ties_table] file", path)
+    chart = (doc.get("constants") or {}).get("age_time_scale")
+    return read_ties(path, doc.get("ties", []), table_file, source_id,
+                     str(chart) if isinstance(chart, str) else None)

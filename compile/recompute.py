@@ -15,9 +15,11 @@ from typing import Any
 
 from strata13.compile import interrupts
 from strata13.compile.derive import DERIVED_COLUMNS, Settings, derive
+from strata13.compile.ingest import replace_derived_tables
 from strata13.compile.store import Store
 
-COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "paleolat", "paleolon")
+COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "age_sigma_ma", "paleolat",
+            "paleolon")
 
 
 @dataclass
@@ -56,7 +58,8 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         after = before | change
         settings = Settings.from_stored(after)
         table = con.execute("SELECT * FROM lake.analyses ORDER BY record_id").to_arrow_table()
-        derived = derive(table, settings)
+        ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
+        derived = derive(table, settings, ties)
         result = RecomputeResult(command, None, table.num_rows, settings_before=before,
                                  settings_after=after)
         status_changed = False
@@ -74,6 +77,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         con.execute("DELETE FROM lake.analyses")
         if derived.table.num_rows:
             store.add_parquet(con, "analyses", derived.table)
+        replace_derived_tables(store, con, None, derived)
         h = settings.hash()
         store.write_settings(con, after, h)
         store.add_chains(con, derived.chains)

@@ -38,7 +38,8 @@ DATA = "data"
 LOCK = "writer.lock"
 LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
 READ_VIEWS = ("analyses", "sources", "localities", "sections", "samples", "quarantine",
-              "regions", "chains", "settings", "commits", "runs", "age_ties", "screen_results")
+              "regions", "chains", "settings", "commits", "runs", "age_ties", "age_draws",
+              "screen_results")
 
 
 @cache
@@ -244,16 +245,21 @@ class Store:
             raise StoreError(f"version {version} does not exist; this store has versions 1 to "
                              f"{latest}.", "See `strata13 history`.")
         try:
+            tables = self._tables_at(con, v)
             for name in READ_VIEWS:
                 # a version written before a column existed shows it as NULL: the views
                 # always have today's columns, so old versions stay readable
-                have = {r[0] for r in con.execute(
-                    f"DESCRIBE SELECT * FROM lake.{name} AT (VERSION => {int(v)})").fetchall()}
                 wanted = RECORDS_COLUMNS if name == "analyses" else [c for c, _ in TABLES[name]]
                 types = dict(TABLES[name])
+                view = "records" if name == "analyses" else name
+                if name not in tables:  # a table added after this version: empty, typed
+                    cols = ", ".join(f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted)
+                    con.execute(f"CREATE TEMP VIEW {view} AS SELECT {cols} WHERE false")
+                    continue
+                have = {r[0] for r in con.execute(
+                    f"DESCRIBE SELECT * FROM lake.{name} AT (VERSION => {int(v)})").fetchall()}
                 cols = ", ".join(f'"{c}"' if c in have else f'CAST(NULL AS {types[c]}) AS "{c}"'
                                  for c in wanted)
-                view = "records" if name == "analyses" else name
                 con.execute(f"CREATE TEMP VIEW {view} AS SELECT {cols} FROM lake.{name} "
                             f"AT (VERSION => {int(v)})")
         except duckdb.Error as exc:
@@ -275,6 +281,18 @@ class Store:
         return all(any(str(p.name) in n for n in names) for p in self._pending_files)
 
     @staticmethod
+    def _tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
+        """The tables that existed at ``version`` (later schema versions add tables)."""
+        names = set()
+        for name in READ_VIEWS:
+            try:
+                con.execute(f"SELECT 1 FROM lake.{name} AT (VERSION => {int(version)}) LIMIT 0")
+            except Exception:  # duckdb.Error: the table did not exist at that version
+                continue
+            names.add(name)
+        return names
+
+    @staticmethod
     def _latest(con: duckdb.DuckDBPyConnection) -> int:
         return int(con.execute("SELECT max(snapshot_id) FROM lake.snapshots()").fetchone()[0])
 
@@ -290,7 +308,14 @@ class Store:
         """Add the columns today's schema has and the store's tables lack (inside the
         caller's transaction, under the writer lock). Returns what was added."""
         added = []
+        existing = {r[0] for r in con.execute(
+            "SELECT table_name FROM duckdb_tables() WHERE database_name = 'lake'").fetchall()}
         for name, columns in TABLES.items():
+            if name not in existing:
+                cols = ", ".join(f'"{c}" {t}' for c, t in columns)
+                con.execute(f"CREATE TABLE lake.{name} ({cols})")
+                added.append(name)
+                continue
             have = {r[0]: r[1] for r in con.execute(f"DESCRIBE lake.{name}").fetchall()}
             for col, sqltype in columns:
                 if col in have and have[col] != sqltype:

@@ -69,6 +69,17 @@ class Prepared:
         return not self.report.errors
 
 
+def prepare_ties_only(mapping: Mapping) -> Prepared:
+    """A source that holds only age ties: no sheet, no records, an empty report."""
+    from strata13.schemas.records import ANALYSES, LOCALITIES, SAMPLES, SECTIONS, arrow_schema
+
+    def empty(cols: list[tuple[str, str]]) -> pa.Table:
+        return arrow_schema(cols).empty_table()
+
+    return Prepared(mapping, mapping.sha256, empty(ANALYSES), empty(LOCALITIES), empty(SECTIONS),
+                    empty(SAMPLES), [])
+
+
 def _file_sha(path: Any) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:

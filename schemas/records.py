@@ -19,7 +19,7 @@ if TYPE_CHECKING:
     import pandera.pandas as pa_schema
     import pyarrow as pa
 
-TEXT, REAL, INT, BIGINT = "VARCHAR", "DOUBLE", "INTEGER", "BIGINT"
+TEXT, REAL, INT, BIGINT, BLOB = "VARCHAR", "DOUBLE", "INTEGER", "BIGINT", "BLOB"
 
 
 def _delta_columns() -> list[tuple[str, str]]:
@@ -59,6 +59,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("screen", TEXT),
     ("original_source_id", TEXT), ("run_id", TEXT), ("note", TEXT),
     ("sheet", TEXT), ("sheet_row", INT), ("row_hash", BIGINT),
+    ("age_chain", TEXT),  # added with age models; appended so older stores migrate in place
 ]
 
 SOURCES = [
@@ -94,15 +95,24 @@ CHAINS = [("chain_id", TEXT), ("steps_json", TEXT)]
 # Filled by later capabilities; present now so no migration is needed.
 RUNS = [("source_id", TEXT), ("run_id", TEXT), ("material", TEXT), ("d13c_measured", REAL),
         ("d18o_measured", REAL), ("note", TEXT)]
+# source_id/section_id: the section a tie dates; tie_source_id: the source that gave the tie
+# (a tie source of its own survives re-ingests of the data it dates). age_sigma_ma is 1σ.
 AGE_TIES = [("source_id", TEXT), ("section_id", TEXT), ("position_m", REAL), ("age_ma", REAL),
-            ("age_sigma_ma", REAL), ("basis", TEXT), ("chart", TEXT), ("note", TEXT)]
-SCREEN_RESULTS = [("record_id", TEXT), ("rule", TEXT), ("outcome", TEXT), ("detail", TEXT)]
+            ("age_sigma_ma", REAL), ("basis", TEXT), ("chart", TEXT), ("note", TEXT),
+            ("tie_source_id", TEXT), ("tie_id", TEXT), ("position_sigma_m", REAL),
+            ("confidence", TEXT), ("boundary", TEXT), ("anchor", TEXT)]
+# Age-model draws per section, chunked: ages (float32, draws x positions, row-major) at the
+# section's distinct sample positions, on the store's time scale.
+AGE_DRAWS = [("source_id", TEXT), ("section_id", TEXT), ("chunk", INT), ("positions_json", TEXT),
+             ("n_draws", INT), ("draws", BLOB)]
+SCREEN_RESULTS = [("record_id", TEXT), ("rule", TEXT), ("outcome", TEXT), ("detail", TEXT),
+                  ("source_id", TEXT)]
 
 TABLES: dict[str, list[tuple[str, str]]] = {
     "analyses": ANALYSES, "sources": SOURCES, "localities": LOCALITIES, "sections": SECTIONS,
     "samples": SAMPLES, "quarantine": QUARANTINE, "settings": SETTINGS, "commits": COMMITS,
     "regions": REGIONS, "chains": CHAINS, "runs": RUNS, "age_ties": AGE_TIES,
-    "screen_results": SCREEN_RESULTS,
+    "age_draws": AGE_DRAWS, "screen_results": SCREEN_RESULTS,
 }
 # Tables replaced source by source on (re-)ingest.
 PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine")
@@ -123,7 +133,8 @@ RECORDS_COLUMNS = RECORDS_PUBLIC + [c for c, _ in ANALYSES if c not in RECORDS_P
 def arrow_schema(columns: list[tuple[str, str]]) -> pa.Schema:
     import pyarrow as pa
 
-    types = {TEXT: pa.string(), REAL: pa.float64(), INT: pa.int32(), BIGINT: pa.int64()}
+    types = {TEXT: pa.string(), REAL: pa.float64(), INT: pa.int32(), BIGINT: pa.int64(),
+             BLOB: pa.binary()}
     return pa.schema([(n, types[t]) for n, t in columns])
 
 

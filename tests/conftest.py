@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 from strata13.compile import api
-from strata13.compile.demo import SHEETS, demo_folder
+from strata13.compile.demo import SHEETS, TIES, demo_folder
 
 
 @pytest.fixture(scope="session")
@@ -21,6 +21,7 @@ def demo_store_session(tmp_path_factory: pytest.TempPathFactory, demo_sheets: Pa
     store = api.init_store(path, regions=demo_folder() / "regions.geojson")
     for sheet, mapping in SHEETS:
         api.ingest(store, demo_sheets / sheet, demo_sheets / mapping)
+    api.ingest(store, None, demo_sheets / TIES)
     return path
 
 

@@ -1,0 +1,270 @@
+"""Ages for every record on the store's time scale: the derive engine's age step.
+
+Order of preference per record, each with its basis and a chain of steps:
+
+1. **age model** — the record's section has at least two ties that can be put on the store's
+   time scale: whole-section Monte Carlo draws (``compile.agemodel``), reported per sample as
+   median and 1σ; samples outside the outermost ties only where the store allows
+   extrapolation (flagged);
+2. **reported** — the authors' age, converted from its chart to the store's by the meaning of
+   an age read on a chart (piecewise-linear between shared boundaries), both versions named;
+3. **stage only** — a stage name alone: the stage's midpoint with the uniform σ of its span,
+   flagged;
+4. otherwise *pending*, with the reason.
+
+Ties move to the store's time scale by their meaning: a chart-boundary tie takes the
+boundary's age and error on the store's chart (the error is drawn once per draw and shared
+by every section tied to that boundary); biozone and correlation ties move with their chart;
+radiometric ties keep their ages; astrochronologic ties keep their distance from their anchor.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.errors import DomainError
+
+if TYPE_CHECKING:
+    import numpy as np
+    import pyarrow as pa
+
+DEFAULT_DRAWS = 1000
+DEFAULT_SEED = 13
+CHUNK = 512  # sample positions per stored age_draws row
+METHOD = ("whole-section Monte Carlo draws: sequential truncated sampling of tie ages, "
+          "gamma-process accumulation between ties (after Haslett & Parnell 2008)")
+
+
+def _options(settings: Any) -> tuple[bool, int, int]:
+    extra = settings.extra
+    return (bool(extra.get("age_extrapolation", False)),
+            int(extra.get("age_draws", DEFAULT_DRAWS)), int(extra.get("age_seed", DEFAULT_SEED)))
+
+
+def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]]:
+    """Each tie's age and 1σ on ``scale``, with the step that put it there.
+
+    Adds ``age``, ``sigma``, ``shared_key`` and ``step`` to a copy of each tie. Raises
+    DomainError for a tie that cannot be placed (a boundary the chart does not have).
+    """
+    import numpy as np
+    from strata13.schemas import timescales
+
+    out = []
+    by_id = {t["tie_id"]: t for t in ties if t.get("tie_id")}
+    placed: dict[str, float] = {}
+    for t in sorted(ties, key=lambda t: t["basis"] == "astrochronologic"):
+        t = dict(t)
+        where = _tie_name(t)
+        basis = t["basis"]
+        if basis == "chart boundary":
+            chart = t["chart"] or scale
+            try:
+                unit = timescales.load(chart).unit(t["boundary"])
+                target = timescales.load(scale).by_key(unit.boundary_key)
+            except Exception as exc:  # the chart lacks the boundary: refuse, naming the tie
+                raise DomainError(f"{where}: the boundary {t['boundary']!r} cannot be placed on "
+                                  f"{scale} ({getattr(exc, 'message', exc)}).",
+                                  "Name a stage, series or period of the tie's chart.") from None
+            t["age"], t["sigma"] = target.base_ma, target.sigma_ma or 0.0
+            t["shared_key"] = f"{scale}:{target.boundary_key}"
+            t["step"] = {"tie": where, "method": "chart boundary: the boundary's base on the "
+                         "store's chart", "from": chart, "to": scale, "age_ma": t["age"]}
+        elif basis in ("biozone boundary", "correlation"):
+            new, _ = timescales.convert(np.array([t["age_ma"]]), t["chart"], scale)
+            if np.isnan(new[0]):
+                raise DomainError(f"{where}: {t['age_ma']} Ma on {t['chart']} lies outside the "
+                                  f"boundaries {t['chart']} and {scale} share.",
+                                  "Check the tie's age and chart.")
+            t["age"], t["sigma"] = float(new[0]), t["age_sigma_ma"] or 0.0
+            t["shared_key"] = (f"biozone:{t['boundary'].strip().lower()}"
+                               if basis == "biozone boundary" else None)
+            t["step"] = {"tie": where, "method": f"{basis}: moves with its chart",
+                         "from": t["chart"], "to": scale, "age_ma": t["age"]}
+        elif basis == "astrochronologic":
+            anchor = by_id.get(t["anchor"])
+            if anchor is None or anchor["tie_id"] not in placed:
+                raise DomainError(f"{where}: its anchor {t['anchor']!r} is not a tie of the same "
+                                  "section.", "Anchor it on a tie of its own section.")
+            t["age"] = placed[anchor["tie_id"]] + (t["age_ma"] - anchor["age_ma"])
+            t["sigma"] = t["age_sigma_ma"] or 0.0
+            t["shared_key"] = None
+            t["step"] = {"tie": where, "method": "astrochronologic: keeps its duration from "
+                         f"anchor {anchor['tie_id']}", "to": scale, "age_ma": t["age"]}
+        else:  # radiometric
+            t["age"], t["sigma"], t["shared_key"] = t["age_ma"], t["age_sigma_ma"] or 0.0, None
+            t["step"] = {"tie": where, "method": "radiometric: keeps its age", "age_ma": t["age"]}
+        if t.get("tie_id"):
+            placed[t["tie_id"]] = t["age"]
+        out.append(t)
+    return out
+
+
+def _tie_name(t: dict[str, Any]) -> str:
+    name = t.get("tie_id") or t.get("boundary") or t["basis"]
+    return (f"tie {name!r} of section {t['source_id']}/{t['section_id']} at "
+            f"{t['position_m']:g} m")
+
+
+def assign(table: pa.Table, ties: pa.Table | None, settings: Any,
+           chains: dict[str, str]) -> tuple[pa.Table, pa.Table]:
+    """Fill age_ma, age_sigma_ma, age_basis, time_scale, age_status and age_chain.
+
+    Returns the table and the age-model draws (``age_draws`` rows) of its sections.
+    """
+    import numpy as np
+    import pyarrow as pa
+    from strata13.compile.derive import chain_id, set_column
+    from strata13.schemas.records import AGE_DRAWS, arrow_schema
+
+    n = table.num_rows
+    scale = settings.time_scale
+    age = np.full(n, np.nan)
+    sigma = np.full(n, np.nan)
+    basis = np.full(n, None, dtype=object)
+    status = np.full(n, "pending: no reported age, stage or age model", dtype=object)
+    chain = np.full(n, None, dtype=object)
+
+    def put(rows: np.ndarray, a: np.ndarray, s: np.ndarray, b: str, st: str,
+            steps: list[dict[str, Any]]) -> None:
+        cid, text = chain_id(steps)
+        chains[cid] = text
+        age[rows], sigma[rows], basis[rows], status[rows], chain[rows] = a, s, b, st, cid
+
+    _stage_only(table, scale, put, status)
+    _reported(table, scale, put, status)
+    draws = _models(table, ties, settings, put, status, basis)
+    out = table
+    f64, txt = pa.float64(), pa.string()
+    for name, values, typ in (("age_ma", age, f64), ("age_sigma_ma", sigma, f64),
+                              ("age_basis", basis, txt), ("age_status", status, txt),
+                              ("age_chain", chain, txt)):
+        out = set_column(out, name, pa.array(values, type=typ, from_pandas=True))
+    dated = ~np.isnan(age)
+    out = set_column(out, "time_scale", pa.array(np.where(dated, scale, None), pa.string()))
+    draws_table = pa.Table.from_pylist(draws, schema=arrow_schema(AGE_DRAWS))
+    return out, draws_table
+
+
+def _stage_only(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None:
+    """Records with a stage name and no age: the stage's midpoint, uniform σ, flagged."""
+    import numpy as np
+    from strata13.compile.errors import Strata13Error
+    from strata13.schemas import timescales
+
+    stages = np.asarray(table.column("stage_reported").to_numpy(zero_copy_only=False), object)
+    has_age = ~np.isnan(table.column("age_reported_ma").to_numpy(zero_copy_only=False)
+                        .astype(float))
+    for name in sorted({s for s in stages[~has_age] if s}):
+        rows = np.flatnonzero((stages == name) & ~has_age)
+        try:
+            mid, sig, base, top = timescales.stage_age(name, scale)
+        except Strata13Error:
+            status[rows] = f"pending: stage {name!r} is not on {scale}"
+            continue
+        step = {"step": "stage only", "method": "uniform over the stage: midpoint, "
+                "σ = span/√12", "parameters": {"stage": name, "base_ma": base, "top_ma": top,
+                                               "time_scale": scale},
+                "source": f"time-scale table {scale}", "flags": ["dated to a stage only"]}
+        put(rows, np.full(len(rows), mid), np.full(len(rows), sig), "stage only",
+            "dated: stage only (uniform over the stage)", [step])
+
+
+def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None:
+    """Reported ages, moved from their chart to the store's (identity on the same chart)."""
+    import numpy as np
+    from strata13.schemas import timescales
+    from strata13.schemas.vocabularies import vocabulary
+
+    ages = table.column("age_reported_ma").to_numpy(zero_copy_only=False).astype(float)
+    sig = table.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float)
+    charts = np.asarray(table.column("age_reported_scale").to_numpy(zero_copy_only=False), object)
+    has = ~np.isnan(ages)
+    status[has & np.equal(charts, None)] = "pending: the reported age's time scale is not stated"
+    voc = vocabulary("time_scale")
+    for chart in sorted({c for c in charts[has] if c is not None}):
+        rows = np.flatnonzero(has & (charts == chart))
+        canon = voc.resolve(chart)
+        if canon is None:
+            status[rows] = f"pending: time scale {chart!r} is not known"
+            continue
+        new, step = timescales.convert(ages[rows], canon, scale)
+        ok = ~np.isnan(new)
+        status[rows[~ok]] = f"pending: outside the boundaries {canon} and {scale} share"
+        first = {"step": "reported", "method": "as reported", "parameters":
+                 {"time_scale": canon}, "source": "the authors' age"}
+        steps = [first] + ([step] if canon != scale else [])
+        no_sigma = np.isnan(sig[rows])
+        for mask, note in ((~no_sigma, "dated: reported"),
+                           (no_sigma, "dated: reported (no uncertainty given)")):
+            pick = ok & mask
+            if pick.any():
+                put(rows[pick], new[pick], sig[rows][pick], "reported", note, steps)
+
+
+def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
+            status: np.ndarray, basis: np.ndarray) -> list[dict[str, Any]]:
+    """Age models for every section of ``table`` that has two or more ties."""
+    import json
+
+    import numpy as np
+    from strata13.compile import agemodel
+
+    if ties is None or ties.num_rows == 0 or table.num_rows == 0:
+        return []
+    scale = settings.time_scale
+    extrapolate, n_draws, seed = _options(settings)
+    src = np.asarray(table.column("source_id").to_numpy(zero_copy_only=False), object)
+    sec = np.asarray(table.column("section_id").to_numpy(zero_copy_only=False), object)
+    pos = table.column("position_m").to_numpy(zero_copy_only=False).astype(float)
+    top = table.column("top_m").to_numpy(zero_copy_only=False).astype(float)
+    base = table.column("base_m").to_numpy(zero_copy_only=False).astype(float)
+    pos = np.where(np.isnan(pos), (top + base) / 2, pos)
+    kinds = np.asarray(table.column("position_kind").to_numpy(zero_copy_only=False), object)
+    by_section: dict[tuple[str, str], list[dict[str, Any]]] = {}
+    for t in ties.to_pylist():
+        by_section.setdefault((t["source_id"], t["section_id"]), []).append(t)
+    wanted = {(s, c) for s, c in zip(src, sec, strict=True)}
+    placed = {k: ties_on_scale(v, scale) for k, v in sorted(by_section.items()) if k in wanted}
+    keys = sorted({t["shared_key"] for v in placed.values() for t in v if t["shared_key"]})
+    shared = agemodel.shared_offsets(keys, n_draws, seed)
+    draws_rows: list[dict[str, Any]] = []
+    for (s, c), tl in sorted(placed.items()):
+        rows = np.flatnonzero((src == s) & (sec == c))
+        if len(tl) < 2:
+            status[rows[np.isnan(pos[rows])]] = "pending: no position"
+            continue
+        kind = str(kinds[rows[0]] or "height")
+        model_ties = [agemodel.Tie(position_m=t["position_m"], age_ma=t["age"],
+                                   age_sigma_ma=t["sigma"], basis=t["basis"],
+                                   boundary_key=t["shared_key"], note=_tie_name(t))
+                      for t in tl]
+        agemodel.validate_ties(model_ties, kind)
+        have = rows[~np.isnan(pos[rows])]
+        uniq, inverse = np.unique(pos[have], return_inverse=True)
+        res = agemodel.draw_section(uniq, model_ties, kind, n_draws,
+                                    agemodel.section_seed(f"{s}/{c}", seed), shared,
+                                    allow_extrapolation=extrapolate)
+        d = res.draws
+        summary = agemodel.summarise(d)
+        steps = [{"step": "age model", "method": METHOD, "parameters":
+                  agemodel.parameters(n_draws, seed, allow_extrapolation=extrapolate)
+                  | {"time_scale": scale}, "ties": [t["step"] for t in tl],
+                  "source": "the section's age ties"}]
+        inside = ~np.isnan(summary.median)
+        flagged = res.flags == agemodel.EXTRAPOLATED
+        for mask, note in ((inside & ~flagged, "dated: age model"),
+                           (inside & flagged, "dated: age model, extrapolated beyond the ties")):
+            if mask.any():
+                pick = np.isin(inverse, np.flatnonzero(mask))
+                put(have[pick], summary.median[inverse[pick]], summary.sigma[inverse[pick]],
+                    "age model", note, steps)
+        outside = have[np.isin(inverse, np.flatnonzero(~inside))]
+        left = outside[np.equal(basis[outside], None)]
+        status[left] = "pending: outside the section's ties (extrapolation is off)"
+        for i in range(0, len(uniq), CHUNK):
+            block = d[:, i:i + CHUNK].astype("<f4")
+            draws_rows.append({"source_id": s, "section_id": c, "chunk": i // CHUNK,
+                               "positions_json": json.dumps([float(x) for x in uniq[i:i + CHUNK]]),
+                               "n_draws": n_draws, "draws": block.tobytes(order="C")})
+    return draws_rows
