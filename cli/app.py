@@ -8,6 +8,7 @@ from typing import Annotated
 
 import typer
 from strata13.cli import (
+    chrono,
     demo,
     explain,
     export,
@@ -55,6 +56,9 @@ app.command("export")(export.export)
 app.command("explain")(explain.explain)
 app.command("scales")(scales.scales)
 app.command("reharmonise")(reharmonise.reharmonise)
+app.command("stages")(chrono.stages)
+app.command("redate")(chrono.redate)
+app.command("agemodel")(chrono.agemodel)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -14,7 +14,11 @@ FormatOpt = Annotated[str, typer.Option("--format", help="table | csv | json | p
 OutOpt = Annotated[Path | None, typer.Option("--out", help="Write to this file instead of "
                                              "stdout.", show_default=False)]
 IntervalOpt = Annotated[str | None, typer.Option(
-    "--interval", help="Time bin: 'A-B' in Ma (either order).", show_default=False)]
+    "--interval", help="Time bin: a stage, series or period name, NAME..NAME, or 'A-B' in Ma "
+    "(either order).", show_default=False)]
+TimeScaleOpt = Annotated[str | None, typer.Option(
+    "--time-scale", help="Chart the --interval is read on (default: the store's).",
+    show_default=False)]
 RegionOpt = Annotated[str | None, typer.Option(
     "--region", help="A region name of the store, a GeoJSON file, or bbox:W,S,E,N.",
     show_default=False)]
@@ -49,18 +53,27 @@ def check_format(fmt: str, out: Path | None, store: Path | None = None,
 
 def build_filters(store: Any, interval: str | None, region: str | None,
                   frame: str, lithology: list[str] | None, component: list[str] | None,
-                  source: list[str] | None, screened: str) -> Any:
+                  source: list[str] | None, screened: str, time_scale: str | None = None) -> Any:
     """Turn the FILTERS options into the library's Filters (validated, vocabulary-checked)."""
     from strata13.compile import api
     from strata13.compile.errors import OptionError
-    from strata13.compile.query import SCREENED, Filters, check_vocab, parse_interval
+    from strata13.compile.query import SCREENED, Filters, check_vocab
 
     if frame not in ("present", "paleo"):
         raise OptionError(f"--frame {frame!r} is not present or paleo.", "")
     if screened not in SCREENED:
         raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.", "")
+    if time_scale is not None and not interval:
+        raise OptionError("--time-scale names the chart of --interval, which is not given.",
+                          "Add --interval NAME, or leave out --time-scale.")
+    iv = api.interval(store, interval, time_scale) if interval else None
+    for note in iv.notes if iv else []:
+        from strata13.cli import render
+
+        render.note(f"--interval: {note}")
     return Filters(
-        interval=parse_interval(interval) if interval else None,
+        interval=(iv.younger_ma, iv.older_ma) if iv else None,
+        interval_info=iv.describe() if iv else None,
         region=api.region(store, region) if region else None,
         frame=frame,
         lithology=check_vocab(lithology or [], "lithology", "--lithology"),

@@ -16,12 +16,13 @@ from strata13.cli.common import (
     ScreenedOpt,
     SourceOpt,
     StoreOpt,
+    TimeScaleOpt,
     build_filters,
 )
 
 
 def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
-           interval: IntervalOpt = None,
+           interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
            region: RegionOpt = None, frame: FrameOpt = "present",
            lithology: LithologyOpt = None, component: ComponentOpt = None,
            source: SourceOpt = None, screened: ScreenedOpt = "all",
@@ -33,7 +34,7 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
 
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened)
+                            source, screened, time_scale)
     res = api.export(s, out, filters, as_of)
     render.message(f"exported {res.records} records of version {res.version} to {res.out}")
     for name, sha in sorted(res.files.items()):

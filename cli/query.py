@@ -17,6 +17,7 @@ from strata13.cli.common import (
     ScreenedOpt,
     SourceOpt,
     StoreOpt,
+    TimeScaleOpt,
     build_filters,
     check_format,
 )
@@ -25,7 +26,7 @@ BRIEF = ["record_id", "source_id", "section_id", "sample_id", "position_m", "age
          "component", "d13c_carb", "d18o_carb", "screen"]
 
 
-def query(interval: IntervalOpt = None,
+def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
           region: RegionOpt = None, frame: FrameOpt = "present",
           lithology: LithologyOpt = None, component: ComponentOpt = None,
           source: SourceOpt = None, screened: ScreenedOpt = "all",
@@ -39,7 +40,7 @@ def query(interval: IntervalOpt = None,
     check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened)
+                            source, screened, time_scale)
     tbl = api.query_arrow(s, filters)
     if fmt == "table" and not all_columns:
         tbl = tbl.select(BRIEF)

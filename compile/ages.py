@@ -106,12 +106,17 @@ def _tie_name(t: dict[str, Any]) -> str:
             f"{t['position_m']:g} m")
 
 
-def assign(table: pa.Table, ties: pa.Table | None, settings: Any,
-           chains: dict[str, str]) -> tuple[pa.Table, pa.Table]:
+def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[str, str],
+           strict: bool = True, conflicts: list[str] | None = None
+           ) -> tuple[pa.Table, pa.Table]:
     """Fill age_ma, age_sigma_ma, age_basis, time_scale, age_status and age_chain.
 
-    Returns the table and the age-model draws (``age_draws`` rows) of its sections.
+    Returns the table and the age-model draws (``age_draws`` rows) of its sections. Ties
+    that contradict each other on the store's chart raise DomainError when ``strict`` (an
+    ingest); otherwise (a recompute) their section keeps its other ages, its status says
+    why, and the conflict is appended to ``conflicts``.
     """
+    conflicts = [] if conflicts is None else conflicts
     import numpy as np
     import pyarrow as pa
     from strata13.compile.derive import chain_id, set_column
@@ -133,7 +138,7 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any,
 
     _stage_only(table, scale, put, status)
     _reported(table, scale, put, status)
-    draws = _models(table, ties, settings, put, status, basis)
+    draws = _models(table, ties, settings, put, status, basis, strict, conflicts)
     out = table
     f64, txt = pa.float64(), pa.string()
     for name, values, typ in (("age_ma", age, f64), ("age_sigma_ma", sigma, f64),
@@ -203,7 +208,8 @@ def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None
 
 
 def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
-            status: np.ndarray, basis: np.ndarray) -> list[dict[str, Any]]:
+            status: np.ndarray, basis: np.ndarray, strict: bool, conflicts: list[str]
+            ) -> list[dict[str, Any]]:
     """Age models for every section of ``table`` that has two or more ties."""
     import json
 
@@ -239,7 +245,17 @@ def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
                                    age_sigma_ma=t["sigma"], basis=t["basis"],
                                    boundary_key=t["shared_key"], note=_tie_name(t))
                       for t in tl]
-        agemodel.validate_ties(model_ties, kind)
+        try:
+            agemodel.validate_ties(model_ties, kind)
+        except DomainError as exc:
+            if strict:  # ties being ingested: refuse them
+                raise
+            # a recompute (another chart) made consistent ties contradict each other: the
+            # section falls back to its other ages and says why; the store stays usable
+            left = rows[np.equal(basis[rows], None)]
+            status[left] = f"pending: the section's ties contradict each other on {scale}"
+            conflicts.append(f"{s}/{c}: {exc.message}")
+            continue
         have = rows[~np.isnan(pos[rows])]
         uniq, inverse = np.unique(pos[have], return_inverse=True)
         res = agemodel.draw_section(uniq, model_ties, kind, n_draws,

@@ -224,6 +224,59 @@ def reharmonise(store: Store, vsmow_constants: str | None = None) -> Any:
     return recompute(store, change, "reharmonise")
 
 
+def interval(store: Store | None, text: str, time_scale: str | None = None) -> Any:
+    """``--interval`` text (stage/series/period name, NAME..NAME or A-B Ma) as an interval
+    on the store's chart; names resolve on ``time_scale`` if given, else the store's."""
+    from strata13.compile.chronology import resolve
+
+    return resolve(text, store, time_scale)
+
+
+def stages(store: Store | None = None, time_scale: str | None = None,
+           interval: str | None = None) -> tuple[Any, list[dict[str, Any]], list[str]]:
+    """(chart, its units, notes): ``time_scale`` (a version or a CSV table), else the
+    store's chart, else the current one; only units overlapping ``interval`` if given."""
+    from strata13.compile import chronology
+
+    scale = chronology.chart(time_scale, store)
+    rows, notes = chronology.stages(scale, interval)
+    return scale, rows, notes
+
+
+def redate(store: Store, time_scale: str | None = None, extrapolation: bool | None = None,
+           draws: int | None = None) -> Any:
+    """Change the store's chart or age-model settings and re-derive every age (one commit,
+    or none when nothing changes); returns a RecomputeResult."""
+    from strata13.compile.recompute import recompute
+    from strata13.schemas import timescales
+
+    change: dict[str, Any] = {}
+    if time_scale is not None:
+        change["time_scale"] = timescales.load(time_scale).version
+    if extrapolation is not None:
+        change["age_extrapolation"] = bool(extrapolation)
+    if draws is not None:
+        if not 100 <= draws <= 100_000:
+            raise OptionError(f"--draws {draws} is outside 100 … 100000.",
+                              "1000 draws give stable 95 % ranges (common practice).")
+        change["age_draws"] = int(draws)
+    return recompute(store, change, "redate")
+
+
+def agemodel(store: Store, section: str) -> Any:
+    """One section's ties (as given and on the store's chart) and its age-model draws."""
+    from strata13.compile.chronology import section_model
+
+    return section_model(store, section)
+
+
+def plot_agemodel(model: Any, path: str | Path) -> Path:
+    """Write a section model's age–position figure (PNG)."""
+    from strata13.compile.chronology import plot_model
+
+    return plot_model(model, Path(path))
+
+
 def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
     """The shipped reference-material values and VSMOW–VPDB relations, each with its source;
     with a store, the relation the store uses is marked ``in_store``."""

@@ -62,6 +62,7 @@ class Derived:
     chains: dict[str, str]  # chain id -> steps JSON
     draws: pa.Table | None = None  # age-model draws per section (age_draws rows)
     screens: pa.Table | None = None  # screen results, long form (screen_results rows)
+    conflicts: list[str] = field(default_factory=list)  # sections whose ties contradict
 
 
 def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
@@ -69,17 +70,24 @@ def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
     return hashlib.sha256(text.encode()).hexdigest()[:16], text
 
 
-def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None) -> Derived:
+def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
+           strict: bool = True) -> Derived:
     """Fill the derived columns of ``records`` from its reported columns, ``settings`` and
-    the age ties of its sections (``ties``: age_ties rows; others are ignored)."""
+    the age ties of its sections (``ties``: age_ties rows; others are ignored).
+
+    ``strict`` (ingest): contradictory ties are refused. A recompute passes False: a section
+    whose ties contradict each other on the new chart keeps its other ages, and
+    ``Derived.conflicts`` lists it.
+    """
     from strata13.compile import ages
 
     chains: dict[str, str] = {}
+    conflicts: list[str] = []
     table = _harmonise(records, chains, settings)
-    table, draws = ages.assign(table, ties, settings, chains)
+    table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
     table = _paleo(table)
     table = _screens(table)
-    return Derived(table, chains, draws)
+    return Derived(table, chains, draws, conflicts=conflicts)
 
 
 def set_column(table: pa.Table, name: str, values: pa.Array) -> pa.Table:

@@ -46,6 +46,7 @@ class Filters:
     component: list[str] = field(default_factory=list)
     source: list[str] = field(default_factory=list)
     screened: str = "all"
+    interval_info: dict[str, Any] | None = None  # how --interval was read (for manifests)
 
     def where(self) -> tuple[str, list[Any]]:
         parts: list[str] = []
@@ -73,6 +74,7 @@ class Filters:
     def describe(self) -> dict[str, Any]:
         """The filter as plain data, for manifests and messages."""
         return {"interval_ma": list(self.interval) if self.interval else None,
+                "interval": self.interval_info,
                 "region": self.region.describe() if self.region else None,
                 "frame": self.frame, "lithology": self.lithology, "component": self.component,
                 "source": self.source, "screened": self.screened}

@@ -32,6 +32,7 @@ class RecomputeResult:
     median_change: dict[str, float] = field(default_factory=dict)
     settings_before: dict[str, Any] = field(default_factory=dict)
     settings_after: dict[str, Any] = field(default_factory=dict)
+    conflicts: list[str] = field(default_factory=list)  # sections left without an age model
 
 
 def _changes(old: Any, new: Any) -> tuple[int, float, float]:
@@ -59,9 +60,9 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         settings = Settings.from_stored(after)
         table = con.execute("SELECT * FROM lake.analyses ORDER BY record_id").to_arrow_table()
         ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
-        derived = derive(table, settings, ties)
+        derived = derive(table, settings, ties, strict=False)
         result = RecomputeResult(command, None, table.num_rows, settings_before=before,
-                                 settings_after=after)
+                                 settings_after=after, conflicts=derived.conflicts)
         status_changed = False
         for col in table.column_names:
             if col in DERIVED_COLUMNS and col != "row_hash" and col not in COMPARED:

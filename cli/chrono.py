@@ -1,0 +1,100 @@
+"""`strata13 stages`, `redate` and `agemodel`: charts, the store's chart, age models."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+from strata13.cli import render
+from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
+
+STAGE_HEADERS = ["name", "rank", "parent", "base_ma", "top_ma", "±", "level", "1σ", "~", "note"]
+TIE_COLUMNS = ["position_m", "basis", "boundary", "given_age_ma", "chart", "age_ma", "sigma_ma",
+               "shared", "from_source", "note"]
+
+
+def stages(time_scale: Annotated[str | None, typer.Option(
+               "--time-scale", help="Chart version, or a CSV table of the same format "
+               "(default: the store's, else ICS2024/12).", show_default=False)] = None,
+           interval: Annotated[str | None, typer.Option(
+               "--interval", help="Only units overlapping this name, NAME..NAME or A-B Ma.",
+               show_default=False)] = None,
+           fmt: FormatOpt = "table", out: OutOpt = None,
+           store: StoreOpt = None) -> None:
+    """List a chart's stages, series and periods with base ages and uncertainties (the ±
+    as the chart states it, its level, and 1σ); works without a store."""
+    from strata13.compile import api
+
+    check_format(fmt, out, store, allowed=("table", "csv", "json"))
+    s = api.open_store(store) if store is not None else None
+    scale, rows, notes = api.stages(s, time_scale, interval)
+    for n in notes:
+        render.note(n)
+    cols = list(rows[0]) if rows else []
+    render.table(STAGE_HEADERS if fmt == "table" else cols,
+                 [[r[c] for c in cols] for r in rows], fmt, out,
+                 title=f"{scale.version} — {scale.source}")
+    render.note(f"{len(rows)} units of {scale.version}"
+                + (" (the store's chart)" if s is not None and time_scale is None else ""))
+
+
+def redate(time_scale: Annotated[str | None, typer.Option(
+               "--time-scale", help="The store's new chart version.", show_default=False)] = None,
+           extrapolation: Annotated[bool | None, typer.Option(
+               "--extrapolate/--no-extrapolate", help="Store setting: date samples beyond the "
+               "outermost ties (flagged).", show_default=False)] = None,
+           draws: Annotated[int | None, typer.Option(
+               "--draws", help="Store setting: age-model draws per section.",
+               show_default=False)] = None,
+           store: StoreOpt = None) -> None:
+    """Put every age on another chart (or change the age-model settings) in one commit."""
+    from strata13.compile import api
+
+    res = api.redate(api.open_store(api.store_path(store)), time_scale, extrapolation, draws)
+    if res.version is None:
+        render.message(f"0 changed: {res.records} records already match these settings; "
+                       "no new version.")
+        return
+    before, after = res.settings_before.get("time_scale"), res.settings_after.get("time_scale")
+    render.message(f"redated {res.records} records as version {res.version}"
+                   + (f" ({before} → {after})" if before != after else "") + ".")
+    for col, n in sorted(res.changed.items()):
+        render.message(f"  {col}: {n} values changed; largest change "
+                       f"{res.max_change[col]:.4g} Myr, median {res.median_change[col]:.4g} Myr")
+    if not res.changed:
+        render.message("  no age changed (settings and statuses were updated).")
+    for c in res.conflicts:
+        render.message(f"  no age model for {c}")
+
+
+def agemodel(section: Annotated[str, typer.Argument(help="Section id, or SOURCE/SECTION.")],
+             plot: Annotated[Path | None, typer.Option(
+                 "--plot", help="Write the age–position figure (PNG) here.",
+                 show_default=False)] = None,
+             fmt: FormatOpt = "table", out: OutOpt = None,
+             store: StoreOpt = None) -> None:
+    """A section's ties (as given and on the store's chart) and its age model."""
+    from strata13.compile import api
+    from strata13.compile.outputs import output_file
+
+    path = api.store_path(store)
+    check_format(fmt, out, path, allowed=("table", "csv", "json"))
+    if plot is not None:
+        output_file(plot, option="--plot", stores=[path])
+    m = api.agemodel(api.open_store(path), section)
+    rows = [[t["position_m"], t["basis"], t.get("boundary"), t.get("age_ma"), t.get("chart"),
+             t["age"], t["sigma"], t["shared_key"] or "", t["tie_source_id"], t.get("note")]
+            for t in m.ties]
+    render.table(TIE_COLUMNS, rows, fmt, out,
+                 title=f"ties of {m.source_id}/{m.section_id} ({m.position_kind}; ages on "
+                       f"{m.time_scale}, σ = 1σ)")
+    basis = ", ".join(f"{k} {v}" for k, v in sorted(m.basis_counts.items()))
+    if m.draws.size:
+        render.note(f"age model: {m.draws.shape[0]} draws at {len(m.positions)} positions; "
+                    f"{m.records} records ({basis})")
+    else:
+        render.note(f"no age model ({len(m.ties)} ties; two or more are needed); "
+                    f"{m.records} records ({basis})")
+    if plot is not None:
+        render.message(f"wrote {api.plot_agemodel(m, plot)}")
