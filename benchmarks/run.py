@@ -16,6 +16,9 @@ it. Cases:
   box. Target: ratio ≤ 2.
 * help    — ``strata13 --help`` as a subprocess against ``python -c pass``. Target: ours
   ≤ 0.5 s absolute.
+* agemodel — ``agemodel.draw_section`` for 1000 draws of 100 000 samples in 200 sections
+  against as many ``numpy.interp`` calls on fixed knots (see ``agemodel.py``). Targets:
+  ratio ≤ 3; traced peak memory ≤ 10 % of all draws at once.
 
 Inputs come from ``generate.py`` (cached under ``_data/``); scratch stores go to ``_work/``.
 """
@@ -464,6 +467,17 @@ def case_help(repeat: int) -> Outcome:
     return out
 
 
+# ------------------------------------------------------------------ agemodel
+
+
+def case_agemodel(repeat: int, quick: bool) -> Outcome:
+    """Age-model draws against plain interpolation (benchmarks/agemodel.py)."""
+    import agemodel  # sibling module
+
+    res = agemodel.measure(100 if quick else 1000, repeat=repeat)
+    return Outcome([Row(*r) for r in agemodel.rows(res)], agemodel.notes(res))
+
+
 # ------------------------------------------------------------------ main
 
 
@@ -483,12 +497,13 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--quick", action="store_true",
                    help=f"smoke sizes: {generate.QUICK_ROWS:,} rows, "
                         f"{generate.QUICK_RECORDS:,} records")
-    p.add_argument("--cases", default="ingest,query,help",
-                   help="comma list of ingest, query, help (default: all)")
+    p.add_argument("--cases", default="ingest,query,help,agemodel",
+                   help="comma list of ingest, query, help, agemodel (default: all)")
     p.add_argument("--rows", type=int, help="ingest sheet rows (overrides the size)")
     p.add_argument("--records", type=int, help="query store records (overrides the size)")
     p.add_argument("--repeat", type=int, default=0,
-                   help="timed runs per case (default: ingest 1, query 3, help 5)")
+                   help="timed runs per case (default: ingest 1, query 3, help 5, "
+                        "agemodel 3)")
     p.add_argument("--profile", action="store_true",
                    help="also profile one ingest with cProfile and list the hotspots")
     p.add_argument("--child-ingest", nargs=3, metavar=("STORE", "MAPPING", "WARMUP"),
@@ -505,7 +520,7 @@ def main(argv: list[str] | None = None) -> int:
         return 0
 
     cases = [c.strip() for c in args.cases.split(",") if c.strip()]
-    unknown = set(cases) - {"ingest", "query", "help"}
+    unknown = set(cases) - {"ingest", "query", "help", "agemodel"}
     if unknown:
         p.error(f"unknown case(s): {', '.join(sorted(unknown))}")
     rows = args.rows or (generate.QUICK_ROWS if args.quick else generate.FULL_ROWS)
@@ -520,6 +535,8 @@ def main(argv: list[str] | None = None) -> int:
             outcomes.append(case_ingest(rows, args.repeat or 1, args.profile))
         elif c == "query":
             outcomes.append(case_query(records, args.repeat or 3))
+        elif c == "agemodel":
+            outcomes.append(case_agemodel(args.repeat or 3, args.quick))
         else:
             outcomes.append(case_help(args.repeat or 5))
         print(f"  {c} done in {time.perf_counter() - t:.0f} s", file=sys.stderr, flush=True)

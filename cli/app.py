@@ -18,6 +18,7 @@ from strata13.cli import (
     query,
     reharmonise,
     scales,
+    screen,
 )
 
 from strata13 import __version__
@@ -59,6 +60,7 @@ app.command("reharmonise")(reharmonise.reharmonise)
 app.command("stages")(chrono.stages)
 app.command("redate")(chrono.redate)
 app.command("agemodel")(chrono.agemodel)
+app.command("screen")(screen.screen)
 
 
 def main(argv: list[str] | None = None) -> None:

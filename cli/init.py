@@ -15,10 +15,17 @@ def init(store: StoreOpt = None,
                                                  "store's ages.")] = "ICS2024/12",
          regions: Annotated[Path | None, typer.Option("--regions", help="GeoJSON "
                                                       "FeatureCollection of named regions.",
-                                                      show_default=False)] = None) -> None:
+                                                      show_default=False)] = None,
+         rules: Annotated[Path | None, typer.Option("--rules", help="Screening rule file "
+                                                    "(TOML; default: the shipped rules).",
+                                                    show_default=False)] = None,
+         extrapolate: Annotated[bool, typer.Option(
+             "--extrapolate-ages", help="Let age models date samples beyond their outermost "
+             "ties (flagged). Off by default.")] = False) -> None:
     """Create a new, empty store and choose its settings."""
     from strata13.compile import api
 
-    s = api.init_store(api.store_path(store), time_scale=time_scale, regions=regions)
+    s = api.init_store(api.store_path(store), time_scale=time_scale, regions=regions,
+                       rules=rules, age_extrapolation=extrapolate)
     render.message(f"created store {s.path} (version 1; time scale "
                    f"{api.open_store(s.path).settings()['time_scale']})")

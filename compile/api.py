@@ -46,9 +46,24 @@ def open_store(path: str | Path) -> Store:
     return Store.open(Path(path))
 
 
+def rules_settings(rules: str | Path | None, untested_passes: bool | None = None
+                   ) -> dict[str, Any]:
+    """Store settings for a screening rule file (None: the shipped default rules)."""
+    from strata13.compile.screening.rules import load_rules
+
+    rs = load_rules(rules)
+    out: dict[str, Any] = {"screen_rules": rs.canonical_text(), "screen_rules_sha256": rs.sha256,
+                           "screen_rules_name": f"{rs.name} {rs.version}".strip()}
+    if untested_passes is not None:
+        out["screen_untested_passes"] = bool(untested_passes)
+    return out
+
+
 def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
-               regions: str | Path | None = None, made_by: str = "init") -> Store:
-    """Create a store with its settings (time scale) and optional named regions."""
+               regions: str | Path | None = None, made_by: str = "init",
+               rules: str | Path | None = None, age_extrapolation: bool = False) -> Store:
+    """Create a store with its settings (time scale, screening rules, whether age models
+    extrapolate beyond their ties) and optional named regions."""
     from strata13.compile.regions import load_regions_file
     from strata13.schemas.vocabularies import vocabulary
 
@@ -62,7 +77,9 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
     from strata13.compile.harmonise.oxygen import DEFAULT as VSMOW_DEFAULT
 
     named = load_regions_file(Path(regions)) if regions else []
-    settings = Settings(time_scale=ts, extra={"vsmow_constants": VSMOW_DEFAULT})
+    settings = Settings(time_scale=ts, extra={
+        "vsmow_constants": VSMOW_DEFAULT, "age_extrapolation": bool(age_extrapolation),
+        **rules_settings(rules, untested_passes=False)})
     return Store.create(Path(path), settings.stored(),
                         settings.hash(),
                         [(n, g, Path(regions).name) for n, g in named] if regions else [],
@@ -169,15 +186,15 @@ def export(store: Store, out: str | Path, filters: Filters | None = None,
            as_of: int | None = None) -> ExportResult:
     import duckdb
     from strata13.compile import export as _export
-    from strata13.compile.ingest import settings_from_store
     from strata13.compile.outputs import output_dir
 
     output_dir(Path(out), option="--out", stores=[store.path])
     con, version = store.reader(as_of)
     try:
-        settings_hash = settings_from_store(store).hash()
-        return _export.export(con, version, Path(out), filters or Filters(), settings_hash,
-                              store.path)
+        stored = store.settings(version)
+        return _export.export(con, version, Path(out), filters or Filters(),
+                              Settings.from_stored(stored).hash(), store.path,
+                              {k: v for k, v in stored.items() if k != "screen_rules"})
     except (duckdb.IOException, duckdb.InvalidInputException) as exc:
         raise _store_read_error(exc, store) from None
     finally:
@@ -268,6 +285,46 @@ def agemodel(store: Store, section: str) -> Any:
     from strata13.compile.chronology import section_model
 
     return section_model(store, section)
+
+
+def screen(store: Store, rules: str | Path | None = None,
+           untested_passes: bool | None = None) -> Any:
+    """Set the store's screening rules (a rule file; None keeps the store's) and whether
+    untested counts as pass, and re-screen every record in one commit (none when nothing
+    changes); returns a RecomputeResult."""
+    from strata13.compile.recompute import recompute
+
+    change: dict[str, Any] = {}
+    if rules is not None:
+        change |= rules_settings(rules)
+    if untested_passes is not None:
+        change["screen_untested_passes"] = bool(untested_passes)
+    return recompute(store, change, "screen")
+
+
+def screen_report(store: Store, filters: Filters | None = None) -> Any:
+    """The stored records re-screened with the store's rules, for the summary and the
+    cross-plots: (records, Screening(results, overall, groups), counts per source, section,
+    rule and outcome)."""
+    from strata13.compile.derive import rule_set
+    from strata13.compile.screening.evaluate import evaluate, summarise
+
+    records = query_arrow(store, filters)
+    settings = Settings.from_stored(store.settings())
+    res = evaluate(records, rule_set(settings),
+                   bool(settings.extra.get("screen_untested_passes", False)))
+    return records, res, summarise(records, res.results)
+
+
+def screen_plots(store: Store, records: Any, screening: Any, out: str | Path) -> list[Path]:
+    """One δ13C–δ18O cross-plot per section (PNG) into folder ``out``."""
+    from strata13.compile.outputs import output_dir
+    from strata13.compile.screening.plots import cross_plots
+
+    folder = Path(out)
+    output_dir(folder, option="--plot", stores=[store.path])
+    folder.mkdir(parents=True, exist_ok=True)
+    return cross_plots(records, screening.results, screening.groups, folder)
 
 
 def plot_agemodel(model: Any, path: str | Path) -> Path:

@@ -86,8 +86,8 @@ def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
     table = _harmonise(records, chains, settings)
     table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
     table = _paleo(table)
-    table = _screens(table)
-    return Derived(table, chains, draws, conflicts=conflicts)
+    table, screens = _screens(table, settings)
+    return Derived(table, chains, draws, screens, conflicts)
 
 
 def set_column(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
@@ -155,7 +155,30 @@ def _paleo(table: pa.Table) -> pa.Table:
                 pa.array(["pending: no rotation model in the store"] * n, pa.string()))
 
 
-def _screens(table: pa.Table) -> pa.Table:
-    import pyarrow as pa
+def rule_set(settings: Settings) -> Any:
+    """The store's screening rules (the shipped default where a store predates them)."""
+    from strata13.compile.screening.rules import load_rules, parse_canonical
 
-    return set_column(table, "screen", pa.array(["untested"] * table.num_rows, pa.string()))
+    text = settings.extra.get("screen_rules")
+    return parse_canonical(text) if text else load_rules(None)
+
+
+def _screens(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
+    """The screen column (pass / fail / untested) and the long results of every rule.
+
+    Runs on harmonised δ values and ages, so it comes last; it reads, never changes, any
+    other column. Whether an untested rule counts as passed is the store's setting.
+    """
+    import pyarrow as pa
+    from strata13.compile.screening.evaluate import evaluate
+    from strata13.schemas.records import SCREEN_RESULTS, arrow_schema
+
+    res = evaluate(table, rule_set(settings),
+                   bool(settings.extra.get("screen_untested_passes", False)))
+    out = set_column(table, "screen", res.overall.column("screen"))
+    n_rules = res.results.num_rows // table.num_rows if table.num_rows else 0
+    src = pa.chunked_array([table.column("source_id")] * n_rules).combine_chunks() \
+        if n_rules else pa.array([], pa.string())
+    long = res.results.append_column("source_id", src) if n_rules else \
+        arrow_schema(SCREEN_RESULTS).empty_table()
+    return out, long.select([c for c, _ in SCREEN_RESULTS]).cast(arrow_schema(SCREEN_RESULTS))

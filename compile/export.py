@@ -101,8 +101,9 @@ def _bibtex(sources: list[dict[str, Any]]) -> str:
 
 
 def export(con: Any, version: int, out: Path, filters: Filters, settings_hash: str,
-           store_path: Path) -> ExportResult:
-    """Write the export folder for ``version`` (``con`` is a reader pinned to it)."""
+           store_path: Path, settings: dict[str, Any] | None = None) -> ExportResult:
+    """Write the export folder for ``version`` (``con`` is a reader pinned to it);
+    ``settings`` (time scale, screening rule set and its hash, …) go into the manifest."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -139,7 +140,8 @@ def export(con: Any, version: int, out: Path, filters: Filters, settings_hash: s
     manifest = {
         "tool": "strata13", "tool_version": __version__, "schema_version": SCHEMA_VERSION,
         "store_version": version, "store_version_time": snap[0] if snap else None,
-        "settings_hash": settings_hash, "filters": filters.describe(), "counts": counts,
+        "settings_hash": settings_hash, "settings": settings or {},
+        "filters": filters.describe(), "counts": counts,
         "files": [{"path": k, "sha256": v} for k, v in sorted(files.items())],
         "reproduce": f"strata13 export --store {store_path.name} --as-of {version} --out DIR",
     }

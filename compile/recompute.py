@@ -33,6 +33,7 @@ class RecomputeResult:
     settings_before: dict[str, Any] = field(default_factory=dict)
     settings_after: dict[str, Any] = field(default_factory=dict)
     conflicts: list[str] = field(default_factory=list)  # sections left without an age model
+    screen_changed: int = 0  # records whose overall screen result changed
 
 
 def _changes(old: Any, new: Any) -> tuple[int, float, float]:
@@ -71,6 +72,10 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             n, mx, med = _changes(table.column(col), derived.table.column(col))
             if n:
                 result.changed[col], result.max_change[col], result.median_change[col] = n, mx, med
+        import pyarrow.compute as pc
+
+        result.screen_changed = int(pc.sum(pc.fill_null(pc.not_equal(
+            table.column("screen"), derived.table.column("screen")), True)).as_py() or 0)
         if after == before and not result.changed and not status_changed:
             con.execute("ROLLBACK")
             return result
@@ -82,9 +87,11 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         h = settings.hash()
         store.write_settings(con, after, h)
         store.add_chains(con, derived.chains)
+        logged = {k: v for k, v in change.items() if k != "screen_rules"}  # the hash stands in
         summary = {"records": table.num_rows, "changed": result.changed,
-                   "max_change": result.max_change, "settings": change}
-        result.version = store._record_commit(con, command, json.dumps(change, sort_keys=True),
+                   "screen_changed": result.screen_changed,
+                   "max_change": result.max_change, "settings": logged}
+        result.version = store._record_commit(con, command, json.dumps(logged, sort_keys=True),
                                               h, summary)
         con.execute("COMMIT")
     return result

@@ -77,10 +77,16 @@ def mossaret_fennoway() -> None:
                                      ("Fennoway Bluff", 20, 25.0, -0.2, "brachiopod")):
         h, a, c13, o18 = section(n, 181.8, 184.2, thick, off)
         for i in range(n):
+            mn, sr = round(float(RNG.uniform(40, 700)), 0), round(float(RNG.uniform(150, 900)), 0)
+            lith, d18 = "limestone", round(float(o18[i]), 2)
+            if sec == "Mossaret Cut" and 8 <= i <= 11:
+                # an invented dolomitised interval: high Mn, low Sr, very negative δ18O, so the
+                # screening rules have something to flag (set after the random draws, which
+                # therefore stay the same for every other cell)
+                lith, mn, sr, d18 = "dolostone", 2400.0 + 150 * (i - 8), 160.0 + 10 * (i - 8), \
+                    round(-10.8 - 0.4 * (i - 8), 2)
             rows.append([sec, f"{sec[:2].upper()}{i + 1:03d}", round(float(h[i]), 2), comp,
-                         "limestone", round(float(c13[i]), 2), round(float(o18[i]), 2),
-                         round(float(RNG.uniform(40, 700)), 0), round(float(RNG.uniform(150, 900)),
-                                                                      0), round(float(a[i]), 3)])
+                         lith, round(float(c13[i]), 2), d18, mn, sr, round(float(a[i]), 3)])
     for r in rows:
         tr = TableRow()
         for v in r:
@@ -104,6 +110,10 @@ def ystrel() -> None:
         h, a, c13, o18 = section(n, 181.7, 184.3, 30.0, off)
         depth = 120.0 + (30.0 - h)  # deeper is older
         order = np.argsort(depth)
+        if core == "YC-2":
+            # invented: δ18O covarying with δ13C in this core, for the covariance screen
+            # (deterministic, so the random draws of every other cell stay the same)
+            o18 = -2.8 + 0.9 * (c13 - 1.5) + 0.08 * np.sin(3.0 * np.arange(n))
         for k, i in enumerate(order):
             org = -27.5 + 0.8 * (c13[i] - 1.5) + RNG.normal(0, 0.3)
             mn = "bdl" if k % 7 == 3 else ("<5" if k % 11 == 5 else f"{RNG.uniform(20, 400):.0f}")
