@@ -174,11 +174,12 @@ def _screens(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
     from strata13.schemas.records import SCREEN_RESULTS, arrow_schema
 
     res = evaluate(table, rule_set(settings),
-                   bool(settings.extra.get("screen_untested_passes", False)))
+                   bool(settings.extra.get("screen_untested_passes", False)), all_details=False)
     out = set_column(table, "screen", res.overall.column("screen"))
     n_rules = res.results.num_rows // table.num_rows if table.num_rows else 0
-    src = pa.chunked_array([table.column("source_id")] * n_rules).combine_chunks() \
-        if n_rules else pa.array([], pa.string())
-    long = res.results.append_column("source_id", src) if n_rules else \
-        arrow_schema(SCREEN_RESULTS).empty_table()
-    return out, long.select([c for c, _ in SCREEN_RESULTS]).cast(arrow_schema(SCREEN_RESULTS))
+    if not n_rules:
+        return out, arrow_schema(SCREEN_RESULTS).empty_table()
+    # the same source_id chunks once per rule: no copy (results are rule by rule, in order)
+    src = pa.chunked_array([c for _ in range(n_rules) for c in table.column("source_id").chunks],
+                           pa.string())
+    return out, res.results.append_column("source_id", src)

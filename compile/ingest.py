@@ -371,7 +371,11 @@ def replace_derived_tables(store: Store, con: Any, source_ids: list[str] | None,
         f" WHERE source_id IN ({', '.join('?' for _ in source_ids)})", list(source_ids))
     for name, table in (("age_draws", derived.draws), ("screen_results", derived.screens)):
         con.execute(f"DELETE FROM lake.{name}{where}", params)
-        if table is not None and table.num_rows:
+        if table is None or not table.num_rows:
+            continue
+        if name == "screen_results":  # rows per record x rule: written as Parquet directly
+            store.add_parquet(con, name, table)
+        else:
             _insert(con, name, table)
 
 

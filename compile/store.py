@@ -273,9 +273,11 @@ class Store:
         """Whether every file added in this writer session is referenced by the catalog."""
         if not self._pending_files:
             return True
+        names: set[str] = set()
         try:
-            names = {r[0] for r in con.execute(
-                "SELECT data_file FROM ducklake_list_files('lake', 'analyses')").fetchall()}
+            for table in {p.parent.name for p in self._pending_files}:
+                names |= {r[0] for r in con.execute(
+                    "SELECT data_file FROM ducklake_list_files('lake', ?)", [table]).fetchall()}
         except Exception:  # the catalog cannot be asked: keep the files, they are harmless
             return True
         return all(any(str(p.name) in n for n in names) for p in self._pending_files)

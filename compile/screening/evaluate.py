@@ -158,11 +158,35 @@ def _fmt(x: float) -> str:
     return f"{x:.4g}"
 
 
-class _Detail:
-    """Detail texts: the first claim on a record wins; constants are dictionary-encoded."""
+def _join_at(mask: np.ndarray, parts: list[Any]) -> pa.Array:
+    """``_join(*parts)`` built only where ``mask`` (null elsewhere): a million records
+    need no million texts when only a few are kept."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
 
-    def __init__(self, n: int) -> None:
+    n = len(mask)
+    idx = np.flatnonzero(mask)
+    if idx.size == n:
+        return _join(*parts)
+    if idx.size == 0:
+        return pa.nulls(n, pa.string())
+    sel = pa.array(idx)
+    joined = _join(*[p if isinstance(p, str) else pc.take(p, sel) for p in parts])
+    inv = np.full(n, -1, dtype=np.int64)
+    inv[idx] = np.arange(idx.size)
+    return pc.take(joined, pa.array(inv, mask=inv < 0))
+
+
+class _Detail:
+    """Detail texts: the first claim on a record wins; constants are dictionary-encoded.
+
+    With ``keep_all`` False (the derive engine, for large stores) passes and "not
+    applicable" get no text: the outcome says it all, and the texts would dominate memory.
+    """
+
+    def __init__(self, n: int, keep_all: bool = True) -> None:
         self.n = n
+        self.keep_all = keep_all
         self.idx = np.full(n, -1, dtype=np.int32)
         self.claimed = np.zeros(n, dtype=bool)
         self.consts: list[str] = []
@@ -170,7 +194,9 @@ class _Detail:
 
     def const(self, mask: np.ndarray, text: str) -> np.ndarray:
         take = mask & ~self.claimed
-        if take.any():
+        if take.any() and not self.keep_all and text.startswith("not applicable"):
+            self.claimed |= take  # claimed, no text
+        elif take.any():
             self.consts.append(text)
             self.idx[take] = len(self.consts) - 1
             self.claimed |= take
@@ -317,7 +343,8 @@ def _verdicts(rule: Rule, lead: list[Any], passes: np.ndarray, fails: np.ndarray
     tails = [f"; passes if {cond} — passes", f"; passes if {cond} — {word}",
              f"; passes if {cond} — the censored value cannot decide it"]
     which = np.where(passes, 0, np.where(fails, 1, 2)).astype(np.int8)
-    detail.dynamic(valid, _join(*lead, _pick(which, tails)))
+    keep = valid if detail.keep_all else valid & ~passes
+    detail.dynamic(keep, _join_at(keep, [*lead, _pick(which, tails)]))
     return code
 
 
@@ -391,10 +418,13 @@ def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns,
     detail.const(~present, f"untested: no {spec.field} recorded")
     which = "allowed" if spec.allowed is not None else "excluded"
     word = "fails" if rule.severity == "fail" else "warning"
-    detail.dynamic(ok, _join(f"{spec.field} '", vals, f"' — passes ({which}: "
-                             f"{', '.join(spec.allowed or spec.excluded or ())})"))
-    detail.dynamic(present & ~ok, _join(f"{spec.field} '", vals, f"' — {word} ({which}: "
-                                        f"{', '.join(spec.allowed or spec.excluded or ())})"))
+    terms_text = ", ".join(spec.allowed or spec.excluded or ())
+    if detail.keep_all:
+        detail.dynamic(ok, _join_at(ok, [f"{spec.field} '", vals,
+                                         f"' — passes ({which}: {terms_text})"]))
+    bad = present & ~ok
+    detail.dynamic(bad, _join_at(bad, [f"{spec.field} '", vals,
+                                       f"' — {word} ({which}: {terms_text})"]))
     return code
 
 
@@ -503,7 +533,7 @@ def _covariance(rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail,
         inv = np.full(n, -1, dtype=np.int64)
         inv[rec] = np.arange(rec.size)
         full = pc.take(texts, pa.array(inv, mask=inv < 0))
-    detail.dynamic(ok, full)
+    detail.dynamic(ok if detail.keep_all else ok & (code != PASS), full)
 
     groups = pa.table({
         "rule": pa.array([rule.name] * len(lo), pa.string()),
@@ -550,8 +580,13 @@ def _group_schema() -> pa.Schema:
                       ("rho1_y", pa.float64()), ("outcome", pa.string())])
 
 
-def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False) -> Screening:
+def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False,
+             all_details: bool = True) -> Screening:
     """Screen ``records`` (a pyarrow Table or pandas DataFrame with the stored columns).
+
+    ``all_details`` False (the derive engine) leaves passes and "not applicable" without a
+    detail text and keeps rule and outcome dictionary-encoded: the long results of a
+    million records then fit in a fraction of the memory.
 
     Returns ``Screening(results, overall, groups)``: the long results (record_id, rule,
     outcome, detail), the overall status per record in input order (record_id, screen) and
@@ -571,7 +606,7 @@ def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False) -> Scr
     details: list[pa.Array] = []
     group_tables: list[pa.Table] = []
     for rule in rules.rules:
-        detail = _Detail(n)
+        detail = _Detail(n, all_details)
         outside, unknown = _scope(rule, cols, detail)
         in_scope = ~outside & ~unknown
         spec = rule.spec
@@ -590,14 +625,21 @@ def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False) -> Scr
 
     k = len(codes)
     outcomes = pa.array(OUTCOMES, pa.string())
+    names = pa.array([r.name for r in rules.rules], pa.string())
+    coded = pa.dictionary(pa.int8(), pa.string())
+
+    def text(arr: pa.Array) -> pa.Array:
+        return arr.cast(pa.string()) if all_details else arr
+
     batches = [pa.record_batch({
         "record_id": rid,
-        "rule": pa.DictionaryArray.from_arrays(pa.array(np.zeros(n, np.int8)),
-                                               pa.array([rule.name])).cast(pa.string()),
-        "outcome": pa.DictionaryArray.from_arrays(pa.array(code), outcomes).cast(pa.string()),
+        "rule": text(pa.DictionaryArray.from_arrays(pa.array(np.full(n, i, np.int8)), names)),
+        "outcome": text(pa.DictionaryArray.from_arrays(pa.array(code), outcomes)),
         "detail": det,
-    }) for rule, code, det in zip(rules.rules, codes, details, strict=True)]
-    schema = pa.schema([(c, pa.string()) for c in ("record_id", "rule", "outcome", "detail")])
+    }) for i, (code, det) in enumerate(zip(codes, details, strict=True))]
+    kind = pa.string() if all_details else coded
+    schema = pa.schema([("record_id", pa.string()), ("rule", kind), ("outcome", kind),
+                        ("detail", pa.string())])
     results = pa.Table.from_batches(batches, schema)
 
     m = np.stack(codes) if k else np.empty((0, n), np.int8)
