@@ -109,7 +109,8 @@ def _tie_name(t: dict[str, Any]) -> str:
 def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[str, str],
            strict: bool = True, conflicts: list[str] | None = None
            ) -> tuple[pa.Table, pa.Table]:
-    """Fill age_ma, age_sigma_ma, age_basis, time_scale, age_status and age_chain.
+    """Fill age_ma, age_sigma_ma, the 95 % range, age_basis, time_scale, age_status and
+    age_chain.
 
     Returns the table and the age-model draws (``age_draws`` rows) of its sections. Ties
     that contradict each other on the store's chart raise DomainError when ``strict`` (an
@@ -130,11 +131,17 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[s
     status = np.full(n, "pending: no reported age, stage or age model", dtype=object)
     chain = np.full(n, None, dtype=object)
 
+    lo95 = np.full(n, np.nan)
+    hi95 = np.full(n, np.nan)
+
     def put(rows: np.ndarray, a: np.ndarray, s: np.ndarray, b: str, st: str,
-            steps: list[dict[str, Any]]) -> None:
+            steps: list[dict[str, Any]], lo: Any = None, hi: Any = None) -> None:
+        """Date ``rows``; the 95 % range defaults to ±1.96σ (normal)."""
         cid, text = chain_id(steps)
         chains[cid] = text
         age[rows], sigma[rows], basis[rows], status[rows], chain[rows] = a, s, b, st, cid
+        lo95[rows] = a - 1.96 * s if lo is None else lo
+        hi95[rows] = a + 1.96 * s if hi is None else hi
 
     _stage_only(table, scale, put, status)
     _reported(table, scale, put, status)
@@ -143,7 +150,8 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[s
     f64, txt = pa.float64(), pa.string()
     for name, values, typ in (("age_ma", age, f64), ("age_sigma_ma", sigma, f64),
                               ("age_basis", basis, txt), ("age_status", status, txt),
-                              ("age_chain", chain, txt)):
+                              ("age_chain", chain, txt), ("age_lo95_ma", lo95, f64),
+                              ("age_hi95_ma", hi95, f64)):
         out = set_column(out, name, pa.array(values, type=typ, from_pandas=True))
     dated = ~np.isnan(age)
     out = set_column(out, "time_scale", pa.array(np.where(dated, scale, None), pa.string()))
@@ -171,8 +179,9 @@ def _stage_only(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> No
                 "σ = span/√12", "parameters": {"stage": name, "base_ma": base, "top_ma": top,
                                                "time_scale": scale},
                 "source": f"time-scale table {scale}", "flags": ["dated to a stage only"]}
+        half = 0.475 * (base - top)  # the central 95 % of a uniform spread
         put(rows, np.full(len(rows), mid), np.full(len(rows), sig), "stage only",
-            "dated: stage only (uniform over the stage)", [step])
+            "dated: stage only (uniform over the stage)", [step], mid - half, mid + half)
 
 
 def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None:
@@ -274,7 +283,8 @@ def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
             if mask.any():
                 pick = np.isin(inverse, np.flatnonzero(mask))
                 put(have[pick], summary.median[inverse[pick]], summary.sigma[inverse[pick]],
-                    "age model", note, steps)
+                    "age model", note, steps, summary.lo95[inverse[pick]],
+                    summary.hi95[inverse[pick]])
         outside = have[np.isin(inverse, np.flatnonzero(~inside))]
         left = outside[np.equal(basis[outside], None)]
         status[left] = "pending: outside the section's ties (extrapolation is off)"

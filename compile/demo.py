@@ -70,13 +70,35 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     except ValidationFailed as exc:
         yield "report", exc.report
         yield "say", f"→ {exc.message} (as intended)"
-    filters = Filters(interval=(182.5, 183.5), region=api.region(store, "northern shelf"))
+    iv = api.interval(store, "Toarcian")
+    filters = Filters(interval=(iv.younger_ma, iv.older_ma), interval_info=iv.describe(),
+                      region=api.region(store, "northern shelf"), screened="pass")
     tbl = api.query_arrow(store, filters).select(
-        ["section_id", "sample_id", "position_m", "age_ma", "component", "d13c_carb"])
-    yield "say", ("query: --interval 183.5-182.5 --region 'northern shelf' → "
-                  f"{tbl.num_rows} records")
-    rows = [tuple(r.values()) for r in tbl.to_pylist()[:8]]
+        ["section_id", "sample_id", "position_m", "age_ma", "age_sigma_ma", "component",
+         "d13c_carb", "screen"])
+    yield "say", ("query: --interval Toarcian --region 'northern shelf' --screened pass → "
+                  f"{tbl.num_rows} records ({iv.older_ma:g}–{iv.younger_ma:g} Ma on "
+                  f"{iv.time_scale})")
+    rows = [tuple(round(v, 3) if isinstance(v, float) else v for v in r.values())
+            for r in tbl.to_pylist()[:6]]
     yield "table", (tbl.column_names, rows)
+    figures = out / "figures"
+    figures.mkdir(exist_ok=True)
+    model = api.agemodel(store, "quillar-ridge")
+    path = api.plot_agemodel(model, figures / "agemodel_quillar-ridge.png")
+    yield "say", (f"age model of quillar-ridge: {len(model.ties)} ties (one a chart boundary "
+                  f"read on ICS2012, placed on {model.time_scale}), {model.draws.shape[0]} "
+                  f"draws → {path}")
+    records, screening, counts = api.screen_report(store)
+    overall = dict(sorted((d["values"], d["counts"]) for d in
+                          screening.overall.column("screen").value_counts().to_pylist()))
+    flagged = [r for r in counts.to_pylist() if r["outcome"] in ("fail", "warn")]
+    yield "say", ("screening (rules of thumb; your judgement decides): "
+                  + ", ".join(f"{k} {v}" for k, v in overall.items()))
+    yield "table", (["section_id", "rule", "outcome", "n"],
+                    [(r["section_id"], r["rule"], r["outcome"], r["n"]) for r in flagged])
+    plots = api.screen_plots(store, records, screening, figures / "screening")
+    yield "say", f"δ13C–δ18O cross-plots: {len(plots)} → {figures / 'screening'}"
     res = api.export(store, export_dir)
     yield "say", f"export: {res.records} records of version {res.version} → {export_dir}"
     yield "note", ("next: strata13 history --store " + str(store.path) +

@@ -25,7 +25,8 @@ if TYPE_CHECKING:
 
 DERIVED_COLUMNS = {
     *DELTA_FIELDS, *(f"{d}_chain" for d in DELTA_FIELDS), *(f"{d}_status" for d in DELTA_FIELDS),
-    "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status", "age_chain",
+    "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status", "age_chain", "age_lo95_ma",
+    "age_hi95_ma",
     "plate_id", "paleolat", "paleolon", "paleo_model", "paleo_frame", "paleo_status", "screen",
     "row_hash",
 }

@@ -59,7 +59,8 @@ ANALYSES: list[tuple[str, str]] = [
     ("screen", TEXT),
     ("original_source_id", TEXT), ("run_id", TEXT), ("note", TEXT),
     ("sheet", TEXT), ("sheet_row", INT), ("row_hash", BIGINT),
-    ("age_chain", TEXT),  # added with age models; appended so older stores migrate in place
+    # added with age models; appended so older stores migrate in place
+    ("age_chain", TEXT), ("age_lo95_ma", REAL), ("age_hi95_ma", REAL),
 ]
 
 SOURCES = [

@@ -1,0 +1,1 @@
+"""Synthesis: composite curves from the compiled samples (pure: no store access)."""
