@@ -60,8 +60,12 @@ def redate(time_scale: Annotated[str | None, typer.Option(
     render.message(f"redated {res.records} records as version {res.version}"
                    + (f" ({before} → {after})" if before != after else "") + ".")
     for col, n in sorted(res.changed.items()):
-        render.message(f"  {col}: {n} values changed; largest change "
-                       f"{res.max_change[col]:.4g} Myr, median {res.median_change[col]:.4g} Myr")
+        if res.max_change[col] > 0:
+            render.message(f"  {col}: {n} values changed; largest change "
+                           f"{res.max_change[col]:.4g} Myr, median "
+                           f"{res.median_change[col]:.4g} Myr")
+        else:
+            render.message(f"  {col}: {n} values newly set or cleared (none moved)")
     if not res.changed:
         render.message("  no age changed (settings and statuses were updated).")
     for c in res.conflicts:
@@ -94,7 +98,6 @@ def agemodel(section: Annotated[str, typer.Argument(help="Section id, or SOURCE/
         render.note(f"age model: {m.draws.shape[0]} draws at {len(m.positions)} positions; "
                     f"{m.records} records ({basis})")
     else:
-        render.note(f"no age model ({len(m.ties)} ties; two or more are needed); "
-                    f"{m.records} records ({basis})")
+        render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
     if plot is not None:
         render.message(f"wrote {api.plot_agemodel(m, plot)}")

@@ -10,8 +10,10 @@ from strata13.cli import render
 from strata13.cli.common import StoreOpt
 
 
-def ingest(file: Annotated[Path, typer.Argument(help="The sheet (xlsx, ods, csv, tsv).")],
-           map_: Annotated[Path, typer.Option("--map", help="The mapping file (TOML).")],
+def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (TOML).")],
+           file: Annotated[Path | None, typer.Argument(
+               help="The sheet (xlsx, ods, csv, tsv); left out for a mapping of age ties "
+               "only. Default: the file the mapping names.", show_default=False)] = None,
            dry_run: Annotated[bool, typer.Option("--dry-run", help="Validate and report; "
                                                  "write nothing.")] = False,
            keep_valid: Annotated[bool, typer.Option("--keep-valid", help="Commit valid rows; "
@@ -20,14 +22,15 @@ def ingest(file: Annotated[Path, typer.Argument(help="The sheet (xlsx, ods, csv,
                                                        "report (.csv or .json).",
                                                        show_default=False)] = None,
            store: StoreOpt = None) -> None:
-    """Ingest one sheet: every problem reported at once; nothing bad enters the store."""
+    """Ingest one sheet (or a mapping of age ties only): every problem reported at once;
+    nothing bad enters the store."""
     from strata13.compile import api
     from strata13.compile.errors import ValidationFailed
     from strata13.compile.ingest import reconcile
     from strata13.compile.outputs import output_file
 
     if report is not None:
-        output_file(report, option="--report", protect=[file, map_],
+        output_file(report, option="--report", protect=[p for p in (file, map_) if p],
                     stores=[api.store_path(store)])
 
     try:
@@ -61,7 +64,12 @@ def ingest(file: Annotated[Path, typer.Argument(help="The sheet (xlsx, ods, csv,
         render.message(f"{result.source_id}: committed as version {result.version} — "
                        f"{result.added} added, {result.removed} removed, {result.changed} "
                        f"changed{moved}.")
-    render.message(reconcile(result))
+    if result.ties or result.redated:
+        render.message(f"age ties: {result.ties} from this source"
+                       + (f"; {result.redated} records of other sources re-dated"
+                          if result.redated else ""))
+    if result.report.rows_read:
+        render.message(reconcile(result))
     if result.pending:
         render.note("pending (kept as reported, not yet harmonised or dated): " + ", ".join(
             f"{k} {v}" for k, v in sorted(result.pending.items())))

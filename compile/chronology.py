@@ -104,6 +104,7 @@ class SectionModel:
     draws: Any  # n_draws x positions (float32), empty when the section has no model
     records: int
     basis_counts: dict[str, int]
+    reason: str = ""  # why there is no model, when there is none
 
 
 def find_section(con: Any, name: str) -> tuple[str, str]:
@@ -159,8 +160,32 @@ def section_model(store: Store, name: str) -> SectionModel:
         positions += p
         blocks.append(np.frombuffer(blob, dtype="<f4").reshape(n_draws, len(p)))
     draws = np.concatenate(blocks, axis=1) if blocks else np.empty((0, 0), dtype="<f4")
-    return SectionModel(src, sec, kind[0] or "height", scale, placed, np.array(positions), draws,
-                        int(kind[1]), counts)
+    model = SectionModel(src, sec, kind[0] or "height", scale, placed, np.array(positions),
+                         draws, int(kind[1]), counts)
+    if not draws.size:
+        model.reason = _no_model_reason(model)
+    return model
+
+
+def _no_model_reason(model: SectionModel) -> str:
+    """Why a section has no age model: too few ties, or ties that contradict each other."""
+    from strata13.compile import agemodel
+
+    if len(model.ties) < 2:
+        return f"{len(model.ties)} tie(s); two or more are needed"
+    try:
+        agemodel.validate_ties([_model_tie(t) for t in model.ties], model.position_kind)
+    except DomainError as exc:
+        return f"its ties contradict each other on {model.time_scale}: {exc.message}"
+    return "no sample of the section has a position"
+
+
+def _model_tie(t: dict[str, Any]) -> Any:
+    from strata13.compile import agemodel
+
+    return agemodel.Tie(position_m=t["position_m"], age_ma=t["age"], age_sigma_ma=t["sigma"],
+                        basis=t["basis"], boundary_key=t["shared_key"],
+                        note=t.get("boundary") or t.get("note") or "")
 
 
 def plot_model(model: SectionModel, path: Path) -> Path:
@@ -171,11 +196,9 @@ def plot_model(model: SectionModel, path: Path) -> Path:
 
     if model.draws.size == 0:
         raise DomainError(f"section {model.source_id}/{model.section_id} has no age model "
-                          f"({len(model.ties)} ties; two or more are needed).",
-                          "Add age ties in a mapping file or a source of ties.")
-    ties = [agemodel.Tie(position_m=t["position_m"], age_ma=t["age"], age_sigma_ma=t["sigma"],
-                         basis=t["basis"], boundary_key=t["shared_key"],
-                         note=t.get("boundary") or t.get("note") or "") for t in model.ties]
+                          f"({model.reason}).",
+                          "Add or correct its age ties in a mapping file or a source of ties.")
+    ties = [_model_tie(t) for t in model.ties]
     summary = agemodel.summarise(model.draws.astype(np.float64))
     title = (f"{model.section_id} ({model.source_id})\nage model on {model.time_scale}, "
              f"{model.draws.shape[0]} draws")

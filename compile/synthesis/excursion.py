@@ -180,7 +180,7 @@ def metrics(section_df: pd.DataFrame, baseline_window: Window | tuple[float, flo
     cand = np.flatnonzero(~inside)
     up, down = float(dep[cand].max()), float(-dep[cand].min())
     if direction == "auto":
-        if up == down:
+        if up == down > 0.0:
             flags.append("direction_ambiguous")
         sign = 1.0 if up > down else -1.0
     else:

@@ -49,8 +49,9 @@ SVG_CREATOR = "strata13"
 
 SAMPLE_COLUMNS = ("group", "age_ma", "value")
 CURVE_COLUMNS = ("group", "age_ma", "fit", "lo", "hi", "band_shown")
-ROBUST_COLUMNS = ("group", "left_out", "age_ma", "fit")
+ROBUST_COLUMNS = ("left_out", "age_ma", "fit")  # group optional
 BIN_COLUMNS = ("group", "age_ma", "value")  # lo, hi optional
+BIN_STATS_COLUMNS = ("age_old", "age_young", "median", "q25", "q75")  # curve.bin_stats
 
 
 def group_style(groups: Sequence[Any]) -> dict[Any, tuple[str, str]]:
@@ -75,15 +76,17 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
     * ``samples``: group, age_ma, value — one row per record (NaN rows are skipped);
     * ``curve``: group, age_ma, fit, lo, hi, band_shown — the band (lo–hi) is drawn only
       where band_shown is True (a missing column means shown everywhere);
-    * ``robustness`` (optional): group, left_out, age_ma, fit — one thin grey line per
+    * ``robustness`` (optional): [group,] left_out, age_ma, fit — one thin grey line per
       (group, left_out) refit;
-    * ``bins`` (optional): either a sequence of bin edges in Ma (drawn as faint dotted
-      lines) or a DataFrame group, age_ma, value [, lo, hi] of per-bin summaries (open
-      squares with bars from lo to hi);
+    * ``bins`` (optional): a sequence of bin edges in Ma (drawn as faint dotted lines),
+      or a DataFrame of per-bin summaries drawn as open squares with bars from lo to hi:
+      group, age_ma, value [, lo, hi], or the bin-statistics table (age_old, age_young,
+      median, q25, q75 [, group]: the median at the bin's middle, bars interquartile);
     * ``stages`` (optional): (name, base_ma, top_ma) triples; alternating light bands in
       the plot and a strip of names under it, names dropped where they do not fit.
 
-    Age runs older to the left (``OLDER_ON_LEFT``). ``value_label`` labels the δ axis
+    A column ``age`` stands for ``age_ma`` where the latter is absent (the curve
+    tables' name). Age runs older to the left (``OLDER_ON_LEFT``). ``value_label`` labels the δ axis
     (``CARB_LABEL``, ``ORG_LABEL`` or the caller's); ``merged=True`` adds ``MERGED_NOTE``
     above the plot, ``note`` any further line. DomainError when there is nothing to plot
     or a column is missing."""
@@ -93,14 +96,12 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
     from matplotlib.patches import Patch
 
     samples = _frame(samples, SAMPLE_COLUMNS, "samples")
-    curve = _frame(curve, CURVE_COLUMNS[:3], "curve")
-    robustness = None if robustness is None else _frame(robustness, ROBUST_COLUMNS,
-                                                        "robustness")
-    bin_table = bins if isinstance(bins, pd.DataFrame) else None
+    curve = _frame(_age_alias(curve), CURVE_COLUMNS[:3], "curve")
+    robustness = None if robustness is None else _frame(_age_alias(robustness),
+                                                        ROBUST_COLUMNS, "robustness")
+    bin_table = _bins_frame(bins) if isinstance(bins, pd.DataFrame) else None
     bin_edges = None if bins is None or bin_table is not None else \
         np.asarray([float(b) for b in bins], dtype=float)
-    if bin_table is not None:
-        bin_table = _frame(bin_table, BIN_COLUMNS, "bins")
     pts = samples.dropna(subset=["age_ma", "value"])
     fit = curve.dropna(subset=["age_ma", "fit"])
     if pts.empty and fit.empty:
@@ -110,6 +111,8 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
     ages = [pts["age_ma"].to_numpy(float), fit["age_ma"].to_numpy(float)]
     if robustness is not None:
         ages.append(robustness["age_ma"].to_numpy(float))
+    if bin_table is not None:
+        ages.append(bin_table["age_ma"].to_numpy(float))
     allages = np.concatenate(ages)
     allages = allages[np.isfinite(allages)]
     young, old = float(allages.min()), float(allages.max())
@@ -159,6 +162,8 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
 
     if robustness is not None and len(robustness):
         r = robustness.dropna(subset=["age_ma", "fit"])
+        if "group" not in r.columns:
+            r = r.assign(group="")
         for _, part in sorted(r.groupby(["group", "left_out"], sort=False),
                               key=lambda kv: (str(kv[0][0]), str(kv[0][1]))):
             part = part.sort_values("age_ma", kind="stable")
@@ -180,8 +185,8 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
                              label="curve band (lo–hi)"))
     if bin_table is not None and len(bin_table):
         for g, part in sorted(bin_table.dropna(subset=["age_ma", "value"]).groupby(
-                "group", sort=False), key=lambda kv: str(kv[0])):
-            colour = styles.get(g, (PALETTE[0], "o"))[0]
+                "group", sort=False, dropna=False), key=lambda kv: str(kv[0])):
+            colour = styles.get(g, ("0.3", "o"))[0]
             yerr = None
             if {"lo", "hi"} <= set(part.columns):
                 v = part["value"].to_numpy(float)
@@ -326,6 +331,23 @@ def _frame(df: Any, columns: Sequence[str], what: str) -> pd.DataFrame:
         raise DomainError(f"The {what} table has no {', '.join(missing)} column.",
                           f"Its columns are {', '.join(columns)}.")
     return df
+
+
+def _age_alias(df: Any) -> Any:
+    if isinstance(df, pd.DataFrame) and "age_ma" not in df.columns and "age" in df.columns:
+        return df.rename(columns={"age": "age_ma"})
+    return df
+
+
+def _bins_frame(df: pd.DataFrame) -> pd.DataFrame:
+    """Per-bin summaries as group, age_ma, value, lo, hi (from either documented form)."""
+    if "age_ma" not in df.columns and {"age_old", "age_young"} <= set(df.columns):
+        df = _frame(df, BIN_STATS_COLUMNS, "bins")
+        return pd.DataFrame({
+            "group": df["group"] if "group" in df.columns else None,
+            "age_ma": (df["age_old"].astype(float) + df["age_young"].astype(float)) / 2,
+            "value": df["median"], "lo": df["q25"], "hi": df["q75"]})
+    return _frame(df, BIN_COLUMNS, "bins")
 
 
 def _stages_in(stages: Sequence[tuple[str, float, float]] | None, old: float,
