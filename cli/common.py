@@ -60,9 +60,11 @@ def build_filters(store: Any, interval: str | None, region: str | None,
     from strata13.compile.query import SCREENED, Filters, check_vocab
 
     if frame not in ("present", "paleo"):
-        raise OptionError(f"--frame {frame!r} is not present or paleo.", "")
+        raise OptionError(f"--frame {frame!r} is not present or paleo.",
+                          "Use --frame present (today's coordinates) or --frame paleo.")
     if screened not in SCREENED:
-        raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.", "")
+        raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.",
+                          "Example: --screened pass (see `strata13 screen --summary`).")
     if time_scale is not None and not interval:
         raise OptionError("--time-scale names the chart of --interval, which is not given.",
                           "Add --interval NAME, or leave out --time-scale.")

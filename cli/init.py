@@ -19,6 +19,10 @@ def init(store: StoreOpt = None,
          rules: Annotated[Path | None, typer.Option("--rules", help="Screening rule file "
                                                     "(TOML; default: the shipped rules).",
                                                     show_default=False)] = None,
+         materials: Annotated[Path | None, typer.Option(
+             "--materials", help="Your reference-material file (CSV, same columns as the "
+             "shipped table); its values are accepted before the shipped ones.",
+             show_default=False)] = None,
          extrapolate: Annotated[bool, typer.Option(
              "--extrapolate-ages", help="Let age models date samples beyond their outermost "
              "ties (flagged). Off by default.")] = False) -> None:
@@ -26,6 +30,6 @@ def init(store: StoreOpt = None,
     from strata13.compile import api
 
     s = api.init_store(api.store_path(store), time_scale=time_scale, regions=regions,
-                       rules=rules, age_extrapolation=extrapolate)
+                       rules=rules, age_extrapolation=extrapolate, materials=materials)
     render.message(f"created store {s.path} (version 1; time scale "
                    f"{api.open_store(s.path).settings()['time_scale']})")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Annotated
 
 import typer
@@ -12,11 +13,14 @@ from strata13.cli.common import StoreOpt
 def reharmonise(vsmow_constants: Annotated[str | None, typer.Option(
         "--vsmow-constants", help="VSMOW–VPDB relation by name (see `strata13 scales`).",
         show_default=False)] = None,
+        materials: Annotated[Path | None, typer.Option(
+            "--materials", help="Reference-material file (CSV, the columns of `strata13 "
+            "scales --format csv`) whose values the store accepts.", show_default=False)] = None,
         store: StoreOpt = None) -> None:
     """Recompute every harmonised value with the store's (changed) settings, in one commit."""
     from strata13.compile import api
 
-    res = api.reharmonise(api.open_store(api.store_path(store)), vsmow_constants)
+    res = api.reharmonise(api.open_store(api.store_path(store)), vsmow_constants, materials)
     if res.version is None:
         render.message(f"0 changed: {res.records} records already match these settings; "
                        "no new version.")

@@ -11,9 +11,9 @@ from strata13.cli.common import FormatOpt, OutOpt, check_format
 
 StoreOnly = Annotated[Path | None, typer.Option(
     "--store", help="Mark the settings of this store (optional).", show_default=False)]
-MATERIAL_COLUMNS = ["material", "value_set", "status", "d13c", "d13c_unc", "d13c_unc_kind",
-                    "d13c_scale", "d18o", "d18o_unc", "d18o_unc_kind", "d18o_scale",
-                    "valid_from", "valid_to", "confidence", "source"]
+MATERIAL_COLUMNS = ["material", "value_set", "status", "in_store", "d13c", "d13c_unc",
+                    "d13c_unc_kind", "d13c_scale", "d18o", "d18o_unc", "d18o_unc_kind",
+                    "d18o_scale", "valid_from", "valid_to", "confidence", "source"]
 RELATION_COLUMNS = ["name", "form", "slope", "intercept", "status", "confidence", "in_store",
                     "source"]
 
@@ -31,4 +31,7 @@ def scales(store: StoreOnly = None, fmt: FormatOpt = "table", out: OutOpt = None
     render.table(MATERIAL_COLUMNS, [[m[c] for c in MATERIAL_COLUMNS] for m in info["materials"]],
                  fmt, out, title="reference materials (‰)")
     if s is None:
-        render.note("shipped tables; add --store DIR to mark the relation a store uses")
+        render.note("shipped tables; add --store DIR to mark the values a store uses")
+    else:
+        render.note("in_store: the isotopes (d13c, d18o) for which the store accepts that row's "
+                    "value when it re-anchors")

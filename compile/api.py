@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive import DEFAULT_TIME_SCALE, Settings
-from strata13.compile.errors import NotAStoreError, OptionError, StoreError
+from strata13.compile.errors import ConfigError, NotAStoreError, OptionError, StoreError
 from strata13.compile.export import ExportResult
 from strata13.compile.ingest import IngestResult
 from strata13.compile.query import Filters, parse_interval
@@ -59,9 +59,34 @@ def rules_settings(rules: str | Path | None, untested_passes: bool | None = None
     return out
 
 
+def materials_settings(materials: str | Path | None) -> dict[str, Any]:
+    """Store settings for a user's reference-material file (None: the shipped table only):
+    its text is kept in the store, and the accepted value set per material is written out."""
+    from strata13.compile.errors import InputFileError
+    from strata13.schemas.materials import (
+        default_choice,
+        materials_from_text,
+        shipped_materials,
+    )
+
+    text = ""
+    if materials is not None:
+        p = Path(materials)
+        if not p.is_file():
+            raise InputFileError(f"materials file {p} does not exist.", "Check --materials.")
+        try:
+            text = p.read_text(encoding="utf-8")
+        except UnicodeDecodeError:
+            raise ConfigError(f"{p.name} is not UTF-8 text.", "Save it as UTF-8 CSV.") from None
+        materials_from_text(text, p.name)  # checked now, not at the first ingest
+    table = [*(materials_from_text(text) if text else []), *shipped_materials()]
+    return {"materials_csv": text, "material_values": default_choice(table)}
+
+
 def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
                regions: str | Path | None = None, made_by: str = "init",
-               rules: str | Path | None = None, age_extrapolation: bool = False) -> Store:
+               rules: str | Path | None = None, age_extrapolation: bool = False,
+               materials: str | Path | None = None) -> Store:
     """Create a store with its settings (time scale, screening rules, whether age models
     extrapolate beyond their ties) and optional named regions."""
     from strata13.compile.regions import load_regions_file
@@ -79,7 +104,7 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
     named = load_regions_file(Path(regions)) if regions else []
     settings = Settings(time_scale=ts, extra={
         "vsmow_constants": VSMOW_DEFAULT, "age_extrapolation": bool(age_extrapolation),
-        **rules_settings(rules, untested_passes=False)})
+        **rules_settings(rules, untested_passes=False), **materials_settings(materials)})
     return Store.create(Path(path), settings.stored(),
                         settings.hash(),
                         [(n, g, Path(regions).name) for n, g in named] if regions else [],
@@ -229,7 +254,8 @@ def history(store: Store) -> list[Version]:
     return store.history()
 
 
-def reharmonise(store: Store, vsmow_constants: str | None = None) -> Any:
+def reharmonise(store: Store, vsmow_constants: str | None = None,
+                materials: str | Path | None = None) -> Any:
     """Re-derive every record with new harmonisation settings (one commit, or none when
     nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
     from strata13.compile.harmonise.oxygen import relation
@@ -238,6 +264,8 @@ def reharmonise(store: Store, vsmow_constants: str | None = None) -> Any:
     change: dict[str, Any] = {}
     if vsmow_constants is not None:
         change["vsmow_constants"] = relation(vsmow_constants).name
+    if materials is not None:
+        change |= materials_settings(materials)
     return recompute(store, change, "reharmonise")
 
 
@@ -339,14 +367,26 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
     with a store, the relation the store uses is marked ``in_store``."""
     from dataclasses import asdict
 
-    from strata13.schemas.materials import oxygen_relations, shipped_materials
+    from strata13.schemas.materials import oxygen_relations, shipped_materials, store_table
 
     used = None
+    table: list[Any] = list(shipped_materials())
+    choice: dict[str, dict[str, str]] = {}
     if store is not None:
-        used = store.settings().get("vsmow_constants")
+        settings = store.settings()
+        used = settings.get("vsmow_constants")
+        table, choice = store_table(settings)
     relations = [{**asdict(r), "in_store": (r.name == used) if store is not None else None}
                  for r in oxygen_relations().values()]
-    return {"materials": [asdict(m) for m in shipped_materials()], "relations": relations}
+
+    def mark(m: Any) -> str | None:
+        if store is None:
+            return None
+        isos = [i for i, vs in choice.get(m.material, {}).items() if vs == m.value_set]
+        return "+".join(sorted(isos)) or ""
+
+    return {"materials": [{**asdict(m), "in_store": mark(m)} for m in table],
+            "relations": relations}
 
 
 def explain(store: Store, record: str) -> dict[str, Any]:

@@ -18,6 +18,7 @@ import json
 from dataclasses import asdict, dataclass, field
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.errors import DomainError
 from strata13.schemas.fields import DELTA_FIELDS
 
 if TYPE_CHECKING:
@@ -84,7 +85,7 @@ def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
 
     chains: dict[str, str] = {}
     conflicts: list[str] = []
-    table = _harmonise(records, chains, settings)
+    table = _harmonise(records, chains, settings, strict)
     table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
     table = _paleo(table)
     table, screens = _screens(table, settings)
@@ -102,7 +103,42 @@ def _reported_step(scale: str, flags: tuple[str, ...]) -> dict[str, Any]:
             "size_permil": 0.0, "flags": list(flags)}
 
 
-def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings) -> pa.Table:
+PRECISION_PERMIL = 0.05  # typical external precision of carbonate δ13C/δ18O (common practice)
+
+
+def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: Any,
+              relation: str) -> tuple[Any, list[dict[str, Any]]]:
+    """Re-anchor values whose authors stated their anchors: map the values they assumed for
+    the anchor materials onto the values the store accepts (compile.harmonise.anchors)."""
+    from strata13.compile.harmonise import anchors
+    from strata13.schemas.materials import accepted_value
+
+    table, choice = materials
+    iso = "d18o" if d.startswith("d18o") else "d13c"
+    named = sorted(spec["anchors"].items())
+    accepted = [accepted_value(m, iso, table, choice, relation) for m, _ in named]
+    source = "; ".join(f"{m}: {v:g} ‰ ({row.value_set}, {row.status}; {row.source})"
+                       for (m, _), (v, row) in zip(named, accepted, strict=True))
+    if spec["method"] == "two-point":
+        out, step = anchors.two_point(values, (named[0][1], named[1][1]),
+                                      (accepted[0][0], accepted[1][0]),
+                                      (named[0][0], named[1][0]), source)
+    else:
+        out, step = anchors.one_point(values, named[0][1], accepted[0][0], named[0][0], source)
+    info = step.as_dict()
+    old_rows = [row for _, row in accepted if row.status != "current"]
+    info["flags"] = list(info.get("flags", [])) + [
+        f"{row.material}: the accepted value is {row.status} ({row.value_set})"
+        for row in old_rows]
+    if info.get("size_permil", 0.0) < PRECISION_PERMIL:
+        info["flags"].append(f"largest change {info.get('size_permil', 0.0):.3g} ‰ is below "
+                             f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
+                             "practice): the scales agree here within precision")
+    return out, [_reported_step(scale, ()), info]
+
+
+def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
+               strict: bool = True) -> pa.Table:
     """Each δ column onto ‰ VPDB where a method exists for its reported scale:
 
     * VPDB: taken as reported (normalisation not stated: flagged, not corrected);
@@ -114,8 +150,10 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings) -> p
     import numpy as np
     import pyarrow as pa
     from strata13.compile.harmonise import oxygen
+    from strata13.schemas.materials import store_table
 
     constants = settings.extra.get("vsmow_constants", oxygen.DEFAULT)
+    materials = store_table(settings.extra)
     for d in DELTA_FIELDS:
         reported = table.column(f"{d}_reported").to_numpy(zero_copy_only=False).astype(float)
         scale = np.asarray(table.column(f"{d}_scale").to_numpy(zero_copy_only=False), object)
@@ -123,9 +161,25 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings) -> p
         out = np.full(len(reported), np.nan)
         chain = np.full(len(reported), None, dtype=object)
         status = np.where(has, "pending", None).astype(object)
-        for sc in sorted({x for x in scale[has] if x is not None}):
-            rows = has & (scale == sc)
-            if sc in ("VPDB", "PDB"):
+        norm = np.asarray(table.column(f"{d}_normalisation").to_numpy(zero_copy_only=False),
+                          object) if f"{d}_normalisation" in table.column_names else \
+            np.full(len(reported), None, dtype=object)
+        for sc, nm in sorted({(x, y) for x, y in zip(scale[has], norm[has], strict=True)
+                              if x is not None}, key=str):
+            rows = has & (scale == sc) & np.equal(norm, nm)
+            spec = json.loads(nm) if nm else None
+            stated = spec is not None and spec.get("method") != "not stated"
+            if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated:
+                try:
+                    values, steps = _reanchor(d, sc, reported[rows], spec, materials, constants)
+                except DomainError as exc:
+                    if strict:
+                        src = table.column("source_id")[int(np.flatnonzero(rows)[0])].as_py()
+                        raise DomainError(f"source {src}: [normalisation.{d}]: {exc.message}",
+                                          exc.hint) from None
+                    status[rows] = f"pending: {exc.message}"
+                    continue
+            elif sc in ("VPDB", "PDB"):
                 flags = ("normalisation not stated",) + (
                     ("reported as PDB; read as VPDB (common practice)",) if sc == "PDB" else ())
                 steps = [_reported_step(sc, flags)]
@@ -133,6 +187,10 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings) -> p
             elif sc == "VSMOW" and d == "d18o_carb":
                 values, step = oxygen.vsmow_to_vpdb(reported[rows], constants)
                 steps = [_reported_step(sc, ()), step.as_dict()]
+            elif sc == "VPDB-LSVEC":
+                status[rows] = ("pending: VPDB-LSVEC values need the authors' anchors "
+                                "([normalisation] in the mapping)")
+                continue
             else:
                 status[rows] = f"pending: harmonisation from {sc} not available yet"
                 continue

@@ -30,7 +30,7 @@ from strata13.schemas.vocabularies import vocabulary
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {"source", "table", "columns", "constants", "sections", "localities",
-            "localities_table", "ties", "ties_table"}
+            "localities_table", "ties", "ties_table", "normalisation"}
 SOURCE_KEYS = {"id", "citation", "year", "doi", "url", "kind", "lab", "republishes", "note"}
 TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
 COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
@@ -71,6 +71,8 @@ class Mapping:
     localities: list[dict[str, Any]]
     localities_table: TableSpec | None
     ties: list[dict[str, Any]] = field(default_factory=list)  # stored age_ties rows
+    # δ field -> {"method": two-point | one-point | not stated, "anchors": {material: ‰}}
+    normalisation: dict[str, dict[str, Any]] = field(default_factory=dict)
 
     @property
     def source_id(self) -> str:
@@ -334,7 +336,47 @@ def load_mapping(path: Path) -> Mapping:
                 raise ConfigError(f"{path.name}: [localities_table] maps {c.header!r} to "
                                   f"{c.field}; only {', '.join(sorted(allowed))} belong there.", "")
     return Mapping(path, hashlib.sha256(raw).hexdigest(), source, table, constants, sections,
-                   localities, loc_table, ties)
+                   localities, loc_table, ties, _normalisation(doc.get("normalisation", {}), path))
+
+
+NORMALISATION_METHODS = {"two-point": 2, "one-point": 1, "not stated": 0}
+
+
+def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
+    """``[normalisation.<δ field>]``: how the authors normalised that column — method and
+    the anchor values they assumed (material = ‰). Re-anchoring uses nothing else."""
+    if not isinstance(block, dict):
+        raise ConfigError(f"{path.name}: [normalisation] must hold one table per δ field.",
+                          "Example: [normalisation.d13c_carb] method = \"two-point\"")
+    out = {}
+    for fld, spec in block.items():
+        where = f"[normalisation.{fld}]"
+        if fld not in DELTA_SCALES:
+            raise ConfigError(f"{path.name}: {where} is not a δ field."
+                              + _did_you_mean(fld, set(DELTA_SCALES)),
+                              f"δ fields: {', '.join(DELTA_SCALES)}.")
+        if not isinstance(spec, dict):
+            raise ConfigError(f"{path.name}: {where} must be a table.", "")
+        _unknown_keys(where, spec, {"method", "anchors", "note"}, path)
+        method = spec.get("method")
+        if method not in NORMALISATION_METHODS:
+            raise ConfigError(f"{path.name}: {where} method = {method!r} is not one of "
+                              f"{', '.join(NORMALISATION_METHODS)}.",
+                              "Say how the authors normalised; \"not stated\" if they did not.")
+        anchors = spec.get("anchors", {})
+        if not isinstance(anchors, dict) or not all(
+                isinstance(v, (int, float)) and not isinstance(v, bool) for v in anchors.values()):
+            raise ConfigError(f"{path.name}: {where} anchors must map material names to the "
+                              "values the authors assumed (‰).",
+                              "Example: anchors = { \"NBS-19\" = 1.95, \"LSVEC\" = -46.48 }")
+        need = NORMALISATION_METHODS[method]
+        if len(anchors) != need:
+            raise ConfigError(f"{path.name}: {where} is {method} but names {len(anchors)} "
+                              f"anchor(s).", f"A {method} normalisation names {need} anchor(s)."
+                              if need else "Leave anchors out for \"not stated\".")
+        out[fld] = {"method": method, "anchors": {str(k): float(v) for k, v in anchors.items()},
+                    **({"note": str(spec["note"])} if spec.get("note") else {})}
+    return out
 
 
 def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any]]:

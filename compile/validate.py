@@ -278,6 +278,10 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         cols[stored] = value
         letters.setdefault(stored, ("", f"[constants] {key}"))
 
+
+    for d, declared in mapping.normalisation.items():  # constant per source, kept per value
+        cols[f"{d}_normalisation"] = json.dumps(declared, sort_keys=True)
+
     def column(name: str) -> np.ndarray:
         v = cols.get(name)
         if v is None:

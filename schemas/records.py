@@ -61,6 +61,9 @@ ANALYSES: list[tuple[str, str]] = [
     ("sheet", TEXT), ("sheet_row", INT), ("row_hash", BIGINT),
     # added with age models; appended so older stores migrate in place
     ("age_chain", TEXT), ("age_lo95_ma", REAL), ("age_hi95_ma", REAL),
+    # how the authors normalised each δ column (JSON: method and assumed anchor values)
+    ("d13c_carb_normalisation", TEXT), ("d18o_carb_normalisation", TEXT),
+    ("d13c_org_normalisation", TEXT),
 ]
 
 SOURCES = [
