@@ -19,6 +19,7 @@ from strata13.cli import (
     reharmonise,
     scales,
     screen,
+    synthesis,
 )
 
 from strata13 import __version__
@@ -61,6 +62,8 @@ app.command("stages")(chrono.stages)
 app.command("redate")(chrono.redate)
 app.command("agemodel")(chrono.agemodel)
 app.command("screen")(screen.screen)
+app.command("curve")(synthesis.curve)
+app.command("excursion")(synthesis.excursion)
 
 
 def main(argv: list[str] | None = None) -> None:

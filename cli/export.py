@@ -19,6 +19,19 @@ from strata13.cli.common import (
     TimeScaleOpt,
     build_filters,
 )
+from strata13.cli.synthesis import (
+    BinOpt,
+    BootsOpt,
+    ByOpt,
+    DrawsOpt,
+    IsotopeOpt,
+    MinSecOpt,
+    MixedOpt,
+    RobustOpt,
+    SeedOpt,
+    SpanOpt,
+    WeightOpt,
+)
 
 
 def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
@@ -28,6 +41,14 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
            source: SourceOpt = None, screened: ScreenedOpt = "all",
            as_of: Annotated[int | None, typer.Option("--as-of", help="Export this store "
                                                      "version.", show_default=False)] = None,
+           with_curve: Annotated[bool, typer.Option(
+               "--with-curve", help="Also write the curve (bins, LOESS, band, figure) to "
+               "OUT/curve with the curve options below; the manifest records them.")] = False,
+           isotope: IsotopeOpt = "carb", by: ByOpt = None, bin_myr: BinOpt = None,
+           span: SpanOpt = 0.3, boots: BootsOpt = 200, seed: SeedOpt = 0,
+           min_sections: MinSecOpt = 5, weight: WeightOpt = "sections",
+           age_draws: DrawsOpt = 0, allow_mixed: MixedOpt = False,
+           robustness: RobustOpt = False,
            store: StoreOpt = None) -> None:
     """Write records.parquet, records.csv, bibliography and manifest.json to a folder."""
     from strata13.compile import api
@@ -35,7 +56,14 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
                             source, screened, time_scale)
-    res = api.export(s, out, filters, as_of)
+    request = None
+    if with_curve:
+        from strata13.compile.synthesis.run import CurveRequest
+
+        request = CurveRequest(isotope, bin_myr, span, boots, seed, min_sections, weight,
+                               age_draws, by, allow_mixed, robustness)
+        request.check()
+    res = api.export(s, out, filters, as_of, curve=request)
     render.message(f"exported {res.records} records of version {res.version} to {res.out}")
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")

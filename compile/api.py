@@ -208,7 +208,31 @@ def query(store: Store, filters: Filters | None = None, as_of: int | None = None
 
 
 def export(store: Store, out: str | Path, filters: Filters | None = None,
-           as_of: int | None = None) -> ExportResult:
+           as_of: int | None = None, curve: Any = None) -> ExportResult:
+    """The filtered records of one version with bibliography and manifest; with ``curve``
+    (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
+    manifest records every curve parameter and file, so the same command reproduces them."""
+    res = _export_records(store, out, filters, as_of)
+    if curve is not None:
+        from strata13.compile.synthesis.run import make_curve
+
+        cres = make_curve(store, filters or Filters(), curve, Path(out) / "curve",
+                          as_of=res.version)
+        manifest_path = Path(out) / "manifest.json"
+        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+        manifest["curve"] = json.loads((cres.out / "curve_manifest.json").read_text(
+            encoding="utf-8"))
+        manifest["files"] += [{"path": f"curve/{k}", "sha256": v}
+                              for k, v in sorted(cres.files.items())]
+        manifest["reproduce"] += " --with-curve (parameters under 'curve')"
+        manifest_path.write_text(json.dumps(manifest, indent=1, sort_keys=True,
+                                            ensure_ascii=False) + "\n", encoding="utf-8")
+        res.files.update({f"curve/{k}": v for k, v in cres.files.items()})
+    return res
+
+
+def _export_records(store: Store, out: str | Path, filters: Filters | None = None,
+                    as_of: int | None = None) -> ExportResult:
     import duckdb
     from strata13.compile import export as _export
     from strata13.compile.outputs import output_dir
@@ -353,6 +377,26 @@ def screen_plots(store: Store, records: Any, screening: Any, out: str | Path) ->
     output_dir(folder, option="--plot", stores=[store.path])
     folder.mkdir(parents=True, exist_ok=True)
     return cross_plots(records, screening.results, screening.groups, folder)
+
+
+def curve(store: Store, filters: Filters, request: Any, out: str | Path,
+          as_of: int | None = None) -> Any:
+    """Composite curves (bins, LOESS and band, robustness) with figure and manifest in
+    ``out``; ``request`` is a ``synthesis.run.CurveRequest``."""
+    from strata13.compile.synthesis.run import make_curve
+
+    return make_curve(store, filters, request, Path(out), as_of=as_of)
+
+
+def excursion(store: Store, filters: Filters, *, by: str | None = None,
+              baseline: tuple[float, float, str] | None = None, fraction: float = 0.10,
+              direction: str = "auto", out: str | Path | None = None) -> Any:
+    """Per-section excursion metrics in the filtered interval (tables and a figure in
+    ``out`` when given)."""
+    from strata13.compile.synthesis.run import make_excursion
+
+    return make_excursion(store, filters, by=by, baseline=baseline, fraction=fraction,
+                          direction=direction, out=Path(out) if out is not None else None)
 
 
 def plot_agemodel(model: Any, path: str | Path) -> Path:
