@@ -235,11 +235,11 @@ def _describe_derive(status: dict[str, dict[str, int]]) -> list[str]:
     return [
         "derive steps exercised by the ingest (counts from the committed records):",
         f"  harmonise d13c_carb (VPDB -> identity step): {fmt('d13c_carb_status')}",
-        f"  harmonise d18o_carb (VSMOW -> pending):      {fmt('d18o_carb_status')}",
+        f"  harmonise d18o_carb (VSMOW -> IUPAC line):   {fmt('d18o_carb_status')}",
         f"  harmonise d13c_org  (VPDB -> identity step): {fmt('d13c_org_status')}",
-        f"  ages (reported on ICS2024/12, taken as is):  {fmt('age_status')}",
+        f"  ages (reported on the store chart, no ties): {fmt('age_status')}",
         f"  paleo (no rotation model yet):               {fmt('paleo_status')}",
-        f"  screens (no rules yet):                      {fmt('screen')}",
+        f"  screens (the default rule set):              {fmt('screen')}",
     ]
 
 

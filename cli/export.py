@@ -63,7 +63,42 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
         request = CurveRequest(isotope, bin_myr, span, boots, seed, min_sections, weight,
                                age_draws, by, allow_mixed, robustness)
         request.check()
-    res = api.export(s, out, filters, as_of, curve=request)
+    options: dict[str, object] = {
+        "interval": interval, "time_scale": time_scale, "region": region,
+        "frame": frame if frame != "present" else None, "lithology": lithology or [],
+        "component": component or [], "source": source or [],
+        "screened": screened if screened != "all" else None}
+    if with_curve:
+        options |= {"with_curve": True, "isotope": isotope, "by": by, "bin_myr": bin_myr,
+                    "span": span, "boots": boots, "seed": seed, "min_sections": min_sections,
+                    "weight": weight, "age_draws": age_draws, "allow_mixed": allow_mixed,
+                    "robustness": robustness}
+    res = api.export(s, out, filters, as_of, curve=request,
+                     command=_command(s, as_of, options))
     render.message(f"exported {res.records} records of version {res.version} to {res.out}")
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")
+
+
+
+def _command(store: object, as_of: int | None, options: dict[str, object]) -> str:
+    """The command that reproduces this export: every option given, pinned to the version
+    (store by folder name, output as DIR, so the manifest does not depend on where)."""
+    import shlex
+
+    args = ["strata13", "export", "--store", Path(str(getattr(store, "path", ""))).name,
+            "--out", "DIR",
+            "--as-of", str(as_of if as_of is not None else
+                           store.latest_version())]  # type: ignore[attr-defined]
+    for name, value in options.items():
+        flag = "--" + name.replace("_", "-")
+        if value is None or value is False or value == [] :
+            continue
+        if value is True:
+            args.append(flag)
+        elif isinstance(value, list):
+            for v in value:
+                args += [flag, str(v)]
+        else:
+            args += [flag, str(value)]
+    return shlex.join(args)

@@ -70,6 +70,12 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
                           if result.redated else ""))
     if result.report.rows_read:
         render.message(reconcile(result))
+    for q in result.run_qc:
+        warn = f"; WARNING {q['warnings']}" if q["warnings"] else ""
+        prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"
+        render.message(f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
+                       f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
+                       f"{q['residuals_json']}; precision 1σ {prec}{warn}")
     if result.pending:
         render.note("pending (kept as reported, not yet harmonised or dated): " + ", ".join(
             f"{k} {v}" for k, v in sorted(result.pending.items())))

@@ -208,23 +208,37 @@ def query(store: Store, filters: Filters | None = None, as_of: int | None = None
 
 
 def export(store: Store, out: str | Path, filters: Filters | None = None,
-           as_of: int | None = None, curve: Any = None) -> ExportResult:
+           as_of: int | None = None, curve: Any = None, command: str | None = None
+           ) -> ExportResult:
     """The filtered records of one version with bibliography and manifest; with ``curve``
     (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
-    manifest records every curve parameter and file, so the same command reproduces them."""
-    res = _export_records(store, out, filters, as_of)
-    if curve is not None:
+    manifest records every curve parameter and file, so the same command reproduces them.
+    ``command`` (the command line as given, pinned to the version) goes into the manifest's
+    ``reproduce``."""
+    from strata13.compile.outputs import output_dir
+
+    output_dir(Path(out), option="--out", stores=[store.path])
+    cres = None
+    if curve is not None:  # the curve first: a refused curve leaves no half export
         from strata13.compile.synthesis.run import make_curve
 
+        version = as_of if as_of is not None else store.latest_version()
         cres = make_curve(store, filters or Filters(), curve, Path(out) / "curve",
-                          as_of=res.version)
-        manifest_path = Path(out) / "manifest.json"
+                          as_of=version)
+        as_of = version
+    res = _export_records(store, out, filters, as_of)
+    manifest_path = Path(out) / "manifest.json"
+    if command is not None:
+        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+        manifest["reproduce"] = command
+        manifest_path.write_text(json.dumps(manifest, indent=1, sort_keys=True,
+                                            ensure_ascii=False) + "\n", encoding="utf-8")
+    if cres is not None:
         manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
         manifest["curve"] = json.loads((cres.out / "curve_manifest.json").read_text(
             encoding="utf-8"))
         manifest["files"] += [{"path": f"curve/{k}", "sha256": v}
                               for k, v in sorted(cres.files.items())]
-        manifest["reproduce"] += " --with-curve (parameters under 'curve')"
         manifest_path.write_text(json.dumps(manifest, indent=1, sort_keys=True,
                                             ensure_ascii=False) + "\n", encoding="utf-8")
         res.files.update({f"curve/{k}": v for k, v in cres.files.items()})
@@ -433,6 +447,24 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
             "relations": relations}
 
 
+def _replay(step: dict[str, Any], value: float | None) -> float | None:
+    """A chain step applied to one value (linear maps and offsets; as-reported keeps it)."""
+    p = step.get("parameters") or {}
+    if value is None:
+        return None
+    if "slope" in p and "intercept" in p:
+        return p["slope"] * value + p["intercept"]
+    if "a" in p and "b" in p:
+        return p["a"] * value + p["b"]
+    if "offset" in p:
+        return value + p["offset"]
+    if "offset_permil" in p:
+        return value + p["offset_permil"]
+    if step.get("method", "").startswith(("as reported", "as measured", "identity")):
+        return value
+    return None
+
+
 def explain(store: Store, record: str) -> dict[str, Any]:
     """One record with its provenance and, for each δ value, the chain of steps from the
     reported value to the harmonised one. ``record`` may be a unique prefix (≥ 6 chars)."""
@@ -463,11 +495,10 @@ def explain(store: Store, record: str) -> dict[str, Any]:
                 text = con.execute("SELECT steps_json FROM chains WHERE chain_id = ?",
                                    [cid]).fetchone()
                 steps = json.loads(text[0]) if text else []
-            for k, step in enumerate(steps):  # the value after each step
-                last = k == len(steps) - 1
-                step["value_after"] = row[d] if last else (
-                    row[f"{d}_reported"] if step.get("method", "").startswith("as reported")
-                    else None)
+            value = row[f"{d}_reported"]
+            for k, step in enumerate(steps):  # the value after each step, replayed
+                value = _replay(step, value)
+                step["value_after"] = row[d] if k == len(steps) - 1 else value
             chains[d] = {"reported": row[f"{d}_reported"], "scale": row[f"{d}_scale"],
                          "harmonised": row[d], "status": row[f"{d}_status"], "chain_id": cid,
                          "steps": steps}

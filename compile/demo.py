@@ -16,7 +16,8 @@ from strata13.compile.query import Filters
 
 SHEETS = [("quillar_2011.xlsx", "quillar_2011.toml"),
           ("mossaret_fennoway_2018.ods", "mossaret_fennoway_2018.toml"),
-          ("ystrel_cores_2021.csv", "ystrel_cores_2021.toml")]
+          ("ystrel_cores_2021.csv", "ystrel_cores_2021.toml"),
+          ("orvanne_lab_run_2024.csv", "orvanne_lab_run_2024.toml")]
 BROKEN = ("harnholt_2016_broken.xlsx", "harnholt_2016_broken.toml")
 TIES = "orvanne_ties_2023.toml"  # a source of age ties only
 
@@ -60,6 +61,10 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
         yield "say", (f"ingested {sheet}: {r.committed} records"
                       + (f" and {r.ties} age ties" if r.ties else "")
                       + f" as version {r.version}" + (f" (pending: {pend})" if pend else ""))
+        for q in r.run_qc:
+            yield "say", (f"  in-house run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, "
+                          f"intercept {q['intercept']:+.3f} ‰ from {q['anchors']}; check "
+                          f"residuals {json.loads(q['residuals_json'])}")
     r = api.ingest(store, None, sheets / TIES)
     yield "say", (f"ingested {TIES} (age ties only): {r.ties} ties, {r.redated} records "
                   f"re-dated, version {r.version}")

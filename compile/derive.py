@@ -27,7 +27,7 @@ if TYPE_CHECKING:
 DERIVED_COLUMNS = {
     *DELTA_FIELDS, *(f"{d}_chain" for d in DELTA_FIELDS), *(f"{d}_status" for d in DELTA_FIELDS),
     "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status", "age_chain", "age_lo95_ma",
-    "age_hi95_ma",
+    "age_hi95_ma", "big_delta_13c",
     "plate_id", "paleolat", "paleolon", "paleo_model", "paleo_frame", "paleo_status", "screen",
     "row_hash",
 }
@@ -65,6 +65,7 @@ class Derived:
     draws: pa.Table | None = None  # age-model draws per section (age_draws rows)
     screens: pa.Table | None = None  # screen results, long form (screen_results rows)
     conflicts: list[str] = field(default_factory=list)  # sections whose ties contradict
+    run_qc: pa.Table | None = None  # per in-house run and isotope: line and quality
 
 
 def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
@@ -73,23 +74,37 @@ def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
 
 
 def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
-           strict: bool = True) -> Derived:
+           strict: bool = True, runs: pa.Table | None = None) -> Derived:
     """Fill the derived columns of ``records`` from its reported columns, ``settings`` and
     the age ties of its sections (``ties``: age_ties rows; others are ignored).
 
+    ``runs``: the reference-material measurements of in-house runs (runs rows).
     ``strict`` (ingest): contradictory ties are refused. A recompute passes False: a section
     whose ties contradict each other on the new chart keeps its other ages, and
     ``Derived.conflicts`` lists it.
     """
+    import pyarrow as pa
     from strata13.compile import ages
+    from strata13.schemas.records import RUN_QC, arrow_schema
 
     chains: dict[str, str] = {}
     conflicts: list[str] = []
-    table = _harmonise(records, chains, settings, strict)
+    qc: list[dict[str, Any]] = []
+    table = _harmonise(records, chains, settings, strict, runs, qc)
+    table = _big_delta(table)
     table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
     table = _paleo(table)
     table, screens = _screens(table, settings)
-    return Derived(table, chains, draws, screens, conflicts)
+    return Derived(table, chains, draws, screens, conflicts,
+                   pa.Table.from_pylist(qc, schema=arrow_schema(RUN_QC)))
+
+
+def _big_delta(table: pa.Table) -> pa.Table:
+    """Δ13C = δ13C carbonate − δ13C organic, where both are harmonised on the same record."""
+    import pyarrow.compute as pc
+
+    return set_column(table, "big_delta_13c",
+                      pc.subtract(table.column("d13c_carb"), table.column("d13c_org")))
 
 
 def set_column(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
@@ -137,8 +152,104 @@ def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: 
     return out, [_reported_step(scale, ()), info]
 
 
+def _offset_values(values: Any, spec: dict[str, Any] | None) -> Any:
+    off = (spec or {}).get("offset")
+    return values + off["value"] if off else values
+
+
+def _with_offset(steps: list[dict[str, Any]], spec: dict[str, Any] | None,
+                 before: Any) -> list[dict[str, Any]]:
+    """The chain with the source's declared offset as its last step, when there is one."""
+    off = (spec or {}).get("offset")
+    if not off:
+        return steps
+    return [*steps, {"step": "declared per-source offset", "method": "add a constant",
+                     "parameters": {"offset_permil": off["value"]},
+                     "source": f"the mapping's justification: {off['why']}",
+                     "size_permil": abs(off["value"]), "flags": []}]
+
+
+def _run_values(d: str, table: pa.Table, rows: Any, reported: Any, spec: dict[str, Any],
+                runs: pa.Table | None, materials: Any, relation: str
+                ) -> tuple[Any, list[tuple[list[dict[str, Any]], Any, Any]], list[dict]]:
+    """Normalise raw in-house run values, run by run, to the store's accepted values of the
+    run's anchor materials (compile.harmonise.runs); returns per-run chains and the QC."""
+    import numpy as np
+    from strata13.compile.harmonise import runs as run_math
+    from strata13.schemas.materials import accepted_value
+
+    iso = "d18o" if d.startswith("d18o") else "d13c"
+    measured = "d18o_measured" if iso == "d18o" else "d13c_measured"
+    idx = np.flatnonzero(rows)
+    src = table.column("source_id").take(idx).to_pylist()
+    run_ids = table.column("run_id").take(idx).to_pylist()
+    pos = table.column("run_position").take(idx).to_numpy(zero_copy_only=False).astype(float)
+    std = runs.to_pylist() if runs is not None else []
+    out: list[tuple[list[dict[str, Any]], Any, Any]] = []
+    qcs: list[dict[str, Any]] = []
+    mat_table, choice = materials
+    for key in sorted(set(zip(src, run_ids, strict=True)), key=str):
+        sel = np.array([(a, b) == key for a, b in zip(src, run_ids, strict=True)])
+        here = [r for r in std if (r["source_id"], r["run_id"]) == key
+                and r[measured] is not None]
+        where = f"run {key[1]!r} of source {key[0]}"
+        if key[1] is None:
+            raise DomainError(f"source {key[0]}: a raw value has no run_id.",
+                              "Every row of an in-house run sheet needs its run.")
+
+        def meas(material: str, rows_: list[dict[str, Any]] = here) -> list[float]:
+            return [float(r[measured]) for r in rows_ if r["material"] == material]
+        anchors = {}
+        for m in spec["anchors"]:
+            if meas(m):
+                anchors[m] = (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
+        checks = {m: (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
+                  for m in spec.get("checks", []) if meas(m)}
+        raw = reported[rows][sel]
+        drift = None
+        if spec.get("drift"):
+            ref = [(r["run_position"], float(r[measured])) for r in here
+                   if r["run_position"] is not None]
+            by_mat = {}
+            for r in here:
+                by_mat.setdefault(r["material"], []).append(float(r[measured]))
+            offsets = [float(r[measured]) - float(np.mean(by_mat[r["material"]])) for r in here
+                       if r["run_position"] is not None]
+            raw, drift = run_math.drift_correct(raw, pos[sel], np.array([p for p, _ in ref]),
+                                                np.array(offsets))
+            pp = np.array([r["run_position"] or 0.0 for r in here])
+            for m in list(anchors):
+                got = [float(r[measured]) - drift * p for r, p in zip(here, pp, strict=True)
+                       if r["material"] == m]
+                anchors[m] = (got, anchors[m][1])
+        try:
+            values, step, qc = run_math.normalise_run(
+                str(key[1]), raw, anchors, checks, spec.get("slope_tolerance", 0.05),
+                f"{where}: reference materials measured in the run")
+        except DomainError as exc:
+            raise DomainError(f"{where}, {iso}: {exc.message}", exc.hint) from None
+        info = step.as_dict()
+        info["parameters"]["accepted_from"] = "the store's reference-material values"
+        if drift is not None:
+            info["parameters"]["drift_per_position"] = drift
+        if iso == "d18o":
+            info["flags"] = [*info["flags"], "acid fractionation: carried by the normalisation "
+                             "to carbonate standards reacted alongside (same mineral assumed)"]
+        out.append(([{"step": "reported on the lab's working gas (raw)",
+                      "method": "as measured", "parameters": {"scale": "raw"},
+                      "source": where, "size_permil": 0.0, "flags": []}, info], sel, values))
+        qcs.append({"source_id": key[0], "run_id": key[1], "isotope": iso, "slope": qc.slope,
+                    "intercept": qc.intercept, "n_anchors": qc.n_anchors,
+                    "anchors": ", ".join(sorted(anchors)),
+                    "residuals_json": json.dumps(qc.residuals, sort_keys=True),
+                    "precision_1s": qc.precision_1s, "drift_per_position": drift,
+                    "warnings": "; ".join(qc.warnings) or None})
+    return None, out, qcs
+
+
 def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
-               strict: bool = True) -> pa.Table:
+               strict: bool = True, runs: pa.Table | None = None,
+               run_qc: list[dict[str, Any]] | None = None) -> pa.Table:
     """Each δ column onto ‰ VPDB where a method exists for its reported scale:
 
     * VPDB: taken as reported (normalisation not stated: flagged, not corrected);
@@ -154,6 +265,7 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
 
     constants = settings.extra.get("vsmow_constants", oxygen.DEFAULT)
     materials = store_table(settings.extra)
+    run_qc = [] if run_qc is None else run_qc
     for d in DELTA_FIELDS:
         reported = table.column(f"{d}_reported").to_numpy(zero_copy_only=False).astype(float)
         scale = np.asarray(table.column(f"{d}_scale").to_numpy(zero_copy_only=False), object)
@@ -169,6 +281,25 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
             rows = has & (scale == sc) & np.equal(norm, nm)
             spec = json.loads(nm) if nm else None
             stated = spec is not None and spec.get("method") != "not stated"
+            if sc == "raw":
+                try:
+                    values, steps, qc = _run_values(d, table, rows, reported, spec, runs,
+                                                    materials, constants)
+                except DomainError as exc:
+                    if strict:
+                        raise
+                    status[rows] = f"pending: {exc.message}"
+                    continue
+                run_qc += qc
+                for r_steps, r_rows, r_vals in steps:  # one chain per run
+                    values_rows = np.flatnonzero(rows)[r_rows]
+                    r_steps = _with_offset(r_steps, spec, r_vals)
+                    cid, text = chain_id(r_steps)
+                    chains[cid] = text
+                    out[values_rows] = _offset_values(r_vals, spec)
+                    chain[values_rows] = cid
+                    status[values_rows] = "harmonised"
+                continue
             if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated:
                 try:
                     values, steps = _reanchor(d, sc, reported[rows], spec, materials, constants)
@@ -194,6 +325,8 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
             else:
                 status[rows] = f"pending: harmonisation from {sc} not available yet"
                 continue
+            steps = _with_offset(steps, spec, values)
+            values = _offset_values(values, spec)
             cid, text = chain_id(steps)
             chains[cid] = text
             out[rows] = values

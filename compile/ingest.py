@@ -46,6 +46,8 @@ class IngestResult:
     dry_run: bool = False
     pending: dict[str, int] = field(default_factory=dict)
     ties: int = 0  # age ties this source gives
+    standards: int = 0  # reference-material rows of in-house runs (kept in the runs table)
+    run_qc: list[dict[str, Any]] = field(default_factory=list)  # per run and isotope
     redated: int = 0  # records of other sources whose age changed with this source's ties
 
 
@@ -118,6 +120,8 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
     new_ties = ties_table(mapping.ties)
     if dry_run:
         derived = _dry_run(store, prepared, new_ties)
+        result.standards = prepared.runs.num_rows if prepared.runs is not None else 0
+        result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
         result.pending = _pending_counts(derived.table)
         result.committed = derived.table.num_rows
         return result
@@ -136,8 +140,11 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
                                [sid]).to_arrow_table()
         ties = _all_ties(con, sid, new_ties)
         _check_tie_targets(con, prepared, new_ties)
-        derived = derive(prepared.records, settings, ties)
+        runs = prepared.runs
+        derived = derive(prepared.records, settings, ties, runs=runs)
         records = derived.table
+        result.standards = runs.num_rows if runs is not None else 0
+        result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
         # sources whose sections this source's ties date (now or before) are re-dated too
         targets = {t for t in old_ties.column("source_id").to_pylist()
                    + new_ties.column("source_id").to_pylist() if t and t != sid}
@@ -146,7 +153,9 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
             recs = con.execute("SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY "
                                "record_id", [other]).to_arrow_table()
             if recs.num_rows:
-                others[other] = (recs, derive(recs, settings, ties))
+                o_runs = con.execute("SELECT * FROM lake.runs WHERE source_id = ?",
+                                     [other]).to_arrow_table()
+                others[other] = (recs, derive(recs, settings, ties, runs=o_runs))
         result.redated = sum(_age_changes(r, d.table) for r, d in others.values())
         result.pending = _pending_counts(records)
         result.committed = records.num_rows
@@ -159,7 +168,7 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
         result.moved = _moved(con, mapping.source_id, records)
         if old is not None and tuple(old[:-2]) == _meta(mapping.source) \
                 and old[-2] == SCHEMA_VERSION and old[-1] == len(prepared.quarantine) \
-                and _same_rows(old_ties, new_ties) \
+                and _same_rows(old_ties, new_ties) and _same_runs(con, sid, prepared.runs) \
                 and not (result.added or result.removed or result.changed or result.moved):
             result.unchanged = True
             result.version = None
@@ -236,14 +245,14 @@ def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
     settings = settings_from_store(store)
     if not is_store(store.path):
         _check_tie_targets(None, prepared, new_ties)
-        return derive(prepared.records, settings, new_ties)
+        return derive(prepared.records, settings, new_ties, runs=prepared.runs)
     con, _ = store.reader()
     try:
         ties = _all_ties(con, prepared.mapping.source_id, new_ties, "age_ties")
         _check_tie_targets(con, prepared, new_ties, "records")
     finally:
         con.close()
-    return derive(prepared.records, settings, ties)
+    return derive(prepared.records, settings, ties, runs=prepared.runs)
 
 
 def _check_tie_targets(con: Any, prepared: Any, new_ties: pa.Table,
@@ -272,12 +281,21 @@ def _check_tie_targets(con: Any, prepared: Any, new_ties: pa.Table,
 
 
 def _same_rows(a: pa.Table, b: pa.Table) -> bool:
-    """Whether two tie tables hold the same ties (order ignored)."""
+    """Whether two tables hold the same rows (order ignored)."""
     def rows(t: pa.Table) -> list[tuple[Any, ...]]:
         cols = [c for c in b.column_names]
         return sorted(tuple(str(v) for v in r.values()) for r in t.select(cols).to_pylist())
 
     return a.num_rows == b.num_rows and rows(a) == rows(b)
+
+
+def _same_runs(con: Any, source_id: str, runs: pa.Table | None) -> bool:
+    """Whether the source's stored run standards equal the incoming ones."""
+    old = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [source_id]
+                      ).to_arrow_table()
+    if runs is None:
+        return old.num_rows == 0
+    return _same_rows(old.select(runs.column_names), runs)
 
 
 def _age_changes(before: pa.Table, after: pa.Table) -> int:
@@ -331,7 +349,8 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, derived: A
         store.add_parquet(con, "analyses", records)
     for name, table in (("sources", sources),
                         ("localities", prepared.localities), ("sections", prepared.sections),
-                        ("samples", prepared.samples), ("quarantine", quarantine)):
+                        ("samples", prepared.samples), ("quarantine", quarantine),
+                        *([("runs", prepared.runs)] if prepared.runs is not None else [])):
         if table.num_rows:
             _insert(con, name, table)
     con.execute("DELETE FROM lake.age_ties WHERE tie_source_id = ?", [sid])
@@ -369,7 +388,8 @@ def replace_derived_tables(store: Store, con: Any, source_ids: list[str] | None,
     ``derived``'s; the records themselves are written by the caller."""
     where, params = ("", []) if source_ids is None else (
         f" WHERE source_id IN ({', '.join('?' for _ in source_ids)})", list(source_ids))
-    for name, table in (("age_draws", derived.draws), ("screen_results", derived.screens)):
+    for name, table in (("age_draws", derived.draws), ("screen_results", derived.screens),
+                        ("run_qc", derived.run_qc)):
         con.execute(f"DELETE FROM lake.{name}{where}", params)
         if table is None or not table.num_rows:
             continue
@@ -382,6 +402,7 @@ def replace_derived_tables(store: Store, con: Any, source_ids: list[str] | None,
 def reconcile(result: IngestResult) -> str:
     """The row accounting sentence: read = committed + quarantined + blank."""
     r = result.report
-    return (f"read {r.rows_read} rows = {result.committed} committed + {result.quarantined} "
-            f"quarantined + {r.rows_blank} blank")
+    std = f" + {result.standards} run standards" if result.standards else ""
+    return (f"read {r.rows_read} rows = {result.committed} committed{std} + "
+            f"{result.quarantined} quarantined + {r.rows_blank} blank")
 

@@ -30,7 +30,7 @@ from strata13.schemas.vocabularies import vocabulary
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {"source", "table", "columns", "constants", "sections", "localities",
-            "localities_table", "ties", "ties_table", "normalisation"}
+            "localities_table", "ties", "ties_table", "normalisation", "run", "offsets"}
 SOURCE_KEYS = {"id", "citation", "year", "doi", "url", "kind", "lab", "republishes", "note"}
 TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
 COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
@@ -73,6 +73,7 @@ class Mapping:
     ties: list[dict[str, Any]] = field(default_factory=list)  # stored age_ties rows
     # δ field -> {"method": two-point | one-point | not stated, "anchors": {material: ‰}}
     normalisation: dict[str, dict[str, Any]] = field(default_factory=dict)
+    run: dict[str, Any] | None = None  # in-house run: anchors, checks, drift, slope tolerance
 
     @property
     def source_id(self) -> str:
@@ -335,8 +336,92 @@ def load_mapping(path: Path) -> Mapping:
             if c.field not in allowed:
                 raise ConfigError(f"{path.name}: [localities_table] maps {c.header!r} to "
                                   f"{c.field}; only {', '.join(sorted(allowed))} belong there.", "")
+    normalisation = _normalisation(doc.get("normalisation", {}), path)
+    run = _run(doc.get("run"), path)
+    raw_fields = sorted({c.field for c in table.columns if c.scale == "raw"}
+                        | {SCALE_KEYS[k] for k, v in constants.items()
+                           if k in SCALE_KEYS and v == "raw"})
+    if raw_fields and run is None:
+        raise ConfigError(f"{path.name}: {', '.join(raw_fields)} are raw run values but the "
+                          "mapping has no [run] block.",
+                          "Add [run] with anchors = [\"…\", \"…\"] (the reference materials "
+                          "measured in the run).")
+    if run is not None and not raw_fields:
+        raise ConfigError(f"{path.name}: [run] is given but no δ column has scale = \"raw\".",
+                          "Mark the run's δ columns scale = \"raw\", or drop [run].")
+    if run is not None and "run_id" not in seen and "run_id" not in constants:
+        raise ConfigError(f"{path.name}: an in-house run needs run_id (a column or a constant).",
+                          "Map the run column to run_id, or set run_id in [constants].")
+    for fld in raw_fields:
+        if fld in normalisation:
+            raise ConfigError(f"{path.name}: {fld} is a raw run value; [normalisation.{fld}] "
+                              "does not apply.", "The [run] block says how it is normalised.")
+        normalisation[fld] = {"method": "in-house run", **run}
+    for fld, off in _offsets(doc.get("offsets", {}), path).items():
+        normalisation.setdefault(fld, {"method": "not stated", "anchors": {}})["offset"] = off
     return Mapping(path, hashlib.sha256(raw).hexdigest(), source, table, constants, sections,
-                   localities, loc_table, ties, _normalisation(doc.get("normalisation", {}), path))
+                   localities, loc_table, ties, normalisation, run)
+
+
+RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "note"}
+
+
+def _run(block: Any, path: Path) -> dict[str, Any] | None:
+    """``[run]``: an in-house run sheet. Rows whose sample_id names a listed reference
+    material are its standards; the others are samples normalised with them."""
+    if block is None:
+        return None
+    if not isinstance(block, dict):
+        raise ConfigError(f"{path.name}: [run] must be a table.", "")
+    _unknown_keys("[run]", block, RUN_KEYS, path)
+    anchors, checks = block.get("anchors", []), block.get("checks", [])
+    for key, names in (("anchors", anchors), ("checks", checks)):
+        if not isinstance(names, list) or not all(isinstance(x, str) and x.strip()
+                                                  for x in names):
+            raise ConfigError(f"{path.name}: [run] {key} must be a list of material names.",
+                              "Example: anchors = [\"IAEA-603\", \"NBS-18\"]")
+    if len(anchors) < 2:
+        raise ConfigError(f"{path.name}: [run] names {len(anchors)} anchor(s); a run is "
+                          "normalised to at least two.",
+                          "List two or more reference materials that bracket the samples.")
+    both = set(anchors) & set(checks)
+    if both:
+        raise ConfigError(f"{path.name}: [run] lists {sorted(both)[0]!r} as anchor and check.",
+                          "A material is either an anchor or a check.")
+    tol = block.get("slope_tolerance", 0.05)
+    if not isinstance(tol, (int, float)) or isinstance(tol, bool) or not 0 < tol < 1:
+        raise ConfigError(f"{path.name}: [run] slope_tolerance must be a number in (0, 1).",
+                          "0.05 (common practice) warns when |slope − 1| > 0.05.")
+    drift = block.get("drift", False)
+    if not isinstance(drift, bool):
+        raise ConfigError(f"{path.name}: [run] drift must be true or false.", "")
+    return {"anchors": [str(a) for a in anchors], "checks": [str(c) for c in checks],
+            "drift": drift, "slope_tolerance": float(tol)}
+
+
+def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:
+    """``[offsets.<δ field>]``: a declared per-source offset (value in ‰ and why)."""
+    if not isinstance(block, dict):
+        raise ConfigError(f"{path.name}: [offsets] must hold one table per δ field.", "")
+    out = {}
+    for fld, spec in block.items():
+        where = f"[offsets.{fld}]"
+        if fld not in DELTA_SCALES:
+            raise ConfigError(f"{path.name}: {where} is not a δ field."
+                              + _did_you_mean(fld, set(DELTA_SCALES)), "")
+        if not isinstance(spec, dict):
+            raise ConfigError(f"{path.name}: {where} must be a table.", "")
+        _unknown_keys(where, spec, {"value", "why"}, path)
+        value, why = spec.get("value"), spec.get("why")
+        if not isinstance(value, (int, float)) or isinstance(value, bool) or abs(value) > 5:
+            raise ConfigError(f"{path.name}: {where} value must be a number of ‰ (|value| ≤ 5).",
+                              "Example: value = 0.12")
+        if not isinstance(why, str) or len(why.strip()) < 10:
+            raise ConfigError(f"{path.name}: {where} needs why = \"…\": the justification, "
+                              "in words.", "Say what the offset rests on, e.g. an "
+                              "inter-laboratory comparison and its reference.")
+        out[fld] = {"value": float(value), "why": why.strip()}
+    return out
 
 
 NORMALISATION_METHODS = {"two-point": 2, "one-point": 1, "not stated": 0}

@@ -61,7 +61,8 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         settings = Settings.from_stored(after)
         table = con.execute("SELECT * FROM lake.analyses ORDER BY record_id").to_arrow_table()
         ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
-        derived = derive(table, settings, ties, strict=False)
+        runs = con.execute("SELECT * FROM lake.runs").to_arrow_table()
+        derived = derive(table, settings, ties, strict=False, runs=runs)
         result = RecomputeResult(command, None, table.num_rows, settings_before=before,
                                  settings_after=after, conflicts=derived.conflicts)
         status_changed = False

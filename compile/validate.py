@@ -63,6 +63,7 @@ class Prepared:
     samples: pa.Table
     quarantine: list[dict[str, Any]]
     report: Report = field(default_factory=Report)
+    runs: pa.Table | None = None  # in-house runs: the reference-material measurements
 
     @property
     def ok(self) -> bool:
@@ -372,7 +373,11 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback
 
     ids, first = record_ids(sid, text("section_id", sec), text("sample_id", sample), replicate)
+    standards = {m.lower() for m in [*mapping.run["anchors"], *mapping.run["checks"]]} \
+        if mapping.run else set()  # a run's standards repeat by design; they leave below
     for i in np.flatnonzero(first >= 0):
+        if standards and str(sample[i]).strip().lower() in standards:
+            continue
         rows.error(int(i), letter_s, header_s, sample[i], "duplicate record",
                    f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is already "
                    f"in row {raw.row_numbers[first[i]]}; give replicates a replicate number")
@@ -436,10 +441,40 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     records = complete(frame if valid.all() else frame.filter(pa.array(valid)))
     records = records.append_column("row_hash", row_hashes(records)) \
         if "row_hash" not in records.column_names else records
+    runs = None
+    if mapping.run is not None:
+        records, runs = _split_run(records, mapping, report)
     return Prepared(mapping, _file_sha(spec.file), records,
                     localities_table(sid, locality_blocks),
                     sections_table(sid, section_blocks, sec, loc),
-                    samples_table(records), quarantine, report)
+                    samples_table(records), quarantine, report, runs)
+
+
+def _split_run(records: pa.Table, mapping: Mapping, report: Report
+               ) -> tuple[pa.Table, pa.Table]:
+    """An in-house run sheet: rows whose sample_id names one of the run's reference
+    materials are its standards (kept in the runs table), the rest are samples."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    from strata13.schemas.records import RUNS, arrow_schema
+
+    run = mapping.run or {}
+    names = {m.lower(): m for m in [*run["anchors"], *run["checks"]]}
+    sample = pc.utf8_lower(pc.utf8_trim_whitespace(records.column("sample_id")))
+    is_std = pc.fill_null(pc.is_in(sample, value_set=pa.array(list(names))), False)
+    std = records.filter(is_std)
+    rows = [{"source_id": r["source_id"], "run_id": r["run_id"],
+             "material": names[str(r["sample_id"]).strip().lower()],
+             "d13c_measured": r["d13c_carb_reported"], "d18o_measured": r["d18o_carb_reported"],
+             "note": r["note"], "run_position": r["run_position"], "sheet_row": r["sheet_row"]}
+            for r in std.select(["source_id", "run_id", "sample_id", "d13c_carb_reported",
+                                 "d18o_carb_reported", "note", "run_position",
+                                 "sheet_row"]).to_pylist()]
+    report.add(Issue("info", "", "", "", str(len(rows)), "in-house run",
+                     f"{len(rows)} reference-material measurements kept as run standards; "
+                     f"{records.num_rows - len(rows)} samples"))
+    return records.filter(pc.invert(is_std)), pa.Table.from_pylist(
+        rows, schema=arrow_schema(RUNS))
 
 
 def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stored: str,

@@ -161,9 +161,44 @@ def broken() -> None:
     wb.save(HERE / "harnholt_2016_broken.xlsx")
 
 
+def inhouse_run() -> None:
+    """An in-house run sheet of the invented Orvanne lab: two runs, each with its reference
+    materials (IAEA-603 and NBS-18 as anchors, IAEA-CO-8 as a check) and samples of the
+    invented Tarrow Gill section. Raw values are the accepted/true values put through an
+    invented per-run line, raw = (true − b) / a, so normalisation must undo it."""
+    rng = np.random.default_rng(2024)  # its own stream: the other sheets stay as they are
+    accepted = {"IAEA-603": (2.460, -2.370), "NBS-18": (-5.014, 0.97001 * 7.20 - 29.99),
+                "IAEA-CO-8": (-5.764, -22.7)}
+    lines = {"R1": ((1.010, 0.339), (1.004, 0.20)), "R2": ((0.995, -0.12), (0.998, -0.30))}
+    heights = np.round(np.linspace(0.4, 10.6, 12), 2)
+    ages = 184.3 - 2.0 * heights / 11.0
+    rows = [["Run", "Line", "Identifier", "Height (m)", "d13C raw", "d18O raw", "Comment"]]
+    for run, ((a13, b13), (a18, b18)) in lines.items():
+        k = 0
+        block = [("IAEA-603", None), ("NBS-18", None)]
+        block += [(f"TG-{i + 1:02d}", i) for i in (range(0, 6) if run == "R1" else range(6, 12))]
+        block += [("IAEA-CO-8", None), ("IAEA-603", None), ("NBS-18", None)]
+        for ident, i in block:
+            k += 1
+            if i is None:
+                t13, t18 = accepted[ident]
+                h = ""
+            else:
+                t13 = curve(ages[i]) + rng.normal(0, 0.05)
+                t18 = -2.9 + rng.normal(0, 0.1)
+                h = f"{heights[i]:.2f}"
+            r13 = (t13 - b13) / a13 + rng.normal(0, 0.02)
+            r18 = (t18 - b18) / a18 + rng.normal(0, 0.04)
+            rows.append([run, k, ident, h, f"{r13:.3f}", f"{r18:.3f}",
+                         "standard" if i is None else ""])
+    with (HERE / "orvanne_lab_run_2024.csv").open("w", encoding="utf-8", newline="") as fh:
+        csv.writer(fh, lineterminator="\n").writerows(rows)
+
+
 if __name__ == "__main__":
     HERE.mkdir(exist_ok=True)
     quillar()
     mossaret_fennoway()
     ystrel()
     broken()
+    inhouse_run()

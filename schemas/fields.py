@@ -131,6 +131,8 @@ FIELDS: tuple[Field, ...] = (
     Field("original_source", "text", "source that first published this value (lineage)",
           column="original_source_id"),
     Field("run_id", "text", "in-house analytical run identifier"),
+    Field("run_position", "float", "position of the measurement in its run (for drift)",
+          plausible=(0.0, 1e6), plausible_name="run position"),
     Field("note", "text", "free note"),
 )
 
@@ -141,10 +143,12 @@ BY_NAME: dict[str, Field] = {f.name: f for f in FIELDS}
 SCALE_KEYS = {f"{d}_scale": d for d in DELTA_FIELDS}
 BASIS_KEYS = {f"{c}_basis": c for c in CONC_FIELDS}
 
+# "raw": measured in an in-house run against the lab's working gas, not yet normalised
+# (the mapping's [run] block names the reference materials measured with it)
 DELTA_SCALES = {
-    "d13c_carb": ("VPDB", "VPDB-LSVEC", "PDB"),
-    "d13c_org": ("VPDB", "VPDB-LSVEC", "PDB"),
-    "d18o_carb": ("VPDB", "VSMOW", "PDB"),
+    "d13c_carb": ("VPDB", "VPDB-LSVEC", "PDB", "raw"),
+    "d13c_org": ("VPDB", "VPDB-LSVEC", "PDB", "raw"),
+    "d18o_carb": ("VPDB", "VSMOW", "PDB", "raw"),
 }
 CONC_BASES = ("leach", "whole-rock", "carbonate-normalised")
 

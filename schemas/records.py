@@ -64,6 +64,7 @@ ANALYSES: list[tuple[str, str]] = [
     # how the authors normalised each δ column (JSON: method and assumed anchor values)
     ("d13c_carb_normalisation", TEXT), ("d18o_carb_normalisation", TEXT),
     ("d13c_org_normalisation", TEXT),
+    ("run_position", REAL), ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
 ]
 
 SOURCES = [
@@ -97,8 +98,13 @@ COMMITS = [
 REGIONS = [("name", TEXT), ("geojson", TEXT), ("source_file", TEXT)]
 CHAINS = [("chain_id", TEXT), ("steps_json", TEXT)]
 # Filled by later capabilities; present now so no migration is needed.
+# reference-material measurements of in-house runs (raw, on the working gas)
 RUNS = [("source_id", TEXT), ("run_id", TEXT), ("material", TEXT), ("d13c_measured", REAL),
-        ("d18o_measured", REAL), ("note", TEXT)]
+        ("d18o_measured", REAL), ("note", TEXT), ("run_position", REAL), ("sheet_row", INT)]
+# per run and isotope: the normalisation line and its quality (derived; replaced on recompute)
+RUN_QC = [("source_id", TEXT), ("run_id", TEXT), ("isotope", TEXT), ("slope", REAL),
+          ("intercept", REAL), ("n_anchors", INT), ("anchors", TEXT), ("residuals_json", TEXT),
+          ("precision_1s", REAL), ("drift_per_position", REAL), ("warnings", TEXT)]
 # source_id/section_id: the section a tie dates; tie_source_id: the source that gave the tie
 # (a tie source of its own survives re-ingests of the data it dates). age_sigma_ma is 1σ.
 AGE_TIES = [("source_id", TEXT), ("section_id", TEXT), ("position_m", REAL), ("age_ma", REAL),
@@ -116,10 +122,11 @@ TABLES: dict[str, list[tuple[str, str]]] = {
     "analyses": ANALYSES, "sources": SOURCES, "localities": LOCALITIES, "sections": SECTIONS,
     "samples": SAMPLES, "quarantine": QUARANTINE, "settings": SETTINGS, "commits": COMMITS,
     "regions": REGIONS, "chains": CHAINS, "runs": RUNS, "age_ties": AGE_TIES,
-    "age_draws": AGE_DRAWS, "screen_results": SCREEN_RESULTS,
+    "age_draws": AGE_DRAWS, "screen_results": SCREEN_RESULTS, "run_qc": RUN_QC,
 }
 # Tables replaced source by source on (re-)ingest.
-PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine")
+PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine",
+              "runs")
 
 # The public `records` view: DESIGN.md's names first, then every other analyses column.
 RECORDS_PUBLIC = [

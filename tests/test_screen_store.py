@@ -384,7 +384,7 @@ def test_plot_writes_one_readable_png_per_section(demo_store: Path, tmp_path: Pa
     assert res.returncode == 0, res.stderr
     sections = frame(demo_store, "SELECT DISTINCT source_id, section_id FROM records")
     files = sorted(out.glob("*.png"))
-    assert len(files) == len(sections) == 6
+    assert len(files) == len(sections) >= 6
     assert sorted(p.name for p in out.iterdir()) == [p.name for p in files]
     for f in files:
         img = mpimg.imread(f)

@@ -137,6 +137,8 @@ def samples_for(store: Store, filters: Filters, req: CurveRequest, *,
             continue
         part["value"] = part[col]
         part["isotope"] = kind
+        if req.allow_mixed:  # a sample's carbonate and organic values stay two samples
+            part["sample_id"] = part["sample_id"].astype(str) + f" ({kind})"
         frames.append(part)
     if not frames:
         raise DomainError(f"none of the {len(df)} matching records has a harmonised "
@@ -263,9 +265,9 @@ def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
         raise DomainError("all matching samples have one age; a curve needs an age range.",
                           "Widen --interval or add sections.")
     if req.bin_myr is not None and req.bin_myr > (older - younger):
-        raise OptionError(f"--bin-myr {req.bin_myr:g} is wider than the interval "
-                          f"({older - younger:g} Myr).", "Give a narrower bin or a wider "
-                          "--interval.")
+        raise OptionError(f"--bin-myr {req.bin_myr:g} is wider than the ages of the matching "
+                          f"samples ({older:g}–{younger:g} Ma, {older - younger:.3g} Myr).",
+                          "Give a narrower bin; bins cover the samples' ages.")
     edges, stages = _edges(req, older, younger, scale)
     full_grid = np.linspace(older, younger, GRID_POINTS)
     draws = None
@@ -374,13 +376,15 @@ def make_excursion(store: Store, filters: Filters, *, by: str | None = None,
     if filters.interval is None:
         raise OptionError("excursion needs --interval (the interval holding the excursion).",
                           "Example: --interval Toarcian")
-    req = CurveRequest(by=by)
+    # never mix components within a section's record: by default one row per section and
+    # component (the samples of bulk and micrite alternate in some cores)
+    req = CurveRequest(by=by or "component")
     req.check()
     s = samples_for(store, filters, req)
     df = s.frame
-    group_col = "group" if by is not None else None
+    group_col = "group"
     per = ex.per_section(df, group_col, baseline, fraction, direction)
-    summ = ex.summary(per, "group" if by is not None else None)
+    summ = ex.summary(per, "group")
     files: dict[str, str] = {}
     if out is not None:
         out.mkdir(parents=True, exist_ok=True)
