@@ -24,6 +24,8 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
            store: StoreOpt = None) -> None:
     """Ingest one sheet (or a mapping of age ties only): every problem reported at once;
     nothing bad enters the store."""
+    import json
+
     from strata13.compile import api
     from strata13.compile.errors import ValidationFailed
     from strata13.compile.ingest import reconcile
@@ -73,9 +75,10 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
     for q in result.run_qc:
         warn = f"; WARNING {q['warnings']}" if q["warnings"] else ""
         prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"
+        res = ", ".join(f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items())
         render.message(f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
                        f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
-                       f"{q['residuals_json']}; precision 1σ {prec}{warn}")
+                       f"{res or '—'}; precision 1σ {prec}{warn}")
     if result.pending:
         render.note("pending (kept as reported, not yet harmonised or dated): " + ", ".join(
             f"{k} {v}" for k, v in sorted(result.pending.items())))

@@ -47,13 +47,15 @@ def error(text: str, hint: str = "") -> None:
         con.print(f"[yellow]hint:[/yellow] {_escape(hint)}")
 
 
-def _cell(v: Any) -> str:
+def _cell(v: Any, short: bool = False) -> str:
+    """A value as text; ``short`` (the table format, for reading) rounds floats to 6
+    significant digits — csv, json and parquet keep every digit."""
     if v is None:
         return ""
     if isinstance(v, float):
         if math.isnan(v):
             return ""
-        return repr(v)
+        return f"{v:.6g}" if short else repr(v)
     return str(v)
 
 
@@ -90,10 +92,11 @@ def table(columns: Sequence[str], rows: Sequence[Sequence[Any]], fmt: str = "tab
             for c in columns:
                 t.add_column(c, overflow="fold")
             for r in rows:
-                t.add_row(*[_escape(_cell(v)) for v in r])
+                t.add_row(*[_escape(_cell(v, short=True)) for v in r])
             _console(stderr=stderr).print(t)
             return
-        text = "".join("\t".join(_cell(v).replace("\t", " ").replace("\n", " ") for v in r)
+        text = "".join("\t".join(_cell(v, True).replace("\t", " ").replace("\n", " ")
+                                 for v in r)
                        + "\n" for r in [list(columns), *rows])
     if out is not None:
         out.write_text(text, encoding="utf-8")

@@ -64,7 +64,8 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
         for q in r.run_qc:
             yield "say", (f"  in-house run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, "
                           f"intercept {q['intercept']:+.3f} ‰ from {q['anchors']}; check "
-                          f"residuals {json.loads(q['residuals_json'])}")
+                          "residuals " + ", ".join(f"{k} {v:+.3f} ‰" for k, v in
+                                                   json.loads(q["residuals_json"]).items()))
     r = api.ingest(store, None, sheets / TIES)
     yield "say", (f"ingested {TIES} (age ties only): {r.ties} ties, {r.redated} records "
                   f"re-dated, version {r.version}")
