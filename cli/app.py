@@ -14,6 +14,7 @@ from strata13.cli import (
     export,
     ingest,
     init,
+    integrity,
     listing,
     query,
     reharmonise,
@@ -64,6 +65,8 @@ app.command("agemodel")(chrono.agemodel)
 app.command("screen")(screen.screen)
 app.command("curve")(synthesis.curve)
 app.command("excursion")(synthesis.excursion)
+app.command("correct")(integrity.correct)
+app.command("corrections")(integrity.corrections)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -72,6 +72,9 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
                           if result.redated else ""))
     if result.report.rows_read:
         render.message(reconcile(result))
+    if result.orphaned:
+        render.note(f"{result.orphaned} stored correction(s) name records this sheet no longer "
+                    "has; see `strata13 corrections`")
     for q in result.run_qc:
         warn = f"; WARNING {q['warnings']}" if q["warnings"] else ""
         prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"

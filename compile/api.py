@@ -413,6 +413,22 @@ def excursion(store: Store, filters: Filters, *, by: str | None = None,
                           direction=direction, out=Path(out) if out is not None else None)
 
 
+def correct(store: Store, items: list[Any]) -> Any:
+    """Store corrections (``corrections.Correction``: record, field, value, why) and
+    re-derive the sources they touch, in one commit."""
+    from strata13.compile.corrections import correct as _correct
+
+    return _correct(store, items)
+
+
+def corrections(store: Store, source: list[str] | None = None) -> list[dict[str, Any]]:
+    """Every stored correction: the record's place, what was published, the corrected
+    value, the reason, and whether the record still exists ('applied' or 'orphaned')."""
+    from strata13.compile.corrections import listing
+
+    return listing(store, check_sources(store, source) if source else None)
+
+
 def plot_agemodel(model: Any, path: str | Path) -> Path:
     """Write a section model's age–position figure (PNG)."""
     from strata13.compile.chronology import plot_model
@@ -460,6 +476,8 @@ def _replay(step: dict[str, Any], value: float | None) -> float | None:
         return value + p["offset"]
     if "offset_permil" in p:
         return value + p["offset_permil"]
+    if "corrected" in p:
+        return p["corrected"]
     if step.get("method", "").startswith(("as reported", "as measured", "identity")):
         return value
     return None

@@ -74,11 +74,13 @@ def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
 
 
 def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
-           strict: bool = True, runs: pa.Table | None = None) -> Derived:
+           strict: bool = True, runs: pa.Table | None = None,
+           corrections: pa.Table | None = None) -> Derived:
     """Fill the derived columns of ``records`` from its reported columns, ``settings`` and
     the age ties of its sections (``ties``: age_ties rows; others are ignored).
 
-    ``runs``: the reference-material measurements of in-house runs (runs rows).
+    ``runs``: the reference-material measurements of in-house runs (runs rows);
+    ``corrections``: the store's corrections (applied on top of the reported values).
     ``strict`` (ingest): contradictory ties are refused. A recompute passes False: a section
     whose ties contradict each other on the new chart keeps its other ages, and
     ``Derived.conflicts`` lists it.
@@ -90,7 +92,10 @@ def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
     chains: dict[str, str] = {}
     conflicts: list[str] = []
     qc: list[dict[str, Any]] = []
-    table = _harmonise(records, chains, settings, strict, runs, qc)
+    from strata13.compile.corrections import apply
+
+    records, fixes = apply(records, corrections)
+    table = _harmonise(records, chains, settings, strict, runs, qc, fixes)
     table = _big_delta(table)
     table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
     table = _paleo(table)
@@ -150,6 +155,14 @@ def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: 
                              f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
                              "practice): the scales agree here within precision")
     return out, [_reported_step(scale, ()), info]
+
+
+def _fix_index(table: pa.Table, fixes: dict[str, Any]) -> dict[int, Any]:
+    """Row index -> (corrected value, why, published) for one δ field's corrections."""
+    if not fixes:
+        return {}
+    ids = table.column("record_id").to_pylist()
+    return {i: fixes[r] for i, r in enumerate(ids) if r in fixes}
 
 
 def _offset_values(values: Any, spec: dict[str, Any] | None) -> Any:
@@ -249,7 +262,8 @@ def _run_values(d: str, table: pa.Table, rows: Any, reported: Any, spec: dict[st
 
 def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
                strict: bool = True, runs: pa.Table | None = None,
-               run_qc: list[dict[str, Any]] | None = None) -> pa.Table:
+               run_qc: list[dict[str, Any]] | None = None,
+               fixes: dict[str, dict[str, Any]] | None = None) -> pa.Table:
     """Each δ column onto ‰ VPDB where a method exists for its reported scale:
 
     * VPDB: taken as reported (normalisation not stated: flagged, not corrected);
@@ -266,8 +280,12 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
     constants = settings.extra.get("vsmow_constants", oxygen.DEFAULT)
     materials = store_table(settings.extra)
     run_qc = [] if run_qc is None else run_qc
+    fixes = fixes or {}
     for d in DELTA_FIELDS:
         reported = table.column(f"{d}_reported").to_numpy(zero_copy_only=False).astype(float)
+        fixed = _fix_index(table, fixes.get(d, {}))
+        for i, (value, _why, _rep) in fixed.items():
+            reported[i] = value  # derived from the corrected value; *_reported stays as published
         scale = np.asarray(table.column(f"{d}_scale").to_numpy(zero_copy_only=False), object)
         has = ~np.isnan(reported)
         out = np.full(len(reported), np.nan)
@@ -332,6 +350,17 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
             out[rows] = values
             chain[rows] = cid
             status[rows] = "harmonised"
+        for i, (value, why, rep) in fixed.items():  # a correction opens the record's chain
+            if chain[i] is None:
+                continue
+            steps = [{"step": "correction", "method": "the user's correction of the published "
+                      "value", "parameters": {"published": rep, "corrected": value},
+                      "source": why, "size_permil": abs(value - rep) if rep is not None and
+                      rep == rep else 0.0, "flags": ["corrected by the user"]},
+                     *json.loads(chains[chain[i]])]
+            cid, text = chain_id(steps)
+            chains[cid] = text
+            chain[i] = cid
         status[has & (status == "pending")] = "pending: the reported scale is not stated"
         table = set_column(table, d, pa.array(out, type=pa.float64(), from_pandas=True))
         table = set_column(table, f"{d}_chain", pa.array(chain, type=pa.string()))

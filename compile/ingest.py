@@ -49,6 +49,7 @@ class IngestResult:
     standards: int = 0  # reference-material rows of in-house runs (kept in the runs table)
     run_qc: list[dict[str, Any]] = field(default_factory=list)  # per run and isotope
     redated: int = 0  # records of other sources whose age changed with this source's ties
+    orphaned: int = 0  # stored corrections whose record this ingest no longer has
 
 
 def settings_from_store(store: Store) -> Settings:
@@ -141,21 +142,17 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
         ties = _all_ties(con, sid, new_ties)
         _check_tie_targets(con, prepared, new_ties)
         runs = prepared.runs
-        derived = derive(prepared.records, settings, ties, runs=runs)
+        fixes = con.execute("SELECT * FROM lake.corrections WHERE source_id = ?",
+                            [sid]).to_arrow_table()
+        derived = derive(prepared.records, settings, ties, runs=runs, corrections=fixes)
         records = derived.table
+        result.orphaned = _orphans(fixes, records)
         result.standards = runs.num_rows if runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
         # sources whose sections this source's ties date (now or before) are re-dated too
         targets = {t for t in old_ties.column("source_id").to_pylist()
                    + new_ties.column("source_id").to_pylist() if t and t != sid}
-        others = {}
-        for other in sorted(targets):
-            recs = con.execute("SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY "
-                               "record_id", [other]).to_arrow_table()
-            if recs.num_rows:
-                o_runs = con.execute("SELECT * FROM lake.runs WHERE source_id = ?",
-                                     [other]).to_arrow_table()
-                others[other] = (recs, derive(recs, settings, ties, runs=o_runs))
+        others = derive_sources(con, sorted(targets), settings, ties)
         result.redated = sum(_age_changes(r, d.table) for r, d in others.values())
         result.pending = _pending_counts(records)
         result.committed = records.num_rows
@@ -250,9 +247,11 @@ def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
     try:
         ties = _all_ties(con, prepared.mapping.source_id, new_ties, "age_ties")
         _check_tie_targets(con, prepared, new_ties, "records")
+        fixes = con.execute("SELECT * FROM corrections WHERE source_id = ?",
+                            [prepared.mapping.source_id]).to_arrow_table()
     finally:
         con.close()
-    return derive(prepared.records, settings, ties, runs=prepared.runs)
+    return derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
 
 
 def _check_tie_targets(con: Any, prepared: Any, new_ties: pa.Table,
@@ -287,6 +286,49 @@ def _same_rows(a: pa.Table, b: pa.Table) -> bool:
         return sorted(tuple(str(v) for v in r.values()) for r in t.select(cols).to_pylist())
 
     return a.num_rows == b.num_rows and rows(a) == rows(b)
+
+
+def derive_sources(con: Any, sources: list[str], settings: Settings,
+                   ties: pa.Table | None = None) -> dict[str, tuple[pa.Table, Any]]:
+    """Re-derive stored sources (their records, runs, corrections and the given or stored
+    ties) inside the writer's transaction: {source: (stored records, Derived)}."""
+    if ties is None:
+        ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
+    out = {}
+    for sid in sources:
+        recs = con.execute("SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY "
+                           "record_id", [sid]).to_arrow_table()
+        if not recs.num_rows:
+            continue
+        runs = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [sid]).to_arrow_table()
+        fixes = con.execute("SELECT * FROM lake.corrections WHERE source_id = ?",
+                            [sid]).to_arrow_table()
+        out[sid] = (recs, derive(recs, settings, ties, runs=runs, corrections=fixes))
+    return out
+
+
+def write_sources(store: Store, con: Any, derived: dict[str, tuple[pa.Table, Any]]) -> None:
+    """Replace re-derived sources' records and derived tables (inside the transaction)."""
+    for sid, (_, d) in derived.items():
+        con.execute("DELETE FROM lake.analyses WHERE source_id = ?", [sid])
+        store.add_parquet(con, "analyses", d.table)
+        replace_derived_tables(store, con, [sid], d)
+        store.add_chains(con, d.chains)
+
+
+def rederive_sources(store: Store, con: Any, sources: list[str], settings: Settings) -> None:
+    """Re-derive and rewrite stored sources (a correction, say), in the open transaction."""
+    write_sources(store, con, derive_sources(con, sources, settings))
+
+
+def _orphans(fixes: pa.Table, records: pa.Table) -> int:
+    """Corrections of this source whose record id the incoming records no longer have."""
+    import pyarrow.compute as pc
+
+    if not fixes.num_rows:
+        return 0
+    have = pc.is_in(fixes.column("record_id"), value_set=records.column("record_id"))
+    return int(fixes.num_rows - (pc.sum(have).as_py() or 0))
 
 
 def _same_runs(con: Any, source_id: str, runs: pa.Table | None) -> bool:
@@ -357,12 +399,9 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, derived: A
     if ties.num_rows:
         _insert(con, "age_ties", ties)
     result.ties = ties.num_rows
-    for other, (_, d) in others.items():
-        con.execute("DELETE FROM lake.analyses WHERE source_id = ?", [other])
-        store.add_parquet(con, "analyses", d.table)
-    for d_sid, d in [(sid, derived)] + [(o, d) for o, (_, d) in others.items()]:
-        replace_derived_tables(store, con, [d_sid], d)
-        store.add_chains(con, d.chains)
+    replace_derived_tables(store, con, [sid], derived)
+    store.add_chains(con, derived.chains)
+    write_sources(store, con, others)
     summary = {"source": sid, "records": records.num_rows, "added": result.added,
                "removed": result.removed, "changed": result.changed, "moved": result.moved,
                "quarantined": result.quarantined, "ties": ties.num_rows,

@@ -62,7 +62,8 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         table = con.execute("SELECT * FROM lake.analyses ORDER BY record_id").to_arrow_table()
         ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
         runs = con.execute("SELECT * FROM lake.runs").to_arrow_table()
-        derived = derive(table, settings, ties, strict=False, runs=runs)
+        fixes = con.execute("SELECT * FROM lake.corrections").to_arrow_table()
+        derived = derive(table, settings, ties, strict=False, runs=runs, corrections=fixes)
         result = RecomputeResult(command, None, table.num_rows, settings_before=before,
                                  settings_after=after, conflicts=derived.conflicts)
         status_changed = False

@@ -65,6 +65,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("d13c_carb_normalisation", TEXT), ("d18o_carb_normalisation", TEXT),
     ("d13c_org_normalisation", TEXT),
     ("run_position", REAL), ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
+    ("corrected_fields", TEXT),  # JSON list of the fields a stored correction changed
 ]
 
 SOURCES = [
@@ -115,6 +116,11 @@ AGE_TIES = [("source_id", TEXT), ("section_id", TEXT), ("position_m", REAL), ("a
 # section's distinct sample positions, on the store's time scale.
 AGE_DRAWS = [("source_id", TEXT), ("section_id", TEXT), ("chunk", INT), ("positions_json", TEXT),
              ("n_draws", INT), ("draws", BLOB)]
+# the corrections layer: a user's fix of one field of one record, with the reason and what
+# was published; applied by the derive engine on every derivation of that record
+CORRECTIONS = [("correction_id", TEXT), ("record_id", TEXT), ("source_id", TEXT),
+               ("field", TEXT), ("value_text", TEXT), ("why", TEXT), ("original_text", TEXT),
+               ("created_utc", TEXT)]
 SCREEN_RESULTS = [("record_id", TEXT), ("rule", TEXT), ("outcome", TEXT), ("detail", TEXT),
                   ("source_id", TEXT)]
 
@@ -123,6 +129,7 @@ TABLES: dict[str, list[tuple[str, str]]] = {
     "samples": SAMPLES, "quarantine": QUARANTINE, "settings": SETTINGS, "commits": COMMITS,
     "regions": REGIONS, "chains": CHAINS, "runs": RUNS, "age_ties": AGE_TIES,
     "age_draws": AGE_DRAWS, "screen_results": SCREEN_RESULTS, "run_qc": RUN_QC,
+    "corrections": CORRECTIONS,
 }
 # Tables replaced source by source on (re-)ingest.
 PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine",
