@@ -67,6 +67,8 @@ app.command("curve")(synthesis.curve)
 app.command("excursion")(synthesis.excursion)
 app.command("correct")(integrity.correct)
 app.command("corrections")(integrity.corrections)
+app.command("overlaps")(integrity.overlaps)
+app.command("coverage")(integrity.coverage)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -31,6 +31,8 @@ ComponentOpt = Annotated[list[str] | None, typer.Option("--component", help="Rep
 SourceOpt = Annotated[list[str] | None, typer.Option("--source", help="Source id; repeatable.",
                                                      show_default=False)]
 ScreenedOpt = Annotated[str, typer.Option("--screened", help="pass | fail | untested | all.")]
+KeepDupOpt = Annotated[bool, typer.Option("--keep-duplicates", help="Keep both records of "
+                                          "confirmed duplicate pairs (default: counted once).")]
 
 
 ALL_FORMATS = ("table", "csv", "json", "parquet")
@@ -53,7 +55,8 @@ def check_format(fmt: str, out: Path | None, store: Path | None = None,
 
 def build_filters(store: Any, interval: str | None, region: str | None,
                   frame: str, lithology: list[str] | None, component: list[str] | None,
-                  source: list[str] | None, screened: str, time_scale: str | None = None) -> Any:
+                  source: list[str] | None, screened: str, time_scale: str | None = None,
+                  keep_duplicates: bool = False) -> Any:
     """Turn the FILTERS options into the library's Filters (validated, vocabulary-checked)."""
     from strata13.compile import api
     from strata13.compile.errors import OptionError
@@ -82,4 +85,5 @@ def build_filters(store: Any, interval: str | None, region: str | None,
         component=check_vocab(component or [], "component", "--component"),
         source=api.check_sources(store, list(source or [])),
         screened=screened,
+        keep_duplicates=keep_duplicates,
     )

@@ -11,6 +11,7 @@ from strata13.cli.common import (
     ComponentOpt,
     FrameOpt,
     IntervalOpt,
+    KeepDupOpt,
     LithologyOpt,
     RegionOpt,
     ScreenedOpt,
@@ -39,6 +40,7 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
            region: RegionOpt = None, frame: FrameOpt = "present",
            lithology: LithologyOpt = None, component: ComponentOpt = None,
            source: SourceOpt = None, screened: ScreenedOpt = "all",
+          keep_duplicates: KeepDupOpt = False,
            as_of: Annotated[int | None, typer.Option("--as-of", help="Export this store "
                                                      "version.", show_default=False)] = None,
            with_curve: Annotated[bool, typer.Option(
@@ -55,7 +57,7 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
 
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened, time_scale)
+                            source, screened, time_scale, keep_duplicates)
     request = None
     if with_curve:
         from strata13.compile.synthesis.run import CurveRequest
@@ -67,7 +69,8 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
         "interval": interval, "time_scale": time_scale, "region": region,
         "frame": frame if frame != "present" else None, "lithology": lithology or [],
         "component": component or [], "source": source or [],
-        "screened": screened if screened != "all" else None}
+        "screened": screened if screened != "all" else None,
+        "keep_duplicates": keep_duplicates}
     if with_curve:
         options |= {"with_curve": True, "isotope": isotope, "by": by, "bin_myr": bin_myr,
                     "span": span, "boots": boots, "seed": seed, "min_sections": min_sections,

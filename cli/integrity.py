@@ -1,4 +1,4 @@
-"""`strata13 correct` and `strata13 corrections`: the corrections layer."""
+"""`overlaps`, `correct`, `corrections` and `coverage`: the compilation's integrity."""
 
 from __future__ import annotations
 
@@ -7,7 +7,97 @@ from typing import Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, OutOpt, SourceOpt, StoreOpt, check_format
+from strata13.cli.common import (
+    ComponentOpt,
+    FormatOpt,
+    FrameOpt,
+    IntervalOpt,
+    KeepDupOpt,
+    LithologyOpt,
+    OutOpt,
+    RegionOpt,
+    ScreenedOpt,
+    SourceOpt,
+    StoreOpt,
+    TimeScaleOpt,
+    build_filters,
+    check_format,
+)
+
+PAIR_COLUMNS = ["record_a", "source_a", "record_b", "source_b", "locality", "position_a_m",
+                "position_b_m", "d13c_a", "d13c_b", "score", "decision", "reasons"]
+
+
+def overlaps(source: Annotated[str | None, typer.Option(
+                 "--source", help="Only pairs involving this source.", show_default=False)]
+             = None,
+             confirm: Annotated[Path | None, typer.Option(
+                 "--confirm", help="Store decisions: a CSV with record_a,record_b,decision "
+                 "(confirm|reject),note.", show_default=False)] = None,
+             position_tol: Annotated[float, typer.Option(
+                 "--position-tol", help="Position tolerance (m).")] = 0.5,
+             value_tol: Annotated[float, typer.Option(
+                 "--value-tol", help="δ tolerance (‰, harmonised).")] = 0.15,
+             fmt: FormatOpt = "table", out: OutOpt = None, store: StoreOpt = None) -> None:
+    """Probable duplicates between sources — same or nearby locality, position and
+    harmonised value within tolerances — scored and explained; --confirm stores your
+    decisions (confirmed duplicates are then counted once; nothing is deleted)."""
+    from strata13.compile import api
+
+    path = api.store_path(store)
+    check_format(fmt, out, path, allowed=("table", "csv", "json"))
+    s = api.open_store(path)
+    if confirm is not None:
+        version, n_conf, n_rej = api.confirm_overlaps(s, confirm)
+        render.message(f"stored {n_conf} confirmed and {n_rej} rejected pair(s) as version "
+                       f"{version}; confirmed duplicates are counted once from now on "
+                       "(--keep-duplicates keeps both).")
+        return
+    pairs = api.overlaps(s, source, position_tol_m=position_tol, value_tol_permil=value_tol)
+    if not len(pairs):
+        render.message("no probable duplicates between sources.")
+    render.table(PAIR_COLUMNS, pairs[PAIR_COLUMNS].itertuples(index=False, name=None), fmt, out)
+    if len(pairs):
+        render.note(f"{len(pairs)} pair(s); decide with --confirm FILE "
+                    "(columns record_a,record_b,decision,note)")
+
+
+def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
+             region: RegionOpt = None, frame: FrameOpt = "present",
+             lithology: LithologyOpt = None, component: ComponentOpt = None,
+             source: SourceOpt = None, screened: ScreenedOpt = "all",
+             keep_duplicates: KeepDupOpt = False,
+             by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")]
+             = "region",
+             bin_myr: Annotated[float | None, typer.Option(
+                 "--bin-myr", help="Bin width (default: the stages of the store's chart).",
+                 show_default=False)] = None,
+             fmt: FormatOpt = "table",
+             out: Annotated[Path | None, typer.Option(
+                 "--out", help="Folder for coverage.csv and the heatmap.",
+                 show_default=False)] = None,
+             store: StoreOpt = None) -> None:
+    """Samples and sections per time bin × region (or paleolatitude band) × component,
+    empty cells included: where the curve is well founded and where it is not."""
+    from strata13.compile import api
+    from strata13.compile.errors import OptionError
+    from strata13.compile.outputs import output_dir
+
+    if by not in ("region", "paleolat-band"):
+        raise OptionError(f"--by {by!r} is not region or paleolat-band.", "Example: --by region")
+    path = api.store_path(store)
+    check_format(fmt, None, path, allowed=("table", "csv", "json"))
+    if out is not None:
+        output_dir(out, option="--out", stores=[path])
+    s = api.open_store(path)
+    filters = build_filters(s, interval, region, frame, lithology, component, source,
+                            screened, time_scale, keep_duplicates)
+    table, files = api.coverage(s, filters, by, bin_myr, out)
+    render.table(list(table.columns), table.itertuples(index=False, name=None), fmt, None)
+    empty = int((table["n_samples"] == 0).sum())
+    render.note(f"{len(table)} cells, {empty} empty")
+    for name, sha in sorted(files.items()):
+        render.note(f"  {name}  sha256 {sha[:16]}…")
 
 LIST_COLUMNS = ["source_id", "section_id", "sample_id", "record_id", "field", "published",
                 "corrected", "why", "created_utc", "status"]

@@ -11,6 +11,7 @@ from strata13.cli.common import (
     FormatOpt,
     FrameOpt,
     IntervalOpt,
+    KeepDupOpt,
     LithologyOpt,
     OutOpt,
     RegionOpt,
@@ -30,6 +31,7 @@ def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
           region: RegionOpt = None, frame: FrameOpt = "present",
           lithology: LithologyOpt = None, component: ComponentOpt = None,
           source: SourceOpt = None, screened: ScreenedOpt = "all",
+          keep_duplicates: KeepDupOpt = False,
           fmt: FormatOpt = "table", out: OutOpt = None,
           all_columns: Annotated[bool, typer.Option("--all-columns", help="Every column of the "
                                                     "records view in table output.")] = False,
@@ -40,7 +42,7 @@ def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened, time_scale)
+                            source, screened, time_scale, keep_duplicates)
     tbl = api.query_arrow(s, filters)
     if fmt == "table" and not all_columns:
         tbl = tbl.select(BRIEF)

@@ -79,8 +79,9 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
         except UnicodeDecodeError:
             raise ConfigError(f"{p.name} is not UTF-8 text.", "Save it as UTF-8 CSV.") from None
         materials_from_text(text, p.name)  # checked now, not at the first ingest
-    table = [*(materials_from_text(text) if text else []), *shipped_materials()]
-    return {"materials_csv": text, "material_values": default_choice(table)}
+    user = materials_from_text(text) if text else []
+    table = [*user, *shipped_materials()]
+    return {"materials_csv": text, "material_values": default_choice(table, len(user))}
 
 
 def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
@@ -427,6 +428,32 @@ def corrections(store: Store, source: list[str] | None = None) -> list[dict[str,
     from strata13.compile.corrections import listing
 
     return listing(store, check_sources(store, source) if source else None)
+
+
+def overlaps(store: Store, source: str | None = None, **tolerances: float) -> Any:
+    """Probable duplicates between sources (pairs with score and reasons, and the decision
+    already stored on each)."""
+    from strata13.compile.integrity.store_ops import overlaps as _overlaps
+
+    if source is not None:
+        check_sources(store, [source])
+    return _overlaps(store, source, **tolerances)
+
+
+def confirm_overlaps(store: Store, path: str | Path) -> tuple[int | None, int, int]:
+    """Store a decisions file (record_a, record_b, decision, note) in one commit."""
+    from strata13.compile.integrity.store_ops import confirm
+
+    return confirm(store, Path(path))
+
+
+def coverage(store: Store, filters: Filters, by: str = "region",
+             bin_myr: float | None = None, out: str | Path | None = None) -> Any:
+    """Samples and sections per time bin × group × component (zeros kept); with ``out``
+    a CSV and a heatmap."""
+    from strata13.compile.integrity.coverage import coverage as _coverage
+
+    return _coverage(store, filters, by, bin_myr, Path(out) if out is not None else None)
 
 
 def plot_agemodel(model: Any, path: str | Path) -> Path:

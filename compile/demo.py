@@ -17,7 +17,8 @@ from strata13.compile.query import Filters
 SHEETS = [("quillar_2011.xlsx", "quillar_2011.toml"),
           ("mossaret_fennoway_2018.ods", "mossaret_fennoway_2018.toml"),
           ("ystrel_cores_2021.csv", "ystrel_cores_2021.toml"),
-          ("orvanne_lab_run_2024.csv", "orvanne_lab_run_2024.toml")]
+          ("orvanne_lab_run_2024.csv", "orvanne_lab_run_2024.toml"),
+          ("orvanne_compilation_2022.csv", "orvanne_compilation_2022.toml")]
 BROKEN = ("harnholt_2016_broken.xlsx", "harnholt_2016_broken.toml")
 TIES = "orvanne_ties_2023.toml"  # a source of age ties only
 
@@ -105,8 +106,54 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                     [(r["section_id"], r["rule"], r["outcome"], r["n"]) for r in flagged])
     plots = api.screen_plots(store, records, screening, figures / "screening")
     yield "say", f"δ13C–δ18O cross-plots: {len(plots)} → {figures / 'screening'}"
-    res = api.export(store, export_dir)
-    yield "say", f"export: {res.records} records of version {res.version} → {export_dir}"
+    yield from _integrity(store, out, figures)
+    from strata13.compile.synthesis.run import CurveRequest
+
+    res = api.export(store, export_dir, Filters(interval=(iv.younger_ma, iv.older_ma),
+                                                interval_info=iv.describe()),
+                     curve=CurveRequest(by="region", bin_myr=0.25, min_sections=3,
+                                        robustness=True),
+                     command="strata13 export --out DIR --interval Toarcian --with-curve "
+                             "--by region --bin-myr 0.25 --min-sections 3 --robustness")
+    yield "say", (f"export: {res.records} records of version {res.version} with the Toarcian "
+                  f"curve by region → {export_dir} (figure: {export_dir / 'curve' / 'curve.png'})")
     yield "note", ("next: strata13 history --store " + str(store.path) +
                    " ; strata13 sql \"SELECT section_id, count(*) FROM records GROUP BY 1\" "
                    "--store " + str(store.path))
+
+
+def _integrity(store: Any, out: Path, figures: Path) -> Iterator[tuple[str, Any]]:
+    """The compilation's integrity: a lost minus sign corrected, the re-published records
+    paired with their originals and confirmed (counted once), and the coverage heatmap."""
+    import csv
+
+    from strata13.compile.corrections import Correction
+
+    lost = api.sql(store, "SELECT record_id FROM records WHERE source_id = "
+                   "'orvanne-compilation-2022' AND sample_id = 'Q11'").rows[0][0]
+    api.correct(store, [Correction(lost, "d13c_carb", "-1.47", "minus sign lost in the "
+                                   "compilation's table; the original (quillar-2011, QR-11) "
+                                   "gives -1.47")])
+    yield "say", (f"correction: record {lost} δ13C 1.47 → -1.47 (a lost minus sign; "
+                  f"`strata13 explain {lost[:10]}` shows reported → corrected → harmonised)")
+    pairs = api.overlaps(store)
+    yield "say", (f"overlaps: {len(pairs)} probable duplicates between sources (the 2022 "
+                  "compilation re-publishes Quillar Ridge samples in metres and on VPDB)")
+    yield "table", (["record_a", "record_b", "score", "reasons"],
+                    [(r.record_a, r.record_b, round(r.score, 3), r.reasons[:90] + "…")
+                     for r in pairs.head(3).itertuples()])
+    decisions = out / "duplicate_decisions.csv"
+    with decisions.open("w", encoding="utf-8", newline="") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["record_a", "record_b", "decision", "note"])
+        for r in pairs.itertuples():
+            w.writerow([r.record_a, r.record_b, "confirm", "re-published by the 2022 compilation"])
+    version, n_conf, _ = api.confirm_overlaps(store, decisions)
+    all_n = api.query_arrow(store, Filters(keep_duplicates=True)).num_rows
+    once = api.query_arrow(store, Filters()).num_rows
+    yield "say", (f"confirmed {n_conf} pairs ({decisions.name}) as version {version}: "
+                  f"{all_n} records stored, {once} counted (duplicates once; nothing deleted)")
+    table, _files = api.coverage(store, Filters(), "region", 0.5, figures / "coverage")
+    empty = int((table["n_samples"] == 0).sum())
+    yield "say", (f"coverage: {len(table)} cells (0.5 Myr × region × component), {empty} "
+                  f"empty → {figures / 'coverage' / 'coverage.png'}")

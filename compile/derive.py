@@ -150,7 +150,7 @@ def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: 
     info["flags"] = list(info.get("flags", [])) + [
         f"{row.material}: the accepted value is {row.status} ({row.value_set})"
         for row in old_rows]
-    if info.get("size_permil", 0.0) < PRECISION_PERMIL:
+    if info.get("size_permil", 0.0) < PRECISION_PERMIL - 1e-9:  # not fooled by rounding
         info["flags"].append(f"largest change {info.get('size_permil', 0.0):.3g} ‰ is below "
                              f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
                              "practice): the scales agree here within precision")

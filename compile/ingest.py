@@ -65,6 +65,8 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     mapping = load_mapping(mapping_path)
     if mapping.table is None:
         return _ingest_ties_only(store, sheet, mapping, dry_run, step, create)
+    if mapping.run is not None:
+        _check_run_materials(store, mapping)
     if sheet is not None and not sheet.is_file():
         raise InputFileError(f"{sheet} " + ("is a folder, not a sheet." if sheet.is_dir()
                                             else "does not exist."), "Check the path of the sheet.")
@@ -94,6 +96,25 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
                                "Fix the cells listed; a source is never replaced by an empty "
                                "one.")
     return _land(store, prepared, result, dry_run, step, create)
+
+
+def _check_run_materials(store: Store, mapping: Any) -> None:
+    """Every material a [run] names must be one the store knows, before the sheet is split
+    into standards and samples (an unknown name would make its rows look like samples)."""
+    import difflib
+
+    from strata13.schemas.materials import store_table
+
+    table, _ = store_table(store.settings())
+    known = sorted({m.material for m in table})
+    for name in [*mapping.run["anchors"], *mapping.run["checks"]]:
+        if name not in known:
+            sug = difflib.get_close_matches(name, known, n=1)
+            raise DomainError(f"{mapping.path.name}: [run] names reference material {name!r}, "
+                              "which the store's material table does not have; nothing was "
+                              "written." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+                              "Name a material `strata13 scales` lists, or add it with "
+                              "--materials FILE.")
 
 
 def _ingest_ties_only(store: Store, sheet: Path | None, mapping: Any, dry_run: bool, step: Any,

@@ -47,6 +47,7 @@ class Filters:
     source: list[str] = field(default_factory=list)
     screened: str = "all"
     interval_info: dict[str, Any] | None = None  # how --interval was read (for manifests)
+    keep_duplicates: bool = False  # True: keep records a confirmed duplicate pair drops
 
     def where(self) -> tuple[str, list[Any]]:
         parts: list[str] = []
@@ -69,6 +70,9 @@ class Filters:
         if self.screened != "all":
             parts.append("screen = ?")
             params.append(self.screened)
+        if not self.keep_duplicates:  # counted once: the dropped side of confirmed pairs
+            parts.append("record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE "
+                         "decision = 'confirm' AND drop_record_id IS NOT NULL)")
         return (" AND ".join(parts) if parts else "TRUE"), params
 
     def describe(self) -> dict[str, Any]:
@@ -77,7 +81,8 @@ class Filters:
                 "interval": self.interval_info,
                 "region": self.region.describe() if self.region else None,
                 "frame": self.frame, "lithology": self.lithology, "component": self.component,
-                "source": self.source, "screened": self.screened}
+                "source": self.source, "screened": self.screened,
+                "keep_duplicates": self.keep_duplicates}
 
 
 def check_vocab(values: list[str], vocab: str, option: str) -> list[str]:

@@ -20,7 +20,7 @@ from strata13.compile.errors import OptionError, QueryRefused
 
 VIEWS = ("records", "sources", "localities", "sections", "samples", "quarantine", "regions",
          "chains", "settings", "commits", "runs", "age_ties", "age_draws", "screen_results",
-         "run_qc", "corrections")
+         "run_qc", "corrections", "duplicates")
 SAFE_TABLE_FUNCTIONS = {"range", "generate_series", "unnest"}
 DEFAULT_TIMEOUT_S = 30.0
 DEFAULT_ROW_CAP = 100_000

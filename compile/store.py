@@ -39,7 +39,7 @@ LOCK = "writer.lock"
 LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
 READ_VIEWS = ("analyses", "sources", "localities", "sections", "samples", "quarantine",
               "regions", "chains", "settings", "commits", "runs", "age_ties", "age_draws",
-              "screen_results", "run_qc", "corrections")
+              "screen_results", "run_qc", "corrections", "duplicates")
 
 
 @cache

@@ -195,6 +195,26 @@ def inhouse_run() -> None:
         csv.writer(fh, lineterminator="\n").writerows(rows)
 
 
+def compilation() -> None:
+    """An invented later compilation that re-publishes twelve Quillar Ridge samples: heights
+    converted from feet to metres, δ18O converted from VSMOW to VPDB (IUPAC relation), its own
+    sample names — and one δ13C whose minus sign was lost in typesetting."""
+    import openpyxl
+
+    ws = openpyxl.load_workbook(HERE / "quillar_2011.xlsx", data_only=True)["Table S1"]
+    rows = [["Section", "Sample", "Height (m)", "d13C (permil VPDB)", "d18O (permil VPDB)"]]
+    for r in range(8, 20):  # QR-05 … QR-16
+        name, ft, d13, d18 = (ws.cell(row=r, column=c).value for c in (2, 3, 4, 5))
+        d13 = float(str(d13).replace("−", "-"))
+        if name == "QR-11":
+            d13 = abs(d13)  # the lost minus sign the demo corrects
+        d18 = "" if d18 in (None, "n.d.") else f"{0.97001 * float(d18) - 29.99:.2f}"
+        rows.append(["Quillar Ridge", f"Q{int(name[3:])}", f"{float(ft) * 0.3048:.2f}",
+                     f"{d13:.2f}", d18])
+    with (HERE / "orvanne_compilation_2022.csv").open("w", encoding="utf-8", newline="") as fh:
+        csv.writer(fh, lineterminator="\n").writerows(rows)
+
+
 if __name__ == "__main__":
     HERE.mkdir(exist_ok=True)
     quillar()
@@ -202,3 +222,4 @@ if __name__ == "__main__":
     ystrel()
     broken()
     inhouse_run()
+    compilation()

@@ -136,7 +136,7 @@ def materials_from_text(text: str, origin: str = "materials file") -> list[Mater
     return rows
 
 
-def _rank(iso: str, m: MaterialValue) -> tuple[int, int, int]:
+def _rank(iso: str, user: frozenset[int], m: MaterialValue) -> tuple[int, int, int, int]:
     scale = getattr(m, f"{iso}_scale")
     if getattr(m, f"{iso}_unc_kind") == "exact" and scale == "VPDB":
         pref = -1
@@ -144,30 +144,33 @@ def _rank(iso: str, m: MaterialValue) -> tuple[int, int, int]:
         pref = 0
     else:
         pref = 1 if scale == "VPDB" else 2
+    mine = 0 if id(m) in user else 1  # the user's own values before the shipped ones
     if m.status == "current":
-        return (0, pref, -(m.valid_from or 0))
-    return (1, -(m.valid_from or 0), pref)  # no current value: the latest
+        return (0, mine, pref, -(m.valid_from or 0))
+    return (1, mine, -(m.valid_from or 0), pref)  # no current value: the latest
 
 
-def default_choice(table: list[MaterialValue] | tuple[MaterialValue, ...]
-                   ) -> dict[str, dict[str, str]]:
+def default_choice(table: list[MaterialValue] | tuple[MaterialValue, ...],
+                   n_user: int = 0) -> dict[str, dict[str, str]]:
     """Which value set the store accepts per material and isotope, unless told otherwise.
 
     Rule (documented choice): a *current* value first; a value exact by definition on VPDB
     (NBS-19) before all others; for δ13C one on VPDB, for δ18O the CIAAW/IUPAC value (given
-    on VSMOW, converted with the store's relation) before a VPDB one; among equals the
-    first listed (a user's file is listed before the shipped table).
+    on VSMOW, converted with the store's relation) before a VPDB one; the user's own
+    values (the first ``n_user`` rows) before the shipped ones; among equals the first
+    listed.
     A material with no current value falls back to its latest superseded or withdrawn
     value, which the re-anchoring step then flags.
     """
     out: dict[str, dict[str, str]] = {}
+    user = frozenset(id(m) for m in table[:n_user])
     for iso in ISOTOPES:
         by_mat: dict[str, list[MaterialValue]] = {}
         for m in table:
             if getattr(m, iso) is not None:
                 by_mat.setdefault(m.material, []).append(m)
         for mat, vals in by_mat.items():
-            rank = functools.partial(_rank, iso)
+            rank = functools.partial(_rank, iso, user)
             best = min(vals, key=rank)
             out.setdefault(mat, {})[iso] = best.value_set
     return out
@@ -207,4 +210,4 @@ def store_table(settings: dict[str, Any]) -> tuple[list[MaterialValue], dict[str
     user = materials_from_text(settings["materials_csv"], "the store's materials") \
         if settings.get("materials_csv") else []
     table = [*user, *shipped_materials()]
-    return table, settings.get("material_values") or default_choice(table)
+    return table, settings.get("material_values") or default_choice(table, len(user))

@@ -121,6 +121,9 @@ AGE_DRAWS = [("source_id", TEXT), ("section_id", TEXT), ("chunk", INT), ("positi
 CORRECTIONS = [("correction_id", TEXT), ("record_id", TEXT), ("source_id", TEXT),
                ("field", TEXT), ("value_text", TEXT), ("why", TEXT), ("original_text", TEXT),
                ("created_utc", TEXT)]
+# decisions on probable duplicates: a confirmed pair names the record views leave out
+DUPLICATES = [("record_a", TEXT), ("record_b", TEXT), ("decision", TEXT), ("note", TEXT),
+              ("drop_record_id", TEXT), ("decided_utc", TEXT)]
 SCREEN_RESULTS = [("record_id", TEXT), ("rule", TEXT), ("outcome", TEXT), ("detail", TEXT),
                   ("source_id", TEXT)]
 
@@ -129,7 +132,7 @@ TABLES: dict[str, list[tuple[str, str]]] = {
     "samples": SAMPLES, "quarantine": QUARANTINE, "settings": SETTINGS, "commits": COMMITS,
     "regions": REGIONS, "chains": CHAINS, "runs": RUNS, "age_ties": AGE_TIES,
     "age_draws": AGE_DRAWS, "screen_results": SCREEN_RESULTS, "run_qc": RUN_QC,
-    "corrections": CORRECTIONS,
+    "corrections": CORRECTIONS, "duplicates": DUPLICATES,
 }
 # Tables replaced source by source on (re-)ingest.
 PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine",

@@ -1,0 +1,126 @@
+"""Coverage: where and when the compilation is thin.
+
+Counts of samples and sections per time bin × group (region or paleolatitude band) ×
+component, with every empty cell kept (a zero is information: no data there), as a table and
+a heatmap whose empty cells are drawn and labelled, so a reader sees where a curve is well
+founded and where it is not.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+
+def counts(samples: pd.DataFrame, edges: Any) -> pd.DataFrame:
+    """Samples and sections per (bin, group, component), zeros included.
+
+    ``samples``: one row per sample with age_ma, group, component, source_id, section_id.
+    ``edges``: bin edges in Ma, old to young. Columns: age_old, age_young, group,
+    component, n_samples, n_sections.
+    """
+    import numpy as np
+    import pandas as pd
+
+    edges = np.sort(np.asarray(edges, dtype=float))[::-1]
+    df = samples[samples["age_ma"].notna()].copy()
+    idx = np.searchsorted(-edges, -df["age_ma"].to_numpy(), side="left") - 1
+    idx = np.where(df["age_ma"].to_numpy() == edges[0], 0, idx)
+    df["bin"] = idx
+    df = df[(df["bin"] >= 0) & (df["bin"] < len(edges) - 1)]
+    df["component"] = df["component"].fillna("component not stated")
+    df["section"] = df["source_id"].astype(str) + "/" + df["section_id"].astype(str)
+    got = df.groupby(["bin", "group", "component"]).agg(
+        n_samples=("section", "size"), n_sections=("section", "nunique")).reset_index()
+    full = pd.MultiIndex.from_product(
+        [range(len(edges) - 1), sorted(df["group"].unique()), sorted(df["component"].unique())],
+        names=["bin", "group", "component"]).to_frame(index=False)
+    out = full.merge(got, how="left", on=["bin", "group", "component"]).fillna(
+        {"n_samples": 0, "n_sections": 0})
+    out["age_old"] = edges[out["bin"].to_numpy()]
+    out["age_young"] = edges[out["bin"].to_numpy() + 1]
+    out = out.astype({"n_samples": int, "n_sections": int})
+    return out[["age_old", "age_young", "group", "component", "n_samples", "n_sections"]]
+
+
+def heatmap(table: pd.DataFrame, path_png: Path, path_svg: Path, title: str) -> None:
+    """Sections per cell (rows: group · component; columns: bins, older to the left), the
+    count written in every cell and empty cells hatched."""
+    import numpy as np
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+    from strata13.compile.synthesis.figures import save_figure
+
+    table = table.copy()
+    table["row"] = table["group"] + " · " + table["component"]
+    rows = sorted(table["row"].unique())
+    bins = table[["age_old", "age_young"]].drop_duplicates().sort_values(
+        "age_old", ascending=False).to_numpy()
+    grid = np.zeros((len(rows), len(bins)), dtype=int)
+    samples = np.zeros_like(grid)
+    for r in table.itertuples():
+        i = rows.index(r.row)
+        j = int(np.flatnonzero(bins[:, 0] == r.age_old)[0])
+        grid[i, j], samples[i, j] = r.n_sections, r.n_samples
+    fig = Figure(figsize=(max(6.0, 0.55 * len(bins) + 3.5), max(2.5, 0.45 * len(rows) + 1.8)))
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot(1, 1, 1)
+    masked = np.ma.masked_equal(grid, 0)
+    im = ax.imshow(masked, aspect="auto", cmap="viridis", vmin=1,
+                   vmax=max(1, int(grid.max())))
+    ax.set_facecolor("white")
+    for i in range(len(rows)):
+        for j in range(len(bins)):
+            if grid[i, j] == 0:
+                ax.add_patch(_hatch(j, i))
+            dark = 0 < grid[i, j] < 0.6 * max(1, int(grid.max()))  # dark end of viridis
+            ax.text(j, i, f"{grid[i, j]}\n({samples[i, j]})", ha="center", va="center",
+                    fontsize=7, color="white" if dark else "black")
+    ax.set_yticks(range(len(rows)), rows, fontsize=8)
+    ax.set_xticks(range(len(bins)), [f"{a:g}–{b:g}" for a, b in bins], rotation=60,
+                  ha="right", fontsize=7)
+    ax.set_xlabel("Age bin (Ma), older to the left")
+    ax.set_title(title, fontsize=9)
+    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+    cb.set_label("sections (samples in brackets); hatched: no data", fontsize=8)
+    fig.tight_layout()
+    save_figure(fig, path_png, path_svg)
+
+
+def _hatch(x: int, y: int) -> Any:
+    from matplotlib.patches import Rectangle
+
+    return Rectangle((x - 0.5, y - 0.5), 1, 1, fill=False, hatch="///", edgecolor="0.75",
+                     linewidth=0)
+
+
+def coverage(store: Any, filters: Any, by: str = "region", bin_myr: float | None = None,
+             out: Path | None = None) -> tuple[pd.DataFrame, dict[str, str]]:
+    """The coverage table for the filtered records (and, with ``out``, CSV and heatmap)."""
+    import hashlib
+
+    from strata13.compile.synthesis.run import CurveRequest, _edges, samples_for
+
+    req = CurveRequest(by=by, bin_myr=bin_myr)
+    req.check()
+    s = samples_for(store, filters, req)
+    df = s.frame
+    older, younger = float(df["age_ma"].max()), float(df["age_ma"].min())
+    if filters.interval is not None:
+        younger, older = filters.interval
+    edges, _ = _edges(req, older, younger, s.settings.get("time_scale", "ICS2024/12"))
+    table = counts(df, edges)
+    files: dict[str, str] = {}
+    if out is not None:
+        out.mkdir(parents=True, exist_ok=True)
+        table.to_csv(out / "coverage.csv", index=False, lineterminator="\n",
+                     float_format="%.6g")
+        heatmap(table, out / "coverage.png", out / "coverage.svg",
+                f"Coverage by {by} and component — {len(df)} samples, store version "
+                f"{s.version}")
+        files = {p.name: hashlib.sha256(p.read_bytes()).hexdigest()
+                 for p in sorted(out.iterdir()) if p.name.startswith("coverage")}
+    return table, files
