@@ -115,6 +115,16 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                                         robustness=True),
                      command="strata13 export --out DIR --interval Toarcian --with-curve "
                              "--by region --bin-myr 0.25 --min-sections 3 --robustness")
+    exc = api.excursion(store, Filters(interval=(iv.younger_ma, iv.older_ma),
+                                       interval_info=iv.describe()),
+                        by="region", direction="negative", out=figures / "excursion")
+    yield "say", ("excursion per section (Toarcian, negative; full table and the figure "
+                  f"aligned on onset in {figures / 'excursion'}):")
+    yield "table", (["section_id", "group", "baseline", "peak_age_ma", "magnitude",
+                     "onset_age_ma"],
+                    [(r.section_id, r.group, round(r.baseline, 2), round(r.peak_age_ma, 2),
+                      round(r.magnitude, 2), round(r.onset_age_ma, 2))
+                     for r in exc.per_section.itertuples()])
     yield "say", (f"export: {res.records} records of version {res.version} with the Toarcian "
                   f"curve by region → {export_dir} (figure: {export_dir / 'curve' / 'curve.png'})")
     yield "note", ("next: strata13 history --store " + str(store.path) +

@@ -123,6 +123,9 @@ def _reported_step(scale: str, flags: tuple[str, ...]) -> dict[str, Any]:
             "size_permil": 0.0, "flags": list(flags)}
 
 
+# samples whose δ18O a normalisation to calcite standards carries through acid digestion
+# (mineralogy not stated is read as calcite, and the chain says so)
+CALCITE_LIKE = ("calcite", "low-Mg calcite", "high-Mg calcite", "unknown")
 PRECISION_PERMIL = 0.05  # typical external precision of carbonate δ13C/δ18O (common practice)
 
 
@@ -247,7 +250,12 @@ def _run_values(d: str, table: pa.Table, rows: Any, reported: Any, spec: dict[st
             info["parameters"]["drift_per_position"] = drift
         if iso == "d18o":
             info["flags"] = [*info["flags"], "acid fractionation: carried by the normalisation "
-                             "to carbonate standards reacted alongside (same mineral assumed)"]
+                             "to calcite standards reacted alongside (calcite samples; a "
+                             "mineralogy not stated is read as calcite)"]
+            mineral = table.column("mineralogy").take(idx).to_pylist()
+            other = np.array([(m or "calcite") not in CALCITE_LIKE for m in mineral]) & sel
+            if other.any():  # no shipped relation corrects dolomite against calcite standards
+                values = np.where(other[sel], np.nan, values)
         out.append(([{"step": "reported on the lab's working gas (raw)",
                       "method": "as measured", "parameters": {"scale": "raw"},
                       "source": where, "size_permil": 0.0, "flags": []}, info], sel, values))
@@ -317,6 +325,10 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
                     out[values_rows] = _offset_values(r_vals, spec)
                     chain[values_rows] = cid
                     status[values_rows] = "harmonised"
+                    gap = values_rows[np.isnan(np.asarray(r_vals, float))]
+                    chain[gap] = None
+                    status[gap] = ("pending: no acid-fractionation relation for this "
+                                   "mineralogy against calcite standards is shipped")
                 continue
             if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated:
                 try:
