@@ -15,11 +15,13 @@ if TYPE_CHECKING:
     import pandas as pd
 
 
-def counts(samples: pd.DataFrame, edges: Any) -> pd.DataFrame:
+def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None
+           ) -> pd.DataFrame:
     """Samples and sections per (bin, group, component), zeros included.
 
     ``samples``: one row per sample with age_ma, group, component, source_id, section_id.
-    ``edges``: bin edges in Ma, old to young. Columns: age_old, age_young, group,
+    ``edges``: bin edges in Ma, old to young; ``groups``: every group to show (e.g. all the
+    store's regions, so an empty one shows as zeros). Columns: age_old, age_young, group,
     component, n_samples, n_sections.
     """
     import numpy as np
@@ -36,7 +38,8 @@ def counts(samples: pd.DataFrame, edges: Any) -> pd.DataFrame:
     got = df.groupby(["bin", "group", "component"]).agg(
         n_samples=("section", "size"), n_sections=("section", "nunique")).reset_index()
     full = pd.MultiIndex.from_product(
-        [range(len(edges) - 1), sorted(df["group"].unique()), sorted(df["component"].unique())],
+        [range(len(edges) - 1), sorted(set(df["group"].unique()) | set(groups or [])),
+         sorted(df["component"].unique())],
         names=["bin", "group", "component"]).to_frame(index=False)
     out = full.merge(got, how="left", on=["bin", "group", "component"]).fillna(
         {"n_samples": 0, "n_sections": 0})
@@ -112,7 +115,14 @@ def coverage(store: Any, filters: Any, by: str = "region", bin_myr: float | None
     if filters.interval is not None:
         younger, older = filters.interval
     edges, _ = _edges(req, older, younger, s.settings.get("time_scale", "ICS2024/12"))
-    table = counts(df, edges)
+    groups = None
+    if by == "region":
+        con, _ = store.reader(s.version)
+        try:
+            groups = [r[0] for r in con.execute("SELECT name FROM regions").fetchall()]
+        finally:
+            con.close()
+    table = counts(df, edges, groups)
     files: dict[str, str] = {}
     if out is not None:
         out.mkdir(parents=True, exist_ok=True)
