@@ -101,3 +101,31 @@ def agemodel(section: Annotated[str, typer.Argument(help="Section id, or SOURCE/
         render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
     if plot is not None:
         render.message(f"wrote {api.plot_agemodel(m, plot)}")
+
+
+def replace_rotations(model: Annotated[Path, typer.Argument(help="Rotation model (CSV).")],
+                      polygons: Annotated[Path, typer.Argument(help="Plate polygons (GeoJSON).")],
+                      store: StoreOpt = None) -> None:
+    """Put a rotation model and its plate polygons in the store and recompute every
+    paleo-position (and the screens) in one commit."""
+    from strata13.compile import api
+
+    res = api.replace_rotations(api.open_store(api.store_path(store)), model, polygons)
+    if res.version is None:
+        render.message(f"0 changed: {res.records} records already placed with this model; "
+                       "no new version.")
+        return
+    name = res.settings_after.get("rotation_model_name")
+    frame = res.settings_after.get("rotation_frame")
+    render.message(f"placed {res.records} records with model {name!r} ({frame} frame) as "
+                   f"version {res.version}.")
+    for col in ("paleolat", "paleolon"):
+        if col in res.changed and res.max_change[col] > 0:
+            render.message(f"  {col}: {res.changed[col]} values changed; largest change "
+                           f"{res.max_change[col]:.4g}°, median {res.median_change[col]:.4g}°")
+        elif col in res.changed:
+            render.message(f"  {col}: {res.changed[col]} values newly set or cleared")
+    unplaced = res.records - res.changed.get("paleolat", 0) if not res.max_change.get(
+        "paleolat") else None
+    if unplaced:
+        render.note(f"{unplaced} records without a paleo-position (see paleo_status)")

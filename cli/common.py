@@ -31,6 +31,9 @@ ComponentOpt = Annotated[list[str] | None, typer.Option("--component", help="Rep
 SourceOpt = Annotated[list[str] | None, typer.Option("--source", help="Source id; repeatable.",
                                                      show_default=False)]
 ScreenedOpt = Annotated[str, typer.Option("--screened", help="pass | fail | untested | all.")]
+PaleolatOpt = Annotated[str | None, typer.Option(
+    "--paleolat", help="Paleolatitude range MIN:MAX in degrees (negative values parse: "
+    "-30:30).", show_default=False)]
 KeepDupOpt = Annotated[bool, typer.Option("--keep-duplicates", help="Keep both records of "
                                           "confirmed duplicate pairs (default: counted once).")]
 
@@ -56,7 +59,7 @@ def check_format(fmt: str, out: Path | None, store: Path | None = None,
 def build_filters(store: Any, interval: str | None, region: str | None,
                   frame: str, lithology: list[str] | None, component: list[str] | None,
                   source: list[str] | None, screened: str, time_scale: str | None = None,
-                  keep_duplicates: bool = False) -> Any:
+                  keep_duplicates: bool = False, paleolat: str | None = None) -> Any:
     """Turn the FILTERS options into the library's Filters (validated, vocabulary-checked)."""
     from strata13.compile import api
     from strata13.compile.errors import OptionError
@@ -68,6 +71,20 @@ def build_filters(store: Any, interval: str | None, region: str | None,
     if screened not in SCREENED:
         raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.",
                           "Example: --screened pass (see `strata13 screen --summary`).")
+    from strata13.compile.query import parse_paleolat
+
+    band = parse_paleolat(paleolat) if paleolat else None
+    if band is not None or frame == "paleo":
+        frame_kind = store.settings().get("rotation_frame")
+        if frame_kind is None:
+            from strata13.cli import render
+
+            render.note("the store has no rotation model: no record has a paleo-position yet")
+        elif band is not None and frame_kind != "paleomagnetic":
+            from strata13.cli import render
+
+            render.note(f"--paleolat on a {frame_kind}-frame model: paleolatitudes in a "
+                        "mantle frame are not those climate belts follow")
     if time_scale is not None and not interval:
         raise OptionError("--time-scale names the chart of --interval, which is not given.",
                           "Add --interval NAME, or leave out --time-scale.")
@@ -86,4 +103,5 @@ def build_filters(store: Any, interval: str | None, region: str | None,
         source=api.check_sources(store, list(source or [])),
         screened=screened,
         keep_duplicates=keep_duplicates,
+        paleolat=band,
     )

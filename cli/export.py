@@ -13,6 +13,7 @@ from strata13.cli.common import (
     IntervalOpt,
     KeepDupOpt,
     LithologyOpt,
+    PaleolatOpt,
     RegionOpt,
     ScreenedOpt,
     SourceOpt,
@@ -40,7 +41,7 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
            region: RegionOpt = None, frame: FrameOpt = "present",
            lithology: LithologyOpt = None, component: ComponentOpt = None,
            source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False,
+          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
            as_of: Annotated[int | None, typer.Option("--as-of", help="Export this store "
                                                      "version.", show_default=False)] = None,
            with_curve: Annotated[bool, typer.Option(
@@ -57,7 +58,7 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
 
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened, time_scale, keep_duplicates)
+                            source, screened, time_scale, keep_duplicates, paleolat)
     request = None
     if with_curve:
         from strata13.compile.synthesis.run import CurveRequest
@@ -70,7 +71,7 @@ def export(out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
         "frame": frame if frame != "present" else None, "lithology": lithology or [],
         "component": component or [], "source": source or [],
         "screened": screened if screened != "all" else None,
-        "keep_duplicates": keep_duplicates}
+        "keep_duplicates": keep_duplicates, "paleolat": paleolat}
     if with_curve:
         options |= {"with_curve": True, "isotope": isotope, "by": by, "bin_myr": bin_myr,
                     "span": span, "boots": boots, "seed": seed, "min_sections": min_sections,

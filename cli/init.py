@@ -23,6 +23,9 @@ def init(store: StoreOpt = None,
              "--materials", help="Your reference-material file (CSV, same columns as the "
              "shipped table); its values are accepted before the shipped ones.",
              show_default=False)] = None,
+         rotations: Annotated[tuple[Path, Path] | None, typer.Option(
+             "--rotations", help="Rotation model (CSV) and plate polygons (GeoJSON): "
+             "--rotations MODEL POLYGONS.", show_default=False)] = None,
          extrapolate: Annotated[bool, typer.Option(
              "--extrapolate-ages", help="Let age models date samples beyond their outermost "
              "ties (flagged). Off by default.")] = False) -> None:
@@ -30,6 +33,7 @@ def init(store: StoreOpt = None,
     from strata13.compile import api
 
     s = api.init_store(api.store_path(store), time_scale=time_scale, regions=regions,
-                       rules=rules, age_extrapolation=extrapolate, materials=materials)
+                       rules=rules, age_extrapolation=extrapolate, materials=materials,
+                       rotations=rotations)
     render.message(f"created store {s.path} (version 1; time scale "
                    f"{api.open_store(s.path).settings()['time_scale']})")

@@ -15,6 +15,7 @@ from strata13.cli.common import (
     KeepDupOpt,
     LithologyOpt,
     OutOpt,
+    PaleolatOpt,
     RegionOpt,
     ScreenedOpt,
     SourceOpt,
@@ -66,7 +67,7 @@ def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
              region: RegionOpt = None, frame: FrameOpt = "present",
              lithology: LithologyOpt = None, component: ComponentOpt = None,
              source: SourceOpt = None, screened: ScreenedOpt = "all",
-             keep_duplicates: KeepDupOpt = False,
+             keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
              by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")]
              = "region",
              bin_myr: Annotated[float | None, typer.Option(
@@ -91,7 +92,7 @@ def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
         output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
     filters = build_filters(s, interval, region, frame, lithology, component, source,
-                            screened, time_scale, keep_duplicates)
+                            screened, time_scale, keep_duplicates, paleolat)
     table, files = api.coverage(s, filters, by, bin_myr, out)
     render.table(list(table.columns), table.itertuples(index=False, name=None), fmt, None)
     empty = int((table["n_samples"] == 0).sum())

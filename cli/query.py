@@ -14,6 +14,7 @@ from strata13.cli.common import (
     KeepDupOpt,
     LithologyOpt,
     OutOpt,
+    PaleolatOpt,
     RegionOpt,
     ScreenedOpt,
     SourceOpt,
@@ -31,7 +32,7 @@ def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
           region: RegionOpt = None, frame: FrameOpt = "present",
           lithology: LithologyOpt = None, component: ComponentOpt = None,
           source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False,
+          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
           fmt: FormatOpt = "table", out: OutOpt = None,
           all_columns: Annotated[bool, typer.Option("--all-columns", help="Every column of the "
                                                     "records view in table output.")] = False,
@@ -42,7 +43,7 @@ def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
     filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened, time_scale, keep_duplicates)
+                            source, screened, time_scale, keep_duplicates, paleolat)
     tbl = api.query_arrow(s, filters)
     if fmt == "table" and not all_columns:
         tbl = tbl.select(BRIEF)

@@ -14,6 +14,7 @@ from strata13.cli.common import (
     IntervalOpt,
     KeepDupOpt,
     LithologyOpt,
+    PaleolatOpt,
     RegionOpt,
     ScreenedOpt,
     SourceOpt,
@@ -51,7 +52,7 @@ def curve(out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, 
           region: RegionOpt = None, frame: FrameOpt = "present",
           lithology: LithologyOpt = None, component: ComponentOpt = None,
           source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False,
+          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
           isotope: IsotopeOpt = "carb", by: ByOpt = None, bin_myr: BinOpt = None,
           span: SpanOpt = 0.3, boots: BootsOpt = 200, seed: SeedOpt = 0,
           min_sections: MinSecOpt = 5, weight: WeightOpt = "sections",
@@ -70,7 +71,7 @@ def curve(out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, 
     req.check()
     s = api.open_store(path)
     filters = build_filters(s, interval, region, frame, lithology, component, source,
-                            screened, time_scale, keep_duplicates)
+                            screened, time_scale, keep_duplicates, paleolat)
     res = api.curve(s, filters, req, out)
     render.message(f"curve of {len(res.groups)} group(s) from store version {res.version} → "
                    f"{res.out}")
@@ -89,7 +90,7 @@ def excursion(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
               region: RegionOpt = None, frame: FrameOpt = "present",
               lithology: LithologyOpt = None, component: ComponentOpt = None,
               source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False, by: ByOpt = None,
+          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None, by: ByOpt = None,
               baseline: Annotated[str | None, typer.Option(
                   "--baseline", help="Pre-excursion window 'A-B' in Ma (default: the oldest "
                   "20 % of each section's samples, at least 3).", show_default=False)] = None,
@@ -114,7 +115,7 @@ def excursion(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
         output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
     filters = build_filters(s, interval, region, frame, lithology, component, source,
-                            screened, time_scale, keep_duplicates)
+                            screened, time_scale, keep_duplicates, paleolat)
     window = None
     if baseline is not None:
         iv = api.interval(s, baseline, time_scale)

@@ -84,10 +84,45 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
     return {"materials_csv": text, "material_values": default_choice(table, len(user))}
 
 
+def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any]:
+    """Store settings for a rotation model and its plate polygons (both checked now; their
+    text is kept in the store, so the store reproduces its paleo-positions alone)."""
+    from strata13.compile.errors import InputFileError
+    from strata13.compile.paleo import plates, rotations
+
+    texts = []
+    for p, what in ((Path(model), "rotation model"), (Path(polygons), "plate polygons")):
+        if not p.is_file():
+            raise InputFileError(f"{what} file {p} does not exist.", "Check --rotations.")
+        try:
+            texts.append(p.read_text(encoding="utf-8"))
+        except UnicodeDecodeError:
+            raise ConfigError(f"{p.name} is not UTF-8 text.", f"Save the {what} as UTF-8.") \
+                from None
+    m = rotations.parse_model(texts[0], Path(model).name)
+    try:
+        doc = json.loads(texts[1])
+    except json.JSONDecodeError as exc:
+        raise ConfigError(f"{Path(polygons).name} is not valid JSON ({exc}).",
+                          "Check the GeoJSON file.") from None
+    plates.parse_polygons(doc, Path(polygons).name)
+    return {"rotation_model_csv": texts[0], "plate_polygons_geojson": texts[1],
+            "rotation_model_name": m.name, "rotation_frame": m.frame}
+
+
+def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> Any:
+    """Set the store's rotation model and plate polygons and recompute every paleo-position
+    (and the screens) in one commit; returns a RecomputeResult."""
+    from strata13.compile.recompute import recompute
+
+    return recompute(store, rotations_settings(model, polygons), "replace-rotations")
+
+
 def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
                regions: str | Path | None = None, made_by: str = "init",
                rules: str | Path | None = None, age_extrapolation: bool = False,
-               materials: str | Path | None = None) -> Store:
+               materials: str | Path | None = None,
+               rotations: tuple[str | Path, str | Path] | None = None) -> Store:
     """Create a store with its settings (time scale, screening rules, whether age models
     extrapolate beyond their ties) and optional named regions."""
     from strata13.compile.regions import load_regions_file
@@ -105,7 +140,8 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
     named = load_regions_file(Path(regions)) if regions else []
     settings = Settings(time_scale=ts, extra={
         "vsmow_constants": VSMOW_DEFAULT, "age_extrapolation": bool(age_extrapolation),
-        **rules_settings(rules, untested_passes=False), **materials_settings(materials)})
+        **rules_settings(rules, untested_passes=False), **materials_settings(materials),
+        **(rotations_settings(*rotations) if rotations else {})})
     return Store.create(Path(path), settings.stored(),
                         settings.hash(),
                         [(n, g, Path(regions).name) for n, g in named] if regions else [],
@@ -256,9 +292,10 @@ def _export_records(store: Store, out: str | Path, filters: Filters | None = Non
     con, version = store.reader(as_of)
     try:
         stored = store.settings(version)
+        long = ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
         return _export.export(con, version, Path(out), filters or Filters(),
                               Settings.from_stored(stored).hash(), store.path,
-                              {k: v for k, v in stored.items() if k != "screen_rules"})
+                              {k: v for k, v in stored.items() if k not in long})
     except (duckdb.IOException, duckdb.InvalidInputException) as exc:
         raise _store_read_error(exc, store) from None
     finally:

@@ -54,7 +54,8 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
         shutil.rmtree(store_dir)  # a previous demo store: start afresh
     yield "say", "strata13 demo — every name and number in it is invented."
     out.mkdir(parents=True, exist_ok=True)
-    store = api.init_store(store_dir, regions=data / "regions.geojson", made_by="demo")
+    store = api.init_store(store_dir, regions=data / "regions.geojson", made_by="demo",
+                           rotations=(data / "rotations.csv", data / "plates.geojson"))
     yield "say", f"store: {store.path}   (try: strata13 sources --store {store.path})"
     for sheet, mapping in SHEETS:
         r = api.ingest(store, sheets / sheet, sheets / mapping)
@@ -89,6 +90,11 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     rows = [tuple(round(v, 3) if isinstance(v, float) else v for v in r.values())
             for r in tbl.to_pylist()[:6]]
     yield "table", (tbl.column_names, rows)
+    tropics = api.query_arrow(store, Filters(paleolat=(-35.0, 35.0), interval=(
+        iv.younger_ma, iv.older_ma), interval_info=iv.describe()))
+    yield "say", (f"paleogeography (invented rotation model, paleomagnetic frame): "
+                  f"--interval Toarcian --paleolat -35:35 → {tropics.num_rows} records on "
+                  f"plates {sorted(set(tropics.column('plate_id').to_pylist()))}")
     figures = out / "figures"
     figures.mkdir(exist_ok=True)
     model = api.agemodel(store, "quillar-ridge")

@@ -13,6 +13,7 @@ converted reported ages, stage-only ages). Paleo-positions are pending (no rotat
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 from dataclasses import asdict, dataclass, field
@@ -27,7 +28,7 @@ if TYPE_CHECKING:
 DERIVED_COLUMNS = {
     *DELTA_FIELDS, *(f"{d}_chain" for d in DELTA_FIELDS), *(f"{d}_status" for d in DELTA_FIELDS),
     "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status", "age_chain", "age_lo95_ma",
-    "age_hi95_ma", "big_delta_13c",
+    "age_hi95_ma", "big_delta_13c", "paleolat_sigma",
     "plate_id", "paleolat", "paleolon", "paleo_model", "paleo_frame", "paleo_status", "screen",
     "row_hash",
 }
@@ -98,7 +99,7 @@ def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
     table = _harmonise(records, chains, settings, strict, runs, qc, fixes)
     table = _big_delta(table)
     table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
-    table = _paleo(table)
+    table = _paleo(table, settings)
     table, screens = _screens(table, settings)
     return Derived(table, chains, draws, screens, conflicts,
                    pa.Table.from_pylist(qc, schema=arrow_schema(RUN_QC)))
@@ -380,12 +381,58 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
     return table
 
 
-def _paleo(table: pa.Table) -> pa.Table:
+@functools.lru_cache(maxsize=4)
+def _paleo_model(model_text: str, polygons_text: str) -> tuple[Any, Any]:
+    """The store's rotation model and plate polygons, parsed once per content."""
+    from strata13.compile.paleo import plates, rotations
+
+    return (rotations.parse_model(model_text, "the store's rotation model"),
+            plates.parse_polygons(json.loads(polygons_text), "the store's plate polygons"))
+
+
+def _paleo(table: pa.Table, settings: Settings) -> pa.Table:
+    """Paleo-positions of every dated record with the store's rotation model: plate by
+    point-in-polygon (the mapping's per-locality plate wins), then the finite rotation of
+    that plate at the record's own age; a record without either says why."""
+    import numpy as np
     import pyarrow as pa
+    from strata13.compile.paleo import plates, rotations
 
     n = table.num_rows
-    return set_column(table, "paleo_status",
-                pa.array(["pending: no rotation model in the store"] * n, pa.string()))
+    model_text = settings.extra.get("rotation_model_csv")
+    if not model_text or n == 0:
+        return set_column(table, "paleo_status",
+                          pa.array(["pending: no rotation model in the store"] * n, pa.string()))
+    model, polygons = _paleo_model(model_text, settings.extra["plate_polygons_geojson"])
+    lat = table.column("lat").to_numpy(zero_copy_only=False).astype(float)
+    lon = table.column("lon").to_numpy(zero_copy_only=False).astype(float)
+    age = table.column("age_ma").to_numpy(zero_copy_only=False).astype(float)
+    has_xy = ~(np.isnan(lat) | np.isnan(lon))
+    plate = np.full(n, plates.UNASSIGNED, dtype=np.int64)
+    if has_xy.any():
+        got = plates.assign(lat[has_xy], lon[has_xy], polygons)
+        plate[has_xy] = got.plate_id
+    override = table.column("plate_override").to_numpy(zero_copy_only=False)
+    forced = np.array([v is not None and v == v for v in override], dtype=bool)
+    plate[forced] = np.asarray(override[forced], dtype=np.int64)
+    rec = rotations.reconstruct(lat, lon, plate.astype(float), age, model)
+    sigma = rotations.paleolat_sigma(lat, lon, plate.astype(float), age, model)
+    status = np.where(np.asarray(rec.status, dtype=object) == "", "placed", None).astype(object)
+    for i in np.flatnonzero(status == None):  # noqa: E711 (object array)
+        status[i] = f"pending: {rec.status[i]}"
+    status[~has_xy & ~forced] = "pending: no present-day coordinates"
+    status[(plate == plates.UNASSIGNED) & has_xy & ~forced] = \
+        "pending: outside every plate polygon (unassigned)"
+    ok = status == "placed"
+    out = table
+    out = set_column(out, "plate_id", pa.array(plate, mask=plate < 0).cast(pa.int32()))
+    for name, values in (("paleolat", rec.paleolat), ("paleolon", rec.paleolon),
+                         ("paleolat_sigma", sigma)):
+        out = set_column(out, name, pa.array(np.where(ok, values, np.nan), type=pa.float64(),
+                                             from_pandas=True))
+    out = set_column(out, "paleo_model", pa.array(np.where(ok, model.name, None), pa.string()))
+    out = set_column(out, "paleo_frame", pa.array(np.where(ok, model.frame, None), pa.string()))
+    return set_column(out, "paleo_status", pa.array(status, pa.string()))
 
 
 def rule_set(settings: Settings) -> Any:

@@ -36,7 +36,7 @@ TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
 COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
 SECTION_KEYS = {"id", "locality", "name", "datum", "position_kind", "datum_offset_m",
                 "offset_from", "offset_source", "note"}
-LOCALITY_KEYS = {"id", "name", "lat", "lon", "precision_km", "aliases", "note"}
+LOCALITY_KEYS = {"id", "name", "lat", "lon", "precision_km", "aliases", "note", "plate"}
 
 
 @dataclass(frozen=True)
@@ -310,6 +310,13 @@ def load_mapping(path: Path) -> Mapping:
                 raise ConfigError(f"{path.name}: two [[{kind}]] blocks have the id "
                                   f"{block['id']!r}.", "Give each its own id.")
             ids.add(str(block["id"]))
+    for loc_block in localities:
+        plate = loc_block.get("plate")
+        if plate is not None and (not isinstance(plate, int) or isinstance(plate, bool)
+                                  or plate < 1):
+            raise ConfigError(f"{path.name}: locality {loc_block['id']!r} plate = {plate!r} is "
+                              "not a plate id.", "Give the plate id (a whole number ≥ 1) of "
+                              "the rotation model this locality rides on.")
     for s in sections:
         for key, vocab in (("position_kind", "position_kind"), ("datum", "datum")):
             if key in s:

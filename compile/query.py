@@ -48,6 +48,7 @@ class Filters:
     screened: str = "all"
     interval_info: dict[str, Any] | None = None  # how --interval was read (for manifests)
     keep_duplicates: bool = False  # True: keep records a confirmed duplicate pair drops
+    paleolat: tuple[float, float] | None = None  # (min, max) degrees
 
     def where(self) -> tuple[str, list[Any]]:
         parts: list[str] = []
@@ -55,6 +56,9 @@ class Filters:
         if self.interval is not None:
             parts.append("age_ma BETWEEN ? AND ?")
             params += list(self.interval)
+        if self.paleolat is not None:
+            parts.append("paleolat BETWEEN ? AND ?")
+            params += list(self.paleolat)
         if self.region is not None:
             if self.frame == "paleo":
                 sql, p = self.region.sql("paleolon", "paleolat")
@@ -82,7 +86,21 @@ class Filters:
                 "region": self.region.describe() if self.region else None,
                 "frame": self.frame, "lithology": self.lithology, "component": self.component,
                 "source": self.source, "screened": self.screened,
-                "keep_duplicates": self.keep_duplicates}
+                "keep_duplicates": self.keep_duplicates,
+                "paleolat": list(self.paleolat) if self.paleolat else None}
+
+
+def parse_paleolat(text: str) -> tuple[float, float]:
+    """``'-30:30'`` -> (-30.0, 30.0) degrees (either order; both within −90…90)."""
+    m = re.match(r"^\s*([+-]?\d+(?:\.\d+)?)\s*:\s*([+-]?\d+(?:\.\d+)?)\s*$",
+                 text.replace("−", "-"))
+    if not m:
+        raise OptionError(f"--paleolat {text!r} is not MIN:MAX in degrees.",
+                          "Example: --paleolat -30:30")
+    a, b = sorted((float(m.group(1)), float(m.group(2))))
+    if a < -90 or b > 90:
+        raise OptionError(f"--paleolat {text!r} leaves −90…90.", "Latitudes lie in −90…90.")
+    return a, b
 
 
 def check_vocab(values: list[str], vocab: str, option: str) -> list[str]:

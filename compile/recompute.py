@@ -89,7 +89,9 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         h = settings.hash()
         store.write_settings(con, after, h)
         store.add_chains(con, derived.chains)
-        logged = {k: v for k, v in change.items() if k != "screen_rules"}  # the hash stands in
+        logged = {k: v for k, v in change.items()  # long texts: their names and hashes stand in
+                  if k not in ("screen_rules", "rotation_model_csv", "plate_polygons_geojson",
+                               "materials_csv")}
         summary = {"records": table.num_rows, "changed": result.changed,
                    "screen_changed": result.screen_changed,
                    "max_change": result.max_change, "settings": logged}

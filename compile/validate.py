@@ -397,6 +397,10 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                 else const(v, n, types[name])
     out["record_id"] = ids
     out["source_id"] = const(sid, n, "VARCHAR")
+    plates = {str(b["id"]): b.get("plate") for b in mapping.localities if b.get("plate")}
+    if plates:  # the mapping places these localities on a plate (displaced terranes)
+        out["plate_override"] = np.array([plates.get(str(x)) if x is not None else None
+                                          for x in loc], dtype=object)
     out["replicate"] = replicate
     out["sheet"] = const(raw.sheet, n, "VARCHAR")
     out["sheet_row"] = raw.row_numbers

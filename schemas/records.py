@@ -66,6 +66,8 @@ ANALYSES: list[tuple[str, str]] = [
     ("d13c_org_normalisation", TEXT),
     ("run_position", REAL), ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
     ("corrected_fields", TEXT),  # JSON list of the fields a stored correction changed
+    ("plate_override", INT),  # the mapping's plate for the record's locality (displaced terranes)
+    ("paleolat_sigma", REAL),  # 1σ of paleolatitude from the model's pole uncertainties
 ]
 
 SOURCES = [
