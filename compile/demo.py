@@ -95,6 +95,11 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     yield "say", (f"paleogeography (invented rotation model, paleomagnetic frame): "
                   f"--interval Toarcian --paleolat -35:35 → {tropics.num_rows} records on "
                   f"plates {sorted(set(tropics.column('plate_id').to_pylist()))}")
+    box = api.region(store, "bbox:0,25,20,45")
+    paleo_box = api.query_arrow(store, Filters(region=box, frame="paleo"))
+    today_box = api.query_arrow(store, Filters(region=box))
+    yield "say", (f"--region bbox:0,25,20,45 --frame paleo → {paleo_box.num_rows} records "
+                  f"(the same box in today's coordinates: {today_box.num_rows})")
     figures = out / "figures"
     figures.mkdir(exist_ok=True)
     model = api.agemodel(store, "quillar-ridge")
