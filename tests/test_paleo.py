@@ -255,3 +255,122 @@ def test_polygon_validation() -> None:
         plates.parse_polygons(collection((101, bowtie)))
     with pytest.raises(ConfigError, match="not a whole number"):
         plates.parse_polygons(collection(("x", SQUARE_A)))
+
+
+# --- more closed forms and general-purpose references -------------------------------------
+
+
+def one_plate(pole_lat: float, pole_lon: float, angle: float, age: float = 10.0
+              ) -> rotations.RotationModel:
+    """A one-plate model built row by row: identity at 0 Ma, the given rotation at ``age``."""
+    return model(HEAD + COLS + f"1,0,90,0,0,0,,\n1,{age!r},{pole_lat!r},{pole_lon!r},"
+                 f"{angle!r},0,,\n")
+
+
+@pytest.mark.parametrize("pole, angle, point, want", [
+    # Closed form, right-hand rule: +30° about +y = (0°N, 90°E) takes x to
+    # (cos 30°, 0, −sin 30°), i.e. (−30°N, 0°E).
+    ((0.0, 90.0), 30.0, (0.0, 0.0), (-30.0, 0.0)),
+    # Closed form: +30° about the north pole adds 30° of longitude, latitude unchanged.
+    ((90.0, 0.0), 30.0, (10.0, 20.0), (10.0, 50.0)),
+])
+def test_thirty_degree_closed_forms_and_fixed_pole(pole: tuple[float, float], angle: float,
+                                                    point: tuple[float, float],
+                                                    want: tuple[float, float]) -> None:
+    m = one_plate(pole[0], pole[1], angle)
+    out = reconstruct([point[0], pole[0]], [point[1], pole[1]], [1, 1], [10.0, 10.0], m)
+    assert out.paleolat[0] == pytest.approx(want[0], abs=1e-12)
+    assert out.paleolon[0] == pytest.approx(want[1], abs=1e-12)
+    # Closed form: the Euler pole lies on the axis and does not move.
+    assert out.paleolat[1] == pytest.approx(pole[0], abs=1e-12)
+    if abs(pole[0]) < 90:
+        assert out.paleolon[1] == pytest.approx(pole[1], abs=1e-12)
+
+
+def _haversine(lat1: np.ndarray, lon1: np.ndarray, lat2: np.ndarray, lon2: np.ndarray
+               ) -> np.ndarray:
+    """Great-circle distance in radians (haversine formula, closed form)."""
+    p1, p2, dl = np.radians(lat1), np.radians(lat2), np.radians(lon2 - lon1)
+    a = np.sin((p2 - p1) / 2) ** 2 + np.cos(p1) * np.cos(p2) * np.sin(dl / 2) ** 2
+    return 2 * np.arcsin(np.sqrt(np.clip(a, 0.0, 1.0)))
+
+
+@pytest.mark.parametrize("plate, age", [(1, 73.4), (2, 50.0), (3, 37.3)])
+def test_reconstruction_preserves_great_circle_distances(plate: int, age: float) -> None:
+    # Haversine (closed form): a rotation is an isometry of the sphere, so the distance
+    # between two points on one plate at one age is unchanged, whatever the circuit.
+    rng = np.random.default_rng(11 + plate)
+    n = 1000
+    lat = np.degrees(np.arcsin(rng.uniform(-1, 1, n)))
+    lon = rng.uniform(-180, 180, n)
+    out = reconstruct(lat, lon, np.full(n, plate), np.full(n, age), model())
+    assert (out.status == OK).all()
+    i, j = rng.permutation(n), rng.permutation(n)
+    before = _haversine(lat[i], lon[i], lat[j], lon[j])
+    after = _haversine(out.paleolat[i], out.paleolon[i], out.paleolat[j], out.paleolon[j])
+    np.testing.assert_allclose(after, before, rtol=0, atol=1e-9)
+
+
+def test_random_rotations_agree_with_scipy_rotvec() -> None:
+    # scipy Rotation.from_rotvec(axis · angle).apply as the general-purpose reference; the
+    # axis is built here from the pole's coordinates with the closed-form cos/sin formula.
+    rng = np.random.default_rng(29)
+    for _ in range(40):
+        plat = float(np.degrees(np.arcsin(rng.uniform(-1, 1))))
+        plon = float(rng.uniform(-180, 360))
+        angle = float(rng.uniform(-359, 359))
+        age = float(rng.uniform(1, 250))
+        m = one_plate(plat, plon, angle, age)
+        lat = np.degrees(np.arcsin(rng.uniform(-1, 1, 200)))
+        lon = rng.uniform(-180, 180, 200)
+        out = reconstruct(lat, lon, np.ones(200), np.full(200, age), m)
+        pa, po = np.radians(plat), np.radians(plon)
+        axis = np.array([np.cos(pa) * np.cos(po), np.cos(pa) * np.sin(po), np.sin(pa)])
+        la, lo = np.radians(lat), np.radians(lon)
+        xyz = np.column_stack([np.cos(la) * np.cos(lo), np.cos(la) * np.sin(lo), np.sin(la)])
+        want = Rotation.from_rotvec(axis * np.radians(angle)).apply(xyz)
+        gla, glo = np.radians(out.paleolat), np.radians(out.paleolon)
+        got = np.column_stack([np.cos(gla) * np.cos(glo), np.cos(gla) * np.sin(glo),
+                               np.sin(gla)])
+        np.testing.assert_allclose(got, want, rtol=0, atol=1e-9)
+        want_lat = np.degrees(np.arcsin(np.clip(want[:, 2], -1, 1)))
+        np.testing.assert_allclose(out.paleolat, want_lat, rtol=0, atol=1e-9)
+
+
+# Plate 202 crosses the antimeridian (drawn 170…190, as the module docstring says); plate 101
+# is drawn in ordinary longitudes (−170…−160) and shares the edge lon 190 = −170 with it.
+ACROSS = [[[170, -10], [190, -10], [190, 10], [170, 10], [170, -10]]]
+EAST_OF_IT = [[[-170, -10], [-160, -10], [-160, 10], [-170, 10], [-170, -10]]]
+
+
+def test_point_in_polygon_across_the_antimeridian() -> None:
+    polys = plates.parse_polygons(collection((202, ACROSS), (101, EAST_OF_IT)))
+    got = plates.assign([0.0, 0.0, 0.0, 0.0, 30.0], [-175.0, 175.0, 180.0, -180.0, 175.0], polys)
+    assert got.plate_id.tolist() == [202, 202, 202, 202, -1]
+
+    # shapely on the unwrapped geometry (lon in 160…200, both plates drawn there; closed sets
+    # via intersects) as the independent reference, on random points given in −180…180.
+    rng = np.random.default_rng(5)
+    n = 3000
+    ulon = rng.uniform(160, 200, n)
+    lat = rng.uniform(-15, 15, n)
+    lon = (ulon + 180) % 360 - 180
+    shapes = [(101, shapely.Polygon([(x + 360, y) for x, y in EAST_OF_IT[0]])),
+              (202, shapely.Polygon(ACROSS[0]))]
+    want = np.array([next((p for p, s in shapes if s.intersects(shapely.Point(x, y))), -1)
+                     for x, y in zip(ulon, lat, strict=True)])
+    got = plates.assign(lat, lon, polys)
+    np.testing.assert_array_equal(got.plate_id, want)
+    assert {101, 202, -1} <= set(want.tolist())
+
+
+def test_antimeridian_boundary_points_follow_the_documented_rule() -> None:
+    # Module docstring: closed sets (an edge point belongs to its polygon) and a point on an
+    # edge shared by two plates goes to the smaller plate id.
+    polys = plates.parse_polygons(collection((202, ACROSS), (101, EAST_OF_IT)))
+    lat = [10.0, -10.0, 0.0, 0.0, 5.0, 10.0, 0.0]
+    lon = [-175.0, 175.0, 170.0, -170.0, 190.0 - 360.0, -170.0, -160.0]
+    got = plates.assign(lat, lon, polys)
+    # top edge, bottom edge, west edge of 202; shared edge (twice, once a corner) → 101;
+    # east edge of 101
+    assert got.plate_id.tolist() == [202, 202, 202, 101, 101, 101, 101]

@@ -398,10 +398,14 @@ def _group(plate_ids: np.ndarray, ages: np.ndarray, model: RotationModel) -> _Gr
     per = limit[np.searchsorted(np.unique(plate), plate)]
     status[known & ~no_age & (ages > per)] = BEYOND
     valid = status == OK
-    keys, inverse = np.unique(np.column_stack([plate[valid], ages[valid]]), axis=0,
-                              return_inverse=True)
-    return _Groups(status, valid, keys[:, 0].astype(np.int64), keys[:, 1],
-                   np.asarray(inverse).reshape(-1))
+    # distinct (plate, age) pairs: each coded 1-D and combined into one int64 key, which
+    # sorts several times faster than a row-wise unique over a 2-column array
+    p_vals, p_code = np.unique(plate[valid], return_inverse=True)
+    a_vals, a_code = np.unique(ages[valid], return_inverse=True)
+    combined = p_code.astype(np.int64) * len(a_vals) + a_code
+    key, inverse = np.unique(combined, return_inverse=True)
+    return _Groups(status, valid, p_vals[key // len(a_vals)].astype(np.int64),
+                   a_vals[key % len(a_vals)], np.asarray(inverse).reshape(-1))
 
 
 def _key_quats(groups: _Groups, model: RotationModel, tables: Mapping[int, Rotation]
