@@ -154,3 +154,23 @@ def test_replace_rotations_with_a_missing_file_leaves_the_store_unchanged(
                        "--store", demo_store)
     assert code == 2 and "does not exist" in err
     assert tree_bytes(demo_store) == before
+
+
+def test_a_locality_plate_in_the_mapping_wins_over_the_polygons(tmp_path: Path) -> None:
+    # a displaced terrane: the invented Ystrel drill site sits in plate 202's polygon today,
+    # but its mapping puts it on plate 101, so its records rotate with 101
+    sheets = demo_folder() / "sheets"
+    for name in ("ystrel_cores_2021.csv", "ystrel_ties.csv"):
+        (tmp_path / name).write_bytes((sheets / name).read_bytes())
+    text = (sheets / "ystrel_cores_2021.toml").read_text(encoding="utf-8")
+    mapped = text.replace('lat = "42°36′S"', 'lat = "42°36′S"\nplate = 101')
+    (tmp_path / "y.toml").write_text(mapped, encoding="utf-8")
+    store = api.init_store(tmp_path / "st", rotations=(MODEL, POLYGONS))
+    api.ingest(store, None, tmp_path / "y.toml")
+    df = api.query(store)
+    dated = df[df.age_ma.notna()]
+    assert len(dated) and set(dated.plate_id) == {101}
+    r = dated.iloc[0]
+    lat, lon = _expected(r.lat, r.lon, 101, r.age_ma)
+    assert r.paleolat == pytest.approx(lat, abs=1e-6) and r.paleolon == pytest.approx(lon,
+                                                                                     abs=1e-6)
