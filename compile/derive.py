@@ -128,6 +128,7 @@ def _reported_step(scale: str, flags: tuple[str, ...]) -> dict[str, Any]:
 # (mineralogy not stated is read as calcite, and the chain says so)
 CALCITE_LIKE = ("calcite", "low-Mg calcite", "high-Mg calcite", "unknown")
 PRECISION_PERMIL = 0.05  # typical external precision of carbonate δ13C/δ18O (common practice)
+SCREEN_CHUNK = 200_000  # records per screening pass (whole sections; bounds memory)
 
 
 def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: Any,
@@ -449,17 +450,43 @@ def _screens(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
     Runs on harmonised δ values and ages, so it comes last; it reads, never changes, any
     other column. Whether an untested rule counts as passed is the store's setting.
     """
+    import numpy as np
     import pyarrow as pa
+    import pyarrow.compute as pc
     from strata13.compile.screening.evaluate import evaluate
     from strata13.schemas.records import SCREEN_RESULTS, arrow_schema
 
-    res = evaluate(table, rule_set(settings),
-                   bool(settings.extra.get("screen_untested_passes", False)), all_details=False)
-    out = set_column(table, "screen", res.overall.column("screen"))
-    n_rules = res.results.num_rows // table.num_rows if table.num_rows else 0
-    if not n_rules:
-        return out, arrow_schema(SCREEN_RESULTS).empty_table()
-    # the same source_id chunks once per rule: no copy (results are rule by rule, in order)
-    src = pa.chunked_array([c for _ in range(n_rules) for c in table.column("source_id").chunks],
-                           pa.string())
-    return out, res.results.append_column("source_id", src)
+    rules = rule_set(settings)
+    untested_passes = bool(settings.extra.get("screen_untested_passes", False))
+    if table.num_rows == 0 or not rules.rules:
+        return set_column(table, "screen", pa.array(["untested"] * table.num_rows,
+                                                    pa.string())), \
+            arrow_schema(SCREEN_RESULTS).empty_table()
+    # whole sections per chunk (covariance rules look at a section at once), so a large
+    # ingest or recompute screens a bounded slice of the records at a time
+    key = pc.binary_join_element_wise(table.column("source_id"),
+                                      pc.fill_null(table.column("section_id"), ""), "\x1f")
+    codes = pc.dictionary_encode(key).combine_chunks().indices.to_numpy(zero_copy_only=False)
+    order = np.argsort(codes, kind="stable")
+    bounds = np.flatnonzero(np.diff(codes[order])) + 1
+    cuts = [0]
+    for b in bounds:  # cut only between sections, once a chunk is big enough
+        if b - cuts[-1] >= SCREEN_CHUNK:
+            cuts.append(int(b))
+    cuts.append(len(order))
+    screen = np.empty(table.num_rows, dtype=object)
+    parts = []
+    for lo, hi in zip(cuts[:-1], cuts[1:], strict=True):
+        rows = order[lo:hi] if len(cuts) > 2 else None
+        chunk = table if rows is None else table.take(pa.array(rows))
+        res = evaluate(chunk, rules, untested_passes, all_details=False)
+        overall = res.overall.column("screen").to_numpy(zero_copy_only=False)
+        screen[slice(None) if rows is None else rows] = overall
+        k = res.results.num_rows // chunk.num_rows
+        # the same source_id chunks once per rule: no copy (results are rule by rule)
+        src = pa.chunked_array([c for _ in range(k) for c in chunk.column("source_id").chunks],
+                               pa.string())
+        parts.append(res.results.append_column("source_id", src))
+        del chunk, res
+    out = set_column(table, "screen", pa.array(screen, pa.string()))
+    return out, pa.concat_tables(parts, promote_options="permissive")

@@ -213,6 +213,8 @@ class _Detail:
         import pyarrow as pa
         import pyarrow.compute as pc
 
+        if not self.keep_all:
+            return self._coded()
         if not self.consts and len(self.dyn) == 1 and self.dyn[0][0].all():
             return self.dyn[0][1]  # every record has its own text
         idx = pa.array(self.idx, mask=self.idx < 0)
@@ -221,6 +223,25 @@ class _Detail:
         for mask, texts in self.dyn:
             arr = pc.if_else(pa.array(mask), texts, arr)
         return arr
+
+    def _coded(self) -> pa.Array:
+        """The texts dictionary-encoded, never materialised per record: the constants and
+        each distinct per-record text once, an int32 index per record (null: no text)."""
+        import pyarrow as pa
+
+        words: list[str] = list(self.consts)
+        idx = self.idx.astype(np.int32)
+        for mask, texts in self.dyn:
+            rows = np.flatnonzero(mask)
+            if not rows.size:
+                continue
+            enc = texts.take(pa.array(rows)).dictionary_encode()
+            codes = enc.indices.to_numpy(zero_copy_only=False)
+            idx[rows] = np.where(np.isnan(codes.astype(float)), -1,
+                                 np.nan_to_num(codes.astype(float)) + len(words)).astype(np.int32)
+            words += enc.dictionary.to_pylist()
+        return pa.DictionaryArray.from_arrays(pa.array(idx, mask=idx < 0),
+                                              pa.array(words or [""], pa.string()))
 
 
 # --- scope -----------------------------------------------------------------------------
@@ -639,7 +660,8 @@ def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False,
     }) for i, (code, det) in enumerate(zip(codes, details, strict=True))]
     kind = pa.string() if all_details else coded
     schema = pa.schema([("record_id", pa.string()), ("rule", kind), ("outcome", kind),
-                        ("detail", pa.string())])
+                        ("detail", pa.string() if all_details else
+                         pa.dictionary(pa.int32(), pa.string()))])
     results = pa.Table.from_batches(batches, schema)
 
     m = np.stack(codes) if k else np.empty((0, n), np.int8)
