@@ -29,6 +29,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+import table  # sibling module: the shared result table (benchmarks/ is on sys.path)
 from strata13.compile import agemodel
 
 RATIO_TARGET = 3.0
@@ -183,15 +184,7 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--repeat", type=int, default=3, help="timed runs of each side")
     args = p.parse_args(argv)
     res = measure(args.draws or (100 if args.quick else 1000), repeat=args.repeat)
-    table = [("case", "size", "ours", "baseline", "ratio", "target", "verdict"), *rows(res)]
-    widths = [max(len(r[k]) for r in table) for k in range(7)]
-    for i, r in enumerate(table):
-        print("  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip())
-        if i == 0:
-            print("  ".join("-" * w for w in widths))
-    print()
-    print("\n".join(notes(res)))
-    return 0 if all(r[-1] == "PASS" for r in rows(res)) else 1
+    return table.report(rows(res), notes(res))
 
 
 if __name__ == "__main__":

@@ -46,6 +46,7 @@ if str(HERE) not in sys.path:
     sys.path.insert(0, str(HERE))
 
 import generate  # noqa: E402  (sibling module; benchmarks/ is not a package)
+import table  # noqa: E402
 
 WORK = HERE / "_work"
 RESULT_MARK = "BENCH-RESULT "
@@ -107,14 +108,8 @@ def _verdict(ok: bool) -> str:
 
 
 def print_table(rows: list[Row]) -> None:
-    """Print the rows as a plain fixed-width table."""
-    head = Row("case", "size", "ours", "baseline", "ratio", "target", "verdict")
-    cells = [list(vars(r).values()) for r in [head, *rows]]
-    widths = [max(len(str(c[k])) for c in cells) for k in range(len(cells[0]))]
-    for n, line in enumerate(cells):
-        print("  ".join(str(c).ljust(w) for c, w in zip(line, widths, strict=True)).rstrip())
-        if n == 0:
-            print("  ".join("-" * w for w in widths))
+    """Print the rows as a plain fixed-width table (benchmarks/table.py)."""
+    table.print_table([list(vars(r).values()) for r in rows])
 
 
 def _median_time(fn: Callable[[], Any], repeat: int) -> tuple[float, Any]:
@@ -467,15 +462,22 @@ def case_help(repeat: int) -> Outcome:
     return out
 
 
-# ------------------------------------------------------------------ agemodel
+# ------------------------------------------------------------- library cases
+
+# case -> (sibling module, its size in a quick run, in a full run): each module has
+# measure(size, repeat=…), rows(result) and notes(result), and runs on its own too
+LIBRARY_CASES = {"agemodel": ("agemodel", 100, 1000), "curve": ("curve", 50, 200),
+                 "paleo": ("paleo", 100_000, 1_000_000)}
 
 
-def case_agemodel(repeat: int, quick: bool) -> Outcome:
-    """Age-model draws against plain interpolation (benchmarks/agemodel.py)."""
-    import agemodel  # sibling module
+def case_library(name: str, repeat: int, quick: bool) -> Outcome:
+    """A library benchmark (age-model draws, curve bootstrap, paleo reconstruction)."""
+    import importlib
 
-    res = agemodel.measure(100 if quick else 1000, repeat=repeat)
-    return Outcome([Row(*r) for r in agemodel.rows(res)], agemodel.notes(res))
+    module, small, full = LIBRARY_CASES[name]
+    bench = importlib.import_module(module)
+    res = bench.measure(small if quick else full, repeat=repeat)
+    return Outcome([Row(*r) for r in bench.rows(res)], bench.notes(res))
 
 
 # ------------------------------------------------------------------ main
@@ -497,13 +499,14 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--quick", action="store_true",
                    help=f"smoke sizes: {generate.QUICK_ROWS:,} rows, "
                         f"{generate.QUICK_RECORDS:,} records")
-    p.add_argument("--cases", default="ingest,query,help,agemodel",
-                   help="comma list of ingest, query, help, agemodel (default: all)")
+    p.add_argument("--cases", default="ingest,query,help,agemodel,curve,paleo",
+                   help="comma list of ingest, query, help, agemodel, curve, paleo "
+                        "(default: all)")
     p.add_argument("--rows", type=int, help="ingest sheet rows (overrides the size)")
     p.add_argument("--records", type=int, help="query store records (overrides the size)")
     p.add_argument("--repeat", type=int, default=0,
                    help="timed runs per case (default: ingest 1, query 3, help 5, "
-                        "agemodel 3)")
+                        "agemodel, curve and paleo 3)")
     p.add_argument("--profile", action="store_true",
                    help="also profile one ingest with cProfile and list the hotspots")
     p.add_argument("--child-ingest", nargs=3, metavar=("STORE", "MAPPING", "WARMUP"),
@@ -520,7 +523,7 @@ def main(argv: list[str] | None = None) -> int:
         return 0
 
     cases = [c.strip() for c in args.cases.split(",") if c.strip()]
-    unknown = set(cases) - {"ingest", "query", "help", "agemodel"}
+    unknown = set(cases) - {"ingest", "query", "help", *LIBRARY_CASES}
     if unknown:
         p.error(f"unknown case(s): {', '.join(sorted(unknown))}")
     rows = args.rows or (generate.QUICK_ROWS if args.quick else generate.FULL_ROWS)
@@ -535,8 +538,8 @@ def main(argv: list[str] | None = None) -> int:
             outcomes.append(case_ingest(rows, args.repeat or 1, args.profile))
         elif c == "query":
             outcomes.append(case_query(records, args.repeat or 3))
-        elif c == "agemodel":
-            outcomes.append(case_agemodel(args.repeat or 3, args.quick))
+        elif c in LIBRARY_CASES:
+            outcomes.append(case_library(c, args.repeat or 3, args.quick))
         else:
             outcomes.append(case_help(args.repeat or 5))
         print(f"  {c} done in {time.perf_counter() - t:.0f} s", file=sys.stderr, flush=True)
