@@ -10,11 +10,8 @@ Sheets built here are invented (fictional sections and invented lab values).
 
 from __future__ import annotations
 
-import contextlib
-import io
 import json
 import shutil
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -23,6 +20,7 @@ import pytest
 from strata13.compile import api
 from strata13.compile.errors import ValidationFailed
 
+from tests.conftest import run_cli as run
 from tests.conftest import tree_bytes
 
 MF = "mossaret-fennoway-2018"
@@ -49,23 +47,6 @@ MATERIAL_HEADER = ("material,kind,value_set,status,d13c,d13c_unc,d13c_unc_kind,d
 
 
 # --- helpers ---------------------------------------------------------------------------
-
-@dataclass
-class Ran:
-    returncode: int
-    stdout: str
-    stderr: str
-
-
-def run(*args: str) -> Ran:
-    """The command line in this process (the entry point's dispatch and exit codes)."""
-    from strata13.cli.app import _run
-
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = _run(list(args))
-    return Ran(code, out.getvalue(), err.getvalue())
-
 
 def error_line(stderr: str) -> str:
     lines = [ln for ln in stderr.splitlines() if ln.startswith("error:")]

@@ -17,13 +17,11 @@ from what `strata13 query` prints, never read back from the code under test.
 
 from __future__ import annotations
 
-import contextlib
 import csv
 import io
 import json
 import math
 import shutil
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -31,7 +29,8 @@ import pandas as pd
 import pytest
 from strata13.compile.demo import demo_folder
 
-from tests.conftest import tree_bytes
+from tests.conftest import Ran, tree_bytes
+from tests.conftest import run_cli as run
 
 ORIGINAL = "quillar-2011"
 REPUB = "orvanne-compilation-2022"
@@ -42,23 +41,6 @@ POSITION_TOL_M, VALUE_TOL = 0.5, 0.15  # the documented default tolerances
 CURVE_ARGS = ("--interval", "Toarcian", "--by", "region", "--min-sections", "3")
 CONFIRMED_SAMPLES = (5, 9, 11, 16)  # pairs the decisions file below confirms
 REJECTED_SAMPLE = 6
-
-
-@dataclass
-class Ran:
-    code: int
-    out: str
-    err: str
-
-
-def run(*args: object) -> Ran:
-    """The command line in this process: the entry point's dispatch and exit codes."""
-    from strata13.cli.app import _run
-
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = _run([str(a) for a in args])
-    return Ran(code, out.getvalue(), err.getvalue())
 
 
 def ok(*args: object) -> Ran:

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import csv
 import io
-import signal
 from pathlib import Path
 
 import numpy as np
@@ -18,24 +17,10 @@ from scipy.spatial.transform import Rotation, Slerp
 from strata13.compile import api
 from strata13.compile.demo import demo_folder
 
-from tests.conftest import tree_bytes
+from tests.conftest import run_cli, tree_bytes
 
 MODEL = demo_folder() / "rotations.csv"
 POLYGONS = demo_folder() / "plates.geojson"
-
-
-def cli(capsys: pytest.CaptureFixture[str], *args: object) -> tuple[int, str, str]:
-    from strata13.cli.app import main
-
-    capsys.readouterr()
-    old = signal.getsignal(signal.SIGINT)
-    try:
-        with pytest.raises(SystemExit) as ended:
-            main([str(a) for a in args])
-    finally:
-        signal.signal(signal.SIGINT, old)
-    out = capsys.readouterr()
-    return int(ended.value.code or 0), out.out, out.err
 
 
 def _rows() -> dict[int, list[tuple[float, float, float, float]]]:
@@ -85,42 +70,41 @@ def test_every_dated_record_is_placed_as_scipy_rotates_it(placed: Path) -> None:
     assert set(dated[dated.lat < 0].plate_id) == {202}
 
 
-def test_replace_rotations_is_one_commit_and_again_changes_nothing(demo_store: Path,
-                                                                   capsys) -> None:
+def test_replace_rotations_is_one_commit_and_again_changes_nothing(demo_store: Path) -> None:
     store = api.open_store(demo_store)
     before = store.latest_version()
-    code, _, err = cli(capsys, "replace-rotations", MODEL, POLYGONS, "--store", demo_store)
-    assert code == 0 and store.latest_version() == before + 1, err
-    code, _, err = cli(capsys, "replace-rotations", MODEL, POLYGONS, "--store", demo_store)
-    assert code == 0 and "0 changed" in err and store.latest_version() == before + 1
+    r = run_cli("replace-rotations", MODEL, POLYGONS, "--store", demo_store)
+    assert r.code == 0 and store.latest_version() == before + 1, r.err
+    r = run_cli("replace-rotations", MODEL, POLYGONS, "--store", demo_store)
+    assert r.code == 0 and "0 changed" in r.err and store.latest_version() == before + 1
 
 
-def test_paleolat_filter_and_paleo_frame_region(placed: Path, capsys) -> None:
+def test_paleolat_filter_and_paleo_frame_region(placed: Path) -> None:
     store = api.open_store(placed)
     n = api.sql(store, "SELECT count(*) FROM records WHERE paleolat BETWEEN -45 AND -30 AND "
                 "record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE drop_record_id "
                 "IS NOT NULL)").rows[0][0]
-    code, out, err = cli(capsys, "query", "--paleolat", "-45:-30", "--format", "csv",
+    r = run_cli("query", "--paleolat", "-45:-30", "--format", "csv",
                          "--store", placed)
-    assert code == 0, err
-    assert len(out.strip().splitlines()) - 1 == n > 0  # negative bounds parse
+    assert r.code == 0, r.err
+    assert len(r.out.strip().splitlines()) - 1 == n > 0  # negative bounds parse
     # --frame paleo applies the region to paleo-coordinates: the present-day box of the
     # southern basin holds no paleo-position of the invented model's southern plate
-    code, out, _ = cli(capsys, "query", "--region", "southern basin", "--frame", "paleo",
+    r = run_cli("query", "--region", "southern basin", "--frame", "paleo",
                        "--format", "csv", "--store", placed)
-    assert code == 0 and len(out.strip().splitlines()) <= 1
-    code, _, err = cli(capsys, "query", "--paleolat", "95:100", "--store", placed)
-    assert code == 2 and "−90…90" in err
+    assert r.code == 0 and len(r.out.strip().splitlines()) <= 1
+    r = run_cli("query", "--paleolat", "95:100", "--store", placed)
+    assert r.code == 2 and "−90…90" in r.err
 
 
-def test_a_mantle_frame_model_warns_on_paleolatitude_filters(demo_store: Path, tmp_path: Path,
-                                                             capsys) -> None:
+def test_a_mantle_frame_model_warns_on_paleolatitude_filters(demo_store: Path,
+                                                             tmp_path: Path) -> None:
     mantle = tmp_path / "m.csv"
     mantle.write_text(MODEL.read_text().replace("# frame: paleomagnetic", "# frame: mantle"),
                       encoding="utf-8")
     api.replace_rotations(api.open_store(demo_store), mantle, POLYGONS)
-    code, _, err = cli(capsys, "query", "--paleolat", "0:60", "--store", demo_store)
-    assert code == 0 and "mantle-frame" in err
+    r = run_cli("query", "--paleolat", "0:60", "--store", demo_store)
+    assert r.code == 0 and "mantle-frame" in r.err
 
 
 def test_outside_every_polygon_is_counted_not_dropped(demo_store: Path, tmp_path: Path) -> None:
@@ -138,21 +122,20 @@ def test_outside_every_polygon_is_counted_not_dropped(demo_store: Path, tmp_path
     assert len(df) == api.sql(store, "SELECT count(*) FROM records").rows[0][0]
 
 
-def test_a_bad_rotation_file_is_refused_and_init_creates_nothing(tmp_path: Path,
-                                                                 capsys) -> None:
+def test_a_bad_rotation_file_is_refused_and_init_creates_nothing(tmp_path: Path) -> None:
     bad = tmp_path / "bad.csv"
     bad.write_text(MODEL.read_text().replace("101,170,40,", "101,170,95,"), encoding="utf-8")
     target = tmp_path / "st"
-    code, _, err = cli(capsys, "init", "--store", target, "--rotations", bad, POLYGONS)
-    assert code == 2 and "line" in err and not target.exists()
+    r = run_cli("init", "--store", target, "--rotations", bad, POLYGONS)
+    assert r.code == 2 and "line" in r.err and not target.exists()
 
 
 def test_replace_rotations_with_a_missing_file_leaves_the_store_unchanged(
-        demo_store: Path, tmp_path: Path, capsys) -> None:
+        demo_store: Path, tmp_path: Path) -> None:
     before = tree_bytes(demo_store)
-    code, _, err = cli(capsys, "replace-rotations", tmp_path / "nope.csv", POLYGONS,
+    r = run_cli("replace-rotations", tmp_path / "nope.csv", POLYGONS,
                        "--store", demo_store)
-    assert code == 2 and "does not exist" in err
+    assert r.code == 2 and "does not exist" in r.err
     assert tree_bytes(demo_store) == before
 
 

@@ -8,14 +8,12 @@ light δ18O), a core YC-2 whose δ18O covaries with δ13C, two quillar rows with
 
 from __future__ import annotations
 
-import contextlib
 import hashlib
 import io
 import json
 import re
 import subprocess
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -24,6 +22,7 @@ import pytest
 from strata13.compile import api
 from strata13.compile.screening.rules import default_rules_path, load_rules
 
+from tests.conftest import run_cli as run
 from tests.conftest import tree_bytes
 
 EXE = [sys.executable, "-m", "strata13"]
@@ -37,24 +36,6 @@ DATA_COLUMNS = ["record_id", "source_id", "section_id", "sample_id", "lat", "lon
 # VPDB for near-primary δ13C — the default file's two fail rules.
 MN_SR_LIMIT = 10.0
 D18O_FLOOR = -10.0
-
-
-@dataclass
-class Ran:
-    returncode: int
-    stdout: str
-    stderr: str
-
-
-def run(*args: str) -> Ran:
-    """The command line in this process (the entry point's own dispatch and exit codes),
-    which saves an interpreter start per call; ``run_process`` is the real thing."""
-    from strata13.cli.app import _run
-
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = _run(list(args))
-    return Ran(code, out.getvalue(), err.getvalue())
 
 
 def run_process(*args: str) -> subprocess.CompletedProcess[str]:

@@ -17,14 +17,12 @@ oldest 20 % of a section's samples, at least three).
 
 from __future__ import annotations
 
-import contextlib
 import hashlib
 import io
 import json
 import math
 import re
 import shutil
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -33,29 +31,13 @@ import pytest
 from strata13.compile import api
 from strata13.compile.demo import demo_folder
 
-from tests.conftest import tree_bytes
+from tests.conftest import Ran, tree_bytes
+from tests.conftest import run_cli as run
 
 TOARCIAN = (184.2, 174.7)  # ICS chart v2024/12 (the store's chart), Ma
 CURVE_FILES = {"bins.csv", "curve.csv", "curve.png", "curve.svg"}
 REGION_ARGS = ("--interval", "Toarcian", "--by", "region", "--bin-myr", "0.25")
 SEP = " · "  # the default group label: "component · setting"
-
-
-@dataclass
-class Ran:
-    code: int
-    out: str
-    err: str
-
-
-def run(*args: object) -> Ran:
-    """The command line in this process: the entry point's dispatch and exit codes."""
-    from strata13.cli.app import _run
-
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = _run([str(a) for a in args])
-    return Ran(code, out.getvalue(), err.getvalue())
 
 
 def ok(*args: object) -> Ran:
