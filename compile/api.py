@@ -62,7 +62,7 @@ def rules_settings(rules: str | Path | None, untested_passes: bool | None = None
 def materials_settings(materials: str | Path | None) -> dict[str, Any]:
     """Store settings for a user's reference-material file (None: the shipped table only):
     its text is kept in the store, and the accepted value set per material is written out."""
-    from strata13.compile.errors import InputFileError
+    from strata13.compile.inputs import read_text
     from strata13.schemas.materials import (
         default_choice,
         materials_from_text,
@@ -72,12 +72,7 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
     text = ""
     if materials is not None:
         p = Path(materials)
-        if not p.is_file():
-            raise InputFileError(f"materials file {p} does not exist.", "Check --materials.")
-        try:
-            text = p.read_text(encoding="utf-8")
-        except UnicodeDecodeError:
-            raise ConfigError(f"{p.name} is not UTF-8 text.", "Save it as UTF-8 CSV.") from None
+        text = read_text(p, "materials file", "Check --materials.")
         materials_from_text(text, p.name)  # checked now, not at the first ingest
     user = materials_from_text(text) if text else []
     table = [*user, *shipped_materials()]
@@ -87,18 +82,11 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
 def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any]:
     """Store settings for a rotation model and its plate polygons (both checked now; their
     text is kept in the store, so the store reproduces its paleo-positions alone)."""
-    from strata13.compile.errors import InputFileError
+    from strata13.compile.inputs import read_text
     from strata13.compile.paleo import plates, rotations
 
-    texts = []
-    for p, what in ((Path(model), "rotation model"), (Path(polygons), "plate polygons")):
-        if not p.is_file():
-            raise InputFileError(f"{what} file {p} does not exist.", "Check --rotations.")
-        try:
-            texts.append(p.read_text(encoding="utf-8"))
-        except UnicodeDecodeError:
-            raise ConfigError(f"{p.name} is not UTF-8 text.", f"Save the {what} as UTF-8.") \
-                from None
+    texts = [read_text(p, f"{what} file", "Check the MODEL and POLYGONS files.")
+             for p, what in ((model, "rotation model"), (polygons, "plate polygons"))]
     m = rotations.parse_model(texts[0], Path(model).name)
     try:
         doc = json.loads(texts[1])

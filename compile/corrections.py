@@ -97,12 +97,9 @@ def check(c: Correction, where: str) -> Any:
 
 def read_file(path: Path) -> list[Correction]:
     """A CSV of corrections: header record_id,field,value,why (one per line)."""
-    if not path.is_file():
-        raise ConfigError(f"corrections file {path} does not exist.", "Check --file.")
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise ConfigError(f"{path.name} is not UTF-8 text.", "Save it as UTF-8 CSV.") from None
+    from strata13.compile.inputs import read_text
+
+    text = read_text(path, "corrections file", "Check --file.")
     reader = csv.DictReader(text.splitlines())
     need = {"record_id", "field", "value", "why"}
     if not need <= set(reader.fieldnames or []):

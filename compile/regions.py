@@ -108,6 +108,31 @@ def _boxes(geo: dict[str, Any]) -> list[tuple[float, float, float, float]]:
     return [tuple(float(v) for v in p.bounds) for p in parts]  # type: ignore[misc]
 
 
+def polygon_shape(geo: Any, where: str, unwrap: bool = False) -> Any:
+    """A GeoJSON Polygon/MultiPolygon as a valid shapely geometry, or a ConfigError naming
+    ``where`` (used for regions and for plate polygons); ``unwrap`` first carries rings
+    across the antimeridian."""
+    import shapely
+
+    if not isinstance(geo, dict) or geo.get("type") not in ("Polygon", "MultiPolygon"):
+        raise ConfigError(f"{where}: only Polygon and MultiPolygon geometries are accepted.",
+                          "Draw it as a polygon.")
+    try:
+        shp = shapely.geometry.shape(_unwrap(geo) if unwrap else geo)
+    except Exception as exc:  # shapely raises several types for bad coordinates
+        raise ConfigError(f"{where}: the polygon cannot be read ({exc}).",
+                          "Check the coordinate nesting: [[[lon, lat], …]].") from None
+    lo_x, lo_y, hi_x, hi_y = shp.bounds
+    if shp.is_empty or lo_y < -90 or hi_y > 90 or lo_x < -360 or hi_x > 360:
+        raise ConfigError(f"{where}: the polygon is empty or has coordinates out of range "
+                          f"(lon {lo_x:g}…{hi_x:g}, lat {lo_y:g}…{hi_y:g}).",
+                          "GeoJSON is [longitude, latitude]; check for swapped pairs.")
+    if not shp.is_valid:
+        raise ConfigError(f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
+                          "Fix self-intersections; close each ring.")
+    return shp
+
+
 def from_geojson(doc: Any, name: str, where: str) -> Region:
     """A Region from a GeoJSON geometry, Feature or FeatureCollection (all parts united)."""
     import shapely
@@ -119,26 +144,7 @@ def from_geojson(doc: Any, name: str, where: str) -> Region:
         geoms = [doc.get("geometry")]
     elif isinstance(doc, dict):
         geoms = [doc]
-    polys = []
-    for g in geoms:
-        if not isinstance(g, dict) or g.get("type") not in ("Polygon", "MultiPolygon"):
-            raise ConfigError(f"{where}: only Polygon and MultiPolygon geometries make a region.",
-                              "Draw the region as a polygon.")
-        g = _unwrap(g)
-        try:
-            shp = shapely.geometry.shape(g)
-        except Exception as exc:  # shapely raises several types for bad coordinates
-            raise ConfigError(f"{where}: the polygon cannot be read ({exc}).",
-                              "Check the coordinate nesting: [[[lon, lat], …]].") from None
-        lo_x, lo_y, hi_x, hi_y = shp.bounds
-        if lo_y < -90 or hi_y > 90 or lo_x < -360 or hi_x > 360:
-            raise ConfigError(f"{where}: the polygon has coordinates out of range "
-                              f"(lon {lo_x:g}…{hi_x:g}, lat {lo_y:g}…{hi_y:g}).",
-                              "GeoJSON is [longitude, latitude]; check for swapped pairs.")
-        if not shp.is_valid:
-            raise ConfigError(f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
-                              "Fix self-intersections; close each ring.")
-        polys.append(shp)
+    polys = [polygon_shape(g, where, unwrap=True) for g in geoms]
     if not polys:
         raise ConfigError(f"{where} holds no polygon.", "A region is a Polygon or MultiPolygon.")
     union = shapely.union_all(polys)

@@ -131,14 +131,10 @@ def read_ties(path: Path, blocks: Any, table_file: Path | None, source_id: str,
     ties = [parse_tie(b, f"[[ties]] block {i + 1}", path, source_id, default_chart)
             for i, b in enumerate(blocks)]
     if table_file is not None:
-        if not table_file.is_file():
-            raise ConfigError(f"{path.name}: [ties_table] file {table_file.name} does not "
-                              "exist.", "Check the file name, relative to the mapping file.")
-        try:
-            text = table_file.read_text(encoding="utf-8-sig")
-        except UnicodeDecodeError:
-            raise ConfigError(f"{table_file.name} is not UTF-8 text.",
-                              "Save the ties table as UTF-8 CSV.") from None
+        from strata13.compile.inputs import read_text
+
+        text = read_text(table_file, f"{path.name}: [ties_table] file",
+                         "Check the file name, relative to the mapping file.")
         reader = csv.DictReader(text.splitlines())
         unknown = [h for h in reader.fieldnames or [] if h and h.strip() not in TIE_KEYS]
         if unknown:

@@ -442,7 +442,7 @@ def test_corrections_from_a_file_land_in_one_version(
     assert by.loc[q7, "lithology"] != "marl"
     f = tmp_path / "fixes.csv"
     f.write_text("record_id,field,value,why\n"
-                 f"{qr11},d18o_carb,28.90,transcription slip; lab notebook gives 28.90\n"
+                 f"{qr11},d18o_carb,28.90,typing slip; lab notebook gives 28.90\n"
                  f"{q7},lithology,marl,the compilation's note on Q7 says marl\n"
                  f"{qr20},d13c_carb,2.26,digits swapped in the journal table\n",
                  encoding="utf-8")

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 import shapely
 from scipy.spatial.transform import Rotation
-from strata13.compile.errors import ConfigError
+from strata13.compile.errors import ConfigError, InputFileError
 from strata13.compile.paleo import plates, rotations
 from strata13.compile.paleo.rotations import (
     BEYOND,
@@ -191,7 +191,7 @@ def test_header_and_columns_are_required(tmp_path: Path) -> None:
         parse_model("# model: x\n" + COLS + "1,0,90,0,0,0,,\n")
     with pytest.raises(ConfigError, match="missing: relative_to"):
         parse_model(HEAD + "plate_id,age_ma,pole_lat,pole_lon,angle_deg\n")
-    with pytest.raises(ConfigError, match="does not exist"):
+    with pytest.raises(InputFileError, match="does not exist"):  # exit 2, as every file option
         load_model(tmp_path / "nope.csv")
     path = tmp_path / "m.csv"
     path.write_text(MODEL, encoding="utf-8")

@@ -202,8 +202,8 @@ def test_base_neogene_takes_the_stage_value() -> None:
 
 
 def test_v2023_09_slips_replaced_and_flagged() -> None:
-    # §6c note (4): v2023/09 data give 521 for Cambrian Stage 2 (= Stage 3), "evidently a
-    # transcription slip; all other versions give ~529"; likewise the data's Valanginian 132.6
+    # the v2023/09-tagged ICS chart data give 521 for Cambrian Stage 2 (= Stage 3), evidently
+    # a slip, since every other version gives ~529; likewise the data's Valanginian 132.6
     # (= Hauterivian) and Olenekian 247.2 (= Anisian) would leave a stage without duration.
     # Choice: the ICS2020 value (§6c, VERIFIED), flagged approximate, the slip quoted in the note.
     scale = ts.load(V23)
@@ -216,9 +216,10 @@ def test_v2023_09_slips_replaced_and_flagged() -> None:
     assert scale.find("Cambrian Stage 3").base_ma == 521.0  # §6c, v2023/09-tag 521, VERIFIED
 
 
-def test_ics2012_base_triassic_transcription_error_replaced() -> None:
-    # §6b "Base Triassic — ICS chart 2012 data / GTS2012 book": 252.6 (RDF, "looks like a
-    # transcription error") vs 252.2 ± 0.5 (GTS2012, MEMORY). Choice: 252.2 ± 0.5, flagged.
+def test_ics2012_base_triassic_data_entry_error_replaced() -> None:
+    # Base Triassic, ICS chart 2012 data (IUGS-CGI RDF) vs the GTS2012 book: 252.6 in the RDF
+    # (out of line with every other version: a data-entry error) vs 252.2 ± 0.5 (GTS2012,
+    # from memory). Choice: 252.2 ± 0.5, flagged.
     u = ts.load(V12).find("Induan")
     assert (u.base_ma, u.uncertainty_ma, u.approximate) == (252.2, 0.5, True)
     assert "252.6" in u.note and "from memory" in u.note

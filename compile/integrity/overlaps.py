@@ -48,7 +48,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
-from strata13.compile.errors import ConfigError, DomainError, InputFileError, OptionError
+from strata13.compile.errors import ConfigError, DomainError, OptionError
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -521,16 +521,11 @@ def read_decisions(path: str | Path) -> list[Decision]:
     repeated with the same decision is kept once. Whether the ids exist is for the caller
     to check against the store.
     """
+    from strata13.compile.inputs import read_text
+
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise InputFileError(f"the decisions file {p} does not exist.",
-                             "Check the path; the file is a CSV with the header "
-                             "record_a,record_b,decision,note.") from None
-    except (OSError, UnicodeDecodeError) as err:
-        raise InputFileError(f"the decisions file {p} cannot be read as UTF-8 text ({err}).",
-                             "Save it as a UTF-8 CSV file.") from None
+    text = read_text(p, "the decisions file", "Check the path; the file is a CSV with the "
+                     "header record_a,record_b,decision,note.")
     rows = [(n, row) for n, row in _csv_lines(text)
             if any(c.strip() for c in row) and not row[0].lstrip().startswith("#")]
     hint = ("Write one pair a line: record_a,record_b,confirm|reject,note (the note may be "

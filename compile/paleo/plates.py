@@ -29,6 +29,7 @@ from typing import Any, NamedTuple
 import numpy as np
 import shapely
 from strata13.compile.errors import ConfigError
+from strata13.compile.regions import polygon_shape
 
 PLATE_KEY = "plate_id"
 UNASSIGNED = -1
@@ -51,17 +52,16 @@ class Assignment(NamedTuple):
 
 def load_polygons(path: Path | str) -> PlatePolygons:
     """Read and validate a plate-polygon GeoJSON; ConfigError names the feature and fix."""
+    from strata13.compile.inputs import read_text
+
     path = Path(path)
-    if not path.is_file():
-        raise ConfigError(f"plate polygons {path} do not exist.",
-                          "Check the POLYGONS argument (a GeoJSON file).")
+    text = read_text(path, "plate polygons file", "Check the POLYGONS argument (GeoJSON).")
     try:
-        data = path.read_bytes()
-        doc = json.loads(data.decode("utf-8-sig"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        doc = json.loads(text)
+    except json.JSONDecodeError as exc:
         raise ConfigError(f"{path.name} is not readable GeoJSON ({exc}).",
                           "Check the file with a GeoJSON validator.") from None
-    return parse_polygons(doc, path.name, hashlib.sha256(data).hexdigest())
+    return parse_polygons(doc, path.name, hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
 def _plate_id(props: Any, where: str) -> int:
@@ -95,22 +95,7 @@ def parse_polygons(doc: Any, name: str = "plate polygons", digest: str = "") -> 
             raise ConfigError(f"{where} is not a GeoJSON Feature.", "Check the file's nesting.")
         plate = _plate_id(feat.get("properties"), where)
         where = f"{where} (plate {plate})"
-        geo = feat.get("geometry")
-        if not isinstance(geo, dict) or geo.get("type") not in ("Polygon", "MultiPolygon"):
-            raise ConfigError(f"{where} is not a Polygon or MultiPolygon.",
-                              "Draw plates as polygons.")
-        try:
-            shp = shapely.geometry.shape(geo)
-        except Exception as exc:  # shapely raises several types for bad coordinates
-            raise ConfigError(f"{where}: the polygon cannot be read ({exc}).",
-                              "Check the coordinate nesting: [[[lon, lat], …]].") from None
-        lo_x, lo_y, hi_x, hi_y = shp.bounds
-        if shp.is_empty or lo_y < -90 or hi_y > 90 or lo_x < -360 or hi_x > 360:
-            raise ConfigError(f"{where}: the polygon is empty or out of range.",
-                              "GeoJSON is [longitude, latitude]; check for swapped pairs.")
-        if not shp.is_valid:
-            raise ConfigError(f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
-                              "Fix self-intersections and close each ring.")
+        shp = polygon_shape(feat.get("geometry"), where)
         plates.append(plate)
         geoms.append(shp)
     plate_ids = np.array(plates, dtype=np.int64)

@@ -153,17 +153,11 @@ def euler_rotation(pole_lat: float, pole_lon: float, angle_deg: float) -> Rotati
 
 def load_model(path: Path | str) -> RotationModel:
     """Read and validate a rotation-model CSV; ConfigError names the line and the fix."""
+    from strata13.compile.inputs import read_text
+
     path = Path(path)
-    if not path.is_file():
-        raise ConfigError(f"rotation model {path} does not exist.",
-                          "Check the MODEL argument (a CSV file).")
-    try:
-        data = path.read_bytes()
-        text = data.decode("utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"rotation model {path.name} cannot be read ({exc}).",
-                          "Save it as UTF-8 CSV.") from None
-    return parse_model(text, path.name, hashlib.sha256(data).hexdigest())
+    text = read_text(path, "rotation model", "Check the MODEL argument (a CSV file).")
+    return parse_model(text, path.name, hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
 def _number(cell: str, col: str, where: str) -> float:

@@ -33,7 +33,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from strata13.compile.errors import ConfigError, InputFileError
+from strata13.compile.errors import ConfigError
 from strata13.schemas.fields import BY_NAME, CONC_FIELDS, DELTA_FIELDS, FIELDS, UNITS
 from strata13.schemas.vocabularies import vocabulary
 
@@ -267,16 +267,11 @@ def default_rules_path() -> Path:
 
 def load_rules(path: Path | str | None = None) -> RuleSet:
     """Read and check a rule file (None: the shipped default). Raises ConfigError (exit 2)."""
+    from strata13.compile.inputs import read_text
+
     p = Path(path) if path is not None else default_rules_path()
-    if p.is_dir():
-        raise InputFileError(f"rule file {p} is a folder.", "Name the .toml file.")
-    if not p.exists():
-        raise InputFileError(f"rule file {p} does not exist.", "Check the --rules path.")
-    try:
-        text = p.read_bytes().decode("utf-8")
-    except UnicodeDecodeError:
-        raise ConfigError(f"{p.name} is not UTF-8 text.", "Save the rule file as UTF-8.") from None
-    return parse_rules(text, p.name)
+    return parse_rules(read_text(p, "rule file", "Check the --rules path (a .toml file)."),
+                       p.name)
 
 
 def parse_rules(text: str, origin: str = "rules") -> RuleSet:
