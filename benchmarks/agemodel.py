@@ -30,7 +30,7 @@ from typing import Any
 
 import numpy as np
 import table  # sibling module: the shared result table (benchmarks/ is on sys.path)
-from strata13.compile import agemodel
+from strata13.compile.ages import agemodel
 
 RATIO_TARGET = 3.0
 SEED = 13

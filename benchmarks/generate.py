@@ -310,7 +310,7 @@ def _store_chunk(start: int, stop: int, rps: int, sec_lat: np.ndarray, sec_lon: 
     import numpy as np
     import pyarrow as pa
     import pyarrow.compute as pc
-    from strata13.compile.derive import chain_id
+    from strata13.compile.derive.engine import chain_id
     from strata13.schemas.records import ANALYSES, arrow_schema
 
     schema = arrow_schema(ANALYSES)

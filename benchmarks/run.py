@@ -337,8 +337,8 @@ def case_query(records: int, repeat: int) -> Outcome:
     """interval + polygon query: api.query_arrow against bare DuckDB over the Parquet files."""
     import duckdb
     from strata13.compile import api
-    from strata13.compile.query import Filters
-    from strata13.compile.regions import from_geojson
+    from strata13.compile.query.filters import Filters
+    from strata13.compile.query.regions import from_geojson
 
     out = Outcome()
     case = f"interval + polygon query, {_count(records)} records"

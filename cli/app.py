@@ -120,7 +120,8 @@ def _run(args: list[str]) -> int:
         from click import exceptions as cx
 
     from strata13.cli import render
-    from strata13.compile.errors import Strata13Error
+
+    from strata13.errors import Strata13Error
 
     debug = "--debug" in args
     args = [a for a in args if a != "--debug"]  # accepted anywhere on the line

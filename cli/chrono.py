@@ -80,7 +80,7 @@ def agemodel(section: Annotated[str, typer.Argument(help="Section id, or SOURCE/
              store: StoreOpt = None) -> None:
     """A section's ties (as given and on the store's chart) and its age model."""
     from strata13.compile import api
-    from strata13.compile.outputs import output_file
+    from strata13.compile.export.outputs import output_file
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))

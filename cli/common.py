@@ -44,8 +44,9 @@ ALL_FORMATS = ("table", "csv", "json", "parquet")
 def check_format(fmt: str, out: Path | None, store: Path | None = None,
                  allowed: tuple[str, ...] = ALL_FORMATS) -> None:
     """Refuse an unknown format, parquet to a terminal, and an --out that is unsafe."""
-    from strata13.compile.errors import OptionError
-    from strata13.compile.outputs import output_file
+    from strata13.compile.export.outputs import output_file
+
+    from strata13.errors import OptionError
 
     if fmt not in allowed:
         raise OptionError(f"--format {fmt!r} is not one of {', '.join(allowed)}.",
@@ -62,8 +63,9 @@ def build_filters(store: Any, interval: str | None, region: str | None,
                   keep_duplicates: bool = False, paleolat: str | None = None) -> Any:
     """Turn the FILTERS options into the library's Filters (validated, vocabulary-checked)."""
     from strata13.compile import api
-    from strata13.compile.errors import OptionError
-    from strata13.compile.query import SCREENED, Filters, check_vocab
+    from strata13.compile.query.filters import SCREENED, Filters, check_vocab
+
+    from strata13.errors import OptionError
 
     if frame not in ("present", "paleo"):
         raise OptionError(f"--frame {frame!r} is not present or paleo.",
@@ -71,7 +73,7 @@ def build_filters(store: Any, interval: str | None, region: str | None,
     if screened not in SCREENED:
         raise OptionError(f"--screened {screened!r} is not one of {', '.join(SCREENED)}.",
                           "Example: --screened pass (see `strata13 screen --summary`).")
-    from strata13.compile.query import parse_paleolat
+    from strata13.compile.query.filters import parse_paleolat
 
     band = parse_paleolat(paleolat) if paleolat else None
     if band is not None or frame == "paleo":

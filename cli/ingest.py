@@ -27,9 +27,10 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
     import json
 
     from strata13.compile import api
-    from strata13.compile.errors import ValidationFailed
+    from strata13.compile.export.outputs import output_file
     from strata13.compile.ingest import reconcile
-    from strata13.compile.outputs import output_file
+
+    from strata13.errors import ValidationFailed
 
     if report is not None:
         output_file(report, option="--report", protect=[p for p in (file, map_) if p],

@@ -81,8 +81,9 @@ def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     """Samples and sections per time bin × region (or paleolatitude band) × component,
     empty cells included: where the curve is well founded and where it is not."""
     from strata13.compile import api
-    from strata13.compile.errors import OptionError
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
+
+    from strata13.errors import OptionError
 
     if by not in ("region", "paleolat-band"):
         raise OptionError(f"--by {by!r} is not region or paleolat-band.", "Example: --by region")
@@ -121,8 +122,9 @@ def correct(record: Annotated[str | None, typer.Argument(
     """Record a correction of a published value (kept as data, applied on every
     derivation, kept across re-ingests while the record exists)."""
     from strata13.compile import api
-    from strata13.compile.corrections import Correction, read_file
-    from strata13.compile.errors import OptionError
+    from strata13.compile.integrity.corrections import Correction, read_file
+
+    from strata13.errors import OptionError
 
     if file is not None:
         if record or field or value or why:

@@ -78,7 +78,7 @@ def table(columns: Sequence[str], rows: Sequence[Sequence[Any]], fmt: str = "tab
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow(columns)
-        from strata13.compile.export import neutralise
+        from strata13.compile.export.package import neutralise
 
         w.writerows([[neutralise(v) if isinstance(v, str) else _cell(v) for v in r]
                      for r in rows])

@@ -30,7 +30,8 @@ def screen(rules: Annotated[Path | None, typer.Option(
     """Screen every record with the store's rules (rules of thumb: your judgement and your
     lab's practice decide). Screening flags records; it never changes or deletes them."""
     from strata13.compile import api
-    from strata13.compile.errors import OptionError
+
+    from strata13.errors import OptionError
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))

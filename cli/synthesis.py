@@ -61,7 +61,7 @@ def curve(out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, 
     """A composite δ13C curve per group: binned statistics, LOESS with a section-bootstrap
     band, optional age draws and leave-one-out robustness; CSVs, PNG, SVG and a manifest."""
     from strata13.compile import api
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
     from strata13.compile.synthesis.run import CurveRequest
 
     path = api.store_path(store)
@@ -106,8 +106,9 @@ def excursion(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset and
     recovery, sample count and spacing; a summary across sections and groups."""
     from strata13.compile import api
-    from strata13.compile.errors import OptionError
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
+
+    from strata13.errors import OptionError
 
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))

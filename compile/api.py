@@ -6,7 +6,7 @@
 >>> df = api.query(store, api.Filters(interval=(185, 180)))     # a pandas DataFrame
 >>> api.export(store, "export")                                   # Parquet, CSV, manifest
 
-Every function returns data or raises a :mod:`strata13.compile.errors` exception; none
+Every function returns data or raises a :mod:`strata13.errors` exception; none
 prints.
 """
 
@@ -17,17 +17,18 @@ import os
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.derive import DEFAULT_TIME_SCALE, Settings
-from strata13.compile.errors import ConfigError, NotAStoreError, OptionError, StoreError
-from strata13.compile.export import ExportResult
+from strata13.compile.derive.engine import DEFAULT_TIME_SCALE, Settings
+from strata13.compile.export.package import ExportResult
 from strata13.compile.ingest import IngestResult
-from strata13.compile.query import Filters, parse_interval
-from strata13.compile.store import Store, Version, is_store
+from strata13.compile.query.filters import Filters, parse_interval
+from strata13.compile.store.lake import Store, Version, is_store
+
+from strata13.errors import ConfigError, NotAStoreError, OptionError, StoreError
 
 if TYPE_CHECKING:
     import pandas as pd
     import pyarrow as pa
-    from strata13.compile.sqlguard import SqlResult
+    from strata13.compile.query.sqlguard import SqlResult
 
 __all__ = [
     "Filters", "IngestResult", "Settings", "Store", "Version", "check_sources", "explain",
@@ -62,7 +63,7 @@ def rules_settings(rules: str | Path | None, untested_passes: bool | None = None
 def materials_settings(materials: str | Path | None) -> dict[str, Any]:
     """Store settings for a user's reference-material file (None: the shipped table only):
     its text is kept in the store, and the accepted value set per material is written out."""
-    from strata13.compile.inputs import read_text
+    from strata13.compile.read.inputs import read_text
     from strata13.schemas.materials import (
         default_choice,
         materials_from_text,
@@ -82,8 +83,8 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
 def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any]:
     """Store settings for a rotation model and its plate polygons (both checked now; their
     text is kept in the store, so the store reproduces its paleo-positions alone)."""
-    from strata13.compile.inputs import read_text
     from strata13.compile.paleo import plates, rotations
+    from strata13.compile.read.inputs import read_text
 
     texts = [read_text(p, f"{what} file", "Check the MODEL and POLYGONS files.")
              for p, what in ((model, "rotation model"), (polygons, "plate polygons"))]
@@ -101,7 +102,7 @@ def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any
 def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> Any:
     """Set the store's rotation model and plate polygons and recompute every paleo-position
     (and the screens) in one commit; returns a RecomputeResult."""
-    from strata13.compile.recompute import recompute
+    from strata13.compile.derive.recompute import recompute
 
     return recompute(store, rotations_settings(model, polygons), "replace-rotations")
 
@@ -113,7 +114,7 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
                rotations: tuple[str | Path, str | Path] | None = None) -> Store:
     """Create a store with its settings (time scale, screening rules, whether age models
     extrapolate beyond their ties) and optional named regions."""
-    from strata13.compile.regions import load_regions_file
+    from strata13.compile.query.regions import load_regions_file
     from strata13.schemas.vocabularies import vocabulary
 
     voc = vocabulary("time_scale")
@@ -182,7 +183,7 @@ def _named_regions(con: Any) -> dict[str, str]:
 
 def region(store: Store, spec: str) -> Any:
     """Resolve a --region value against the store's named regions."""
-    from strata13.compile.regions import resolve_region
+    from strata13.compile.query.regions import resolve_region
 
     con, _ = store.reader()
     try:
@@ -215,7 +216,7 @@ def check_sources(store: Store, ids: list[str]) -> list[str]:
 def query_arrow(store: Store, filters: Filters | None = None,
                 as_of: int | None = None) -> pa.Table:
     import duckdb
-    from strata13.compile.query import run
+    from strata13.compile.query.filters import run
 
     con, _ = store.reader(as_of)
     try:
@@ -240,7 +241,7 @@ def export(store: Store, out: str | Path, filters: Filters | None = None,
     manifest records every curve parameter and file, so the same command reproduces them.
     ``command`` (the command line as given, pinned to the version) goes into the manifest's
     ``reproduce``."""
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
 
     output_dir(Path(out), option="--out", stores=[store.path])
     cres = None
@@ -273,8 +274,8 @@ def export(store: Store, out: str | Path, filters: Filters | None = None,
 def _export_records(store: Store, out: str | Path, filters: Filters | None = None,
                     as_of: int | None = None) -> ExportResult:
     import duckdb
-    from strata13.compile import export as _export
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
+    from strata13.compile.export import package as _export
 
     output_dir(Path(out), option="--out", stores=[store.path])
     con, version = store.reader(as_of)
@@ -292,7 +293,7 @@ def _export_records(store: Store, out: str | Path, filters: Filters | None = Non
 
 def sql(store: Store, statement: str, timeout_s: float = 30.0,
         row_cap: int = 100_000) -> SqlResult:
-    from strata13.compile.sqlguard import run_sql
+    from strata13.compile.query.sqlguard import run_sql
 
     con, _ = store.reader()
     try:
@@ -322,8 +323,8 @@ def reharmonise(store: Store, vsmow_constants: str | None = None,
                 materials: str | Path | None = None) -> Any:
     """Re-derive every record with new harmonisation settings (one commit, or none when
     nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
+    from strata13.compile.derive.recompute import recompute
     from strata13.compile.harmonise.oxygen import relation
-    from strata13.compile.recompute import recompute
 
     change: dict[str, Any] = {}
     if vsmow_constants is not None:
@@ -336,7 +337,7 @@ def reharmonise(store: Store, vsmow_constants: str | None = None,
 def interval(store: Store | None, text: str, time_scale: str | None = None) -> Any:
     """``--interval`` text (stage/series/period name, NAME..NAME or A-B Ma) as an interval
     on the store's chart; names resolve on ``time_scale`` if given, else the store's."""
-    from strata13.compile.chronology import resolve
+    from strata13.compile.ages.chronology import resolve
 
     return resolve(text, store, time_scale)
 
@@ -345,7 +346,7 @@ def stages(store: Store | None = None, time_scale: str | None = None,
            interval: str | None = None) -> tuple[Any, list[dict[str, Any]], list[str]]:
     """(chart, its units, notes): ``time_scale`` (a version or a CSV table), else the
     store's chart, else the current one; only units overlapping ``interval`` if given."""
-    from strata13.compile import chronology
+    from strata13.compile.ages import chronology
 
     scale = chronology.chart(time_scale, store)
     rows, notes = chronology.stages(scale, interval)
@@ -356,7 +357,7 @@ def redate(store: Store, time_scale: str | None = None, extrapolation: bool | No
            draws: int | None = None) -> Any:
     """Change the store's chart or age-model settings and re-derive every age (one commit,
     or none when nothing changes); returns a RecomputeResult."""
-    from strata13.compile.recompute import recompute
+    from strata13.compile.derive.recompute import recompute
     from strata13.schemas import timescales
 
     change: dict[str, Any] = {}
@@ -374,7 +375,7 @@ def redate(store: Store, time_scale: str | None = None, extrapolation: bool | No
 
 def agemodel(store: Store, section: str) -> Any:
     """One section's ties (as given and on the store's chart) and its age-model draws."""
-    from strata13.compile.chronology import section_model
+    from strata13.compile.ages.chronology import section_model
 
     return section_model(store, section)
 
@@ -384,7 +385,7 @@ def screen(store: Store, rules: str | Path | None = None,
     """Set the store's screening rules (a rule file; None keeps the store's) and whether
     untested counts as pass, and re-screen every record in one commit (none when nothing
     changes); returns a RecomputeResult."""
-    from strata13.compile.recompute import recompute
+    from strata13.compile.derive.recompute import recompute
 
     change: dict[str, Any] = {}
     if rules is not None:
@@ -398,7 +399,7 @@ def screen_report(store: Store, filters: Filters | None = None) -> Any:
     """The stored records re-screened with the store's rules, for the summary and the
     cross-plots: (records, Screening(results, overall, groups), counts per source, section,
     rule and outcome)."""
-    from strata13.compile.derive import rule_set
+    from strata13.compile.derive.engine import rule_set
     from strata13.compile.screening.evaluate import evaluate, summarise
 
     records = query_arrow(store, filters)
@@ -410,7 +411,7 @@ def screen_report(store: Store, filters: Filters | None = None) -> Any:
 
 def screen_plots(store: Store, records: Any, screening: Any, out: str | Path) -> list[Path]:
     """One δ13C–δ18O cross-plot per section (PNG) into folder ``out``."""
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
     from strata13.compile.screening.plots import cross_plots
 
     folder = Path(out)
@@ -442,7 +443,7 @@ def excursion(store: Store, filters: Filters, *, by: str | None = None,
 def correct(store: Store, items: list[Any]) -> Any:
     """Store corrections (``corrections.Correction``: record, field, value, why) and
     re-derive the sources they touch, in one commit."""
-    from strata13.compile.corrections import correct as _correct
+    from strata13.compile.integrity.corrections import correct as _correct
 
     return _correct(store, items)
 
@@ -450,7 +451,7 @@ def correct(store: Store, items: list[Any]) -> Any:
 def corrections(store: Store, source: list[str] | None = None) -> list[dict[str, Any]]:
     """Every stored correction: the record's place, what was published, the corrected
     value, the reason, and whether the record still exists ('applied' or 'orphaned')."""
-    from strata13.compile.corrections import listing
+    from strata13.compile.integrity.corrections import listing
 
     return listing(store, check_sources(store, source) if source else None)
 
@@ -483,7 +484,7 @@ def coverage(store: Store, filters: Filters, by: str = "region",
 
 def plot_agemodel(model: Any, path: str | Path) -> Path:
     """Write a section model's age–position figure (PNG)."""
-    from strata13.compile.chronology import plot_model
+    from strata13.compile.ages.chronology import plot_model
 
     return plot_model(model, Path(path))
 
@@ -538,8 +539,9 @@ def _replay(step: dict[str, Any], value: float | None) -> float | None:
 def explain(store: Store, record: str) -> dict[str, Any]:
     """One record with its provenance and, for each δ value, the chain of steps from the
     reported value to the harmonised one. ``record`` may be a unique prefix (≥ 6 chars)."""
-    from strata13.compile.errors import DomainError
     from strata13.schemas.fields import DELTA_FIELDS
+
+    from strata13.errors import DomainError
 
     if len(record) < 6:
         raise OptionError(f"record id {record!r} is too short.",

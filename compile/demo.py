@@ -11,8 +11,9 @@ from pathlib import Path
 from typing import Any
 
 from strata13.compile import api
-from strata13.compile.errors import StoreError, ValidationFailed
-from strata13.compile.query import Filters
+from strata13.compile.query.filters import Filters
+
+from strata13.errors import StoreError, ValidationFailed
 
 SHEETS = [("quillar_2011.xlsx", "quillar_2011.toml"),
           ("mossaret_fennoway_2018.ods", "mossaret_fennoway_2018.toml"),
@@ -33,7 +34,7 @@ def demo_folder() -> Path:
 def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     import json
 
-    from strata13.compile.outputs import output_dir
+    from strata13.compile.export.outputs import output_dir
 
     data = demo_folder()
     sheets = data / "sheets"
@@ -148,7 +149,7 @@ def _integrity(store: Any, out: Path, figures: Path) -> Iterator[tuple[str, Any]
     paired with their originals and confirmed (counted once), and the coverage heatmap."""
     import csv
 
-    from strata13.compile.corrections import Correction
+    from strata13.compile.integrity.corrections import Correction
 
     lost = api.sql(store, "SELECT record_id FROM records WHERE source_id = "
                    "'orvanne-compilation-2022' AND sample_id = 'Q11'").rows[0][0]

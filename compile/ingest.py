@@ -13,19 +13,20 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile import interrupts
-from strata13.compile.derive import Settings, derive
-from strata13.compile.errors import (
+from strata13.compile.check.report import Report
+from strata13.compile.check.validate import prepare
+from strata13.compile.derive.engine import Settings, derive
+from strata13.compile.read.mapping import load_mapping
+from strata13.compile.store.lake import Store
+from strata13.schemas.fields import SCHEMA_VERSION
+
+from strata13.errors import (
     DomainError,
     InputFileError,
     Interrupted,
     OptionError,
     ValidationFailed,
 )
-from strata13.compile.mapping import load_mapping
-from strata13.compile.report import Report
-from strata13.compile.store import Store
-from strata13.compile.validate import prepare
-from strata13.schemas.fields import SCHEMA_VERSION
 
 if TYPE_CHECKING:
     import pyarrow as pa
@@ -120,7 +121,7 @@ def _check_run_materials(store: Store, mapping: Any) -> None:
 def _ingest_ties_only(store: Store, sheet: Path | None, mapping: Any, dry_run: bool, step: Any,
                       create: Any) -> IngestResult:
     """A source of age ties only: no sheet; its ties date sections of other sources."""
-    from strata13.compile.validate import prepare_ties_only
+    from strata13.compile.check.validate import prepare_ties_only
 
     if sheet is not None:
         raise OptionError(f"{mapping.path.name} holds only age ties and maps no sheet.",
@@ -136,7 +137,7 @@ def _ingest_ties_only(store: Store, sheet: Path | None, mapping: Any, dry_run: b
 def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step: Any,
           create: Any) -> IngestResult:
     """Derive and commit one prepared source (or, for a dry run, only derive it)."""
-    from strata13.compile.ties import ties_table
+    from strata13.compile.ages.ties import ties_table
 
     mapping = prepared.mapping
     new_ties = ties_table(mapping.ties)
@@ -258,7 +259,7 @@ def _all_ties(con: Any, source_id: str, new_ties: pa.Table, relation: str = "lak
 
 def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
     """Derive as an ingest would, against the store's ties (if the store exists)."""
-    from strata13.compile.store import is_store
+    from strata13.compile.store.lake import is_store
 
     settings = settings_from_store(store)
     if not is_store(store.path):

@@ -110,7 +110,7 @@ def materials_from_text(text: str, origin: str = "materials file") -> list[Mater
     """
     import io
 
-    from strata13.compile.errors import ConfigError
+    from strata13.errors import ConfigError
 
     reader = csv.DictReader(io.StringIO(text))
     need = {"material", "value_set", "status", "d13c", "d13c_scale", "d18o", "d18o_scale"}
@@ -181,7 +181,7 @@ def accepted_value(material: str, isotope: str, table: list[MaterialValue] |
                    vsmow_relation: str) -> tuple[float, MaterialValue]:
     """The store's accepted δ value of ``material`` on VPDB (δ18O on VSMOW converted with
     the store's relation). Raises DomainError for a material the store does not know."""
-    from strata13.compile.errors import DomainError
+    from strata13.errors import DomainError
 
     value_set = choice.get(material, {}).get(isotope)
     hits = [m for m in table if m.material == material and m.value_set == value_set

@@ -23,8 +23,9 @@ from functools import cache, cached_property
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, NamedTuple
 
-from strata13.compile.errors import ConfigError, InputFileError, OptionError
 from strata13.schemas.vocabularies import vocabulary
+
+from strata13.errors import ConfigError, InputFileError, OptionError
 
 if TYPE_CHECKING:
     import numpy as np

@@ -13,8 +13,7 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from strata13.compile import agemodel
-from strata13.compile.agemodel import (
+from strata13.compile.ages.agemodel import (
     AT_HIATUS,
     EXTRAPOLATED,
     OUTSIDE,
@@ -23,7 +22,9 @@ from strata13.compile.agemodel import (
     shared_offsets,
     summarise,
 )
-from strata13.compile.errors import DomainError
+from strata13.compile.ages import agemodel
+
+from strata13.errors import DomainError
 
 N = 4000  # draws for the statistical checks: SE of a σ estimate ≈ σ/√(2N) ≈ 1.1 %
 
@@ -302,7 +303,7 @@ def test_summarise_matches_numpy_and_leaves_undated_samples_nan() -> None:
 
 def test_plot_is_deterministic_labelled_and_legend_clear(tmp_path: Path) -> None:
     # matplotlib's own geometry: the legend's box does not meet the axes' box.
-    from strata13.compile import agemodel_plot
+    from strata13.compile.ages import plot as agemodel_plot
 
     ties = [Tie(0.0, 181.0, 0.3, "radiometric"), Tie(30.0, 184.5, 0.4, "chart boundary", "k"),
             Tie(30.0, 186.0, 0.3, "radiometric"), Tie(80.0, 190.0, 0.5, "radiometric")]
@@ -325,7 +326,7 @@ def test_plot_is_deterministic_labelled_and_legend_clear(tmp_path: Path) -> None
 
 def test_agemodel_imports_no_matplotlib() -> None:
     # DESIGN.md: heavy libraries are imported lazily.
-    code = ("import sys; import strata13.compile.agemodel, strata13.compile.agemodel_plot; "
+    code = ("import sys; import strata13.compile.ages.agemodel, strata13.compile.ages.plot; "
             "print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)

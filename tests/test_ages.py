@@ -22,8 +22,8 @@ import numpy as np
 import pytest
 from strata13.compile import api
 from strata13.compile.demo import SHEETS, TIES
-from strata13.compile.errors import DomainError
 
+from strata13.errors import DomainError
 from tests.conftest import tree_bytes
 
 # Chart values (ICS chart v2024/12; ICS 2012 chart)

@@ -7,7 +7,7 @@ import pyarrow as pa
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from strata13.compile.cleaning import CellContext, parse_coordinate, parse_numbers
+from strata13.compile.read.cleaning import CellContext, parse_coordinate, parse_numbers
 
 
 def parse(values: list[str | None], decimal: str = "auto"):

@@ -8,7 +8,6 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from strata13.compile.errors import DomainError, OptionError
 from strata13.compile.synthesis.curve import (
     average_replicates,
     bin_edges,
@@ -20,6 +19,8 @@ from strata13.compile.synthesis.curve import (
     sample_age_draws,
     weighted_quantile,
 )
+
+from strata13.errors import DomainError, OptionError
 
 GRID = np.linspace(198.0, 172.0, 53)
 

@@ -8,9 +8,10 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from strata13.compile.errors import DomainError
 from strata13.compile.synthesis import excursion
 from strata13.compile.synthesis.excursion import PER_SECTION_COLUMNS, Window, metrics
+
+from strata13.errors import DomainError
 
 # Closed form: a Gaussian departure A·exp(−x²/2σ²) falls to a fraction f of its peak at
 # x = ±σ·√(2 ln(1/f)); f = 0.1 gives ±2.146 σ.

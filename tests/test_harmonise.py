@@ -5,9 +5,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from strata13.compile.errors import DomainError
 from strata13.compile.harmonise import acid, anchors, oxygen, ratios, runs
 from strata13.schemas.materials import shipped_materials
+
+from strata13.errors import DomainError
 
 
 def value(material: str, value_set: str, field: str) -> float:

@@ -18,8 +18,8 @@ import numpy as np
 import pandas as pd
 import pytest
 from strata13.compile import api
-from strata13.compile.errors import ValidationFailed
 
+from strata13.errors import ValidationFailed
 from tests.conftest import run_cli as run
 from tests.conftest import tree_bytes
 
@@ -659,7 +659,7 @@ def test_big_delta_uses_harmonised_values_and_is_null_when_one_is_missing(
 
 def test_reharmonise_rescreens_so_stored_screens_match_a_fresh_evaluation(
         demo_store: Path, tmp_path: Path) -> None:
-    from strata13.compile.derive import Settings, rule_set
+    from strata13.compile.derive.engine import Settings, rule_set
     from strata13.compile.screening.evaluate import evaluate
 
     # One invented bulk sample whose δ18O (+20.605 ‰ VSMOW) lands either side of the

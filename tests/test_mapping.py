@@ -7,8 +7,9 @@ from pathlib import Path
 
 import pytest
 from strata13.compile import api
-from strata13.compile.errors import ConfigError
-from strata13.compile.mapping import load_mapping
+from strata13.compile.read.mapping import load_mapping
+
+from strata13.errors import ConfigError
 
 BASE = """
 [source]

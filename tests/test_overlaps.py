@@ -16,7 +16,6 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from strata13.compile.errors import ConfigError, DomainError, InputFileError, OptionError
 from strata13.compile.integrity.overlaps import (
     COLUMNS,
     EARTH_RADIUS_KM,
@@ -27,6 +26,8 @@ from strata13.compile.integrity.overlaps import (
     normalise_name,
     read_decisions,
 )
+
+from strata13.errors import ConfigError, DomainError, InputFileError, OptionError
 
 FOOT_M = 0.3048  # international foot, exact by definition (1959 agreement)
 

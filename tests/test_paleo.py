@@ -10,7 +10,6 @@ import numpy as np
 import pytest
 import shapely
 from scipy.spatial.transform import Rotation
-from strata13.compile.errors import ConfigError, InputFileError
 from strata13.compile.paleo import plates, rotations
 from strata13.compile.paleo.rotations import (
     BEYOND,
@@ -26,6 +25,8 @@ from strata13.compile.paleo.rotations import (
     reconstruct,
     relative_rotation,
 )
+
+from strata13.errors import ConfigError, InputFileError
 
 HEAD = "# model: test\n# frame: paleomagnetic\n"
 COLS = "plate_id,age_ma,pole_lat,pole_lon,angle_deg,relative_to,pole_sigma_deg,comment\n"

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import openpyxl
-from strata13.compile.readers import col_letter, read_table
+from strata13.compile.read.readers import col_letter, read_table
 
 
 def test_col_letters() -> None:

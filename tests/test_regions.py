@@ -9,8 +9,9 @@ import pytest
 import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from strata13.compile.errors import OptionError
-from strata13.compile.regions import from_geojson, parse_bbox
+from strata13.compile.query.regions import from_geojson, parse_bbox
+
+from strata13.errors import OptionError
 
 
 def sql_hits(region, lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
@@ -90,7 +91,7 @@ def test_ring_jumping_the_antimeridian_is_read_the_short_way() -> None:
 
 
 def test_named_regions_ignore_case_and_empty_is_refused() -> None:
-    from strata13.compile.regions import resolve_region
+    from strata13.compile.query.regions import resolve_region
 
     named = {"Northern Shelf": '{"type": "Polygon", "coordinates": [[[0,0],[1,0],[1,1],[0,0]]]}'}
     assert resolve_region("northern shelf", named).name == "Northern Shelf"

@@ -15,7 +15,6 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy import stats as sps
-from strata13.compile.errors import ConfigError
 from strata13.compile.screening import plots
 from strata13.compile.screening.evaluate import evaluate, summarise
 from strata13.compile.screening.rules import (
@@ -28,6 +27,8 @@ from strata13.compile.screening.rules import (
     parse_rules,
 )
 from strata13.compile.screening.stats import effective_n, lag1_autocorrelation
+
+from strata13.errors import ConfigError
 
 HEADER = '[ruleset]\nname = "t"\nversion = "1"\ndescription = "test rules"\n'
 COMMON = ('description = "Rule of thumb for a test."\ncitation = "common practice"\n'
@@ -484,7 +485,7 @@ def test_invalid_toml_names_line_and_rule(tmp_path: Path) -> None:
 
 
 def test_missing_rule_file_is_an_instruction_error(tmp_path: Path) -> None:
-    from strata13.compile.errors import InputFileError
+    from strata13.errors import InputFileError
 
     with pytest.raises(InputFileError):
         load_rules(tmp_path / "nope.toml")

@@ -17,14 +17,14 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from strata13.compile import api
-from strata13.compile.errors import (
+
+from strata13.errors import (
     DomainError,
     InstructionError,
     QueryRefused,
     RefusedError,
     ValidationFailed,
 )
-
 from tests.conftest import tree_bytes
 
 MAPPING = """
@@ -205,7 +205,8 @@ def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: P
 
 HOOK = """
 import contextlib, os, sys, time
-from strata13.compile import api, store as st
+from strata13.compile import api
+from strata13.compile.store import lake as st
 
 real_writer = st.Store.writer
 marker, when = sys.argv[3], sys.argv[4]
@@ -394,7 +395,7 @@ def test_a_store_from_before_a_new_column_reads_and_migrates(tmp_path: Path) -> 
 def test_stored_record_ids_are_the_documented_hash(tmp_path: Path) -> None:
     import hashlib
 
-    from strata13.compile.tables import record_id
+    from strata13.compile.check.tables import record_id
 
     store = api.init_store(tmp_path / "st")
     api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0")]))

@@ -10,9 +10,10 @@ import numpy as np
 import pandas as pd
 import pytest
 from matplotlib.image import imread
-from strata13.compile.errors import DomainError
 from strata13.compile.synthesis import excursion, figures
 from strata13.compile.synthesis.figures import DPI, MERGED_NOTE, PALETTE
+
+from strata13.errors import DomainError
 
 STAGES = [("Toarcian", 184.2, 174.7), ("Pliensbachian", 192.9, 184.2)]
 

@@ -13,8 +13,9 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from strata13.compile.errors import ConfigError, OptionError
 from strata13.schemas import timescales as ts
+
+from strata13.errors import ConfigError, OptionError
 
 V24, V23, V20, V12 = "ICS2024/12", "ICS2023/09", "ICS2020", "ICS2012"
 

@@ -8,7 +8,8 @@ needed for δ13C. Other minerals need their own published relation; none is ship
 from __future__ import annotations
 
 import numpy as np
-from strata13.compile.errors import DomainError
+
+from strata13.errors import DomainError
 
 KIM_2015_RANGE_C = (25.0, 75.0)
 

@@ -13,8 +13,9 @@ Applied only where the authors stated their anchors and the values they assumed:
 from __future__ import annotations
 
 import numpy as np
-from strata13.compile.errors import DomainError
 from strata13.compile.harmonise.steps import Step, largest_change
+
+from strata13.errors import DomainError
 
 
 def two_point(values: np.ndarray, assumed: tuple[float, float],

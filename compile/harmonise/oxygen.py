@@ -9,9 +9,10 @@ CO2-to-CO2) on the same footing; no acid-fractionation step is implied.
 from __future__ import annotations
 
 import numpy as np
-from strata13.compile.errors import OptionError
 from strata13.compile.harmonise.steps import Step, largest_change
 from strata13.schemas.materials import OxygenRelation, oxygen_relations
+
+from strata13.errors import OptionError
 
 DEFAULT = "IUPAC-2014"
 

@@ -12,8 +12,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from strata13.compile.errors import DomainError
 from strata13.compile.harmonise.steps import Step, largest_change
+
+from strata13.errors import DomainError
 
 SLOPE_TOLERANCE = 0.05  # |slope − 1| above this warns (common practice, configurable)
 

@@ -48,7 +48,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
-from strata13.compile.errors import ConfigError, DomainError, OptionError
+
+from strata13.errors import ConfigError, DomainError, OptionError
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -521,7 +522,7 @@ def read_decisions(path: str | Path) -> list[Decision]:
     repeated with the same decision is kept once. Whether the ids exist is for the caller
     to check against the store.
     """
-    from strata13.compile.inputs import read_text
+    from strata13.compile.read.inputs import read_text
 
     p = Path(path)
     text = read_text(p, "the decisions file", "Check the path; the file is a CSV with the "

@@ -13,11 +13,11 @@ import datetime as dt
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import DomainError
+from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     import pandas as pd
-    from strata13.compile.store import Store
+    from strata13.compile.store.lake import Store
 
 
 def _declared(con: Any) -> dict[str, set[str]]:
@@ -54,7 +54,7 @@ def confirm(store: Store, path: Path) -> tuple[int | None, int, int]:
     """Store a decisions file (record_a, record_b, decision, note) in one commit.
     Returns (version, confirmed, rejected)."""
     import pyarrow as pa
-    from strata13.compile.derive import Settings
+    from strata13.compile.derive.engine import Settings
     from strata13.compile.ingest import _insert
     from strata13.compile.integrity.overlaps import duplicates_to_drop, read_decisions
     from strata13.schemas.records import DUPLICATES, arrow_schema

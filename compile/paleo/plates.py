@@ -28,8 +28,9 @@ from typing import Any, NamedTuple
 
 import numpy as np
 import shapely
-from strata13.compile.errors import ConfigError
-from strata13.compile.regions import polygon_shape
+from strata13.compile.query.regions import polygon_shape
+
+from strata13.errors import ConfigError
 
 PLATE_KEY = "plate_id"
 UNASSIGNED = -1
@@ -52,7 +53,7 @@ class Assignment(NamedTuple):
 
 def load_polygons(path: Path | str) -> PlatePolygons:
     """Read and validate a plate-polygon GeoJSON; ConfigError names the feature and fix."""
-    from strata13.compile.inputs import read_text
+    from strata13.compile.read.inputs import read_text
 
     path = Path(path)
     text = read_text(path, "plate polygons file", "Check the POLYGONS argument (GeoJSON).")

@@ -58,7 +58,8 @@ from typing import NamedTuple
 
 import numpy as np
 from scipy.spatial.transform import Rotation, Slerp
-from strata13.compile.errors import ConfigError
+
+from strata13.errors import ConfigError
 
 FRAMES = ("paleomagnetic", "mantle", "other")
 REQUIRED = ("plate_id", "age_ma", "pole_lat", "pole_lon", "angle_deg", "relative_to")
@@ -153,7 +154,7 @@ def euler_rotation(pole_lat: float, pole_lon: float, angle_deg: float) -> Rotati
 
 def load_model(path: Path | str) -> RotationModel:
     """Read and validate a rotation-model CSV; ConfigError names the line and the fix."""
-    from strata13.compile.inputs import read_text
+    from strata13.compile.read.inputs import read_text
 
     path = Path(path)
     text = read_text(path, "rotation model", "Check the MODEL argument (a CSV file).")

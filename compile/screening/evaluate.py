@@ -30,7 +30,6 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
-from strata13.compile.errors import DomainError
 from strata13.compile.screening.rules import (
     NUMERIC_FIELDS,
     AllowedValues,
@@ -40,6 +39,8 @@ from strata13.compile.screening.rules import (
     RuleSet,
     ValueLimit,
 )
+
+from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     import pyarrow as pa

@@ -33,9 +33,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from strata13.compile.errors import ConfigError
 from strata13.schemas.fields import BY_NAME, CONC_FIELDS, DELTA_FIELDS, FIELDS, UNITS
 from strata13.schemas.vocabularies import vocabulary
+
+from strata13.errors import ConfigError
 
 RULE_NAME = re.compile(r"^[a-z0-9][a-z0-9-]{0,62}[a-z0-9]$")
 KINDS = ("value-limit", "ratio-limit", "covariance", "allowed-values")
@@ -267,7 +268,7 @@ def default_rules_path() -> Path:
 
 def load_rules(path: Path | str | None = None) -> RuleSet:
     """Read and check a rule file (None: the shipped default). Raises ConfigError (exit 2)."""
-    from strata13.compile.inputs import read_text
+    from strata13.compile.read.inputs import read_text
 
     p = Path(path) if path is not None else default_rules_path()
     return parse_rules(read_text(p, "rule file", "Check the --rules path (a .toml file)."),

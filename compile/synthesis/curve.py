@@ -52,7 +52,8 @@ from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
-from strata13.compile.errors import DomainError, OptionError
+
+from strata13.errors import DomainError, OptionError
 
 if TYPE_CHECKING:
     import pandas as pd

@@ -51,7 +51,8 @@ from typing import Any, NamedTuple
 
 import numpy as np
 import pandas as pd
-from strata13.compile.errors import DomainError
+
+from strata13.errors import DomainError
 
 BASELINE_FRACTION = 0.20  # default window: the oldest 20 % of the samples …
 MIN_BASELINE = 3  # … and never fewer than three

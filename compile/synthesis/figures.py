@@ -24,8 +24,9 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
-from strata13.compile.errors import DomainError
 from strata13.compile.synthesis.excursion import _value_column
+
+from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes

@@ -17,12 +17,12 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import DomainError, OptionError
+from strata13.errors import DomainError, OptionError
 
 if TYPE_CHECKING:
     import pandas as pd
-    from strata13.compile.query import Filters
-    from strata13.compile.store import Store
+    from strata13.compile.query.filters import Filters
+    from strata13.compile.store.lake import Store
 
 BY = ("region", "paleolat-band", "source", "setting", "component")
 ISOTOPES = {"carb": "d13c_carb", "org": "d13c_org"}
@@ -89,7 +89,7 @@ class Samples:
 def _region_names(store: Store, lon: Any, lat: Any) -> Any:
     """The name of the store's region each point falls in ('outside' where none)."""
     import numpy as np
-    from strata13.compile.regions import resolve_region
+    from strata13.compile.query.regions import resolve_region
 
     con, _ = store.reader()
     try:
@@ -112,7 +112,7 @@ def samples_for(store: Store, filters: Filters, req: CurveRequest, *,
     """The filtered records, one value per sample, each with its group label."""
     import numpy as np
     import pandas as pd
-    from strata13.compile.query import run
+    from strata13.compile.query.filters import run
     from strata13.compile.synthesis.curve import average_replicates
     from strata13.compile.synthesis.figures import CARB_LABEL, ORG_LABEL
 

@@ -15,8 +15,9 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
-from strata13.compile.agemodel import BASES, EXTRAPOLATED, POSITION_KINDS, Summary, Tie
-from strata13.compile.errors import DomainError
+from strata13.compile.ages.agemodel import BASES, EXTRAPOLATED, POSITION_KINDS, Summary, Tie
+
+from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure

@@ -24,8 +24,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import ConfigError, InputFileError
-from strata13.compile.report import Issue
+from strata13.compile.check.report import Issue
+
+from strata13.errors import ConfigError, InputFileError
 
 if TYPE_CHECKING:
     import numpy as np

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.readers import RawTable
-from strata13.compile.report import Issue, Report
+from strata13.compile.check.report import Issue, Report
+from strata13.compile.read.readers import RawTable
 from strata13.schemas.fields import BY_NAME, CONC_FIELDS, FIELDS
 
 if TYPE_CHECKING:

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from strata13.compile.errors import ConfigError, InputFileError
+from strata13.errors import ConfigError, InputFileError
 
 
 def read_text(path: Path | str, what: str, hint: str) -> str:

@@ -13,19 +13,15 @@ import json
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.checks import (
+from strata13.compile.check.checks import (
     RowErrors,
     interval_order,
     plausibility,
     schema_check,
     superposition,
 )
-from strata13.compile.cleaning import CellContext, parse_coordinate, parse_numbers
-from strata13.compile.errors import ConfigError
-from strata13.compile.mapping import ColumnMap, Mapping, TableSpec
-from strata13.compile.readers import RawTable, norm_header, read_table, strip_unit
-from strata13.compile.report import Issue, Report
-from strata13.compile.tables import (
+from strata13.compile.check.report import Issue, Report
+from strata13.compile.check.tables import (
     complete,
     const,
     localities_table,
@@ -35,6 +31,9 @@ from strata13.compile.tables import (
     sections_table,
     to_arrow,
 )
+from strata13.compile.read.cleaning import CellContext, parse_coordinate, parse_numbers
+from strata13.compile.read.mapping import ColumnMap, Mapping, TableSpec
+from strata13.compile.read.readers import RawTable, norm_header, read_table, strip_unit
 from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
@@ -45,6 +44,8 @@ from strata13.schemas.fields import (
 )
 from strata13.schemas.records import ANALYSES
 from strata13.schemas.vocabularies import vocabulary
+
+from strata13.errors import ConfigError
 
 if TYPE_CHECKING:
     import numpy as np
@@ -523,7 +524,7 @@ def _coord_column(text: pa.ChunkedArray, axis: str, rows: RowErrors, letter: str
     import numpy as np
     import pyarrow as pa
     import pyarrow.compute as pc
-    from strata13.compile.cleaning import NUMBER_PATTERN
+    from strata13.compile.read.cleaning import NUMBER_PATTERN
 
     col = pc.utf8_trim_whitespace(text.combine_chunks().cast(pa.string()))
     plain = pc.fill_null(pc.match_substring_regex(col, NUMBER_PATTERN), False)

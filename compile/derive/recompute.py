@@ -14,9 +14,9 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from strata13.compile import interrupts
-from strata13.compile.derive import DERIVED_COLUMNS, Settings, derive
+from strata13.compile.derive.engine import DERIVED_COLUMNS, Settings, derive
 from strata13.compile.ingest import replace_derived_tables
-from strata13.compile.store import Store
+from strata13.compile.store.lake import Store
 
 COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "age_sigma_ma", "paleolat",
             "paleolon")

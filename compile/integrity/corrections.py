@@ -18,12 +18,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import ConfigError, DomainError, OptionError
 from strata13.schemas.fields import BY_NAME, DELTA_FIELDS
+
+from strata13.errors import ConfigError, DomainError, OptionError
 
 if TYPE_CHECKING:
     import pyarrow as pa
-    from strata13.compile.store import Store
+    from strata13.compile.store.lake import Store
 
 # fields a correction may change: δ values, positions, ages, concentrations, material terms
 CORRECTABLE = (*DELTA_FIELDS, "position", "top", "base", "age", "age_sigma", "mn", "sr", "fe",
@@ -97,7 +98,7 @@ def check(c: Correction, where: str) -> Any:
 
 def read_file(path: Path) -> list[Correction]:
     """A CSV of corrections: header record_id,field,value,why (one per line)."""
-    from strata13.compile.inputs import read_text
+    from strata13.compile.read.inputs import read_text
 
     text = read_text(path, "corrections file", "Check --file.")
     reader = csv.DictReader(text.splitlines())
@@ -132,7 +133,7 @@ def apply(table: pa.Table, corrections: pa.Table | None
 
     import pyarrow as pa
     import pyarrow.compute as pc
-    from strata13.compile.derive import set_column
+    from strata13.compile.derive.engine import set_column
 
     delta: dict[str, dict[str, tuple[float, str, float | None]]] = {}
     if corrections is None or corrections.num_rows == 0 or table.num_rows == 0:
@@ -172,7 +173,7 @@ class CorrectResult:
 
 def correct(store: Store, items: list[Correction]) -> CorrectResult:
     """Store corrections and re-derive the sources they touch, in one commit."""
-    from strata13.compile.derive import Settings
+    from strata13.compile.derive.engine import Settings
     from strata13.compile.ingest import rederive_sources
     from strata13.schemas.records import CORRECTIONS, arrow_schema
 

@@ -16,7 +16,8 @@ from dataclasses import dataclass
 from typing import Any
 
 from strata13.compile import interrupts
-from strata13.compile.errors import OptionError, QueryRefused
+
+from strata13.errors import OptionError, QueryRefused
 
 VIEWS = ("records", "sources", "localities", "sections", "samples", "quarantine", "regions",
          "chains", "settings", "commits", "runs", "age_ties", "age_draws", "screen_results",

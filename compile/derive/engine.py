@@ -19,8 +19,9 @@ import json
 from dataclasses import asdict, dataclass, field
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import DomainError
 from strata13.schemas.fields import DELTA_FIELDS
+
+from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     import pyarrow as pa
@@ -87,13 +88,13 @@ def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
     ``Derived.conflicts`` lists it.
     """
     import pyarrow as pa
-    from strata13.compile import ages
+    from strata13.compile.derive import ages
     from strata13.schemas.records import RUN_QC, arrow_schema
 
     chains: dict[str, str] = {}
     conflicts: list[str] = []
     qc: list[dict[str, Any]] = []
-    from strata13.compile.corrections import apply
+    from strata13.compile.integrity.corrections import apply
 
     records, fixes = apply(records, corrections)
     table = _harmonise(records, chains, settings, strict, runs, qc, fixes)

@@ -12,10 +12,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import DomainError, OptionError
+from strata13.errors import DomainError, OptionError
 
 if TYPE_CHECKING:
-    from strata13.compile.store import Store
+    from strata13.compile.store.lake import Store
 
 STAGE_COLUMNS = ["name", "rank", "parent", "base_ma", "top_ma", "uncertainty_ma", "confidence",
                  "sigma_ma", "approximate", "note"]
@@ -134,7 +134,7 @@ def find_section(con: Any, name: str) -> tuple[str, str]:
 def section_model(store: Store, name: str) -> SectionModel:
     """One section's ties (as given and on the store's chart) and its stored draws."""
     import numpy as np
-    from strata13.compile.ages import ties_on_scale
+    from strata13.compile.derive.ages import ties_on_scale
 
     con, _ = store.reader()
     try:
@@ -169,7 +169,7 @@ def section_model(store: Store, name: str) -> SectionModel:
 
 def _no_model_reason(model: SectionModel) -> str:
     """Why a section has no age model: too few ties, or ties that contradict each other."""
-    from strata13.compile import agemodel
+    from strata13.compile.ages import agemodel
 
     if len(model.ties) < 2:
         return f"{len(model.ties)} tie(s); two or more are needed"
@@ -181,7 +181,7 @@ def _no_model_reason(model: SectionModel) -> str:
 
 
 def _model_tie(t: dict[str, Any]) -> Any:
-    from strata13.compile import agemodel
+    from strata13.compile.ages import agemodel
 
     return agemodel.Tie(position_m=t["position_m"], age_ma=t["age"], age_sigma_ma=t["sigma"],
                         basis=t["basis"], boundary_key=t["shared_key"],
@@ -191,8 +191,8 @@ def _model_tie(t: dict[str, Any]) -> Any:
 def plot_model(model: SectionModel, path: Path) -> Path:
     """The section's age–position figure (ties, median, 95 % band) as PNG."""
     import numpy as np
-    from strata13.compile import agemodel
-    from strata13.compile.agemodel_plot import plot_section
+    from strata13.compile.ages.plot import plot_section
+    from strata13.compile.ages import agemodel
 
     if model.draws.size == 0:
         raise DomainError(f"section {model.source_id}/{model.section_id} has no age model "

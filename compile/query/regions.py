@@ -17,7 +17,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import ConfigError, OptionError
+from strata13.errors import ConfigError, OptionError
 
 if TYPE_CHECKING:
     import numpy as np

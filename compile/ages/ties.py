@@ -18,9 +18,10 @@ import csv
 from pathlib import Path
 from typing import Any
 
-from strata13.compile.errors import ConfigError
 from strata13.schemas.fields import UNITS
 from strata13.schemas.vocabularies import vocabulary
+
+from strata13.errors import ConfigError
 
 TIE_KEYS = {"id", "section", "position", "unit", "position_uncertainty", "age",
             "uncertainty", "confidence", "basis", "boundary", "chart", "anchor", "note"}
@@ -51,7 +52,7 @@ def _num(value: Any, key: str, where: str, path: Path, *, positive: bool = False
 def parse_tie(spec: dict[str, Any], where: str, path: Path, source_id: str,
               default_chart: str | None) -> dict[str, Any]:
     """One tie block or CSV row -> one stored tie row (metres, Ma, 1σ)."""
-    from strata13.compile.mapping import _did_you_mean
+    from strata13.compile.read.mapping import _did_you_mean
 
     for key in spec:
         if key not in TIE_KEYS:
@@ -131,14 +132,14 @@ def read_ties(path: Path, blocks: Any, table_file: Path | None, source_id: str,
     ties = [parse_tie(b, f"[[ties]] block {i + 1}", path, source_id, default_chart)
             for i, b in enumerate(blocks)]
     if table_file is not None:
-        from strata13.compile.inputs import read_text
+        from strata13.compile.read.inputs import read_text
 
         text = read_text(table_file, f"{path.name}: [ties_table] file",
                          "Check the file name, relative to the mapping file.")
         reader = csv.DictReader(text.splitlines())
         unknown = [h for h in reader.fieldnames or [] if h and h.strip() not in TIE_KEYS]
         if unknown:
-            from strata13.compile.mapping import _did_you_mean
+            from strata13.compile.read.mapping import _did_you_mean
 
             raise ConfigError(f"{table_file.name}: unknown column {unknown[0]!r}."
                               + _did_you_mean(unknown[0], TIE_KEYS),

@@ -58,7 +58,8 @@ from dataclasses import dataclass
 from typing import Any, NamedTuple
 
 import numpy as np
-from strata13.compile.errors import DomainError, OptionError
+
+from strata13.errors import DomainError, OptionError
 
 BASES = ("chart boundary", "biozone boundary", "radiometric", "astrochronologic",
          "correlation")

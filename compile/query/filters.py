@@ -12,8 +12,9 @@ import re
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import OptionError
-from strata13.compile.regions import Region
+from strata13.compile.query.regions import Region
+
+from strata13.errors import OptionError
 
 if TYPE_CHECKING:
     import pyarrow as pa

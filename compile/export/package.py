@@ -21,10 +21,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import OptionError
-from strata13.compile.query import Filters, run
+from strata13.compile.query.filters import Filters, run
 from strata13.schemas.fields import SCHEMA_VERSION
 from strata13.schemas.records import ANALYSES, RECORDS_COLUMNS, arrow_schema
+
+from strata13.errors import OptionError
 
 if TYPE_CHECKING:
     import pyarrow as pa

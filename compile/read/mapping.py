@@ -16,7 +16,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from strata13.compile.errors import ConfigError, InputFileError
 from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
@@ -27,6 +26,8 @@ from strata13.schemas.fields import (
     field_names,
 )
 from strata13.schemas.vocabularies import vocabulary
+
+from strata13.errors import ConfigError, InputFileError
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {"source", "table", "columns", "constants", "sections", "localities",
@@ -260,7 +261,7 @@ def load_mapping(path: Path) -> Mapping:
     if not columns:
         raise ConfigError(f"{path.name}: [columns] is empty.", "Map at least one column.")
     table.columns = [_column(h, spec, path) for h, spec in columns.items()]
-    from strata13.compile.readers import norm_header
+    from strata13.compile.read.readers import norm_header
 
     by_norm: dict[str, str] = {}
     for c in table.columns:
@@ -473,7 +474,7 @@ def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
 
 def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any]]:
     """The mapping's age ties (``[[ties]]`` blocks and a ``[ties_table]`` CSV)."""
-    from strata13.compile.ties import read_ties
+    from strata13.compile.ages.ties import read_ties
 
     table_file = None
     if "ties_table" in doc:

@@ -21,7 +21,7 @@ import re
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
-from strata13.compile.report import Issue
+from strata13.compile.check.report import Issue
 
 if TYPE_CHECKING:
     import numpy as np

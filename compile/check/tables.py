@@ -133,7 +133,7 @@ def row_hashes(table: pa.Table) -> pa.Array:
     import pyarrow as pa
     import pyarrow.compute as pc
     from pandas.util import hash_array
-    from strata13.compile.derive import DERIVED_COLUMNS
+    from strata13.compile.derive.engine import DERIVED_COLUMNS
 
     n = table.num_rows
     h = np.zeros(n, dtype=np.uint64)

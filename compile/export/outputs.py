@@ -10,7 +10,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 from pathlib import Path
 
-from strata13.compile.errors import OptionError
+from strata13.errors import OptionError
 
 
 def _inside(path: Path, folder: Path) -> bool:

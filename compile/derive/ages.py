@@ -22,7 +22,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import DomainError
+from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     import numpy as np
@@ -120,7 +120,7 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[s
     conflicts = [] if conflicts is None else conflicts
     import numpy as np
     import pyarrow as pa
-    from strata13.compile.derive import chain_id, set_column
+    from strata13.compile.derive.engine import chain_id, set_column
     from strata13.schemas.records import AGE_DRAWS, arrow_schema
 
     n = table.num_rows
@@ -162,8 +162,9 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[s
 def _stage_only(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None:
     """Records with a stage name and no age: the stage's midpoint, uniform σ, flagged."""
     import numpy as np
-    from strata13.compile.errors import Strata13Error
     from strata13.schemas import timescales
+
+    from strata13.errors import Strata13Error
 
     stages = np.asarray(table.column("stage_reported").to_numpy(zero_copy_only=False), object)
     has_age = ~np.isnan(table.column("age_reported_ma").to_numpy(zero_copy_only=False)
@@ -223,7 +224,7 @@ def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
     import json
 
     import numpy as np
-    from strata13.compile import agemodel
+    from strata13.compile.ages import agemodel
 
     if ties is None or ties.num_rows == 0 or table.num_rows == 0:
         return []

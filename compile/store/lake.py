@@ -25,9 +25,10 @@ from functools import cache
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.errors import NotAStoreError, StoreError
 from strata13.schemas.fields import SCHEMA_VERSION
 from strata13.schemas.records import RECORDS_COLUMNS, TABLES
+
+from strata13.errors import NotAStoreError, StoreError
 
 if TYPE_CHECKING:
     import duckdb

@@ -1,0 +1,1 @@
+"""Chronology: time-scale charts, age ties, whole-section Monte Carlo age models."""

@@ -1,0 +1,1 @@
+"""Writing outputs: the export package and where commands may write."""

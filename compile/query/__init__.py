@@ -1,0 +1,1 @@
+"""Reading the store: filters turned into SQL, regions, the guarded `sql` command."""

@@ -1,0 +1,1 @@
+"""Reading a sheet: cells with coordinates, cleaning of number text, the mapping file."""

@@ -1,0 +1,1 @@
+"""The store: a DuckLake lakehouse in one folder; every write goes through it."""
