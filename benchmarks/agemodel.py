@@ -62,18 +62,27 @@ def make_sections(n_sections: int, n_samples: int, seed: int = SEED) -> list[Sec
         def pos(z: float, thick: float = thick, kind: str = kind) -> float:
             return float(z if kind == "depth" else thick - z)
 
-        ties = [agemodel.Tie(pos((a - young) / (old - young) * thick), a, sig, "chart boundary",
-                             key) for key, (a, sig) in BOUNDARIES.items() if young < a < old]
+        ties = [
+            agemodel.Tie(pos((a - young) / (old - young) * thick), a, sig, "chart boundary", key)
+            for key, (a, sig) in BOUNDARIES.items()
+            if young < a < old
+        ]
         n_dates = max(2, int(rng.integers(4, 9)) - len(ties))
         z = np.concatenate([[0.0, thick], rng.uniform(0.05, 0.95, n_dates - 2) * thick])
-        ties += [agemodel.Tie(pos(zi), float(young + (old - young) * zi / thick),
-                              float(rng.uniform(0.05, 0.5)), "radiometric") for zi in z]
+        ties += [
+            agemodel.Tie(
+                pos(zi),
+                float(young + (old - young) * zi / thick),
+                float(rng.uniform(0.05, 0.5)),
+                "radiometric",
+            )
+            for zi in z
+        ]
         ties = agemodel.validate_ties(ties, kind)
         if s % 10 == 5:  # a hiatus: a second, older tie at an interior level
             k = len(ties) // 2
             gap = (ties[k + 1].age_ma - ties[k].age_ma) / 2
-            ties.append(agemodel.Tie(ties[k].position_m, ties[k].age_ma + gap, 0.1,
-                                     "radiometric"))
+            ties.append(agemodel.Tie(ties[k].position_m, ties[k].age_ma + gap, 0.1, "radiometric"))
         lo, hi = min(t.position_m for t in ties), max(t.position_m for t in ties)
         positions = np.sort(rng.uniform(lo, hi, per))
         out.append(Section(ties, positions, kind, agemodel.section_seed(f"bench/{s}", seed)))
@@ -85,8 +94,9 @@ def run_ours(sections: list[Section], n_draws: int) -> float:
     shared = agemodel.shared_offsets(BOUNDARIES, n_draws, SEED)
     total = 0.0
     for sec in sections:
-        draws, _ = agemodel.draw_section(sec.positions, sec.ties, sec.kind, n_draws, sec.seed,
-                                         shared)
+        draws, _ = agemodel.draw_section(
+            sec.positions, sec.ties, sec.kind, n_draws, sec.seed, shared
+        )
         total += float(draws[-1, -1])
     return total
 
@@ -122,32 +132,49 @@ def _interleaved(fns: list[Any], repeat: int) -> list[float]:
     return [statistics.median(b) for b in times]
 
 
-def measure(n_draws: int = 1000, n_samples: int = 100_000, n_sections: int = 200,
-            repeat: int = 3) -> dict[str, Any]:
+def measure(
+    n_draws: int = 1000, n_samples: int = 100_000, n_sections: int = 200, repeat: int = 3
+) -> dict[str, Any]:
     """Time ours and the baseline (median of ``repeat`` interleaved runs after a warm-up) and
     trace the memory of ours."""
     sections = make_sections(n_sections, n_samples)
     xs, xp, fp = baseline_inputs(sections)
     run_ours(sections[:5], min(n_draws, 50))  # warm-up: imports, scipy.special
     run_baseline(xs, xp, fp, 5)
-    ours, base = _interleaved([lambda: run_ours(sections, n_draws),
-                               lambda: run_baseline(xs, xp, fp, n_draws)], repeat)
+    ours, base = _interleaved(
+        [lambda: run_ours(sections, n_draws), lambda: run_baseline(xs, xp, fp, n_draws)], repeat
+    )
     tracemalloc.start()
     run_ours(sections, n_draws)
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
     t = time.perf_counter()
     one = sections[0]
-    draws, _ = agemodel.draw_section(one.positions, one.ties, one.kind, n_draws, one.seed,
-                                     agemodel.shared_offsets(BOUNDARIES, n_draws, SEED))
+    draws, _ = agemodel.draw_section(
+        one.positions,
+        one.ties,
+        one.kind,
+        n_draws,
+        one.seed,
+        agemodel.shared_offsets(BOUNDARIES, n_draws, SEED),
+    )
     agemodel.summarise(draws)
     summarise_s = (time.perf_counter() - t) * n_sections
     n_ties = sum(len(s.ties) for s in sections)
-    return {"ours_s": ours, "baseline_s": base, "ratio": ours / base, "peak_bytes": peak,
-            "full_bytes": n_draws * len(xs) * 8, "maxrss_kb": resource.getrusage(
-                resource.RUSAGE_SELF).ru_maxrss, "n_draws": n_draws, "n_samples": len(xs),
-            "n_sections": n_sections, "n_ties": n_ties, "summarise_s_est": summarise_s,
-            "repeat": repeat}
+    return {
+        "ours_s": ours,
+        "baseline_s": base,
+        "ratio": ours / base,
+        "peak_bytes": peak,
+        "full_bytes": n_draws * len(xs) * 8,
+        "maxrss_kb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss,
+        "n_draws": n_draws,
+        "n_samples": len(xs),
+        "n_sections": n_sections,
+        "n_ties": n_ties,
+        "summarise_s_est": summarise_s,
+        "repeat": repeat,
+    }
 
 
 def rows(res: dict[str, Any]) -> list[tuple[str, ...]]:
@@ -156,10 +183,24 @@ def rows(res: dict[str, Any]) -> list[tuple[str, ...]]:
     ok = res["ratio"] <= RATIO_TARGET
     mem_ok = res["peak_bytes"] <= 0.1 * res["full_bytes"]
     return [
-        ("age model draws", size, f"{res['ours_s']:.2f} s", f"{res['baseline_s']:.2f} s",
-         f"{res['ratio']:.1f}x", f"≤ {RATIO_TARGET:g}x", "PASS" if ok else "FAIL"),
-        ("age model peak memory (tracemalloc)", size, f"{res['peak_bytes'] / 2**20:.0f} MB",
-         "—", "—", f"≤ {0.1 * res['full_bytes'] / 2**20:.0f} MB", "PASS" if mem_ok else "FAIL"),
+        (
+            "age model draws",
+            size,
+            f"{res['ours_s']:.2f} s",
+            f"{res['baseline_s']:.2f} s",
+            f"{res['ratio']:.1f}x",
+            f"≤ {RATIO_TARGET:g}x",
+            "PASS" if ok else "FAIL",
+        ),
+        (
+            "age model peak memory (tracemalloc)",
+            size,
+            f"{res['peak_bytes'] / 2**20:.0f} MB",
+            "—",
+            "—",
+            f"≤ {0.1 * res['full_bytes'] / 2**20:.0f} MB",
+            "PASS" if mem_ok else "FAIL",
+        ),
     ]
 
 

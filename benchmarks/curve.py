@@ -38,8 +38,9 @@ SPAN = 0.1
 GRID = np.linspace(198.0, 172.0, 201)  # Ma, every 0.13 Myr
 
 
-def make_samples(n_sections: int, n_samples: int, n_draws: int, seed: int = SEED
-                 ) -> tuple[pd.DataFrame, dict[tuple[str, str], tuple[np.ndarray, np.ndarray]]]:
+def make_samples(
+    n_sections: int, n_samples: int, n_draws: int, seed: int = SEED
+) -> tuple[pd.DataFrame, dict[tuple[str, str], tuple[np.ndarray, np.ndarray]]]:
     """Seeded synthetic samples (one row per sample) and per-section age-model draws."""
     rng = np.random.default_rng(seed)
     per = n_samples // n_sections
@@ -50,18 +51,32 @@ def make_samples(n_sections: int, n_samples: int, n_draws: int, seed: int = SEED
         young = rng.uniform(172.0, 198.0 - length)
         pos = np.sort(rng.uniform(0.0, 100.0, per))
         age = young + length * (1.0 - pos / 100.0)  # heights: older below
-        val = (0.05 * (age - 185.0) + 2.5 * np.exp(-((age - 185.0) / 3.0) ** 2)
-               + rng.normal(0.0, 0.5) + rng.normal(0.0, 0.3, per))
+        val = (
+            0.05 * (age - 185.0)
+            + 2.5 * np.exp(-(((age - 185.0) / 3.0) ** 2))
+            + rng.normal(0.0, 0.5)
+            + rng.normal(0.0, 0.3, per)
+        )
         kind = "age model" if s % 10 < 6 else "reported" if s % 10 < 9 else "stage only"
         sigma = {"age model": 0.0, "reported": rng.uniform(0.3, 1.0), "stage only": 1.5}[kind]
         key = (f"src-{s // 4:03d}", f"sec-{s:03d}")
         if kind == "age model":
             own = rng.normal(0.0, 0.2, (n_draws, 1))
             draws[key] = (pos, (age[None, :] + shared[:, None] + own).astype(np.float32))
-        frames.append(pd.DataFrame({
-            "source_id": key[0], "section_id": key[1], "sample_id": [f"s{i}" for i in range(per)],
-            "position_m": pos, "age_ma": age, "age_sigma_ma": sigma, "age_basis": kind,
-            "value": val}))
+        frames.append(
+            pd.DataFrame(
+                {
+                    "source_id": key[0],
+                    "section_id": key[1],
+                    "sample_id": [f"s{i}" for i in range(per)],
+                    "position_m": pos,
+                    "age_ma": age,
+                    "age_sigma_ma": sigma,
+                    "age_basis": kind,
+                    "value": val,
+                }
+            )
+        )
     return pd.concat(frames, ignore_index=True), draws
 
 
@@ -76,8 +91,9 @@ def _interleaved(fns: list[Any], repeat: int) -> list[float]:
     return [statistics.median(b) for b in times]
 
 
-def measure(boots: int = 200, n_samples: int = 100_000, n_sections: int = 200,
-            repeat: int = 3) -> dict[str, Any]:
+def measure(
+    boots: int = 200, n_samples: int = 100_000, n_sections: int = 200, repeat: int = 3
+) -> dict[str, Any]:
     """Time both cases of ours and the baseline (median of ``repeat`` interleaved runs)."""
     samples, sec_draws = make_samples(n_sections, n_samples, boots)
     ages = curve.sample_age_draws(samples, boots, SEED, sec_draws)
@@ -103,25 +119,43 @@ def measure(boots: int = 200, n_samples: int = 100_000, n_sections: int = 200,
     curve.curve(samples, GRID, SPAN, boots=5, seed=SEED, age_draws=ages)
     t_ours, t_aged, t_base = _interleaved([ours, ours_aged, baseline], repeat)
     out = ours_aged()
-    return {"ours_s": t_ours, "aged_s": t_aged, "baseline_s": t_base, "boots": boots,
-            "n_samples": len(samples), "n_sections": n_sections, "repeat": repeat,
-            "window": out.attrs["window"], "grid": GRID.size, "fit_gap": gap,
-            "band_shown": int(out["band_shown"].sum()),
-            "width": float(np.nanmedian(out["hi"] - out["lo"])),
-            "width_plain": float(np.nanmedian((r := ours())["hi"] - r["lo"]))}
+    return {
+        "ours_s": t_ours,
+        "aged_s": t_aged,
+        "baseline_s": t_base,
+        "boots": boots,
+        "n_samples": len(samples),
+        "n_sections": n_sections,
+        "repeat": repeat,
+        "window": out.attrs["window"],
+        "grid": GRID.size,
+        "fit_gap": gap,
+        "band_shown": int(out["band_shown"].sum()),
+        "width": float(np.nanmedian(out["hi"] - out["lo"])),
+        "width_plain": float(np.nanmedian((r := ours())["hi"] - r["lo"])),
+    }
 
 
 def rows(res: dict[str, Any]) -> list[tuple[str, ...]]:
     """The table rows: (case, size, ours, baseline, ratio, target, verdict)."""
-    size = (f"{res['boots']} draws x {res['n_samples']:,} samples, {res['n_sections']} "
-            "sections")
+    size = f"{res['boots']} draws x {res['n_samples']:,} samples, {res['n_sections']} sections"
     out = []
-    for case, key in (("curve, section bootstrap", "ours_s"),
-                      ("curve, section bootstrap + age draws", "aged_s")):
+    for case, key in (
+        ("curve, section bootstrap", "ours_s"),
+        ("curve, section bootstrap + age draws", "aged_s"),
+    ):
         ratio = res[key] / res["baseline_s"]
-        out.append((case, size, f"{res[key]:.2f} s", f"{res['baseline_s']:.2f} s",
-                    f"{ratio:.2f}x", f"≤ {RATIO_TARGET:g}x",
-                    "PASS" if ratio <= RATIO_TARGET else "FAIL"))
+        out.append(
+            (
+                case,
+                size,
+                f"{res[key]:.2f} s",
+                f"{res['baseline_s']:.2f} s",
+                f"{ratio:.2f}x",
+                f"≤ {RATIO_TARGET:g}x",
+                "PASS" if ratio <= RATIO_TARGET else "FAIL",
+            )
+        )
     return out
 
 

@@ -45,8 +45,13 @@ STUDIED_SHARE = 0.15  # query store: share of sources inside STUDIED_BOX
 STUDIED_BOX = (-20.0, 15.0, 45.0, 65.0)  # west, south, east, north (degrees)
 
 # Invented vocabulary weights: every term is in the shipped vocabularies.
-LITHOLOGIES = (("limestone", 0.55), ("marl", 0.2), ("dolostone", 0.1), ("chalk", 0.1),
-               ("calcareous shale", 0.05))
+LITHOLOGIES = (
+    ("limestone", 0.55),
+    ("marl", 0.2),
+    ("dolostone", 0.1),
+    ("chalk", 0.1),
+    ("calcareous shale", 0.05),
+)
 COMPONENTS = (("bulk", 0.7), ("micrite", 0.2), ("brachiopod", 0.07), ("belemnite", 0.03))
 NOTES = (("", 0.96), ("re-run", 0.025), ("vein avoided", 0.01), ("weathered surface", 0.005))
 
@@ -147,8 +152,9 @@ def _hex_ids(index: np.ndarray, width: int, salt: int) -> pa.Array:
 # ------------------------------------------------------------------ the ingest sheet
 
 
-def _sheet_table(n_rows: int, seed: int, prefix: str) -> tuple[pa.Table, list[dict[str, Any]],
-                                                                 list[dict[str, Any]]]:
+def _sheet_table(
+    n_rows: int, seed: int, prefix: str
+) -> tuple[pa.Table, list[dict[str, Any]], list[dict[str, Any]]]:
     """The sheet as an Arrow table of cell texts, plus its localities and sections."""
     import numpy as np
     import pyarrow as pa
@@ -200,44 +206,82 @@ def _sheet_table(n_rows: int, seed: int, prefix: str) -> tuple[pa.Table, list[di
     fe = np.exp(rng.normal(np.log(1500), 0.9, n_rows))
     mg_ca = np.clip(np.exp(rng.normal(np.log(15), 0.6, n_rows)), 0.1, 1500)
     caco3 = np.clip(100 - np.exp(rng.normal(np.log(8), 0.8, n_rows)), 5, 99.9)
-    toc = np.where(rng.random(n_rows) < 0.5, np.clip(np.exp(rng.normal(np.log(0.3), 0.9,
-                                                                          n_rows)), 0.01, 20),
-                   np.nan)
+    toc = np.where(
+        rng.random(n_rows) < 0.5,
+        np.clip(np.exp(rng.normal(np.log(0.3), 0.9, n_rows)), 0.01, 20),
+        np.nan,
+    )
 
     mn_text = _num_text(mn, 1)
     u = rng.random(n_rows)
-    mn_text = pc.if_else(pa.array(u < 0.03), pa.scalar("<5"),
-                         pc.if_else(pa.array(u > 0.99), pa.scalar("bdl"), mn_text))
+    mn_text = pc.if_else(
+        pa.array(u < 0.03),
+        pa.scalar("<5"),
+        pc.if_else(pa.array(u > 0.99), pa.scalar("bdl"), mn_text),
+    )
 
     sec_names = pa.array([f"{prefix}{s + 1:04d}" for s in range(n_sections)], pa.string())
     sec_text = sec_names.take(pa.array(sec))
     sample_text = pc.binary_join_element_wise(
-        sec_text, pc.cast(pa.array(sample_k[row_sample]), pa.string()), "-")
-    unit_names = pa.array([f"Unit {chr(65 + i % 26)}{i // 26 + 1}" for i in range(26 * 4)],
-                          pa.string())
+        sec_text, pc.cast(pa.array(sample_k[row_sample]), pa.string()), "-"
+    )
+    unit_names = pa.array(
+        [f"Unit {chr(65 + i % 26)}{i // 26 + 1}" for i in range(26 * 4)], pa.string()
+    )
     unit_idx = (sec * 7 + np.minimum((h // 60).astype(np.int64), 3)) % len(unit_names)
     lat_text = pa.array(loc_lat[sec_loc[sec]]).cast(pa.string())
     lon_text = pa.array(loc_lon[sec_loc[sec]]).cast(pa.string())
 
     cells = [
-        sec_text, sample_text, pa.array(replicate).cast(pa.string()), _num_text(h, 2),
-        _num_text(d13c, 2), _num_text(d18o_vsmow, 2), _num_text(d13c_org, 2), mn_text,
-        _num_text(sr, 0), _num_text(fe, 0), _num_text(mg_ca, 2), _num_text(caco3, 1),
-        _num_text(toc, 2), _num_text(age, 3), lat_text, lon_text,
-        _pick(rng, LITHOLOGIES, n_rows), _pick(rng, COMPONENTS, n_rows),
-        unit_names.take(pa.array(unit_idx)), _pick(rng, NOTES, n_rows),
+        sec_text,
+        sample_text,
+        pa.array(replicate).cast(pa.string()),
+        _num_text(h, 2),
+        _num_text(d13c, 2),
+        _num_text(d18o_vsmow, 2),
+        _num_text(d13c_org, 2),
+        mn_text,
+        _num_text(sr, 0),
+        _num_text(fe, 0),
+        _num_text(mg_ca, 2),
+        _num_text(caco3, 1),
+        _num_text(toc, 2),
+        _num_text(age, 3),
+        lat_text,
+        lon_text,
+        _pick(rng, LITHOLOGIES, n_rows),
+        _pick(rng, COMPONENTS, n_rows),
+        unit_names.take(pa.array(unit_idx)),
+        _pick(rng, NOTES, n_rows),
     ]
     table = pa.table(cells, names=[h_ for h_, _ in SHEET_COLUMNS])
-    localities = [{"id": f"{prefix.lower()}loc-{i + 1:03d}", "lat": float(loc_lat[i]),
-                   "lon": float(loc_lon[i])} for i in range(n_localities)]
-    sections = [{"id": f"{prefix}{s + 1:04d}", "locality": localities[sec_loc[s]]["id"],
-                 "position_kind": "height", "datum": "base of section"}
-                for s in range(n_sections)]
+    localities = [
+        {
+            "id": f"{prefix.lower()}loc-{i + 1:03d}",
+            "lat": float(loc_lat[i]),
+            "lon": float(loc_lon[i]),
+        }
+        for i in range(n_localities)
+    ]
+    sections = [
+        {
+            "id": f"{prefix}{s + 1:04d}",
+            "locality": localities[sec_loc[s]]["id"],
+            "position_kind": "height",
+            "datum": "base of section",
+        }
+        for s in range(n_sections)
+    ]
     return table, localities, sections
 
 
-def _mapping_text(source_id: str, csv_name: str, localities: list[dict[str, Any]],
-                  sections: list[dict[str, Any]], rows: int) -> str:
+def _mapping_text(
+    source_id: str,
+    csv_name: str,
+    localities: list[dict[str, Any]],
+    sections: list[dict[str, Any]],
+    rows: int,
+) -> str:
     lines = [
         "# Synthetic benchmark sheet made by benchmarks/generate.py; every value is invented.",
         "[source]",
@@ -255,39 +299,68 @@ def _mapping_text(source_id: str, csv_name: str, localities: list[dict[str, Any]
         "[columns]",
     ]
     lines += [f'"{h}" = {spec}' for h, spec in SHEET_COLUMNS]
-    lines += ["", "[constants]", 'age_time_scale = "ICS2024/12"', 'mineralogy = "calcite"',
-              'mn_basis = "leach"', 'sr_basis = "leach"', 'fe_basis = "leach"', ""]
+    lines += [
+        "",
+        "[constants]",
+        'age_time_scale = "ICS2024/12"',
+        'mineralogy = "calcite"',
+        'mn_basis = "leach"',
+        'sr_basis = "leach"',
+        'fe_basis = "leach"',
+        "",
+    ]
     for loc in localities:
-        lines += ["[[localities]]", f'id = "{loc["id"]}"', f"lat = {loc['lat']}",
-                  f"lon = {loc['lon']}", ""]
+        lines += [
+            "[[localities]]",
+            f'id = "{loc["id"]}"',
+            f"lat = {loc['lat']}",
+            f"lon = {loc['lon']}",
+            "",
+        ]
     for s in sections:
-        lines += ["[[sections]]", f'id = "{s["id"]}"', f'locality = "{s["locality"]}"',
-                  f'position_kind = "{s["position_kind"]}"', f'datum = "{s["datum"]}"', ""]
+        lines += [
+            "[[sections]]",
+            f'id = "{s["id"]}"',
+            f'locality = "{s["locality"]}"',
+            f'position_kind = "{s["position_kind"]}"',
+            f'datum = "{s["datum"]}"',
+            "",
+        ]
     return "\n".join(lines)
 
 
-def make_sheet(n_rows: int, folder: Path, name: str = "sheet", seed: int = SEED,
-               force: bool = False) -> Sheet:
+def make_sheet(
+    n_rows: int, folder: Path, name: str = "sheet", seed: int = SEED, force: bool = False
+) -> Sheet:
     """Write ``<folder>/<name>.csv`` and ``<name>.toml`` (cached by stamp)."""
     import pyarrow.csv as pcsv
 
-    params = {"kind": "sheet", "version": GENERATOR_VERSION, "rows": n_rows, "seed": seed,
-              "name": name}
+    params = {
+        "kind": "sheet",
+        "version": GENERATOR_VERSION,
+        "rows": n_rows,
+        "seed": seed,
+        "name": name,
+    }
     folder.mkdir(parents=True, exist_ok=True)
     sheet = Sheet(folder / f"{name}.csv", folder / f"{name}.toml", n_rows, len(SHEET_COLUMNS))
     stamp_dir = folder / f".{name}"
-    if not force and _stamp_ok(stamp_dir, params) and sheet.csv.is_file() \
-            and sheet.mapping.is_file():
+    if (
+        not force
+        and _stamp_ok(stamp_dir, params)
+        and sheet.csv.is_file()
+        and sheet.mapping.is_file()
+    ):
         return sheet
     prefix = "W" if name.startswith("warm") else "S"
     table, localities, sections = _sheet_table(n_rows, seed, prefix)
     with sheet.csv.open("wb") as fh:  # a plain header line, as a spreadsheet exports it
         fh.write((",".join(table.column_names) + "\n").encode("utf-8"))
-        pcsv.write_csv(table, fh, pcsv.WriteOptions(include_header=False,
-                                                    quoting_style="none"))
+        pcsv.write_csv(table, fh, pcsv.WriteOptions(include_header=False, quoting_style="none"))
     source_id = f"bench-{name}-{n_rows}".replace("_", "-")
-    sheet.mapping.write_text(_mapping_text(source_id, sheet.csv.name, localities, sections,
-                                           n_rows), encoding="utf-8")
+    sheet.mapping.write_text(
+        _mapping_text(source_id, sheet.csv.name, localities, sections, n_rows), encoding="utf-8"
+    )
     stamp_dir.mkdir(exist_ok=True)
     _write_stamp(stamp_dir, params)
     return sheet
@@ -296,16 +369,26 @@ def make_sheet(n_rows: int, folder: Path, name: str = "sheet", seed: int = SEED,
 def ingest_inputs(n_rows: int, force: bool = False) -> tuple[Sheet, Sheet]:
     """The benchmark sheet of ``n_rows`` rows and the small warm-up sheet."""
     folder = DATA / f"ingest_{n_rows}"
-    return (make_sheet(n_rows, folder, "sheet", force=force),
-            make_sheet(WARMUP_ROWS, folder, "warmup", seed=SEED + 1, force=force))
+    return (
+        make_sheet(n_rows, folder, "sheet", force=force),
+        make_sheet(WARMUP_ROWS, folder, "warmup", seed=SEED + 1, force=force),
+    )
 
 
 # ------------------------------------------------------------------ the query store
 
 
-def _store_chunk(start: int, stop: int, rps: int, sec_lat: np.ndarray, sec_lon: np.ndarray,
-                 sec_age: np.ndarray, sec_rate: np.ndarray, sections_per_source: int,
-                 rng: np.random.Generator) -> pa.Table:
+def _store_chunk(
+    start: int,
+    stop: int,
+    rps: int,
+    sec_lat: np.ndarray,
+    sec_lon: np.ndarray,
+    sec_age: np.ndarray,
+    sec_rate: np.ndarray,
+    sections_per_source: int,
+    rng: np.random.Generator,
+) -> pa.Table:
     """Records ``start``…``stop`` as an Arrow table with the full analyses schema."""
     import numpy as np
     import pyarrow as pa
@@ -334,46 +417,70 @@ def _store_chunk(start: int, stop: int, rps: int, sec_lat: np.ndarray, sec_lon: 
     sec_id = named("Q", sec + 1, 5)
     d13c = np.round(1.0 + 1.5 * np.sin(age / 3.0 + sec) + rng.normal(0, 0.2, n), 2)
     d18o = np.round(rng.normal(-4.0, 1.2, n), 2)
-    vpdb_chain, _ = chain_id([{"step": "reported on VPDB", "method": "identity (no correction)",
-                               "parameters": {}, "source": "the authors' statement of scale",
-                               "size_permil": 0.0}])
+    vpdb_chain, _ = chain_id(
+        [
+            {
+                "step": "reported on VPDB",
+                "method": "identity (no correction)",
+                "parameters": {},
+                "source": "the authors' statement of scale",
+                "size_permil": 0.0,
+            }
+        ]
+    )
     cols: dict[str, pa.Array] = {
         "record_id": _hex_ids(r, 16, 0x51),
         "source_id": named("bench-q-", src + 1, 4),
         "locality_id": named("qloc-", sec + 1, 5),
         "section_id": sec_id,
-        "sample_id": pc.binary_join_element_wise(sec_id, pc.cast(pa.array(sample_k),
-                                                                 pa.string()), "-"),
+        "sample_id": pc.binary_join_element_wise(
+            sec_id, pc.cast(pa.array(sample_k), pa.string()), "-"
+        ),
         "replicate": pa.array(replicate),
-        "lat": pa.array(sec_lat[sec]), "lon": pa.array(sec_lon[sec]),
-        "position_m": pa.array(height), "position_kind": const("height"),
-        "lithology": _pick(rng, LITHOLOGIES, n), "component": _pick(rng, COMPONENTS, n),
+        "lat": pa.array(sec_lat[sec]),
+        "lon": pa.array(sec_lon[sec]),
+        "position_m": pa.array(height),
+        "position_kind": const("height"),
+        "lithology": _pick(rng, LITHOLOGIES, n),
+        "component": _pick(rng, COMPONENTS, n),
         "mineralogy": const("calcite"),
-        "d13c_carb_reported": pa.array(d13c), "d13c_carb_scale": const("VPDB"),
-        "d13c_carb": pa.array(d13c), "d13c_carb_chain": const(vpdb_chain),
+        "d13c_carb_reported": pa.array(d13c),
+        "d13c_carb_scale": const("VPDB"),
+        "d13c_carb": pa.array(d13c),
+        "d13c_carb_chain": const(vpdb_chain),
         "d13c_carb_status": const("harmonised"),
-        "d18o_carb_reported": pa.array(d18o), "d18o_carb_scale": const("VPDB"),
-        "d18o_carb": pa.array(d18o), "d18o_carb_chain": const(vpdb_chain),
+        "d18o_carb_reported": pa.array(d18o),
+        "d18o_carb_scale": const("VPDB"),
+        "d18o_carb": pa.array(d18o),
+        "d18o_carb_chain": const(vpdb_chain),
         "d18o_carb_status": const("harmonised"),
         "mn_ppm": pa.array(np.round(np.exp(rng.normal(np.log(120), 0.8, n)), 1)),
         "mn_basis": const("leach"),
         "sr_ppm": pa.array(np.round(np.exp(rng.normal(np.log(600), 0.5, n)), 0)),
         "sr_basis": const("leach"),
-        "age_reported_ma": pa.array(age), "age_reported_scale": const("ICS2024/12"),
-        "age_ma": pa.array(age), "age_basis": const("reported"),
-        "time_scale": const("ICS2024/12"), "age_status": const("dated"),
+        "age_reported_ma": pa.array(age),
+        "age_reported_scale": const("ICS2024/12"),
+        "age_ma": pa.array(age),
+        "age_basis": const("reported"),
+        "time_scale": const("ICS2024/12"),
+        "age_status": const("dated"),
         "paleo_status": const("pending: no rotation model in the store"),
         "screen": const("untested"),
-        "sheet": const("synthetic.csv"), "sheet_row": pa.array(within + 2),
+        "sheet": const("synthetic.csv"),
+        "sheet_row": pa.array(within + 2),
         "row_hash": _hex_ids(r, 16, 0x77),
     }
-    arrays = [cols[f.name].cast(f.type) if f.name in cols else pa.nulls(n, f.type)
-              for f in schema]
+    arrays = [cols[f.name].cast(f.type) if f.name in cols else pa.nulls(n, f.type) for f in schema]
     return pa.Table.from_arrays(arrays, schema=schema)
 
 
-def make_store(n_records: int, folder: Path | None = None, seed: int = SEED,
-               force: bool = False, log: Any = None) -> Path:
+def make_store(
+    n_records: int,
+    folder: Path | None = None,
+    seed: int = SEED,
+    force: bool = False,
+    log: Any = None,
+) -> Path:
     """A strata13 store of ``n_records`` synthetic records, committed in one transaction."""
     import numpy as np
     import pyarrow as pa
@@ -415,27 +522,44 @@ def make_store(n_records: int, folder: Path | None = None, seed: int = SEED,
         con.execute("BEGIN")
         for start in range(0, n_records, chunk):
             stop = min(n_records, start + chunk)
-            table = _store_chunk(start, stop, rps, sec_lat, sec_lon, sec_age, sec_rate,
-                                 sections_per_source, rng)
+            table = _store_chunk(
+                start, stop, rps, sec_lat, sec_lon, sec_age, sec_rate, sections_per_source, rng
+            )
             con.register("incoming", table)
             con.execute("INSERT INTO lake.analyses SELECT * FROM incoming")
             con.unregister("incoming")
             say(f"  store: {stop:,} / {n_records:,} records ({time.perf_counter() - t0:.0f} s)")
-        counts = np.bincount(np.arange(n_records) // rps // sections_per_source,
-                             minlength=n_sources)
-        sources = pa.Table.from_pylist([{
-            "source_id": f"bench-q-{j + 1:04d}",
-            "citation": "Synthetic benchmark source (invented).", "year": 2026,
-            "kind": "in-house", "file_name": "synthetic.csv", "n_records": int(counts[j]),
-            "ingested_version": 2, "schema_version": SCHEMA_VERSION}
-            for j in range(n_sources)], schema=arrow_schema(SOURCES))
+        counts = np.bincount(
+            np.arange(n_records) // rps // sections_per_source, minlength=n_sources
+        )
+        sources = pa.Table.from_pylist(
+            [
+                {
+                    "source_id": f"bench-q-{j + 1:04d}",
+                    "citation": "Synthetic benchmark source (invented).",
+                    "year": 2026,
+                    "kind": "in-house",
+                    "file_name": "synthetic.csv",
+                    "n_records": int(counts[j]),
+                    "ingested_version": 2,
+                    "schema_version": SCHEMA_VERSION,
+                }
+                for j in range(n_sources)
+            ],
+            schema=arrow_schema(SOURCES),
+        )
         con.register("incoming", sources)
         con.execute("INSERT INTO lake.sources SELECT * FROM incoming")
         con.unregister("incoming")
         record_commit = getattr(store, "_record_commit", None)
         if record_commit is not None:
-            record_commit(con, "ingest", "benchmark store", "synthetic",
-                          {"records": n_records, "sources": n_sources})
+            record_commit(
+                con,
+                "ingest",
+                "benchmark store",
+                "synthetic",
+                {"records": n_records, "sources": n_sources},
+            )
         con.execute("COMMIT")
     stamp_dir.mkdir(parents=True, exist_ok=True)
     _write_stamp(stamp_dir, params)
@@ -458,8 +582,10 @@ def main(argv: list[str] | None = None) -> int:
     if "sheet" in what:
         t = time.perf_counter()
         sheet, _ = ingest_inputs(rows, force=args.force)
-        print(f"sheet: {sheet.csv} ({sheet.rows:,} rows x {sheet.columns} columns, "
-              f"{sheet.csv.stat().st_size / 1e6:.0f} MB) in {time.perf_counter() - t:.1f} s")
+        print(
+            f"sheet: {sheet.csv} ({sheet.rows:,} rows x {sheet.columns} columns, "
+            f"{sheet.csv.stat().st_size / 1e6:.0f} MB) in {time.perf_counter() - t:.1f} s"
+        )
     if "store" in what:
         t = time.perf_counter()
         path = make_store(records, force=args.force, log=print)

@@ -60,8 +60,17 @@ HELP_TARGET_S = 0.5
 # The query case's region: an invented irregular hexagon (GeoJSON, lon/lat degrees).
 POLYGON: dict[str, Any] = {
     "type": "Polygon",
-    "coordinates": [[[-15.0, 25.0], [10.0, 18.0], [38.0, 28.0], [42.0, 50.0], [15.0, 62.0],
-                     [-12.0, 52.0], [-15.0, 25.0]]],
+    "coordinates": [
+        [
+            [-15.0, 25.0],
+            [10.0, 18.0],
+            [38.0, 28.0],
+            [42.0, 50.0],
+            [15.0, 62.0],
+            [-12.0, 52.0],
+            [-15.0, 25.0],
+        ]
+    ],
 }
 INTERVAL = (150.0, 210.0)  # Ma
 HEAVY_MODULES = ("pandas", "pandera", "duckdb", "pyarrow", "matplotlib")
@@ -157,16 +166,29 @@ def child_ingest(store_dir: str, mapping: str, warmup: str, profile: str | None)
     if prof is not None:
         prof.disable()
         prof.dump_stats(profile)
-    out: dict[str, Any] = {"seconds": seconds, "phases": phases, "vmhwm_kb": _vmhwm_kb(),
-                           "committed": result.committed, "pending": result.pending,
-                           "version": result.version, "phase_peak_kb": sampler.peaks}
+    out: dict[str, Any] = {
+        "seconds": seconds,
+        "phases": phases,
+        "vmhwm_kb": _vmhwm_kb(),
+        "committed": result.committed,
+        "pending": result.pending,
+        "version": result.version,
+        "phase_peak_kb": sampler.peaks,
+    }
     con, _ = store.reader()
     try:
         status: dict[str, dict[str, int]] = {}
-        for col in ("d13c_carb_status", "d18o_carb_status", "d13c_org_status", "age_status",
-                    "paleo_status", "screen"):
-            rows = con.execute(f'SELECT "{col}", count(*) FROM records GROUP BY 1 '
-                               "ORDER BY 2 DESC").fetchall()
+        for col in (
+            "d13c_carb_status",
+            "d18o_carb_status",
+            "d13c_org_status",
+            "age_status",
+            "paleo_status",
+            "screen",
+        ):
+            rows = con.execute(
+                f'SELECT "{col}", count(*) FROM records GROUP BY 1 ORDER BY 2 DESC'
+            ).fetchall()
             status[col] = {str(k): int(n) for k, n in rows}
         out["status"] = status
     finally:
@@ -212,19 +234,25 @@ def _vmhwm_kb() -> int:
 
 def _run_child(args: list[str]) -> dict[str, Any]:
     """Run this file as a child with ``args``; its result is the marked JSON line."""
-    proc = subprocess.run([sys.executable, str(Path(__file__).resolve()), *args],
-                          capture_output=True, text=True, check=False)
+    proc = subprocess.run(
+        [sys.executable, str(Path(__file__).resolve()), *args],
+        capture_output=True,
+        text=True,
+        check=False,
+    )
     for line in reversed(proc.stdout.splitlines()):
         if line.startswith(RESULT_MARK):
-            return json.loads(line[len(RESULT_MARK):])
+            return json.loads(line[len(RESULT_MARK) :])
     return {"error": f"child exited {proc.returncode}\n{proc.stderr[-4000:]}"}
 
 
 def _describe_derive(status: dict[str, dict[str, int]]) -> list[str]:
     """Which derive steps the ingest exercised, from the stored status columns."""
+
     def fmt(col: str) -> str:
-        parts = [f"{'(no value)' if k == 'None' else k} ×{v:,}"
-                 for k, v in status.get(col, {}).items()]
+        parts = [
+            f"{'(no value)' if k == 'None' else k} ×{v:,}" for k, v in status.get(col, {}).items()
+        ]
         return "; ".join(parts) or "no values"
 
     return [
@@ -273,8 +301,14 @@ def case_ingest(rows: int, repeat: int, profile: bool) -> Outcome:
 
     results = []
     for k in range(max(1, repeat)):
-        res = _run_child(["--child-ingest", str(WORK / f"ingest-store-{k}"),
-                          str(sheet.mapping), str(warm.mapping)])
+        res = _run_child(
+            [
+                "--child-ingest",
+                str(WORK / f"ingest-store-{k}"),
+                str(sheet.mapping),
+                str(warm.mapping),
+            ]
+        )
         if "error" in res:
             out.rows.append(Row(case, size, "ERROR", verdict="ERROR"))
             out.notes += ["ingest failed:", *("  " + ln for ln in res["error"].splitlines())]
@@ -292,19 +326,36 @@ def case_ingest(rows: int, repeat: int, profile: bool) -> Outcome:
     base_s = min(_median_time(baseline, 1)[0] for _ in range(3))
     ours_s = statistics.median(r["seconds"] for r in results)
     ratio = ours_s / base_s
-    out.rows.append(Row(case, size, _secs(ours_s), _secs(base_s), f"{ratio:.1f}x",
-                        f"≤ {INGEST_RATIO_TARGET:g}x", _verdict(ratio <= INGEST_RATIO_TARGET)))
+    out.rows.append(
+        Row(
+            case,
+            size,
+            _secs(ours_s),
+            _secs(base_s),
+            f"{ratio:.1f}x",
+            f"≤ {INGEST_RATIO_TARGET:g}x",
+            _verdict(ratio <= INGEST_RATIO_TARGET),
+        )
+    )
     peak_gb = max(r["vmhwm_kb"] for r in results) * 1024 / GB
-    out.rows.append(Row("ingest peak memory (child VmHWM)", size, f"{peak_gb:.2f} GB",
-                        target=f"≤ {INGEST_MEMORY_TARGET_GB:g} GB",
-                        verdict=_verdict(peak_gb <= INGEST_MEMORY_TARGET_GB)))
+    out.rows.append(
+        Row(
+            "ingest peak memory (child VmHWM)",
+            size,
+            f"{peak_gb:.2f} GB",
+            target=f"≤ {INGEST_MEMORY_TARGET_GB:g} GB",
+            verdict=_verdict(peak_gb <= INGEST_MEMORY_TARGET_GB),
+        )
+    )
 
     last = results[-1]
     marks = [*last["phases"], ["(done)", last["seconds"]]]
     peaks = last.get("phase_peak_kb", {})
-    steps = [f"{marks[i][0]} {marks[i + 1][1] - marks[i][1]:.1f} s"
-             + (f" (peak RSS {peaks[marks[i][0]] * 1024 / GB:.2f} GB)" if marks[i][0] in peaks
-                else "") for i in range(len(marks) - 1)]
+    steps = [
+        f"{marks[i][0]} {marks[i + 1][1] - marks[i][1]:.1f} s"
+        + (f" (peak RSS {peaks[marks[i][0]] * 1024 / GB:.2f} GB)" if marks[i][0] in peaks else "")
+        for i in range(len(marks) - 1)
+    ]
     out.notes += [
         f"ingest: ours = median of {len(results)} run(s) of api.ingest into a fresh store, "
         "timed in a child after a 200-row warm-up ingest; baseline = best of 3 "
@@ -318,15 +369,26 @@ def case_ingest(rows: int, repeat: int, profile: bool) -> Outcome:
     ]
     if profile:
         prof_path = WORK / "ingest.prof"
-        res = _run_child(["--child-ingest", str(WORK / "ingest-store-prof"), str(sheet.mapping),
-                          str(warm.mapping), "--profile-to", str(prof_path)])
+        res = _run_child(
+            [
+                "--child-ingest",
+                str(WORK / "ingest-store-prof"),
+                str(sheet.mapping),
+                str(warm.mapping),
+                "--profile-to",
+                str(prof_path),
+            ]
+        )
         if "error" in res:
             out.notes += ["profiled ingest failed:", res["error"]]
         else:
             for scratch in WORK.glob("ingest-store-*"):
                 shutil.rmtree(scratch, ignore_errors=True)
-            out.notes += [f"cProfile of one ingest ({res['seconds']:.1f} s under the profiler; "
-                          f"stats in {prof_path}):", *_top_functions(prof_path)]
+            out.notes += [
+                f"cProfile of one ingest ({res['seconds']:.1f} s under the profiler; "
+                f"stats in {prof_path}):",
+                *_top_functions(prof_path),
+            ]
     return out
 
 
@@ -346,17 +408,20 @@ def case_query(records: int, repeat: int) -> Outcome:
     path = generate.make_store(records, log=lambda m: print(m, file=sys.stderr))
     built = time.perf_counter() - t
     if built > 1:
-        out.notes.append(f"query: store of {records:,} records built in {built:.0f} s "
-                         "(cached for later runs).")
+        out.notes.append(
+            f"query: store of {records:,} records built in {built:.0f} s (cached for later runs)."
+        )
     store = api.open_store(path)
     region = from_geojson(POLYGON, "bench-hexagon", "the benchmark polygon")
     filters = Filters(interval=INTERVAL, region=region)
-    (w, s, e, n), = region.boxes
+    ((w, s, e, n),) = region.boxes
     files = path / "data" / "main" / "analyses"
     n_files = len(list(files.rglob("*.parquet")))
     glob = str(files / "**" / "*.parquet")
-    sql = ("SELECT * FROM read_parquet(?) WHERE age_ma BETWEEN ? AND ? "
-           "AND lon BETWEEN ? AND ? AND lat BETWEEN ? AND ?")
+    sql = (
+        "SELECT * FROM read_parquet(?) WHERE age_ma BETWEEN ? AND ? "
+        "AND lon BETWEEN ? AND ? AND lat BETWEEN ? AND ?"
+    )
     params = [glob, *INTERVAL, w, e, s, n]
 
     def ours() -> Any:
@@ -378,12 +443,25 @@ def case_query(records: int, repeat: int) -> Outcome:
         return out
     baseline()
     base_s, base_t = _median_time(baseline, repeat)
-    exact = int(region.contains(base_t.column("lon").to_numpy(zero_copy_only=False),
-                                base_t.column("lat").to_numpy(zero_copy_only=False)).sum())
+    exact = int(
+        region.contains(
+            base_t.column("lon").to_numpy(zero_copy_only=False),
+            base_t.column("lat").to_numpy(zero_copy_only=False),
+        ).sum()
+    )
     ratio = ours_s / base_s
     size = f"{records:,} rec -> {ours_t.num_rows:,} hits"
-    out.rows.append(Row(case, size, _secs(ours_s), _secs(base_s), f"{ratio:.1f}x",
-                        f"≤ {QUERY_RATIO_TARGET:g}x", _verdict(ratio <= QUERY_RATIO_TARGET)))
+    out.rows.append(
+        Row(
+            case,
+            size,
+            _secs(ours_s),
+            _secs(base_s),
+            f"{ratio:.1f}x",
+            f"≤ {QUERY_RATIO_TARGET:g}x",
+            _verdict(ratio <= QUERY_RATIO_TARGET),
+        )
+    )
     out.notes += [
         f"query: interval {INTERVAL[0]:g}-{INTERVAL[1]:g} Ma, hexagon with bbox "
         f"W{w:g} S{s:g} E{e:g} N{n:g}; median of {repeat} after one warm-up each; "
@@ -405,8 +483,9 @@ def _cli_exe() -> str | None:
     return str(beside) if beside.is_file() else shutil.which("strata13")
 
 
-def _subprocess_median(cmd: list[str], repeat: int
-                       ) -> tuple[float, subprocess.CompletedProcess[str]]:
+def _subprocess_median(
+    cmd: list[str], repeat: int
+) -> tuple[float, subprocess.CompletedProcess[str]]:
     """Median wall time of ``repeat`` runs of ``cmd`` after one warm-up run."""
     subprocess.run(cmd, capture_output=True, text=True, check=False)  # warm-up
     times, last = [], None
@@ -441,24 +520,44 @@ def case_help(repeat: int) -> Outcome:
             out.rows.append(Row(case, size, "skipped (CLI not present)", verdict="skipped"))
             return out
         out.rows.append(Row(case, size, "ERROR", verdict="ERROR"))
-        out.notes += [f"help: `strata13 --help` exited {proc.returncode}:",
-                      *("  " + ln for ln in proc.stderr.strip().splitlines()[-15:])]
+        out.notes += [
+            f"help: `strata13 --help` exited {proc.returncode}:",
+            *("  " + ln for ln in proc.stderr.strip().splitlines()[-15:]),
+        ]
         return out
     base_s, _ = _subprocess_median([sys.executable, "-c", "pass"], repeat)
-    out.rows.append(Row(case, size, _secs(ours_s), _secs(base_s), f"{ours_s / base_s:.1f}x",
-                        f"≤ {HELP_TARGET_S:g} s", _verdict(ours_s <= HELP_TARGET_S)))
-    probe = ("import json, sys\nsys.argv = ['strata13', '--help']\n"
-             "from strata13.cli.app import main\n"
-             "try:\n    main()\nexcept SystemExit:\n    pass\n"
-             f"print({RESULT_MARK!r} + json.dumps(sorted(m for m in {list(HEAVY_MODULES)!r} "
-             "if m in sys.modules)))\n")
-    p = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
-                       check=False)
-    heavy = next((json.loads(ln[len(RESULT_MARK):]) for ln in p.stdout.splitlines()
-                  if ln.startswith(RESULT_MARK)), None)
-    out.notes.append("help: heavy modules imported by --help: "
-                     + ("could not tell" if heavy is None else ", ".join(heavy) or "none")
-                     + f" (checked: {', '.join(HEAVY_MODULES)}).")
+    out.rows.append(
+        Row(
+            case,
+            size,
+            _secs(ours_s),
+            _secs(base_s),
+            f"{ours_s / base_s:.1f}x",
+            f"≤ {HELP_TARGET_S:g} s",
+            _verdict(ours_s <= HELP_TARGET_S),
+        )
+    )
+    probe = (
+        "import json, sys\nsys.argv = ['strata13', '--help']\n"
+        "from strata13.cli.app import main\n"
+        "try:\n    main()\nexcept SystemExit:\n    pass\n"
+        f"print({RESULT_MARK!r} + json.dumps(sorted(m for m in {list(HEAVY_MODULES)!r} "
+        "if m in sys.modules)))\n"
+    )
+    p = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=False)
+    heavy = next(
+        (
+            json.loads(ln[len(RESULT_MARK) :])
+            for ln in p.stdout.splitlines()
+            if ln.startswith(RESULT_MARK)
+        ),
+        None,
+    )
+    out.notes.append(
+        "help: heavy modules imported by --help: "
+        + ("could not tell" if heavy is None else ", ".join(heavy) or "none")
+        + f" (checked: {', '.join(HEAVY_MODULES)})."
+    )
     return out
 
 
@@ -466,8 +565,11 @@ def case_help(repeat: int) -> Outcome:
 
 # case -> (sibling module, its size in a quick run, in a full run): each module has
 # measure(size, repeat=…), rows(result) and notes(result), and runs on its own too
-LIBRARY_CASES = {"agemodel": ("agemodel", 100, 1000), "curve": ("curve", 50, 200),
-                 "paleo": ("paleo", 100_000, 1_000_000)}
+LIBRARY_CASES = {
+    "agemodel": ("agemodel", 100, 1000),
+    "curve": ("curve", 50, 200),
+    "paleo": ("paleo", 100_000, 1_000_000),
+}
 
 
 def case_library(name: str, repeat: int, quick: bool) -> Outcome:
@@ -487,30 +589,43 @@ def _environment() -> str:
     import duckdb
     import pyarrow
 
-    load = f", load average {os.getloadavg()[0]:.1f}" if hasattr(os, "getloadavg") \
-        else ""
-    return (f"python {platform.python_version()}, duckdb {duckdb.__version__}, pyarrow "
-            f"{pyarrow.__version__}, {os.cpu_count()} CPUs, {platform.machine()}{load}")
+    load = f", load average {os.getloadavg()[0]:.1f}" if hasattr(os, "getloadavg") else ""
+    return (
+        f"python {platform.python_version()}, duckdb {duckdb.__version__}, pyarrow "
+        f"{pyarrow.__version__}, {os.cpu_count()} CPUs, {platform.machine()}{load}"
+    )
 
 
 def main(argv: list[str] | None = None) -> int:
     """Parse options, run the chosen cases, print the table and the notes."""
     p = argparse.ArgumentParser(description="strata13 benchmarks: ours vs a bare baseline.")
-    p.add_argument("--quick", action="store_true",
-                   help=f"smoke sizes: {generate.QUICK_ROWS:,} rows, "
-                        f"{generate.QUICK_RECORDS:,} records")
-    p.add_argument("--cases", default="ingest,query,help,agemodel,curve,paleo",
-                   help="comma list of ingest, query, help, agemodel, curve, paleo "
-                        "(default: all)")
+    p.add_argument(
+        "--quick",
+        action="store_true",
+        help=f"smoke sizes: {generate.QUICK_ROWS:,} rows, {generate.QUICK_RECORDS:,} records",
+    )
+    p.add_argument(
+        "--cases",
+        default="ingest,query,help,agemodel,curve,paleo",
+        help="comma list of ingest, query, help, agemodel, curve, paleo (default: all)",
+    )
     p.add_argument("--rows", type=int, help="ingest sheet rows (overrides the size)")
     p.add_argument("--records", type=int, help="query store records (overrides the size)")
-    p.add_argument("--repeat", type=int, default=0,
-                   help="timed runs per case (default: ingest 1, query 3, help 5, "
-                        "agemodel, curve and paleo 3)")
-    p.add_argument("--profile", action="store_true",
-                   help="also profile one ingest with cProfile and list the hotspots")
-    p.add_argument("--child-ingest", nargs=3, metavar=("STORE", "MAPPING", "WARMUP"),
-                   help=argparse.SUPPRESS)
+    p.add_argument(
+        "--repeat",
+        type=int,
+        default=0,
+        help="timed runs per case (default: ingest 1, query 3, help 5, "
+        "agemodel, curve and paleo 3)",
+    )
+    p.add_argument(
+        "--profile",
+        action="store_true",
+        help="also profile one ingest with cProfile and list the hotspots",
+    )
+    p.add_argument(
+        "--child-ingest", nargs=3, metavar=("STORE", "MAPPING", "WARMUP"), help=argparse.SUPPRESS
+    )
     p.add_argument("--profile-to", help=argparse.SUPPRESS)
     args = p.parse_args(argv)
 
@@ -528,8 +643,9 @@ def main(argv: list[str] | None = None) -> int:
         p.error(f"unknown case(s): {', '.join(sorted(unknown))}")
     rows = args.rows or (generate.QUICK_ROWS if args.quick else generate.FULL_ROWS)
     records = args.records or (generate.QUICK_RECORDS if args.quick else generate.FULL_RECORDS)
-    print(f"strata13 benchmarks ({'quick' if args.quick else 'full'}): {_environment()}",
-          flush=True)
+    print(
+        f"strata13 benchmarks ({'quick' if args.quick else 'full'}): {_environment()}", flush=True
+    )
     outcomes: list[Outcome] = []
     for c in cases:
         t = time.perf_counter()

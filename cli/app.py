@@ -26,8 +26,11 @@ from strata13.cli import (
 from strata13 import __version__
 
 app = typer.Typer(
-    name="strata13", add_completion=False, no_args_is_help=True,
-    pretty_exceptions_enable=False, rich_markup_mode=None,
+    name="strata13",
+    add_completion=False,
+    no_args_is_help=True,
+    pretty_exceptions_enable=False,
+    rich_markup_mode=None,
     help="A local compilation database for carbonate carbon-isotope chemostratigraphy.",
     context_settings={"help_option_names": ["-h", "--help"]},
 )
@@ -40,11 +43,12 @@ def _version(value: bool) -> None:
 
 
 @app.callback()
-def _root(version: Annotated[bool, typer.Option("--version", callback=_version,
-                                                is_eager=True, help="Show the version.")]
-          = False,
-          debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks.")] = False
-          ) -> None:
+def _root(
+    version: Annotated[
+        bool, typer.Option("--version", callback=_version, is_eager=True, help="Show the version.")
+    ] = False,
+    debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks.")] = False,
+) -> None:
     """strata13: ingest, harmonise, query and export carbonate δ13C compilations."""
 
 
@@ -110,7 +114,8 @@ def _interrupted(message: str) -> int:
 def _is_duckdb_interrupt(exc: BaseException) -> bool:
     """DuckDB turns SIGINT during a query into its own exception."""
     return type(exc).__name__ == "InterruptException" or (
-        isinstance(exc, RuntimeError) and "interrupted" in str(exc).lower())
+        isinstance(exc, RuntimeError) and "interrupted" in str(exc).lower()
+    )
 
 
 def _run(args: list[str]) -> int:
@@ -140,8 +145,10 @@ def _run(args: list[str]) -> int:
             sys.stderr.write((exc.ctx.get_help() if exc.ctx else "") + "\n")
             return 0 if not args else 2
         usage = exc.ctx.get_usage() if exc.ctx else ""
-        render.error(exc.format_message(), (usage.replace("\n", " ") + "  (--help for more)")
-                     if usage else "Run strata13 --help.")
+        render.error(
+            exc.format_message(),
+            (usage.replace("\n", " ") + "  (--help for more)") if usage else "Run strata13 --help.",
+        )
         return 2
     except (typer.Abort, KeyboardInterrupt) as exc:
         return _interrupted(getattr(exc, "message", ""))
@@ -160,6 +167,8 @@ def _run(args: list[str]) -> int:
             return _interrupted("")
         if debug:
             raise
-        render.error(f"internal error: {type(exc).__name__}: {exc}",
-                     "Run again with --debug for the traceback, and report it.")
+        render.error(
+            f"internal error: {type(exc).__name__}: {exc}",
+            "Run again with --debug for the traceback, and report it.",
+        )
         return 1

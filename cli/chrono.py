@@ -10,18 +10,42 @@ from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
 
 STAGE_HEADERS = ["name", "rank", "parent", "base_ma", "top_ma", "±", "level", "1σ", "~", "note"]
-TIE_COLUMNS = ["position_m", "basis", "boundary", "given_age_ma", "chart", "age_ma", "sigma_ma",
-               "shared", "from_source", "note"]
+TIE_COLUMNS = [
+    "position_m",
+    "basis",
+    "boundary",
+    "given_age_ma",
+    "chart",
+    "age_ma",
+    "sigma_ma",
+    "shared",
+    "from_source",
+    "note",
+]
 
 
-def stages(time_scale: Annotated[str | None, typer.Option(
-               "--time-scale", help="Chart version, or a CSV table of the same format "
-               "(default: the store's, else ICS2024/12).", show_default=False)] = None,
-           interval: Annotated[str | None, typer.Option(
-               "--interval", help="Only units overlapping this name, NAME..NAME or A-B Ma.",
-               show_default=False)] = None,
-           fmt: FormatOpt = "table", out: OutOpt = None,
-           store: StoreOpt = None) -> None:
+def stages(
+    time_scale: Annotated[
+        str | None,
+        typer.Option(
+            "--time-scale",
+            help="Chart version, or a CSV table of the same format "
+            "(default: the store's, else ICS2024/12).",
+            show_default=False,
+        ),
+    ] = None,
+    interval: Annotated[
+        str | None,
+        typer.Option(
+            "--interval",
+            help="Only units overlapping this name, NAME..NAME or A-B Ma.",
+            show_default=False,
+        ),
+    ] = None,
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    store: StoreOpt = None,
+) -> None:
     """List a chart's stages, series and periods with base ages and uncertainties (the ±
     as the chart states it, its level, and 1σ); works without a store."""
     from strata13.compile import api
@@ -32,38 +56,62 @@ def stages(time_scale: Annotated[str | None, typer.Option(
     for n in notes:
         render.note(n)
     cols = list(rows[0]) if rows else []
-    render.table(STAGE_HEADERS if fmt == "table" else cols,
-                 [[r[c] for c in cols] for r in rows], fmt, out,
-                 title=f"{scale.version} — {scale.source}")
-    render.note(f"{len(rows)} units of {scale.version}"
-                + (" (the store's chart)" if s is not None and time_scale is None else ""))
+    render.table(
+        STAGE_HEADERS if fmt == "table" else cols,
+        [[r[c] for c in cols] for r in rows],
+        fmt,
+        out,
+        title=f"{scale.version} — {scale.source}",
+    )
+    render.note(
+        f"{len(rows)} units of {scale.version}"
+        + (" (the store's chart)" if s is not None and time_scale is None else "")
+    )
 
 
-def redate(time_scale: Annotated[str | None, typer.Option(
-               "--time-scale", help="The store's new chart version.", show_default=False)] = None,
-           extrapolation: Annotated[bool | None, typer.Option(
-               "--extrapolate/--no-extrapolate", help="Store setting: date samples beyond the "
-               "outermost ties (flagged).", show_default=False)] = None,
-           draws: Annotated[int | None, typer.Option(
-               "--draws", help="Store setting: age-model draws per section.",
-               show_default=False)] = None,
-           store: StoreOpt = None) -> None:
+def redate(
+    time_scale: Annotated[
+        str | None,
+        typer.Option("--time-scale", help="The store's new chart version.", show_default=False),
+    ] = None,
+    extrapolation: Annotated[
+        bool | None,
+        typer.Option(
+            "--extrapolate/--no-extrapolate",
+            help="Store setting: date samples beyond the outermost ties (flagged).",
+            show_default=False,
+        ),
+    ] = None,
+    draws: Annotated[
+        int | None,
+        typer.Option(
+            "--draws", help="Store setting: age-model draws per section.", show_default=False
+        ),
+    ] = None,
+    store: StoreOpt = None,
+) -> None:
     """Put every age on another chart (or change the age-model settings) in one commit."""
     from strata13.compile import api
 
     res = api.redate(api.open_store(api.store_path(store)), time_scale, extrapolation, draws)
     if res.version is None:
-        render.message(f"0 changed: {res.records} records already match these settings; "
-                       "no new version.")
+        render.message(
+            f"0 changed: {res.records} records already match these settings; no new version."
+        )
         return
     before, after = res.settings_before.get("time_scale"), res.settings_after.get("time_scale")
-    render.message(f"redated {res.records} records as version {res.version}"
-                   + (f" ({before} → {after})" if before != after else "") + ".")
+    render.message(
+        f"redated {res.records} records as version {res.version}"
+        + (f" ({before} → {after})" if before != after else "")
+        + "."
+    )
     for col, n in sorted(res.changed.items()):
         if res.max_change[col] > 0:
-            render.message(f"  {col}: {n} values changed; largest change "
-                           f"{res.max_change[col]:.4g} Myr, median "
-                           f"{res.median_change[col]:.4g} Myr")
+            render.message(
+                f"  {col}: {n} values changed; largest change "
+                f"{res.max_change[col]:.4g} Myr, median "
+                f"{res.median_change[col]:.4g} Myr"
+            )
         else:
             render.message(f"  {col}: {n} values newly set or cleared (none moved)")
     if not res.changed:
@@ -72,12 +120,18 @@ def redate(time_scale: Annotated[str | None, typer.Option(
         render.message(f"  no age model for {c}")
 
 
-def agemodel(section: Annotated[str, typer.Argument(help="Section id, or SOURCE/SECTION.")],
-             plot: Annotated[Path | None, typer.Option(
-                 "--plot", help="Write the age–position figure (PNG) here.",
-                 show_default=False)] = None,
-             fmt: FormatOpt = "table", out: OutOpt = None,
-             store: StoreOpt = None) -> None:
+def agemodel(
+    section: Annotated[str, typer.Argument(help="Section id, or SOURCE/SECTION.")],
+    plot: Annotated[
+        Path | None,
+        typer.Option(
+            "--plot", help="Write the age–position figure (PNG) here.", show_default=False
+        ),
+    ] = None,
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    store: StoreOpt = None,
+) -> None:
     """A section's ties (as given and on the store's chart) and its age model."""
     from strata13.compile import api
     from strata13.compile.export.outputs import output_file
@@ -87,45 +141,72 @@ def agemodel(section: Annotated[str, typer.Argument(help="Section id, or SOURCE/
     if plot is not None:
         output_file(plot, option="--plot", stores=[path])
     m = api.agemodel(api.open_store(path), section)
-    rows = [[t["position_m"], t["basis"], t.get("boundary"), t.get("age_ma"), t.get("chart"),
-             t["age"], t["sigma"], t["shared_key"] or "", t["tie_source_id"], t.get("note")]
-            for t in m.ties]
-    render.table(TIE_COLUMNS, rows, fmt, out,
-                 title=f"ties of {m.source_id}/{m.section_id} ({m.position_kind}; ages on "
-                       f"{m.time_scale}, σ = 1σ)")
+    rows = [
+        [
+            t["position_m"],
+            t["basis"],
+            t.get("boundary"),
+            t.get("age_ma"),
+            t.get("chart"),
+            t["age"],
+            t["sigma"],
+            t["shared_key"] or "",
+            t["tie_source_id"],
+            t.get("note"),
+        ]
+        for t in m.ties
+    ]
+    render.table(
+        TIE_COLUMNS,
+        rows,
+        fmt,
+        out,
+        title=f"ties of {m.source_id}/{m.section_id} ({m.position_kind}; ages on "
+        f"{m.time_scale}, σ = 1σ)",
+    )
     basis = ", ".join(f"{k} {v}" for k, v in sorted(m.basis_counts.items()))
     if m.draws.size:
-        render.note(f"age model: {m.draws.shape[0]} draws at {len(m.positions)} positions; "
-                    f"{m.records} records ({basis})")
+        render.note(
+            f"age model: {m.draws.shape[0]} draws at {len(m.positions)} positions; "
+            f"{m.records} records ({basis})"
+        )
     else:
         render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
     if plot is not None:
         render.message(f"wrote {api.plot_agemodel(m, plot)}")
 
 
-def replace_rotations(model: Annotated[Path, typer.Argument(help="Rotation model (CSV).")],
-                      polygons: Annotated[Path, typer.Argument(help="Plate polygons (GeoJSON).")],
-                      store: StoreOpt = None) -> None:
+def replace_rotations(
+    model: Annotated[Path, typer.Argument(help="Rotation model (CSV).")],
+    polygons: Annotated[Path, typer.Argument(help="Plate polygons (GeoJSON).")],
+    store: StoreOpt = None,
+) -> None:
     """Put a rotation model and its plate polygons in the store and recompute every
     paleo-position (and the screens) in one commit."""
     from strata13.compile import api
 
     res = api.replace_rotations(api.open_store(api.store_path(store)), model, polygons)
     if res.version is None:
-        render.message(f"0 changed: {res.records} records already placed with this model; "
-                       "no new version.")
+        render.message(
+            f"0 changed: {res.records} records already placed with this model; no new version."
+        )
         return
     name = res.settings_after.get("rotation_model_name")
     frame = res.settings_after.get("rotation_frame")
-    render.message(f"placed {res.records} records with model {name!r} ({frame} frame) as "
-                   f"version {res.version}.")
+    render.message(
+        f"placed {res.records} records with model {name!r} ({frame} frame) as "
+        f"version {res.version}."
+    )
     for col in ("paleolat", "paleolon"):
         if col in res.changed and res.max_change[col] > 0:
-            render.message(f"  {col}: {res.changed[col]} values changed; largest change "
-                           f"{res.max_change[col]:.4g}°, median {res.median_change[col]:.4g}°")
+            render.message(
+                f"  {col}: {res.changed[col]} values changed; largest change "
+                f"{res.max_change[col]:.4g}°, median {res.median_change[col]:.4g}°"
+            )
         elif col in res.changed:
             render.message(f"  {col}: {res.changed[col]} values newly set or cleared")
-    unplaced = res.records - res.changed.get("paleolat", 0) if not res.max_change.get(
-        "paleolat") else None
+    unplaced = (
+        res.records - res.changed.get("paleolat", 0) if not res.max_change.get("paleolat") else None
+    )
     if unplaced:
         render.note(f"{unplaced} records without a paleo-position (see paleo_status)")

@@ -9,8 +9,11 @@ import typer
 from strata13.cli import render
 
 
-def demo(out: Annotated[Path, typer.Option("--out", help="Folder for the demo store and "
-                                           "export.")] = Path("strata13-demo")) -> None:
+def demo(
+    out: Annotated[
+        Path, typer.Option("--out", help="Folder for the demo store and export.")
+    ] = Path("strata13-demo"),
+) -> None:
     """Build a store from the invented demo data, show a broken sheet's report, query, export."""
     from strata13.compile.demo import run_demo
 

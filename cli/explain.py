@@ -11,14 +11,20 @@ from strata13.cli.common import StoreOpt
 
 
 def _num(v: object) -> str:
-    return "—" if v is None or (isinstance(v, float) and v != v) else f"{v:g}" \
-        if isinstance(v, float) else str(v)
+    return (
+        "—"
+        if v is None or (isinstance(v, float) and v != v)
+        else f"{v:g}"
+        if isinstance(v, float)
+        else str(v)
+    )
 
 
-def explain(record: Annotated[str, typer.Argument(help="A record id (or a unique prefix).")],
-            as_json: Annotated[bool, typer.Option("--json", help="Print the explanation as "
-                                                  "JSON.")] = False,
-            store: StoreOpt = None) -> None:
+def explain(
+    record: Annotated[str, typer.Argument(help="A record id (or a unique prefix).")],
+    as_json: Annotated[bool, typer.Option("--json", help="Print the explanation as JSON.")] = False,
+    store: StoreOpt = None,
+) -> None:
     """Show a record's provenance and the chain of steps behind each harmonised value."""
     from strata13.compile import api
 
@@ -27,26 +33,31 @@ def explain(record: Annotated[str, typer.Argument(help="A record id (or a unique
         typer.echo(json.dumps(info, default=str, ensure_ascii=False, indent=1))
         return
     r = info["record"]
-    lines = [f"record {r['record_id']} (store version {info['version']})",
-             f"  source   {r['source_id']}: {info['citation']}",
-             f"  where    {info['file']}, sheet {r['sheet']}, row {r['sheet_row']}",
-             f"  sample   section {r['section_id']}, sample {r['sample_id']}, replicate "
-             f"{r['replicate']}, position {_num(r['position_m'])} m ({r['position_kind'] or '—'})",
-             f"  material {r['lithology'] or '—'} / {r['component'] or '—'} / "
-             f"{r['mineralogy'] or '—'}",
-             f"  age      {_num(r['age_ma'])} Ma ({r['age_status'] or '—'})",
-             f"  paleo    {r['paleo_status'] or '—'};  screen {r['screen']}"]
+    lines = [
+        f"record {r['record_id']} (store version {info['version']})",
+        f"  source   {r['source_id']}: {info['citation']}",
+        f"  where    {info['file']}, sheet {r['sheet']}, row {r['sheet_row']}",
+        f"  sample   section {r['section_id']}, sample {r['sample_id']}, replicate "
+        f"{r['replicate']}, position {_num(r['position_m'])} m ({r['position_kind'] or '—'})",
+        f"  material {r['lithology'] or '—'} / {r['component'] or '—'} / {r['mineralogy'] or '—'}",
+        f"  age      {_num(r['age_ma'])} Ma ({r['age_status'] or '—'})",
+        f"  paleo    {r['paleo_status'] or '—'};  screen {r['screen']}",
+    ]
     for name, iso in info["isotopes"].items():
         if iso["reported"] is None:
             continue
-        lines.append(f"  {name}: reported {_num(iso['reported'])} ‰ {iso['scale'] or '(no scale)'}"
-                     f" → {_num(iso['harmonised'])} ‰ VPDB  [{iso['status']}]")
+        lines.append(
+            f"  {name}: reported {_num(iso['reported'])} ‰ {iso['scale'] or '(no scale)'}"
+            f" → {_num(iso['harmonised'])} ‰ VPDB  [{iso['status']}]"
+        )
         for k, step in enumerate(iso["steps"], 1):
             params = ", ".join(f"{key}={val}" for key, val in step.get("parameters", {}).items())
-            lines.append(f"     {k}. {step['step']}: {step['method']}"
-                         + (f" ({params})" if params else "")
-                         + f" → {_num(step.get('value_after'))} ‰;"
-                         f" change ≤ {_num(step.get('size_permil'))} ‰")
+            lines.append(
+                f"     {k}. {step['step']}: {step['method']}"
+                + (f" ({params})" if params else "")
+                + f" → {_num(step.get('value_after'))} ‰;"
+                f" change ≤ {_num(step.get('size_permil'))} ‰"
+            )
             lines.append(f"        source: {step['source']}")
             for flag in step.get("flags", []):
                 lines.append(f"        flag: {flag}")

@@ -10,18 +10,28 @@ from strata13.cli import render
 from strata13.cli.common import StoreOpt
 
 
-def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (TOML).")],
-           file: Annotated[Path | None, typer.Argument(
-               help="The sheet (xlsx, ods, csv, tsv); left out for a mapping of age ties "
-               "only. Default: the file the mapping names.", show_default=False)] = None,
-           dry_run: Annotated[bool, typer.Option("--dry-run", help="Validate and report; "
-                                                 "write nothing.")] = False,
-           keep_valid: Annotated[bool, typer.Option("--keep-valid", help="Commit valid rows; "
-                                                    "quarantine the rest.")] = False,
-           report: Annotated[Path | None, typer.Option("--report", help="Write the full "
-                                                       "report (.csv or .json).",
-                                                       show_default=False)] = None,
-           store: StoreOpt = None) -> None:
+def ingest(
+    map_: Annotated[Path, typer.Option("--map", help="The mapping file (TOML).")],
+    file: Annotated[
+        Path | None,
+        typer.Argument(
+            help="The sheet (xlsx, ods, csv, tsv); left out for a mapping of age ties "
+            "only. Default: the file the mapping names.",
+            show_default=False,
+        ),
+    ] = None,
+    dry_run: Annotated[
+        bool, typer.Option("--dry-run", help="Validate and report; write nothing.")
+    ] = False,
+    keep_valid: Annotated[
+        bool, typer.Option("--keep-valid", help="Commit valid rows; quarantine the rest.")
+    ] = False,
+    report: Annotated[
+        Path | None,
+        typer.Option("--report", help="Write the full report (.csv or .json).", show_default=False),
+    ] = None,
+    store: StoreOpt = None,
+) -> None:
     """Ingest one sheet (or a mapping of age ties only): every problem reported at once;
     nothing bad enters the store."""
     import json
@@ -33,13 +43,23 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
     from strata13.errors import ValidationFailed
 
     if report is not None:
-        output_file(report, option="--report", protect=[p for p in (file, map_) if p],
-                    stores=[api.store_path(store)])
+        output_file(
+            report,
+            option="--report",
+            protect=[p for p in (file, map_) if p],
+            stores=[api.store_path(store)],
+        )
 
     try:
         with render.progress() as step:
-            result = api.ingest(api.store_path(store), file, map_, dry_run=dry_run,
-                                keep_valid=keep_valid, progress=step)
+            result = api.ingest(
+                api.store_path(store),
+                file,
+                map_,
+                dry_run=dry_run,
+                keep_valid=keep_valid,
+                progress=step,
+            )
     except ValidationFailed as exc:
         render.report(exc.report, limit_info=True)
         if report:
@@ -53,36 +73,49 @@ def ingest(map_: Annotated[Path, typer.Option("--map", help="The mapping file (T
         render.report(result.report, limit_info=True)
     n_info = len(result.report.issues) - len(shown)
     if n_info:
-        render.note(f"{n_info} cleaning notes (decimal commas, minus signs, units …)"
-                    + ("; see the --report file" if report else "; add --report PATH to see "
-                       "them"))
+        render.note(
+            f"{n_info} cleaning notes (decimal commas, minus signs, units …)"
+            + ("; see the --report file" if report else "; add --report PATH to see them")
+        )
     if result.dry_run:
-        render.message(f"dry run: {result.source_id} would commit {result.committed} records "
-                       f"and quarantine {result.quarantined}; nothing was written.")
+        render.message(
+            f"dry run: {result.source_id} would commit {result.committed} records "
+            f"and quarantine {result.quarantined}; nothing was written."
+        )
     elif result.unchanged:
-        render.message(f"{result.source_id}: no record, row or source detail would change; "
-                       "no new version.")
+        render.message(
+            f"{result.source_id}: no record, row or source detail would change; no new version."
+        )
     else:
         moved = f", {result.moved} moved to other rows" if result.moved else ""
-        render.message(f"{result.source_id}: committed as version {result.version} — "
-                       f"{result.added} added, {result.removed} removed, {result.changed} "
-                       f"changed{moved}.")
+        render.message(
+            f"{result.source_id}: committed as version {result.version} — "
+            f"{result.added} added, {result.removed} removed, {result.changed} "
+            f"changed{moved}."
+        )
     if result.ties or result.redated:
-        render.message(f"age ties: {result.ties} from this source"
-                       + (f"; {result.redated} records of other sources re-dated"
-                          if result.redated else ""))
+        render.message(
+            f"age ties: {result.ties} from this source"
+            + (f"; {result.redated} records of other sources re-dated" if result.redated else "")
+        )
     if result.report.rows_read:
         render.message(reconcile(result))
     if result.orphaned:
-        render.note(f"{result.orphaned} stored correction(s) name records this sheet no longer "
-                    "has; see `strata13 corrections`")
+        render.note(
+            f"{result.orphaned} stored correction(s) name records this sheet no longer "
+            "has; see `strata13 corrections`"
+        )
     for q in result.run_qc:
         warn = f"; WARNING {q['warnings']}" if q["warnings"] else ""
         prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"
         res = ", ".join(f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items())
-        render.message(f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
-                       f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
-                       f"{res or '—'}; precision 1σ {prec}{warn}")
+        render.message(
+            f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
+            f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
+            f"{res or '—'}; precision 1σ {prec}{warn}"
+        )
     if result.pending:
-        render.note("pending (kept as reported, not yet harmonised or dated): " + ", ".join(
-            f"{k} {v}" for k, v in sorted(result.pending.items())))
+        render.note(
+            "pending (kept as reported, not yet harmonised or dated): "
+            + ", ".join(f"{k} {v}" for k, v in sorted(result.pending.items()))
+        )

@@ -10,30 +10,64 @@ from strata13.cli import render
 from strata13.cli.common import StoreOpt
 
 
-def init(store: StoreOpt = None,
-         time_scale: Annotated[str, typer.Option("--time-scale", help="Time scale of the "
-                                                 "store's ages.")] = "ICS2024/12",
-         regions: Annotated[Path | None, typer.Option("--regions", help="GeoJSON "
-                                                      "FeatureCollection of named regions.",
-                                                      show_default=False)] = None,
-         rules: Annotated[Path | None, typer.Option("--rules", help="Screening rule file "
-                                                    "(TOML; default: the shipped rules).",
-                                                    show_default=False)] = None,
-         materials: Annotated[Path | None, typer.Option(
-             "--materials", help="Your reference-material file (CSV, same columns as the "
-             "shipped table); its values are accepted before the shipped ones.",
-             show_default=False)] = None,
-         rotations: Annotated[tuple[Path, Path] | None, typer.Option(
-             "--rotations", help="Rotation model (CSV) and plate polygons (GeoJSON): "
-             "--rotations MODEL POLYGONS.", show_default=False)] = None,
-         extrapolate: Annotated[bool, typer.Option(
-             "--extrapolate-ages", help="Let age models date samples beyond their outermost "
-             "ties (flagged). Off by default.")] = False) -> None:
+def init(
+    store: StoreOpt = None,
+    time_scale: Annotated[
+        str, typer.Option("--time-scale", help="Time scale of the store's ages.")
+    ] = "ICS2024/12",
+    regions: Annotated[
+        Path | None,
+        typer.Option(
+            "--regions", help="GeoJSON FeatureCollection of named regions.", show_default=False
+        ),
+    ] = None,
+    rules: Annotated[
+        Path | None,
+        typer.Option(
+            "--rules",
+            help="Screening rule file (TOML; default: the shipped rules).",
+            show_default=False,
+        ),
+    ] = None,
+    materials: Annotated[
+        Path | None,
+        typer.Option(
+            "--materials",
+            help="Your reference-material file (CSV, same columns as the "
+            "shipped table); its values are accepted before the shipped ones.",
+            show_default=False,
+        ),
+    ] = None,
+    rotations: Annotated[
+        tuple[Path, Path] | None,
+        typer.Option(
+            "--rotations",
+            help="Rotation model (CSV) and plate polygons (GeoJSON): --rotations MODEL POLYGONS.",
+            show_default=False,
+        ),
+    ] = None,
+    extrapolate: Annotated[
+        bool,
+        typer.Option(
+            "--extrapolate-ages",
+            help="Let age models date samples beyond their outermost "
+            "ties (flagged). Off by default.",
+        ),
+    ] = False,
+) -> None:
     """Create a new, empty store and choose its settings."""
     from strata13.compile import api
 
-    s = api.init_store(api.store_path(store), time_scale=time_scale, regions=regions,
-                       rules=rules, age_extrapolation=extrapolate, materials=materials,
-                       rotations=rotations)
-    render.message(f"created store {s.path} (version 1; time scale "
-                   f"{api.open_store(s.path).settings()['time_scale']})")
+    s = api.init_store(
+        api.store_path(store),
+        time_scale=time_scale,
+        regions=regions,
+        rules=rules,
+        age_extrapolation=extrapolate,
+        materials=materials,
+        rotations=rotations,
+    )
+    render.message(
+        f"created store {s.path} (version 1; time scale "
+        f"{api.open_store(s.path).settings()['time_scale']})"
+    )

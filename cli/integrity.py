@@ -25,21 +25,45 @@ from strata13.cli.common import (
     check_format,
 )
 
-PAIR_COLUMNS = ["record_a", "source_a", "record_b", "source_b", "locality", "position_a_m",
-                "position_b_m", "d13c_a", "d13c_b", "score", "decision", "reasons"]
+PAIR_COLUMNS = [
+    "record_a",
+    "source_a",
+    "record_b",
+    "source_b",
+    "locality",
+    "position_a_m",
+    "position_b_m",
+    "d13c_a",
+    "d13c_b",
+    "score",
+    "decision",
+    "reasons",
+]
 
 
-def overlaps(source: Annotated[str | None, typer.Option(
-                 "--source", help="Only pairs involving this source.", show_default=False)]
-             = None,
-             confirm: Annotated[Path | None, typer.Option(
-                 "--confirm", help="Store decisions: a CSV with record_a,record_b,decision "
-                 "(confirm|reject),note.", show_default=False)] = None,
-             position_tol: Annotated[float, typer.Option(
-                 "--position-tol", help="Position tolerance (m).")] = 0.5,
-             value_tol: Annotated[float, typer.Option(
-                 "--value-tol", help="δ tolerance (‰, harmonised).")] = 0.15,
-             fmt: FormatOpt = "table", out: OutOpt = None, store: StoreOpt = None) -> None:
+def overlaps(
+    source: Annotated[
+        str | None,
+        typer.Option("--source", help="Only pairs involving this source.", show_default=False),
+    ] = None,
+    confirm: Annotated[
+        Path | None,
+        typer.Option(
+            "--confirm",
+            help="Store decisions: a CSV with record_a,record_b,decision (confirm|reject),note.",
+            show_default=False,
+        ),
+    ] = None,
+    position_tol: Annotated[
+        float, typer.Option("--position-tol", help="Position tolerance (m).")
+    ] = 0.5,
+    value_tol: Annotated[
+        float, typer.Option("--value-tol", help="δ tolerance (‰, harmonised).")
+    ] = 0.15,
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    store: StoreOpt = None,
+) -> None:
     """Probable duplicates between sources — same or nearby locality, position and
     harmonised value within tolerances — scored and explained; --confirm stores your
     decisions (confirmed duplicates are then counted once; nothing is deleted)."""
@@ -50,34 +74,50 @@ def overlaps(source: Annotated[str | None, typer.Option(
     s = api.open_store(path)
     if confirm is not None:
         version, n_conf, n_rej = api.confirm_overlaps(s, confirm)
-        render.message(f"stored {n_conf} confirmed and {n_rej} rejected pair(s) as version "
-                       f"{version}; confirmed duplicates are counted once from now on "
-                       "(--keep-duplicates keeps both).")
+        render.message(
+            f"stored {n_conf} confirmed and {n_rej} rejected pair(s) as version "
+            f"{version}; confirmed duplicates are counted once from now on "
+            "(--keep-duplicates keeps both)."
+        )
         return
     pairs = api.overlaps(s, source, position_tol_m=position_tol, value_tol_permil=value_tol)
     if not len(pairs):
         render.message("no probable duplicates between sources.")
     render.table(PAIR_COLUMNS, pairs[PAIR_COLUMNS].itertuples(index=False, name=None), fmt, out)
     if len(pairs):
-        render.note(f"{len(pairs)} pair(s); decide with --confirm FILE "
-                    "(columns record_a,record_b,decision,note)")
+        render.note(
+            f"{len(pairs)} pair(s); decide with --confirm FILE "
+            "(columns record_a,record_b,decision,note)"
+        )
 
 
-def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
-             region: RegionOpt = None, frame: FrameOpt = "present",
-             lithology: LithologyOpt = None, component: ComponentOpt = None,
-             source: SourceOpt = None, screened: ScreenedOpt = "all",
-             keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
-             by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")]
-             = "region",
-             bin_myr: Annotated[float | None, typer.Option(
-                 "--bin-myr", help="Bin width (default: the stages of the store's chart).",
-                 show_default=False)] = None,
-             fmt: FormatOpt = "table",
-             out: Annotated[Path | None, typer.Option(
-                 "--out", help="Folder for coverage.csv and the heatmap.",
-                 show_default=False)] = None,
-             store: StoreOpt = None) -> None:
+def coverage(
+    interval: IntervalOpt = None,
+    time_scale: TimeScaleOpt = None,
+    region: RegionOpt = None,
+    frame: FrameOpt = "present",
+    lithology: LithologyOpt = None,
+    component: ComponentOpt = None,
+    source: SourceOpt = None,
+    screened: ScreenedOpt = "all",
+    keep_duplicates: KeepDupOpt = False,
+    paleolat: PaleolatOpt = None,
+    by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")] = "region",
+    bin_myr: Annotated[
+        float | None,
+        typer.Option(
+            "--bin-myr",
+            help="Bin width (default: the stages of the store's chart).",
+            show_default=False,
+        ),
+    ] = None,
+    fmt: FormatOpt = "table",
+    out: Annotated[
+        Path | None,
+        typer.Option("--out", help="Folder for coverage.csv and the heatmap.", show_default=False),
+    ] = None,
+    store: StoreOpt = None,
+) -> None:
     """Samples and sections per time bin × region (or paleolatitude band) × component,
     empty cells included: where the curve is well founded and where it is not."""
     from strata13.compile import api
@@ -92,8 +132,19 @@ def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     if out is not None:
         output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
-    filters = build_filters(s, interval, region, frame, lithology, component, source,
-                            screened, time_scale, keep_duplicates, paleolat)
+    filters = build_filters(
+        s,
+        interval,
+        region,
+        frame,
+        lithology,
+        component,
+        source,
+        screened,
+        time_scale,
+        keep_duplicates,
+        paleolat,
+    )
     table, files = api.coverage(s, filters, by, bin_myr, out)
     render.table(list(table.columns), table.itertuples(index=False, name=None), fmt, None)
     empty = int((table["n_samples"] == 0).sum())
@@ -101,24 +152,50 @@ def coverage(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     for name, sha in sorted(files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")
 
-LIST_COLUMNS = ["source_id", "section_id", "sample_id", "record_id", "field", "published",
-                "corrected", "why", "created_utc", "status"]
+
+LIST_COLUMNS = [
+    "source_id",
+    "section_id",
+    "sample_id",
+    "record_id",
+    "field",
+    "published",
+    "corrected",
+    "why",
+    "created_utc",
+    "status",
+]
 
 
-def correct(record: Annotated[str | None, typer.Argument(
-                help="Record id (or a unique prefix of at least 6 characters).",
-                show_default=False)] = None,
-            field: Annotated[str | None, typer.Argument(help="Field to correct.",
-                                                       show_default=False)] = None,
-            value: Annotated[str | None, typer.Argument(help="The corrected value.",
-                                                       show_default=False)] = None,
-            why: Annotated[str | None, typer.Option(
-                "--why", help="Why: what is wrong and how you know (required).",
-                show_default=False)] = None,
-            file: Annotated[Path | None, typer.Option(
-                "--file", help="Many corrections: a CSV with record_id,field,value,why.",
-                show_default=False)] = None,
-            store: StoreOpt = None) -> None:
+def correct(
+    record: Annotated[
+        str | None,
+        typer.Argument(
+            help="Record id (or a unique prefix of at least 6 characters).", show_default=False
+        ),
+    ] = None,
+    field: Annotated[
+        str | None, typer.Argument(help="Field to correct.", show_default=False)
+    ] = None,
+    value: Annotated[
+        str | None, typer.Argument(help="The corrected value.", show_default=False)
+    ] = None,
+    why: Annotated[
+        str | None,
+        typer.Option(
+            "--why", help="Why: what is wrong and how you know (required).", show_default=False
+        ),
+    ] = None,
+    file: Annotated[
+        Path | None,
+        typer.Option(
+            "--file",
+            help="Many corrections: a CSV with record_id,field,value,why.",
+            show_default=False,
+        ),
+    ] = None,
+    store: StoreOpt = None,
+) -> None:
     """Record a correction of a published value (kept as data, applied on every
     derivation, kept across re-ingests while the record exists)."""
     from strata13.compile import api
@@ -128,24 +205,30 @@ def correct(record: Annotated[str | None, typer.Argument(
 
     if file is not None:
         if record or field or value or why:
-            raise OptionError("give either --file or RECORD FIELD VALUE --why, not both.",
-                              "One correction on the command line, many in a file.")
+            raise OptionError(
+                "give either --file or RECORD FIELD VALUE --why, not both.",
+                "One correction on the command line, many in a file.",
+            )
         items = read_file(file)
     else:
         if not (record and field and value is not None):
-            raise OptionError("correct needs RECORD FIELD VALUE (or --file FILE).",
-                              "Example: strata13 correct 0e0e85f9f1 d13c_carb 1.2 --why "
-                              "\"minus sign lost\"")
+            raise OptionError(
+                "correct needs RECORD FIELD VALUE (or --file FILE).",
+                'Example: strata13 correct 0e0e85f9f1 d13c_carb 1.2 --why "minus sign lost"',
+            )
         items = [Correction(record, field, value, why or "")]
     s = api.open_store(api.store_path(store))
     res = api.correct(s, items)
-    render.message(f"{res.added + res.replaced} correction(s) stored as version {res.version}"
-                   + (f" ({res.replaced} replacing earlier ones)" if res.replaced else "")
-                   + f"; re-derived: {', '.join(res.sources)}")
+    render.message(
+        f"{res.added + res.replaced} correction(s) stored as version {res.version}"
+        + (f" ({res.replaced} replacing earlier ones)" if res.replaced else "")
+        + f"; re-derived: {', '.join(res.sources)}"
+    )
 
 
-def corrections(source: SourceOpt = None, fmt: FormatOpt = "table", out: OutOpt = None,
-                store: StoreOpt = None) -> None:
+def corrections(
+    source: SourceOpt = None, fmt: FormatOpt = "table", out: OutOpt = None, store: StoreOpt = None
+) -> None:
     """List the corrections (what was published, what it should be, why), ready to send to
     the authors; orphaned ones name records that a re-ingest removed."""
     from strata13.compile import api

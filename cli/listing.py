@@ -14,8 +14,16 @@ def sources(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None
 
     check_format(fmt, out, api.store_path(store))
     rows = api.sources(api.open_store(api.store_path(store)))
-    cols = ["source_id", "kind", "year", "n_records", "quarantined", "ingested_version",
-            "file_name", "citation"]
+    cols = [
+        "source_id",
+        "kind",
+        "year",
+        "n_records",
+        "quarantined",
+        "ingested_version",
+        "file_name",
+        "citation",
+    ]
     if not rows:
         render.message("the store holds no sources yet.")
     render.table(cols, [[r[c] for c in cols] for r in rows], fmt, out)
@@ -27,7 +35,12 @@ def history(store: StoreOpt = None, fmt: FormatOpt = "table", out: OutOpt = None
 
     check_format(fmt, out, api.store_path(store))
     versions = api.history(api.open_store(api.store_path(store)))
-    render.table(["version", "time_utc", "command", "detail", "summary"],
-                 [[v.version, v.time, v.command, v.detail, json.dumps(v.summary, sort_keys=True)]
-                  for v in versions], fmt, out)
-
+    render.table(
+        ["version", "time_utc", "command", "detail", "summary"],
+        [
+            [v.version, v.time, v.command, v.detail, json.dumps(v.summary, sort_keys=True)]
+            for v in versions
+        ],
+        fmt,
+        out,
+    )

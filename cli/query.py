@@ -24,26 +24,57 @@ from strata13.cli.common import (
     check_format,
 )
 
-BRIEF = ["record_id", "source_id", "section_id", "sample_id", "position_m", "age_ma",
-         "component", "d13c_carb", "d18o_carb", "screen"]
+BRIEF = [
+    "record_id",
+    "source_id",
+    "section_id",
+    "sample_id",
+    "position_m",
+    "age_ma",
+    "component",
+    "d13c_carb",
+    "d18o_carb",
+    "screen",
+]
 
 
-def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
-          region: RegionOpt = None, frame: FrameOpt = "present",
-          lithology: LithologyOpt = None, component: ComponentOpt = None,
-          source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
-          fmt: FormatOpt = "table", out: OutOpt = None,
-          all_columns: Annotated[bool, typer.Option("--all-columns", help="Every column of the "
-                                                    "records view in table output.")] = False,
-          store: StoreOpt = None) -> None:
+def query(
+    interval: IntervalOpt = None,
+    time_scale: TimeScaleOpt = None,
+    region: RegionOpt = None,
+    frame: FrameOpt = "present",
+    lithology: LithologyOpt = None,
+    component: ComponentOpt = None,
+    source: SourceOpt = None,
+    screened: ScreenedOpt = "all",
+    keep_duplicates: KeepDupOpt = False,
+    paleolat: PaleolatOpt = None,
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    all_columns: Annotated[
+        bool,
+        typer.Option("--all-columns", help="Every column of the records view in table output."),
+    ] = False,
+    store: StoreOpt = None,
+) -> None:
     """Records for a time bin, a region, materials and sources."""
     from strata13.compile import api
 
     check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
-    filters = build_filters(s, interval, region, frame, lithology, component,
-                            source, screened, time_scale, keep_duplicates, paleolat)
+    filters = build_filters(
+        s,
+        interval,
+        region,
+        frame,
+        lithology,
+        component,
+        source,
+        screened,
+        time_scale,
+        keep_duplicates,
+        paleolat,
+    )
     tbl = api.query_arrow(s, filters)
     if fmt == "table" and not all_columns:
         tbl = tbl.select(BRIEF)
@@ -54,13 +85,16 @@ def query(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
         render.note(render.plural(tbl.num_rows, "record"))
 
 
-def sql(statement: Annotated[str, typer.Argument(help="One SELECT (or EXPLAIN) over the "
-                                                 "views.")],
-        fmt: FormatOpt = "table", out: OutOpt = None,
-        timeout: Annotated[float, typer.Option("--timeout", help="Seconds before the query is "
-                                               "stopped.")] = 30.0,
-        max_rows: Annotated[int, typer.Option("--max-rows", help="Row cap.")] = 100_000,
-        store: StoreOpt = None) -> None:
+def sql(
+    statement: Annotated[str, typer.Argument(help="One SELECT (or EXPLAIN) over the views.")],
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    timeout: Annotated[
+        float, typer.Option("--timeout", help="Seconds before the query is stopped.")
+    ] = 30.0,
+    max_rows: Annotated[int, typer.Option("--max-rows", help="Row cap.")] = 100_000,
+    store: StoreOpt = None,
+) -> None:
     """Read-only SQL over the views records, sources, localities, sections, samples, …"""
     from strata13.compile import api
 

@@ -10,24 +10,40 @@ from strata13.cli import render
 from strata13.cli.common import StoreOpt
 
 
-def reharmonise(vsmow_constants: Annotated[str | None, typer.Option(
-        "--vsmow-constants", help="VSMOW–VPDB relation by name (see `strata13 scales`).",
-        show_default=False)] = None,
-        materials: Annotated[Path | None, typer.Option(
-            "--materials", help="Reference-material file (CSV, the columns of `strata13 "
-            "scales --format csv`) whose values the store accepts.", show_default=False)] = None,
-        store: StoreOpt = None) -> None:
+def reharmonise(
+    vsmow_constants: Annotated[
+        str | None,
+        typer.Option(
+            "--vsmow-constants",
+            help="VSMOW–VPDB relation by name (see `strata13 scales`).",
+            show_default=False,
+        ),
+    ] = None,
+    materials: Annotated[
+        Path | None,
+        typer.Option(
+            "--materials",
+            help="Reference-material file (CSV, the columns of `strata13 "
+            "scales --format csv`) whose values the store accepts.",
+            show_default=False,
+        ),
+    ] = None,
+    store: StoreOpt = None,
+) -> None:
     """Recompute every harmonised value with the store's (changed) settings, in one commit."""
     from strata13.compile import api
 
     res = api.reharmonise(api.open_store(api.store_path(store)), vsmow_constants, materials)
     if res.version is None:
-        render.message(f"0 changed: {res.records} records already match these settings; "
-                       "no new version.")
+        render.message(
+            f"0 changed: {res.records} records already match these settings; no new version."
+        )
         return
     render.message(f"reharmonised {res.records} records as version {res.version}.")
     for col, n in sorted(res.changed.items()):
-        render.message(f"  {col}: {n} values changed; largest change "
-                       f"{res.max_change[col]:.4g} ‰, median {res.median_change[col]:.4g} ‰")
+        render.message(
+            f"  {col}: {n} values changed; largest change "
+            f"{res.max_change[col]:.4g} ‰, median {res.median_change[col]:.4g} ‰"
+        )
     if not res.changed:
         render.message("  no value changed (settings and statuses were updated).")

@@ -59,8 +59,14 @@ def _cell(v: Any, short: bool = False) -> str:
     return str(v)
 
 
-def table(columns: Sequence[str], rows: Sequence[Sequence[Any]], fmt: str = "table",
-          out: Path | None = None, title: str | None = None, stderr: bool = False) -> None:
+def table(
+    columns: Sequence[str],
+    rows: Sequence[Sequence[Any]],
+    fmt: str = "table",
+    out: Path | None = None,
+    title: str | None = None,
+    stderr: bool = False,
+) -> None:
     """Write rows in the chosen format to ``out`` or stdout (stderr for reports)."""
     if fmt == "parquet":
         if out is None:
@@ -68,20 +74,26 @@ def table(columns: Sequence[str], rows: Sequence[Sequence[Any]], fmt: str = "tab
         import pyarrow as pa
         import pyarrow.parquet as pq
 
-        pq.write_table(pa.Table.from_pylist([dict(zip(columns, r, strict=True)) for r in rows]),
-                       out)
+        pq.write_table(
+            pa.Table.from_pylist([dict(zip(columns, r, strict=True)) for r in rows]), out
+        )
         return
     if fmt == "json":
-        text = json.dumps([dict(zip(columns, [_json(v) for v in r], strict=True)) for r in rows],
-                          ensure_ascii=False, indent=1) + "\n"
+        text = (
+            json.dumps(
+                [dict(zip(columns, [_json(v) for v in r], strict=True)) for r in rows],
+                ensure_ascii=False,
+                indent=1,
+            )
+            + "\n"
+        )
     elif fmt == "csv":
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow(columns)
         from strata13.compile.export.package import neutralise
 
-        w.writerows([[neutralise(v) if isinstance(v, str) else _cell(v) for v in r]
-                     for r in rows])
+        w.writerows([[neutralise(v) if isinstance(v, str) else _cell(v) for v in r] for r in rows])
         text = buf.getvalue()
     else:
         stream = sys.stderr if stderr else sys.stdout
@@ -95,9 +107,10 @@ def table(columns: Sequence[str], rows: Sequence[Sequence[Any]], fmt: str = "tab
                 t.add_row(*[_escape(_cell(v, short=True)) for v in r])
             _console(stderr=stderr).print(t)
             return
-        text = "".join("\t".join(_cell(v, True).replace("\t", " ").replace("\n", " ")
-                                 for v in r)
-                       + "\n" for r in [list(columns), *rows])
+        text = "".join(
+            "\t".join(_cell(v, True).replace("\t", " ").replace("\n", " ") for v in r) + "\n"
+            for r in [list(columns), *rows]
+        )
     if out is not None:
         out.write_text(text, encoding="utf-8")
     elif stderr:
@@ -144,8 +157,14 @@ def report(rep: Any, limit_info: bool = False) -> None:
     writes them all), info lines counted by the caller."""
     items = [i for i in rep.sorted() if limit_info is False or i.severity != "info"]
     cols = ["severity", "sheet", "cell", "column", "value", "rule", "hint"]
-    table(cols, [[getattr(i, c) for c in cols] for i in items[:REPORT_LINES]], "table", None,
-          title="validation report", stderr=True)
+    table(
+        cols,
+        [[getattr(i, c) for c in cols] for i in items[:REPORT_LINES]],
+        "table",
+        None,
+        title="validation report",
+        stderr=True,
+    )
     if len(items) > REPORT_LINES:
         message(f"… and {len(items) - REPORT_LINES} more lines; --report PATH writes them all.")
 

@@ -9,13 +9,38 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, check_format
 
-StoreOnly = Annotated[Path | None, typer.Option(
-    "--store", help="Mark the settings of this store (optional).", show_default=False)]
-MATERIAL_COLUMNS = ["material", "value_set", "status", "in_store", "d13c", "d13c_unc",
-                    "d13c_unc_kind", "d13c_scale", "d18o", "d18o_unc", "d18o_unc_kind",
-                    "d18o_scale", "valid_from", "valid_to", "confidence", "source"]
-RELATION_COLUMNS = ["name", "form", "slope", "intercept", "status", "confidence", "in_store",
-                    "source"]
+StoreOnly = Annotated[
+    Path | None,
+    typer.Option("--store", help="Mark the settings of this store (optional).", show_default=False),
+]
+MATERIAL_COLUMNS = [
+    "material",
+    "value_set",
+    "status",
+    "in_store",
+    "d13c",
+    "d13c_unc",
+    "d13c_unc_kind",
+    "d13c_scale",
+    "d18o",
+    "d18o_unc",
+    "d18o_unc_kind",
+    "d18o_scale",
+    "valid_from",
+    "valid_to",
+    "confidence",
+    "source",
+]
+RELATION_COLUMNS = [
+    "name",
+    "form",
+    "slope",
+    "intercept",
+    "status",
+    "confidence",
+    "in_store",
+    "source",
+]
 
 
 def scales(store: StoreOnly = None, fmt: FormatOpt = "table", out: OutOpt = None) -> None:
@@ -26,12 +51,25 @@ def scales(store: StoreOnly = None, fmt: FormatOpt = "table", out: OutOpt = None
     check_format(fmt, out, store)
     s = api.open_store(store) if store is not None else None
     info = api.scales(s)
-    render.table(RELATION_COLUMNS, [[r[c] for c in RELATION_COLUMNS] for r in info["relations"]],
-                 "table", None, title="δ18O VSMOW–VPDB relations", stderr=True)
-    render.table(MATERIAL_COLUMNS, [[m[c] for c in MATERIAL_COLUMNS] for m in info["materials"]],
-                 fmt, out, title="reference materials (‰)")
+    render.table(
+        RELATION_COLUMNS,
+        [[r[c] for c in RELATION_COLUMNS] for r in info["relations"]],
+        "table",
+        None,
+        title="δ18O VSMOW–VPDB relations",
+        stderr=True,
+    )
+    render.table(
+        MATERIAL_COLUMNS,
+        [[m[c] for c in MATERIAL_COLUMNS] for m in info["materials"]],
+        fmt,
+        out,
+        title="reference materials (‰)",
+    )
     if s is None:
         render.note("shipped tables; add --store DIR to mark the values a store uses")
     else:
-        render.note("in_store: the isotopes (d13c, d18o) for which the store accepts that row's "
-                    "value when it re-anchors")
+        render.note(
+            "in_store: the isotopes (d13c, d18o) for which the store accepts that row's "
+            "value when it re-anchors"
+        )

@@ -9,24 +9,56 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
 
-GROUP_COLUMNS = ["rule", "source_id", "section_id", "group", "n", "n_eff", "r", "r2", "p",
-                 "outcome"]
+GROUP_COLUMNS = [
+    "rule",
+    "source_id",
+    "section_id",
+    "group",
+    "n",
+    "n_eff",
+    "r",
+    "r2",
+    "p",
+    "outcome",
+]
 
 
-def screen(rules: Annotated[Path | None, typer.Option(
-               "--rules", help="Rule file (TOML) to become the store's rule set.",
-               show_default=False)] = None,
-           untested: Annotated[str | None, typer.Option(
-               "--untested", help="Store setting: 'fails' (default) or 'passes' — whether an "
-               "untested rule counts as passed.", show_default=False)] = None,
-           summary: Annotated[bool, typer.Option(
-               "--summary", help="Counts per source, section, rule and outcome, and the "
-               "covariance statistics per group.")] = False,
-           plot: Annotated[Path | None, typer.Option(
-               "--plot", help="Write one δ13C–δ18O cross-plot per section (PNG) into this "
-               "folder.", show_default=False)] = None,
-           fmt: FormatOpt = "table", out: OutOpt = None,
-           store: StoreOpt = None) -> None:
+def screen(
+    rules: Annotated[
+        Path | None,
+        typer.Option(
+            "--rules", help="Rule file (TOML) to become the store's rule set.", show_default=False
+        ),
+    ] = None,
+    untested: Annotated[
+        str | None,
+        typer.Option(
+            "--untested",
+            help="Store setting: 'fails' (default) or 'passes' — whether an "
+            "untested rule counts as passed.",
+            show_default=False,
+        ),
+    ] = None,
+    summary: Annotated[
+        bool,
+        typer.Option(
+            "--summary",
+            help="Counts per source, section, rule and outcome, and the "
+            "covariance statistics per group.",
+        ),
+    ] = False,
+    plot: Annotated[
+        Path | None,
+        typer.Option(
+            "--plot",
+            help="Write one δ13C–δ18O cross-plot per section (PNG) into this folder.",
+            show_default=False,
+        ),
+    ] = None,
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    store: StoreOpt = None,
+) -> None:
     """Screen every record with the store's rules (rules of thumb: your judgement and your
     lab's practice decide). Screening flags records; it never changes or deletes them."""
     from strata13.compile import api
@@ -36,33 +68,49 @@ def screen(rules: Annotated[Path | None, typer.Option(
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
     if untested not in (None, "fails", "passes"):
-        raise OptionError(f"--untested {untested!r} is not 'fails' or 'passes'.",
-                          "Example: --untested passes")
+        raise OptionError(
+            f"--untested {untested!r} is not 'fails' or 'passes'.", "Example: --untested passes"
+        )
     s = api.open_store(path)
     if rules is not None or untested is not None or not (summary or plot):
         res = api.screen(s, rules, None if untested is None else untested == "passes")
         settings = s.settings()
         name = settings.get("screen_rules_name") or "the default rules"
         if res.version is None:
-            render.message(f"0 changed: {res.records} records already screened with {name}; "
-                           "no new version.")
+            render.message(
+                f"0 changed: {res.records} records already screened with {name}; no new version."
+            )
         else:
-            render.message(f"screened {res.records} records with {name} as version "
-                           f"{res.version}: {res.screen_changed} overall results changed.")
+            render.message(
+                f"screened {res.records} records with {name} as version "
+                f"{res.version}: {res.screen_changed} overall results changed."
+            )
     if summary or plot:
         records, screening, counts = api.screen_report(s)
         if summary:
             cols = counts.column_names
-            render.table(cols, [list(r.values()) for r in counts.to_pylist()], fmt, out,
-                         title="screen results per source, section, rule and outcome")
+            render.table(
+                cols,
+                [list(r.values()) for r in counts.to_pylist()],
+                fmt,
+                out,
+                title="screen results per source, section, rule and outcome",
+            )
             g = screening.groups
             if g.num_rows:
-                render.table(GROUP_COLUMNS, [[r[c] for c in GROUP_COLUMNS]
-                                             for r in g.to_pylist()], "table", None,
-                             title="covariance per group (δ13C vs δ18O)", stderr=True)
+                render.table(
+                    GROUP_COLUMNS,
+                    [[r[c] for c in GROUP_COLUMNS] for r in g.to_pylist()],
+                    "table",
+                    None,
+                    title="covariance per group (δ13C vs δ18O)",
+                    stderr=True,
+                )
             overall = screening.overall.column("screen").value_counts().to_pylist()
-            render.note("overall: " + ", ".join(f"{d['values']} {d['counts']}"
-                                                for d in sorted(overall, key=str)))
+            render.note(
+                "overall: "
+                + ", ".join(f"{d['values']} {d['counts']}" for d in sorted(overall, key=str))
+            )
         if plot is not None:
             files = api.screen_plots(s, records, screening, plot)
             render.message(f"wrote {len(files)} cross-plots to {plot}")

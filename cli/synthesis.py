@@ -24,40 +24,76 @@ from strata13.cli.common import (
     check_format,
 )
 
-ByOpt = Annotated[str | None, typer.Option(
-    "--by", help="Group by region | paleolat-band | source | setting | component (default: "
-    "component and setting).", show_default=False)]
+ByOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--by",
+        help="Group by region | paleolat-band | source | setting | component (default: "
+        "component and setting).",
+        show_default=False,
+    ),
+]
 IsotopeOpt = Annotated[str, typer.Option("--isotope", help="carb | org: which δ13C.")]
-BinOpt = Annotated[float | None, typer.Option(
-    "--bin-myr", help="Bin width in Myr (default: the stages of the store's chart).",
-    show_default=False)]
-SpanOpt = Annotated[float, typer.Option("--span", help="LOESS span: fraction of samples in "
-                                        "each local fit.")]
+BinOpt = Annotated[
+    float | None,
+    typer.Option(
+        "--bin-myr",
+        help="Bin width in Myr (default: the stages of the store's chart).",
+        show_default=False,
+    ),
+]
+SpanOpt = Annotated[
+    float, typer.Option("--span", help="LOESS span: fraction of samples in each local fit.")
+]
 BootsOpt = Annotated[int, typer.Option("--boots", help="Section bootstrap draws for the band.")]
 SeedOpt = Annotated[int, typer.Option("--seed", help="Random seed (same seed, same files).")]
-MinSecOpt = Annotated[int, typer.Option("--min-sections", help="Hide the band where fewer "
-                                        "sections contribute.")]
+MinSecOpt = Annotated[
+    int, typer.Option("--min-sections", help="Hide the band where fewer sections contribute.")
+]
 WeightOpt = Annotated[str, typer.Option("--weight", help="sections | samples.")]
-DrawsOpt = Annotated[int, typer.Option("--age-draws", help="Age draws carried into the band "
-                                       "(0: ages fixed).")]
-MixedOpt = Annotated[bool, typer.Option("--allow-mixed", help="Merge carbonate and organic "
-                                        "δ13C into one curve (the figure says so).")]
-RobustOpt = Annotated[bool, typer.Option("--robustness", help="Refit leaving out each source "
-                                         "and section; list the most influential.")]
+DrawsOpt = Annotated[
+    int, typer.Option("--age-draws", help="Age draws carried into the band (0: ages fixed).")
+]
+MixedOpt = Annotated[
+    bool,
+    typer.Option(
+        "--allow-mixed",
+        help="Merge carbonate and organic δ13C into one curve (the figure says so).",
+    ),
+]
+RobustOpt = Annotated[
+    bool,
+    typer.Option(
+        "--robustness", help="Refit leaving out each source and section; list the most influential."
+    ),
+]
 
 
-def curve(out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, figure and "
-                                            "manifest.")],
-          interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
-          region: RegionOpt = None, frame: FrameOpt = "present",
-          lithology: LithologyOpt = None, component: ComponentOpt = None,
-          source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None,
-          isotope: IsotopeOpt = "carb", by: ByOpt = None, bin_myr: BinOpt = None,
-          span: SpanOpt = 0.3, boots: BootsOpt = 200, seed: SeedOpt = 0,
-          min_sections: MinSecOpt = 5, weight: WeightOpt = "sections",
-          age_draws: DrawsOpt = 0, allow_mixed: MixedOpt = False,
-          robustness: RobustOpt = False, store: StoreOpt = None) -> None:
+def curve(
+    out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, figure and manifest.")],
+    interval: IntervalOpt = None,
+    time_scale: TimeScaleOpt = None,
+    region: RegionOpt = None,
+    frame: FrameOpt = "present",
+    lithology: LithologyOpt = None,
+    component: ComponentOpt = None,
+    source: SourceOpt = None,
+    screened: ScreenedOpt = "all",
+    keep_duplicates: KeepDupOpt = False,
+    paleolat: PaleolatOpt = None,
+    isotope: IsotopeOpt = "carb",
+    by: ByOpt = None,
+    bin_myr: BinOpt = None,
+    span: SpanOpt = 0.3,
+    boots: BootsOpt = 200,
+    seed: SeedOpt = 0,
+    min_sections: MinSecOpt = 5,
+    weight: WeightOpt = "sections",
+    age_draws: DrawsOpt = 0,
+    allow_mixed: MixedOpt = False,
+    robustness: RobustOpt = False,
+    store: StoreOpt = None,
+) -> None:
     """A composite δ13C curve per group: binned statistics, LOESS with a section-bootstrap
     band, optional age draws and leave-one-out robustness; CSVs, PNG, SVG and a manifest."""
     from strata13.compile import api
@@ -66,43 +102,93 @@ def curve(out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, 
 
     path = api.store_path(store)
     output_dir(out, option="--out", stores=[path])
-    req = CurveRequest(isotope, bin_myr, span, boots, seed, min_sections, weight, age_draws,
-                       by, allow_mixed, robustness)
+    req = CurveRequest(
+        isotope,
+        bin_myr,
+        span,
+        boots,
+        seed,
+        min_sections,
+        weight,
+        age_draws,
+        by,
+        allow_mixed,
+        robustness,
+    )
     req.check()
     s = api.open_store(path)
-    filters = build_filters(s, interval, region, frame, lithology, component, source,
-                            screened, time_scale, keep_duplicates, paleolat)
+    filters = build_filters(
+        s,
+        interval,
+        region,
+        frame,
+        lithology,
+        component,
+        source,
+        screened,
+        time_scale,
+        keep_duplicates,
+        paleolat,
+    )
     res = api.curve(s, filters, req, out)
-    render.message(f"curve of {len(res.groups)} group(s) from store version {res.version} → "
-                   f"{res.out}")
+    render.message(
+        f"curve of {len(res.groups)} group(s) from store version {res.version} → {res.out}"
+    )
     for n in res.notes:
         render.note(n)
     if res.influence is not None:
         top = res.influence[res.influence["leave"] == "source"].head(3)
         for r in top.itertuples():
-            render.note(f"influence [{r.group}] without {r.left_out}: largest change "
-                        f"{r.max_abs_change:.3g} ‰, RMS {r.rms_change:.3g} ‰")
+            render.note(
+                f"influence [{r.group}] without {r.left_out}: largest change "
+                f"{r.max_abs_change:.3g} ‰, RMS {r.rms_change:.3g} ‰"
+            )
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")
 
 
-def excursion(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
-              region: RegionOpt = None, frame: FrameOpt = "present",
-              lithology: LithologyOpt = None, component: ComponentOpt = None,
-              source: SourceOpt = None, screened: ScreenedOpt = "all",
-          keep_duplicates: KeepDupOpt = False, paleolat: PaleolatOpt = None, by: ByOpt = None,
-              baseline: Annotated[str | None, typer.Option(
-                  "--baseline", help="Pre-excursion window 'A-B' in Ma (default: the oldest "
-                  "20 % of each section's samples, at least 3).", show_default=False)] = None,
-              fraction: Annotated[float, typer.Option(
-                  "--fraction", help="Onset/recovery: departure from the baseline by this "
-                  "fraction of the magnitude.")] = 0.10,
-              direction: Annotated[str, typer.Option(
-                  "--direction", help="auto | negative | positive.")] = "auto",
-              fmt: FormatOpt = "table", out: Annotated[Path | None, typer.Option(
-                  "--out", help="Folder for the tables and the figure aligned on onset.",
-                  show_default=False)] = None,
-              store: StoreOpt = None) -> None:
+def excursion(
+    interval: IntervalOpt = None,
+    time_scale: TimeScaleOpt = None,
+    region: RegionOpt = None,
+    frame: FrameOpt = "present",
+    lithology: LithologyOpt = None,
+    component: ComponentOpt = None,
+    source: SourceOpt = None,
+    screened: ScreenedOpt = "all",
+    keep_duplicates: KeepDupOpt = False,
+    paleolat: PaleolatOpt = None,
+    by: ByOpt = None,
+    baseline: Annotated[
+        str | None,
+        typer.Option(
+            "--baseline",
+            help="Pre-excursion window 'A-B' in Ma (default: the oldest "
+            "20 % of each section's samples, at least 3).",
+            show_default=False,
+        ),
+    ] = None,
+    fraction: Annotated[
+        float,
+        typer.Option(
+            "--fraction",
+            help="Onset/recovery: departure from the baseline by this fraction of the magnitude.",
+        ),
+    ] = 0.10,
+    direction: Annotated[
+        str, typer.Option("--direction", help="auto | negative | positive.")
+    ] = "auto",
+    fmt: FormatOpt = "table",
+    out: Annotated[
+        Path | None,
+        typer.Option(
+            "--out",
+            help="Folder for the tables and the figure aligned on onset.",
+            show_default=False,
+        ),
+    ] = None,
+    store: StoreOpt = None,
+) -> None:
     """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset and
     recovery, sample count and spacing; a summary across sections and groups."""
     from strata13.compile import api
@@ -115,21 +201,46 @@ def excursion(interval: IntervalOpt = None, time_scale: TimeScaleOpt = None,
     if out is not None:
         output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
-    filters = build_filters(s, interval, region, frame, lithology, component, source,
-                            screened, time_scale, keep_duplicates, paleolat)
+    filters = build_filters(
+        s,
+        interval,
+        region,
+        frame,
+        lithology,
+        component,
+        source,
+        screened,
+        time_scale,
+        keep_duplicates,
+        paleolat,
+    )
     window = None
     if baseline is not None:
         iv = api.interval(s, baseline, time_scale)
         if "Ma" not in iv.text and "-" not in iv.text:
-            raise OptionError(f"--baseline {baseline!r} is not an age range.",
-                              "Give the pre-excursion window as A-B in Ma.")
+            raise OptionError(
+                f"--baseline {baseline!r} is not an age range.",
+                "Give the pre-excursion window as A-B in Ma.",
+            )
         window = (iv.older_ma, iv.younger_ma, "ma")
-    res = api.excursion(s, filters, by=by, baseline=window, fraction=fraction,
-                        direction=direction, out=out)
+    res = api.excursion(
+        s, filters, by=by, baseline=window, fraction=fraction, direction=direction, out=out
+    )
     per = res.per_section
-    render.table(list(per.columns), per.itertuples(index=False, name=None), fmt, None,
-                 title="excursion per section")
-    render.table(list(res.summary.columns), res.summary.itertuples(index=False, name=None),
-                 "table", None, title="summary", stderr=True)
+    render.table(
+        list(per.columns),
+        per.itertuples(index=False, name=None),
+        fmt,
+        None,
+        title="excursion per section",
+    )
+    render.table(
+        list(res.summary.columns),
+        res.summary.itertuples(index=False, name=None),
+        "table",
+        None,
+        title="summary",
+        stderr=True,
+    )
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")

@@ -31,9 +31,27 @@ if TYPE_CHECKING:
     from strata13.compile.query.sqlguard import SqlResult
 
 __all__ = [
-    "Filters", "IngestResult", "Settings", "Store", "Version", "check_sources", "explain",
-    "export", "history", "ingest", "init_store", "open_store", "parse_interval", "query",
-    "query_arrow", "region", "reharmonise", "scales", "sources", "sql", "store_path",
+    "Filters",
+    "IngestResult",
+    "Settings",
+    "Store",
+    "Version",
+    "check_sources",
+    "explain",
+    "export",
+    "history",
+    "ingest",
+    "init_store",
+    "open_store",
+    "parse_interval",
+    "query",
+    "query_arrow",
+    "region",
+    "reharmonise",
+    "scales",
+    "sources",
+    "sql",
+    "store_path",
 ]
 
 
@@ -47,14 +65,16 @@ def open_store(path: str | Path) -> Store:
     return Store.open(Path(path))
 
 
-def rules_settings(rules: str | Path | None, untested_passes: bool | None = None
-                   ) -> dict[str, Any]:
+def rules_settings(rules: str | Path | None, untested_passes: bool | None = None) -> dict[str, Any]:
     """Store settings for a screening rule file (None: the shipped default rules)."""
     from strata13.compile.screening.rules import load_rules
 
     rs = load_rules(rules)
-    out: dict[str, Any] = {"screen_rules": rs.canonical_text(), "screen_rules_sha256": rs.sha256,
-                           "screen_rules_name": f"{rs.name} {rs.version}".strip()}
+    out: dict[str, Any] = {
+        "screen_rules": rs.canonical_text(),
+        "screen_rules_sha256": rs.sha256,
+        "screen_rules_name": f"{rs.name} {rs.version}".strip(),
+    }
     if untested_passes is not None:
         out["screen_untested_passes"] = bool(untested_passes)
     return out
@@ -86,17 +106,24 @@ def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any
     from strata13.compile.paleo import plates, rotations
     from strata13.compile.read.inputs import read_text
 
-    texts = [read_text(p, f"{what} file", "Check the MODEL and POLYGONS files.")
-             for p, what in ((model, "rotation model"), (polygons, "plate polygons"))]
+    texts = [
+        read_text(p, f"{what} file", "Check the MODEL and POLYGONS files.")
+        for p, what in ((model, "rotation model"), (polygons, "plate polygons"))
+    ]
     m = rotations.parse_model(texts[0], Path(model).name)
     try:
         doc = json.loads(texts[1])
     except json.JSONDecodeError as exc:
-        raise ConfigError(f"{Path(polygons).name} is not valid JSON ({exc}).",
-                          "Check the GeoJSON file.") from None
+        raise ConfigError(
+            f"{Path(polygons).name} is not valid JSON ({exc}).", "Check the GeoJSON file."
+        ) from None
     plates.parse_polygons(doc, Path(polygons).name)
-    return {"rotation_model_csv": texts[0], "plate_polygons_geojson": texts[1],
-            "rotation_model_name": m.name, "rotation_frame": m.frame}
+    return {
+        "rotation_model_csv": texts[0],
+        "plate_polygons_geojson": texts[1],
+        "rotation_model_name": m.name,
+        "rotation_frame": m.frame,
+    }
 
 
 def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> Any:
@@ -107,11 +134,16 @@ def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> 
     return recompute(store, rotations_settings(model, polygons), "replace-rotations")
 
 
-def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
-               regions: str | Path | None = None, made_by: str = "init",
-               rules: str | Path | None = None, age_extrapolation: bool = False,
-               materials: str | Path | None = None,
-               rotations: tuple[str | Path, str | Path] | None = None) -> Store:
+def init_store(
+    path: str | Path,
+    time_scale: str = DEFAULT_TIME_SCALE,
+    regions: str | Path | None = None,
+    made_by: str = "init",
+    rules: str | Path | None = None,
+    age_extrapolation: bool = False,
+    materials: str | Path | None = None,
+    rotations: tuple[str | Path, str | Path] | None = None,
+) -> Store:
     """Create a store with its settings (time scale, screening rules, whether age models
     extrapolate beyond their ties) and optional named regions."""
     from strata13.compile.query.regions import load_regions_file
@@ -121,25 +153,42 @@ def init_store(path: str | Path, time_scale: str = DEFAULT_TIME_SCALE,
     ts = voc.resolve(time_scale)
     if ts is None:
         sug = voc.suggest(time_scale)
-        raise OptionError(f"--time-scale {time_scale!r} is not a shipped time scale."
-                          + (f" Did you mean {sug!r}?" if sug else ""),
-                          f"Time scales: {', '.join(voc.terms)}.")
+        raise OptionError(
+            f"--time-scale {time_scale!r} is not a shipped time scale."
+            + (f" Did you mean {sug!r}?" if sug else ""),
+            f"Time scales: {', '.join(voc.terms)}.",
+        )
     from strata13.compile.harmonise.oxygen import DEFAULT as VSMOW_DEFAULT
 
     named = load_regions_file(Path(regions)) if regions else []
-    settings = Settings(time_scale=ts, extra={
-        "vsmow_constants": VSMOW_DEFAULT, "age_extrapolation": bool(age_extrapolation),
-        **rules_settings(rules, untested_passes=False), **materials_settings(materials),
-        **(rotations_settings(*rotations) if rotations else {})})
-    return Store.create(Path(path), settings.stored(),
-                        settings.hash(),
-                        [(n, g, Path(regions).name) for n, g in named] if regions else [],
-                        made_by=made_by)
+    settings = Settings(
+        time_scale=ts,
+        extra={
+            "vsmow_constants": VSMOW_DEFAULT,
+            "age_extrapolation": bool(age_extrapolation),
+            **rules_settings(rules, untested_passes=False),
+            **materials_settings(materials),
+            **(rotations_settings(*rotations) if rotations else {}),
+        },
+    )
+    return Store.create(
+        Path(path),
+        settings.stored(),
+        settings.hash(),
+        [(n, g, Path(regions).name) for n, g in named] if regions else [],
+        made_by=made_by,
+    )
 
 
-def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | Path, *,
-           dry_run: bool = False, keep_valid: bool = False, progress: Any = None
-           ) -> IngestResult:
+def ingest(
+    store: Store | str | Path,
+    sheet: str | Path | None,
+    mapping: str | Path,
+    *,
+    dry_run: bool = False,
+    keep_valid: bool = False,
+    progress: Any = None,
+) -> IngestResult:
     """Ingest a sheet through its mapping file; creates the store if the folder is new."""
     from strata13.compile import ingest as _ingest
 
@@ -150,8 +199,10 @@ def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | P
             store = Store.open(path)
         else:  # created only once the sheet has passed validation
             if path.exists() and (not path.is_dir() or any(path.iterdir())):
-                raise NotAStoreError(f"{path} exists and is not a strata13 store.",
-                                     "Name a store, a new folder or an empty one with --store.")
+                raise NotAStoreError(
+                    f"{path} exists and is not a strata13 store.",
+                    "Name a store, a new folder or an empty one with --store.",
+                )
 
             def create() -> Store:
                 try:
@@ -162,8 +213,15 @@ def ingest(store: Store | str | Path, sheet: str | Path | None, mapping: str | P
                     raise
 
             store = _DryStore()
-    return _ingest.ingest(store, Path(sheet) if sheet else None, Path(mapping), dry_run=dry_run,
-                          keep_valid=keep_valid, progress=progress, create=create)
+    return _ingest.ingest(
+        store,
+        Path(sheet) if sheet else None,
+        Path(mapping),
+        dry_run=dry_run,
+        keep_valid=keep_valid,
+        progress=progress,
+        create=create,
+    )
 
 
 class _DryStore(Store):
@@ -193,8 +251,10 @@ def region(store: Store, spec: str) -> Any:
 
 
 def _store_read_error(exc: Exception, store: Store) -> StoreError:
-    return StoreError(f"the store {store.path} could not be read ({str(exc).splitlines()[0]}).",
-                      "A data file may be missing or damaged; restore the store from a copy.")
+    return StoreError(
+        f"the store {store.path} could not be read ({str(exc).splitlines()[0]}).",
+        "A data file may be missing or damaged; restore the store from a copy.",
+    )
 
 
 def check_sources(store: Store, ids: list[str]) -> list[str]:
@@ -207,14 +267,15 @@ def check_sources(store: Store, ids: list[str]) -> list[str]:
     for sid in ids:
         if sid not in known:
             hit = difflib.get_close_matches(sid, known, n=1)
-            raise OptionError(f"--source {sid!r} is not a source of this store."
-                              + (f" Did you mean {hit[0]!r}?" if hit else ""),
-                              "See `strata13 sources`.")
+            raise OptionError(
+                f"--source {sid!r} is not a source of this store."
+                + (f" Did you mean {hit[0]!r}?" if hit else ""),
+                "See `strata13 sources`.",
+            )
     return ids
 
 
-def query_arrow(store: Store, filters: Filters | None = None,
-                as_of: int | None = None) -> pa.Table:
+def query_arrow(store: Store, filters: Filters | None = None, as_of: int | None = None) -> pa.Table:
     import duckdb
     from strata13.compile.query.filters import run
 
@@ -227,15 +288,19 @@ def query_arrow(store: Store, filters: Filters | None = None,
         con.close()
 
 
-def query(store: Store, filters: Filters | None = None, as_of: int | None = None
-          ) -> pd.DataFrame:
+def query(store: Store, filters: Filters | None = None, as_of: int | None = None) -> pd.DataFrame:
     """Records matching ``filters`` as a pandas DataFrame (columns of the records view)."""
     return query_arrow(store, filters, as_of).to_pandas()
 
 
-def export(store: Store, out: str | Path, filters: Filters | None = None,
-           as_of: int | None = None, curve: Any = None, command: str | None = None
-           ) -> ExportResult:
+def export(
+    store: Store,
+    out: str | Path,
+    filters: Filters | None = None,
+    as_of: int | None = None,
+    curve: Any = None,
+    command: str | None = None,
+) -> ExportResult:
     """The filtered records of one version with bibliography and manifest; with ``curve``
     (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
     manifest records every curve parameter and file, so the same command reproduces them.
@@ -249,30 +314,36 @@ def export(store: Store, out: str | Path, filters: Filters | None = None,
         from strata13.compile.synthesis.run import make_curve
 
         version = as_of if as_of is not None else store.latest_version()
-        cres = make_curve(store, filters or Filters(), curve, Path(out) / "curve",
-                          as_of=version)
+        cres = make_curve(store, filters or Filters(), curve, Path(out) / "curve", as_of=version)
         as_of = version
     res = _export_records(store, out, filters, as_of)
     manifest_path = Path(out) / "manifest.json"
     if command is not None:
         manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
         manifest["reproduce"] = command
-        manifest_path.write_text(json.dumps(manifest, indent=1, sort_keys=True,
-                                            ensure_ascii=False) + "\n", encoding="utf-8")
+        manifest_path.write_text(
+            json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False) + "\n",
+            encoding="utf-8",
+        )
     if cres is not None:
         manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        manifest["curve"] = json.loads((cres.out / "curve_manifest.json").read_text(
-            encoding="utf-8"))
-        manifest["files"] += [{"path": f"curve/{k}", "sha256": v}
-                              for k, v in sorted(cres.files.items())]
-        manifest_path.write_text(json.dumps(manifest, indent=1, sort_keys=True,
-                                            ensure_ascii=False) + "\n", encoding="utf-8")
+        manifest["curve"] = json.loads(
+            (cres.out / "curve_manifest.json").read_text(encoding="utf-8")
+        )
+        manifest["files"] += [
+            {"path": f"curve/{k}", "sha256": v} for k, v in sorted(cres.files.items())
+        ]
+        manifest_path.write_text(
+            json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False) + "\n",
+            encoding="utf-8",
+        )
         res.files.update({f"curve/{k}": v for k, v in cres.files.items()})
     return res
 
 
-def _export_records(store: Store, out: str | Path, filters: Filters | None = None,
-                    as_of: int | None = None) -> ExportResult:
+def _export_records(
+    store: Store, out: str | Path, filters: Filters | None = None, as_of: int | None = None
+) -> ExportResult:
     import duckdb
     from strata13.compile.export.outputs import output_dir
     from strata13.compile.export import package as _export
@@ -282,17 +353,22 @@ def _export_records(store: Store, out: str | Path, filters: Filters | None = Non
     try:
         stored = store.settings(version)
         long = ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
-        return _export.export(con, version, Path(out), filters or Filters(),
-                              Settings.from_stored(stored).hash(), store.path,
-                              {k: v for k, v in stored.items() if k not in long})
+        return _export.export(
+            con,
+            version,
+            Path(out),
+            filters or Filters(),
+            Settings.from_stored(stored).hash(),
+            store.path,
+            {k: v for k, v in stored.items() if k not in long},
+        )
     except (duckdb.IOException, duckdb.InvalidInputException) as exc:
         raise _store_read_error(exc, store) from None
     finally:
         con.close()
 
 
-def sql(store: Store, statement: str, timeout_s: float = 30.0,
-        row_cap: int = 100_000) -> SqlResult:
+def sql(store: Store, statement: str, timeout_s: float = 30.0, row_cap: int = 100_000) -> SqlResult:
     from strata13.compile.query.sqlguard import run_sql
 
     con, _ = store.reader()
@@ -305,10 +381,12 @@ def sql(store: Store, statement: str, timeout_s: float = 30.0,
 def sources(store: Store) -> list[dict[str, Any]]:
     con, _ = store.reader()
     try:
-        cur = con.execute("SELECT s.source_id, s.kind, s.year, s.n_records, "
-                          "(SELECT count(*) FROM quarantine q WHERE q.source_id = s.source_id) "
-                          "AS quarantined, s.ingested_version, s.file_name, s.citation "
-                          "FROM sources s ORDER BY s.source_id")
+        cur = con.execute(
+            "SELECT s.source_id, s.kind, s.year, s.n_records, "
+            "(SELECT count(*) FROM quarantine q WHERE q.source_id = s.source_id) "
+            "AS quarantined, s.ingested_version, s.file_name, s.citation "
+            "FROM sources s ORDER BY s.source_id"
+        )
         cols = [d[0] for d in cur.description]
         return [dict(zip(cols, r, strict=True)) for r in cur.fetchall()]
     finally:
@@ -319,8 +397,9 @@ def history(store: Store) -> list[Version]:
     return store.history()
 
 
-def reharmonise(store: Store, vsmow_constants: str | None = None,
-                materials: str | Path | None = None) -> Any:
+def reharmonise(
+    store: Store, vsmow_constants: str | None = None, materials: str | Path | None = None
+) -> Any:
     """Re-derive every record with new harmonisation settings (one commit, or none when
     nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
     from strata13.compile.derive.recompute import recompute
@@ -342,8 +421,9 @@ def interval(store: Store | None, text: str, time_scale: str | None = None) -> A
     return resolve(text, store, time_scale)
 
 
-def stages(store: Store | None = None, time_scale: str | None = None,
-           interval: str | None = None) -> tuple[Any, list[dict[str, Any]], list[str]]:
+def stages(
+    store: Store | None = None, time_scale: str | None = None, interval: str | None = None
+) -> tuple[Any, list[dict[str, Any]], list[str]]:
     """(chart, its units, notes): ``time_scale`` (a version or a CSV table), else the
     store's chart, else the current one; only units overlapping ``interval`` if given."""
     from strata13.compile.ages import chronology
@@ -353,8 +433,12 @@ def stages(store: Store | None = None, time_scale: str | None = None,
     return scale, rows, notes
 
 
-def redate(store: Store, time_scale: str | None = None, extrapolation: bool | None = None,
-           draws: int | None = None) -> Any:
+def redate(
+    store: Store,
+    time_scale: str | None = None,
+    extrapolation: bool | None = None,
+    draws: int | None = None,
+) -> Any:
     """Change the store's chart or age-model settings and re-derive every age (one commit,
     or none when nothing changes); returns a RecomputeResult."""
     from strata13.compile.derive.recompute import recompute
@@ -367,8 +451,10 @@ def redate(store: Store, time_scale: str | None = None, extrapolation: bool | No
         change["age_extrapolation"] = bool(extrapolation)
     if draws is not None:
         if not 100 <= draws <= 100_000:
-            raise OptionError(f"--draws {draws} is outside 100 … 100000.",
-                              "1000 draws give stable 95 % ranges (common practice).")
+            raise OptionError(
+                f"--draws {draws} is outside 100 … 100000.",
+                "1000 draws give stable 95 % ranges (common practice).",
+            )
         change["age_draws"] = int(draws)
     return recompute(store, change, "redate")
 
@@ -380,8 +466,9 @@ def agemodel(store: Store, section: str) -> Any:
     return section_model(store, section)
 
 
-def screen(store: Store, rules: str | Path | None = None,
-           untested_passes: bool | None = None) -> Any:
+def screen(
+    store: Store, rules: str | Path | None = None, untested_passes: bool | None = None
+) -> Any:
     """Set the store's screening rules (a rule file; None keeps the store's) and whether
     untested counts as pass, and re-screen every record in one commit (none when nothing
     changes); returns a RecomputeResult."""
@@ -404,8 +491,9 @@ def screen_report(store: Store, filters: Filters | None = None) -> Any:
 
     records = query_arrow(store, filters)
     settings = Settings.from_stored(store.settings())
-    res = evaluate(records, rule_set(settings),
-                   bool(settings.extra.get("screen_untested_passes", False)))
+    res = evaluate(
+        records, rule_set(settings), bool(settings.extra.get("screen_untested_passes", False))
+    )
     return records, res, summarise(records, res.results)
 
 
@@ -420,8 +508,9 @@ def screen_plots(store: Store, records: Any, screening: Any, out: str | Path) ->
     return cross_plots(records, screening.results, screening.groups, folder)
 
 
-def curve(store: Store, filters: Filters, request: Any, out: str | Path,
-          as_of: int | None = None) -> Any:
+def curve(
+    store: Store, filters: Filters, request: Any, out: str | Path, as_of: int | None = None
+) -> Any:
     """Composite curves (bins, LOESS and band, robustness) with figure and manifest in
     ``out``; ``request`` is a ``synthesis.run.CurveRequest``."""
     from strata13.compile.synthesis.run import make_curve
@@ -429,15 +518,29 @@ def curve(store: Store, filters: Filters, request: Any, out: str | Path,
     return make_curve(store, filters, request, Path(out), as_of=as_of)
 
 
-def excursion(store: Store, filters: Filters, *, by: str | None = None,
-              baseline: tuple[float, float, str] | None = None, fraction: float = 0.10,
-              direction: str = "auto", out: str | Path | None = None) -> Any:
+def excursion(
+    store: Store,
+    filters: Filters,
+    *,
+    by: str | None = None,
+    baseline: tuple[float, float, str] | None = None,
+    fraction: float = 0.10,
+    direction: str = "auto",
+    out: str | Path | None = None,
+) -> Any:
     """Per-section excursion metrics in the filtered interval (tables and a figure in
     ``out`` when given)."""
     from strata13.compile.synthesis.run import make_excursion
 
-    return make_excursion(store, filters, by=by, baseline=baseline, fraction=fraction,
-                          direction=direction, out=Path(out) if out is not None else None)
+    return make_excursion(
+        store,
+        filters,
+        by=by,
+        baseline=baseline,
+        fraction=fraction,
+        direction=direction,
+        out=Path(out) if out is not None else None,
+    )
 
 
 def correct(store: Store, items: list[Any]) -> Any:
@@ -473,8 +576,13 @@ def confirm_overlaps(store: Store, path: str | Path) -> tuple[int | None, int, i
     return confirm(store, Path(path))
 
 
-def coverage(store: Store, filters: Filters, by: str = "region",
-             bin_myr: float | None = None, out: str | Path | None = None) -> Any:
+def coverage(
+    store: Store,
+    filters: Filters,
+    by: str = "region",
+    bin_myr: float | None = None,
+    out: str | Path | None = None,
+) -> Any:
     """Samples and sections per time bin × group × component (zeros kept); with ``out``
     a CSV and a heatmap."""
     from strata13.compile.integrity.coverage import coverage as _coverage
@@ -503,8 +611,10 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
         settings = store.settings()
         used = settings.get("vsmow_constants")
         table, choice = store_table(settings)
-    relations = [{**asdict(r), "in_store": (r.name == used) if store is not None else None}
-                 for r in oxygen_relations().values()]
+    relations = [
+        {**asdict(r), "in_store": (r.name == used) if store is not None else None}
+        for r in oxygen_relations().values()
+    ]
 
     def mark(m: Any) -> str | None:
         if store is None:
@@ -512,8 +622,10 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
         isos = [i for i, vs in choice.get(m.material, {}).items() if vs == m.value_set]
         return "+".join(sorted(isos)) or ""
 
-    return {"materials": [{**asdict(m), "in_store": mark(m)} for m in table],
-            "relations": relations}
+    return {
+        "materials": [{**asdict(m), "in_store": mark(m)} for m in table],
+        "relations": relations,
+    }
 
 
 def _replay(step: dict[str, Any], value: float | None) -> float | None:
@@ -544,39 +656,55 @@ def explain(store: Store, record: str) -> dict[str, Any]:
     from strata13.errors import DomainError
 
     if len(record) < 6:
-        raise OptionError(f"record id {record!r} is too short.",
-                          "Give at least 6 characters of the record id.")
+        raise OptionError(
+            f"record id {record!r} is too short.", "Give at least 6 characters of the record id."
+        )
     con, version = store.reader()
     try:
-        cur = con.execute("SELECT * FROM records WHERE starts_with(record_id, ?) LIMIT 3",
-                          [record])
+        cur = con.execute("SELECT * FROM records WHERE starts_with(record_id, ?) LIMIT 3", [record])
         cols = [d[0] for d in cur.description]
         hits = [dict(zip(cols, r, strict=True)) for r in cur.fetchall()]
         if not hits:
-            raise DomainError(f"no record {record!r} in this store (version {version}).",
-                              "Find record ids with `strata13 query`.")
+            raise DomainError(
+                f"no record {record!r} in this store (version {version}).",
+                "Find record ids with `strata13 query`.",
+            )
         if len(hits) > 1:
-            raise OptionError(f"record id {record!r} matches more than one record.",
-                              "Give more characters of the id.")
+            raise OptionError(
+                f"record id {record!r} matches more than one record.",
+                "Give more characters of the id.",
+            )
         row = hits[0]
         chains = {}
         for d in DELTA_FIELDS:
             cid = row.get(f"{d}_chain")
             steps = []
             if cid:
-                text = con.execute("SELECT steps_json FROM chains WHERE chain_id = ?",
-                                   [cid]).fetchone()
+                text = con.execute(
+                    "SELECT steps_json FROM chains WHERE chain_id = ?", [cid]
+                ).fetchone()
                 steps = json.loads(text[0]) if text else []
             value = row[f"{d}_reported"]
             for k, step in enumerate(steps):  # the value after each step, replayed
                 value = _replay(step, value)
                 step["value_after"] = row[d] if k == len(steps) - 1 else value
-            chains[d] = {"reported": row[f"{d}_reported"], "scale": row[f"{d}_scale"],
-                         "harmonised": row[d], "status": row[f"{d}_status"], "chain_id": cid,
-                         "steps": steps}
-        source = con.execute("SELECT citation, file_name FROM sources WHERE source_id = ?",
-                             [row["source_id"]]).fetchone()
+            chains[d] = {
+                "reported": row[f"{d}_reported"],
+                "scale": row[f"{d}_scale"],
+                "harmonised": row[d],
+                "status": row[f"{d}_status"],
+                "chain_id": cid,
+                "steps": steps,
+            }
+        source = con.execute(
+            "SELECT citation, file_name FROM sources WHERE source_id = ?", [row["source_id"]]
+        ).fetchone()
     finally:
         con.close()
-    return {"version": version, "record": row, "isotopes": chains,
-            "citation": source[0] if source else None, "file": source[1] if source else None}
+    return {
+        "version": version,
+        "record": row,
+        "isotopes": chains,
+        "citation": source[0] if source else None,
+        "file": source[1] if source else None,
+    }

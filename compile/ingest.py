@@ -57,9 +57,16 @@ def settings_from_store(store: Store) -> Settings:
     return Settings.from_stored(store.settings())
 
 
-def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: bool = False,
-           keep_valid: bool = False, progress: Any = None,
-           create: Any = None) -> IngestResult:
+def ingest(
+    store: Store,
+    sheet: Path | None,
+    mapping_path: Path,
+    *,
+    dry_run: bool = False,
+    keep_valid: bool = False,
+    progress: Any = None,
+    create: Any = None,
+) -> IngestResult:
     """Ingest one mapping's sheet into ``store``. Raises ValidationFailed (exit 1)."""
     step = progress or (lambda _msg: None)
     step("reading the mapping")
@@ -69,12 +76,15 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     if mapping.run is not None:
         _check_run_materials(store, mapping)
     if sheet is not None and not sheet.is_file():
-        raise InputFileError(f"{sheet} " + ("is a folder, not a sheet." if sheet.is_dir()
-                                            else "does not exist."), "Check the path of the sheet.")
+        raise InputFileError(
+            f"{sheet} " + ("is a folder, not a sheet." if sheet.is_dir() else "does not exist."),
+            "Check the path of the sheet.",
+        )
     if sheet is not None and sheet.resolve() != mapping.table.file:
-        raise OptionError(f"{sheet} is not the file {mapping_path.name} maps "
-                          f"({mapping.table.file.name}).",
-                          "Give the sheet named in the mapping's [table] file, or edit it.")
+        raise OptionError(
+            f"{sheet} is not the file {mapping_path.name} maps ({mapping.table.file.name}).",
+            "Give the sheet named in the mapping's [table] file, or edit it.",
+        )
     step("reading and validating the sheet")
     prepared = prepare(mapping)
     report = prepared.report
@@ -82,20 +92,26 @@ def ingest(store: Store, sheet: Path | None, mapping_path: Path, *, dry_run: boo
     if report.errors and not keep_valid:
         raise ValidationFailed(
             f"{len(report.errors)} problem{'s' if len(report.errors) != 1 else ''} in "
-            f"{mapping.table.file.name}; nothing was written.", report,
+            f"{mapping.table.file.name}; nothing was written.",
+            report,
             "Fix the cells listed, or use --keep-valid to commit the valid rows and "
-            "quarantine the rest.")
+            "quarantine the rest.",
+        )
     result.quarantined = len(prepared.quarantine)
     if prepared.records.num_rows == 0:
         if report.rows_read == report.rows_blank:
-            raise DomainError(f"{mapping.table.file.name} has no data rows under its header; "
-                              "nothing was written.",
-                              "Check the sheet and header_row in the mapping's [table]; a source "
-                              "is never replaced by an empty one.")
-        raise ValidationFailed(f"all {report.rows_rejected} rows of {mapping.table.file.name} "
-                               "were refused; nothing was written.", report,
-                               "Fix the cells listed; a source is never replaced by an empty "
-                               "one.")
+            raise DomainError(
+                f"{mapping.table.file.name} has no data rows under its header; "
+                "nothing was written.",
+                "Check the sheet and header_row in the mapping's [table]; a source "
+                "is never replaced by an empty one.",
+            )
+        raise ValidationFailed(
+            f"all {report.rows_rejected} rows of {mapping.table.file.name} "
+            "were refused; nothing was written.",
+            report,
+            "Fix the cells listed; a source is never replaced by an empty one.",
+        )
     return _land(store, prepared, result, dry_run, step, create)
 
 
@@ -111,31 +127,44 @@ def _check_run_materials(store: Store, mapping: Any) -> None:
     for name in [*mapping.run["anchors"], *mapping.run["checks"]]:
         if name not in known:
             sug = difflib.get_close_matches(name, known, n=1)
-            raise DomainError(f"{mapping.path.name}: [run] names reference material {name!r}, "
-                              "which the store's material table does not have; nothing was "
-                              "written." + (f" Did you mean {sug[0]!r}?" if sug else ""),
-                              "Name a material `strata13 scales` lists, or add it with "
-                              "--materials FILE.")
+            raise DomainError(
+                f"{mapping.path.name}: [run] names reference material {name!r}, "
+                "which the store's material table does not have; nothing was "
+                "written." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+                "Name a material `strata13 scales` lists, or add it with --materials FILE.",
+            )
 
 
-def _ingest_ties_only(store: Store, sheet: Path | None, mapping: Any, dry_run: bool, step: Any,
-                      create: Any) -> IngestResult:
+def _ingest_ties_only(
+    store: Store, sheet: Path | None, mapping: Any, dry_run: bool, step: Any, create: Any
+) -> IngestResult:
     """A source of age ties only: no sheet; its ties date sections of other sources."""
     from strata13.compile.check.validate import prepare_ties_only
 
     if sheet is not None:
-        raise OptionError(f"{mapping.path.name} holds only age ties and maps no sheet.",
-                          "Run `strata13 ingest --map …` without a sheet file.")
+        raise OptionError(
+            f"{mapping.path.name} holds only age ties and maps no sheet.",
+            "Run `strata13 ingest --map …` without a sheet file.",
+        )
     if not mapping.ties:
-        raise DomainError(f"{mapping.path.name} has no ties; nothing was written.",
-                          "Add [[ties]] blocks or a [ties_table] file.")
+        raise DomainError(
+            f"{mapping.path.name} has no ties; nothing was written.",
+            "Add [[ties]] blocks or a [ties_table] file.",
+        )
     prepared = prepare_ties_only(mapping)
-    return _land(store, prepared, IngestResult(mapping.source_id, prepared.report, None,
-                                               dry_run=dry_run), dry_run, step, create)
+    return _land(
+        store,
+        prepared,
+        IngestResult(mapping.source_id, prepared.report, None, dry_run=dry_run),
+        dry_run,
+        step,
+        create,
+    )
 
 
-def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step: Any,
-          create: Any) -> IngestResult:
+def _land(
+    store: Store, prepared: Any, result: IngestResult, dry_run: bool, step: Any, create: Any
+) -> IngestResult:
     """Derive and commit one prepared source (or, for a dry run, only derive it)."""
     from strata13.compile.ages.ties import ties_table
 
@@ -159,21 +188,27 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
         settings = Settings.from_stored(store.read_settings(con))
         step("deriving harmonised values and ages")
         sid = mapping.source_id
-        old_ties = con.execute("SELECT * FROM lake.age_ties WHERE tie_source_id = ?",
-                               [sid]).to_arrow_table()
+        old_ties = con.execute(
+            "SELECT * FROM lake.age_ties WHERE tie_source_id = ?", [sid]
+        ).to_arrow_table()
         ties = _all_ties(con, sid, new_ties)
         _check_tie_targets(con, prepared, new_ties)
         runs = prepared.runs
-        fixes = con.execute("SELECT * FROM lake.corrections WHERE source_id = ?",
-                            [sid]).to_arrow_table()
+        fixes = con.execute(
+            "SELECT * FROM lake.corrections WHERE source_id = ?", [sid]
+        ).to_arrow_table()
         derived = derive(prepared.records, settings, ties, runs=runs, corrections=fixes)
         records = derived.table
         result.orphaned = _orphans(fixes, records)
         result.standards = runs.num_rows if runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
         # sources whose sections this source's ties date (now or before) are re-dated too
-        targets = {t for t in old_ties.column("source_id").to_pylist()
-                   + new_ties.column("source_id").to_pylist() if t and t != sid}
+        targets = {
+            t
+            for t in old_ties.column("source_id").to_pylist()
+            + new_ties.column("source_id").to_pylist()
+            if t and t != sid
+        }
         others = derive_sources(con, sorted(targets), settings, ties)
         result.redated = sum(_age_changes(r, d.table) for r, d in others.values())
         result.pending = _pending_counts(records)
@@ -181,14 +216,22 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
         result.added, result.removed, result.changed = _diff(con, mapping.source_id, records)
         # nothing to commit when no record, no row position, no quarantined row and no
         # source metadata would change (a mapping edited only in its comments, say)
-        old = con.execute(f"SELECT {', '.join(META)}, schema_version, (SELECT count(*) FROM "
-                          "lake.quarantine q WHERE q.source_id = s.source_id) FROM "
-                          "lake.sources s WHERE source_id = ?", [mapping.source_id]).fetchone()
+        old = con.execute(
+            f"SELECT {', '.join(META)}, schema_version, (SELECT count(*) FROM "
+            "lake.quarantine q WHERE q.source_id = s.source_id) FROM "
+            "lake.sources s WHERE source_id = ?",
+            [mapping.source_id],
+        ).fetchone()
         result.moved = _moved(con, mapping.source_id, records)
-        if old is not None and tuple(old[:-2]) == _meta(mapping.source) \
-                and old[-2] == SCHEMA_VERSION and old[-1] == len(prepared.quarantine) \
-                and _same_rows(old_ties, new_ties) and _same_runs(con, sid, prepared.runs) \
-                and not (result.added or result.removed or result.changed or result.moved):
+        if (
+            old is not None
+            and tuple(old[:-2]) == _meta(mapping.source)
+            and old[-2] == SCHEMA_VERSION
+            and old[-1] == len(prepared.quarantine)
+            and _same_rows(old_ties, new_ties)
+            and _same_runs(con, sid, prepared.runs)
+            and not (result.added or result.removed or result.changed or result.moved)
+        ):
             result.unchanged = True
             result.version = None
             con.execute("ROLLBACK")
@@ -197,14 +240,20 @@ def _land(store: Store, prepared: Any, result: IngestResult, dry_run: bool, step
         step("committing")
         interrupts.check()  # a Ctrl-C a library swallowed still stops us before the commit
         try:
-            result.version = _commit(store, con, prepared, records, derived, settings,
-                                     result, new_ties, others)
+            result.version = _commit(
+                store, con, prepared, records, derived, settings, result, new_ties, others
+            )
         except KeyboardInterrupt:
             landed = store.latest_version() > before
             raise Interrupted(
-                "interrupted: " + ("the commit landed" if landed else
-                                   "the commit did not land; the store is unchanged"),
-                landed) from None
+                "interrupted: "
+                + (
+                    "the commit landed"
+                    if landed
+                    else "the commit did not land; the store is unchanged"
+                ),
+                landed,
+            ) from None
     return result
 
 
@@ -213,18 +262,24 @@ META = ("citation", "year", "doi", "url", "kind", "lab", "republishes", "note")
 
 def _meta(source: dict[str, Any]) -> tuple[Any, ...]:
     """The source's metadata as stored in the sources table."""
-    return tuple("|".join(source.get("republishes", [])) if k == "republishes"
-                 else source.get(k) for k in META)
+    return tuple(
+        "|".join(source.get("republishes", [])) if k == "republishes" else source.get(k)
+        for k in META
+    )
 
 
 def _moved(con: Any, source_id: str, records: pa.Table) -> int:
     """Records that kept their content but sit in another sheet row than before."""
     con.register("incoming_rows", records.select(["record_id", "sheet", "sheet_row"]))
     try:
-        return int(con.execute(
-            "SELECT count(*) FROM incoming_rows n JOIN (SELECT record_id, sheet, sheet_row FROM "
-            "lake.analyses WHERE source_id = ?) o USING (record_id) WHERE n.sheet <> o.sheet "
-            "OR n.sheet_row <> o.sheet_row", [source_id]).fetchone()[0])
+        return int(
+            con.execute(
+                "SELECT count(*) FROM incoming_rows n JOIN (SELECT record_id, sheet, sheet_row FROM "
+                "lake.analyses WHERE source_id = ?) o USING (record_id) WHERE n.sheet <> o.sheet "
+                "OR n.sheet_row <> o.sheet_row",
+                [source_id],
+            ).fetchone()[0]
+        )
     finally:
         con.unregister("incoming_rows")
 
@@ -234,27 +289,32 @@ def _diff(con: Any, source_id: str, records: pa.Table) -> tuple[int, int, int]:
     con.register("incoming_ids", records.select(["record_id", "row_hash"]))
     try:
         old = "(SELECT record_id, row_hash FROM lake.analyses WHERE source_id = ?)"
-        added = con.execute(f"SELECT count(*) FROM incoming_ids n ANTI JOIN {old} o "
-                            "USING (record_id)", [source_id]).fetchone()[0]
-        removed = con.execute(f"SELECT count(*) FROM {old} o ANTI JOIN incoming_ids n "
-                              "USING (record_id)", [source_id]).fetchone()[0]
-        changed = con.execute(f"SELECT count(*) FROM incoming_ids n JOIN {old} o "
-                              "USING (record_id) WHERE n.row_hash <> o.row_hash",
-                              [source_id]).fetchone()[0]
+        added = con.execute(
+            f"SELECT count(*) FROM incoming_ids n ANTI JOIN {old} o USING (record_id)", [source_id]
+        ).fetchone()[0]
+        removed = con.execute(
+            f"SELECT count(*) FROM {old} o ANTI JOIN incoming_ids n USING (record_id)", [source_id]
+        ).fetchone()[0]
+        changed = con.execute(
+            f"SELECT count(*) FROM incoming_ids n JOIN {old} o "
+            "USING (record_id) WHERE n.row_hash <> o.row_hash",
+            [source_id],
+        ).fetchone()[0]
     finally:
         con.unregister("incoming_ids")
     return int(added), int(removed), int(changed)
 
 
-def _all_ties(con: Any, source_id: str, new_ties: pa.Table, relation: str = "lake.age_ties"
-              ) -> pa.Table:
+def _all_ties(
+    con: Any, source_id: str, new_ties: pa.Table, relation: str = "lake.age_ties"
+) -> pa.Table:
     """Every stored tie except this source's old ones, plus its new ones."""
     import pyarrow as pa
 
-    others = con.execute(f"SELECT * FROM {relation} WHERE tie_source_id IS DISTINCT FROM ?",
-                         [source_id]).to_arrow_table()
-    return pa.concat_tables([others.select(new_ties.column_names).cast(new_ties.schema),
-                             new_ties])
+    others = con.execute(
+        f"SELECT * FROM {relation} WHERE tie_source_id IS DISTINCT FROM ?", [source_id]
+    ).to_arrow_table()
+    return pa.concat_tables([others.select(new_ties.column_names).cast(new_ties.schema), new_ties])
 
 
 def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
@@ -269,21 +329,26 @@ def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
     try:
         ties = _all_ties(con, prepared.mapping.source_id, new_ties, "age_ties")
         _check_tie_targets(con, prepared, new_ties, "records")
-        fixes = con.execute("SELECT * FROM corrections WHERE source_id = ?",
-                            [prepared.mapping.source_id]).to_arrow_table()
+        fixes = con.execute(
+            "SELECT * FROM corrections WHERE source_id = ?", [prepared.mapping.source_id]
+        ).to_arrow_table()
     finally:
         con.close()
     return derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
 
 
-def _check_tie_targets(con: Any, prepared: Any, new_ties: pa.Table,
-                       analyses: str = "lake.analyses") -> None:
+def _check_tie_targets(
+    con: Any, prepared: Any, new_ties: pa.Table, analyses: str = "lake.analyses"
+) -> None:
     """Every tie dates a section that exists: this source's, or one already in the store."""
     import pyarrow.compute as pc
 
     sid = prepared.mapping.source_id
-    own = set(pc.unique(prepared.records.column("section_id")).to_pylist()) \
-        if prepared.records.num_rows else set()
+    own = (
+        set(pc.unique(prepared.records.column("section_id")).to_pylist())
+        if prepared.records.num_rows
+        else set()
+    )
     for t in new_ties.to_pylist():
         if t["source_id"] == sid:
             if t["section_id"] not in own:
@@ -291,18 +356,26 @@ def _check_tie_targets(con: Any, prepared: Any, new_ties: pa.Table,
                     f"{prepared.mapping.path.name}: a tie names section {t['section_id']!r}, "
                     f"which no row of source {sid!r} has; nothing was written.",
                     "Check the tie's section (write other-source/section for a section of "
-                    "another source).")
-        elif con is not None and not con.execute(
+                    "another source).",
+                )
+        elif (
+            con is not None
+            and not con.execute(
                 f"SELECT count(*) FROM {analyses} WHERE source_id = ? AND section_id = ?",
-                [t["source_id"], t["section_id"]]).fetchone()[0]:
+                [t["source_id"], t["section_id"]],
+            ).fetchone()[0]
+        ):
             raise DomainError(
                 f"{prepared.mapping.path.name}: a tie names section "
                 f"{t['source_id']}/{t['section_id']}, which is not in the store; nothing was "
-                "written.", "Ingest that source first, or check the section's name.")
+                "written.",
+                "Ingest that source first, or check the section's name.",
+            )
 
 
 def _same_rows(a: pa.Table, b: pa.Table) -> bool:
     """Whether two tables hold the same rows (order ignored)."""
+
     def rows(t: pa.Table) -> list[tuple[Any, ...]]:
         cols = [c for c in b.column_names]
         return sorted(tuple(str(v) for v in r.values()) for r in t.select(cols).to_pylist())
@@ -310,21 +383,24 @@ def _same_rows(a: pa.Table, b: pa.Table) -> bool:
     return a.num_rows == b.num_rows and rows(a) == rows(b)
 
 
-def derive_sources(con: Any, sources: list[str], settings: Settings,
-                   ties: pa.Table | None = None) -> dict[str, tuple[pa.Table, Any]]:
+def derive_sources(
+    con: Any, sources: list[str], settings: Settings, ties: pa.Table | None = None
+) -> dict[str, tuple[pa.Table, Any]]:
     """Re-derive stored sources (their records, runs, corrections and the given or stored
     ties) inside the writer's transaction: {source: (stored records, Derived)}."""
     if ties is None:
         ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
     out = {}
     for sid in sources:
-        recs = con.execute("SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY "
-                           "record_id", [sid]).to_arrow_table()
+        recs = con.execute(
+            "SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY record_id", [sid]
+        ).to_arrow_table()
         if not recs.num_rows:
             continue
         runs = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [sid]).to_arrow_table()
-        fixes = con.execute("SELECT * FROM lake.corrections WHERE source_id = ?",
-                            [sid]).to_arrow_table()
+        fixes = con.execute(
+            "SELECT * FROM lake.corrections WHERE source_id = ?", [sid]
+        ).to_arrow_table()
         out[sid] = (recs, derive(recs, settings, ties, runs=runs, corrections=fixes))
     return out
 
@@ -355,8 +431,7 @@ def _orphans(fixes: pa.Table, records: pa.Table) -> int:
 
 def _same_runs(con: Any, source_id: str, runs: pa.Table | None) -> bool:
     """Whether the source's stored run standards equal the incoming ones."""
-    old = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [source_id]
-                      ).to_arrow_table()
+    old = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [source_id]).to_arrow_table()
     if runs is None:
         return old.num_rows == 0
     return _same_rows(old.select(runs.column_names), runs)
@@ -383,9 +458,17 @@ def _pending_counts(records: pa.Table) -> dict[str, int]:
     return out
 
 
-def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, derived: Any,
-            settings: Settings, result: IngestResult, ties: pa.Table,
-            others: dict[str, Any]) -> int:
+def _commit(
+    store: Store,
+    con: Any,
+    prepared: Any,
+    records: pa.Table,
+    derived: Any,
+    settings: Settings,
+    result: IngestResult,
+    ties: pa.Table,
+    others: dict[str, Any],
+) -> int:
     """One transaction across all tables: replace the source (records, ties, age draws,
     screen results), re-date the sources its ties date, add chains, log the commit."""
     import pyarrow as pa
@@ -397,24 +480,42 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, derived: A
         con.execute(f"DELETE FROM lake.{table} WHERE source_id = ?", [sid])
     version = store._latest(con) + 1
     src = m.source
-    sources = pa.Table.from_pylist([{
-        "source_id": sid, "citation": src.get("citation"), "year": src.get("year"),
-        "doi": src.get("doi"), "url": src.get("url"), "kind": src.get("kind"),
-        "lab": src.get("lab"), "republishes": _meta(src)[META.index("republishes")],
-        "note": src.get("note"),
-        "file_name": m.table.file.name if m.table is not None else m.path.name,
-        "file_sha256": prepared.file_sha256, "mapping_sha256": m.sha256,
-        "n_records": records.num_rows, "ingested_version": version,
-        "schema_version": SCHEMA_VERSION}], schema=arrow_schema(SOURCES))
+    sources = pa.Table.from_pylist(
+        [
+            {
+                "source_id": sid,
+                "citation": src.get("citation"),
+                "year": src.get("year"),
+                "doi": src.get("doi"),
+                "url": src.get("url"),
+                "kind": src.get("kind"),
+                "lab": src.get("lab"),
+                "republishes": _meta(src)[META.index("republishes")],
+                "note": src.get("note"),
+                "file_name": m.table.file.name if m.table is not None else m.path.name,
+                "file_sha256": prepared.file_sha256,
+                "mapping_sha256": m.sha256,
+                "n_records": records.num_rows,
+                "ingested_version": version,
+                "schema_version": SCHEMA_VERSION,
+            }
+        ],
+        schema=arrow_schema(SOURCES),
+    )
     quarantine = pa.Table.from_pylist(
         [{"source_id": sid, **q, "ingested_version": version} for q in prepared.quarantine],
-        schema=arrow_schema(QUARANTINE))
+        schema=arrow_schema(QUARANTINE),
+    )
     if records.num_rows:
         store.add_parquet(con, "analyses", records)
-    for name, table in (("sources", sources),
-                        ("localities", prepared.localities), ("sections", prepared.sections),
-                        ("samples", prepared.samples), ("quarantine", quarantine),
-                        *([("runs", prepared.runs)] if prepared.runs is not None else [])):
+    for name, table in (
+        ("sources", sources),
+        ("localities", prepared.localities),
+        ("sections", prepared.sections),
+        ("samples", prepared.samples),
+        ("quarantine", quarantine),
+        *([("runs", prepared.runs)] if prepared.runs is not None else []),
+    ):
         if table.num_rows:
             _insert(con, name, table)
     con.execute("DELETE FROM lake.age_ties WHERE tie_source_id = ?", [sid])
@@ -424,10 +525,17 @@ def _commit(store: Store, con: Any, prepared: Any, records: pa.Table, derived: A
     replace_derived_tables(store, con, [sid], derived)
     store.add_chains(con, derived.chains)
     write_sources(store, con, others)
-    summary = {"source": sid, "records": records.num_rows, "added": result.added,
-               "removed": result.removed, "changed": result.changed, "moved": result.moved,
-               "quarantined": result.quarantined, "ties": ties.num_rows,
-               "redated": result.redated}
+    summary = {
+        "source": sid,
+        "records": records.num_rows,
+        "added": result.added,
+        "removed": result.removed,
+        "changed": result.changed,
+        "moved": result.moved,
+        "quarantined": result.quarantined,
+        "ties": ties.num_rows,
+        "redated": result.redated,
+    }
     got = store._record_commit(con, "ingest", sid, settings.hash(), summary)
     con.execute("COMMIT")
     return got
@@ -443,14 +551,21 @@ def _insert(con: Any, name: str, table: pa.Table) -> None:
         con.unregister("incoming")
 
 
-def replace_derived_tables(store: Store, con: Any, source_ids: list[str] | None,
-                           derived: Any) -> None:
+def replace_derived_tables(
+    store: Store, con: Any, source_ids: list[str] | None, derived: Any
+) -> None:
     """Replace the age draws and screen results of ``source_ids`` (None: all) with
     ``derived``'s; the records themselves are written by the caller."""
-    where, params = ("", []) if source_ids is None else (
-        f" WHERE source_id IN ({', '.join('?' for _ in source_ids)})", list(source_ids))
-    for name, table in (("age_draws", derived.draws), ("screen_results", derived.screens),
-                        ("run_qc", derived.run_qc)):
+    where, params = (
+        ("", [])
+        if source_ids is None
+        else (f" WHERE source_id IN ({', '.join('?' for _ in source_ids)})", list(source_ids))
+    )
+    for name, table in (
+        ("age_draws", derived.draws),
+        ("screen_results", derived.screens),
+        ("run_qc", derived.run_qc),
+    ):
         con.execute(f"DELETE FROM lake.{name}{where}", params)
         if table is None or not table.num_rows:
             continue
@@ -464,6 +579,7 @@ def reconcile(result: IngestResult) -> str:
     """The row accounting sentence: read = committed + quarantined + blank."""
     r = result.report
     std = f" + {result.standards} run standards" if result.standards else ""
-    return (f"read {r.rows_read} rows = {result.committed} committed{std} + "
-            f"{result.quarantined} quarantined + {r.rows_blank} blank")
-
+    return (
+        f"read {r.rows_read} rows = {result.committed} committed{std} + "
+        f"{result.quarantined} quarantined + {r.rows_blank} blank"
+    )

@@ -70,11 +70,26 @@ def load_materials(path: Path | None = None) -> list[MaterialValue]:
     rows = []
     with (path or DATA / "reference_materials.csv").open(encoding="utf-8", newline="") as fh:
         for r in csv.DictReader(fh):
-            rows.append(MaterialValue(
-                r["material"], r["kind"], r["value_set"], r["status"], _num(r["d13c"]),
-                _num(r["d13c_unc"]), r["d13c_unc_kind"], r["d13c_scale"], _num(r["d18o"]),
-                _num(r["d18o_unc"]), r["d18o_unc_kind"], r["d18o_scale"], _int(r["valid_from"]),
-                _int(r["valid_to"]), r["confidence"], r["source"]))
+            rows.append(
+                MaterialValue(
+                    r["material"],
+                    r["kind"],
+                    r["value_set"],
+                    r["status"],
+                    _num(r["d13c"]),
+                    _num(r["d13c_unc"]),
+                    r["d13c_unc_kind"],
+                    r["d13c_scale"],
+                    _num(r["d18o"]),
+                    _num(r["d18o_unc"]),
+                    r["d18o_unc_kind"],
+                    r["d18o_scale"],
+                    _int(r["valid_from"]),
+                    _int(r["valid_to"]),
+                    r["confidence"],
+                    r["source"],
+                )
+            )
     return rows
 
 
@@ -88,9 +103,15 @@ def oxygen_relations() -> dict[str, OxygenRelation]:
     out = {}
     with (DATA / "vsmow_vpdb.csv").open(encoding="utf-8", newline="") as fh:
         for r in csv.DictReader(fh):
-            out[r["name"]] = OxygenRelation(r["name"], r["form"], float(r["slope"]),
-                                            float(r["intercept"]), r["status"], r["confidence"],
-                                            r["source"])
+            out[r["name"]] = OxygenRelation(
+                r["name"],
+                r["form"],
+                float(r["slope"]),
+                float(r["intercept"]),
+                r["status"],
+                r["confidence"],
+                r["source"],
+            )
     return out
 
 
@@ -116,21 +137,39 @@ def materials_from_text(text: str, origin: str = "materials file") -> list[Mater
     need = {"material", "value_set", "status", "d13c", "d13c_scale", "d18o", "d18o_scale"}
     missing = need - set(reader.fieldnames or [])
     if missing:
-        raise ConfigError(f"{origin} lacks the column(s) {', '.join(sorted(missing))}.",
-                          "Use the columns of `strata13 scales --format csv`.")
+        raise ConfigError(
+            f"{origin} lacks the column(s) {', '.join(sorted(missing))}.",
+            "Use the columns of `strata13 scales --format csv`.",
+        )
     rows = []
     for line, r in enumerate(reader, start=2):
         g = functools.partial(_cell, r)
         try:
-            rows.append(MaterialValue(
-                g("material"), g("kind"), g("value_set") or "user", g("status") or "current",
-                _num(g("d13c")), _num(g("d13c_unc")), g("d13c_unc_kind"), g("d13c_scale"),
-                _num(g("d18o")), _num(g("d18o_unc")), g("d18o_unc_kind"), g("d18o_scale"),
-                _int(g("valid_from")), _int(g("valid_to")), g("confidence") or "user",
-                g("source") or origin))
+            rows.append(
+                MaterialValue(
+                    g("material"),
+                    g("kind"),
+                    g("value_set") or "user",
+                    g("status") or "current",
+                    _num(g("d13c")),
+                    _num(g("d13c_unc")),
+                    g("d13c_unc_kind"),
+                    g("d13c_scale"),
+                    _num(g("d18o")),
+                    _num(g("d18o_unc")),
+                    g("d18o_unc_kind"),
+                    g("d18o_scale"),
+                    _int(g("valid_from")),
+                    _int(g("valid_to")),
+                    g("confidence") or "user",
+                    g("source") or origin,
+                )
+            )
         except ValueError:
-            raise ConfigError(f"{origin} line {line}: a number column holds text.",
-                              "Write values as plain numbers (‰, years).") from None
+            raise ConfigError(
+                f"{origin} line {line}: a number column holds text.",
+                "Write values as plain numbers (‰, years).",
+            ) from None
         if not rows[-1].material:
             raise ConfigError(f"{origin} line {line} names no material.", "Fill the material.")
     return rows
@@ -150,8 +189,9 @@ def _rank(iso: str, user: frozenset[int], m: MaterialValue) -> tuple[int, int, i
     return (1, mine, -(m.valid_from or 0), pref)  # no current value: the latest
 
 
-def default_choice(table: list[MaterialValue] | tuple[MaterialValue, ...],
-                   n_user: int = 0) -> dict[str, dict[str, str]]:
+def default_choice(
+    table: list[MaterialValue] | tuple[MaterialValue, ...], n_user: int = 0
+) -> dict[str, dict[str, str]]:
     """Which value set the store accepts per material and isotope, unless told otherwise.
 
     Rule (documented choice): a *current* value first; a value exact by definition on VPDB
@@ -176,26 +216,33 @@ def default_choice(table: list[MaterialValue] | tuple[MaterialValue, ...],
     return out
 
 
-def accepted_value(material: str, isotope: str, table: list[MaterialValue] |
-                   tuple[MaterialValue, ...], choice: dict[str, dict[str, str]],
-                   vsmow_relation: str) -> tuple[float, MaterialValue]:
+def accepted_value(
+    material: str,
+    isotope: str,
+    table: list[MaterialValue] | tuple[MaterialValue, ...],
+    choice: dict[str, dict[str, str]],
+    vsmow_relation: str,
+) -> tuple[float, MaterialValue]:
     """The store's accepted δ value of ``material`` on VPDB (δ18O on VSMOW converted with
     the store's relation). Raises DomainError for a material the store does not know."""
     from strata13.errors import DomainError
 
     value_set = choice.get(material, {}).get(isotope)
-    hits = [m for m in table if m.material == material and m.value_set == value_set
-            and getattr(m, isotope) is not None]
+    hits = [
+        m
+        for m in table
+        if m.material == material and m.value_set == value_set and getattr(m, isotope) is not None
+    ]
     if not hits:
         known = sorted({m.material for m in table})
         import difflib
 
         sug = difflib.get_close_matches(material, known, n=1)
-        raise DomainError(f"reference material {material!r} has no accepted {isotope} value in "
-                          "the store's material table." + (f" Did you mean {sug[0]!r}?" if sug
-                                                           else ""),
-                          "Name a material `strata13 scales` lists, or add it with "
-                          "--materials FILE.")
+        raise DomainError(
+            f"reference material {material!r} has no accepted {isotope} value in "
+            "the store's material table." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+            "Name a material `strata13 scales` lists, or add it with --materials FILE.",
+        )
     m = hits[0]
     v = float(getattr(m, isotope))
     if isotope == "d18o" and m.d18o_scale == "VSMOW":
@@ -207,7 +254,10 @@ def accepted_value(material: str, isotope: str, table: list[MaterialValue] |
 def store_table(settings: dict[str, Any]) -> tuple[list[MaterialValue], dict[str, dict[str, str]]]:
     """The store's material table (its user file's rows first, then the shipped table) and
     the value set it accepts per material and isotope."""
-    user = materials_from_text(settings["materials_csv"], "the store's materials") \
-        if settings.get("materials_csv") else []
+    user = (
+        materials_from_text(settings["materials_csv"], "the store's materials")
+        if settings.get("materials_csv")
+        else []
+    )
     table = [*user, *shipped_materials()]
     return table, settings.get("material_values") or default_choice(table, len(user))

@@ -25,139 +25,316 @@ TEXT, REAL, INT, BIGINT, BLOB = "VARCHAR", "DOUBLE", "INTEGER", "BIGINT", "BLOB"
 def _delta_columns() -> list[tuple[str, str]]:
     out = []
     for d in DELTA_FIELDS:
-        out += [(f"{d}_reported", REAL), (f"{d}_scale", TEXT), (f"{d}_sd", REAL),
-                (f"{d}_precision", REAL), (d, REAL), (f"{d}_chain", TEXT), (f"{d}_status", TEXT)]
+        out += [
+            (f"{d}_reported", REAL),
+            (f"{d}_scale", TEXT),
+            (f"{d}_sd", REAL),
+            (f"{d}_precision", REAL),
+            (d, REAL),
+            (f"{d}_chain", TEXT),
+            (f"{d}_status", TEXT),
+        ]
     return out
 
 
 def _conc_columns() -> list[tuple[str, str]]:
     out = []
     for c in CONC_FIELDS:
-        out += [(BY_NAME[c].stored, REAL), (f"{c}_qualifier", TEXT), (f"{c}_dl", REAL),
-                (f"{c}_basis", TEXT)]
+        out += [
+            (BY_NAME[c].stored, REAL),
+            (f"{c}_qualifier", TEXT),
+            (f"{c}_dl", REAL),
+            (f"{c}_basis", TEXT),
+        ]
     return out
 
 
 ANALYSES: list[tuple[str, str]] = [
-    ("record_id", TEXT), ("source_id", TEXT), ("locality_id", TEXT), ("locality_name", TEXT),
+    ("record_id", TEXT),
+    ("source_id", TEXT),
+    ("locality_id", TEXT),
+    ("locality_name", TEXT),
     ("section_id", TEXT),
-    ("sample_id", TEXT), ("replicate", INT), ("n_replicates", INT),
-    ("lat", REAL), ("lon", REAL),
-    ("position_m", REAL), ("top_m", REAL), ("base_m", REAL), ("position_kind", TEXT),
+    ("sample_id", TEXT),
+    ("replicate", INT),
+    ("n_replicates", INT),
+    ("lat", REAL),
+    ("lon", REAL),
+    ("position_m", REAL),
+    ("top_m", REAL),
+    ("base_m", REAL),
+    ("position_kind", TEXT),
     ("lithostrat_unit", TEXT),
-    ("lithology", TEXT), ("texture", TEXT), ("component", TEXT), ("mineralogy", TEXT),
-    ("setting", TEXT), ("preservation", TEXT),
+    ("lithology", TEXT),
+    ("texture", TEXT),
+    ("component", TEXT),
+    ("mineralogy", TEXT),
+    ("setting", TEXT),
+    ("preservation", TEXT),
     *_delta_columns(),
     *_conc_columns(),
-    ("age_reported_ma", REAL), ("age_reported_sigma_ma", REAL), ("age_reported_scale", TEXT),
+    ("age_reported_ma", REAL),
+    ("age_reported_sigma_ma", REAL),
+    ("age_reported_scale", TEXT),
     ("stage_reported", TEXT),
-    ("age_ma", REAL), ("age_sigma_ma", REAL), ("age_basis", TEXT), ("time_scale", TEXT),
+    ("age_ma", REAL),
+    ("age_sigma_ma", REAL),
+    ("age_basis", TEXT),
+    ("time_scale", TEXT),
     ("age_status", TEXT),
-    ("plate_id", INT), ("paleolat", REAL), ("paleolon", REAL), ("paleo_model", TEXT),
-    ("paleo_frame", TEXT), ("paleo_status", TEXT),
-    ("reported_paleolat", REAL), ("reported_paleolon", REAL),
+    ("plate_id", INT),
+    ("paleolat", REAL),
+    ("paleolon", REAL),
+    ("paleo_model", TEXT),
+    ("paleo_frame", TEXT),
+    ("paleo_status", TEXT),
+    ("reported_paleolat", REAL),
+    ("reported_paleolon", REAL),
     ("screen", TEXT),
-    ("original_source_id", TEXT), ("run_id", TEXT), ("note", TEXT),
-    ("sheet", TEXT), ("sheet_row", INT), ("row_hash", BIGINT),
+    ("original_source_id", TEXT),
+    ("run_id", TEXT),
+    ("note", TEXT),
+    ("sheet", TEXT),
+    ("sheet_row", INT),
+    ("row_hash", BIGINT),
     # added with age models; appended so older stores migrate in place
-    ("age_chain", TEXT), ("age_lo95_ma", REAL), ("age_hi95_ma", REAL),
+    ("age_chain", TEXT),
+    ("age_lo95_ma", REAL),
+    ("age_hi95_ma", REAL),
     # how the authors normalised each δ column (JSON: method and assumed anchor values)
-    ("d13c_carb_normalisation", TEXT), ("d18o_carb_normalisation", TEXT),
+    ("d13c_carb_normalisation", TEXT),
+    ("d18o_carb_normalisation", TEXT),
     ("d13c_org_normalisation", TEXT),
-    ("run_position", REAL), ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
+    ("run_position", REAL),
+    ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
     ("corrected_fields", TEXT),  # JSON list of the fields a stored correction changed
     ("plate_override", INT),  # the mapping's plate for the record's locality (displaced terranes)
     ("paleolat_sigma", REAL),  # 1σ of paleolatitude from the model's pole uncertainties
 ]
 
 SOURCES = [
-    ("source_id", TEXT), ("citation", TEXT), ("year", INT), ("doi", TEXT), ("url", TEXT),
-    ("kind", TEXT), ("lab", TEXT), ("republishes", TEXT), ("note", TEXT),
-    ("file_name", TEXT), ("file_sha256", TEXT), ("mapping_sha256", TEXT),
-    ("n_records", BIGINT), ("ingested_version", BIGINT), ("schema_version", TEXT),
+    ("source_id", TEXT),
+    ("citation", TEXT),
+    ("year", INT),
+    ("doi", TEXT),
+    ("url", TEXT),
+    ("kind", TEXT),
+    ("lab", TEXT),
+    ("republishes", TEXT),
+    ("note", TEXT),
+    ("file_name", TEXT),
+    ("file_sha256", TEXT),
+    ("mapping_sha256", TEXT),
+    ("n_records", BIGINT),
+    ("ingested_version", BIGINT),
+    ("schema_version", TEXT),
 ]
 LOCALITIES = [
-    ("source_id", TEXT), ("locality_id", TEXT), ("name", TEXT), ("lat", REAL), ("lon", REAL),
-    ("precision_km", REAL), ("aliases", TEXT), ("note", TEXT),
+    ("source_id", TEXT),
+    ("locality_id", TEXT),
+    ("name", TEXT),
+    ("lat", REAL),
+    ("lon", REAL),
+    ("precision_km", REAL),
+    ("aliases", TEXT),
+    ("note", TEXT),
 ]
 SECTIONS = [
-    ("source_id", TEXT), ("section_id", TEXT), ("locality_id", TEXT), ("name", TEXT),
-    ("datum", TEXT), ("position_kind", TEXT), ("datum_offset_m", REAL), ("offset_from", TEXT),
-    ("offset_source", TEXT), ("note", TEXT),
+    ("source_id", TEXT),
+    ("section_id", TEXT),
+    ("locality_id", TEXT),
+    ("name", TEXT),
+    ("datum", TEXT),
+    ("position_kind", TEXT),
+    ("datum_offset_m", REAL),
+    ("offset_from", TEXT),
+    ("offset_source", TEXT),
+    ("note", TEXT),
 ]
 SAMPLES = [
-    ("source_id", TEXT), ("section_id", TEXT), ("sample_id", TEXT), ("position_m", REAL),
-    ("top_m", REAL), ("base_m", REAL), ("lithostrat_unit", TEXT),
+    ("source_id", TEXT),
+    ("section_id", TEXT),
+    ("sample_id", TEXT),
+    ("position_m", REAL),
+    ("top_m", REAL),
+    ("base_m", REAL),
+    ("lithostrat_unit", TEXT),
 ]
 QUARANTINE = [
-    ("source_id", TEXT), ("sheet", TEXT), ("sheet_row", INT), ("cells_json", TEXT),
-    ("reasons", TEXT), ("ingested_version", BIGINT),
+    ("source_id", TEXT),
+    ("sheet", TEXT),
+    ("sheet_row", INT),
+    ("cells_json", TEXT),
+    ("reasons", TEXT),
+    ("ingested_version", BIGINT),
 ]
 SETTINGS = [("key", TEXT), ("value_json", TEXT), ("hash", TEXT)]
 COMMITS = [
-    ("version", BIGINT), ("command", TEXT), ("detail", TEXT), ("tool_version", TEXT),
-    ("schema_version", TEXT), ("settings_hash", TEXT), ("summary_json", TEXT),
+    ("version", BIGINT),
+    ("command", TEXT),
+    ("detail", TEXT),
+    ("tool_version", TEXT),
+    ("schema_version", TEXT),
+    ("settings_hash", TEXT),
+    ("summary_json", TEXT),
 ]
 REGIONS = [("name", TEXT), ("geojson", TEXT), ("source_file", TEXT)]
 CHAINS = [("chain_id", TEXT), ("steps_json", TEXT)]
 # Filled by later capabilities; present now so no migration is needed.
 # reference-material measurements of in-house runs (raw, on the working gas)
-RUNS = [("source_id", TEXT), ("run_id", TEXT), ("material", TEXT), ("d13c_measured", REAL),
-        ("d18o_measured", REAL), ("note", TEXT), ("run_position", REAL), ("sheet_row", INT)]
+RUNS = [
+    ("source_id", TEXT),
+    ("run_id", TEXT),
+    ("material", TEXT),
+    ("d13c_measured", REAL),
+    ("d18o_measured", REAL),
+    ("note", TEXT),
+    ("run_position", REAL),
+    ("sheet_row", INT),
+]
 # per run and isotope: the normalisation line and its quality (derived; replaced on recompute)
-RUN_QC = [("source_id", TEXT), ("run_id", TEXT), ("isotope", TEXT), ("slope", REAL),
-          ("intercept", REAL), ("n_anchors", INT), ("anchors", TEXT), ("residuals_json", TEXT),
-          ("precision_1s", REAL), ("drift_per_position", REAL), ("warnings", TEXT)]
+RUN_QC = [
+    ("source_id", TEXT),
+    ("run_id", TEXT),
+    ("isotope", TEXT),
+    ("slope", REAL),
+    ("intercept", REAL),
+    ("n_anchors", INT),
+    ("anchors", TEXT),
+    ("residuals_json", TEXT),
+    ("precision_1s", REAL),
+    ("drift_per_position", REAL),
+    ("warnings", TEXT),
+]
 # source_id/section_id: the section a tie dates; tie_source_id: the source that gave the tie
 # (a tie source of its own survives re-ingests of the data it dates). age_sigma_ma is 1σ.
-AGE_TIES = [("source_id", TEXT), ("section_id", TEXT), ("position_m", REAL), ("age_ma", REAL),
-            ("age_sigma_ma", REAL), ("basis", TEXT), ("chart", TEXT), ("note", TEXT),
-            ("tie_source_id", TEXT), ("tie_id", TEXT), ("position_sigma_m", REAL),
-            ("confidence", TEXT), ("boundary", TEXT), ("anchor", TEXT)]
+AGE_TIES = [
+    ("source_id", TEXT),
+    ("section_id", TEXT),
+    ("position_m", REAL),
+    ("age_ma", REAL),
+    ("age_sigma_ma", REAL),
+    ("basis", TEXT),
+    ("chart", TEXT),
+    ("note", TEXT),
+    ("tie_source_id", TEXT),
+    ("tie_id", TEXT),
+    ("position_sigma_m", REAL),
+    ("confidence", TEXT),
+    ("boundary", TEXT),
+    ("anchor", TEXT),
+]
 # Age-model draws per section, chunked: ages (float32, draws x positions, row-major) at the
 # section's distinct sample positions, on the store's time scale.
-AGE_DRAWS = [("source_id", TEXT), ("section_id", TEXT), ("chunk", INT), ("positions_json", TEXT),
-             ("n_draws", INT), ("draws", BLOB)]
+AGE_DRAWS = [
+    ("source_id", TEXT),
+    ("section_id", TEXT),
+    ("chunk", INT),
+    ("positions_json", TEXT),
+    ("n_draws", INT),
+    ("draws", BLOB),
+]
 # the corrections layer: a user's fix of one field of one record, with the reason and what
 # was published; applied by the derive engine on every derivation of that record
-CORRECTIONS = [("correction_id", TEXT), ("record_id", TEXT), ("source_id", TEXT),
-               ("field", TEXT), ("value_text", TEXT), ("why", TEXT), ("original_text", TEXT),
-               ("created_utc", TEXT)]
+CORRECTIONS = [
+    ("correction_id", TEXT),
+    ("record_id", TEXT),
+    ("source_id", TEXT),
+    ("field", TEXT),
+    ("value_text", TEXT),
+    ("why", TEXT),
+    ("original_text", TEXT),
+    ("created_utc", TEXT),
+]
 # decisions on probable duplicates: a confirmed pair names the record views leave out
-DUPLICATES = [("record_a", TEXT), ("record_b", TEXT), ("decision", TEXT), ("note", TEXT),
-              ("drop_record_id", TEXT), ("decided_utc", TEXT)]
-SCREEN_RESULTS = [("record_id", TEXT), ("rule", TEXT), ("outcome", TEXT), ("detail", TEXT),
-                  ("source_id", TEXT)]
+DUPLICATES = [
+    ("record_a", TEXT),
+    ("record_b", TEXT),
+    ("decision", TEXT),
+    ("note", TEXT),
+    ("drop_record_id", TEXT),
+    ("decided_utc", TEXT),
+]
+SCREEN_RESULTS = [
+    ("record_id", TEXT),
+    ("rule", TEXT),
+    ("outcome", TEXT),
+    ("detail", TEXT),
+    ("source_id", TEXT),
+]
 
 TABLES: dict[str, list[tuple[str, str]]] = {
-    "analyses": ANALYSES, "sources": SOURCES, "localities": LOCALITIES, "sections": SECTIONS,
-    "samples": SAMPLES, "quarantine": QUARANTINE, "settings": SETTINGS, "commits": COMMITS,
-    "regions": REGIONS, "chains": CHAINS, "runs": RUNS, "age_ties": AGE_TIES,
-    "age_draws": AGE_DRAWS, "screen_results": SCREEN_RESULTS, "run_qc": RUN_QC,
-    "corrections": CORRECTIONS, "duplicates": DUPLICATES,
+    "analyses": ANALYSES,
+    "sources": SOURCES,
+    "localities": LOCALITIES,
+    "sections": SECTIONS,
+    "samples": SAMPLES,
+    "quarantine": QUARANTINE,
+    "settings": SETTINGS,
+    "commits": COMMITS,
+    "regions": REGIONS,
+    "chains": CHAINS,
+    "runs": RUNS,
+    "age_ties": AGE_TIES,
+    "age_draws": AGE_DRAWS,
+    "screen_results": SCREEN_RESULTS,
+    "run_qc": RUN_QC,
+    "corrections": CORRECTIONS,
+    "duplicates": DUPLICATES,
 }
 # Tables replaced source by source on (re-)ingest.
-PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine",
-              "runs")
+PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine", "runs")
 
 # The public `records` view: DESIGN.md's names first, then every other analyses column.
 RECORDS_PUBLIC = [
-    "record_id", "source_id", "locality_id", "section_id", "sample_id", "replicate", "lat",
-    "lon", "position_m", "position_kind", "age_ma", "age_sigma_ma", "age_basis", "time_scale",
-    "lithology", "texture", "component", "mineralogy", "setting", "d13c_carb",
-    "d13c_carb_reported", "d13c_carb_scale", "d18o_carb", "d18o_carb_reported",
-    "d18o_carb_scale", "d13c_org", "d13c_org_reported", "d13c_org_scale", "plate_id",
-    "paleolat", "paleolon", "screen",
+    "record_id",
+    "source_id",
+    "locality_id",
+    "section_id",
+    "sample_id",
+    "replicate",
+    "lat",
+    "lon",
+    "position_m",
+    "position_kind",
+    "age_ma",
+    "age_sigma_ma",
+    "age_basis",
+    "time_scale",
+    "lithology",
+    "texture",
+    "component",
+    "mineralogy",
+    "setting",
+    "d13c_carb",
+    "d13c_carb_reported",
+    "d13c_carb_scale",
+    "d18o_carb",
+    "d18o_carb_reported",
+    "d18o_carb_scale",
+    "d13c_org",
+    "d13c_org_reported",
+    "d13c_org_scale",
+    "plate_id",
+    "paleolat",
+    "paleolon",
+    "screen",
 ]
-RECORDS_COLUMNS = RECORDS_PUBLIC + [c for c, _ in ANALYSES if c not in RECORDS_PUBLIC
-                                    and c != "row_hash"]
+RECORDS_COLUMNS = RECORDS_PUBLIC + [
+    c for c, _ in ANALYSES if c not in RECORDS_PUBLIC and c != "row_hash"
+]
 
 
 def arrow_schema(columns: list[tuple[str, str]]) -> pa.Schema:
     import pyarrow as pa
 
-    types = {TEXT: pa.string(), REAL: pa.float64(), INT: pa.int32(), BIGINT: pa.int64(),
-             BLOB: pa.binary()}
+    types = {
+        TEXT: pa.string(),
+        REAL: pa.float64(),
+        INT: pa.int32(),
+        BIGINT: pa.int64(),
+        BLOB: pa.binary(),
+    }
     return pa.schema([(n, types[t]) for n, t in columns])
 
 
@@ -182,8 +359,9 @@ def record_schema() -> pa_schema.DataFrameSchema:
         if f.plausible:
             checks.append(pa_schema.Check.in_range(*f.plausible, name=f.plausible_name))
         if f.vocab:
-            checks.append(pa_schema.Check.isin(vocabulary(f.vocab).terms,
-                                               name=f"{f.vocab} vocabulary"))
+            checks.append(
+                pa_schema.Check.isin(vocabulary(f.vocab).terms, name=f"{f.vocab} vocabulary")
+            )
         # vocabulary columns arrive dictionary-encoded (categorical): no dtype check, the
         # closed set is what matters
         dtype = "Int32" if f.kind == "int" else (None if f.kind == "vocab" else float)

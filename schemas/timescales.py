@@ -36,8 +36,16 @@ RANKS = ("stage", "series", "subsystem", "period", "era", "eon")  # young rank t
 REQUIRED = ("name", "rank", "parent", "base_ma", "boundary_key")
 OPTIONAL = ("uncertainty_ma", "confidence", "sigma_ma", "approximate", "note")
 # stated level of a ± -> divisor giving 1σ
-LEVELS = {"95%": 1.96, "2σ": 2.0, "2s": 2.0, "2sigma": 2.0,
-          "1σ": 1.0, "1s": 1.0, "1sigma": 1.0, "68%": 1.0}
+LEVELS = {
+    "95%": 1.96,
+    "2σ": 2.0,
+    "2s": 2.0,
+    "2sigma": 2.0,
+    "1σ": 1.0,
+    "1s": 1.0,
+    "1sigma": 1.0,
+    "68%": 1.0,
+}
 TRUE = {"true", "yes", "1", "~"}
 FALSE = {"false", "no", "0", ""}
 PRESENT = "present"  # boundary key of 0 Ma, shared by every chart
@@ -110,9 +118,11 @@ class TimeScale:
         hits = [u for u in self.units if u.boundary_key == str(key).strip().lower()]
         if not hits:
             sug = difflib.get_close_matches(str(key).strip().lower(), list(self.boundaries), n=1)
-            raise OptionError(f"Boundary {key!r} is not on the {self.version} chart.",
-                              (f"Did you mean {sug[0]}? " if sug else "")
-                              + "Boundary keys are lowercase stage names, e.g. 'toarcian'.")
+            raise OptionError(
+                f"Boundary {key!r} is not on the {self.version} chart.",
+                (f"Did you mean {sug[0]}? " if sug else "")
+                + "Boundary keys are lowercase stage names, e.g. 'toarcian'.",
+            )
         return min(hits, key=lambda u: RANKS.index(u.rank))
 
 
@@ -132,6 +142,7 @@ class StageAge(NamedTuple):
 
 # --- versions and loading -------------------------------------------------------------
 
+
 def _file_for(version: str) -> Path:
     return TABLES / (version.lower().replace("/", "-") + ".csv")
 
@@ -146,26 +157,34 @@ def canonical_version(text: str) -> str:
     voc = vocabulary("time_scale")
     raw = str(text).strip()
     squeezed = raw.replace(" ", "")
-    for cand in (raw, squeezed, squeezed.replace("-", "/").replace("_", "/"),
-                 re.sub(r"\.csv$", "", squeezed, flags=re.I).replace("-", "/")):
+    for cand in (
+        raw,
+        squeezed,
+        squeezed.replace("-", "/").replace("_", "/"),
+        re.sub(r"\.csv$", "", squeezed, flags=re.I).replace("-", "/"),
+    ):
         hit = voc.resolve(cand)
         if hit:
             return hit
     shipped = versions()
     close = difflib.get_close_matches(raw.upper().replace(" ", ""), shipped, n=1, cutoff=0.6)
     sug = close[0] if close else voc.suggest(raw)
-    raise OptionError(f"Time scale {raw!r} is not one of the shipped chart versions.",
-                      (f"Did you mean {sug}? " if sug else "")
-                      + f"Shipped: {', '.join(shipped)}; a table of your own loads with "
-                      "load_file().")
+    raise OptionError(
+        f"Time scale {raw!r} is not one of the shipped chart versions.",
+        (f"Did you mean {sug}? " if sug else "")
+        + f"Shipped: {', '.join(shipped)}; a table of your own loads with "
+        "load_file().",
+    )
 
 
 def load(version: str = DEFAULT_VERSION) -> TimeScale:
     """The shipped table of a chart version (any common spelling of its name)."""
     canon = canonical_version(version)
     if not _file_for(canon).is_file():
-        raise OptionError(f"Time scale {canon} is known but no table of it is shipped.",
-                          f"Shipped: {', '.join(versions())}.")
+        raise OptionError(
+            f"Time scale {canon} is known but no table of it is shipped.",
+            f"Shipped: {', '.join(versions())}.",
+        )
     return _load_shipped(canon)
 
 
@@ -173,8 +192,10 @@ def load(version: str = DEFAULT_VERSION) -> TimeScale:
 def _load_shipped(version: str) -> TimeScale:
     scale = _read(_file_for(version))
     if scale.version != version:
-        raise ConfigError(f"{_file_for(version).name} says it is {scale.version}, not {version}.",
-                          "Fix the '# version:' line of the shipped table.")
+        raise ConfigError(
+            f"{_file_for(version).name} says it is {scale.version}, not {version}.",
+            "Fix the '# version:' line of the shipped table.",
+        )
     return scale
 
 
@@ -182,8 +203,10 @@ def load_file(path: str | Path) -> TimeScale:
     """A user's table in the shipped format, checked row by row."""
     p = Path(path)
     if not p.is_file():
-        raise InputFileError(f"Time-scale table {p} does not exist.",
-                             "Give the path of a CSV in the format of the shipped tables.")
+        raise InputFileError(
+            f"Time-scale table {p} does not exist.",
+            "Give the path of a CSV in the format of the shipped tables.",
+        )
     return _read(p)
 
 
@@ -192,6 +215,7 @@ def _scale(scale: TimeScale | str) -> TimeScale:
 
 
 # --- reading and checking a table -----------------------------------------------------
+
 
 class _Problems:
     def __init__(self, path: Path) -> None:
@@ -206,9 +230,11 @@ class _Problems:
             return
         line, problem, fix = self.items[0]
         more = len(self.items) - 1
-        err = ConfigError(f"{self.path.name}, line {line}: {problem}"
-                          + (f" (and {more} more problem{'s' * (more > 1)})." if more else "."),
-                          fix)
+        err = ConfigError(
+            f"{self.path.name}, line {line}: {problem}"
+            + (f" (and {more} more problem{'s' * (more > 1)})." if more else "."),
+            fix,
+        )
         err.problems = list(self.items)  # type: ignore[attr-defined]
         raise err
 
@@ -217,8 +243,9 @@ def _read(path: Path) -> TimeScale:
     try:
         text = path.read_text(encoding="utf-8-sig")
     except (OSError, UnicodeDecodeError) as exc:
-        raise InputFileError(f"Time-scale table {path} cannot be read ({exc}).",
-                             "Save it as UTF-8 CSV.") from None
+        raise InputFileError(
+            f"Time-scale table {path} cannot be read ({exc}).", "Save it as UTF-8 CSV."
+        ) from None
     meta: dict[str, str] = {}
     header: list[str] = []
     body: list[tuple[int, str]] = []
@@ -237,8 +264,11 @@ def _read(path: Path) -> TimeScale:
             body.append((n, line))
     problems = _Problems(path)
     if not body:
-        problems.add(1, "the table has no header row and no units", "Add the header row "
-                     f"{','.join(REQUIRED + OPTIONAL)} and one row per unit.")
+        problems.add(
+            1,
+            "the table has no header row and no units",
+            f"Add the header row {','.join(REQUIRED + OPTIONAL)} and one row per unit.",
+        )
         problems.raise_any()
     head_line, head = body[0]
     columns = [c.strip().lower() for c in next(csv.reader([head]))]
@@ -246,30 +276,39 @@ def _read(path: Path) -> TimeScale:
     if missing:
         extra = [c for c in columns if c not in REQUIRED + OPTIONAL]
         sug = difflib.get_close_matches(missing[0], extra, n=1, cutoff=0.6)
-        problems.add(head_line, f"the header lacks column{'s' * (len(missing) > 1)} "
-                     f"{', '.join(missing)}"
-                     + (f" (is {sug[0]!r} meant to be {missing[0]!r}?)" if sug else ""),
-                     f"The header needs {', '.join(REQUIRED)}; optional: "
-                     f"{', '.join(OPTIONAL)}.")
+        problems.add(
+            head_line,
+            f"the header lacks column{'s' * (len(missing) > 1)} "
+            f"{', '.join(missing)}"
+            + (f" (is {sug[0]!r} meant to be {missing[0]!r}?)" if sug else ""),
+            f"The header needs {', '.join(REQUIRED)}; optional: {', '.join(OPTIONAL)}.",
+        )
         problems.raise_any()
     rows = []
     for n, line in body[1:]:
         values = next(csv.reader([line]))
         if len(values) != len(columns):
-            problems.add(n, f"the row has {len(values)} fields but the header has "
-                         f"{len(columns)}", "Quote fields that contain commas.")
+            problems.add(
+                n,
+                f"the row has {len(values)} fields but the header has {len(columns)}",
+                "Quote fields that contain commas.",
+            )
             continue
         rows.append((n, dict(zip(columns, (v.strip() for v in values), strict=True))))
     units = _units(rows, problems)
     problems.raise_any()
     units = _with_tops(units, problems)
     problems.raise_any()
-    return TimeScale(meta.get("version") or path.stem, meta.get("source", ""), str(path),
-                     tuple(units), tuple(header))
+    return TimeScale(
+        meta.get("version") or path.stem,
+        meta.get("source", ""),
+        str(path),
+        tuple(units),
+        tuple(header),
+    )
 
 
-def _number(text: str, col: str, n: int, problems: _Problems, required: bool
-            ) -> float | None:
+def _number(text: str, col: str, n: int, problems: _Problems, required: bool) -> float | None:
     if not text:
         if required:
             problems.add(n, f"{col} is empty", f"Write {col} in Ma, e.g. 201.4.")
@@ -277,8 +316,11 @@ def _number(text: str, col: str, n: int, problems: _Problems, required: bool
     try:
         x = float(text.replace("−", "-"))
     except ValueError:
-        problems.add(n, f"{col} {text!r} is not a number",
-                     f"Write {col} in Ma with a decimal point and no units, e.g. 201.4.")
+        problems.add(
+            n,
+            f"{col} {text!r} is not a number",
+            f"Write {col} in Ma with a decimal point and no units, e.g. 201.4.",
+        )
         return None
     if not math.isfinite(x) or x < 0:
         problems.add(n, f"{col} {text!r} is not a finite age ≥ 0", f"Write {col} in Ma, ≥ 0.")
@@ -295,44 +337,71 @@ def _units(rows: list[tuple[int, dict[str, str]]], problems: _Problems) -> list[
             problems.add(n, "name is empty", "Give every unit its chart name.")
             continue
         if _norm(name) in seen:
-            problems.add(n, f"{name!r} is listed twice (first on line {seen[_norm(name)]})",
-                         "Give each unit one row.")
+            problems.add(
+                n,
+                f"{name!r} is listed twice (first on line {seen[_norm(name)]})",
+                "Give each unit one row.",
+            )
             continue
         seen[_norm(name)] = n
         if rank not in RANKS:
             sug = difflib.get_close_matches(rank, RANKS, n=1)
-            problems.add(n, f"rank {r['rank']!r} of {name} is not a known rank",
-                         (f"Did you mean {sug[0]}? " if sug else "")
-                         + f"Ranks: {', '.join(RANKS)}.")
+            problems.add(
+                n,
+                f"rank {r['rank']!r} of {name} is not a known rank",
+                (f"Did you mean {sug[0]}? " if sug else "") + f"Ranks: {', '.join(RANKS)}.",
+            )
         base = _number(r["base_ma"], "base_ma", n, problems, required=True)
         unc = _number(r.get("uncertainty_ma", ""), "uncertainty_ma", n, problems, required=False)
         sigma = _number(r.get("sigma_ma", ""), "sigma_ma", n, problems, required=False)
         level = r.get("confidence", "")
         if unc is not None:
             if level.lower().replace(" ", "") not in LEVELS:
-                problems.add(n, f"confidence {level!r} of {name}'s ± is not a stated level",
-                             f"Write one of {', '.join(LEVELS)} (95% is divided by 1.96).")
+                problems.add(
+                    n,
+                    f"confidence {level!r} of {name}'s ± is not a stated level",
+                    f"Write one of {', '.join(LEVELS)} (95% is divided by 1.96).",
+                )
             else:
                 one = unc / LEVELS[level.lower().replace(" ", "")]
                 if sigma is None:
                     sigma = one
                 elif abs(sigma - one) > 5e-5 + 1e-4 * one:
-                    problems.add(n, f"sigma_ma {sigma} of {name} is not uncertainty_ma {unc} at "
-                                 f"{level} as 1σ ({one:.5f})",
-                                 "Leave sigma_ma empty to have it computed, or correct it.")
+                    problems.add(
+                        n,
+                        f"sigma_ma {sigma} of {name} is not uncertainty_ma {unc} at "
+                        f"{level} as 1σ ({one:.5f})",
+                        "Leave sigma_ma empty to have it computed, or correct it.",
+                    )
         approx = r.get("approximate", "").lower()
         if approx not in TRUE | FALSE:
-            problems.add(n, f"approximate {r.get('approximate')!r} of {name} is not true/false",
-                         "Write true where the chart marks the age with ~, else false.")
+            problems.add(
+                n,
+                f"approximate {r.get('approximate')!r} of {name} is not true/false",
+                "Write true where the chart marks the age with ~, else false.",
+            )
         key = r["boundary_key"].strip().lower()
         if not key or key == PRESENT:
-            problems.add(n, f"boundary_key of {name} is {'empty' if not key else 'reserved'}",
-                         "Give the lowercase name of the stage whose base this is, e.g. "
-                         "'toarcian'.")
-        out.append(dict(name=name, rank=rank, parent=r["parent"], base_ma=base,
-                        uncertainty_ma=unc, confidence=level if unc is not None else "",
-                        sigma_ma=sigma, approximate=approx in TRUE, boundary_key=key,
-                        note=r.get("note", ""), line=n))
+            problems.add(
+                n,
+                f"boundary_key of {name} is {'empty' if not key else 'reserved'}",
+                "Give the lowercase name of the stage whose base this is, e.g. 'toarcian'.",
+            )
+        out.append(
+            dict(
+                name=name,
+                rank=rank,
+                parent=r["parent"],
+                base_ma=base,
+                uncertainty_ma=unc,
+                confidence=level if unc is not None else "",
+                sigma_ma=sigma,
+                approximate=approx in TRUE,
+                boundary_key=key,
+                note=r.get("note", ""),
+                line=n,
+            )
+        )
     return out
 
 
@@ -346,37 +415,53 @@ def _with_tops(rows: list[dict[str, Any]], problems: _Problems) -> list[Unit]:
         parent = by_name.get(_norm(r["parent"]))
         if parent is None:
             sug = difflib.get_close_matches(_norm(r["parent"]), list(by_name), n=1)
-            problems.add(r["line"], f"parent {r['parent']!r} of {r['name']} is not in the table",
-                         (f"Did you mean {by_name[sug[0]]['name']}? " if sug else "")
-                         + "Add a row for the parent unit or correct its name.")
+            problems.add(
+                r["line"],
+                f"parent {r['parent']!r} of {r['name']} is not in the table",
+                (f"Did you mean {by_name[sug[0]]['name']}? " if sug else "")
+                + "Add a row for the parent unit or correct its name.",
+            )
         elif RANKS.index(parent["rank"]) <= RANKS.index(r["rank"]):
-            problems.add(r["line"], f"parent {parent['name']} ({parent['rank']}) of "
-                         f"{r['name']} ({r['rank']}) is not of a higher rank",
-                         f"Ranks from young to old: {', '.join(RANKS)}.")
+            problems.add(
+                r["line"],
+                f"parent {parent['name']} ({parent['rank']}) of "
+                f"{r['name']} ({r['rank']}) is not of a higher rank",
+                f"Ranks from young to old: {', '.join(RANKS)}.",
+            )
         else:
             children.setdefault(_norm(parent["name"]), []).append(r)
     last: dict[str, dict[str, Any]] = {}
     for r in rows:  # each rank youngest first
         prev = last.get(r["rank"])
         if prev is not None and r["base_ma"] <= prev["base_ma"]:
-            problems.add(r["line"], f"{r['name']} (base {r['base_ma']:g} Ma) is listed after "
-                         f"{prev['name']} (base {prev['base_ma']:g} Ma) but is not older",
-                         "List each rank from youngest to oldest; two units of one rank cannot "
-                         "share a base (that would leave one without duration).")
+            problems.add(
+                r["line"],
+                f"{r['name']} (base {r['base_ma']:g} Ma) is listed after "
+                f"{prev['name']} (base {prev['base_ma']:g} Ma) but is not older",
+                "List each rank from youngest to oldest; two units of one rank cannot "
+                "share a base (that would leave one without duration).",
+            )
         last[r["rank"]] = r
-    leaves = sorted((r for r in rows if _norm(r["name"]) not in children),
-                    key=lambda r: r["base_ma"])
+    leaves = sorted(
+        (r for r in rows if _norm(r["name"]) not in children), key=lambda r: r["base_ma"]
+    )
     keys: dict[str, dict[str, Any]] = {}
     for older, younger in zip(leaves[1:], leaves, strict=False):
         if older["base_ma"] == younger["base_ma"]:
-            problems.add(older["line"], f"{older['name']} and {younger['name']} share the base "
-                         f"{older['base_ma']:g} Ma, so one of them has no duration",
-                         "Correct the base of one of them.")
+            problems.add(
+                older["line"],
+                f"{older['name']} and {younger['name']} share the base "
+                f"{older['base_ma']:g} Ma, so one of them has no duration",
+                "Correct the base of one of them.",
+            )
     for r in leaves:
         other = keys.setdefault(r["boundary_key"], r)
         if other is not r:
-            problems.add(r["line"], f"{r['name']} and {other['name']} have the same "
-                         f"boundary_key {r['boundary_key']!r}", "Give each boundary its own key.")
+            problems.add(
+                r["line"],
+                f"{r['name']} and {other['name']} have the same boundary_key {r['boundary_key']!r}",
+                "Give each boundary its own key.",
+            )
     if problems.items:
         return []
     for younger, older in zip([None, *leaves[:-1]], leaves, strict=True):
@@ -390,11 +475,14 @@ def _with_tops(rows: list[dict[str, Any]], problems: _Problems) -> list[Unit]:
             oldest = max(kids, key=lambda k: k["base_ma"])
             youngest = min(kids, key=lambda k: k["base_ma"])
             if r["base_ma"] != oldest["base_ma"] or r["boundary_key"] != oldest["boundary_key"]:
-                problems.add(r["line"], f"{r['name']} begins at {r['base_ma']:g} Ma "
-                             f"({r['boundary_key']!r}) but its oldest unit {oldest['name']} "
-                             f"at {oldest['base_ma']:g} Ma ({oldest['boundary_key']!r})",
-                             f"A {rank} begins at the base of its oldest stage: write base_ma "
-                             f"{oldest['base_ma']:g} and boundary_key {oldest['boundary_key']}.")
+                problems.add(
+                    r["line"],
+                    f"{r['name']} begins at {r['base_ma']:g} Ma "
+                    f"({r['boundary_key']!r}) but its oldest unit {oldest['name']} "
+                    f"at {oldest['base_ma']:g} Ma ({oldest['boundary_key']!r})",
+                    f"A {rank} begins at the base of its oldest stage: write base_ma "
+                    f"{oldest['base_ma']:g} and boundary_key {oldest['boundary_key']}.",
+                )
                 continue
             r["top_ma"], r["top_key"] = youngest["top_ma"], youngest["top_key"]
     if problems.items:
@@ -403,21 +491,44 @@ def _with_tops(rows: list[dict[str, Any]], problems: _Problems) -> list[Unit]:
     for r in leaves:  # a unit's span holds exactly its own leaves
         for anc in lineage[id(r)]:
             if not (anc["top_ma"] < r["base_ma"] <= anc["base_ma"]):
-                problems.add(r["line"], f"{r['name']} (base {r['base_ma']:g} Ma) lies outside "
-                             f"its {anc['rank']} {anc['name']} ({anc['base_ma']:g}–"
-                             f"{anc['top_ma']:g} Ma)", "Correct its parent or its base.")
+                problems.add(
+                    r["line"],
+                    f"{r['name']} (base {r['base_ma']:g} Ma) lies outside "
+                    f"its {anc['rank']} {anc['name']} ({anc['base_ma']:g}–"
+                    f"{anc['top_ma']:g} Ma)",
+                    "Correct its parent or its base.",
+                )
     for r in rows:
         if _norm(r["name"]) not in children:
             continue
         for leaf in leaves:
-            if (r["top_ma"] < leaf["base_ma"] <= r["base_ma"]
-                    and not any(a is r for a in lineage[id(leaf)])):
-                problems.add(leaf["line"], f"{leaf['name']} lies within {r['name']} "
-                             f"({r['base_ma']:g}–{r['top_ma']:g} Ma) but is not part of it",
-                             "Correct its parent or its base.")
-    return [Unit(r["name"], r["rank"], r["parent"], r["base_ma"], r["top_ma"],
-                 r["uncertainty_ma"], r["confidence"], r["sigma_ma"], r["approximate"],
-                 r["boundary_key"], r["top_key"], r["note"], r["line"]) for r in rows]
+            if r["top_ma"] < leaf["base_ma"] <= r["base_ma"] and not any(
+                a is r for a in lineage[id(leaf)]
+            ):
+                problems.add(
+                    leaf["line"],
+                    f"{leaf['name']} lies within {r['name']} "
+                    f"({r['base_ma']:g}–{r['top_ma']:g} Ma) but is not part of it",
+                    "Correct its parent or its base.",
+                )
+    return [
+        Unit(
+            r["name"],
+            r["rank"],
+            r["parent"],
+            r["base_ma"],
+            r["top_ma"],
+            r["uncertainty_ma"],
+            r["confidence"],
+            r["sigma_ma"],
+            r["approximate"],
+            r["boundary_key"],
+            r["top_key"],
+            r["note"],
+            r["line"],
+        )
+        for r in rows
+    ]
 
 
 def _ancestors(r: dict[str, Any], by_name: dict[str, dict[str, Any]]) -> list[dict[str, Any]]:
@@ -428,6 +539,7 @@ def _ancestors(r: dict[str, Any], by_name: dict[str, dict[str, Any]]) -> list[di
 
 
 # --- names and intervals --------------------------------------------------------------
+
 
 def _norm(name: str) -> str:
     text = unicodedata.normalize("NFKD", str(name))
@@ -462,16 +574,18 @@ def _find(scale: TimeScale, text: str) -> tuple[Unit, str | None]:
             if old is None:
                 continue
             for u in scale.units:
-                if (u.rank, u.boundary_key, u.top_key) == (old.rank, old.boundary_key,
-                                                           old.top_key):
-                    return u, (f"{old.name} is the {version} name of what {scale.version} "
-                               f"calls {u.name}")
+                if (u.rank, u.boundary_key, u.top_key) == (old.rank, old.boundary_key, old.top_key):
+                    return u, (
+                        f"{old.name} is the {version} name of what {scale.version} calls {u.name}"
+                    )
     sug = difflib.get_close_matches(_norm(text), list(scale._index), n=3, cutoff=0.6)
     names = [scale._index[s].name for s in sug]
-    raise OptionError(f"{str(text).strip()!r} is not a unit of the {scale.version} chart.",
-                      (f"Did you mean {' or '.join(names)}? " if names else "")
-                      + "Give a stage, series or period name, NAME..NAME, or an age range "
-                      "A-B in Ma; `strata13 stages` lists the names.")
+    raise OptionError(
+        f"{str(text).strip()!r} is not a unit of the {scale.version} chart.",
+        (f"Did you mean {' or '.join(names)}? " if names else "")
+        + "Give a stage, series or period name, NAME..NAME, or an age range "
+        "A-B in Ma; `strata13 stages` lists the names.",
+    )
 
 
 def _fmt(x: float) -> str:
@@ -481,11 +595,11 @@ def _fmt(x: float) -> str:
 def _unit_notes(scale: TimeScale, u: Unit) -> list[str]:
     notes = []
     if u.approximate:
-        notes.append(f"the base of {u.name} ({_fmt(u.base_ma)} Ma) is approximate on "
-                     f"{scale.version}")
+        notes.append(
+            f"the base of {u.name} ({_fmt(u.base_ma)} Ma) is approximate on {scale.version}"
+        )
     if scale.boundaries.get(u.top_key, (0.0, False))[1]:
-        notes.append(f"the top of {u.name} ({_fmt(u.top_ma)} Ma) is approximate on "
-                     f"{scale.version}")
+        notes.append(f"the top of {u.name} ({_fmt(u.top_ma)} Ma) is approximate on {scale.version}")
     if u.note and not u.note.startswith(("base = base of", "a series without stages")):
         notes.append(f"{u.name}: {u.note}")
     return notes
@@ -503,8 +617,10 @@ def resolve_interval(text: str, scale: TimeScale | str = DEFAULT_VERSION) -> Int
     ts = _scale(scale)
     raw = str(text).strip()
     if not raw:
-        raise OptionError("The interval is empty.", "Give a stage, series or period name, "
-                          "NAME..NAME, or an age range A-B in Ma.")
+        raise OptionError(
+            "The interval is empty.",
+            "Give a stage, series or period name, NAME..NAME, or an age range A-B in Ma.",
+        )
     if ".." in raw:
         left, _, right = raw.partition("..")
         (a, na), (b, nb) = _find(ts, left), _find(ts, right)
@@ -513,8 +629,12 @@ def resolve_interval(text: str, scale: TimeScale | str = DEFAULT_VERSION) -> Int
         first, last = (a, b) if a.base_ma >= b.base_ma else (b, a)
         if first is not a:
             notes.append(f"given younger first; read as {first.name}..{last.name}")
-        return Interval(older_ma, younger_ma, f"{first.name}..{last.name} ({ts.version}): "
-                        f"{_fmt(older_ma)}–{_fmt(younger_ma)} Ma", tuple(notes))
+        return Interval(
+            older_ma,
+            younger_ma,
+            f"{first.name}..{last.name} ({ts.version}): {_fmt(older_ma)}–{_fmt(younger_ma)} Ma",
+            tuple(notes),
+        )
     try:
         u, former = _find(ts, raw)
     except OptionError as err:
@@ -522,25 +642,35 @@ def resolve_interval(text: str, scale: TimeScale | str = DEFAULT_VERSION) -> Int
         if m:
             return _numeric_range(raw, m.group(1), m.group(2))
         if re.search(r"\d", raw) and re.search(r"[-–—]", raw):
-            raise OptionError(f"Interval {raw!r} is not a numeric range A-B in Ma.",
-                              "Write two ages ≥ 0 in Ma with a decimal point, e.g. 201.4-174.7; "
-                              "NAME..NAME joins units.") from None
+            raise OptionError(
+                f"Interval {raw!r} is not a numeric range A-B in Ma.",
+                "Write two ages ≥ 0 in Ma with a decimal point, e.g. 201.4-174.7; "
+                "NAME..NAME joins units.",
+            ) from None
         if re.search(r"[-–—]", raw):
             err.hint = "Use NAME..NAME for a span of units. " + err.hint
         raise
     notes = ([former] if former else []) + _unit_notes(ts, u)
-    return Interval(u.base_ma, u.top_ma, f"{u.name} ({u.rank}, {ts.version}): "
-                    f"{_fmt(u.base_ma)}–{_fmt(u.top_ma)} Ma", tuple(notes))
+    return Interval(
+        u.base_ma,
+        u.top_ma,
+        f"{u.name} ({u.rank}, {ts.version}): {_fmt(u.base_ma)}–{_fmt(u.top_ma)} Ma",
+        tuple(notes),
+    )
 
 
 def _numeric_range(raw: str, a_text: str, b_text: str) -> Interval:
     a, b = (float(t.replace("−", "-")) for t in (a_text, b_text))
     if a < 0 or b < 0 or a_text.lstrip().startswith(("-", "−")) or b_text.startswith(("-", "−")):
-        raise OptionError(f"Interval {raw!r} has a negative age.",
-                          "Ages are in Ma before present and ≥ 0, e.g. 201.4-174.7.")
+        raise OptionError(
+            f"Interval {raw!r} has a negative age.",
+            "Ages are in Ma before present and ≥ 0, e.g. 201.4-174.7.",
+        )
     if a == b:
-        raise OptionError(f"Interval {raw!r} has no duration.",
-                          "Give two different ages, older first, e.g. 201.4-174.7.")
+        raise OptionError(
+            f"Interval {raw!r} has no duration.",
+            "Give two different ages, older first, e.g. 201.4-174.7.",
+        )
     notes: tuple[str, ...] = ()
     if a < b:
         notes = (f"given younger first; read as {_fmt(b)}-{_fmt(a)} Ma",)
@@ -556,12 +686,14 @@ def stage_age(name: str, scale: TimeScale | str = DEFAULT_VERSION) -> StageAge:
 
 # --- conversion between charts ---------------------------------------------------------
 
+
 def _short(scale: TimeScale) -> str:
     return scale.source.split(" (")[0] if scale.source else Path(scale.path).name
 
 
-def shared_boundaries(from_scale: TimeScale | str, to_scale: TimeScale | str
-                      ) -> tuple[tuple[str, ...], np.ndarray, np.ndarray]:
+def shared_boundaries(
+    from_scale: TimeScale | str, to_scale: TimeScale | str
+) -> tuple[tuple[str, ...], np.ndarray, np.ndarray]:
     """Boundaries both charts carry (by boundary_key), young to old, with each chart's age."""
     import numpy as np
 
@@ -571,14 +703,21 @@ def shared_boundaries(from_scale: TimeScale | str, to_scale: TimeScale | str
     b = np.array([ts.boundaries[k][0] for k in keys])
     if np.any(np.diff(a) <= 0) or np.any(np.diff(b) <= 0):
         i = int(np.flatnonzero((np.diff(a) <= 0) | (np.diff(b) <= 0))[0])
-        raise ConfigError(f"{fs.version} and {ts.version} order the boundaries {keys[i]!r} and "
-                          f"{keys[i + 1]!r} differently.",
-                          "Check the boundary_key and base_ma of those rows in the tables.")
+        raise ConfigError(
+            f"{fs.version} and {ts.version} order the boundaries {keys[i]!r} and "
+            f"{keys[i + 1]!r} differently.",
+            "Check the boundary_key and base_ma of those rows in the tables.",
+        )
     return tuple(keys), a, b
 
 
-def convert(ages: Any, from_scale: TimeScale | str, to_scale: TimeScale | str, *,
-            allow_extrapolation: bool = False) -> tuple[np.ndarray, dict[str, Any]]:
+def convert(
+    ages: Any,
+    from_scale: TimeScale | str,
+    to_scale: TimeScale | str,
+    *,
+    allow_extrapolation: bool = False,
+) -> tuple[np.ndarray, dict[str, Any]]:
     """Ages that move with their chart boundaries, from one chart version onto another.
 
     Linear between the boundaries both charts share (matched by boundary_key), so an age
@@ -592,10 +731,14 @@ def convert(ages: Any, from_scale: TimeScale | str, to_scale: TimeScale | str, *
     given = np.asarray(ages, dtype=float)
     x = given.ravel()
     step: dict[str, Any] = {
-        "step": "time-scale conversion", "method": METHOD,
+        "step": "time-scale conversion",
+        "method": METHOD,
         "source": f"{fs.version} table ({_short(fs)}) and {ts.version} table ({_short(ts)}), "
-                  "strata13 schemas/data/timescales",
-        "parameters": {"from": fs.version, "to": ts.version}, "size_myr": 0.0, "flags": []}
+        "strata13 schemas/data/timescales",
+        "parameters": {"from": fs.version, "to": ts.version},
+        "size_myr": 0.0,
+        "flags": [],
+    }
     if fs == ts:
         step["method"] = "identity (same chart version)"
         return given.copy(), step
@@ -608,27 +751,40 @@ def convert(ages: Any, from_scale: TimeScale | str, to_scale: TimeScale | str, *
     if n_out and allow_extrapolation:
         y = np.where(below, b[0] + (x - a[0]) * (b[1] - b[0]) / (a[1] - a[0]), y)
         y = np.where(above, b[-1] + (x - a[-1]) * (b[-1] - b[-2]) / (a[-1] - a[-2]), y)
-        step["flags"].append(f"{n_out} age(s) beyond the shared boundaries "
-                             f"({_fmt(a[0])}–{_fmt(a[-1])} Ma on {fs.version}) extrapolated from "
-                             "the nearest segment")
+        step["flags"].append(
+            f"{n_out} age(s) beyond the shared boundaries "
+            f"({_fmt(a[0])}–{_fmt(a[-1])} Ma on {fs.version}) extrapolated from "
+            "the nearest segment"
+        )
     elif n_out:
         y[outside] = np.nan
-        step["flags"].append(f"{n_out} age(s) beyond the shared boundaries "
-                             f"({_fmt(a[0])}–{_fmt(a[-1])} Ma on {fs.version}) left blank")
+        step["flags"].append(
+            f"{n_out} age(s) beyond the shared boundaries "
+            f"({_fmt(a[0])}–{_fmt(a[-1])} Ma on {fs.version}) left blank"
+        )
     seg = np.clip(np.searchsorted(a, x[finite], side="right") - 1, 0, len(a) - 2)
     used = np.flatnonzero(np.bincount(seg, minlength=len(a) - 1))
     brackets, approx = [], set()
     for i in used:
         younger, older = keys[i], keys[i + 1]
-        brackets.append({"younger": younger, "older": older,
-                         "from_ma": [float(a[i]), float(a[i + 1])],
-                         "to_ma": [float(b[i]), float(b[i + 1])]})
+        brackets.append(
+            {
+                "younger": younger,
+                "older": older,
+                "from_ma": [float(a[i]), float(a[i + 1])],
+                "to_ma": [float(b[i]), float(b[i + 1])],
+            }
+        )
         for k in (younger, older):
             for sc in (fs, ts):
                 if sc.boundaries[k][1]:
                     approx.add(f"{k} on {sc.version}")
-    step["parameters"].update(bracketing=brackets, shared_boundaries=len(keys),
-                              outside=n_out, extrapolated=bool(n_out and allow_extrapolation))
+    step["parameters"].update(
+        bracketing=brackets,
+        shared_boundaries=len(keys),
+        outside=n_out,
+        extrapolated=bool(n_out and allow_extrapolation),
+    )
     step["flags"] += [f"approximate boundary: {s}" for s in sorted(approx)]
     diff = np.abs(y - x)[np.isfinite(y) & finite]
     step["size_myr"] = float(diff.max()) if diff.size else 0.0

@@ -38,8 +38,11 @@ def demo_store(demo_store_session: Path, tmp_path: Path) -> Path:
 
 def tree_bytes(path: Path) -> dict[str, bytes]:
     """Every file of a folder with its bytes (lock file excluded), to prove nothing changed."""
-    return {str(p.relative_to(path)): p.read_bytes() for p in sorted(path.rglob("*"))
-            if p.is_file() and p.name != "writer.lock" and not p.name.endswith(("-wal", "-shm"))}
+    return {
+        str(p.relative_to(path)): p.read_bytes()
+        for p in sorted(path.rglob("*"))
+        if p.is_file() and p.name != "writer.lock" and not p.name.endswith(("-wal", "-shm"))
+    }
 
 
 @dataclass

@@ -46,9 +46,16 @@ def sections(draw: st.DrawFn) -> tuple[list[Tie], np.ndarray, str, dict[str, obj
     sig = draw(st.lists(st.floats(0.0, 2.0), min_size=n, max_size=n))  # often > the gaps
     kind = draw(st.sampled_from(["height", "depth"]))
     keyed = draw(st.lists(st.booleans(), min_size=n, max_size=n))
-    ties = [Tie(float(zi if kind == "depth" else -zi), float(a), float(s),
-                "chart boundary" if k else "radiometric", f"key{i}" if k else None)
-            for i, (zi, a, s, k) in enumerate(zip(z, ages, sig, keyed, strict=True))]
+    ties = [
+        Tie(
+            float(zi if kind == "depth" else -zi),
+            float(a),
+            float(s),
+            "chart boundary" if k else "radiometric",
+            f"key{i}" if k else None,
+        )
+        for i, (zi, a, s, k) in enumerate(zip(z, ages, sig, keyed, strict=True))
+    ]
     ages_distinct = len(set(np.round(ages, 12))) == n
     if n > 2 and draw(st.booleans()) and ages_distinct:  # a hiatus at an interior level
         i = draw(st.integers(1, n - 2))
@@ -58,9 +65,11 @@ def sections(draw: st.DrawFn) -> tuple[list[Tie], np.ndarray, str, dict[str, obj
     samples = draw(st.lists(st.floats(-5.0, float(z[-1]) + 5.0), min_size=1, max_size=40))
     pos = np.array(samples if kind == "depth" else [-x for x in samples])
     pos = np.concatenate([pos, [t.position_m for t in ties]])
-    opts = {"allow_extrapolation": draw(st.booleans()),
-            "segment_m": draw(st.sampled_from([0.05, 1.0, 7.5])),
-            "max_segments": draw(st.sampled_from([3, 2000]))}
+    opts = {
+        "allow_extrapolation": draw(st.booleans()),
+        "segment_m": draw(st.sampled_from([0.05, 1.0, 7.5])),
+        "max_segments": draw(st.sampled_from([3, 2000])),
+    }
     return ties, pos, kind, opts
 
 
@@ -125,16 +134,21 @@ def test_spread_between_ties(w: float) -> None:
 def test_segment_length_does_not_change_the_knot_ages() -> None:
     # Gamma-process property (shape ∝ length): the law at a knot does not depend on how the
     # interval is cut; 0.5 m and 5 m segments give the same σ at 50 m within MC tolerance.
-    sig = [summarise(draw_section([50.0], _two_ties(), "depth", N, 3, segment_m=m).draws)
-           .sigma[0] for m in (0.5, 5.0)]
+    sig = [
+        summarise(draw_section([50.0], _two_ties(), "depth", N, 3, segment_m=m).draws).sigma[0]
+        for m in (0.5, 5.0)
+    ]
     assert sig[0] == pytest.approx(sig[1], rel=0.06)
 
 
 def test_position_error_adds_through_the_rate() -> None:
     # First-order error propagation (Taylor 1997, An Introduction to Error Analysis §3.11):
     # σ² = σ_age² + (rate·σ_pos)²; neighbouring rates 0.1 Ma/m, σ_pos 2 m -> 0.2 Ma.
-    ties = [Tie(0.0, 180.0, 0.3, "radiometric"), Tie(50.0, 185.0, 0.3, "radiometric", None, 2.0),
-            Tie(100.0, 190.0, 0.3, "radiometric")]
+    ties = [
+        Tie(0.0, 180.0, 0.3, "radiometric"),
+        Tie(50.0, 185.0, 0.3, "radiometric", None, 2.0),
+        Tie(100.0, 190.0, 0.3, "radiometric"),
+    ]
     sigma = summarise(draw_section([50.0], ties, "depth", N, 4).draws).sigma[0]
     assert sigma == pytest.approx(math.hypot(0.3, 0.2), rel=0.05)
 
@@ -147,10 +161,16 @@ def test_shared_boundary_correlates_sections_and_radiometric_ties_do_not() -> No
     # (Pearson r near 1, numpy.corrcoef); their own radiometric ties are independent
     # (|r| < 0.1; the SE of r for N = 4000 is 0.016).
     key = "ICS2024/12:toarcian"
-    a = [Tie(100.0, 180.0, 0.3, "radiometric"), Tie(50.0, 184.2, 0.5, "chart boundary", key),
-         Tie(0.0, 190.0, 0.3, "radiometric")]
-    b = [Tie(0.0, 181.0, 0.4, "radiometric"), Tie(20.0, 184.2, 0.5, "chart boundary", key),
-         Tie(60.0, 189.0, 0.4, "radiometric")]
+    a = [
+        Tie(100.0, 180.0, 0.3, "radiometric"),
+        Tie(50.0, 184.2, 0.5, "chart boundary", key),
+        Tie(0.0, 190.0, 0.3, "radiometric"),
+    ]
+    b = [
+        Tie(0.0, 181.0, 0.4, "radiometric"),
+        Tie(20.0, 184.2, 0.5, "chart boundary", key),
+        Tie(60.0, 189.0, 0.4, "radiometric"),
+    ]
     shared = shared_offsets([key], N, seed=5)
     ra = draw_section([100.0, 50.0], a, "height", N, agemodel.section_seed("src/A"), shared)
     rb = draw_section([0.0, 20.0], b, "depth", N, agemodel.section_seed("src/B"), shared)
@@ -179,8 +199,12 @@ def test_missing_shared_offsets_are_refused() -> None:
 
 def test_hiatus_is_a_jump_and_its_level_takes_the_older_age() -> None:
     # Definition of a hiatus: two ties at one level; ages jump across it in every draw.
-    ties = [Tie(0.0, 180.0, 0.2, "radiometric"), Tie(50.0, 183.0, 0.2, "radiometric"),
-            Tie(50.0, 186.0, 0.2, "radiometric"), Tie(100.0, 190.0, 0.2, "radiometric")]
+    ties = [
+        Tie(0.0, 180.0, 0.2, "radiometric"),
+        Tie(50.0, 183.0, 0.2, "radiometric"),
+        Tie(50.0, 186.0, 0.2, "radiometric"),
+        Tie(100.0, 190.0, 0.2, "radiometric"),
+    ]
     pos = np.array([49.999, 50.0, 50.001])
     r = draw_section(pos, ties, "depth", 2000, 2)
     assert list(r.flags) == ["", AT_HIATUS, ""]
@@ -238,18 +262,33 @@ def test_inverted_ties_are_refused_naming_both() -> None:
     agemodel.validate_ties(ties, "depth")  # the same ties read as depths are in order
 
 
-@pytest.mark.parametrize("ties,words", [
-    ([Tie(0.0, 180.0, 0.1, "radiometric")], "two ties"),
-    ([Tie(0.0, 180.0, 0.1, "radiometric"), Tie(0.0, 181.0, 0.1, "radiometric")],
-     "two different positions"),
-    ([Tie(0.0, 180.0, 0.1, "chart boundary"), Tie(5.0, 181.0, 0.1, "radiometric")],
-     "without a boundary key"),
-    ([Tie(0.0, 180.0, 0.1, "radiometric"), Tie(5.0, 181.0, 0.1, "radiometric"),
-      Tie(5.0, 181.0, 0.2, "radiometric")], "same age"),
-    ([Tie(0.0, 180.0, 0.1, "radiometric"), Tie(5.0, 181.0, float("nan"), "radiometric")],
-     "missing"),
-    ([Tie(0.0, 180.0, 0.1, "radiometric"), Tie(5.0, 181.0, 0.1, "varve")], "unknown basis"),
-])
+@pytest.mark.parametrize(
+    "ties,words",
+    [
+        ([Tie(0.0, 180.0, 0.1, "radiometric")], "two ties"),
+        (
+            [Tie(0.0, 180.0, 0.1, "radiometric"), Tie(0.0, 181.0, 0.1, "radiometric")],
+            "two different positions",
+        ),
+        (
+            [Tie(0.0, 180.0, 0.1, "chart boundary"), Tie(5.0, 181.0, 0.1, "radiometric")],
+            "without a boundary key",
+        ),
+        (
+            [
+                Tie(0.0, 180.0, 0.1, "radiometric"),
+                Tie(5.0, 181.0, 0.1, "radiometric"),
+                Tie(5.0, 181.0, 0.2, "radiometric"),
+            ],
+            "same age",
+        ),
+        (
+            [Tie(0.0, 180.0, 0.1, "radiometric"), Tie(5.0, 181.0, float("nan"), "radiometric")],
+            "missing",
+        ),
+        ([Tie(0.0, 180.0, 0.1, "radiometric"), Tie(5.0, 181.0, 0.1, "varve")], "unknown basis"),
+    ],
+)
 def test_unusable_ties_are_refused(ties: list[Tie], words: str) -> None:
     with pytest.raises(DomainError, match=words):
         agemodel.validate_ties(ties, "depth")
@@ -264,8 +303,9 @@ def test_truncated_normal_matches_scipy() -> None:
 
     u = np.linspace(0.001, 0.999, 25)
     for a, b in [(-1.0, 2.0), (5.0, np.inf), (-np.inf, -6.0), (8.0, 9.0), (-np.inf, np.inf)]:
-        ours = agemodel._truncated_normal(10.0, 2.0, np.full_like(u, 10 + 2 * a),
-                                          np.full_like(u, 10 + 2 * b), u)
+        ours = agemodel._truncated_normal(
+            10.0, 2.0, np.full_like(u, 10 + 2 * a), np.full_like(u, 10 + 2 * b), u
+        )
         assert ours == pytest.approx(10 + 2 * truncnorm.ppf(u, a, b), abs=1e-7)
 
 
@@ -305,13 +345,21 @@ def test_plot_is_deterministic_labelled_and_legend_clear(tmp_path: Path) -> None
     # matplotlib's own geometry: the legend's box does not meet the axes' box.
     from strata13.compile.ages import plot as agemodel_plot
 
-    ties = [Tie(0.0, 181.0, 0.3, "radiometric"), Tie(30.0, 184.5, 0.4, "chart boundary", "k"),
-            Tie(30.0, 186.0, 0.3, "radiometric"), Tie(80.0, 190.0, 0.5, "radiometric")]
+    ties = [
+        Tie(0.0, 181.0, 0.3, "radiometric"),
+        Tie(30.0, 184.5, 0.4, "chart boundary", "k"),
+        Tie(30.0, 186.0, 0.3, "radiometric"),
+        Tie(80.0, 190.0, 0.5, "radiometric"),
+    ]
     pos = np.linspace(-5, 85, 60)
     r = draw_section(pos, ties, "depth", 300, 1, allow_extrapolation=True)
     s = summarise(r.draws)
-    paths = [agemodel_plot.plot_section(ties, pos, s, "depth", "Core B (invented)",
-                                        tmp_path / f"{i}.png", flags=r.flags) for i in (1, 2)]
+    paths = [
+        agemodel_plot.plot_section(
+            ties, pos, s, "depth", "Core B (invented)", tmp_path / f"{i}.png", flags=r.flags
+        )
+        for i in (1, 2)
+    ]
     first = paths[0].read_bytes()
     assert first[:8] == b"\x89PNG\r\n\x1a\n" and first == paths[1].read_bytes()
     fig = agemodel_plot.figure(ties, pos, s, "depth", "Core B", flags=r.flags)
@@ -326,8 +374,9 @@ def test_plot_is_deterministic_labelled_and_legend_clear(tmp_path: Path) -> None
 
 def test_agemodel_imports_no_matplotlib() -> None:
     # DESIGN.md: heavy libraries are imported lazily.
-    code = ("import sys; import strata13.compile.ages.agemodel, strata13.compile.ages.plot; "
-            "print('matplotlib' in sys.modules)")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                         check=True)
+    code = (
+        "import sys; import strata13.compile.ages.agemodel, strata13.compile.ages.plot; "
+        "print('matplotlib' in sys.modules)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"

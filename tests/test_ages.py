@@ -37,17 +37,24 @@ TOARCIAN_BASE_SIGMA_2024 = 0.3 / 1.96  # ±0.3 Myr at 95 % -> 1σ (÷ 1.96, comm
 def on_2024(age_2012: float | np.ndarray) -> np.ndarray:
     """Closed form: an age read on the 2012 chart keeps its relative position between the
     boundaries both charts share (Aalenian, Toarcian and Pliensbachian bases here)."""
-    return np.interp(age_2012, [TOARCIAN_2012[1], TOARCIAN_2012[0], PLIENSBACHIAN_BASE_2012],
-                     [TOARCIAN_2024[1], TOARCIAN_2024[0], PLIENSBACHIAN_BASE_2024])
+    return np.interp(
+        age_2012,
+        [TOARCIAN_2012[1], TOARCIAN_2012[0], PLIENSBACHIAN_BASE_2012],
+        [TOARCIAN_2024[1], TOARCIAN_2024[0], PLIENSBACHIAN_BASE_2024],
+    )
 
 
 def on_2012(age_2024: float | np.ndarray) -> np.ndarray:
     """The inverse of on_2024 (same closed form, charts swapped)."""
-    return np.interp(age_2024, [TOARCIAN_2024[1], TOARCIAN_2024[0], PLIENSBACHIAN_BASE_2024],
-                     [TOARCIAN_2012[1], TOARCIAN_2012[0], PLIENSBACHIAN_BASE_2012])
+    return np.interp(
+        age_2024,
+        [TOARCIAN_2024[1], TOARCIAN_2024[0], PLIENSBACHIAN_BASE_2024],
+        [TOARCIAN_2012[1], TOARCIAN_2012[0], PLIENSBACHIAN_BASE_2012],
+    )
 
 
 # ------------------------------------------------------------------------------- helpers
+
 
 def cli(capsys: pytest.CaptureFixture[str], *args: object) -> tuple[int, str, str]:
     """Run the console entry point in-process: (exit code, stdout, stderr)."""
@@ -96,10 +103,17 @@ lon = 10.5
 """
 
 
-def write_section(folder: Path, rows: list[list[object]], ties: list[dict[str, object]] = (),
-                  *, columns: dict[str, str] | None = None,
-                  constants: dict[str, str] | None = None, source_id: str = "tarnwick-2020",
-                  section: str = "tarnwick-gully", kind: str = "height") -> Path:
+def write_section(
+    folder: Path,
+    rows: list[list[object]],
+    ties: list[dict[str, object]] = (),
+    *,
+    columns: dict[str, str] | None = None,
+    constants: dict[str, str] | None = None,
+    source_id: str = "tarnwick-2020",
+    section: str = "tarnwick-gully",
+    kind: str = "height",
+) -> Path:
     """A one-section sheet (Sample, Height, d13C and ``columns``) with its mapping file and
     ``[[ties]]`` blocks; returns the mapping's path."""
     columns = columns or {}
@@ -110,14 +124,23 @@ def write_section(folder: Path, rows: list[list[object]], ties: list[dict[str, o
     w.writerows(rows)
     (folder / "sheet.csv").write_text(buf.getvalue(), encoding="utf-8")
     tie_text = "".join(
-        "\n[[ties]]\n" + "".join(f"{k} = {json.dumps(v, ensure_ascii=False)}\n"
-                                 for k, v in t.items()) for t in ties)
+        "\n[[ties]]\n"
+        + "".join(f"{k} = {json.dumps(v, ensure_ascii=False)}\n" for k, v in t.items())
+        for t in ties
+    )
     mapping = folder / "sheet.toml"
-    mapping.write_text(MAPPING.format(
-        source_id=source_id, section=section, kind=kind, file="sheet.csv",
-        columns="".join(f'"{h}" = {spec}\n' for h, spec in columns.items()),
-        constants="".join(f"{k} = {json.dumps(v)}\n" for k, v in (constants or {}).items()),
-        ties=tie_text), encoding="utf-8")
+    mapping.write_text(
+        MAPPING.format(
+            source_id=source_id,
+            section=section,
+            kind=kind,
+            file="sheet.csv",
+            columns="".join(f'"{h}" = {spec}\n' for h, spec in columns.items()),
+            constants="".join(f"{k} = {json.dumps(v)}\n" for k, v in (constants or {}).items()),
+            ties=tie_text,
+        ),
+        encoding="utf-8",
+    )
     return mapping
 
 
@@ -125,27 +148,39 @@ def plain_rows(positions: list[float]) -> list[list[object]]:
     return [[f"tg-{i:02d}", p, round(1.0 + 0.1 * i, 2)] for i, p in enumerate(positions)]
 
 
-def radiometric(position: float, age: float, tie_id: str | None = None,
-                section: str = "tarnwick-gully") -> dict[str, object]:
-    t: dict[str, object] = {"section": section, "position": position, "basis": "radiometric",
-                            "age": age, "uncertainty": 0.1}
+def radiometric(
+    position: float, age: float, tie_id: str | None = None, section: str = "tarnwick-gully"
+) -> dict[str, object]:
+    t: dict[str, object] = {
+        "section": section,
+        "position": position,
+        "basis": "radiometric",
+        "age": age,
+        "uncertainty": 0.1,
+    }
     if tie_id:
         t["id"] = tie_id
     return t
 
 
 def records(store: api.Store, where: str = "") -> list[dict[str, object]]:
-    res = api.sql(store, "SELECT record_id, source_id, section_id, position_m, position_kind, "
-                  "age_ma, age_sigma_ma, age_basis, age_status, age_chain, time_scale, "
-                  "age_reported_ma, age_reported_scale, age_reported_sigma_ma FROM records "
-                  f"{where} ORDER BY record_id")
+    res = api.sql(
+        store,
+        "SELECT record_id, source_id, section_id, position_m, position_kind, "
+        "age_ma, age_sigma_ma, age_basis, age_status, age_chain, time_scale, "
+        "age_reported_ma, age_reported_scale, age_reported_sigma_ma FROM records "
+        f"{where} ORDER BY record_id",
+    )
     return [dict(zip(res.columns, r, strict=True)) for r in res.rows]
 
 
 def section_draws(store: api.Store) -> dict[tuple[str, str], tuple[np.ndarray, np.ndarray]]:
     """(source, section) -> (positions, draws n_draws x positions) decoded from age_draws."""
-    res = api.sql(store, "SELECT source_id, section_id, chunk, positions_json, n_draws, draws "
-                  "FROM age_draws ORDER BY source_id, section_id, chunk")
+    res = api.sql(
+        store,
+        "SELECT source_id, section_id, chunk, positions_json, n_draws, draws "
+        "FROM age_draws ORDER BY source_id, section_id, chunk",
+    )
     out: dict[tuple[str, str], tuple[list[float], list[np.ndarray]]] = {}
     for src, sec, _chunk, pos_json, n_draws, blob in res.rows:
         pos = json.loads(pos_json)
@@ -159,8 +194,8 @@ def section_draws(store: api.Store) -> dict[tuple[str, str], tuple[np.ndarray, n
 
 # ------------------------------------------------------- 1. the demo is dated by age models
 
-def test_every_demo_sample_is_dated_by_an_age_model_with_its_tie_steps(demo_store: Path
-                                                                        ) -> None:
+
+def test_every_demo_sample_is_dated_by_an_age_model_with_its_tie_steps(demo_store: Path) -> None:
     store = api.open_store(demo_store)
     scale = store.settings()["time_scale"]
     assert scale == "ICS2024/12"
@@ -172,8 +207,11 @@ def test_every_demo_sample_is_dated_by_an_age_model_with_its_tie_steps(demo_stor
         assert r["time_scale"] == scale and r["age_chain"], r
     ties = api.sql(store, "SELECT source_id, section_id, count(*) FROM age_ties GROUP BY ALL")
     n_ties = {(s, c): n for s, c, n in ties.rows}
-    chains = api.sql(store, "SELECT DISTINCT r.source_id, r.section_id, c.steps_json FROM "
-                     "records r JOIN chains c ON c.chain_id = r.age_chain")
+    chains = api.sql(
+        store,
+        "SELECT DISTINCT r.source_id, r.section_id, c.steps_json FROM "
+        "records r JOIN chains c ON c.chain_id = r.age_chain",
+    )
     sections = {(r["source_id"], r["section_id"]) for r in rows}
     assert {(s, c) for s, c, _ in chains.rows} == sections  # every chain is stored
     for src, sec, steps_json in chains.rows:
@@ -187,26 +225,34 @@ def test_every_demo_sample_is_dated_by_an_age_model_with_its_tie_steps(demo_stor
                 assert (steps[tie_id]["from"], steps[tie_id]["to"]) == ("ICS2012", "ICS2024/12")
             # biozone ties move with their chart (closed form, piecewise-linear):
             # 182.886 on 2012 lies in the Pliensbachian: 184.2 + 0.186/8.1 · 8.7
-            assert steps["crassus-base"]["age_ma"] == pytest.approx(184.2 + 0.186 / 8.1 * 8.7,
-                                                                    abs=1e-9)
+            assert steps["crassus-base"]["age_ma"] == pytest.approx(
+                184.2 + 0.186 / 8.1 * 8.7, abs=1e-9
+            )
             # 180.347 on 2012 lies in the Toarcian: 184.2 − 2.353/8.6 · 9.5
-            assert steps["velmaria-top"]["age_ma"] == pytest.approx(184.2 - 2.353 / 8.6 * 9.5,
-                                                                    abs=1e-9)
+            assert steps["velmaria-top"]["age_ma"] == pytest.approx(
+                184.2 - 2.353 / 8.6 * 9.5, abs=1e-9
+            )
             assert steps["base-toarcian"]["age_ma"] == TOARCIAN_2024[0]
 
 
 # ---------------------------------------------- 2. a chart-boundary tie read on the 2012 chart
 
+
 def test_chart_boundary_tie_takes_the_base_on_the_store_chart(
-        demo_store: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    code, out, err = cli(capsys, "agemodel", "quillar-ridge", "--format", "csv",
-                         "--store", demo_store)
+    demo_store: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code, out, err = cli(
+        capsys, "agemodel", "quillar-ridge", "--format", "csv", "--store", demo_store
+    )
     assert code == 0, err
     ties = {r["boundary"]: r for r in csv_rows(out)}
     assert len(ties) == 3
     toarcian = ties["Toarcian"]
     assert (toarcian["basis"], toarcian["chart"], toarcian["given_age_ma"]) == (
-        "chart boundary", "ICS2012", "")
+        "chart boundary",
+        "ICS2012",
+        "",
+    )
     # the base of the Toarcian on v2024/12 (not 182.7 of the chart it was read on)
     assert float(toarcian["age_ma"]) == TOARCIAN_2024[0]
     assert float(toarcian["sigma_ma"]) == pytest.approx(TOARCIAN_BASE_SIGMA_2024, abs=1e-5)
@@ -221,19 +267,34 @@ def test_chart_boundary_tie_takes_the_base_on_the_store_chart(
 
 # -------------------------------------------- 3. a biozone tie moves with its chart boundaries
 
+
 def test_biozone_tie_in_the_toarcian_moves_piecewise_linearly(
-        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     expected = 184.2 - (182.7 - 180.0) / 8.6 * 9.5  # closed form: 181.2174…
     assert expected == pytest.approx(181.217, abs=5e-4)
-    m = write_section(tmp_path / "src", plain_rows([0.0, 2.0, 5.0, 8.0]), [
-        {"id": "ellisk-base", "section": "tarnwick-gully", "position": 2.0,
-         "basis": "biozone boundary", "boundary": "Ellisk Zone base", "age": 180.0,
-         "uncertainty": 0.1, "chart": "ICS2012"},
-        radiometric(8.0, 180.4, "ash-t8")])
+    m = write_section(
+        tmp_path / "src",
+        plain_rows([0.0, 2.0, 5.0, 8.0]),
+        [
+            {
+                "id": "ellisk-base",
+                "section": "tarnwick-gully",
+                "position": 2.0,
+                "basis": "biozone boundary",
+                "boundary": "Ellisk Zone base",
+                "age": 180.0,
+                "uncertainty": 0.1,
+                "chart": "ICS2012",
+            },
+            radiometric(8.0, 180.4, "ash-t8"),
+        ],
+    )
     store = api.init_store(tmp_path / "st")
     api.ingest(store, None, m)
-    code, out, err = cli(capsys, "agemodel", "tarnwick-gully", "--format", "csv",
-                         "--store", store.path)
+    code, out, err = cli(
+        capsys, "agemodel", "tarnwick-gully", "--format", "csv", "--store", store.path
+    )
     assert code == 0, err
     zone = next(r for r in csv_rows(out) if r["boundary"] == "Ellisk Zone base")
     assert float(zone["given_age_ma"]) == 180.0 and zone["chart"] == "ICS2012"
@@ -246,12 +307,14 @@ def test_biozone_tie_in_the_toarcian_moves_piecewise_linearly(
 
 # -------------------------------------------------------------- 4. --interval by stage name
 
+
 def _ids(out: str) -> list[str]:
     return sorted(r["record_id"] for r in csv_rows(out))
 
 
-def test_query_by_stage_names_and_ranges(demo_store: Path,
-                                         capsys: pytest.CaptureFixture[str]) -> None:
+def test_query_by_stage_names_and_ranges(
+    demo_store: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     everything = api.query(api.open_store(demo_store))
     s = ("--store", demo_store)
 
@@ -265,14 +328,16 @@ def test_query_by_stage_names_and_ranges(demo_store: Path,
     assert 0 < len(toarcian) < len(everything)  # the demo's oldest ties lie below the base
 
     # NAME..NAME in either order: Pliensbachian base to Toarcian top
-    code, out, err = cli(capsys, "query", "--interval", "Pliensbachian..Toarcian",
-                         "--format", "csv", *s)
+    code, out, err = cli(
+        capsys, "query", "--interval", "Pliensbachian..Toarcian", "--format", "csv", *s
+    )
     assert code == 0, err
     span = _ids(out)
     assert span == ids_between(TOARCIAN_2024[1], PLIENSBACHIAN_BASE_2024)
     assert len(span) > len(toarcian)
-    code, out, err = cli(capsys, "query", "--interval", "Toarcian..Pliensbachian",
-                         "--format", "csv", *s)
+    code, out, err = cli(
+        capsys, "query", "--interval", "Toarcian..Pliensbachian", "--format", "csv", *s
+    )
     assert code == 0 and _ids(out) == span
 
     # a misspelt name: wrong instructions, with a suggestion
@@ -288,8 +353,9 @@ def test_query_by_stage_names_and_ranges(demo_store: Path,
     assert "younger first" not in err_ba
 
     # the name read on the 2012 chart lands on the same boundaries of the store's chart
-    code, out, err = cli(capsys, "query", "--interval", "Toarcian", "--time-scale", "ICS2012",
-                         "--format", "csv", *s)
+    code, out, err = cli(
+        capsys, "query", "--interval", "Toarcian", "--time-scale", "ICS2012", "--format", "csv", *s
+    )
     assert code == 0 and _ids(out) == toarcian
     assert "184.2" in err and "174.7" in err
 
@@ -297,21 +363,25 @@ def test_query_by_stage_names_and_ranges(demo_store: Path,
     code, out, err = cli(capsys, "query", "--time-scale", "ICS2012", *s)
     assert code == 2 and "--interval" in err and out == ""
     # an unknown chart version: refused with a suggestion
-    code, out, err = cli(capsys, "query", "--interval", "Toarcian", "--time-scale", "ICS2021",
-                         *s)
+    code, out, err = cli(capsys, "query", "--interval", "Toarcian", "--time-scale", "ICS2021", *s)
     assert code == 2 and "Did you mean" in err and out == ""
 
 
 # ------------------------------------------------------------------ 5. tie-only sources
 
+
 def test_reingesting_a_tied_source_keeps_the_age_models_of_another_source(
-        demo_store: Path, demo_sheets: Path, tmp_path: Path) -> None:
+    demo_store: Path, demo_sheets: Path, tmp_path: Path
+) -> None:
     store = api.open_store(demo_store)
     where = "WHERE source_id = 'mossaret-fennoway-2018'"
     before = records(store, where)
     assert before and {r["age_basis"] for r in before} == {"age model"}
-    draws_before = api.sql(store, "SELECT * FROM age_draws WHERE source_id = "
-                           "'mossaret-fennoway-2018' ORDER BY section_id, chunk").rows
+    draws_before = api.sql(
+        store,
+        "SELECT * FROM age_draws WHERE source_id = "
+        "'mossaret-fennoway-2018' ORDER BY section_id, chunk",
+    ).rows
     sheet, mapping = next(p for p in SHEETS if p[1] == "mossaret_fennoway_2018.toml")
     # the same sheet again: nothing to commit
     same = api.ingest(store, demo_sheets / sheet, demo_sheets / mapping)
@@ -322,20 +392,29 @@ def test_reingesting_a_tied_source_keeps_the_age_models_of_another_source(
     (copy / sheet).write_bytes((demo_sheets / sheet).read_bytes())
     text = (demo_sheets / mapping).read_text(encoding="utf-8")
     assert "Two sections" in text
-    (copy / mapping).write_text(text.replace("Two sections", "Two measured sections"),
-                                encoding="utf-8")
+    (copy / mapping).write_text(
+        text.replace("Two sections", "Two measured sections"), encoding="utf-8"
+    )
     again = api.ingest(store, copy / sheet, copy / mapping)
     assert again.version is not None and (again.added, again.removed, again.changed) == (0, 0, 0)
     after = records(store, where)
     # the ties of orvanne-ties-2023 still apply: same ages, same basis, same draws
-    assert [(r["record_id"], r["age_ma"], r["age_sigma_ma"], r["age_basis"]) for r in after] \
-        == [(r["record_id"], r["age_ma"], r["age_sigma_ma"], r["age_basis"]) for r in before]
-    assert api.sql(store, "SELECT * FROM age_draws WHERE source_id = "
-                   "'mossaret-fennoway-2018' ORDER BY section_id, chunk").rows == draws_before
+    assert [(r["record_id"], r["age_ma"], r["age_sigma_ma"], r["age_basis"]) for r in after] == [
+        (r["record_id"], r["age_ma"], r["age_sigma_ma"], r["age_basis"]) for r in before
+    ]
+    assert (
+        api.sql(
+            store,
+            "SELECT * FROM age_draws WHERE source_id = "
+            "'mossaret-fennoway-2018' ORDER BY section_id, chunk",
+        ).rows
+        == draws_before
+    )
 
 
 def test_editing_a_tie_only_source_redates_the_sections_it_ties(
-        demo_store: Path, demo_sheets: Path, tmp_path: Path) -> None:
+    demo_store: Path, demo_sheets: Path, tmp_path: Path
+) -> None:
     store = api.open_store(demo_store)
     cut = "WHERE section_id = 'Mossaret Cut'"
     before = {r["record_id"]: r["age_ma"] for r in records(store, cut)}
@@ -357,23 +436,32 @@ def test_editing_a_tie_only_source_redates_the_sections_it_ties(
         assert median[r["position_m"]] == pytest.approx(r["age_ma"], abs=1e-4)
 
 
-def test_a_tie_only_mapping_takes_no_sheet(demo_store: Path, demo_sheets: Path,
-                                           capsys: pytest.CaptureFixture[str]) -> None:
+def test_a_tie_only_mapping_takes_no_sheet(
+    demo_store: Path, demo_sheets: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     before = tree_bytes(demo_store)
-    code, _, err = cli(capsys, "ingest", demo_sheets / "quillar_2011.xlsx", "--map",
-                       demo_sheets / TIES, "--store", demo_store)
+    code, _, err = cli(
+        capsys,
+        "ingest",
+        demo_sheets / "quillar_2011.xlsx",
+        "--map",
+        demo_sheets / TIES,
+        "--store",
+        demo_store,
+    )
     assert code == 2 and "ties" in err and "Traceback" not in err
     assert tree_bytes(demo_store) == before
 
 
-def test_a_tie_for_a_section_not_in_the_store_is_refused(demo_store: Path,
-                                                         tmp_path: Path) -> None:
+def test_a_tie_for_a_section_not_in_the_store_is_refused(demo_store: Path, tmp_path: Path) -> None:
     (tmp_path / "t.toml").write_text(
         '[source]\nid = "brannock-ties-2024"\ncitation = "Invented ties."\n'
         '[[ties]]\nsection = "mossaret-fennoway-2018/Nowhere Cut"\nposition = 1.0\n'
         'basis = "radiometric"\nage = 183.1\nuncertainty = 0.1\n'
         '[[ties]]\nsection = "mossaret-fennoway-2018/Nowhere Cut"\nposition = 4.0\n'
-        'basis = "radiometric"\nage = 182.9\nuncertainty = 0.1\n', encoding="utf-8")
+        'basis = "radiometric"\nage = 182.9\nuncertainty = 0.1\n',
+        encoding="utf-8",
+    )
     before = tree_bytes(demo_store)
     with pytest.raises(DomainError) as refused:  # a domain rule: exit 1
         api.ingest(api.open_store(demo_store), None, tmp_path / "t.toml")
@@ -382,7 +470,8 @@ def test_a_tie_for_a_section_not_in_the_store_is_refused(demo_store: Path,
 
 
 def test_the_cli_ingests_a_tie_only_mapping_without_a_sheet(
-        demo_store: Path, demo_sheets: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    demo_store: Path, demo_sheets: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     n_versions = len(api.history(api.open_store(demo_store)))
     code, _, err = cli(capsys, "ingest", "--map", demo_sheets / TIES, "--store", demo_store)
     assert code == 0, err  # the demo's ties are already in: nothing new to commit
@@ -391,29 +480,43 @@ def test_the_cli_ingests_a_tie_only_mapping_without_a_sheet(
 
 # --------------------------------------------------------- 6. superposition of ties at ingest
 
+
 def test_inverted_ties_are_refused_naming_both_and_the_store_is_unchanged(
-        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     store = api.init_store(tmp_path / "st")
-    good = write_section(tmp_path / "a", plain_rows([1.0, 3.0, 5.0, 7.0]),
-                         [radiometric(2.0, 183.0, "ash-lower"), radiometric(8.0, 182.0,
-                                                                             "ash-upper")])
+    good = write_section(
+        tmp_path / "a",
+        plain_rows([1.0, 3.0, 5.0, 7.0]),
+        [radiometric(2.0, 183.0, "ash-lower"), radiometric(8.0, 182.0, "ash-upper")],
+    )
     api.ingest(store, None, good)
     before = tree_bytes(store.path)
     # an older ash above a younger one in a height section: superposition is violated
-    bad = write_section(tmp_path / "b", plain_rows([1.0, 3.0, 5.0, 7.0]),
-                        [radiometric(2.0, 182.0, "ash-lower"), radiometric(8.0, 183.0,
-                                                                            "ash-upper")])
-    code, _, err = cli(capsys, "ingest", bad.parent / "sheet.csv", "--map", bad,
-                       "--store", store.path)
+    bad = write_section(
+        tmp_path / "b",
+        plain_rows([1.0, 3.0, 5.0, 7.0]),
+        [radiometric(2.0, 182.0, "ash-lower"), radiometric(8.0, 183.0, "ash-upper")],
+    )
+    code, _, err = cli(
+        capsys, "ingest", bad.parent / "sheet.csv", "--map", bad, "--store", store.path
+    )
     assert code == 1, err
     assert "ash-lower" in err and "ash-upper" in err and "Traceback" not in err
     assert tree_bytes(store.path) == before
 
 
 def test_a_hiatus_two_ties_at_one_level_is_accepted(tmp_path: Path) -> None:
-    m = write_section(tmp_path / "h", plain_rows([float(i) for i in range(11)]), [
-        radiometric(0.0, 184.0), radiometric(5.0, 183.5), radiometric(5.0, 182.5),
-        radiometric(10.0, 182.0)])
+    m = write_section(
+        tmp_path / "h",
+        plain_rows([float(i) for i in range(11)]),
+        [
+            radiometric(0.0, 184.0),
+            radiometric(5.0, 183.5),
+            radiometric(5.0, 182.5),
+            radiometric(10.0, 182.0),
+        ],
+    )
     store = api.init_store(tmp_path / "st")
     res = api.ingest(store, None, m)
     assert res.version is not None and not res.pending.get("age")
@@ -428,6 +531,7 @@ def test_a_hiatus_two_ties_at_one_level_is_accepted(tmp_path: Path) -> None:
 
 
 # ---------------------------------------------------------------------- 7. stage-only ages
+
 
 def test_stage_only_ages_are_the_stage_midpoint_with_a_uniform_sigma(tmp_path: Path) -> None:
     rows = [[f"st-{i}", float(i), 1.0, "Toarcian"] for i in range(3)]
@@ -450,12 +554,20 @@ def test_stage_only_ages_are_the_stage_midpoint_with_a_uniform_sigma(tmp_path: P
 
 # -------------------------------------------- 8. reported ages are moved between charts
 
+
 def test_reported_ages_move_from_their_chart_and_keep_their_sigma(tmp_path: Path) -> None:
     # heights 1, 2, 3 m: 185.0, 180.0 and 179.5 Ma on the 2012 chart (younger upward)
-    rows = [["r-1", 1.0, 1.0, 185.0, 0.25], ["r-2", 2.0, 1.0, 180.0, 0.3],
-            ["r-3", 3.0, 1.0, 179.5, ""]]
-    m = write_section(tmp_path / "r", rows, columns={"Age": '"age"', "Age sd": '"age_sigma"'},
-                      constants={"age_time_scale": "ICS2012"})
+    rows = [
+        ["r-1", 1.0, 1.0, 185.0, 0.25],
+        ["r-2", 2.0, 1.0, 180.0, 0.3],
+        ["r-3", 3.0, 1.0, 179.5, ""],
+    ]
+    m = write_section(
+        tmp_path / "r",
+        rows,
+        columns={"Age": '"age"', "Age sd": '"age_sigma"'},
+        constants={"age_time_scale": "ICS2012"},
+    )
     store = api.init_store(tmp_path / "st")
     api.ingest(store, None, m)
     got = {r["position_m"]: r for r in records(store)}
@@ -471,8 +583,9 @@ def test_reported_ages_move_from_their_chart_and_keep_their_sigma(tmp_path: Path
         assert r["age_basis"] == "reported" and r["time_scale"] == "ICS2024/12"
         assert r["age_reported_scale"] == "ICS2012"
     assert [got[h]["age_reported_ma"] for h in (1.0, 2.0, 3.0)] == [185.0, 180.0, 179.5]
-    chain = api.sql(store, "SELECT steps_json FROM chains WHERE chain_id = "
-                    f"'{got[2.0]['age_chain']}'").rows[0][0]
+    chain = api.sql(
+        store, f"SELECT steps_json FROM chains WHERE chain_id = '{got[2.0]['age_chain']}'"
+    ).rows[0][0]
     conv = [s for s in json.loads(chain) if s.get("step") == "time-scale conversion"]
     assert conv and conv[0]["parameters"]["from"] == "ICS2012"
     assert conv[0]["parameters"]["to"] == "ICS2024/12"
@@ -480,8 +593,8 @@ def test_reported_ages_move_from_their_chart_and_keep_their_sigma(tmp_path: Path
 
 # ------------------------------------------------------------------------ 9. redate
 
-def _changes(before: dict[str, float | None], after: dict[str, float | None]
-             ) -> tuple[int, float]:
+
+def _changes(before: dict[str, float | None], after: dict[str, float | None]) -> tuple[int, float]:
     n, largest = 0, 0.0
     for rid, a in before.items():
         b = after[rid]
@@ -496,10 +609,15 @@ def _changes(before: dict[str, float | None], after: dict[str, float | None]
 def _conflicting_sections(store: api.Store) -> set[str]:
     """Sections whose radiometric tie older than the 2012 Toarcian base (182.7 Ma) lies
     above their Toarcian chart-boundary tie: superposition fails on the 2012 chart."""
-    kinds = dict(((s, c), k) for s, c, k in api.sql(
-        store, "SELECT DISTINCT source_id, section_id, position_kind FROM records").rows)
-    ties = api.sql(store, "SELECT source_id, section_id, position_m, basis, boundary, age_ma "
-                   "FROM age_ties").rows
+    kinds = dict(
+        ((s, c), k)
+        for s, c, k in api.sql(
+            store, "SELECT DISTINCT source_id, section_id, position_kind FROM records"
+        ).rows
+    )
+    ties = api.sql(
+        store, "SELECT source_id, section_id, position_m, basis, boundary, age_ma FROM age_ties"
+    ).rows
     out = set()
     for s, c, p_t, basis, boundary, _ in ties:
         if basis != "chart boundary" or boundary != "Toarcian":
@@ -517,8 +635,9 @@ def test_redate_to_2012_and_back(demo_store: Path, capsys: pytest.CaptureFixture
     store = api.open_store(demo_store)
     s = ("--store", demo_store)
     before = records(store)
-    draws_before = api.sql(store, "SELECT * FROM age_draws ORDER BY source_id, section_id, "
-                           "chunk").rows
+    draws_before = api.sql(
+        store, "SELECT * FROM age_draws ORDER BY source_id, section_id, chunk"
+    ).rows
     n_versions = len(api.history(store))
     conflicts = _conflicting_sections(store)
     assert conflicts  # the demo's 183.0 Ma ashes lie above the 2012 Toarcian base
@@ -528,8 +647,9 @@ def test_redate_to_2012_and_back(demo_store: Path, capsys: pytest.CaptureFixture
     assert len(api.history(store)) == n_versions + 1
     assert store.settings()["time_scale"] == "ICS2012"
     after = records(store)
-    n, largest = _changes({r["record_id"]: r["age_ma"] for r in before},
-                          {r["record_id"]: r["age_ma"] for r in after})
+    n, largest = _changes(
+        {r["record_id"]: r["age_ma"] for r in before}, {r["record_id"]: r["age_ma"] for r in after}
+    )
     m = re.search(r"age_ma: (\d+) values changed; largest change ([0-9.eE+-]+) Myr", err)
     assert m, err
     assert int(m.group(1)) == n > 0
@@ -542,8 +662,7 @@ def test_redate_to_2012_and_back(demo_store: Path, capsys: pytest.CaptureFixture
             # their other ages stand: the reported age moved onto the 2012 chart
             if r["age_reported_ma"] is not None and r["age_reported_scale"] == "ICS2024/12":
                 assert r["age_basis"] == "reported"
-                assert r["age_ma"] == pytest.approx(float(on_2012(r["age_reported_ma"])),
-                                                    abs=1e-9)
+                assert r["age_ma"] == pytest.approx(float(on_2012(r["age_reported_ma"])), abs=1e-9)
             elif r["age_basis"] is None:
                 assert "contradict" in r["age_status"]
         else:
@@ -563,19 +682,23 @@ def test_redate_to_2012_and_back(demo_store: Path, capsys: pytest.CaptureFixture
     assert code == 0, err
     assert len(api.history(store)) == n_versions + 2
     assert records(store) == before
-    assert api.sql(store, "SELECT * FROM age_draws ORDER BY source_id, section_id, "
-                   "chunk").rows == draws_before
+    assert (
+        api.sql(store, "SELECT * FROM age_draws ORDER BY source_id, section_id, chunk").rows
+        == draws_before
+    )
 
     code, _, err = cli(capsys, "redate", "--time-scale", "ICS2021", *s)
     assert code == 2 and "Did you mean" in err
 
 
 def test_agemodel_says_why_a_section_with_contradicting_ties_has_no_model(
-        demo_store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    demo_store: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     store = api.open_store(demo_store)
     api.redate(store, "ICS2012")
-    code, out, err = cli(capsys, "agemodel", "Mossaret Cut", "--format", "csv",
-                         "--store", demo_store)
+    code, out, err = cli(
+        capsys, "agemodel", "Mossaret Cut", "--format", "csv", "--store", demo_store
+    )
     assert code == 0 and len(csv_rows(out)) == 3  # three ties, as stored
     assert "two or more are needed" not in err
     assert "contradict" in err or "superposition" in err
@@ -583,10 +706,15 @@ def test_agemodel_says_why_a_section_with_contradicting_ties_has_no_model(
 
 # ----------------------------------------------------- 10. samples beyond the outermost ties
 
+
 def test_samples_beyond_the_ties_wait_for_extrapolation(
-        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    m = write_section(tmp_path / "x", plain_rows([float(i) for i in range(11)]),
-                      [radiometric(2.0, 183.0), radiometric(8.0, 182.0)])
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    m = write_section(
+        tmp_path / "x",
+        plain_rows([float(i) for i in range(11)]),
+        [radiometric(2.0, 183.0), radiometric(8.0, 182.0)],
+    )
     store = api.init_store(tmp_path / "st")
     res = api.ingest(store, None, m)
     assert res.pending.get("age") == 4
@@ -621,13 +749,14 @@ def test_samples_beyond_the_ties_wait_for_extrapolation(
 
 # ---------------------------------------------------------------------- 11. agemodel --plot
 
-def test_agemodel_plot_and_section_names(demo_store: Path, tmp_path: Path,
-                                         capsys: pytest.CaptureFixture[str]) -> None:
+
+def test_agemodel_plot_and_section_names(
+    demo_store: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
     from matplotlib import image
 
     png = tmp_path / "quillar.png"
-    code, _, err = cli(capsys, "agemodel", "quillar-ridge", "--plot", png,
-                       "--store", demo_store)
+    code, _, err = cli(capsys, "agemodel", "quillar-ridge", "--plot", png, "--store", demo_store)
     assert code == 0, err
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     pixels = image.imread(png)
@@ -639,18 +768,21 @@ def test_agemodel_plot_and_section_names(demo_store: Path, tmp_path: Path,
     assert code == 1 and "Did you mean" in err and "quillar-ridge" in err
 
     # the same section id in a second source: the command asks for SOURCE/SECTION
-    m = write_section(tmp_path / "dup", plain_rows([1.0, 2.0]), source_id="brannock-2019",
-                      section="quillar-ridge")
+    m = write_section(
+        tmp_path / "dup", plain_rows([1.0, 2.0]), source_id="brannock-2019", section="quillar-ridge"
+    )
     api.ingest(api.open_store(demo_store), None, m)
     code, out, err = cli(capsys, "agemodel", "quillar-ridge", "--store", demo_store)
     assert code == 2 and "SOURCE/SECTION" in err
     assert "quillar-2011" in err and "brannock-2019" in err
-    code, out, err = cli(capsys, "agemodel", "quillar-2011/quillar-ridge", "--format", "csv",
-                         "--store", demo_store)
+    code, out, err = cli(
+        capsys, "agemodel", "quillar-2011/quillar-ridge", "--format", "csv", "--store", demo_store
+    )
     assert code == 0 and len(csv_rows(out)) == 3
 
 
 # --------------------------------------------------------------------------- 12. stages
+
 
 def _toarcian(out: str) -> tuple[float, float]:
     row = next(r for r in csv_rows(out) if r["name"] == "Toarcian")
@@ -658,8 +790,8 @@ def _toarcian(out: str) -> tuple[float, float]:
 
 
 def test_stages_without_a_store_on_a_named_chart_and_on_the_store_chart(
-        tmp_path: Path, capsys: pytest.CaptureFixture[str],
-        monkeypatch: pytest.MonkeyPatch) -> None:
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
     empty = tmp_path / "empty"
     empty.mkdir()
     monkeypatch.chdir(empty)  # no ./compilation here
@@ -676,8 +808,9 @@ def test_stages_without_a_store_on_a_named_chart_and_on_the_store_chart(
     code, out, err = cli(capsys, "stages", "--format", "csv", "--store", store.path)
     assert code == 0 and _toarcian(out) == TOARCIAN_2012
     assert "store's chart" in err
-    code, out, err = cli(capsys, "stages", "--time-scale", "ICS2024/12", "--format", "csv",
-                         "--store", store.path)
+    code, out, err = cli(
+        capsys, "stages", "--time-scale", "ICS2024/12", "--format", "csv", "--store", store.path
+    )
     assert code == 0 and _toarcian(out) == TOARCIAN_2024
 
     code, out, err = cli(capsys, "stages", "--time-scale", "ICS2021")
@@ -686,8 +819,10 @@ def test_stages_without_a_store_on_a_named_chart_and_on_the_store_chart(
 
 # ------------------------------------------------------------ 13. the stored draws themselves
 
+
 def test_stored_draws_are_monotone_in_every_draw_and_summarise_to_the_ages(
-        demo_store: Path) -> None:
+    demo_store: Path,
+) -> None:
     store = api.open_store(demo_store)
     sections = section_draws(store)
     rows = records(store)

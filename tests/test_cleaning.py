@@ -15,16 +15,19 @@ def parse(values: list[str | None], decimal: str = "auto"):
     return parse_numbers(pa.array(values, pa.string()), ctx, decimal)
 
 
-@pytest.mark.parametrize("text,expected", [
-    ("−2.35", -2.35),      # U+2212 minus
-    ("–0.5", -0.5),        # en dash used as minus
-    ("+1.25", 1.25),
-    ("-2,35", -2.35),      # comma decimal
-    ("1,234.5", 1234.5),   # thousands comma with decimal point
-    ("1.234,5", 1234.5),   # European grouping
-    ("1 234", 1234.0),     # space grouping
-    ("2.1 ‰", 2.1),
-])
+@pytest.mark.parametrize(
+    "text,expected",
+    [
+        ("−2.35", -2.35),  # U+2212 minus
+        ("–0.5", -0.5),  # en dash used as minus
+        ("+1.25", 1.25),
+        ("-2,35", -2.35),  # comma decimal
+        ("1,234.5", 1234.5),  # thousands comma with decimal point
+        ("1.234,5", 1234.5),  # European grouping
+        ("1 234", 1234.0),  # space grouping
+        ("2.1 ‰", 2.1),
+    ],
+)
 def test_numbers(text: str, expected: float) -> None:
     p = parse([text])
     assert p.values[0].as_py() == pytest.approx(expected)
@@ -56,12 +59,15 @@ def test_date_and_junk_are_errors_with_cells() -> None:
     assert cells == {"D3": "date in numeric column", "D4": "not a number"}
 
 
-@pytest.mark.parametrize("text,axis,expected", [
-    ("45°12'30\"N", "lat", 45 + 12 / 60 + 30 / 3600),   # worked example, DMS -> decimal
-    ("12 30 S", "lat", -12.5),
-    ("W 10°30′", "lon", -10.5),
-    ("−12,5", "lon", -12.5),
-])
+@pytest.mark.parametrize(
+    "text,axis,expected",
+    [
+        ("45°12'30\"N", "lat", 45 + 12 / 60 + 30 / 3600),  # worked example, DMS -> decimal
+        ("12 30 S", "lat", -12.5),
+        ("W 10°30′", "lon", -10.5),
+        ("−12,5", "lon", -12.5),
+    ],
+)
 def test_coordinates(text: str, axis: str, expected: float) -> None:
     assert parse_coordinate(text, axis) == pytest.approx(expected)
 
@@ -81,4 +87,5 @@ def test_junk_never_crashes_and_every_cell_is_accounted(values: list[str | None]
     for i, v in enumerate(values):
         if v is not None and v.strip() and p.values[i].as_py() is None and not p.bad[i]:
             assert p.qualifier[i].as_py() == "bdl" or any(
-                x.rule in ("missing token",) for x in p.issues)
+                x.rule in ("missing token",) for x in p.issues
+            )

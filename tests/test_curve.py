@@ -27,12 +27,17 @@ GRID = np.linspace(198.0, 172.0, 53)
 
 def trend(age: np.ndarray) -> np.ndarray:
     """An invented δ13C history: a positive excursion near 185 Ma on a gentle slope."""
-    return 0.05 * (age - 185.0) + 2.5 * np.exp(-((age - 185.0) / 3.0) ** 2)
+    return 0.05 * (age - 185.0) + 2.5 * np.exp(-(((age - 185.0) / 3.0) ** 2))
 
 
-def make_samples(n_sections: int = 12, per: int = 40, seed: int = 3, sigma: float = 0.3,
-                 offsets: dict[str, float] | None = None, span_myr: float = 18.0
-                 ) -> pd.DataFrame:
+def make_samples(
+    n_sections: int = 12,
+    per: int = 40,
+    seed: int = 3,
+    sigma: float = 0.3,
+    offsets: dict[str, float] | None = None,
+    span_myr: float = 18.0,
+) -> pd.DataFrame:
     """Invented sections, each over its own age window, two sections per source."""
     rng = np.random.default_rng(seed)
     rows = []
@@ -42,10 +47,19 @@ def make_samples(n_sections: int = 12, per: int = 40, seed: int = 3, sigma: floa
         ages = np.sort(rng.uniform(top, top + span_myr, per))
         vals = trend(ages) + rng.normal(0.0, sigma, per) + (offsets or {}).get(src, 0.0)
         for i, (a, v) in enumerate(zip(ages, vals, strict=True)):
-            rows.append({"source_id": src, "section_id": f"sec-{s:02d}", "sample_id": f"s{i}",
-                         "age_ma": a, "age_sigma_ma": 0.4, "age_basis": "reported",
-                         "value": v, "component": "bulk" if s % 3 else "brachiopod",
-                         "setting": "ramp"})
+            rows.append(
+                {
+                    "source_id": src,
+                    "section_id": f"sec-{s:02d}",
+                    "sample_id": f"s{i}",
+                    "age_ma": a,
+                    "age_sigma_ma": 0.4,
+                    "age_basis": "reported",
+                    "value": v,
+                    "component": "bulk" if s % 3 else "brachiopod",
+                    "setting": "ramp",
+                }
+            )
     return pd.DataFrame(rows)
 
 
@@ -54,11 +68,17 @@ def make_samples(n_sections: int = 12, per: int = 40, seed: int = 3, sigma: floa
 
 def test_triplicate_counts_once() -> None:
     # closed form: the mean of −1.02, −0.98, −1.00 is −1.00
-    df = pd.DataFrame({
-        "source_id": ["p"] * 5, "section_id": ["A"] * 5, "sample_id": ["1", "1", "1", "2", "2"],
-        "replicate": [1, 2, 3, 1, 2], "d13c_carb": [-1.02, -0.98, -1.00, 0.5, np.nan],
-        "age_ma": [180.0, 180.0, 180.0, 181.0, 181.0], "component": ["bulk"] * 5,
-    })
+    df = pd.DataFrame(
+        {
+            "source_id": ["p"] * 5,
+            "section_id": ["A"] * 5,
+            "sample_id": ["1", "1", "1", "2", "2"],
+            "replicate": [1, 2, 3, 1, 2],
+            "d13c_carb": [-1.02, -0.98, -1.00, 0.5, np.nan],
+            "age_ma": [180.0, 180.0, 180.0, 181.0, 181.0],
+            "component": ["bulk"] * 5,
+        }
+    )
     out = average_replicates(df, "d13c_carb").set_index("sample_id")
     assert len(out) == 2
     assert out.loc["1", "value"] == pytest.approx(-1.00, abs=1e-12)
@@ -81,9 +101,14 @@ def test_bin_edges() -> None:
 
 def test_section_weighted_worked_example() -> None:
     # worked example: 100 samples at +2 ‰ (section A), 5 at 0 ‰ (section B) in one bin
-    df = pd.DataFrame({"source_id": "p", "section_id": ["A"] * 100 + ["B"] * 5,
-                       "age_ma": np.linspace(180.1, 189.9, 105),
-                       "value": [2.0] * 100 + [0.0] * 5})
+    df = pd.DataFrame(
+        {
+            "source_id": "p",
+            "section_id": ["A"] * 100 + ["B"] * 5,
+            "age_ma": np.linspace(180.1, 189.9, 105),
+            "value": [2.0] * 100 + [0.0] * 5,
+        }
+    )
     row = bin_stats(df, [190, 180]).iloc[0]
     assert row["mean"] == pytest.approx(1.0, abs=1e-12)
     assert (row["n_sections"], row["n_samples"]) == (2, 105)
@@ -101,9 +126,17 @@ def test_sample_weighted_bins_equal_pandas() -> None:
     ours = bin_stats(df, edges, weight="samples")
     cut = pd.cut(df["age_ma"], sorted(edges), right=False)
     g = df.groupby(cut, observed=False)["value"]
-    ref = pd.DataFrame({"n_samples": g.size(), "median": g.median(), "mean": g.mean(),
-                        "q25": g.quantile(0.25), "q75": g.quantile(0.75),
-                        "p2_5": g.quantile(0.025), "p97_5": g.quantile(0.975)}).iloc[::-1]
+    ref = pd.DataFrame(
+        {
+            "n_samples": g.size(),
+            "median": g.median(),
+            "mean": g.mean(),
+            "q25": g.quantile(0.25),
+            "q75": g.quantile(0.75),
+            "p2_5": g.quantile(0.025),
+            "p97_5": g.quantile(0.975),
+        }
+    ).iloc[::-1]
     assert ours["age_old"].tolist() == sorted(edges, reverse=True)[:-1]
     assert ours["n_samples"].tolist() == ref["n_samples"].tolist()
     for col in ("median", "mean", "q25", "q75", "p2_5", "p97_5"):
@@ -112,8 +145,13 @@ def test_sample_weighted_bins_equal_pandas() -> None:
     assert ours["n_sections"].tolist() == secs.tolist()
     # section-weighted mean = mean of the section means (pandas, two groupbys)
     sec = bin_stats(df, edges)
-    ref_mean = df.groupby([cut, "section_id"], observed=True)["value"].mean().groupby(
-        level=0, observed=False).mean().iloc[::-1]
+    ref_mean = (
+        df.groupby([cut, "section_id"], observed=True)["value"]
+        .mean()
+        .groupby(level=0, observed=False)
+        .mean()
+        .iloc[::-1]
+    )
     np.testing.assert_allclose(sec["mean"], ref_mean, rtol=0, atol=1e-12)
 
 
@@ -121,12 +159,14 @@ def test_weighted_quantile_definition() -> None:
     # numpy: with equal weights the midpoint rule is percentile(method="hazen")
     v = np.random.default_rng(0).normal(size=17)
     qs = [0.0, 0.025, 0.25, 0.5, 0.75, 0.975, 1.0]
-    np.testing.assert_allclose(weighted_quantile(v, np.full(17, 0.3), qs),
-                               np.percentile(v, np.array(qs) * 100, method="hazen"),
-                               rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        weighted_quantile(v, np.full(17, 0.3), qs),
+        np.percentile(v, np.array(qs) * 100, method="hazen"),
+        rtol=0,
+        atol=1e-12,
+    )
     # closed form: values 0 and 1 with weights 3 and 1 sit at p = 0.375 and 0.875
-    assert weighted_quantile([1.0, 0.0], [1.0, 3.0], [0.3, 0.625, 0.9]).tolist() == [
-        0.0, 0.5, 1.0]
+    assert weighted_quantile([1.0, 0.0], [1.0, 3.0], [0.3, 0.625, 0.9]).tolist() == [0.0, 0.5, 1.0]
 
 
 # ------------------------------------------------------------------ LOESS
@@ -189,8 +229,9 @@ def test_curve_fit_is_loess_and_reproducible() -> None:
     assert not np.allclose(a["lo"], c["lo"], equal_nan=True)
     # the fit is the LOESS of all samples with 1/n per sample of a section (definition)
     n = df.groupby("section_id")["value"].transform("size").to_numpy()
-    np.testing.assert_allclose(a["fit"], loess(df["age_ma"], df["value"], GRID, 0.3, 1 / n),
-                               rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        a["fit"], loess(df["age_ma"], df["value"], GRID, 0.3, 1 / n), rtol=0, atol=1e-12
+    )
     # statsmodels lowess when every sample counts once
     from statsmodels.nonparametric.smoothers_lowess import lowess
 
@@ -246,13 +287,21 @@ def test_age_draws_widen_the_band() -> None:
 
 def test_sample_age_draws() -> None:
     # closed forms: uniform over ±√3σ has SD σ; section draws are read at the positions
-    df = pd.DataFrame({"source_id": "p", "section_id": ["A", "A", "B", "C"],
-                       "age_ma": [180.0, 181.0, 185.0, 190.0], "age_sigma_ma": [0.5, 0.5, 2.0, 1.0],
-                       "age_basis": ["age model", "age model", "stage only", "reported"],
-                       "position_m": [3.0, 1.0, 0.0, 0.0]}, index=[9, 9, 9, 9])
+    df = pd.DataFrame(
+        {
+            "source_id": "p",
+            "section_id": ["A", "A", "B", "C"],
+            "age_ma": [180.0, 181.0, 185.0, 190.0],
+            "age_sigma_ma": [0.5, 0.5, 2.0, 1.0],
+            "age_basis": ["age model", "age model", "stage only", "reported"],
+            "position_m": [3.0, 1.0, 0.0, 0.0],
+        },
+        index=[9, 9, 9, 9],
+    )
     sec_draws = np.array([[179.0, 181.5], [179.5, 182.0], [180.0, 182.5]], dtype=np.float32)
-    draws = sample_age_draws(df, 4000, seed=1,
-                             section_draws={("p", "A"): (np.array([1.0, 3.0]), sec_draws)})
+    draws = sample_age_draws(
+        df, 4000, seed=1, section_draws={("p", "A"): (np.array([1.0, 3.0]), sec_draws)}
+    )
     d = np.array([draws(k) for k in range(4000)])
     assert d[5, 0] == sec_draws[5 % 3, 1] and d[5, 1] == sec_draws[5 % 3, 0]
     half = math.sqrt(3.0) * 2.0
@@ -268,11 +317,13 @@ def test_curves_per_group() -> None:
     assert list(out.columns[:2]) == ["component", "age"]
     for comp, part in out.groupby("component"):
         one = curve(df[df["component"] == comp], GRID, 0.4, boots=20, seed=3, min_sections=2)
-        np.testing.assert_allclose(part[["fit", "lo", "hi"]], one[["fit", "lo", "hi"]],
-                                   rtol=0, atol=1e-12)
+        np.testing.assert_allclose(
+            part[["fit", "lo", "hi"]], one[["fit", "lo", "hi"]], rtol=0, atol=1e-12
+        )
     tiny = df[(df["section_id"] == "sec-00")].head(2)
-    skipped = curves(pd.concat([df[df["component"] == "bulk"], tiny]), "component", GRID, 0.3,
-                     boots=5)
+    skipped = curves(
+        pd.concat([df[df["component"] == "bulk"], tiny]), "component", GRID, 0.3, boots=5
+    )
     assert skipped.attrs["skipped"][0][0] == ("brachiopod",)
     assert set(skipped["component"]) == {"bulk"}
 
@@ -283,8 +334,12 @@ def test_robustness_names_offset_source() -> None:
     grid = np.linspace(192.0, 178.0, 29)  # where every source has data (no edge effects)
     rob = robustness(df, grid, 0.3, leave="source")
     assert rob.influence.iloc[0]["left_out"] == "src-c"
-    assert list(rob.influence.columns[:4]) == ["left_out", "max_abs_change", "rms_change",
-                                               "n_samples"]
+    assert list(rob.influence.columns[:4]) == [
+        "left_out",
+        "max_abs_change",
+        "rms_change",
+        "n_samples",
+    ]
     assert rob.influence.iloc[0]["n_samples"] == 80
     assert len(rob.curves) == 6 * grid.size
     by_section = robustness(df, grid, 0.3, leave="section")

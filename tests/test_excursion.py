@@ -18,13 +18,24 @@ from strata13.errors import DomainError
 HALF_WIDTH_10 = math.sqrt(2.0 * math.log(10.0))
 
 
-def _gauss(amp: float = -4.0, sigma: float = 1.0, step: float = 0.2, base: float = 0.0,
-           centre: float = 10.0, kind: str = "height") -> pd.DataFrame:
+def _gauss(
+    amp: float = -4.0,
+    sigma: float = 1.0,
+    step: float = 0.2,
+    base: float = 0.0,
+    centre: float = 10.0,
+    kind: str = "height",
+) -> pd.DataFrame:
     x = np.arange(-50, 51) * step  # a sample exactly at the peak
     pos = centre + x if kind == "height" else centre - x  # depth: older is deeper
-    return pd.DataFrame({"position_m": pos, "position_kind": kind,
-                         "age_ma": 183.0 - 0.01 * x,  # linear age model, 0.01 Ma per m
-                         "value": base + amp * np.exp(-x ** 2 / (2 * sigma ** 2))})
+    return pd.DataFrame(
+        {
+            "position_m": pos,
+            "position_kind": kind,
+            "age_ma": 183.0 - 0.01 * x,  # linear age model, 0.01 Ma per m
+            "value": base + amp * np.exp(-(x**2) / (2 * sigma**2)),
+        }
+    )
 
 
 def test_gaussian_closed_form() -> None:
@@ -51,8 +62,13 @@ def test_worked_example_interpolation() -> None:
     # Source: worked by hand. Baseline 0 (median of the first three), peak −4 at 5 m,
     # threshold 0.4 ‰: onset between 3 m (departure 0) and 4 m (1): 3 + 0.4/1 = 3.4 m;
     # recovery between 6 m (1) and 7 m (0): 6 + (1 − 0.4)/1 = 6.6 m; ages 100 − position.
-    df = pd.DataFrame({"position_m": np.arange(9.0), "age_ma": 100.0 - np.arange(9.0),
-                       "value": [0, 0, 0, 0, -1, -4, -1, 0, 0]})
+    df = pd.DataFrame(
+        {
+            "position_m": np.arange(9.0),
+            "age_ma": 100.0 - np.arange(9.0),
+            "value": [0, 0, 0, 0, -1, -4, -1, 0, 0],
+        }
+    )
     m = metrics(df)
     assert (m.baseline, m.magnitude, m.peak_position_m) == (0.0, -4.0, 5.0)
     assert m.onset_position_m == pytest.approx(3.4)
@@ -75,7 +91,7 @@ def test_direction_auto_and_forced() -> None:
     # Source: the definition: auto follows the larger departure; a forced direction takes
     # the furthest sample on its own side.
     x = np.arange(0.0, 30.0, 0.5)
-    v = 1.0 - 2.0 * np.exp(-(x - 10) ** 2 / 2) + 3.0 * np.exp(-(x - 20) ** 2 / 2)
+    v = 1.0 - 2.0 * np.exp(-((x - 10) ** 2) / 2) + 3.0 * np.exp(-((x - 20) ** 2) / 2)
     df = pd.DataFrame({"position_m": x, "age_ma": 190.0 - 0.1 * x, "value": v})
     auto = metrics(df)
     assert auto.magnitude == pytest.approx(3.0, abs=1e-3)
@@ -85,8 +101,9 @@ def test_direction_auto_and_forced() -> None:
     assert neg.peak_position_m == 10.0
     assert metrics(df, direction="positive") == auto
     # an exact tie goes to negative and says so
-    tie = pd.DataFrame({"position_m": np.arange(9.0), "age_ma": np.nan,
-                        "value": [0, 0, 0, 0, -2, 0, 2, 0, 0]})
+    tie = pd.DataFrame(
+        {"position_m": np.arange(9.0), "age_ma": np.nan, "value": [0, 0, 0, 0, -2, 0, 2, 0, 0]}
+    )
     m = metrics(tie)
     assert m.magnitude == -2.0 and "direction_ambiguous" in m.flags
 
@@ -105,7 +122,8 @@ def test_depth_section_reverses_order() -> None:
     assert d.baseline_window.startswith("oldest 21 of 101 samples (260–256 m)")
     # read as heights, the same numbers put the excursion's order the other way round
     assert metrics(core, position_kind="height").onset_position_m == pytest.approx(
-        d.recovery_position_m)
+        d.recovery_position_m
+    )
 
 
 def test_flags_never_recovers_and_starts_inside() -> None:
@@ -164,20 +182,44 @@ def _compilation() -> pd.DataFrame:
     """Four invented sections in two regions, plus a one-sample section."""
     rng = np.random.default_rng(11)
     parts = []
-    for i, (region, amp, centre) in enumerate([("North", -3.0, 183.1), ("North", -2.5, 182.9),
-                                               ("South", -4.0, 183.0), ("South", -3.5, 183.2)]):
+    for i, (region, amp, centre) in enumerate(
+        [
+            ("North", -3.0, 183.1),
+            ("North", -2.5, 182.9),
+            ("South", -4.0, 183.0),
+            ("South", -3.5, 183.2),
+        ]
+    ):
         x = np.arange(0.0, 20.0, 0.25)
         age = 184.0 - 0.1 * x
-        v = 2.0 + 0.2 * i + amp * np.exp(-(age - centre) ** 2 / (2 * 0.15 ** 2))
+        v = 2.0 + 0.2 * i + amp * np.exp(-((age - centre) ** 2) / (2 * 0.15**2))
         v = v + rng.normal(0.0, 0.05, x.size)
-        parts.append(pd.DataFrame({"source_id": f"src-{i % 2}", "section_id": f"S{i}",
-                                   "region": region, "position_m": x,
-                                   "position_kind": "height", "age_ma": age,
-                                   "d13c_carb": v}))
-    parts.append(pd.DataFrame({"source_id": ["src-9"], "section_id": ["Lone"],
-                               "region": ["South"], "position_m": [1.0],
-                               "position_kind": ["height"], "age_ma": [183.0],
-                               "d13c_carb": [0.5]}))
+        parts.append(
+            pd.DataFrame(
+                {
+                    "source_id": f"src-{i % 2}",
+                    "section_id": f"S{i}",
+                    "region": region,
+                    "position_m": x,
+                    "position_kind": "height",
+                    "age_ma": age,
+                    "d13c_carb": v,
+                }
+            )
+        )
+    parts.append(
+        pd.DataFrame(
+            {
+                "source_id": ["src-9"],
+                "section_id": ["Lone"],
+                "region": ["South"],
+                "position_m": [1.0],
+                "position_kind": ["height"],
+                "age_ma": [183.0],
+                "d13c_carb": [0.5],
+            }
+        )
+    )
     return pd.concat(parts, ignore_index=True).sample(frac=1.0, random_state=5)
 
 
@@ -209,8 +251,11 @@ def test_per_section_against_pandas() -> None:
     sm = excursion.summary(ps)
     assert list(sm["scope"]) == ["all", "group", "group"]
     assert list(sm["group"].iloc[1:]) == ["North", "South"]
-    ref = ps.dropna(subset=["magnitude"]).groupby("group")[
-        ["magnitude", "peak_age_ma", "onset_age_ma"]].agg(["mean", "std", "count"])
+    ref = (
+        ps.dropna(subset=["magnitude"])
+        .groupby("group")[["magnitude", "peak_age_ma", "onset_age_ma"]]
+        .agg(["mean", "std", "count"])
+    )
     for q in ("magnitude", "peak_age_ma", "onset_age_ma"):
         np.testing.assert_allclose(sm[f"{q}_mean"].iloc[1:], ref[(q, "mean")])
         np.testing.assert_allclose(sm[f"{q}_sd"].iloc[1:], ref[(q, "std")])
@@ -229,8 +274,12 @@ def test_per_section_without_groups_and_component_split() -> None:
     assert ps["group"].isna().all() and len(ps) == 5
     sm = excursion.summary(ps)
     assert list(sm["scope"]) == ["all"]
-    two = pd.concat([df.assign(component="bulk"), df.assign(component="organic",
-                                                             d13c_carb=df["d13c_carb"] - 25)])
+    two = pd.concat(
+        [
+            df.assign(component="bulk"),
+            df.assign(component="organic", d13c_carb=df["d13c_carb"] - 25),
+        ]
+    )
     split = excursion.per_section(two, group_col="component")
     assert len(split) == 10
     bulk = split[split["group"] == "bulk"].set_index("section_id")["baseline"]

@@ -12,8 +12,9 @@ from strata13.errors import DomainError
 
 
 def value(material: str, value_set: str, field: str) -> float:
-    row = next(m for m in shipped_materials()
-               if m.material == material and m.value_set == value_set)
+    row = next(
+        m for m in shipped_materials() if m.material == material and m.value_set == value_set
+    )
     return getattr(row, field)
 
 
@@ -54,8 +55,9 @@ def test_run_normalisation_worked_example() -> None:
     # Worked by hand from the accepted values: IAEA-603 +2.460, NBS-18 −5.014 (IAEA sheets)
     # measured at +2.10 and −5.30: slope 7.474/7.40 = 1.0100, intercept 2.460 − 1.01×2.10
     a = {"IAEA-603": ([2.10], 2.460), "NBS-18": ([-5.30], -5.014)}
-    out, step, qc = runs.normalise_run("r1", np.array([-3.00, -6.0426]), a,
-                                       checks={"IAEA-CO-8": ([-6.0426], -5.764)})
+    out, step, qc = runs.normalise_run(
+        "r1", np.array([-3.00, -6.0426]), a, checks={"IAEA-CO-8": ([-6.0426], -5.764)}
+    )
     assert qc.slope == pytest.approx(1.0100, abs=1e-12)
     assert qc.intercept == pytest.approx(0.339, abs=1e-12)
     assert out[0] == pytest.approx(-2.691, abs=1e-9)
@@ -64,8 +66,7 @@ def test_run_normalisation_worked_example() -> None:
 
 
 def test_run_qc_warns_on_a_slope_far_from_one_and_refuses_bad_runs() -> None:
-    _, _, qc = runs.normalise_run("r2", np.array([0.0]),
-                                  {"A": ([0.0], 0.0), "B": ([1.0], 1.2)})
+    _, _, qc = runs.normalise_run("r2", np.array([0.0]), {"A": ([0.0], 0.0), "B": ([1.0], 1.2)})
     assert qc.warnings and "slope" in qc.warnings[0]
     with pytest.raises(DomainError, match="at least two"):
         runs.normalise_run("r3", np.array([0.0]), {"A": ([0.0], 0.0)})
@@ -90,8 +91,9 @@ def test_reanchoring_identity_and_round_trip() -> None:
     back, _ = anchors.two_point(new, (1.95, -46.6), (1.95, -46.48), ("NBS-19", "LSVEC"), "t")
     assert np.max(np.abs(back - x)) < 1e-12
     # near 0 ‰ the two LSVEC values change δ13C by far less than typical precision
-    near_zero, _ = anchors.two_point(np.array([0.0]), (1.95, -46.48), (1.95, -46.6),
-                                     ("NBS-19", "LSVEC"), "t")
+    near_zero, _ = anchors.two_point(
+        np.array([0.0]), (1.95, -46.48), (1.95, -46.6), ("NBS-19", "LSVEC"), "t"
+    )
     assert abs(near_zero[0]) < 0.01
     off, step = anchors.one_point(x, 2.46, 2.46, "IAEA-603", "t")
     assert np.allclose(off, x) and step.flags
@@ -100,10 +102,10 @@ def test_reanchoring_identity_and_round_trip() -> None:
 def test_ratios_and_atom_fraction() -> None:
     # R(VPDB) 0.0111802 -> x(13C) = R/(1+R) = 1.1057 % (carbon ≈ 98.9 % 12C, 1.1 % 13C:
     # common practice); δ13C = −25 ‰ -> R = 0.0111802 × 0.975 = 0.0109007
-    assert float(ratios.atom_fraction(np.array([ratios.R_VPDB_13C]))[0]) * 100 == \
-        pytest.approx(1.1057, abs=1e-4)
-    assert float(ratios.delta_to_ratio(np.array([-25.0]))[0]) == pytest.approx(0.0109007,
-                                                                              abs=1e-7)
+    assert float(ratios.atom_fraction(np.array([ratios.R_VPDB_13C]))[0]) * 100 == pytest.approx(
+        1.1057, abs=1e-4
+    )
+    assert float(ratios.delta_to_ratio(np.array([-25.0]))[0]) == pytest.approx(0.0109007, abs=1e-7)
     r = ratios.delta_to_ratio(np.array([-25.0, 0.0, 3.1]))
     assert np.allclose(ratios.ratio_to_delta(r), [-25.0, 0.0, 3.1], atol=1e-12)
     assert ratios.big_delta_13c(np.array([2.0]), np.array([-27.5]))[0] == 29.5

@@ -41,12 +41,15 @@ ACCEPTED = {
 }
 # An invented in-house value for IAEA-603 δ13C (not a published number)
 USER_IAEA603_D13C = 2.470
-MATERIAL_HEADER = ("material,kind,value_set,status,d13c,d13c_unc,d13c_unc_kind,d13c_scale,"
-                   "d18o,d18o_unc,d18o_unc_kind,d18o_scale,valid_from,valid_to,confidence,"
-                   "source\n")
+MATERIAL_HEADER = (
+    "material,kind,value_set,status,d13c,d13c_unc,d13c_unc_kind,d13c_scale,"
+    "d18o,d18o_unc,d18o_unc_kind,d18o_scale,valid_from,valid_to,confidence,"
+    "source\n"
+)
 
 
 # --- helpers ---------------------------------------------------------------------------
+
 
 def error_line(stderr: str) -> str:
     lines = [ln for ln in stderr.splitlines() if ln.startswith("error:")]
@@ -87,8 +90,9 @@ def latest(store: Path) -> int:
     return api.open_store(store).latest_version()
 
 
-def two_point_line(assumed: tuple[float, float], accepted: tuple[float, float]
-                   ) -> tuple[float, float]:
+def two_point_line(
+    assumed: tuple[float, float], accepted: tuple[float, float]
+) -> tuple[float, float]:
     """Worked by hand: the straight line through (assumed_i, accepted_i)."""
     (x1, x2), (y1, y2) = assumed, accepted
     slope = (y2 - y1) / (x2 - x1)
@@ -98,12 +102,12 @@ def two_point_line(assumed: tuple[float, float], accepted: tuple[float, float]
 # Mossaret/Fennoway: the authors assumed NBS-19 = 1.95 and LSVEC = −46.48; the store accepts
 # NBS-19 = 1.95 (VPDB definition) and LSVEC = −46.6 (VPDB-LSVEC 2006). Worked by hand from
 # the accepted values: slope = −48.55 / −48.43 = 1.0024778…, intercept = 1.95 (1 − slope).
-MF_SLOPE, MF_INTERCEPT = two_point_line((NBS19_D13C, LSVEC_BEFORE_2006),
-                                        (NBS19_D13C, LSVEC_2006))
+MF_SLOPE, MF_INTERCEPT = two_point_line((NBS19_D13C, LSVEC_BEFORE_2006), (NBS19_D13C, LSVEC_2006))
 
 
-def run_fit(standards: pd.DataFrame, accepted: dict[str, dict[str, float]] = ACCEPTED
-            ) -> dict[tuple[str, str], tuple[float, float]]:
+def run_fit(
+    standards: pd.DataFrame, accepted: dict[str, dict[str, float]] = ACCEPTED
+) -> dict[tuple[str, str], tuple[float, float]]:
     """(run, isotope) -> (slope, intercept) by numpy.polyfit of a run's stored anchor
     measurements (rows of the runs view) against the accepted values."""
     out = {}
@@ -119,8 +123,9 @@ def run_fit(standards: pd.DataFrame, accepted: dict[str, dict[str, float]] = ACC
 
 def run_tables(store: Path, source: str) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     """(standards, run_qc indexed by run and isotope, sample records) of one source."""
-    std, qc, rec = read(store, of_source(source, "runs"), of_source(source, "run_qc"),
-                        of_source(source))
+    std, qc, rec = read(
+        store, of_source(source, "runs"), of_source(source, "run_qc"), of_source(source)
+    )
     return std, qc.set_index(["run_id", "isotope"]), rec
 
 
@@ -148,16 +153,24 @@ lon = 9.7
 TINY_ROWS = "ta-1,1,-30.0,-2.0\nta-2,2,0.0,-3.1\nta-3,3,2.5,-1.4\n"
 
 
-def write_tiny(folder: Path, sid: str, extra: str = "", rows: str = TINY_ROWS,
-               second: str = "d18O", second_field: str = "d18o_carb",
-               second_scale: str | None = "VPDB") -> Path:
+def write_tiny(
+    folder: Path,
+    sid: str,
+    extra: str = "",
+    rows: str = TINY_ROWS,
+    second: str = "d18O",
+    second_field: str = "d18o_carb",
+    second_scale: str | None = "VPDB",
+) -> Path:
     """A three-row source (Sample, Height, δ13C and one more δ column) with its mapping."""
     folder.mkdir(parents=True, exist_ok=True)
     (folder / f"{sid}.csv").write_text(f"Sample,Height,d13C,{second}\n{rows}", encoding="utf-8")
     scale = f', scale = "{second_scale}"' if second_scale else ""
     m = folder / f"{sid}.toml"
-    m.write_text(TINY.format(sid=sid, second=second, second_field=second_field,
-                             second_scale=scale) + extra, encoding="utf-8")
+    m.write_text(
+        TINY.format(sid=sid, second=second, second_field=second_field, second_scale=scale) + extra,
+        encoding="utf-8",
+    )
     return m
 
 
@@ -168,7 +181,7 @@ NORMALISATIONS = {
     "tamsel-not-stated": '[normalisation.d13c_carb]\nmethod = "not stated"\n',
     # assumed = accepted (NBS 19 1.95, IAEA sheet; LSVEC −46.6, Coplen et al. 2006)
     "tamsel-identity": '[normalisation.d13c_carb]\nmethod = "two-point"\n'
-                       'anchors = { "NBS-19" = 1.95, "LSVEC" = -46.6 }\n',
+    'anchors = { "NBS-19" = 1.95, "LSVEC" = -46.6 }\n',
 }
 
 WORKED_RUN = """
@@ -199,9 +212,11 @@ lat = 47.3
 lon = 11.4
 """
 # two lines per standard; a sample at −3.00 and the check IAEA-CO-8 (invented measurements)
-WORKED_CSV = ("Run,Line,Identifier,Height (m),d13C raw\n"
-              "W1,1,IAEA-603,,2.10\nW1,2,NBS-18,,-5.30\nW1,3,BS-1,0.5,-3.00\n"
-              "W1,4,IAEA-CO-8,,-6.0426\nW1,5,IAEA-603,,2.10\nW1,6,NBS-18,,-5.30\n")
+WORKED_CSV = (
+    "Run,Line,Identifier,Height (m),d13C raw\n"
+    "W1,1,IAEA-603,,2.10\nW1,2,NBS-18,,-5.30\nW1,3,BS-1,0.5,-3.00\n"
+    "W1,4,IAEA-CO-8,,-6.0426\nW1,5,IAEA-603,,2.10\nW1,6,NBS-18,,-5.30\n"
+)
 
 
 @pytest.fixture(scope="module")
@@ -213,12 +228,26 @@ def small_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
         api.ingest(store, None, write_tiny(folder, sid, block))
     # values where the one-point change of −0.05 ‰ comes out just under 0.05 in floating
     # point (2.5 − 0.05, 3.0 − 0.05)
-    api.ingest(store, None, write_tiny(folder, "tamsel-at-precision", ONE_POINT,
-                                       rows="ta-1,1,2.5,-2.0\nta-2,2,3.0,-3.1\n"))
+    api.ingest(
+        store,
+        None,
+        write_tiny(
+            folder, "tamsel-at-precision", ONE_POINT, rows="ta-1,1,2.5,-2.0\nta-2,2,3.0,-3.1\n"
+        ),
+    )
     # Δ13C: one row with both values, one without carbonate, one without organic δ13C
-    api.ingest(store, None, write_tiny(folder, "tamsel-organic", ONE_POINT,
-                                       rows="k1,1,2.0,-27.5\nk2,2,,-26.0\nk3,3,1.5,\n",
-                                       second="d13Corg", second_field="d13c_org"))
+    api.ingest(
+        store,
+        None,
+        write_tiny(
+            folder,
+            "tamsel-organic",
+            ONE_POINT,
+            rows="k1,1,2.0,-27.5\nk2,2,,-26.0\nk3,3,1.5,\n",
+            second="d13Corg",
+            second_field="d13c_org",
+        ),
+    )
     (folder / "worked.csv").write_text(WORKED_CSV, encoding="utf-8")
     (folder / "worked.toml").write_text(WORKED_RUN, encoding="utf-8")
     r = api.ingest(store, None, folder / "worked.toml")
@@ -228,8 +257,10 @@ def small_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 # --- 1. re-anchoring on the demo ---------------------------------------------------------
 
+
 def test_mossaret_values_follow_the_two_point_line_between_assumed_and_accepted_anchors(
-        demo_store_session: Path) -> None:
+    demo_store_session: Path,
+) -> None:
     assert MF_SLOPE == pytest.approx(48.55 / 48.43, abs=1e-15)
     assert MF_INTERCEPT == pytest.approx(-0.0048317, abs=1e-7)
     df, chains = read(demo_store_session, of_source(MF), CHAINS)
@@ -244,9 +275,13 @@ def test_mossaret_values_follow_the_two_point_line_between_assumed_and_accepted_
     assert [s["step"] for s in steps] == ["reported on VPDB", "re-anchoring (two-point)"]
     p = steps[1]["parameters"]
     assert dict(zip(p["materials"], p["assumed"], strict=True)) == {
-        "NBS-19": NBS19_D13C, "LSVEC": LSVEC_BEFORE_2006}
+        "NBS-19": NBS19_D13C,
+        "LSVEC": LSVEC_BEFORE_2006,
+    }
     assert dict(zip(p["materials"], p["accepted"], strict=True)) == {
-        "NBS-19": NBS19_D13C, "LSVEC": LSVEC_2006}
+        "NBS-19": NBS19_D13C,
+        "LSVEC": LSVEC_2006,
+    }
     assert steps[1]["size_permil"] == pytest.approx(change.max(), abs=1e-12)
     flags = " | ".join(steps[1]["flags"])
     assert "LSVEC" in flags and "withdrawn" in flags
@@ -257,8 +292,7 @@ def test_mossaret_values_follow_the_two_point_line_between_assumed_and_accepted_
     assert len(d18o) == 1 and "normalisation not stated" in d18o[0]["flags"]
 
 
-def test_explain_prints_both_reanchoring_steps_with_their_numbers(
-        demo_store_session: Path) -> None:
+def test_explain_prints_both_reanchoring_steps_with_their_numbers(demo_store_session: Path) -> None:
     (df,) = read(demo_store_session, of_source(MF))
     row = df.loc[df.d13c_carb_reported.abs().idxmax()]  # the clearest change
     expected = MF_SLOPE * row.d13c_carb_reported + MF_INTERCEPT
@@ -278,13 +312,18 @@ def test_explain_prints_both_reanchoring_steps_with_their_numbers(
 
 # --- 2. one-point, not stated, identity (store level) -----------------------------------
 
-@pytest.mark.parametrize("sid,offset,flag", [
-    ("tamsel-one-point", -0.05, "one-point normalisation"),
-    ("tamsel-not-stated", 0.0, "normalisation not stated"),
-    ("tamsel-identity", 0.0, None),
-])
-def test_stated_normalisations_in_the_store(small_store: Path, sid: str, offset: float,
-                                            flag: str | None) -> None:
+
+@pytest.mark.parametrize(
+    "sid,offset,flag",
+    [
+        ("tamsel-one-point", -0.05, "one-point normalisation"),
+        ("tamsel-not-stated", 0.0, "normalisation not stated"),
+        ("tamsel-identity", 0.0, None),
+    ],
+)
+def test_stated_normalisations_in_the_store(
+    small_store: Path, sid: str, offset: float, flag: str | None
+) -> None:
     df, chains = read(small_store, of_source(sid), CHAINS)
     assert sorted(df.d13c_carb_reported) == [-30.0, 0.0, 2.5]
     assert np.max(np.abs(df.d13c_carb - (df.d13c_carb_reported + offset))) < 1e-12
@@ -315,8 +354,10 @@ def test_a_change_equal_to_typical_precision_is_not_called_below_it(small_store:
 
 # --- 3. in-house runs --------------------------------------------------------------------
 
+
 def test_demo_run_lines_are_least_squares_through_the_stored_standards(
-        demo_store_session: Path) -> None:
+    demo_store_session: Path,
+) -> None:
     std, qc, df = run_tables(demo_store_session, ORV)
     fits = run_fit(std)
     assert sorted(qc.index) == [("R1", "d13c"), ("R1", "d18o"), ("R2", "d13c"), ("R2", "d18o")]
@@ -330,8 +371,7 @@ def test_demo_run_lines_are_least_squares_through_the_stored_standards(
         field = f"{iso}_carb"
         here = df[df.run_id == rid]
         assert len(here) == 6
-        assert np.max(np.abs(here[field] - (slope * here[f"{field}_reported"] + intercept))) \
-            < 1e-10
+        assert np.max(np.abs(here[field] - (slope * here[f"{field}_reported"] + intercept))) < 1e-10
         # the check standard: normalised mean − accepted (IAEA-CO-8 sheet: −5.764 / −22.7)
         co8 = std[(std.run_id == rid) & (std.material == "IAEA-CO-8")][f"{iso}_measured"]
         assert len(co8) == 1
@@ -342,13 +382,19 @@ def test_demo_run_lines_are_least_squares_through_the_stored_standards(
 
 
 def test_ingest_cli_accounts_for_run_standards_and_prints_one_qc_line_per_run_and_isotope(
-        tmp_path: Path, demo_sheets: Path) -> None:
+    tmp_path: Path, demo_sheets: Path
+) -> None:
     store = tmp_path / "st"
-    res = run("ingest", str(demo_sheets / RUN_SHEET[0]), "--map", str(demo_sheets / RUN_SHEET[1]),
-              "--store", str(store))
+    res = run(
+        "ingest",
+        str(demo_sheets / RUN_SHEET[0]),
+        "--map",
+        str(demo_sheets / RUN_SHEET[1]),
+        "--store",
+        str(store),
+    )
     assert res.returncode == 0, res.stderr
-    assert "read 22 rows = 12 committed + 10 run standards + 0 quarantined + 0 blank" \
-        in res.stderr
+    assert "read 22 rows = 12 committed + 10 run standards + 0 quarantined + 0 blank" in res.stderr
     qc_lines = [ln for ln in res.stderr.splitlines() if ln.startswith("run ")]
     assert len(qc_lines) == 4
     for (rid, iso), (slope, intercept) in run_fit(run_tables(store, ORV)[0]).items():
@@ -363,18 +409,24 @@ def _bad_run(folder: Path, demo_sheets: Path, case: str) -> Path:
     if case == "one anchor measured":  # R2 without its NBS-18 lines
         kept = [ln for ln in lines if not ln.startswith(("R2,2,NBS-18", "R2,11,NBS-18"))]
     else:  # R2's two anchors measured at the same δ13C: no slope can be drawn
-        kept = [",".join([*ln.split(",")[:4], "2.580", *ln.split(",")[5:]])
-                if ln.startswith(("R2,1,", "R2,2,", "R2,10,", "R2,11,")) else ln
-                for ln in lines]
+        kept = [
+            ",".join([*ln.split(",")[:4], "2.580", *ln.split(",")[5:]])
+            if ln.startswith(("R2,1,", "R2,2,", "R2,10,", "R2,11,"))
+            else ln
+            for ln in lines
+        ]
     assert kept != lines
     sheet.write_text("".join(kept), encoding="utf-8")
     return folder / RUN_SHEET[1]
 
 
-@pytest.mark.parametrize("case,words", [("one anchor measured", "at least two anchor"),
-                                        ("anchors at one value", "slope")])
+@pytest.mark.parametrize(
+    "case,words",
+    [("one anchor measured", "at least two anchor"), ("anchors at one value", "slope")],
+)
 def test_a_run_that_cannot_be_normalised_is_refused_naming_the_run(
-        demo_store: Path, demo_sheets: Path, tmp_path: Path, case: str, words: str) -> None:
+    demo_store: Path, demo_sheets: Path, tmp_path: Path, case: str, words: str
+) -> None:
     m = _bad_run(tmp_path / "sheets", demo_sheets, case)
     before = tree_bytes(demo_store)
     res = run("ingest", "--map", str(m), "--store", str(demo_store))
@@ -406,10 +458,16 @@ def test_worked_example_run_in_the_store(small_store: Path) -> None:
 
 # --- 4. bad input --------------------------------------------------------------------------
 
+
 def test_unknown_normalisation_anchor_is_refused_with_did_you_mean(
-        demo_store: Path, tmp_path: Path) -> None:
-    m = write_tiny(tmp_path, "tamsel-typo", '[normalisation.d13c_carb]\nmethod = "two-point"\n'
-                   'anchors = { "NBS-91" = 1.95, "LSVEC" = -46.48 }\n')
+    demo_store: Path, tmp_path: Path
+) -> None:
+    m = write_tiny(
+        tmp_path,
+        "tamsel-typo",
+        '[normalisation.d13c_carb]\nmethod = "two-point"\n'
+        'anchors = { "NBS-91" = 1.95, "LSVEC" = -46.48 }\n',
+    )
     before = tree_bytes(demo_store)
     res = run("ingest", "--map", str(m), "--store", str(demo_store))
     assert res.returncode == 1, res.stderr
@@ -422,14 +480,17 @@ def _unknown_run_anchor(folder: Path, demo_sheets: Path) -> Path:
     copy_demo(demo_sheets, folder, *RUN_SHEET)
     m = folder / RUN_SHEET[1]
     text = m.read_text(encoding="utf-8")
-    m.write_text(text.replace('anchors = ["IAEA-603", "NBS-18"]',
-                              'anchors = ["IAEA-630", "NBS-18"]'), encoding="utf-8")
+    m.write_text(
+        text.replace('anchors = ["IAEA-603", "NBS-18"]', 'anchors = ["IAEA-630", "NBS-18"]'),
+        encoding="utf-8",
+    )
     assert m.read_text(encoding="utf-8") != text
     return m
 
 
 def test_unknown_run_anchor_is_refused_and_the_store_unchanged(
-        demo_store: Path, demo_sheets: Path, tmp_path: Path) -> None:
+    demo_store: Path, demo_sheets: Path, tmp_path: Path
+) -> None:
     m = _unknown_run_anchor(tmp_path / "sheets", demo_sheets)
     before = tree_bytes(demo_store)
     res = run("ingest", "--map", str(m), "--store", str(demo_store))
@@ -438,7 +499,8 @@ def test_unknown_run_anchor_is_refused_and_the_store_unchanged(
 
 
 def test_unknown_run_anchor_is_named_with_did_you_mean(
-        demo_store: Path, demo_sheets: Path, tmp_path: Path) -> None:
+    demo_store: Path, demo_sheets: Path, tmp_path: Path
+) -> None:
     m = _unknown_run_anchor(tmp_path / "sheets", demo_sheets)
     res = run("ingest", "--map", str(m), "--store", str(demo_store))
     assert res.returncode == 1
@@ -460,13 +522,16 @@ def test_delta_column_without_a_scale_is_reported_by_cell(tmp_path: Path) -> Non
 
 
 @pytest.mark.parametrize("case", ["run with one anchor", "offset without why"])
-def test_mapping_config_errors_are_exit_2(demo_sheets: Path, tmp_path: Path,
-                                          case: str) -> None:
+def test_mapping_config_errors_are_exit_2(demo_sheets: Path, tmp_path: Path, case: str) -> None:
     if case == "run with one anchor":
         copy_demo(demo_sheets, tmp_path, *RUN_SHEET)
         m = tmp_path / RUN_SHEET[1]
-        m.write_text(m.read_text(encoding="utf-8").replace(
-            'anchors = ["IAEA-603", "NBS-18"]', 'anchors = ["IAEA-603"]'), encoding="utf-8")
+        m.write_text(
+            m.read_text(encoding="utf-8").replace(
+                'anchors = ["IAEA-603", "NBS-18"]', 'anchors = ["IAEA-603"]'
+            ),
+            encoding="utf-8",
+        )
         words = "[run]"
     else:
         m = write_tiny(tmp_path, "tamsel-offset", "[offsets.d13c_carb]\nvalue = 0.12\n")
@@ -479,14 +544,18 @@ def test_mapping_config_errors_are_exit_2(demo_sheets: Path, tmp_path: Path,
 
 # --- 5. declared offsets -------------------------------------------------------------------
 
+
 def test_declared_offset_is_added_after_reanchoring_and_its_why_is_the_last_step(
-        demo_store: Path, demo_sheets: Path, tmp_path: Path) -> None:
+    demo_store: Path, demo_sheets: Path, tmp_path: Path
+) -> None:
     why = "inter-laboratory comparison of 2019 (invented): this lab read 0.12 ‰ low"
     folder = tmp_path / "sheets"
     copy_demo(demo_sheets, folder, "mossaret_fennoway_2018.ods", "mossaret_fennoway_2018.toml")
     m = folder / "mossaret_fennoway_2018.toml"
-    m.write_text(m.read_text(encoding="utf-8")
-                 + f'\n[offsets.d13c_carb]\nvalue = 0.12\nwhy = "{why}"\n', encoding="utf-8")
+    m.write_text(
+        m.read_text(encoding="utf-8") + f'\n[offsets.d13c_carb]\nvalue = 0.12\nwhy = "{why}"\n',
+        encoding="utf-8",
+    )
     store = api.open_store(demo_store)
     (before,) = read(demo_store, of_source(MF))
     r = api.ingest(store, None, m)
@@ -499,13 +568,16 @@ def test_declared_offset_is_added_after_reanchoring_and_its_why_is_the_last_step
     assert np.max(np.abs(df.d13c_carb - before.d13c_carb - 0.12)) < 1e-12
     assert (df.d18o_carb == before.d18o_carb).all()  # the offset is δ13C only
     steps = steps_of(chains, df.d13c_carb_chain.iloc[0])
-    assert [s["step"] for s in steps][-2:] == ["re-anchoring (two-point)",
-                                              "declared per-source offset"]
+    assert [s["step"] for s in steps][-2:] == [
+        "re-anchoring (two-point)",
+        "declared per-source offset",
+    ]
     assert why in steps[-1]["source"]
     assert steps[-1]["parameters"]["offset_permil"] == 0.12
 
 
 # --- 6. the store's reference-material values ------------------------------------------
+
 
 def test_scales_without_a_store_lists_superseded_and_disagreeing_values() -> None:
     res = run("scales", "--format", "json")
@@ -514,16 +586,23 @@ def test_scales_without_a_store_lists_superseded_and_disagreeing_values() -> Non
     assert all(r["in_store"] is None for r in rows)
 
     def pick(material: str, iso: str) -> set[tuple]:
-        return {(r[iso], r["value_set"], r["status"], r[f"{iso}_scale"], r["valid_to"])
-                for r in rows if r["material"] == material and r[iso] is not None}
+        return {
+            (r[iso], r["value_set"], r["status"], r[f"{iso}_scale"], r["valid_to"])
+            for r in rows
+            if r["material"] == material and r[iso] is not None
+        }
+
     # LSVEC: −46.48 before 2006 (Qi et al. 2003); −46.6 from 2006 (Coplen et al. 2006),
     # withdrawn as a δ13C reference material in 2017
-    assert pick("LSVEC", "d13c") == {(-46.48, "before 2006", "superseded", "VPDB", 2005),
-                                     (-46.6, "VPDB-LSVEC 2006", "withdrawn", "VPDB-LSVEC",
-                                      2017)}
+    assert pick("LSVEC", "d13c") == {
+        (-46.48, "before 2006", "superseded", "VPDB", 2005),
+        (-46.6, "VPDB-LSVEC 2006", "withdrawn", "VPDB-LSVEC", 2017),
+    }
     # NBS 18 δ18O: −23.2 ‰ VPDB (IAEA sheet) and +7.20 ‰ VSMOW (CIAAW, Brand et al. 2014)
-    assert {(v, s) for v, _, _, s, _ in pick("NBS-18", "d18o")} == {(-23.2, "VPDB"),
-                                                                   (7.20, "VSMOW")}
+    assert {(v, s) for v, _, _, s, _ in pick("NBS-18", "d18o")} == {
+        (-23.2, "VPDB"),
+        (7.20, "VSMOW"),
+    }
     # IAEA-CO-1 δ13C: +2.48 (CIAAW) and +2.492 (IAEA sheet / Coplen et al. 2006, from memory)
     assert {v for v, *_ in pick("IAEA-CO-1", "d13c")} == {2.48, 2.492}
 
@@ -534,8 +613,7 @@ def marks(store: Path) -> dict[tuple[str, str], str | None]:
     return {(r["material"], r["value_set"]): r["in_store"] for r in json.loads(res.stdout)}
 
 
-def test_scales_with_a_store_marks_the_accepted_row_per_isotope(
-        demo_store_session: Path) -> None:
+def test_scales_with_a_store_marks_the_accepted_row_per_isotope(demo_store_session: Path) -> None:
     got = marks(demo_store_session)
     assert got[("NBS-19", "VPDB definition")] == "d13c+d18o"
     assert got[("NBS-18", "IAEA sheet")] == "d13c"
@@ -547,9 +625,12 @@ def test_scales_with_a_store_marks_the_accepted_row_per_isotope(
 
 def user_materials(folder: Path, valid_from: str = "2024") -> Path:
     p = folder / "orvanne_materials.csv"
-    p.write_text(MATERIAL_HEADER + f"IAEA-603,calcite,Orvanne in-house 2024,current,"
-                 f"{USER_IAEA603_D13C},,,VPDB,,,,,{valid_from},,invented,"
-                 "invented in-house value\n", encoding="utf-8")
+    p.write_text(
+        MATERIAL_HEADER + f"IAEA-603,calcite,Orvanne in-house 2024,current,"
+        f"{USER_IAEA603_D13C},,,VPDB,,,,,{valid_from},,invented,"
+        "invented in-house value\n",
+        encoding="utf-8",
+    )
     return p
 
 
@@ -560,7 +641,8 @@ def user_accepted() -> dict[str, dict[str, float]]:
 
 
 def test_init_with_a_materials_file_normalises_runs_to_the_users_value(
-        demo_store_session: Path, demo_sheets: Path, tmp_path: Path) -> None:
+    demo_store_session: Path, demo_sheets: Path, tmp_path: Path
+) -> None:
     path = tmp_path / "st"
     res = run("init", "--store", str(path), "--materials", str(user_materials(tmp_path)))
     assert res.returncode == 0, res.stderr
@@ -578,16 +660,19 @@ def test_init_with_a_materials_file_normalises_runs_to_the_users_value(
 
 
 def test_a_users_material_row_without_years_is_accepted_before_the_shipped_one(
-        tmp_path: Path) -> None:
+    tmp_path: Path,
+) -> None:
     path = tmp_path / "st"
-    res = run("init", "--store", str(path), "--materials",
-              str(user_materials(tmp_path, valid_from="")))
+    res = run(
+        "init", "--store", str(path), "--materials", str(user_materials(tmp_path, valid_from=""))
+    )
     assert res.returncode == 0, res.stderr
     assert marks(path)[("IAEA-603", "Orvanne in-house 2024")] == "d13c"
 
 
 def test_reharmonise_with_a_materials_file_is_one_commit_then_zero_changed(
-        demo_store: Path, tmp_path: Path) -> None:
+    demo_store: Path, tmp_path: Path
+) -> None:
     mats = user_materials(tmp_path)
     v0 = latest(demo_store)
     (before,) = read(demo_store, "SELECT record_id, d13c_carb FROM records")
@@ -597,11 +682,16 @@ def test_reharmonise_with_a_materials_file_is_one_commit_then_zero_changed(
     # only the in-house run's 12 δ13C values rest on IAEA-603
     assert f"reharmonised {len(before)} records as version {v0 + 1}" in res.stderr
     assert "d13c_carb: 12 values changed" in res.stderr and "d18o_carb" not in res.stderr
-    after, std, qc = read(demo_store, "SELECT record_id, source_id, d13c_carb FROM records",
-                          of_source(ORV, "runs"), of_source(ORV, "run_qc"))
+    after, std, qc = read(
+        demo_store,
+        "SELECT record_id, source_id, d13c_carb FROM records",
+        of_source(ORV, "runs"),
+        of_source(ORV, "run_qc"),
+    )
     after = after.set_index("record_id")
-    moved = (after.d13c_carb - before.set_index("record_id").d13c_carb.reindex(after.index)
-             ).abs() > 1e-12
+    moved = (
+        after.d13c_carb - before.set_index("record_id").d13c_carb.reindex(after.index)
+    ).abs() > 1e-12
     assert set(after.source_id[moved]) == {ORV} and int(moved.sum()) == 12
     qc = qc.set_index(["run_id", "isotope"])
     for (rid, iso), (slope, _) in run_fit(std, user_accepted()).items():
@@ -612,15 +702,20 @@ def test_reharmonise_with_a_materials_file_is_one_commit_then_zero_changed(
 
 
 @pytest.mark.parametrize("case", ["missing column", "text in a number column"])
-def test_malformed_materials_file_is_exit_2_and_changes_nothing(
-        tmp_path: Path, case: str) -> None:
+def test_malformed_materials_file_is_exit_2_and_changes_nothing(tmp_path: Path, case: str) -> None:
     bad = tmp_path / "bad.csv"
     if case == "missing column":
-        bad.write_text(MATERIAL_HEADER.replace("d13c_scale,", "") + "IAEA-603,calcite,x,"
-                       "current,2.47,,,,,,,,,invented,invented\n", encoding="utf-8")
+        bad.write_text(
+            MATERIAL_HEADER.replace("d13c_scale,", "") + "IAEA-603,calcite,x,"
+            "current,2.47,,,,,,,,,invented,invented\n",
+            encoding="utf-8",
+        )
     else:
-        bad.write_text(MATERIAL_HEADER + "IAEA-603,calcite,x,current,two point four seven,,,"
-                       "VPDB,,,,,,,invented,invented\n", encoding="utf-8")
+        bad.write_text(
+            MATERIAL_HEADER + "IAEA-603,calcite,x,current,two point four seven,,,"
+            "VPDB,,,,,,,invented,invented\n",
+            encoding="utf-8",
+        )
     fresh = tmp_path / "fresh"
     res = run("init", "--store", str(fresh), "--materials", str(bad))
     assert res.returncode == 2, res.stderr
@@ -635,9 +730,11 @@ def test_malformed_materials_file_is_exit_2_and_changes_nothing(
 
 # --- 7. Δ13C -------------------------------------------------------------------------------
 
+
 def test_big_delta_is_carbonate_minus_organic_where_both_exist(demo_store_session: Path) -> None:
-    (df,) = read(demo_store_session, "SELECT source_id, d13c_carb, d13c_org, big_delta_13c "
-                                     "FROM records")
+    (df,) = read(
+        demo_store_session, "SELECT source_id, d13c_carb, d13c_org, big_delta_13c FROM records"
+    )
     both = df.d13c_carb.notna() & df.d13c_org.notna()
     ystrel = df.source_id == "ystrel-cores-2021"
     assert ystrel.sum() == 49 and both[ystrel].all()  # the Ystrel cores carry both
@@ -647,7 +744,8 @@ def test_big_delta_is_carbonate_minus_organic_where_both_exist(demo_store_sessio
 
 
 def test_big_delta_uses_harmonised_values_and_is_null_when_one_is_missing(
-        small_store: Path) -> None:
+    small_store: Path,
+) -> None:
     (df,) = read(small_store, of_source("tamsel-organic"))
     got = df.set_index("sample_id").big_delta_13c
     # from the harmonised values, worked by hand: (2.0 − 0.05) − (−27.5) = 29.45
@@ -657,8 +755,10 @@ def test_big_delta_uses_harmonised_values_and_is_null_when_one_is_missing(
 
 # --- 8. reharmonise re-runs screens ---------------------------------------------------------
 
+
 def test_reharmonise_rescreens_so_stored_screens_match_a_fresh_evaluation(
-        demo_store: Path, tmp_path: Path) -> None:
+    demo_store: Path, tmp_path: Path
+) -> None:
     from strata13.compile.derive.engine import Settings, rule_set
     from strata13.compile.screening.evaluate import evaluate
 
@@ -668,19 +768,30 @@ def test_reharmonise_rescreens_so_stored_screens_match_a_fresh_evaluation(
     # = −9.9960 (from memory). Worked by hand.
     m = write_tiny(tmp_path, "vennick-2020", second_scale="VSMOW")
     (tmp_path / "vennick-2020.csv").write_text(  # the sheet, with an age column
-        "Sample,Height,d13C,d18O,Age\nvx-1,1,1.2,20.605,183.0\n", encoding="utf-8")
-    m.write_text(m.read_text(encoding="utf-8").replace(
-        "[constants]", '"Age" = "age"\n[constants]\ncomponent = "bulk"\n'
-        'age_time_scale = "ICS2024/12"'), encoding="utf-8")
+        "Sample,Height,d13C,d18O,Age\nvx-1,1,1.2,20.605,183.0\n", encoding="utf-8"
+    )
+    m.write_text(
+        m.read_text(encoding="utf-8").replace(
+            "[constants]",
+            '"Age" = "age"\n[constants]\ncomponent = "bulk"\nage_time_scale = "ICS2024/12"',
+        ),
+        encoding="utf-8",
+    )
     store = api.open_store(demo_store)
     api.ingest(store, None, m)
-    floor = ("SELECT s.outcome FROM screen_results s JOIN records r USING (record_id) "
-             "WHERE r.sample_id = 'vx-1' AND s.rule = 'd18o-floor'")
+    floor = (
+        "SELECT s.outcome FROM screen_results s JOIN records r USING (record_id) "
+        "WHERE r.sample_id = 'vx-1' AND s.rule = 'd18o-floor'"
+    )
     assert read(demo_store, floor)[0].outcome.tolist() == ["fail"]
     res = api.reharmonise(store, vsmow_constants="Coplen-1983")
     assert res.version is not None and res.screen_changed >= 1
-    now, stored, recs = read(demo_store, floor, "SELECT record_id, rule, outcome FROM "
-                             "screen_results", "SELECT * FROM records")
+    now, stored, recs = read(
+        demo_store,
+        floor,
+        "SELECT record_id, rule, outcome FROM screen_results",
+        "SELECT * FROM records",
+    )
     assert now.outcome.tolist() == ["pass"]
     settings = Settings.from_stored(store.settings())
     rules = rule_set(settings)
@@ -691,5 +802,7 @@ def test_reharmonise_rescreens_so_stored_screens_match_a_fresh_evaluation(
     key = ["record_id", "rule"]
     fresh_long = fresh.results.to_pandas()[[*key, "outcome"]].astype(str)
     assert len(stored) == len(fresh_long) == len(recs) * len(rules.rules)
-    pd.testing.assert_frame_equal(stored.astype(str).sort_values(key).reset_index(drop=True),
-                                  fresh_long.sort_values(key).reset_index(drop=True))
+    pd.testing.assert_frame_equal(
+        stored.astype(str).sort_values(key).reset_index(drop=True),
+        fresh_long.sort_values(key).reset_index(drop=True),
+    )

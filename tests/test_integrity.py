@@ -73,8 +73,7 @@ def pairs(store: Path, *opts: str) -> pd.DataFrame:
 
 def versions(store: Path) -> list[int]:
     out = ok("history", "--store", store).out
-    return [int(line.split("\t")[0]) for line in out.splitlines()
-            if line.split("\t")[0].isdigit()]
+    return [int(line.split("\t")[0]) for line in out.splitlines() if line.split("\t")[0].isdigit()]
 
 
 def copy_store(src: Path, dst: Path) -> Path:
@@ -85,8 +84,10 @@ def copy_store(src: Path, dst: Path) -> Path:
 def ids_by_sample(records: pd.DataFrame) -> dict[tuple[str, str], str]:
     """(source, sample) → record id (the demo has one replicate per sample)."""
     assert not records.duplicated(["source_id", "sample_id"]).any()
-    return {(s, x): r for s, x, r in
-            zip(records.source_id, records.sample_id, records.record_id, strict=True)}
+    return {
+        (s, x): r
+        for s, x, r in zip(records.source_id, records.sample_id, records.record_id, strict=True)
+    }
 
 
 def shared_pair(ids: dict[tuple[str, str], str], n: int) -> tuple[str, str]:
@@ -104,12 +105,20 @@ def haversine_km(lat1: float, lon1: float, lat2: float, lon2: float) -> float:
 
 def fix_q11(store: Path, q11: str) -> None:
     """Restore Q11's lost minus sign through the CLI."""
-    ok("correct", q11, "d13c_carb", "-1.47", "--why",
-       "minus sign lost in the compilation's table; the original gives -1.47",
-       "--store", store)
+    ok(
+        "correct",
+        q11,
+        "d13c_carb",
+        "-1.47",
+        "--why",
+        "minus sign lost in the compilation's table; the original gives -1.47",
+        "--store",
+        store,
+    )
 
 
 # ---------------------------------------------------------------------- shared fixtures
+
 
 @pytest.fixture(scope="module")
 def ro(demo_store_session: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
@@ -140,8 +149,11 @@ def before_pairs(ro: Path) -> pd.DataFrame:
 
 
 @pytest.fixture(scope="module")
-def corrected(demo_store_session: Path, tmp_path_factory: pytest.TempPathFactory,
-              ids: dict[tuple[str, str], str]) -> tuple[Path, str, list[int], pd.DataFrame]:
+def corrected(
+    demo_store_session: Path,
+    tmp_path_factory: pytest.TempPathFactory,
+    ids: dict[tuple[str, str], str],
+) -> tuple[Path, str, list[int], pd.DataFrame]:
     """A copy with Q11's minus sign restored: (store, Q11 id, versions after, records)."""
     store = copy_store(demo_store_session, tmp_path_factory.mktemp("integrity_fix") / "c")
     q11 = ids[(REPUB, "Q11")]
@@ -150,9 +162,11 @@ def corrected(demo_store_session: Path, tmp_path_factory: pytest.TempPathFactory
 
 
 @pytest.fixture(scope="module")
-def confirmed(corrected: tuple[Path, str, list[int], pd.DataFrame],
-              tmp_path_factory: pytest.TempPathFactory, ids: dict[tuple[str, str], str]
-              ) -> dict:
+def confirmed(
+    corrected: tuple[Path, str, list[int], pd.DataFrame],
+    tmp_path_factory: pytest.TempPathFactory,
+    ids: dict[tuple[str, str], str],
+) -> dict:
     """The corrected store, copied, with a decisions file stored: four pairs confirmed
     (one written with the re-publisher's record first) and one rejected; and what
     `query` prints then, with and without --keep-duplicates."""
@@ -169,15 +183,22 @@ def confirmed(corrected: tuple[Path, str, list[int], pd.DataFrame],
     decisions = tmp / "decisions.csv"
     decisions.write_text("\n".join(lines) + "\n", encoding="utf-8")
     ran = ok("overlaps", "--confirm", decisions, "--store", store)
-    return {"store": store, "ids": ids, "before": corrected[2], "after": versions(store),
-            "ran": ran, "tmp": tmp, "default": query(store),
-            "kept": query(store, "--keep-duplicates")}
+    return {
+        "store": store,
+        "ids": ids,
+        "before": corrected[2],
+        "after": versions(store),
+        "ran": ran,
+        "tmp": tmp,
+        "default": query(store),
+        "kept": query(store, "--keep-duplicates"),
+    }
 
 
 # --------------------------------------------------------------------------- 1. overlaps
 
-def check_pairs(found: pd.DataFrame, records: pd.DataFrame, expected_samples: set[int]
-                ) -> None:
+
+def check_pairs(found: pd.DataFrame, records: pd.DataFrame, expected_samples: set[int]) -> None:
     """The pairs are exactly the re-published samples, checked against the records."""
     ids = ids_by_sample(records)
     assert len(found) == len(expected_samples)
@@ -188,14 +209,14 @@ def check_pairs(found: pd.DataFrame, records: pd.DataFrame, expected_samples: se
     assert found.record_a.is_unique and found.record_b.is_unique
     by_id = records.set_index("record_id")
     a, b = by_id.loc[found.record_a], by_id.loc[found.record_b]
-    assert np.all(np.abs(a.position_m.to_numpy() - b.position_m.to_numpy())
-                  <= POSITION_TOL_M + 1e-9)
+    assert np.all(
+        np.abs(a.position_m.to_numpy() - b.position_m.to_numpy()) <= POSITION_TOL_M + 1e-9
+    )
     assert np.all(np.abs(a.d13c_carb.to_numpy() - b.d13c_carb.to_numpy()) <= VALUE_TOL + 1e-9)
     # the pair's printed positions and values are the records' own
     assert found.position_a_m.to_numpy() == pytest.approx(a.position_m.to_numpy())
     assert found.d13c_b.to_numpy() == pytest.approx(b.d13c_carb.to_numpy())
-    for reason, (_, ra), (_, rb) in zip(found.reasons, a.iterrows(), b.iterrows(),
-                                        strict=True):
+    for reason, (_, ra), (_, rb) in zip(found.reasons, a.iterrows(), b.iterrows(), strict=True):
         km = haversine_km(ra.lat, ra.lon, rb.lat, rb.lon)
         assert 0 < km < 5.0
         assert f"{km:.2f} km apart" in reason, reason
@@ -203,7 +224,8 @@ def check_pairs(found: pd.DataFrame, records: pd.DataFrame, expected_samples: se
 
 
 def test_overlaps_before_the_minus_sign_is_fixed_leave_q11_out(
-        ro: Path, records: pd.DataFrame, before_pairs: pd.DataFrame) -> None:
+    ro: Path, records: pd.DataFrame, before_pairs: pd.DataFrame
+) -> None:
     found = before_pairs
     check_pairs(found, records, set(SHARED) - {11})
     # Q11's published 1.47 is 2.94 ‰ from the original's −1.47: no pair, for a reason
@@ -216,13 +238,11 @@ def test_overlaps_before_the_minus_sign_is_fixed_leave_q11_out(
     assert len(pd.read_csv(io.StringIO(r.out))) == 0 and r.err.strip()
 
 
-def test_overlaps_for_one_source_gives_the_same_pairs(ro: Path, before_pairs: pd.DataFrame
-                                                      ) -> None:
+def test_overlaps_for_one_source_gives_the_same_pairs(ro: Path, before_pairs: pd.DataFrame) -> None:
     everything = before_pairs
     key = ["record_a", "record_b"]
     one = pairs(ro, "--source", ORIGINAL)
-    assert sorted(map(tuple, one[key].to_numpy())) == \
-        sorted(map(tuple, everything[key].to_numpy()))
+    assert sorted(map(tuple, one[key].to_numpy())) == sorted(map(tuple, everything[key].to_numpy()))
 
 
 def test_overlaps_of_an_unknown_source_is_refused(ro: Path) -> None:
@@ -233,7 +253,8 @@ def test_overlaps_of_an_unknown_source_is_refused(ro: Path) -> None:
 
 
 def test_overlaps_after_the_correction_pair_all_twelve(
-        corrected: tuple[Path, str, list[int], pd.DataFrame]) -> None:
+    corrected: tuple[Path, str, list[int], pd.DataFrame],
+) -> None:
     store, q11, _, recs = corrected
     found = pairs(store)
     check_pairs(found, recs, set(SHARED))
@@ -243,6 +264,7 @@ def test_overlaps_after_the_correction_pair_all_twelve(
 
 # ---------------------------------------------------------------- 2. confirmed duplicates
 
+
 def test_confirm_stores_the_decisions_in_one_version(confirmed: dict) -> None:
     before, after = confirmed["before"], confirmed["after"]
     assert after[:-1] == before and len(after) == len(before) + 1
@@ -250,16 +272,18 @@ def test_confirm_stores_the_decisions_in_one_version(confirmed: dict) -> None:
     # the listing shows each stored decision beside its pair
     listed = pairs(confirmed["store"])
     ids = confirmed["ids"]
-    decided = {(a, b): d for a, b, d in zip(listed.record_a, listed.record_b,
-                                            listed.decision.fillna(""), strict=True)}
+    decided = {
+        (a, b): d
+        for a, b, d in zip(
+            listed.record_a, listed.record_b, listed.decision.fillna(""), strict=True
+        )
+    }
     for n in SHARED:
-        want = ("confirm" if n in CONFIRMED_SAMPLES else
-                "reject" if n == REJECTED_SAMPLE else "")
+        want = "confirm" if n in CONFIRMED_SAMPLES else "reject" if n == REJECTED_SAMPLE else ""
         assert decided[shared_pair(ids, n)] == want, n
 
 
-def test_confirmed_duplicates_leave_the_republished_records_out_of_queries(
-        confirmed: dict) -> None:
+def test_confirmed_duplicates_leave_the_republished_records_out_of_queries(confirmed: dict) -> None:
     store, ids = confirmed["store"], confirmed["ids"]
     dropped = {shared_pair(ids, n)[1] for n in CONFIRMED_SAMPLES}
     default, kept = confirmed["default"], confirmed["kept"]
@@ -285,8 +309,17 @@ def test_confirmed_duplicates_leave_curves_and_exports(confirmed: dict) -> None:
     assert kept.loc[sorted(dropped), "d13c_carb"].notna().all()
     # (--boots only sets the band's bootstrap draws; kept small for speed)
     ok("curve", "--out", tmp / "once", *CURVE_ARGS, "--boots", "10", "--store", store)
-    ok("curve", "--out", tmp / "both", *CURVE_ARGS, "--boots", "10", "--keep-duplicates",
-       "--store", store)
+    ok(
+        "curve",
+        "--out",
+        tmp / "both",
+        *CURVE_ARGS,
+        "--boots",
+        "10",
+        "--keep-duplicates",
+        "--store",
+        store,
+    )
     once = json.loads((tmp / "once" / "curve_manifest.json").read_text(encoding="utf-8"))
     both = json.loads((tmp / "both" / "curve_manifest.json").read_text(encoding="utf-8"))
     assert both["samples"] - once["samples"] == len(CONFIRMED_SAMPLES)
@@ -300,14 +333,16 @@ def test_confirmed_duplicates_leave_curves_and_exports(confirmed: dict) -> None:
 
 
 def test_decisions_naming_an_unknown_record_are_refused_and_change_nothing(
-        ro: Path, records: pd.DataFrame, ids: dict[tuple[str, str], str], tmp_path: Path
-        ) -> None:
+    ro: Path, records: pd.DataFrame, ids: dict[tuple[str, str], str], tmp_path: Path
+) -> None:
     a, b = shared_pair(ids, 5)
     ghost = "0123456789abcdef0123"
     assert ghost not in set(records.record_id)
     f = tmp_path / "decisions.csv"
-    f.write_text(f"record_a,record_b,decision,note\n{a},{b},confirm,\n{a},{ghost},confirm,\n",
-                 encoding="utf-8")
+    f.write_text(
+        f"record_a,record_b,decision,note\n{a},{b},confirm,\n{a},{ghost},confirm,\n",
+        encoding="utf-8",
+    )
     before = tree_bytes(ro)
     r = refused(1, "overlaps", "--confirm", f, "--store", ro)
     assert ghost in r.err
@@ -315,11 +350,13 @@ def test_decisions_naming_an_unknown_record_are_refused_and_change_nothing(
 
 
 def test_a_bad_decision_word_is_exit_2_naming_the_line(
-        ro: Path, ids: dict[tuple[str, str], str], tmp_path: Path) -> None:
+    ro: Path, ids: dict[tuple[str, str], str], tmp_path: Path
+) -> None:
     f = tmp_path / "decisions.csv"
     (a, b), (c, d) = shared_pair(ids, 5), shared_pair(ids, 7)
-    f.write_text(f"record_a,record_b,decision,note\n{a},{b},confirm,\n{c},{d},perhaps,\n",
-                 encoding="utf-8")
+    f.write_text(
+        f"record_a,record_b,decision,note\n{a},{b},confirm,\n{c},{d},perhaps,\n", encoding="utf-8"
+    )
     before = tree_bytes(ro)
     r = refused(2, "overlaps", "--confirm", f, "--store", ro)
     assert "line 3" in r.err and "perhaps" in r.err
@@ -328,9 +365,10 @@ def test_a_bad_decision_word_is_exit_2_naming_the_line(
 
 # ---------------------------------------------------------------------- 3. corrections
 
+
 def test_a_correction_is_one_version_and_keeps_the_published_value(
-        corrected: tuple[Path, str, list[int], pd.DataFrame], base_versions: list[int]
-        ) -> None:
+    corrected: tuple[Path, str, list[int], pd.DataFrame], base_versions: list[int]
+) -> None:
     _, q11, after, recs = corrected
     assert after[:-1] == base_versions and len(after) == len(base_versions) + 1
     recs = recs[recs.source_id == REPUB].set_index("record_id")
@@ -342,11 +380,12 @@ def test_a_correction_is_one_version_and_keeps_the_published_value(
 
 
 def test_explain_shows_reported_corrected_harmonised(
-        corrected: tuple[Path, str, list[int], pd.DataFrame]) -> None:
+    corrected: tuple[Path, str, list[int], pd.DataFrame],
+) -> None:
     store, q11, _, _ = corrected
     text = ok("explain", q11, "--store", store).out
-    block = text[text.index("d13c_carb"):]
-    block = block[:block.index("d18o_carb")] if "d18o_carb" in block else block
+    block = text[text.index("d13c_carb") :]
+    block = block[: block.index("d18o_carb")] if "d18o_carb" in block else block
     block = block.replace("−", "-")
     head = block.splitlines()[0]
     # the headline: as published → the value in use
@@ -374,16 +413,18 @@ def test_corrections_listing(corrected: tuple[Path, str, list[int], pd.DataFrame
 
 
 def test_a_correction_survives_an_edited_reingest_and_is_orphaned_when_its_record_goes(
-        demo_store: Path, demo_sheets: Path, ids: dict[tuple[str, str], str], tmp_path: Path
-        ) -> None:
+    demo_store: Path, demo_sheets: Path, ids: dict[tuple[str, str], str], tmp_path: Path
+) -> None:
     q11 = ids[(REPUB, "Q11")]
     fix_q11(demo_store, q11)
     edited = tmp_path / "edited"
     edited.mkdir()
     for ext in ("csv", "toml"):
         shutil.copy(demo_sheets / f"orvanne_compilation_2022.{ext}", edited)
-    sheet, mapping = edited / "orvanne_compilation_2022.csv", \
-        edited / "orvanne_compilation_2022.toml"
+    sheet, mapping = (
+        edited / "orvanne_compilation_2022.csv",
+        edited / "orvanne_compilation_2022.toml",
+    )
     rows = list(csv.reader(sheet.read_text(encoding="utf-8").splitlines()))
     head, body = rows[0], rows[1:]
     col = head.index("d13C (permil VPDB)")
@@ -416,14 +457,22 @@ def test_a_correction_survives_an_edited_reingest_and_is_orphaned_when_its_recor
 
 
 def test_a_position_correction_moves_the_record_and_its_age(
-        demo_store: Path, records: pd.DataFrame) -> None:
+    demo_store: Path, records: pd.DataFrame
+) -> None:
     recs = records[records.source_id == ORIGINAL].set_index("sample_id")
     qr11, qr12 = recs.loc["QR-11"], recs.loc["QR-12"]
     assert qr11.age_ma != pytest.approx(qr12.age_ma, abs=1e-3)
     # QR-11 put at QR-12's height: the section's age model must give it QR-12's age
-    ok("correct", qr11.record_id, "position", repr(float(qr12.position_m)), "--why",
-       "height misprinted in the table; field notebook agrees with bed 12",
-       "--store", demo_store)
+    ok(
+        "correct",
+        qr11.record_id,
+        "position",
+        repr(float(qr12.position_m)),
+        "--why",
+        "height misprinted in the table; field notebook agrees with bed 12",
+        "--store",
+        demo_store,
+    )
     after = query(demo_store, "--source", ORIGINAL).set_index("sample_id")
     assert after.loc["QR-11", "position_m"] == pytest.approx(qr12.position_m, abs=1e-9)
     assert after.loc["QR-11", "age_ma"] == pytest.approx(qr12.age_ma, abs=1e-9)
@@ -432,8 +481,12 @@ def test_a_position_correction_moves_the_record_and_its_age(
 
 
 def test_corrections_from_a_file_land_in_one_version(
-        demo_store: Path, records: pd.DataFrame, ids: dict[tuple[str, str], str],
-        base_versions: list[int], tmp_path: Path) -> None:
+    demo_store: Path,
+    records: pd.DataFrame,
+    ids: dict[tuple[str, str], str],
+    base_versions: list[int],
+    tmp_path: Path,
+) -> None:
     by = records.set_index("record_id")
     qr11, qr20 = ids[(ORIGINAL, "QR-11")], ids[(ORIGINAL, "QR-20")]
     q7 = ids[(REPUB, "Q7")]
@@ -441,11 +494,13 @@ def test_corrections_from_a_file_land_in_one_version(
     assert by.loc[qr11, "d18o_carb_reported"] == pytest.approx(28.70)
     assert by.loc[q7, "lithology"] != "marl"
     f = tmp_path / "fixes.csv"
-    f.write_text("record_id,field,value,why\n"
-                 f"{qr11},d18o_carb,28.90,typing slip; lab notebook gives 28.90\n"
-                 f"{q7},lithology,marl,the compilation's note on Q7 says marl\n"
-                 f"{qr20},d13c_carb,2.26,digits swapped in the journal table\n",
-                 encoding="utf-8")
+    f.write_text(
+        "record_id,field,value,why\n"
+        f"{qr11},d18o_carb,28.90,typing slip; lab notebook gives 28.90\n"
+        f"{q7},lithology,marl,the compilation's note on Q7 says marl\n"
+        f"{qr20},d13c_carb,2.26,digits swapped in the journal table\n",
+        encoding="utf-8",
+    )
     ok("correct", "--file", f, "--store", demo_store)
     assert versions(demo_store) == [*base_versions, base_versions[-1] + 1]
     after = query(demo_store, "--keep-duplicates").set_index("record_id")
@@ -456,12 +511,15 @@ def test_corrections_from_a_file_land_in_one_version(
     assert after.loc[qr20, "d13c_carb"] == pytest.approx(2.26)
     assert after.loc[qr20, "d13c_carb_reported"] == pytest.approx(by.loc[qr20, "d13c_carb"])
     text = ok("explain", qr11, "--store", demo_store).out
-    block = text[text.index("d18o_carb"):]
+    block = text[text.index("d18o_carb") :]
     order = [block.index(w) for w in ("correction", "VSMOW → VPDB")]
     assert order == sorted(order)
     listed = csv_of("corrections", "--store", demo_store)
     assert set(zip(listed.record_id, listed.field, strict=True)) == {
-        (qr11, "d18o_carb"), (q7, "lithology"), (qr20, "d13c_carb")}
+        (qr11, "d18o_carb"),
+        (q7, "lithology"),
+        (qr20, "d13c_carb"),
+    }
     assert set(listed.status) == {"applied"}
 
 
@@ -470,20 +528,37 @@ def test_corrections_from_a_file_land_in_one_version(
 WHY = "checked against the supplement"
 
 
-@pytest.mark.parametrize(("code", "args", "words"), [
-    (1, ("{unknown}", "d13c_carb", "-1.2", "--why", WHY), ["no record"]),
-    (2, ("{rec}", "d13c_crab", "-1.2", "--why", WHY), ["Did you mean", "d13c_carb"]),
-    (2, ("{rec}", "d13c_carb", "minus one", "--why", WHY), ["number"]),
-    (2, ("{rec}", "d13c_carb", "99", "--why", WHY), ["plausible"]),
-    (2, ("{rec}", "d13c_carb", "-1.2", "--why", ""), ["--why"]),
-    (2, ("{rec}", "d13c_carb", "-1.2", "--why", "typo"), ["--why"]),
-    (2, ("{rec}", "d13c_carb", "-1.2"), ["--why"]),
-    (2, ("{rec}", "component", "brachiopd", "--why", WHY), ["Did you mean", "brachiopod"]),
-], ids=["unknown-record", "unknown-field", "text-for-number", "implausible", "empty-why",
-        "short-why", "no-why", "unknown-term"])
+@pytest.mark.parametrize(
+    ("code", "args", "words"),
+    [
+        (1, ("{unknown}", "d13c_carb", "-1.2", "--why", WHY), ["no record"]),
+        (2, ("{rec}", "d13c_crab", "-1.2", "--why", WHY), ["Did you mean", "d13c_carb"]),
+        (2, ("{rec}", "d13c_carb", "minus one", "--why", WHY), ["number"]),
+        (2, ("{rec}", "d13c_carb", "99", "--why", WHY), ["plausible"]),
+        (2, ("{rec}", "d13c_carb", "-1.2", "--why", ""), ["--why"]),
+        (2, ("{rec}", "d13c_carb", "-1.2", "--why", "typo"), ["--why"]),
+        (2, ("{rec}", "d13c_carb", "-1.2"), ["--why"]),
+        (2, ("{rec}", "component", "brachiopd", "--why", WHY), ["Did you mean", "brachiopod"]),
+    ],
+    ids=[
+        "unknown-record",
+        "unknown-field",
+        "text-for-number",
+        "implausible",
+        "empty-why",
+        "short-why",
+        "no-why",
+        "unknown-term",
+    ],
+)
 def test_bad_corrections_are_refused_and_change_nothing(
-        ro: Path, records: pd.DataFrame, ids: dict[tuple[str, str], str], code: int,
-        args: tuple[str, ...], words: list[str]) -> None:
+    ro: Path,
+    records: pd.DataFrame,
+    ids: dict[tuple[str, str], str],
+    code: int,
+    args: tuple[str, ...],
+    words: list[str],
+) -> None:
     rec = ids[(ORIGINAL, "QR-11")]
     unknown = "fedcba9876543210fedc"
     assert not any(r.startswith(unknown[:6]) for r in records.record_id)
@@ -497,6 +572,7 @@ def test_bad_corrections_are_refused_and_change_nothing(
 
 # -------------------------------------------------------------------------- 5. coverage
 
+
 def region_of(df: pd.DataFrame) -> pd.Series:
     """The demo region of each record, by shapely on the demo's GeoJSON."""
     from shapely.geometry import Point, shape
@@ -509,8 +585,9 @@ def region_of(df: pd.DataFrame) -> pd.Series:
         assert len(hits) == 1, (lon, lat, hits)
         return hits[0]
 
-    return pd.Series([name(x, y) for x, y in zip(df["lon"], df["lat"], strict=True)],
-                     index=df.index)
+    return pd.Series(
+        [name(x, y) for x, y in zip(df["lon"], df["lat"], strict=True)], index=df.index
+    )
 
 
 def bin_index(age: np.ndarray, edges: np.ndarray) -> np.ndarray:
@@ -538,8 +615,9 @@ def test_the_demo_regions_are_the_boxes_the_test_assumes() -> None:
     assert got["southern basin"].equals(box(9, -44, 15, -40))
 
 
-def test_coverage_counts_equal_a_pandas_groupby(records: pd.DataFrame,
-                                                coverage_csv: pd.DataFrame) -> None:
+def test_coverage_counts_equal_a_pandas_groupby(
+    records: pd.DataFrame, coverage_csv: pd.DataFrame
+) -> None:
     # `query --format csv` of the whole store, cut to the Toarcian here (both ends inside)
     older, younger = TOARCIAN
     recs = records[records.d13c_carb.notna() & records.age_ma.between(younger, older)]
@@ -547,8 +625,11 @@ def test_coverage_counts_equal_a_pandas_groupby(records: pd.DataFrame,
     assert recs.source_id.nunique() >= 4 and len(recs) > 100
     # one row per sample: replicates averaged (their ages too)
     samp = recs.groupby(["source_id", "section_id", "sample_id"], as_index=False).agg(
-        age_ma=("age_ma", "mean"), lon=("lon", "first"), lat=("lat", "first"),
-        component=("component", "first"))
+        age_ma=("age_ma", "mean"),
+        lon=("lon", "first"),
+        lat=("lat", "first"),
+        component=("component", "first"),
+    )
     samp["group"] = region_of(samp)
     edges = np.round(older - 0.5 * np.arange(int(round((older - younger) / 0.5)) + 1), 9)
     assert edges[-1] == pytest.approx(younger)
@@ -556,11 +637,18 @@ def test_coverage_counts_equal_a_pandas_groupby(records: pd.DataFrame,
     assert (samp.bin >= 0).all()
     samp["section"] = samp.source_id + "/" + samp.section_id
     want = samp.groupby(["bin", "group", "component"]).agg(
-        n_samples=("sample_id", "size"), n_sections=("section", "nunique"))
+        n_samples=("sample_id", "size"), n_sections=("section", "nunique")
+    )
 
     got = coverage_csv.copy()
-    assert list(got.columns) == ["age_old", "age_young", "group", "component", "n_samples",
-                                 "n_sections"]
+    assert list(got.columns) == [
+        "age_old",
+        "age_young",
+        "group",
+        "component",
+        "n_samples",
+        "n_sections",
+    ]
     # every (bin, region, component) cell is there, once, empty ones as zeros
     regions, comps = {"northern shelf", "southern basin"}, set(samp.component)
     assert set(got.group) == regions and set(got.component) == comps
@@ -578,18 +666,18 @@ def test_coverage_counts_equal_a_pandas_groupby(records: pd.DataFrame,
     assert (got.n_samples == 0).any() and (got.n_sections >= 3).any()
 
 
-def test_coverage_writes_table_and_heatmap(ro: Path, coverage_csv: pd.DataFrame,
-                                           tmp_path: Path) -> None:
+def test_coverage_writes_table_and_heatmap(
+    ro: Path, coverage_csv: pd.DataFrame, tmp_path: Path
+) -> None:
     import matplotlib.image
 
     out = tmp_path / "cov"
-    r = ok("coverage", "--interval", "Toarcian", "--bin-myr", "0.5", "--out", out,
-           "--store", ro)
-    assert {"coverage.csv", "coverage.png", "coverage.svg"} <= {p.name for p in
-                                                                out.iterdir()}
+    r = ok("coverage", "--interval", "Toarcian", "--bin-myr", "0.5", "--out", out, "--store", ro)
+    assert {"coverage.csv", "coverage.png", "coverage.svg"} <= {p.name for p in out.iterdir()}
     written = pd.read_csv(out / "coverage.csv")
-    pd.testing.assert_frame_equal(written.reset_index(drop=True),
-                                  coverage_csv.reset_index(drop=True), check_exact=False)
+    pd.testing.assert_frame_equal(
+        written.reset_index(drop=True), coverage_csv.reset_index(drop=True), check_exact=False
+    )
     img = matplotlib.image.imread(out / "coverage.png")
     assert img.ndim == 3 and img.shape[0] > 100 and img.shape[1] > 100
     assert float(np.ptp(img[..., :3])) > 0.5  # not a blank picture
@@ -603,17 +691,28 @@ def test_coverage_by_an_unknown_grouping_is_exit_2(ro: Path) -> None:
 
 
 def test_confirmed_duplicates_are_counted_once_in_coverage(
-        confirmed: dict, coverage_csv: pd.DataFrame) -> None:
+    confirmed: dict, coverage_csv: pd.DataFrame
+) -> None:
     # coverage_csv: the same store before any decision (Q11's fix moves no count)
-    once = csv_of("coverage", "--interval", "Toarcian", "--bin-myr", "0.5", "--store",
-                  confirmed["store"])
+    once = csv_of(
+        "coverage", "--interval", "Toarcian", "--bin-myr", "0.5", "--store", confirmed["store"]
+    )
     assert coverage_csv.n_samples.sum() - once.n_samples.sum() == len(CONFIRMED_SAMPLES)
     diff = coverage_csv.n_samples.to_numpy() - once.n_samples.to_numpy()
     assert (diff >= 0).all()
 
 
 def test_coverage_keeps_every_store_region_when_a_filter_empties_one(ro: Path) -> None:
-    got = csv_of("coverage", "--interval", "Toarcian", "--bin-myr", "0.5", "--component",
-                 "brachiopod", "--store", ro)
+    got = csv_of(
+        "coverage",
+        "--interval",
+        "Toarcian",
+        "--bin-myr",
+        "0.5",
+        "--component",
+        "brachiopod",
+        "--store",
+        ro,
+    )
     assert set(got.group) == {"northern shelf", "southern basin"}
     assert (got[got.group == "southern basin"].n_samples == 0).all()

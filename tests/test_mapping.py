@@ -35,8 +35,9 @@ def mapping(folder: Path, file: str = "a.csv", extra: str = "", constants: str =
     return p
 
 
-def sheet(folder: Path, rows: list[str], name: str = "a.csv",
-          header: str = "Sample,Height,d13C,d18O") -> None:
+def sheet(
+    folder: Path, rows: list[str], name: str = "a.csv", header: str = "Sample,Height,d13C,d18O"
+) -> None:
     (folder / name).write_text(header + "\n" + "\n".join(rows) + "\n", encoding="utf-8")
 
 
@@ -61,13 +62,18 @@ def test_missing_header_names_the_column_and_suggests(tmp_path: Path) -> None:
 
 def test_localities_from_another_sheet(tmp_path: Path) -> None:
     sheet(tmp_path, ["a,1,1.0,-2.0", "b,2,1.5,-2.1"])
-    (tmp_path / "loc.csv").write_text("Site,Latitude,Longitude\nL1,12°30′S,45 E\n",
-                                      encoding="utf-8")
-    extra = ('[localities_table]\nfile = "loc.csv"\ncolumns = { "Site" = "locality_id", '
-             '"Latitude" = "lat", "Longitude" = "lon" }\n')
+    (tmp_path / "loc.csv").write_text(
+        "Site,Latitude,Longitude\nL1,12°30′S,45 E\n", encoding="utf-8"
+    )
+    extra = (
+        '[localities_table]\nfile = "loc.csv"\ncolumns = { "Site" = "locality_id", '
+        '"Latitude" = "lat", "Longitude" = "lon" }\n'
+    )
     m = tmp_path / "m.toml"
-    m.write_text(BASE.format(file="a.csv", extra="", constants='locality_id = "L1"') + extra,
-                 encoding="utf-8")
+    m.write_text(
+        BASE.format(file="a.csv", extra="", constants='locality_id = "L1"') + extra,
+        encoding="utf-8",
+    )
     store = api.init_store(tmp_path / "st")
     api.ingest(store, None, m)
     df = api.query(store)
@@ -100,13 +106,18 @@ def test_feet_are_exactly_0_3048_m(tmp_path: Path) -> None:
 
 
 def test_interval_top_below_base_is_refused(tmp_path: Path) -> None:
-    (tmp_path / "i.csv").write_text("Sample,Top,Base,d13C,d18O\na,2.0,1.0,1.0,-2\nb,3.0,4.0,1,-2\n",
-                                    encoding="utf-8")
+    (tmp_path / "i.csv").write_text(
+        "Sample,Top,Base,d13C,d18O\na,2.0,1.0,1.0,-2\nb,3.0,4.0,1,-2\n", encoding="utf-8"
+    )
     m = tmp_path / "m.toml"
-    m.write_text(BASE.format(file="i.csv", extra="", constants='position_kind = "height"')
-                 .replace('"Height" = { field = "position", unit = "m" }',
-                          '"Top" = { field = "position_top", unit = "m" }\n'
-                          '"Base" = { field = "position_base", unit = "m" }'), encoding="utf-8")
+    m.write_text(
+        BASE.format(file="i.csv", extra="", constants='position_kind = "height"').replace(
+            '"Height" = { field = "position", unit = "m" }',
+            '"Top" = { field = "position_top", unit = "m" }\n'
+            '"Base" = { field = "position_base", unit = "m" }',
+        ),
+        encoding="utf-8",
+    )
     r = api.ingest(tmp_path / "st", None, m, dry_run=True, keep_valid=True)
     assert [(i.cell, i.rule) for i in r.report.errors] == [("B3", "interval order")]
 

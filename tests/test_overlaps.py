@@ -49,9 +49,13 @@ def pairs_of(out: pd.DataFrame) -> list[tuple[str, str]]:
 def frame(**cols) -> pd.DataFrame:
     """Records with defaults: one locality, heights, no coordinates."""
     n = len(next(iter(cols.values())))
-    base = {"record_id": [f"r{i}" for i in range(n)], "source_id": ["src_a"] * n,
-            "locality_id": ["quillar"] * n, "locality_name": ["Quillar Ridge"] * n,
-            "position_kind": ["height"] * n}
+    base = {
+        "record_id": [f"r{i}" for i in range(n)],
+        "source_id": ["src_a"] * n,
+        "locality_id": ["quillar"] * n,
+        "locality_name": ["Quillar Ridge"] * n,
+        "position_kind": ["height"] * n,
+    }
     base.update(cols)
     return pd.DataFrame(base)
 
@@ -76,19 +80,40 @@ def republished() -> pd.DataFrame:
     feet = 2.0 * k + 0.5
     d13c = np.round(rng.uniform(-1.0, 3.0, 30), 2)
     d18o = np.round(rng.uniform(-6.0, -1.0, 30), 2)
-    a = frame(record_id=[f"fa{i:02d}" for i in k], source_id=["field_1994"] * 30,
-              position_m=feet * FOOT_M, d13c_carb=d13c, d18o_carb=d18o,
-              sample_id=[f"QR-{i:02d}" for i in k], lat=-14.5, lon=-70.25)
+    a = frame(
+        record_id=[f"fa{i:02d}" for i in k],
+        source_id=["field_1994"] * 30,
+        position_m=feet * FOOT_M,
+        d13c_carb=d13c,
+        d18o_carb=d18o,
+        sample_id=[f"QR-{i:02d}" for i in k],
+        lat=-14.5,
+        lon=-70.25,
+    )
     reported_vsmow = np.round(vpdb_to_vsmow(d18o), 2)
-    b = frame(record_id=[f"rb{i:02d}" for i in k], source_id=["recomp_2011"] * 30,
-              locality_id=["rc-loc-4"] * 30, locality_name=["quillar ridge"] * 30,
-              position_m=np.round(feet * FOOT_M, 2), d13c_carb=d13c,
-              d18o_carb=vsmow_to_vpdb(reported_vsmow), sample_id=[f"Q{i}" for i in k],
-              lat=-14.5, lon=-70.25)
-    c = frame(record_id=[f"nc{i:02d}" for i in k], source_id=["nearby_2003"] * 30,
-              locality_id=["quillar"] * 30, position_m=feet * FOOT_M + 0.3,
-              d13c_carb=d13c + 0.6, d18o_carb=d18o, sample_id=[f"N{i}" for i in k],
-              lat=-14.5, lon=-70.25)
+    b = frame(
+        record_id=[f"rb{i:02d}" for i in k],
+        source_id=["recomp_2011"] * 30,
+        locality_id=["rc-loc-4"] * 30,
+        locality_name=["quillar ridge"] * 30,
+        position_m=np.round(feet * FOOT_M, 2),
+        d13c_carb=d13c,
+        d18o_carb=vsmow_to_vpdb(reported_vsmow),
+        sample_id=[f"Q{i}" for i in k],
+        lat=-14.5,
+        lon=-70.25,
+    )
+    c = frame(
+        record_id=[f"nc{i:02d}" for i in k],
+        source_id=["nearby_2003"] * 30,
+        locality_id=["quillar"] * 30,
+        position_m=feet * FOOT_M + 0.3,
+        d13c_carb=d13c + 0.6,
+        d18o_carb=d18o,
+        sample_id=[f"N{i}" for i in k],
+        lat=-14.5,
+        lon=-70.25,
+    )
     return pd.concat([a, b, c], ignore_index=True)
 
 
@@ -109,8 +134,7 @@ def test_republication_matched_30_of_30_and_no_false_pairs(republished: pd.DataF
     assert list(out.columns) == list(COLUMNS)
     assert len(out) == 30
     assert set(out.source_a) == {"field_1994"} and set(out.source_b) == {"recomp_2011"}
-    assert sorted(pairs_of(out)) == [(f"fa{i:02d}", f"rb{i:02d}")
-                                                       for i in range(30)]
+    assert sorted(pairs_of(out)) == [(f"fa{i:02d}", f"rb{i:02d}") for i in range(30)]
     assert not (out.source_a.eq("nearby_2003") | out.source_b.eq("nearby_2003")).any()
     assert out.score.between(0.0, 1.0).all()
     row = out[out.record_a == "fa07"].iloc[0]
@@ -150,11 +174,16 @@ def test_haversine_matches_spherical_law_of_cosines() -> None:
 
 def test_coordinates_link_differently_named_localities() -> None:
     """Basis: haversine distance against coord_tol_km; ~3.3 km apart pairs, ~11 km not."""
-    recs = frame(record_id=["a1", "b1", "c1"], source_id=["src_a", "src_b", "src_c"],
-                 locality_id=["l1", "l2", "l3"],
-                 locality_name=["Quillar Ridge", "Cerro Blanco", "Pampa Honda"],
-                 lat=[-14.50, -14.53, -14.60], lon=[-70.25, -70.25, -70.25],
-                 position_m=[3.0, 3.0, 3.0], d13c_carb=[1.0, 1.0, 1.0])
+    recs = frame(
+        record_id=["a1", "b1", "c1"],
+        source_id=["src_a", "src_b", "src_c"],
+        locality_id=["l1", "l2", "l3"],
+        locality_name=["Quillar Ridge", "Cerro Blanco", "Pampa Honda"],
+        lat=[-14.50, -14.53, -14.60],
+        lon=[-70.25, -70.25, -70.25],
+        position_m=[3.0, 3.0, 3.0],
+        d13c_carb=[1.0, 1.0, 1.0],
+    )
     out = find_overlaps(recs)
     assert pairs_of(out) == [("a1", "b1")]
     km = haversine_km(-14.50, -70.25, -14.53, -70.25)
@@ -165,9 +194,14 @@ def test_aliases_and_names_link_localities() -> None:
     """Basis: the locality rule — names equal ignoring case and punctuation, or aliases."""
     assert normalise_name("Quillar-Ridge  (Sect. 2)") == normalise_name("quillar ridge sect 2")
     assert normalise_name("Cañón") == "canon"
-    recs = frame(record_id=["a1", "b1"], source_id=["src_a", "src_b"],
-                 locality_id=["l1", "l2"], locality_name=["Quillar Ridge", "Cerro Quillar"],
-                 position_m=[3.0, 3.0], d13c_carb=[1.0, 1.0])
+    recs = frame(
+        record_id=["a1", "b1"],
+        source_id=["src_a", "src_b"],
+        locality_id=["l1", "l2"],
+        locality_name=["Quillar Ridge", "Cerro Quillar"],
+        position_m=[3.0, 3.0],
+        d13c_carb=[1.0, 1.0],
+    )
     assert find_overlaps(recs).empty
     out = find_overlaps(recs, aliases={"quillar ridge": {"Cerro Quillar"}})
     assert len(out) == 1 and "linked by aliases" in out.reasons[0]
@@ -180,12 +214,15 @@ def test_tolerance_edges_and_position_kinds() -> None:
     """Basis: the tolerance rule — |Δ| ≤ tolerance lists a pair (decimal 0.15 exactly,
     despite binary rounding), 0.16 does not; a height never pairs with a depth; a range
     is compared by its midpoint."""
-    recs = frame(record_id=["a1", "b1", "a2", "b2", "a3", "b3", "a4", "b4"],
-                 source_id=["src_a", "src_b"] * 4,
-                 position_m=[0.0, 0.5, 10.0, 10.0, 20.0, 20.0, np.nan, 30.05],
-                 top_m=[np.nan] * 6 + [29.9, np.nan], base_m=[np.nan] * 6 + [30.1, np.nan],
-                 position_kind=["height"] * 4 + ["height", "depth", "height", None],
-                 d13c_carb=[1.45, 1.30, 1.45, 1.29, 2.0, 2.0, 0.5, 0.5])
+    recs = frame(
+        record_id=["a1", "b1", "a2", "b2", "a3", "b3", "a4", "b4"],
+        source_id=["src_a", "src_b"] * 4,
+        position_m=[0.0, 0.5, 10.0, 10.0, 20.0, 20.0, np.nan, 30.05],
+        top_m=[np.nan] * 6 + [29.9, np.nan],
+        base_m=[np.nan] * 6 + [30.1, np.nan],
+        position_kind=["height"] * 4 + ["height", "depth", "height", None],
+        d13c_carb=[1.45, 1.30, 1.45, 1.29, 2.0, 2.0, 0.5, 0.5],
+    )
     out = find_overlaps(recs)
     assert sorted(pairs_of(out)) == [("a1", "b1"), ("a4", "b4")]
     assert out.set_index("record_a").loc["a4", "position_a_m"] == pytest.approx(30.0)
@@ -194,8 +231,13 @@ def test_tolerance_edges_and_position_kinds() -> None:
 def test_score_follows_the_documented_rule() -> None:
     """Basis: the module's rule — weighted mean of closeness (position 1, δ13C 2, δ18O 1,
     locality 1, equal sample id 1); declared lineage halves the distance to 1."""
-    recs = frame(record_id=["a1", "b1"], source_id=["src_a", "src_b"],
-                 position_m=[5.0, 5.25], d13c_carb=[1.0, 1.03], d18o_carb=[-2.0, np.nan])
+    recs = frame(
+        record_id=["a1", "b1"],
+        source_id=["src_a", "src_b"],
+        position_m=[5.0, 5.25],
+        d13c_carb=[1.0, 1.03],
+        d18o_carb=[-2.0, np.nan],
+    )
     base = (1.0 + (1 - 0.25 / 0.5) + 2 * (1 - 0.03 / 0.15)) / 4  # δ18O in one record only
     out = find_overlaps(recs)
     assert out.score[0] == pytest.approx(base, abs=1e-6)
@@ -223,8 +265,11 @@ def test_declared_lineage_raises_scores_and_orients_pairs(republished: pd.DataFr
     renamed = republished.replace({"source_id": {"recomp_2011": "aa_recomp"}})
     unknown = find_overlaps(renamed)
     assert set(unknown.source_a) == {"aa_recomp"}
-    via_record = find_overlaps(renamed.assign(original_source_id=np.where(
-        renamed.source_id == "aa_recomp", "field_1994", None)))
+    via_record = find_overlaps(
+        renamed.assign(
+            original_source_id=np.where(renamed.source_id == "aa_recomp", "field_1994", None)
+        )
+    )
     assert set(via_record.source_a) == {"field_1994"}
     assert via_record.reasons.str.contains("names field_1994 as its original source").all()
 
@@ -235,10 +280,12 @@ def test_declared_lineage_raises_scores_and_orients_pairs(republished: pd.DataFr
 def test_one_to_one_keeps_the_best() -> None:
     """Basis: the one-to-one rule — a record pairs with at most one record per other
     source, the best score winning."""
-    recs = frame(record_id=["a1", "b1", "b2", "b3", "c1", "c2"],
-                 source_id=["src_a", "src_b", "src_b", "src_b", "src_c", "src_c"],
-                 position_m=[10.0, 9.9, 10.0, 10.1, 10.02, 10.03],
-                 d13c_carb=[2.0, 2.0, 2.01, 2.0, 2.0, 2.0])
+    recs = frame(
+        record_id=["a1", "b1", "b2", "b3", "c1", "c2"],
+        source_id=["src_a", "src_b", "src_b", "src_b", "src_c", "src_c"],
+        position_m=[10.0, 9.9, 10.0, 10.1, 10.02, 10.03],
+        d13c_carb=[2.0, 2.0, 2.01, 2.0, 2.0, 2.0],
+    )
     out = find_overlaps(recs)
     pairs = set(pairs_of(out))
     assert ("a1", "b2") in pairs and ("a1", "c1") in pairs
@@ -251,10 +298,12 @@ def test_one_to_one_on_dense_random_sections() -> None:
     """Basis: the one-to-one rule on invented dense data (many candidates per record)."""
     rng = np.random.default_rng(11)
     n = 600
-    recs = frame(record_id=[f"x{i:04d}" for i in range(n)],
-                 source_id=rng.choice(["s1", "s2", "s3", "s4"], n),
-                 position_m=rng.uniform(0, 20, n).round(2),
-                 d13c_carb=rng.normal(1.0, 0.1, n).round(2))
+    recs = frame(
+        record_id=[f"x{i:04d}" for i in range(n)],
+        source_id=rng.choice(["s1", "s2", "s3", "s4"], n),
+        position_m=rng.uniform(0, 20, n).round(2),
+        d13c_carb=rng.normal(1.0, 0.1, n).round(2),
+    )
     out = find_overlaps(recs)
     assert len(out) > 50
     assert (out.source_a != out.source_b).all()
@@ -266,10 +315,15 @@ def test_one_to_one_on_dense_random_sections() -> None:
 
 def test_source_filter(republished: pd.DataFrame) -> None:
     """Basis: the filter's definition — only pairs involving the named source."""
-    three = pd.concat([republished, republished[republished.source_id == "field_1994"]
-                       .assign(source_id="copy_2020",
-                               record_id=lambda d: "cp" + d.record_id.str[2:])],
-                      ignore_index=True)
+    three = pd.concat(
+        [
+            republished,
+            republished[republished.source_id == "field_1994"].assign(
+                source_id="copy_2020", record_id=lambda d: "cp" + d.record_id.str[2:]
+            ),
+        ],
+        ignore_index=True,
+    )
     every = find_overlaps(three)
     assert len(every) == 90
     only = find_overlaps(three, source="copy_2020")
@@ -286,16 +340,21 @@ def test_order_is_deterministic(republished: pd.DataFrame) -> None:
     out = find_overlaps(republished)
     shuffled = find_overlaps(republished.sample(frac=1.0, random_state=3))
     pd.testing.assert_frame_equal(out, shuffled)
-    expected = out.sort_values(["score", "record_a", "record_b"],
-                               ascending=[False, True, True]).reset_index(drop=True)
+    expected = out.sort_values(
+        ["score", "record_a", "record_b"], ascending=[False, True, True]
+    ).reset_index(drop=True)
     pd.testing.assert_frame_equal(out, expected)
 
 
 def test_unusable_records_and_bad_options() -> None:
     """Basis: the input rules — records without a position or δ13C are counted, not
     compared; tolerances must be positive; required columns are named."""
-    recs = frame(record_id=["a1", "b1", "b2"], source_id=["src_a", "src_b", "src_b"],
-                 position_m=[1.0, 1.0, np.nan], d13c_carb=[0.5, np.nan, 0.5])
+    recs = frame(
+        record_id=["a1", "b1", "b2"],
+        source_id=["src_a", "src_b", "src_b"],
+        position_m=[1.0, 1.0, np.nan],
+        d13c_carb=[0.5, np.nan, 0.5],
+    )
     out = find_overlaps(recs)
     assert out.empty and out.attrs["left_out"] == 2
     with pytest.raises(OptionError):
@@ -317,27 +376,35 @@ def write(tmp_path: Path, text: str) -> Path:
 
 def test_read_decisions(tmp_path: Path) -> None:
     """Basis: the file format defined here (header record_a,record_b,decision,note)."""
-    path = write(tmp_path, "\ufeffrecord_a,record_b,decision,note\n"
-                 "fa01,rb01,confirm,same sample QR-01\n"
-                 "\n# checked in the field notebook\n"
-                 "fa02,rb02, Reject ,\"heights differ, see notes\"\n"
-                 "fa01,rb01,confirm,again\n")
+    path = write(
+        tmp_path,
+        "\ufeffrecord_a,record_b,decision,note\n"
+        "fa01,rb01,confirm,same sample QR-01\n"
+        "\n# checked in the field notebook\n"
+        'fa02,rb02, Reject ,"heights differ, see notes"\n'
+        "fa01,rb01,confirm,again\n",
+    )
     got = read_decisions(path)
-    assert got == [Decision("fa01", "rb01", "confirm", "same sample QR-01"),
-                   Decision("fa02", "rb02", "reject", "heights differ, see notes")]
+    assert got == [
+        Decision("fa01", "rb01", "confirm", "same sample QR-01"),
+        Decision("fa02", "rb02", "reject", "heights differ, see notes"),
+    ]
     short = write(tmp_path, "record_a,record_b,decision\nx,y,confirm\n")
     assert read_decisions(short) == [Decision("x", "y", "confirm", "")]
 
 
 def test_read_decisions_names_every_bad_line(tmp_path: Path) -> None:
     """Basis: the file format — each bad line is named with its number, all at once."""
-    path = write(tmp_path, "record_a,record_b,decision,note\n"
-                 "a,b,confirm,\n"
-                 "c,d,maybe,\n"
-                 ",e,confirm,\n"
-                 "f,f,reject,\n"
-                 "b,a,reject,\n"
-                 "g,h,confirm,n,extra\n")
+    path = write(
+        tmp_path,
+        "record_a,record_b,decision,note\n"
+        "a,b,confirm,\n"
+        "c,d,maybe,\n"
+        ",e,confirm,\n"
+        "f,f,reject,\n"
+        "b,a,reject,\n"
+        "g,h,confirm,n,extra\n",
+    )
     with pytest.raises(ConfigError) as err:
         read_decisions(path)
     msg = str(err.value)
@@ -362,13 +429,22 @@ def test_duplicates_to_drop() -> None:
     """Basis: the exclusion rule — keep record_a, drop record_b, unless record_a's source
     is known to re-publish record_b's; rejected pairs drop nothing; a cycle of
     confirmations keeps one record."""
-    decisions = [Decision("fa01", "rb01", "confirm", ""),
-                 Decision("fa02", "rb02", "reject", ""),
-                 ("rb03", "fa03", "confirm", "")]
+    decisions = [
+        Decision("fa01", "rb01", "confirm", ""),
+        Decision("fa02", "rb02", "reject", ""),
+        ("rb03", "fa03", "confirm", ""),
+    ]
     assert duplicates_to_drop(decisions) == {"rb01", "fa03"}
-    told = duplicates_to_drop(decisions, source_of={"rb03": "recomp_2011", "fa03": "field_1994",
-                                                    "fa01": "field_1994", "rb01": "recomp_2011"},
-                              declared={"recomp_2011": {"field_1994"}})
+    told = duplicates_to_drop(
+        decisions,
+        source_of={
+            "rb03": "recomp_2011",
+            "fa03": "field_1994",
+            "fa01": "field_1994",
+            "rb01": "recomp_2011",
+        },
+        declared={"recomp_2011": {"field_1994"}},
+    )
     assert told == {"rb01", "rb03"}
     cycle = [("x", "y", "confirm", ""), ("y", "z", "confirm", ""), ("z", "x", "confirm", "")]
     dropped = duplicates_to_drop(cycle)

@@ -31,7 +31,10 @@ from strata13.errors import ConfigError, InputFileError
 HEAD = "# model: test\n# frame: paleomagnetic\n"
 COLS = "plate_id,age_ma,pole_lat,pole_lon,angle_deg,relative_to,pole_sigma_deg,comment\n"
 
-MODEL = HEAD + COLS + """\
+MODEL = (
+    HEAD
+    + COLS
+    + """\
 1,0,90,0,0,0,,present
 1,50,90,0,30,0,,spin about the north pole
 1,100,20,40,60,0,2,
@@ -40,6 +43,7 @@ MODEL = HEAD + COLS + """\
 3,0,0,0,0,2,,
 3,60,-30,120,15,2,1,
 """
+)
 
 
 def model(text: str = MODEL) -> rotations.RotationModel:
@@ -52,8 +56,9 @@ def model(text: str = MODEL) -> rotations.RotationModel:
 def test_quarter_turn_about_north_pole() -> None:
     # Closed form (right-hand rule): 90° about +z takes x = (0°N, 0°E) to y = (0°N, 90°E).
     text = HEAD + COLS + "1,0,90,0,0,0,,\n1,10,90,0,90,0,,\n"
-    out = reconstruct(np.array([0.0]), np.array([0.0]), np.array([1]), np.array([10.0]),
-                      model(text))
+    out = reconstruct(
+        np.array([0.0]), np.array([0.0]), np.array([1]), np.array([10.0]), model(text)
+    )
     assert out.paleolat[0] == pytest.approx(0.0, abs=1e-12)
     assert out.paleolon[0] == pytest.approx(90.0, abs=1e-12)
     assert out.status[0] == OK
@@ -95,7 +100,10 @@ def test_halfway_about_one_pole_the_angle_is_the_mean() -> None:
 def test_composition_through_a_two_step_circuit_matches_scipy_product() -> None:
     # scipy Rotation product computed independently: R(3→0) = R(1→0)·R(2→1)·R(3→2)
     # at an age tabulated for every plate (so no interpolation enters).
-    text = HEAD + COLS + """\
+    text = (
+        HEAD
+        + COLS
+        + """\
 1,0,90,0,0,0,,
 1,40,20,40,60,0,,
 2,0,0,0,0,1,,
@@ -103,6 +111,7 @@ def test_composition_through_a_two_step_circuit_matches_scipy_product() -> None:
 3,0,0,0,0,2,,
 3,40,-30,120,15,2,,
 """
+    )
     m = model(text)
     want = euler_rotation(20, 40, 60) * euler_rotation(10, -60, -25) * euler_rotation(-30, 120, 15)
     got = frame_rotation(m, 3, np.array([40.0]))[0]
@@ -146,8 +155,13 @@ def test_reconstruct_equals_a_per_point_scipy_loop() -> None:
 def test_status_for_unreconstructable_records() -> None:
     # Common practice: never extrapolate; say why a record has no paleo-position.
     m = model()  # plate 3's circuit ends at 60 Ma (its own oldest row)
-    out = reconstruct([10, 10, 10, 10, 10, 10], [5, 5, 5, 5, 5, 5],
-                      [1, -1, 9, 1, 3, 3], [20, 20, 20, np.nan, 61, 60], m)
+    out = reconstruct(
+        [10, 10, 10, 10, 10, 10],
+        [5, 5, 5, 5, 5, 5],
+        [1, -1, 9, 1, 3, 3],
+        [20, 20, 20, np.nan, 61, 60],
+        m,
+    )
     assert list(out.status) == [OK, NO_PLATE, UNKNOWN_PLATE, NO_AGE, BEYOND, OK]
     assert np.isnan(out.paleolat[1:5]).all() and np.isfinite(out.paleolat[[0, 5]]).all()
 
@@ -168,16 +182,19 @@ def test_paleolat_sigma_monte_carlo() -> None:
 # --- validation ---------------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("rows, line, words", [
-    ("1,0,90,0,0,2,,\n2,0,90,0,0,1,,\n", 4, "loops"),
-    ("1,0,90,0,0,7,,\n", 4, "plate 7"),
-    ("1,0,90,0,0,0,,\n2,10,90,0,5,1,,\n", 5, "no row at 0 Ma"),
-    ("1,0,90,0,0,0,,\n1,10,95,0,5,0,,\n", 5, "pole_lat 95"),
-    ("1,0,90,0,0,0,,\n1,10,abc,0,5,0,,\n", 5, "not a number"),
-    ("1,0,90,0,0,0,,\n1,0,80,0,0,0,,\n", 5, "repeats line 4"),
-    ("1,0,90,0,5,0,,\n", 4, "not 0"),
-    ("1,0,90,0,0,0,,\n1,10,90,0,5,2,,\n2,0,0,0,0,0,,\n", 5, "relative to 2 here"),
-])
+@pytest.mark.parametrize(
+    "rows, line, words",
+    [
+        ("1,0,90,0,0,2,,\n2,0,90,0,0,1,,\n", 4, "loops"),
+        ("1,0,90,0,0,7,,\n", 4, "plate 7"),
+        ("1,0,90,0,0,0,,\n2,10,90,0,5,1,,\n", 5, "no row at 0 Ma"),
+        ("1,0,90,0,0,0,,\n1,10,95,0,5,0,,\n", 5, "pole_lat 95"),
+        ("1,0,90,0,0,0,,\n1,10,abc,0,5,0,,\n", 5, "not a number"),
+        ("1,0,90,0,0,0,,\n1,0,80,0,0,0,,\n", 5, "repeats line 4"),
+        ("1,0,90,0,5,0,,\n", 4, "not 0"),
+        ("1,0,90,0,0,0,,\n1,10,90,0,5,2,,\n2,0,0,0,0,0,,\n", 5, "relative to 2 here"),
+    ],
+)
 def test_validation_names_the_line(rows: str, line: int, words: str) -> None:
     # Common practice: a malformed model is refused with its line and a fix.
     with pytest.raises(ConfigError) as err:
@@ -209,9 +226,17 @@ TRIANGLE = [[[-30, -20], [-5, -25], [-12, -2], [-30, -20]]]
 
 
 def collection(*items: tuple[object, list]) -> dict:
-    return {"type": "FeatureCollection", "features": [
-        {"type": "Feature", "properties": {} if pid is None else {"plate_id": pid},
-         "geometry": {"type": "Polygon", "coordinates": coords}} for pid, coords in items]}
+    return {
+        "type": "FeatureCollection",
+        "features": [
+            {
+                "type": "Feature",
+                "properties": {} if pid is None else {"plate_id": pid},
+                "geometry": {"type": "Polygon", "coordinates": coords},
+            }
+            for pid, coords in items
+        ],
+    }
 
 
 def test_assignment_matches_shapely_contains_on_random_points(tmp_path: Path) -> None:
@@ -223,10 +248,17 @@ def test_assignment_matches_shapely_contains_on_random_points(tmp_path: Path) ->
     lon = rng.uniform(-40, 30, 2000)
     lat = rng.uniform(-30, 15, 2000)
     got = plates.assign(lat, lon, polys)
-    shapes = [(101, shapely.Polygon(SQUARE_A[0])), (202, shapely.Polygon(SQUARE_B[0])),
-              (303, shapely.Polygon(TRIANGLE[0]))]
-    want = np.array([next((p for p, s in shapes if s.contains(shapely.Point(x, y))), -1)
-                     for x, y in zip(lon, lat, strict=True)])
+    shapes = [
+        (101, shapely.Polygon(SQUARE_A[0])),
+        (202, shapely.Polygon(SQUARE_B[0])),
+        (303, shapely.Polygon(TRIANGLE[0])),
+    ]
+    want = np.array(
+        [
+            next((p for p, s in shapes if s.contains(shapely.Point(x, y))), -1)
+            for x, y in zip(lon, lat, strict=True)
+        ]
+    )
     np.testing.assert_array_equal(got.plate_id, want)
     assert got.n_unassigned == int((want == -1).sum()) > 0  # counted, none dropped
     assert len(got.plate_id) == 2000
@@ -234,8 +266,13 @@ def test_assignment_matches_shapely_contains_on_random_points(tmp_path: Path) ->
 
 def test_unassigned_overrides_and_shared_edge() -> None:
     polys = plates.parse_polygons(collection((101, SQUARE_A), (202, SQUARE_B)))
-    got = plates.assign([5, 5, 50, 5], [5, 10, 50, 15], polys,
-                        overrides={"terrane-x": 303}, locality_ids=["a", "b", "c", "terrane-x"])
+    got = plates.assign(
+        [5, 5, 50, 5],
+        [5, 10, 50, 15],
+        polys,
+        overrides={"terrane-x": 303},
+        locality_ids=["a", "b", "c", "terrane-x"],
+    )
     # shared edge at lon 10 goes to the smaller id (documented rule); (50, 50) in no polygon
     assert got.plate_id.tolist() == [101, 101, -1, 303]
     assert (got.n_unassigned, got.n_overridden) == (1, 1)
@@ -261,23 +298,28 @@ def test_polygon_validation() -> None:
 # --- more closed forms and general-purpose references -------------------------------------
 
 
-def one_plate(pole_lat: float, pole_lon: float, angle: float, age: float = 10.0
-              ) -> rotations.RotationModel:
+def one_plate(
+    pole_lat: float, pole_lon: float, angle: float, age: float = 10.0
+) -> rotations.RotationModel:
     """A one-plate model built row by row: identity at 0 Ma, the given rotation at ``age``."""
-    return model(HEAD + COLS + f"1,0,90,0,0,0,,\n1,{age!r},{pole_lat!r},{pole_lon!r},"
-                 f"{angle!r},0,,\n")
+    return model(
+        HEAD + COLS + f"1,0,90,0,0,0,,\n1,{age!r},{pole_lat!r},{pole_lon!r},{angle!r},0,,\n"
+    )
 
 
-@pytest.mark.parametrize("pole, angle, point, want", [
-    # Closed form, right-hand rule: +30° about +y = (0°N, 90°E) takes x to
-    # (cos 30°, 0, −sin 30°), i.e. (−30°N, 0°E).
-    ((0.0, 90.0), 30.0, (0.0, 0.0), (-30.0, 0.0)),
-    # Closed form: +30° about the north pole adds 30° of longitude, latitude unchanged.
-    ((90.0, 0.0), 30.0, (10.0, 20.0), (10.0, 50.0)),
-])
-def test_thirty_degree_closed_forms_and_fixed_pole(pole: tuple[float, float], angle: float,
-                                                    point: tuple[float, float],
-                                                    want: tuple[float, float]) -> None:
+@pytest.mark.parametrize(
+    "pole, angle, point, want",
+    [
+        # Closed form, right-hand rule: +30° about +y = (0°N, 90°E) takes x to
+        # (cos 30°, 0, −sin 30°), i.e. (−30°N, 0°E).
+        ((0.0, 90.0), 30.0, (0.0, 0.0), (-30.0, 0.0)),
+        # Closed form: +30° about the north pole adds 30° of longitude, latitude unchanged.
+        ((90.0, 0.0), 30.0, (10.0, 20.0), (10.0, 50.0)),
+    ],
+)
+def test_thirty_degree_closed_forms_and_fixed_pole(
+    pole: tuple[float, float], angle: float, point: tuple[float, float], want: tuple[float, float]
+) -> None:
     m = one_plate(pole[0], pole[1], angle)
     out = reconstruct([point[0], pole[0]], [point[1], pole[1]], [1, 1], [10.0, 10.0], m)
     assert out.paleolat[0] == pytest.approx(want[0], abs=1e-12)
@@ -288,8 +330,9 @@ def test_thirty_degree_closed_forms_and_fixed_pole(pole: tuple[float, float], an
         assert out.paleolon[1] == pytest.approx(pole[1], abs=1e-12)
 
 
-def _haversine(lat1: np.ndarray, lon1: np.ndarray, lat2: np.ndarray, lon2: np.ndarray
-               ) -> np.ndarray:
+def _haversine(
+    lat1: np.ndarray, lon1: np.ndarray, lat2: np.ndarray, lon2: np.ndarray
+) -> np.ndarray:
     """Great-circle distance in radians (haversine formula, closed form)."""
     p1, p2, dl = np.radians(lat1), np.radians(lat2), np.radians(lon2 - lon1)
     a = np.sin((p2 - p1) / 2) ** 2 + np.cos(p1) * np.cos(p2) * np.sin(dl / 2) ** 2
@@ -331,8 +374,7 @@ def test_random_rotations_agree_with_scipy_rotvec() -> None:
         xyz = np.column_stack([np.cos(la) * np.cos(lo), np.cos(la) * np.sin(lo), np.sin(la)])
         want = Rotation.from_rotvec(axis * np.radians(angle)).apply(xyz)
         gla, glo = np.radians(out.paleolat), np.radians(out.paleolon)
-        got = np.column_stack([np.cos(gla) * np.cos(glo), np.cos(gla) * np.sin(glo),
-                               np.sin(gla)])
+        got = np.column_stack([np.cos(gla) * np.cos(glo), np.cos(gla) * np.sin(glo), np.sin(gla)])
         np.testing.assert_allclose(got, want, rtol=0, atol=1e-9)
         want_lat = np.degrees(np.arcsin(np.clip(want[:, 2], -1, 1)))
         np.testing.assert_allclose(out.paleolat, want_lat, rtol=0, atol=1e-9)
@@ -356,10 +398,16 @@ def test_point_in_polygon_across_the_antimeridian() -> None:
     ulon = rng.uniform(160, 200, n)
     lat = rng.uniform(-15, 15, n)
     lon = (ulon + 180) % 360 - 180
-    shapes = [(101, shapely.Polygon([(x + 360, y) for x, y in EAST_OF_IT[0]])),
-              (202, shapely.Polygon(ACROSS[0]))]
-    want = np.array([next((p for p, s in shapes if s.intersects(shapely.Point(x, y))), -1)
-                     for x, y in zip(ulon, lat, strict=True)])
+    shapes = [
+        (101, shapely.Polygon([(x + 360, y) for x, y in EAST_OF_IT[0]])),
+        (202, shapely.Polygon(ACROSS[0])),
+    ]
+    want = np.array(
+        [
+            next((p for p, s in shapes if s.intersects(shapely.Point(x, y))), -1)
+            for x, y in zip(ulon, lat, strict=True)
+        ]
+    )
     got = plates.assign(lat, lon, polys)
     np.testing.assert_array_equal(got.plate_id, want)
     assert {101, 202, -1} <= set(want.tolist())

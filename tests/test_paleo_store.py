@@ -29,8 +29,8 @@ def _rows() -> dict[int, list[tuple[float, float, float, float]]]:
     out: dict[int, list[tuple[float, float, float, float]]] = {}
     for r in csv.DictReader(io.StringIO(text)):
         out.setdefault(int(r["plate_id"]), []).append(
-            (float(r["age_ma"]), float(r["pole_lat"]), float(r["pole_lon"]),
-             float(r["angle_deg"])))
+            (float(r["age_ma"]), float(r["pole_lat"]), float(r["pole_lon"]), float(r["angle_deg"]))
+        )
     return out
 
 
@@ -81,27 +81,40 @@ def test_replace_rotations_is_one_commit_and_again_changes_nothing(demo_store: P
 
 def test_paleolat_filter_and_paleo_frame_region(placed: Path) -> None:
     store = api.open_store(placed)
-    n = api.sql(store, "SELECT count(*) FROM records WHERE paleolat BETWEEN -45 AND -30 AND "
-                "record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE drop_record_id "
-                "IS NOT NULL)").rows[0][0]
-    r = run_cli("query", "--paleolat", "-45:-30", "--format", "csv",
-                         "--store", placed)
+    n = api.sql(
+        store,
+        "SELECT count(*) FROM records WHERE paleolat BETWEEN -45 AND -30 AND "
+        "record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE drop_record_id "
+        "IS NOT NULL)",
+    ).rows[0][0]
+    r = run_cli("query", "--paleolat", "-45:-30", "--format", "csv", "--store", placed)
     assert r.code == 0, r.err
     assert len(r.out.strip().splitlines()) - 1 == n > 0  # negative bounds parse
     # --frame paleo applies the region to paleo-coordinates: the present-day box of the
     # southern basin holds no paleo-position of the invented model's southern plate
-    r = run_cli("query", "--region", "southern basin", "--frame", "paleo",
-                       "--format", "csv", "--store", placed)
+    r = run_cli(
+        "query",
+        "--region",
+        "southern basin",
+        "--frame",
+        "paleo",
+        "--format",
+        "csv",
+        "--store",
+        placed,
+    )
     assert r.code == 0 and len(r.out.strip().splitlines()) <= 1
     r = run_cli("query", "--paleolat", "95:100", "--store", placed)
     assert r.code == 2 and "−90…90" in r.err
 
 
-def test_a_mantle_frame_model_warns_on_paleolatitude_filters(demo_store: Path,
-                                                             tmp_path: Path) -> None:
+def test_a_mantle_frame_model_warns_on_paleolatitude_filters(
+    demo_store: Path, tmp_path: Path
+) -> None:
     mantle = tmp_path / "m.csv"
-    mantle.write_text(MODEL.read_text().replace("# frame: paleomagnetic", "# frame: mantle"),
-                      encoding="utf-8")
+    mantle.write_text(
+        MODEL.read_text().replace("# frame: paleomagnetic", "# frame: mantle"), encoding="utf-8"
+    )
     api.replace_rotations(api.open_store(demo_store), mantle, POLYGONS)
     r = run_cli("query", "--paleolat", "0:60", "--store", demo_store)
     assert r.code == 0 and "mantle-frame" in r.err
@@ -109,10 +122,13 @@ def test_a_mantle_frame_model_warns_on_paleolatitude_filters(demo_store: Path,
 
 def test_outside_every_polygon_is_counted_not_dropped(demo_store: Path, tmp_path: Path) -> None:
     small = tmp_path / "p.geojson"
-    small.write_text(POLYGONS.read_text().replace("[[[0, -60], [30, -60], [30, -30], "
-                                                  "[0, -30], [0, -60]]]",
-                                                  "[[[0, -60], [5, -60], [5, -55], [0, -55], "
-                                                  "[0, -60]]]"), encoding="utf-8")
+    small.write_text(
+        POLYGONS.read_text().replace(
+            "[[[0, -60], [30, -60], [30, -30], [0, -30], [0, -60]]]",
+            "[[[0, -60], [5, -60], [5, -55], [0, -55], [0, -60]]]",
+        ),
+        encoding="utf-8",
+    )
     store = api.open_store(demo_store)
     api.replace_rotations(store, MODEL, small)
     df = api.query(store, api.Filters(keep_duplicates=True))
@@ -131,10 +147,10 @@ def test_a_bad_rotation_file_is_refused_and_init_creates_nothing(tmp_path: Path)
 
 
 def test_replace_rotations_with_a_missing_file_leaves_the_store_unchanged(
-        demo_store: Path, tmp_path: Path) -> None:
+    demo_store: Path, tmp_path: Path
+) -> None:
     before = tree_bytes(demo_store)
-    r = run_cli("replace-rotations", tmp_path / "nope.csv", POLYGONS,
-                       "--store", demo_store)
+    r = run_cli("replace-rotations", tmp_path / "nope.csv", POLYGONS, "--store", demo_store)
     assert r.code == 2 and "does not exist" in r.err
     assert tree_bytes(demo_store) == before
 
@@ -155,5 +171,4 @@ def test_a_locality_plate_in_the_mapping_wins_over_the_polygons(tmp_path: Path) 
     assert len(dated) and set(dated.plate_id) == {101}
     r = dated.iloc[0]
     lat, lon = _expected(r.lat, r.lon, 101, r.age_ma)
-    assert r.paleolat == pytest.approx(lat, abs=1e-6) and r.paleolon == pytest.approx(lon,
-                                                                                     abs=1e-6)
+    assert r.paleolat == pytest.approx(lat, abs=1e-6) and r.paleolon == pytest.approx(lon, abs=1e-6)

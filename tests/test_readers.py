@@ -9,8 +9,7 @@ from strata13.compile.read.readers import col_letter, read_table
 
 
 def test_col_letters() -> None:
-    assert [col_letter(i) for i in (0, 25, 26, 27, 701, 702)] == ["A", "Z", "AA", "AB", "ZZ",
-                                                                  "AAA"]
+    assert [col_letter(i) for i in (0, 25, 26, 27, 701, 702)] == ["A", "Z", "AA", "AB", "ZZ", "AAA"]
 
 
 def test_empty_column_a_merged_cells_and_formula_get_exact_references(tmp_path: Path) -> None:

@@ -17,9 +17,10 @@ from strata13.errors import OptionError
 def sql_hits(region, lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
     con = duckdb.connect()
     con.execute("CREATE TABLE p (i INTEGER, lon DOUBLE, lat DOUBLE)")
-    con.executemany("INSERT INTO p VALUES (?, ?, ?)",
-                    [(i, float(a), float(b))
-                     for i, (a, b) in enumerate(zip(lon, lat, strict=True))])
+    con.executemany(
+        "INSERT INTO p VALUES (?, ?, ?)",
+        [(i, float(a), float(b)) for i, (a, b) in enumerate(zip(lon, lat, strict=True))],
+    )
     where, params = region.sql()
     ids = {r[0] for r in con.execute(f"SELECT i FROM p WHERE {where}", params).fetchall()}
     return np.array([i in ids for i in range(len(lon))])
@@ -77,16 +78,21 @@ def test_bad_bbox_is_an_option_error(bad: str) -> None:
 
 
 def test_ring_jumping_the_antimeridian_is_read_the_short_way() -> None:
-    geo = {"type": "Polygon", "coordinates": [[[170, -10], [-170, -10], [-170, 10], [170, 10],
-                                               [170, -10]]]}
+    geo = {
+        "type": "Polygon",
+        "coordinates": [[[170, -10], [-170, -10], [-170, 10], [170, 10], [170, -10]]],
+    }
     region = from_geojson(geo, "pacific", "test")
     lon = np.array([175.0, -175.0, 180.0, 0.0, 100.0, -100.0])
     lat = np.zeros(len(lon))
     # the same polygon drawn with longitudes beyond 180, tested with shapely directly
     box = shapely.box(170, -10, 190, 10)
     expected = shapely.intersects_xy(box, lon, lat) | shapely.intersects_xy(box, lon + 360, lat)
-    assert region.contains(lon, lat).tolist() == expected.tolist() == [True, True, True, False,
-                                                                        False, False]
+    assert (
+        region.contains(lon, lat).tolist()
+        == expected.tolist()
+        == [True, True, True, False, False, False]
+    )
     assert sql_hits(region, lon, lat).tolist() == expected.tolist()
 
 

@@ -28,10 +28,30 @@ from tests.conftest import tree_bytes
 EXE = [sys.executable, "-m", "strata13"]
 OUTCOMES = {"pass", "fail", "warn", "untested", "not applicable"}
 # Columns screening must never touch: δ values (harmonised and reported), ages, positions.
-DATA_COLUMNS = ["record_id", "source_id", "section_id", "sample_id", "lat", "lon", "position_m",
-                "age_ma", "age_sigma_ma", "age_basis", "d13c_carb", "d13c_carb_reported",
-                "d18o_carb", "d18o_carb_reported", "d13c_org", "d13c_org_reported",
-                "plate_id", "paleolat", "paleolon", "mn_ppm", "sr_ppm", "fe_ppm"]
+DATA_COLUMNS = [
+    "record_id",
+    "source_id",
+    "section_id",
+    "sample_id",
+    "lat",
+    "lon",
+    "position_m",
+    "age_ma",
+    "age_sigma_ma",
+    "age_basis",
+    "d13c_carb",
+    "d13c_carb_reported",
+    "d18o_carb",
+    "d18o_carb_reported",
+    "d13c_org",
+    "d13c_org_reported",
+    "plate_id",
+    "paleolat",
+    "paleolon",
+    "mn_ppm",
+    "sr_ppm",
+    "fe_ppm",
+]
 # Kaufman & Knoll 1995, Precambrian Res. 73:27 (from memory): Mn/Sr < 10 and δ18O ≥ −10 ‰
 # VPDB for near-primary δ13C — the default file's two fail rules.
 MN_SR_LIMIT = 10.0
@@ -53,8 +73,11 @@ def records(store: Path, columns: str = "*") -> pd.DataFrame:
 
 
 def results(store: Path) -> pd.DataFrame:
-    return frame(store, "SELECT s.record_id, s.rule, s.outcome, r.source_id, r.section_id "
-                        "FROM screen_results s JOIN records r USING (record_id)")
+    return frame(
+        store,
+        "SELECT s.record_id, s.rule, s.outcome, r.source_id, r.section_id "
+        "FROM screen_results s JOIN records r USING (record_id)",
+    )
 
 
 def outcome_table(store: Path) -> pd.DataFrame:
@@ -105,11 +128,14 @@ def mn_sr_expected(df: pd.DataFrame, limit: float) -> pd.Series:
 
 # --- 1. the demo's flags ---------------------------------------------------------------
 
-def test_demo_dolomitised_rows_fail_nd_rows_untested_covarying_core_warns(
-        demo_store: Path) -> None:
-    rec = records(demo_store, "record_id, source_id, section_id, sample_id, component, "
-                              "mn_ppm, mn_qualifier, sr_ppm, sr_qualifier, d13c_carb, "
-                              "d18o_carb, screen").set_index("record_id")
+
+def test_demo_dolomitised_rows_fail_nd_rows_untested_covarying_core_warns(demo_store: Path) -> None:
+    rec = records(
+        demo_store,
+        "record_id, source_id, section_id, sample_id, component, "
+        "mn_ppm, mn_qualifier, sr_ppm, sr_qualifier, d13c_carb, "
+        "d18o_carb, screen",
+    ).set_index("record_id")
     out = outcome_table(demo_store).loc[rec.index]
     assert set(rec["screen"]) == {"pass", "fail", "untested"}
 
@@ -129,13 +155,17 @@ def test_demo_dolomitised_rows_fail_nd_rows_untested_covarying_core_warns(
     assert rec.loc[rec["mn_qualifier"].notna(), "sr_ppm"].isna().all()
     assert (out["mn-sr-mass"] == mn_sr_expected(rec, MN_SR_LIMIT)).all()
     d18o = np.where(rec["d18o_carb"] >= D18O_FLOOR, "pass", "fail")
-    assert (out["d18o-floor"] == pd.Series(d18o, index=rec.index)
-            .where(rec["d18o_carb"].notna(), "untested")).all()
+    assert (
+        out["d18o-floor"]
+        == pd.Series(d18o, index=rec.index).where(rec["d18o_carb"].notna(), "untested")
+    ).all()
 
     # The quillar rows with δ18O 'n.d.' (two, one of them re-published by the 2022
     # compilation without δ18O) are untested (not pass), and nothing else is.
-    nd = rec[rec["source_id"].isin(["quillar-2011", "orvanne-compilation-2022"])
-             & rec["d18o_carb"].isna()]
+    nd = rec[
+        rec["source_id"].isin(["quillar-2011", "orvanne-compilation-2022"])
+        & rec["d18o_carb"].isna()
+    ]
     assert len(nd) == 3
     assert set(rec.index[rec["screen"] == "untested"]) == set(nd.index)
     assert (out.loc[nd.index, "d18o-floor"] == "untested").all()
@@ -164,8 +194,8 @@ def test_demo_dolomitised_rows_fail_nd_rows_untested_covarying_core_warns(
 
 # --- 2. the long results ---------------------------------------------------------------
 
-def test_screen_results_one_row_per_record_and_rule_and_overall_follows(
-        demo_store: Path) -> None:
+
+def test_screen_results_one_row_per_record_and_rule_and_overall_follows(demo_store: Path) -> None:
     rules = load_rules()  # a default store holds the shipped rule set
     assert stored_settings(demo_store)["screen_rules_sha256"] == rules.sha256
     rec = records(demo_store, "record_id, screen").set_index("record_id")["screen"]
@@ -178,14 +208,19 @@ def test_screen_results_one_row_per_record_and_rule_and_overall_follows(
     # The overall column re-derived from the long form: any fail -> fail; else any pass or
     # warn -> pass; else untested (untested and not-applicable are never a pass).
     g = res.groupby("record_id")["outcome"]
-    expected = pd.Series(np.where(g.apply(lambda o: (o == "fail").any()), "fail",
-                                  np.where(g.apply(lambda o: o.isin(["pass", "warn"]).any()),
-                                           "pass", "untested")),
-                         index=g.apply(len).index)
+    expected = pd.Series(
+        np.where(
+            g.apply(lambda o: (o == "fail").any()),
+            "fail",
+            np.where(g.apply(lambda o: o.isin(["pass", "warn"]).any()), "pass", "untested"),
+        ),
+        index=g.apply(len).index,
+    )
     assert (rec.sort_index() == expected.sort_index()).all()
 
 
 # --- 3. re-screening through the recompute engine --------------------------------------
+
 
 def test_screen_with_the_same_rules_changes_nothing(demo_store: Path, tmp_path: Path) -> None:
     before, versions = tree_bytes(demo_store), n_versions(demo_store)
@@ -194,8 +229,14 @@ def test_screen_with_the_same_rules_changes_nothing(demo_store: Path, tmp_path: 
     assert "0 changed" in res.stderr
     # The same rules in a file without its comments: the same rule set (hash of content).
     bare = tmp_path / "bare.toml"
-    bare.write_text("\n".join(ln for ln in default_rules_path().read_text("utf-8").splitlines()
-                              if not ln.lstrip().startswith("#")), encoding="utf-8")
+    bare.write_text(
+        "\n".join(
+            ln
+            for ln in default_rules_path().read_text("utf-8").splitlines()
+            if not ln.lstrip().startswith("#")
+        ),
+        encoding="utf-8",
+    )
     res = run("screen", "--rules", str(bare), "--store", str(demo_store))
     assert res.returncode == 0, res.stderr
     assert "0 changed" in res.stderr
@@ -204,7 +245,8 @@ def test_screen_with_the_same_rules_changes_nothing(demo_store: Path, tmp_path: 
 
 
 def test_stricter_rules_make_one_version_and_change_only_the_flags(
-        demo_store: Path, tmp_path: Path) -> None:
+    demo_store: Path, tmp_path: Path
+) -> None:
     cols = ", ".join(DATA_COLUMNS)
     data_before = records(demo_store, cols)
     screen_before = records(demo_store, "record_id, screen").set_index("record_id")["screen"]
@@ -241,6 +283,7 @@ def test_stricter_rules_make_one_version_and_change_only_the_flags(
 
 
 # --- 4. the untested policy ------------------------------------------------------------
+
 
 def test_untested_passes_is_a_store_setting_and_fails_restores(demo_store: Path) -> None:
     before = records(demo_store, "record_id, screen").set_index("record_id")["screen"]
@@ -280,6 +323,7 @@ def test_untested_passes_is_a_store_setting_and_fails_restores(demo_store: Path)
 
 # --- 5. the screened filter ------------------------------------------------------------
 
+
 @pytest.mark.parametrize("status", ["pass", "fail", "untested", "all"])
 def test_query_screened_counts_equal_sql(demo_store: Path, status: str) -> None:
     res = run("query", "--screened", status, "--format", "json", "--store", str(demo_store))
@@ -307,8 +351,10 @@ def test_query_screened_bogus_error_has_a_hint(demo_store: Path) -> None:
 
 # --- 6. the export manifest ------------------------------------------------------------
 
+
 def test_export_manifest_names_the_rule_set_and_its_hash_not_its_text(
-        demo_store: Path, tmp_path: Path) -> None:
+    demo_store: Path, tmp_path: Path
+) -> None:
     rules = load_rules()
     res = run("export", "--out", str(tmp_path / "ex"), "--store", str(demo_store))
     assert res.returncode == 0, res.stderr
@@ -325,24 +371,27 @@ def test_export_manifest_names_the_rule_set_and_its_hash_not_its_text(
     assert len(text) < len(str(stored))
 
 
-def test_export_as_of_reports_the_rules_of_that_version(demo_store: Path,
-                                                       tmp_path: Path) -> None:
+def test_export_as_of_reports_the_rules_of_that_version(demo_store: Path, tmp_path: Path) -> None:
     store = api.open_store(demo_store)
     version = n_versions(demo_store)
     strict = strict_rules(tmp_path)
     assert api.screen(store, strict).version == version + 1
     api.export(store, tmp_path / "old", as_of=version)
     api.export(store, tmp_path / "new")
-    manifest = {k: json.loads((tmp_path / k / "manifest.json").read_text("utf-8"))
-                for k in ("old", "new")}
+    manifest = {
+        k: json.loads((tmp_path / k / "manifest.json").read_text("utf-8")) for k in ("old", "new")
+    }
     assert manifest["old"]["settings"]["screen_rules_sha256"] == load_rules().sha256
     assert manifest["new"]["settings"]["screen_rules_sha256"] == load_rules(strict).sha256
-    fails = {k: int((pd.read_parquet(tmp_path / k / "records.parquet")["screen"] == "fail")
-                    .sum()) for k in manifest}
+    fails = {
+        k: int((pd.read_parquet(tmp_path / k / "records.parquet")["screen"] == "fail").sum())
+        for k in manifest
+    }
     assert fails["new"] > fails["old"] == 4
 
 
 # --- 7. summary and cross-plots --------------------------------------------------------
+
 
 def test_summary_csv_counts_match_a_groupby_of_the_results(demo_store: Path) -> None:
     versions = n_versions(demo_store)
@@ -352,9 +401,11 @@ def test_summary_csv_counts_match_a_groupby_of_the_results(demo_store: Path) -> 
     keys = ["source_id", "section_id", "rule", "outcome"]
     assert list(got.columns) == [*keys, "n"]
     expected = results(demo_store).groupby(keys).size().rename("n").reset_index()
-    pd.testing.assert_frame_equal(got.sort_values(keys).reset_index(drop=True),
-                                  expected.sort_values(keys).reset_index(drop=True),
-                                  check_dtype=False)
+    pd.testing.assert_frame_equal(
+        got.sort_values(keys).reset_index(drop=True),
+        expected.sort_values(keys).reset_index(drop=True),
+        check_dtype=False,
+    )
     assert got["n"].sum() == len(records(demo_store, "record_id")) * len(load_rules().rules)
     assert n_versions(demo_store) == versions  # a summary is a read
 
@@ -376,6 +427,7 @@ def test_plot_writes_one_readable_png_per_section(demo_store: Path, tmp_path: Pa
 
 
 # --- 8. bad rule files ----------------------------------------------------------------
+
 
 def _bad_rules(folder: Path, case: str) -> tuple[Path, list[str]]:
     """A broken copy of the default rules and words its error must contain."""
@@ -404,7 +456,8 @@ CASES = ["unknown-field", "unknown-kind", "invalid-toml", "missing-file"]
 
 @pytest.mark.parametrize("case", CASES)
 def test_bad_rule_file_is_exit_2_with_one_clear_error_and_store_unchanged(
-        demo_store: Path, tmp_path: Path, case: str) -> None:
+    demo_store: Path, tmp_path: Path, case: str
+) -> None:
     path, words = _bad_rules(tmp_path, case)
     before = tree_bytes(demo_store)
     res = run_process("screen", "--rules", str(path), "--store", str(demo_store))
@@ -451,8 +504,9 @@ scope = {{ age_min_ma = {lo!r}, age_max_ma = {hi!r} }}
 """
 
 
-def test_age_scoped_rule_marks_records_outside_not_applicable(demo_store: Path,
-                                                              tmp_path: Path) -> None:
+def test_age_scoped_rule_marks_records_outside_not_applicable(
+    demo_store: Path, tmp_path: Path
+) -> None:
     rec = records(demo_store, "record_id, age_ma, d18o_carb").set_index("record_id")
     ages = rec["age_ma"].dropna().sort_values()
     assert ages.min() < 182.5 and ages.max() > 183.5 and rec["age_ma"].notna().all()
@@ -470,8 +524,9 @@ def test_age_scoped_rule_marks_records_outside_not_applicable(demo_store: Path,
     inside = rec["age_ma"].between(lo, hi)
     assert 0 < inside.sum() < len(rec)
     assert (out[~inside] == "not applicable").all()
-    expected = pd.Series(np.where(rec["d18o_carb"] >= D18O_FLOOR, "pass", "fail"),
-                         index=rec.index).where(rec["d18o_carb"].notna(), "untested")
+    expected = pd.Series(
+        np.where(rec["d18o_carb"] >= D18O_FLOOR, "pass", "fail"), index=rec.index
+    ).where(rec["d18o_carb"].notna(), "untested")
     assert (out[inside] == expected[inside]).all()
     assert out[rec["age_ma"] == lo].iloc[0] != "not applicable"
     assert out[rec["age_ma"] == hi].iloc[0] != "not applicable"

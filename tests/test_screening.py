@@ -31,13 +31,15 @@ from strata13.compile.screening.stats import effective_n, lag1_autocorrelation
 from strata13.errors import ConfigError
 
 HEADER = '[ruleset]\nname = "t"\nversion = "1"\ndescription = "test rules"\n'
-COMMON = ('description = "Rule of thumb for a test."\ncitation = "common practice"\n'
-          'confidence = "test"\n')
+COMMON = (
+    'description = "Rule of thumb for a test."\ncitation = "common practice"\nconfidence = "test"\n'
+)
 
 
 def rule(name: str, body: str, severity: str = "fail", scope: str = "") -> str:
-    return (f'\n[[rule]]\nname = "{name}"\n{COMMON}severity = "{severity}"\n{body}\n'
-            + (f"scope = {scope}\n" if scope else ""))
+    return f'\n[[rule]]\nname = "{name}"\n{COMMON}severity = "{severity}"\n{body}\n' + (
+        f"scope = {scope}\n" if scope else ""
+    )
 
 
 def ruleset(*blocks: str):
@@ -47,8 +49,13 @@ def ruleset(*blocks: str):
 def records(n: int | None = None, **cols) -> pa.Table:
     """A record table with defaults for the hierarchy (Early Jurassic bulk carbonate)."""
     n = n if n is not None else len(next(iter(cols.values())))
-    base = {"record_id": [f"r{i}" for i in range(n)], "source_id": ["src"] * n,
-            "section_id": ["sec"] * n, "age_ma": [183.0] * n, "component": ["bulk"] * n}
+    base = {
+        "record_id": [f"r{i}" for i in range(n)],
+        "source_id": ["src"] * n,
+        "section_id": ["sec"] * n,
+        "age_ma": [183.0] * n,
+        "component": ["bulk"] * n,
+    }
     base.update(cols)
     return pa.table(base)
 
@@ -63,13 +70,18 @@ def details(table: pa.Table, rs) -> list[str]:
     return res.column("detail").to_pylist()
 
 
-MN_BELOW_300 = rule("mn-300", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\n'
-                              'limit = 300\nunit = "ppm"')
-MN_SR_10 = rule("mn-sr", 'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "sr_ppm"\n'
-                         'ratio_by = "mass"\npass_if = "below"\nlimit = 10')
+MN_BELOW_300 = rule(
+    "mn-300", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimit = 300\nunit = "ppm"'
+)
+MN_SR_10 = rule(
+    "mn-sr",
+    'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "sr_ppm"\n'
+    'ratio_by = "mass"\npass_if = "below"\nlimit = 10',
+)
 
 
 # --- the shipped defaults --------------------------------------------------------------
+
 
 def test_default_thresholds_equal_their_cited_values() -> None:
     rs = load_rules()
@@ -88,7 +100,7 @@ def test_default_thresholds_equal_their_cited_values() -> None:
     assert rs.rule("brachiopod-mn").scope.component == ("brachiopod",)
     # Allan & Matthews 1982 (VERIFIED, qualitative); r² ≳ 0.4–0.5 common practice (MEMORY low)
     cov = spec["d13c-d18o-covariance"]
-    assert isinstance(cov, Covariance) and 0.4 <= cov.min_r ** 2 <= 0.5 and cov.alpha == 0.05
+    assert isinstance(cov, Covariance) and 0.4 <= cov.min_r**2 <= 0.5 and cov.alpha == 0.05
     assert rs.rule("d13c-d18o-covariance").severity == "warn"
     assert "common practice" in rs.rule("d13c-d18o-covariance").citation
     # cements excluded: common practice
@@ -117,26 +129,40 @@ def test_default_file_says_rules_of_thumb_and_hash_is_stable() -> None:
 
 def test_hash_ignores_comments_and_key_order_but_not_values() -> None:
     one = ruleset(MN_BELOW_300)
-    reordered = HEADER + ('\n# a comment\n[[rule]]\nunit = "ppm"\nlimit = 300.0\n'
-                          'pass_if = "below"\nfield = "mn_ppm"\nkind = "value-limit"\n'
-                          'severity = "fail"\n' + COMMON
-                          + 'name = "mn-300"\n')
+    reordered = HEADER + (
+        '\n# a comment\n[[rule]]\nunit = "ppm"\nlimit = 300.0\n'
+        'pass_if = "below"\nfield = "mn_ppm"\nkind = "value-limit"\n'
+        'severity = "fail"\n' + COMMON + 'name = "mn-300"\n'
+    )
     assert parse_rules(reordered).sha256 == one.sha256
     assert ruleset(MN_BELOW_300.replace("300", "301")).sha256 != one.sha256
 
 
 # --- thresholds and the behaviour at the limit -----------------------------------------
 
-@pytest.mark.parametrize("pass_if,value,expected", [
-    ("below", 299.9, "pass"), ("below", 300.0, "fail"),      # at the limit: fails
-    ("at_most", 300.0, "pass"), ("at_most", 300.1, "fail"),  # at the limit: passes
-    ("above", 300.0, "fail"), ("above", 300.1, "pass"),      # at the limit: fails
-    ("at_least", 300.0, "pass"), ("at_least", 299.9, "fail"),  # at the limit: passes
-])
+
+@pytest.mark.parametrize(
+    "pass_if,value,expected",
+    [
+        ("below", 299.9, "pass"),
+        ("below", 300.0, "fail"),  # at the limit: fails
+        ("at_most", 300.0, "pass"),
+        ("at_most", 300.1, "fail"),  # at the limit: passes
+        ("above", 300.0, "fail"),
+        ("above", 300.1, "pass"),  # at the limit: fails
+        ("at_least", 300.0, "pass"),
+        ("at_least", 299.9, "fail"),  # at the limit: passes
+    ],
+)
 def test_behaviour_exactly_at_the_limit(pass_if: str, value: float, expected: str) -> None:
     # the comparison name states what passes (rules.py PASS_IF)
-    rs = ruleset(rule("sr", f'kind = "value-limit"\nfield = "sr_ppm"\npass_if = "{pass_if}"\n'
-                            'limit = 300\nunit = "ppm"'))
+    rs = ruleset(
+        rule(
+            "sr",
+            f'kind = "value-limit"\nfield = "sr_ppm"\npass_if = "{pass_if}"\n'
+            'limit = 300\nunit = "ppm"',
+        )
+    )
     assert outcomes(records(sr_ppm=[value]), rs) == [expected]
 
 
@@ -153,8 +179,12 @@ def test_mn_sr_ten_exactly_fails_and_d18o_minus_ten_passes() -> None:
 
 def test_limit_units_are_converted_to_the_stored_unit() -> None:
     # 0.03 % = 300 ppm (1 % = 10 000 ppm, mass fraction)
-    rs = ruleset(rule("mn-pct", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\n'
-                                'limit = 0.03\nunit = "%"'))
+    rs = ruleset(
+        rule(
+            "mn-pct",
+            'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimit = 0.03\nunit = "%"',
+        )
+    )
     assert outcomes(records(mn_ppm=[299.0, 300.0]), rs) == ["pass", "fail"]
 
 
@@ -169,9 +199,11 @@ def test_mn_sr_mass_and_molar_worked_example() -> None:
     assert 500 / 250 * molar.factor == pytest.approx(2 * 87.62 / 54.938, rel=1e-12)
     t = records(mn_ppm=[500.0], sr_ppm=[250.0])
     body = 'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "sr_ppm"\n'
-    rs = ruleset(rule("mass", body + 'ratio_by = "mass"\npass_if = "at_most"\nlimit = 2.0'),
-                 rule("molar-hi", body + 'ratio_by = "molar"\npass_if = "at_most"\nlimit = 3.19'),
-                 rule("molar-lo", body + 'ratio_by = "molar"\npass_if = "at_most"\nlimit = 3.189'))
+    rs = ruleset(
+        rule("mass", body + 'ratio_by = "mass"\npass_if = "at_most"\nlimit = 2.0'),
+        rule("molar-hi", body + 'ratio_by = "molar"\npass_if = "at_most"\nlimit = 3.19'),
+        rule("molar-lo", body + 'ratio_by = "molar"\npass_if = "at_most"\nlimit = 3.189'),
+    )
     assert outcomes(t, rs) == ["pass", "pass", "fail"]
     d = details(t, rs)
     assert "= 2 " in d[0] and "= 3.19 " in d[1]
@@ -179,13 +211,16 @@ def test_mn_sr_mass_and_molar_worked_example() -> None:
 
 # --- censored values -------------------------------------------------------------------
 
+
 def test_censored_values_are_bounds() -> None:
     # bdl with DL 5 passes "Mn below 300" (the true value is below 5); '<x' is at most x;
     # '>x' at least x; a bound that cannot decide gives untested, with the reason
     rs = ruleset(MN_BELOW_300)
-    t = records(mn_ppm=[None, 200.0, 400.0, 400.0, 200.0, None, 300.0],
-                mn_qualifier=["bdl", "<", "<", ">", ">", "bdl", "<"],
-                mn_dl=[5.0, None, None, None, None, None, None])
+    t = records(
+        mn_ppm=[None, 200.0, 400.0, 400.0, 200.0, None, 300.0],
+        mn_qualifier=["bdl", "<", "<", ">", ">", "bdl", "<"],
+        mn_dl=[5.0, None, None, None, None, None, None],
+    )
     got = outcomes(t, rs)
     assert got == ["pass", "pass", "untested", "fail", "untested", "untested", "untested"]
     d = details(t, rs)
@@ -196,9 +231,13 @@ def test_censored_values_are_bounds() -> None:
 
 def test_censored_ratio_inputs_decide_when_the_bound_does() -> None:
     rs = ruleset(MN_SR_10)
-    t = records(mn_ppm=[None, 500.0, 500.0, 500.0, 5000.0],
-                mn_qualifier=["bdl", None, None, None, None], mn_dl=[5.0, None, None, None, None],
-                sr_ppm=[100.0, 5.0, 1000.0, 5.0, 300.0], sr_qualifier=[None, "<", ">", ">", "<"])
+    t = records(
+        mn_ppm=[None, 500.0, 500.0, 500.0, 5000.0],
+        mn_qualifier=["bdl", None, None, None, None],
+        mn_dl=[5.0, None, None, None, None],
+        sr_ppm=[100.0, 5.0, 1000.0, 5.0, 300.0],
+        sr_qualifier=[None, "<", ">", ">", "<"],
+    )
     # bdl/100 ≤ 0.05 pass; 500/(<5) ≥ 100 fail; 500/(>1000) ≤ 0.5 pass;
     # 500/(>5) in [0, 100] undecided; 5000/(<300) ≥ 16.7 fail
     assert outcomes(t, rs) == ["pass", "fail", "pass", "untested", "fail"]
@@ -206,10 +245,12 @@ def test_censored_ratio_inputs_decide_when_the_bound_does() -> None:
 
 def test_zero_missing_or_mixed_denominator_is_untested_not_a_crash() -> None:
     rs = ruleset(MN_SR_10)
-    t = records(mn_ppm=[500.0, 500.0, None, 500.0, 0.0],
-                sr_ppm=[0.0, None, 250.0, 250.0, 250.0],
-                mn_basis=["leach", "leach", "leach", "leach", "leach"],
-                sr_basis=["leach", "leach", "leach", "whole-rock", "leach"])
+    t = records(
+        mn_ppm=[500.0, 500.0, None, 500.0, 0.0],
+        sr_ppm=[0.0, None, 250.0, 250.0, 250.0],
+        mn_basis=["leach", "leach", "leach", "leach", "leach"],
+        sr_basis=["leach", "leach", "leach", "whole-rock", "leach"],
+    )
     assert outcomes(t, rs) == ["untested", "untested", "untested", "untested", "pass"]
     d = details(t, rs)
     assert "zero" in d[0] and "no Sr" in d[1] and "no Mn" in d[2] and "different bases" in d[3]
@@ -218,35 +259,61 @@ def test_zero_missing_or_mixed_denominator_is_untested_not_a_crash() -> None:
 
 # --- scope -----------------------------------------------------------------------------
 
+
 def test_scope_outside_is_not_applicable_and_unknown_is_untested() -> None:
-    rs = ruleset(rule("mn", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\n'
-                            'limit = 300\nunit = "ppm"',
-                      scope='{ age_max_ma = 538.8, component = ["bulk", "micrite"] }'))
-    t = records(mn_ppm=[100.0] * 5, age_ma=[183.0, 600.0, None, 183.0, 600.0],
-                component=["bulk", "bulk", "bulk", "brachiopod", None])
+    rs = ruleset(
+        rule(
+            "mn",
+            'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimit = 300\nunit = "ppm"',
+            scope='{ age_max_ma = 538.8, component = ["bulk", "micrite"] }',
+        )
+    )
+    t = records(
+        mn_ppm=[100.0] * 5,
+        age_ma=[183.0, 600.0, None, 183.0, 600.0],
+        component=["bulk", "bulk", "bulk", "brachiopod", None],
+    )
     # in scope; older than the Cambrian base; no age; other component; outside wins over unknown
-    assert outcomes(t, rs) == ["pass", "not applicable", "untested", "not applicable",
-                               "not applicable"]
+    assert outcomes(t, rs) == [
+        "pass",
+        "not applicable",
+        "untested",
+        "not applicable",
+        "not applicable",
+    ]
     d = details(t, rs)
     assert "no age_ma" in d[2] and "component" in d[3]
 
 
 def test_scope_vocabulary_is_checked_with_did_you_mean() -> None:
     with pytest.raises(ConfigError, match="brachiopd.*Did you mean 'brachiopod'") as e:
-        ruleset(rule("xy", 'kind = "allowed-values"\nfield = "component"\nallowed = ["bulk"]',
-                     scope='{ component = ["brachiopd"] }'))
+        ruleset(
+            rule(
+                "xy",
+                'kind = "allowed-values"\nfield = "component"\nallowed = ["bulk"]',
+                scope='{ component = ["brachiopd"] }',
+            )
+        )
     assert "'xy'" in str(e.value)
 
 
 # --- overall policy --------------------------------------------------------------------
 
+
 def test_overall_policy() -> None:
-    rs = ruleset(MN_BELOW_300, rule("sr", 'kind = "value-limit"\nfield = "sr_ppm"\n'
-                                          'pass_if = "above"\nlimit = 300\nunit = "ppm"',
-                                    severity="warn"))
-    t = records(mn_ppm=[100.0, 500.0, 100.0, None, None],
-                sr_ppm=[500.0, 500.0, 100.0, 500.0, None],
-                age_ma=[183.0, 183.0, 183.0, 183.0, 183.0])
+    rs = ruleset(
+        MN_BELOW_300,
+        rule(
+            "sr",
+            'kind = "value-limit"\nfield = "sr_ppm"\npass_if = "above"\nlimit = 300\nunit = "ppm"',
+            severity="warn",
+        ),
+    )
+    t = records(
+        mn_ppm=[100.0, 500.0, 100.0, None, None],
+        sr_ppm=[500.0, 500.0, 100.0, 500.0, None],
+        age_ma=[183.0, 183.0, 183.0, 183.0, 183.0],
+    )
     _, overall, _ = evaluate(t, rs)
     # passes both; fails a fail rule; breaks only a warn rule (kept, not failed);
     # one tested pass beside one untested; nothing tested
@@ -257,8 +324,11 @@ def test_overall_policy() -> None:
 
 
 def test_untested_passes_option() -> None:
-    scoped = rule("old", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\n'
-                         'limit = 300\nunit = "ppm"', scope="{ age_min_ma = 300.0 }")
+    scoped = rule(
+        "old",
+        'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimit = 300\nunit = "ppm"',
+        scope="{ age_min_ma = 300.0 }",
+    )
     rs = ruleset(MN_BELOW_300, scoped)
     t = records(mn_ppm=[None, None, 500.0], age_ma=[183.0, 400.0, 183.0])
     strict = evaluate(t, rs).overall.column("screen").to_pylist()
@@ -273,21 +343,28 @@ def test_untested_passes_option() -> None:
 
 # --- categorical -----------------------------------------------------------------------
 
+
 def test_allowed_and_excluded_values() -> None:
-    rs = ruleset(rule("no-cement", 'kind = "allowed-values"\nfield = "component"\n'
-                                   'excluded = ["cement"]'),
-                 rule("pres", 'kind = "allowed-values"\nfield = "preservation"\n'
-                              'allowed = ["good", "excellent"]', severity="warn"))
+    rs = ruleset(
+        rule("no-cement", 'kind = "allowed-values"\nfield = "component"\nexcluded = ["cement"]'),
+        rule(
+            "pres",
+            'kind = "allowed-values"\nfield = "preservation"\nallowed = ["good", "excellent"]',
+            severity="warn",
+        ),
+    )
     t = records(component=["bulk", "cement", None], preservation=["Good ", "poor", None])
     assert outcomes(t, rs) == ["pass", "fail", "untested", "pass", "warn", "untested"]
 
 
 # --- covariance ------------------------------------------------------------------------
 
+
 def cov_rule(**kw) -> str:
     body = 'kind = "covariance"\n' + "\n".join(
         f"{k} = {str(v).lower() if isinstance(v, bool) else repr(v).replace(chr(39), chr(34))}"
-        for k, v in kw.items())
+        for k, v in kw.items()
+    )
     return rule("cov", body, severity="warn")
 
 
@@ -302,7 +379,7 @@ def test_covariance_r_and_p_equal_scipy() -> None:
     row = g.to_pylist()[0]
     assert row["n"] == n and row["n_eff"] == n
     assert row["r"] == pytest.approx(ref.statistic, rel=1e-10)
-    assert row["r2"] == pytest.approx(ref.statistic ** 2, rel=1e-10)
+    assert row["r2"] == pytest.approx(ref.statistic**2, rel=1e-10)
     assert row["p"] == pytest.approx(ref.pvalue, rel=1e-8)
 
 
@@ -346,9 +423,14 @@ def test_n_eff_is_smaller_for_an_autocorrelated_series() -> None:
     # the p is larger than the uncorrected one
     assert row["p"] >= sps.pearsonr(x, y).pvalue
     # the same records in shuffled position order lose the correction
-    shuffled = evaluate(t.set_column(t.column_names.index("position_m"), "position_m",
-                                     pa.array(rng.permutation(n).astype(float))),
-                        ruleset(cov_rule())).groups.to_pylist()[0]
+    shuffled = evaluate(
+        t.set_column(
+            t.column_names.index("position_m"),
+            "position_m",
+            pa.array(rng.permutation(n).astype(float)),
+        ),
+        ruleset(cov_rule()),
+    ).groups.to_pylist()[0]
     assert shuffled["n_eff"] > 0.8 * n
 
 
@@ -361,9 +443,12 @@ def test_effective_n_closed_form() -> None:
 def test_small_groups_are_untested_and_strong_covariance_warns() -> None:
     x = np.linspace(-6, -2, 12)
     y = 0.8 * x + np.array([0.05, -0.05] * 6)
-    t = records(d18o_carb=np.r_[x, x[:5]], d13c_carb=np.r_[y, y[:5]],
-                section_id=["a"] * 12 + ["b"] * 5, position_m=np.r_[np.arange(12.0),
-                                                                    np.arange(5.0)])
+    t = records(
+        d18o_carb=np.r_[x, x[:5]],
+        d13c_carb=np.r_[y, y[:5]],
+        section_id=["a"] * 12 + ["b"] * 5,
+        position_m=np.r_[np.arange(12.0), np.arange(5.0)],
+    )
     res, overall, g = evaluate(t, ruleset(cov_rule(min_n=10)))
     by_group = {r["section_id"]: r for r in g.to_pylist()}
     assert by_group["a"]["outcome"] == "warn" and by_group["b"]["outcome"] == "untested"
@@ -377,15 +462,23 @@ def test_small_groups_are_untested_and_strong_covariance_warns() -> None:
 def test_groups_by_source_section_and_unit() -> None:
     rng = np.random.default_rng(1)
     n = 24
-    t = records(d18o_carb=rng.normal(size=n), d13c_carb=rng.normal(size=n),
-                lithostrat_unit=["A"] * 12 + ["B"] * 11 + [None],
-                source_id=["s1"] * n, position_m=np.arange(float(n)))
+    t = records(
+        d18o_carb=rng.normal(size=n),
+        d13c_carb=rng.normal(size=n),
+        lithostrat_unit=["A"] * 12 + ["B"] * 11 + [None],
+        source_id=["s1"] * n,
+        position_m=np.arange(float(n)),
+    )
     g = evaluate(t, ruleset(cov_rule(group_by="section-unit", min_n=5))).groups.to_pylist()
     assert sorted((r["lithostrat_unit"], r["n"]) for r in g) == [("A", 12), ("B", 11)]
     assert g[0]["group"] == "s1/sec/A"
     # the same section name in two sources is two groups (datums differ between sources)
-    t2 = records(d18o_carb=rng.normal(size=n), d13c_carb=rng.normal(size=n),
-                 source_id=["s1"] * 12 + ["s2"] * 12, position_m=np.arange(float(n)))
+    t2 = records(
+        d18o_carb=rng.normal(size=n),
+        d13c_carb=rng.normal(size=n),
+        source_id=["s1"] * 12 + ["s2"] * 12,
+        position_m=np.arange(float(n)),
+    )
     assert evaluate(t2, ruleset(cov_rule(min_n=5))).groups.num_rows == 2
 
 
@@ -396,8 +489,9 @@ def test_moving_window_matches_brute_force() -> None:
     sec = np.array(["a", "b"])[rng.integers(0, 2, n)]
     x, y = rng.normal(size=n), rng.normal(size=n)
     t = records(d18o_carb=x, d13c_carb=y, position_m=pos, section_id=list(sec))
-    g = evaluate(t, ruleset(cov_rule(group_by="window", window_m=8.0, min_n=4,
-                                     lag1_correction=False))).groups.to_pylist()
+    g = evaluate(
+        t, ruleset(cov_rule(group_by="window", window_m=8.0, min_n=4, lag1_correction=False))
+    ).groups.to_pylist()
     assert len(g) == n
     for row in g:
         m = (sec == row["section_id"]) & (np.abs(pos - row["centre_m"]) <= 4.0)
@@ -408,26 +502,44 @@ def test_moving_window_matches_brute_force() -> None:
 
 # --- never changes the input -----------------------------------------------------------
 
+
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.tuples(
-    st.floats(-15, 10) | st.none(), st.floats(-20, 5) | st.none(),
-    st.floats(0, 600) | st.none(), st.floats(0, 3000) | st.none(),
-    st.floats(0, 2000) | st.none(), st.sampled_from(["<", ">", "bdl", None]),
-    st.floats(-90, 90), st.sampled_from(["bulk", "cement", "brachiopod", None]),
-    st.floats(0, 50)), min_size=0, max_size=40))
+@given(
+    st.lists(
+        st.tuples(
+            st.floats(-15, 10) | st.none(),
+            st.floats(-20, 5) | st.none(),
+            st.floats(0, 600) | st.none(),
+            st.floats(0, 3000) | st.none(),
+            st.floats(0, 2000) | st.none(),
+            st.sampled_from(["<", ">", "bdl", None]),
+            st.floats(-90, 90),
+            st.sampled_from(["bulk", "cement", "brachiopod", None]),
+            st.floats(0, 50),
+        ),
+        min_size=0,
+        max_size=40,
+    )
+)
 def test_screening_never_changes_the_records(rows) -> None:
     cols = list(zip(*rows, strict=True)) if rows else [[] for _ in range(9)]
     n = len(rows)
-    t = pa.table({
-        "record_id": pa.array([f"r{i}" for i in range(n)], pa.string()),
-        "source_id": pa.array(["s"] * n, pa.string()),
-        "section_id": pa.array(["a" if i % 2 else "b" for i in range(n)], pa.string()),
-        "d13c_carb": pa.array(cols[0], pa.float64()), "d18o_carb": pa.array(cols[1], pa.float64()),
-        "age_ma": pa.array(cols[2], pa.float64()), "mn_ppm": pa.array(cols[3], pa.float64()),
-        "sr_ppm": pa.array(cols[4], pa.float64()), "mn_qualifier": pa.array(cols[5], pa.string()),
-        "lat": pa.array(cols[6], pa.float64()), "component": pa.array(cols[7], pa.string()),
-        "position_m": pa.array(cols[8], pa.float64()),
-    })
+    t = pa.table(
+        {
+            "record_id": pa.array([f"r{i}" for i in range(n)], pa.string()),
+            "source_id": pa.array(["s"] * n, pa.string()),
+            "section_id": pa.array(["a" if i % 2 else "b" for i in range(n)], pa.string()),
+            "d13c_carb": pa.array(cols[0], pa.float64()),
+            "d18o_carb": pa.array(cols[1], pa.float64()),
+            "age_ma": pa.array(cols[2], pa.float64()),
+            "mn_ppm": pa.array(cols[3], pa.float64()),
+            "sr_ppm": pa.array(cols[4], pa.float64()),
+            "mn_qualifier": pa.array(cols[5], pa.string()),
+            "lat": pa.array(cols[6], pa.float64()),
+            "component": pa.array(cols[7], pa.string()),
+            "position_m": pa.array(cols[8], pa.float64()),
+        }
+    )
     snapshot = pa.Table.from_pylist(t.to_pylist(), schema=t.schema)
     df = t.to_pandas()
     before = df.copy(deep=True)
@@ -438,36 +550,83 @@ def test_screening_never_changes_the_records(rows) -> None:
     pd.testing.assert_frame_equal(df, before)
     assert overall.num_rows == n and res.num_rows == n * len(rs.rules)
     assert res.equals(res2) and overall.equals(overall2)
-    assert set(res.column("outcome").to_pylist()) <= {"pass", "fail", "warn", "untested",
-                                                      "not applicable"}
+    assert set(res.column("outcome").to_pylist()) <= {
+        "pass",
+        "fail",
+        "warn",
+        "untested",
+        "not applicable",
+    }
     assert all(d for d in res.column("detail").to_pylist())
 
 
 # --- bad rule files --------------------------------------------------------------------
 
-@pytest.mark.parametrize("text,pattern", [
-    (rule("ab", 'kind = "value-limit"\nfield = "mn_pmm"\npass_if = "below"\nlimit = 3\n'
-               'unit = "ppm"'), r"rule 'ab'.*'mn_pmm'.*Did you mean 'mn_ppm'"),
-    (rule("ab", 'kind = "value-limit"\nfield = "mn"\npass_if = "below"\nlimit = 3\nunit = "ppm"'),
-     r"rule 'ab'.*Did you mean 'mn_ppm' \(the stored column\)"),
-    (rule("ab", 'kind = "treshold"\nfield = "mn_ppm"'), r"rule 'ab'.*kind = 'treshold'"),
-    (rule("ab", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimt = 3\n'
-               'unit = "ppm"'), r"rule 'ab'.*unknown key 'limt'.*Did you mean 'limit'"),
-    (rule("ab", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "under"\nlimit = 3\n'
-               'unit = "ppm"'), r"rule 'ab'.*pass_if = 'under'"),
-    (rule("ab", 'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "sr_pm"\n'
-               'ratio_by = "mass"\npass_if = "below"\nlimit = 10'),
-     r"rule 'ab'.*denominator = 'sr_pm'.*Did you mean 'sr_ppm'"),
-    (rule("ab", 'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "d18o_carb"\n'
-               'ratio_by = "mass"\npass_if = "below"\nlimit = 10'), r"not a concentration"),
-    (rule("ab", 'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimit = 3\n'
-               'unit = "‰"'), r"rule 'ab'.*unit = '‰' does not fit mn_ppm"),
-    (MN_BELOW_300 + MN_BELOW_300, r"two rules are named 'mn-300'"),
-    (MN_BELOW_300.replace('severity = "fail"', 'severity = "error"'), r"severity = 'error'"),
-    (MN_BELOW_300.replace('citation = "common practice"\n', ""), r"rule 'mn-300': citation"),
-    (MN_BELOW_300.replace('citation = "common practice"', 'citation = " "'), r"citation"),
-    (cov_rule(group_by="window"), r"rule 'cov': window_m is missing"),
-])
+
+@pytest.mark.parametrize(
+    "text,pattern",
+    [
+        (
+            rule(
+                "ab",
+                'kind = "value-limit"\nfield = "mn_pmm"\npass_if = "below"\nlimit = 3\n'
+                'unit = "ppm"',
+            ),
+            r"rule 'ab'.*'mn_pmm'.*Did you mean 'mn_ppm'",
+        ),
+        (
+            rule(
+                "ab",
+                'kind = "value-limit"\nfield = "mn"\npass_if = "below"\nlimit = 3\nunit = "ppm"',
+            ),
+            r"rule 'ab'.*Did you mean 'mn_ppm' \(the stored column\)",
+        ),
+        (rule("ab", 'kind = "treshold"\nfield = "mn_ppm"'), r"rule 'ab'.*kind = 'treshold'"),
+        (
+            rule(
+                "ab",
+                'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimt = 3\nunit = "ppm"',
+            ),
+            r"rule 'ab'.*unknown key 'limt'.*Did you mean 'limit'",
+        ),
+        (
+            rule(
+                "ab",
+                'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "under"\nlimit = 3\n'
+                'unit = "ppm"',
+            ),
+            r"rule 'ab'.*pass_if = 'under'",
+        ),
+        (
+            rule(
+                "ab",
+                'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "sr_pm"\n'
+                'ratio_by = "mass"\npass_if = "below"\nlimit = 10',
+            ),
+            r"rule 'ab'.*denominator = 'sr_pm'.*Did you mean 'sr_ppm'",
+        ),
+        (
+            rule(
+                "ab",
+                'kind = "ratio-limit"\nnumerator = "mn_ppm"\ndenominator = "d18o_carb"\n'
+                'ratio_by = "mass"\npass_if = "below"\nlimit = 10',
+            ),
+            r"not a concentration",
+        ),
+        (
+            rule(
+                "ab",
+                'kind = "value-limit"\nfield = "mn_ppm"\npass_if = "below"\nlimit = 3\nunit = "‰"',
+            ),
+            r"rule 'ab'.*unit = '‰' does not fit mn_ppm",
+        ),
+        (MN_BELOW_300 + MN_BELOW_300, r"two rules are named 'mn-300'"),
+        (MN_BELOW_300.replace('severity = "fail"', 'severity = "error"'), r"severity = 'error'"),
+        (MN_BELOW_300.replace('citation = "common practice"\n', ""), r"rule 'mn-300': citation"),
+        (MN_BELOW_300.replace('citation = "common practice"', 'citation = " "'), r"citation"),
+        (cov_rule(group_by="window"), r"rule 'cov': window_m is missing"),
+    ],
+)
 def test_bad_rule_files_raise_config_error_naming_the_rule(text: str, pattern: str) -> None:
     with pytest.raises(ConfigError, match=pattern) as e:
         parse_rules(HEADER + text, "bad.toml")
@@ -479,8 +638,11 @@ def test_invalid_toml_names_line_and_rule(tmp_path: Path) -> None:
     p = tmp_path / "rules.toml"
     p.write_text(text, encoding="utf-8")
     line = text.splitlines().index("field = mn_ppm") + 1
-    with pytest.raises(ConfigError, match=rf"rules.toml is not valid TOML at line {line} "
-                                          r"\(in rule 'broken-one'\)"):
+    with pytest.raises(
+        ConfigError,
+        match=rf"rules.toml is not valid TOML at line {line} "
+        r"\(in rule 'broken-one'\)",
+    ):
         load_rules(p)
 
 
@@ -493,10 +655,14 @@ def test_missing_rule_file_is_an_instruction_error(tmp_path: Path) -> None:
 
 # --- summary and plots -----------------------------------------------------------------
 
+
 def test_summary_counts_per_source_section_rule_outcome() -> None:
     rs = ruleset(MN_BELOW_300)
-    t = records(mn_ppm=[100.0, 500.0, 100.0, None], section_id=["a", "a", "b", "b"],
-                source_id=["s1", "s1", "s1", "s2"])
+    t = records(
+        mn_ppm=[100.0, 500.0, 100.0, None],
+        section_id=["a", "a", "b", "b"],
+        source_id=["s1", "s1", "s1", "s2"],
+    )
     res, _, _ = evaluate(t, rs)
     got = summarise(t, res).to_pylist()
     assert got == [
@@ -513,9 +679,14 @@ def test_summary_counts_per_source_section_rule_outcome() -> None:
 def test_cross_plots_one_png_per_section(tmp_path: Path) -> None:
     rng = np.random.default_rng(2)
     n = 30
-    t = records(d18o_carb=rng.normal(-4, 2, n), d13c_carb=rng.normal(1, 1, n),
-                section_id=["Sect/../A b"] * 15 + ["B"] * 15, position_m=np.arange(float(n)),
-                mn_ppm=np.r_[[5000.0] * 3, [100.0] * 27], sr_ppm=[300.0] * n)
+    t = records(
+        d18o_carb=rng.normal(-4, 2, n),
+        d13c_carb=rng.normal(1, 1, n),
+        section_id=["Sect/../A b"] * 15 + ["B"] * 15,
+        position_m=np.arange(float(n)),
+        mn_ppm=np.r_[[5000.0] * 3, [100.0] * 27],
+        sr_ppm=[300.0] * n,
+    )
     rs = ruleset(MN_SR_10, cov_rule(min_n=5))
     res, _, g = evaluate(t, rs)
     files = plots.cross_plots(t, res, g, tmp_path / "plots")

@@ -48,8 +48,9 @@ lon = 20.0
 
 
 def write_source(folder: Path, rows: list[tuple[str, float, str]], name: str = "o.csv") -> Path:
-    (folder / name).write_text("Sample,Height,d13C\n" + "".join(
-        f"{s},{h},{d}\n" for s, h, d in rows), encoding="utf-8")
+    (folder / name).write_text(
+        "Sample,Height,d13C\n" + "".join(f"{s},{h},{d}\n" for s, h, d in rows), encoding="utf-8"
+    )
     m = folder / "o.toml"
     m.write_text(MAPPING.format(file=name), encoding="utf-8")
     return m
@@ -85,8 +86,9 @@ def test_refused_ingest_leaves_store_bytes_unchanged(tmp_path: Path) -> None:
 
 
 def test_keep_valid_reconciles_counts(tmp_path: Path) -> None:
-    (tmp_path / "k.csv").write_text("Sample,Height,d13C\na,1,1.0\n\nb,2,abc\nc,3,2\n",
-                                    encoding="utf-8")
+    (tmp_path / "k.csv").write_text(
+        "Sample,Height,d13C\na,1,1.0\n\nb,2,abc\nc,3,2\n", encoding="utf-8"
+    )
     (tmp_path / "o.toml").write_text(MAPPING.format(file="k.csv"), encoding="utf-8")
     store = api.init_store(tmp_path / "st")
     r = api.ingest(store, None, tmp_path / "o.toml", keep_valid=True)
@@ -119,12 +121,16 @@ def test_vsmow_oxygen_is_harmonised_with_the_iupac_relation(demo_store: Path) ->
 
 def test_interval_and_region_query_returns_exactly_the_matching_records(demo_store: Path) -> None:
     store = api.open_store(demo_store)
-    got = api.query(store, api.Filters(interval=(182.5, 183.5),
-                                       region=api.region(store, "northern shelf")))
+    got = api.query(
+        store, api.Filters(interval=(182.5, 183.5), region=api.region(store, "northern shelf"))
+    )
     everything = api.query(store)
-    expected = everything[(everything.age_ma >= 182.5) & (everything.age_ma <= 183.5)
-                          & everything.lat.between(45.5, 49.5)
-                          & everything.lon.between(8.0, 14.0)]
+    expected = everything[
+        (everything.age_ma >= 182.5)
+        & (everything.age_ma <= 183.5)
+        & everything.lat.between(45.5, 49.5)
+        & everything.lon.between(8.0, 14.0)
+    ]
     assert sorted(got.record_id) == sorted(expected.record_id)
     assert len(got) > 0
 
@@ -148,13 +154,22 @@ def test_export_is_byte_stable_and_as_of_reproduces(demo_store: Path, tmp_path: 
     assert latest.version == b.version + 1
 
 
-@pytest.mark.parametrize("statement", [
-    "DELETE FROM records", "COPY records TO 'x.csv'", "ATTACH 'x.db' AS y", "INSTALL httpfs",
-    "SET threads = 1", "PRAGMA version", "SELECT * FROM read_csv('/etc/passwd')",
-    "SELECT * FROM __ducklake_metadata_lake.ducklake_snapshot",
-    "SELECT * FROM sqlite_scan('catalog.sqlite', 'ducklake_snapshot')",
-    "SELECT * FROM lake.analyses", "SELECT 1; DROP TABLE records",
-])
+@pytest.mark.parametrize(
+    "statement",
+    [
+        "DELETE FROM records",
+        "COPY records TO 'x.csv'",
+        "ATTACH 'x.db' AS y",
+        "INSTALL httpfs",
+        "SET threads = 1",
+        "PRAGMA version",
+        "SELECT * FROM read_csv('/etc/passwd')",
+        "SELECT * FROM __ducklake_metadata_lake.ducklake_snapshot",
+        "SELECT * FROM sqlite_scan('catalog.sqlite', 'ducklake_snapshot')",
+        "SELECT * FROM lake.analyses",
+        "SELECT 1; DROP TABLE records",
+    ],
+)
 def test_sql_refuses_anything_but_reading_views(demo_store: Path, statement: str) -> None:
     store = api.open_store(demo_store)
     before = tree_bytes(demo_store)
@@ -255,8 +270,9 @@ def test_kill_9_around_commit_is_all_or_nothing(tmp_path: Path, when: str) -> No
     v = store.latest_version()
     m2 = write_source(tmp_path, [(f"b{i}", i, "2.0") for i in range(500)], "big.csv")
     marker = tmp_path / "at-commit"
-    proc = subprocess.Popen([sys.executable, "-c", HOOK, str(store.path), str(m2), str(marker),
-                             when])
+    proc = subprocess.Popen(
+        [sys.executable, "-c", HOOK, str(store.path), str(m2), str(marker), when]
+    )
     deadline = time.monotonic() + 120
     while not marker.exists() and time.monotonic() < deadline and proc.poll() is None:
         time.sleep(0.05)
@@ -280,8 +296,11 @@ def test_fault_before_commit_leaves_store_unchanged(tmp_path: Path) -> None:
     v = store.latest_version()
     m2 = write_source(tmp_path, [("x", 1, "3.0")], "x.csv")
     files_before = sorted((store.path / "data").rglob("*.parquet"))
-    res = subprocess.run([sys.executable, "-c", HOOK, str(store.path), str(m2),
-                          str(tmp_path / "unused"), "fault"], capture_output=True, text=True)
+    res = subprocess.run(
+        [sys.executable, "-c", HOOK, str(store.path), str(m2), str(tmp_path / "unused"), "fault"],
+        capture_output=True,
+        text=True,
+    )
     assert res.returncode != 0 and "injected fault" in res.stderr
     assert store.latest_version() == v
     assert api.sql(store, "SELECT count(*) FROM records").rows == [(5,)]
@@ -289,16 +308,37 @@ def test_fault_before_commit_leaves_store_unchanged(tmp_path: Path) -> None:
     assert sorted((store.path / "data").rglob("*.parquet")) == files_before
 
 
-JUNK = st.one_of(st.text(max_size=10), st.sampled_from(
-    ["n.d.", "bdl", "<0.5", "−1,5", "1,234", "2021-03-04", "=A1", "—", "1e400", "nan", "'",
-     "\"", ";", "\t", "′"]))
+JUNK = st.one_of(
+    st.text(max_size=10),
+    st.sampled_from(
+        [
+            "n.d.",
+            "bdl",
+            "<0.5",
+            "−1,5",
+            "1,234",
+            "2021-03-04",
+            "=A1",
+            "—",
+            "1e400",
+            "nan",
+            "'",
+            '"',
+            ";",
+            "\t",
+            "′",
+        ]
+    ),
+)
 
 
-@settings(max_examples=25, deadline=None,
-          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(cells=st.lists(st.tuples(JUNK, JUNK, JUNK), min_size=1, max_size=6))
-def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(tmp_path: Path,
-                                                                    cells: list) -> None:
+def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(
+    tmp_path: Path, cells: list
+) -> None:
     import csv as _csv
     import tempfile
 
@@ -319,14 +359,18 @@ def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(tmp_path: Pat
 
 
 @pytest.mark.parametrize("when,said", [("before", "did not land"), ("after", "landed")])
-def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(tmp_path: Path, when: str,
-                                                              said: str) -> None:
+def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(
+    tmp_path: Path, when: str, said: str
+) -> None:
     store = api.init_store(tmp_path / "st")
     v = store.latest_version()
     m = write_source(tmp_path, [("a", 1, "1.0")], "o.csv")
     marker = tmp_path / "at-commit"
-    proc = subprocess.Popen([sys.executable, "-c", HOOK, str(store.path), str(m), str(marker),
-                             when, "cli"], stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", HOOK, str(store.path), str(m), str(marker), when, "cli"],
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     deadline = time.monotonic() + 120
     while not marker.exists() and time.monotonic() < deadline and proc.poll() is None:
         time.sleep(0.05)

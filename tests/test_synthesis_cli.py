@@ -55,13 +55,15 @@ def svg_text(path: Path) -> str:
     """The text drawn in an SVG: with text as paths, matplotlib keeps each string as a
     comment beside its glyphs; plain <text> elements are taken too."""
     raw = path.read_text(encoding="utf-8")
-    return "\n".join(re.findall(r"<!-- (.*?) -->", raw) + re.findall(r"<text[^>]*>(.*?)</text>",
-                                                                     raw))
+    return "\n".join(
+        re.findall(r"<!-- (.*?) -->", raw) + re.findall(r"<text[^>]*>(.*?)</text>", raw)
+    )
 
 
 def folder_bytes(folder: Path) -> dict[str, bytes]:
-    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
-            if p.is_file()}
+    return {
+        str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()
+    }
 
 
 def query(store: Path, *filters: str) -> pd.DataFrame:
@@ -74,9 +76,15 @@ def samples(records: pd.DataFrame, value: str = "d13c_carb") -> pd.DataFrame:
     have = records[records[value].notna()]
     key = ["source_id", "section_id", "sample_id"]
     out = have.groupby(key, as_index=False).agg(
-        value=(value, "mean"), age_ma=("age_ma", "first"), lon=("lon", "first"),
-        lat=("lat", "first"), component=("component", "first"), setting=("setting", "first"),
-        position_m=("position_m", "first"), position_kind=("position_kind", "first"))
+        value=(value, "mean"),
+        age_ma=("age_ma", "first"),
+        lon=("lon", "first"),
+        lat=("lat", "first"),
+        component=("component", "first"),
+        setting=("setting", "first"),
+        position_m=("position_m", "first"),
+        position_kind=("position_kind", "first"),
+    )
     return out[out["age_ma"].notna()].reset_index(drop=True)
 
 
@@ -92,8 +100,9 @@ def region_of(df: pd.DataFrame) -> pd.Series:
         assert len(hits) == 1, (lon, lat, hits)
         return hits[0]
 
-    return pd.Series([name(x, y) for x, y in zip(df["lon"], df["lat"], strict=True)],
-                     index=df.index)
+    return pd.Series(
+        [name(x, y) for x, y in zip(df["lon"], df["lat"], strict=True)], index=df.index
+    )
 
 
 def bin_index(age: np.ndarray, edges: np.ndarray) -> np.ndarray:
@@ -112,6 +121,7 @@ def manifest(folder: Path, name: str = "curve_manifest.json") -> dict:
 
 
 # ---------------------------------------------------------------------- shared fixtures
+
 
 @pytest.fixture(scope="module")
 def store(demo_store_session: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
@@ -144,21 +154,33 @@ def banded(store: Path, outs: Path) -> tuple[Path, Ran]:
     """As region_curve with --min-sections 3 (the demo's southern basin has three cores, so
     the default of five hides its band) and --robustness."""
     out = outs / "banded"
-    return out, ok("curve", "--out", out, *REGION_ARGS, "--min-sections", "3",
-                   "--robustness", "--store", store)
+    return out, ok(
+        "curve", "--out", out, *REGION_ARGS, "--min-sections", "3", "--robustness", "--store", store
+    )
 
 
 # ------------------------------------------------------------------- 1. files, manifest
 
+
 def test_curve_writes_its_files_and_a_manifest_of_every_parameter(
-        store: Path, region_curve: tuple[Path, Ran]) -> None:
+    store: Path, region_curve: tuple[Path, Ran]
+) -> None:
     out, ran = region_curve
     assert {p.name for p in out.iterdir()} == CURVE_FILES | {"curve_manifest.json"}
     m = manifest(out)
     p = m["parameters"]
-    assert (p["span"], p["boots"], p["seed"], p["weight"], p["bin_myr"], p["by"],
-            p["age_draws"], p["min_sections"], p["isotope"], p["allow_mixed"]) == (
-        0.3, 200, 0, "sections", 0.25, "region", 0, 5, "carb", False)
+    assert (
+        p["span"],
+        p["boots"],
+        p["seed"],
+        p["weight"],
+        p["bin_myr"],
+        p["by"],
+        p["age_draws"],
+        p["min_sections"],
+        p["isotope"],
+        p["allow_mixed"],
+    ) == (0.3, 200, 0, "sections", 0.25, "region", 0, 5, "carb", False)
     # the filters as given and as numbers on the store's chart
     iv = m["filters"]["interval"]
     assert iv["given"] == "Toarcian"
@@ -184,9 +206,9 @@ def test_curve_writes_its_files_and_a_manifest_of_every_parameter(
 
 # ------------------------------------------------------------------- 2. bins vs pandas
 
+
 def _expected_bins(smp: pd.DataFrame, edges: np.ndarray) -> pd.DataFrame:
-    smp = smp.assign(group=region_of(smp),
-                     bin=bin_index(smp["age_ma"].to_numpy(float), edges))
+    smp = smp.assign(group=region_of(smp), bin=bin_index(smp["age_ma"].to_numpy(float), edges))
     assert (smp["bin"] >= 0).all()
     return smp
 
@@ -206,7 +228,8 @@ def _edges_from(bins: pd.DataFrame, smp: pd.DataFrame, width: float) -> np.ndarr
 
 
 def test_bins_count_samples_and_sections_like_a_pandas_groupby(
-        region_curve: tuple[Path, Ran], toarcian: pd.DataFrame) -> None:
+    region_curve: tuple[Path, Ran], toarcian: pd.DataFrame
+) -> None:
     out, _ = region_curve
     bins = pd.read_csv(out / "bins.csv")
     smp = samples(toarcian)
@@ -217,37 +240,50 @@ def test_bins_count_samples_and_sections_like_a_pandas_groupby(
     for g, part in bins.groupby("group"):
         mine = smp[smp["group"] == g]
         n = mine.groupby("bin").size().reindex(range(len(part)), fill_value=0)
-        secs = mine.groupby("bin")[["source_id", "section_id"]].apply(
-            lambda d: len(d.drop_duplicates())).reindex(range(len(part)), fill_value=0)
+        secs = (
+            mine.groupby("bin")[["source_id", "section_id"]]
+            .apply(lambda d: len(d.drop_duplicates()))
+            .reindex(range(len(part)), fill_value=0)
+        )
         assert part["n_samples"].tolist() == n.tolist(), g
         assert part["n_sections"].tolist() == secs.tolist(), g
         # sections weigh equally: a bin's mean is the mean of its section means
         sec_means = mine.groupby(["bin", "source_id", "section_id"])["value"].mean()
         mean = sec_means.groupby(level="bin").mean().reindex(range(len(part)))
-        np.testing.assert_allclose(part["mean"].to_numpy(float), mean.to_numpy(float),
-                                   rtol=1e-5, atol=1e-6)
+        np.testing.assert_allclose(
+            part["mean"].to_numpy(float), mean.to_numpy(float), rtol=1e-5, atol=1e-6
+        )
 
 
 def test_sample_weighted_bin_medians_are_pandas_medians(
-        store: Path, outs: Path, toarcian: pd.DataFrame) -> None:
+    store: Path, outs: Path, toarcian: pd.DataFrame
+) -> None:
     out = outs / "by_samples"
-    ok("curve", "--out", out, *REGION_ARGS, "--weight", "samples", "--boots", "0",
-       "--store", store)
+    ok("curve", "--out", out, *REGION_ARGS, "--weight", "samples", "--boots", "0", "--store", store)
     bins = pd.read_csv(out / "bins.csv")
     smp = samples(toarcian)
     smp = _expected_bins(smp, _edges_from(bins, smp, 0.25))
     for g, part in bins.groupby("group"):
         mine = smp[smp["group"] == g].groupby("bin")["value"]
         full = range(len(part))
-        np.testing.assert_allclose(part["median"].to_numpy(float),
-                                   mine.median().reindex(full).to_numpy(float),
-                                   rtol=1e-5, atol=1e-6)
-        np.testing.assert_allclose(part["mean"].to_numpy(float),
-                                   mine.mean().reindex(full).to_numpy(float),
-                                   rtol=1e-5, atol=1e-6)
-        np.testing.assert_allclose(part["q75"].to_numpy(float),
-                                   mine.quantile(0.75).reindex(full).to_numpy(float),
-                                   rtol=1e-5, atol=1e-6)
+        np.testing.assert_allclose(
+            part["median"].to_numpy(float),
+            mine.median().reindex(full).to_numpy(float),
+            rtol=1e-5,
+            atol=1e-6,
+        )
+        np.testing.assert_allclose(
+            part["mean"].to_numpy(float),
+            mine.mean().reindex(full).to_numpy(float),
+            rtol=1e-5,
+            atol=1e-6,
+        )
+        np.testing.assert_allclose(
+            part["q75"].to_numpy(float),
+            mine.quantile(0.75).reindex(full).to_numpy(float),
+            rtol=1e-5,
+            atol=1e-6,
+        )
     assert manifest(out)["parameters"]["weight"] == "samples"
 
 
@@ -313,8 +349,18 @@ def test_replicates_are_averaged_before_binning(demo_store: Path, tmp_path: Path
     records = query(demo_store, "--interval", "Toarcian")
     assert (records["replicate"] > 1).sum() == 4  # four extra analyses of three samples
     out = tmp_path / "curve"
-    ok("curve", "--out", out, *REGION_ARGS, "--weight", "samples", "--boots", "0",
-       "--store", demo_store)
+    ok(
+        "curve",
+        "--out",
+        out,
+        *REGION_ARGS,
+        "--weight",
+        "samples",
+        "--boots",
+        "0",
+        "--store",
+        demo_store,
+    )
     bins = pd.read_csv(out / "bins.csv")
     smp = samples(records)
     assert manifest(out)["samples"] == len(smp) == len(records) - 4
@@ -323,9 +369,12 @@ def test_replicates_are_averaged_before_binning(demo_store: Path, tmp_path: Path
         mine = smp[smp["group"] == g].groupby("bin")["value"]
         full = range(len(part))
         assert part["n_samples"].tolist() == mine.size().reindex(full, fill_value=0).tolist()
-        np.testing.assert_allclose(part["median"].to_numpy(float),
-                                   mine.median().reindex(full).to_numpy(float),
-                                   rtol=1e-5, atol=1e-6)
+        np.testing.assert_allclose(
+            part["median"].to_numpy(float),
+            mine.median().reindex(full).to_numpy(float),
+            rtol=1e-5,
+            atol=1e-6,
+        )
     # TR-03's three analyses (−1.0, −1.6, −1.3) are one sample of −1.3 ‰
     tr3 = smp[smp["sample_id"] == "TR-03"]
     assert tr3["value"].tolist() == pytest.approx([-1.3])
@@ -333,8 +382,10 @@ def test_replicates_are_averaged_before_binning(demo_store: Path, tmp_path: Path
 
 # ------------------------------------------------------------------- 3. the excursion
 
+
 def test_each_region_dips_below_zero_near_183_ma_between_heavier_ends(
-        region_curve: tuple[Path, Ran]) -> None:
+    region_curve: tuple[Path, Ran],
+) -> None:
     out, _ = region_curve
     curve = pd.read_csv(out / "curve.csv")
     assert set(curve["group"]) == {"northern shelf", "southern basin"}
@@ -343,7 +394,7 @@ def test_each_region_dips_below_zero_near_183_ma_between_heavier_ends(
         low = part.loc[part["fit"].idxmin()]
         assert 182.7 <= low["age"] <= 183.3, (g, low["age"])
         assert low["fit"] < 0.0, g
-        assert part["fit"].iloc[0] > 1.0, g   # the old end
+        assert part["fit"].iloc[0] > 1.0, g  # the old end
         assert part["fit"].iloc[-1] > 1.0, g  # the young end
         # the curve stays inside the data and inside the Toarcian
         assert TOARCIAN[1] <= part["age"].min() and part["age"].max() <= TOARCIAN[0]
@@ -351,8 +402,10 @@ def test_each_region_dips_below_zero_near_183_ma_between_heavier_ends(
 
 # ------------------------------------------------------------------- 4. repeats, seed
 
+
 def test_the_same_command_writes_the_same_bytes_and_leaves_the_store_alone(
-        store: Path, outs: Path, region_curve: tuple[Path, Ran]) -> None:
+    store: Path, outs: Path, region_curve: tuple[Path, Ran]
+) -> None:
     first, _ = region_curve
     before = tree_bytes(store)
     again = outs / "region_again"
@@ -365,11 +418,11 @@ def test_the_same_command_writes_the_same_bytes_and_leaves_the_store_alone(
 
 
 def test_another_seed_moves_the_band_and_not_the_fit(
-        store: Path, outs: Path, banded: tuple[Path, Ran]) -> None:
+    store: Path, outs: Path, banded: tuple[Path, Ran]
+) -> None:
     out0, _ = banded
     out7 = outs / "seed7"
-    ok("curve", "--out", out7, *REGION_ARGS, "--min-sections", "3", "--seed", "7",
-       "--store", store)
+    ok("curve", "--out", out7, *REGION_ARGS, "--min-sections", "3", "--seed", "7", "--store", store)
     c0, c7 = pd.read_csv(out0 / "curve.csv"), pd.read_csv(out7 / "curve.csv")
     assert c0[["group", "age"]].equals(c7[["group", "age"]])
     assert c0["fit"].equals(c7["fit"])
@@ -386,8 +439,10 @@ def test_another_seed_moves_the_band_and_not_the_fit(
 
 # ------------------------------------------------------------------- 5. robustness, ages
 
+
 def test_robustness_writes_its_tables_and_names_the_most_influential_sources(
-        banded: tuple[Path, Ran], toarcian: pd.DataFrame) -> None:
+    banded: tuple[Path, Ran], toarcian: pd.DataFrame
+) -> None:
     out, ran = banded
     assert {"influence.csv", "robustness_curves.csv"} <= {p.name for p in out.iterdir()}
     listed = {f["path"] for f in manifest(out)["files"]}
@@ -396,14 +451,17 @@ def test_robustness_writes_its_tables_and_names_the_most_influential_sources(
     smp = samples(toarcian)
     smp["group"] = region_of(smp)
     for g, part in smp.groupby("group"):
-        sections = {f"{a}/{b}" for a, b in
-                    part[["source_id", "section_id"]].drop_duplicates().itertuples(index=False)}
+        sections = {
+            f"{a}/{b}"
+            for a, b in part[["source_id", "section_id"]].drop_duplicates().itertuples(index=False)
+        }
         sources = set(part["source_id"])
         mine = infl[infl["group"] == g]
         assert set(mine.loc[mine["leave"] == "section", "left_out"]) == sections
         # a source is left out only where the group has two or more
         assert set(mine.loc[mine["leave"] == "source", "left_out"]) == (
-            sources if len(sources) > 1 else set())
+            sources if len(sources) > 1 else set()
+        )
         # n_samples is what each left-out unit holds
         by_src = part.groupby("source_id").size()
         for r in mine[mine["leave"] == "source"].itertuples():
@@ -413,29 +471,44 @@ def test_robustness_writes_its_tables_and_names_the_most_influential_sources(
     rob = pd.read_csv(out / "robustness_curves.csv")
     both = rob.merge(curve[["group", "age", "fit"]], on=["group", "age"], suffixes=("", "_all"))
     assert len(both) == len(rob)
-    change = (both["fit"] - both["fit_all"]).abs().groupby(
-        [both["group"], both["leave"], both["left_out"]]).max()
+    change = (
+        (both["fit"] - both["fit_all"])
+        .abs()
+        .groupby([both["group"], both["leave"], both["left_out"]])
+        .max()
+    )
     for r in infl.itertuples():
-        assert change[(r.group, r.leave, r.left_out)] == pytest.approx(r.max_abs_change,
-                                                                       abs=5e-5)
+        assert change[(r.group, r.leave, r.left_out)] == pytest.approx(r.max_abs_change, abs=5e-5)
     # the CLI names the sources, most influential first, with their largest change
     said = re.findall(r"influence \[(.+?)\] without (\S+): largest change ([0-9.]+)", ran.err)
     assert said, ran.err
     for g in {s[0] for s in said}:
-        top = (infl[(infl["group"] == g) & (infl["leave"] == "source")]
-               .sort_values("max_abs_change", ascending=False))
+        top = infl[(infl["group"] == g) & (infl["leave"] == "source")].sort_values(
+            "max_abs_change", ascending=False
+        )
         names = [s[1] for s in said if s[0] == g]
         assert names == top["left_out"].head(len(names)).tolist()
         assert float([s[2] for s in said if s[0] == g][0]) == pytest.approx(
-            top["max_abs_change"].iloc[0], rel=5e-3)
+            top["max_abs_change"].iloc[0], rel=5e-3
+        )
     assert "northern shelf" in {s[0] for s in said}  # its two sources are listed
 
 
 def test_age_draws_widen_the_band(store: Path, outs: Path, banded: tuple[Path, Ran]) -> None:
     fixed, _ = banded
     drawn = outs / "age_draws"
-    ok("curve", "--out", drawn, *REGION_ARGS, "--min-sections", "3", "--age-draws", "50",
-       "--store", store)
+    ok(
+        "curve",
+        "--out",
+        drawn,
+        *REGION_ARGS,
+        "--min-sections",
+        "3",
+        "--age-draws",
+        "50",
+        "--store",
+        store,
+    )
     assert manifest(drawn)["parameters"]["age_draws"] == 50
     a, b = pd.read_csv(fixed / "curve.csv"), pd.read_csv(drawn / "curve.csv")
     assert a["fit"].equals(b["fit"])  # the fit is of the ages as stored
@@ -448,8 +521,10 @@ def test_age_draws_widen_the_band(store: Path, outs: Path, banded: tuple[Path, R
 
 # ------------------------------------------------------------------- 6. grouping, isotopes
 
+
 def test_default_groups_are_component_and_setting_and_never_mix(
-        store: Path, outs: Path, toarcian: pd.DataFrame) -> None:
+    store: Path, outs: Path, toarcian: pd.DataFrame
+) -> None:
     out = outs / "default_groups"
     ok("curve", "--out", out, "--interval", "Toarcian", "--store", store)
     smp = samples(toarcian)
@@ -461,17 +536,21 @@ def test_default_groups_are_component_and_setting_and_never_mix(
     assert set(bins["group"]) == set(expected.index)
     assert manifest(out)["groups"] == sorted(expected.index)
     # every group holds exactly the samples of its component and setting
-    assert bins.groupby("group")["n_samples"].sum().sort_index().tolist() == \
-        expected.sort_index().tolist()
+    assert (
+        bins.groupby("group")["n_samples"].sum().sort_index().tolist()
+        == expected.sort_index().tolist()
+    )
     # without --bin-myr the bins are the chart's stages: all of these lie in the Toarcian
     assert (bins["age_old"] <= TOARCIAN[0] + 1e-9).all()
     assert (bins["age_young"] >= TOARCIAN[1] - 1e-9).all()
-    assert "component" in svg_text(out / "curve.svg") and \
-        "bulk · basin" in svg_text(out / "curve.svg")
+    assert "component" in svg_text(out / "curve.svg") and "bulk · basin" in svg_text(
+        out / "curve.svg"
+    )
 
 
 def test_organic_carbon_is_drawn_and_labelled_as_such(
-        store: Path, outs: Path, toarcian: pd.DataFrame) -> None:
+    store: Path, outs: Path, toarcian: pd.DataFrame
+) -> None:
     out = outs / "org"
     ok("curve", "--out", out, "--interval", "Toarcian", "--isotope", "org", "--store", store)
     org = samples(toarcian, "d13c_org")
@@ -503,8 +582,7 @@ def test_allow_mixed_says_carbonate_and_organic_were_merged(mixed: Path) -> None
     assert not any("nothing was merged" in n for n in m["notes"])
 
 
-def test_allow_mixed_keeps_both_values_of_a_sample(
-        mixed: Path, toarcian: pd.DataFrame) -> None:
+def test_allow_mixed_keeps_both_values_of_a_sample(mixed: Path, toarcian: pd.DataFrame) -> None:
     bins = pd.read_csv(mixed / "bins.csv")
     carb, org = samples(toarcian), samples(toarcian, "d13c_org")
     basin = bins[bins["group"] == "bulk" + SEP + "basin"]
@@ -516,6 +594,7 @@ def test_allow_mixed_keeps_both_values_of_a_sample(
 
 
 # ------------------------------------------------------------------- 7. excursion
+
 
 def _baseline_and_peak(part: pd.DataFrame) -> tuple[float, float, int]:
     """Default baseline (median of the oldest max(3, ⌈20 %⌉) samples, stratigraphically)
@@ -529,23 +608,34 @@ def _baseline_and_peak(part: pd.DataFrame) -> tuple[float, float, int]:
 
 
 def test_excursion_csv_has_one_negative_row_per_section_and_component(
-        store: Path, toarcian: pd.DataFrame) -> None:
-    r = ok("excursion", "--interval", "Toarcian", "--format", "csv", "--direction",
-           "negative", "--store", store)
+    store: Path, toarcian: pd.DataFrame
+) -> None:
+    r = ok(
+        "excursion",
+        "--interval",
+        "Toarcian",
+        "--format",
+        "csv",
+        "--direction",
+        "negative",
+        "--store",
+        store,
+    )
     lines = r.out.splitlines()
     assert lines[0].startswith("source_id,section_id,")
     per = pd.read_csv(io.StringIO(r.out))
     smp = samples(toarcian)
     # one row per section and component: a section's bulk and micrite records are never
     # mixed into one excursion (the Ystrel cores alternate them)
-    keys = set(smp[["source_id", "section_id", "component"]].itertuples(index=False,
-                                                                         name=None))
+    keys = set(smp[["source_id", "section_id", "component"]].itertuples(index=False, name=None))
     assert len(per) == len(lines) - 1 == len(keys) >= 6
-    assert set(per[["source_id", "section_id", "group"]].itertuples(index=False,
-                                                                    name=None)) == keys
+    assert set(per[["source_id", "section_id", "group"]].itertuples(index=False, name=None)) == keys
     for row in per.itertuples():
-        part = smp[(smp["source_id"] == row.source_id) & (smp["section_id"] == row.section_id)
-                   & (smp["component"] == row.group)]
+        part = smp[
+            (smp["source_id"] == row.source_id)
+            & (smp["section_id"] == row.section_id)
+            & (smp["component"] == row.group)
+        ]
         base, peak, n = _baseline_and_peak(part)
         assert row.n_samples == n
         assert row.baseline == pytest.approx(base, abs=1e-9)
@@ -560,13 +650,29 @@ def test_excursion_csv_has_one_negative_row_per_section_and_component(
 
 
 def test_excursion_out_writes_tables_and_figures_with_a_summary_per_region(
-        store: Path, outs: Path, toarcian: pd.DataFrame) -> None:
+    store: Path, outs: Path, toarcian: pd.DataFrame
+) -> None:
     out = outs / "excursion"
-    r = ok("excursion", "--interval", "Toarcian", "--by", "region", "--direction",
-           "negative", "--out", out, "--store", store)
+    r = ok(
+        "excursion",
+        "--interval",
+        "Toarcian",
+        "--by",
+        "region",
+        "--direction",
+        "negative",
+        "--out",
+        out,
+        "--store",
+        store,
+    )
     names = {p.name for p in out.iterdir()}
-    assert {"excursion_sections.csv", "excursion_summary.csv", "excursion.png",
-            "excursion.svg"} <= names
+    assert {
+        "excursion_sections.csv",
+        "excursion_summary.csv",
+        "excursion.png",
+        "excursion.svg",
+    } <= names
     for name in ("excursion.png", "excursion.svg"):
         assert (out / name).stat().st_size > 1000
         assert sha(out / name)[:16] in r.err  # the CLI names each file with its sum
@@ -584,10 +690,10 @@ def test_excursion_out_writes_tables_and_figures_with_a_summary_per_region(
     assert len(every) == 1 and every["n_sections"].iloc[0] == len(per)
     for g, part in per.groupby("group"):
         assert groups.loc[g, "n_sections"] == len(part)
-        assert groups.loc[g, "magnitude_mean"] == pytest.approx(part["magnitude"].mean(),
-                                                                rel=1e-5)
-        assert groups.loc[g, "magnitude_sd"] == pytest.approx(part["magnitude"].std(ddof=1),
-                                                              rel=1e-5)
+        assert groups.loc[g, "magnitude_mean"] == pytest.approx(part["magnitude"].mean(), rel=1e-5)
+        assert groups.loc[g, "magnitude_sd"] == pytest.approx(
+            part["magnitude"].std(ddof=1), rel=1e-5
+        )
     assert every["magnitude_mean"].iloc[0] == pytest.approx(per["magnitude"].mean(), rel=1e-5)
     # the stdout table is the per-section table
     assert "Fennoway Bluff" in r.out and "southern basin" in r.out
@@ -595,8 +701,7 @@ def test_excursion_out_writes_tables_and_figures_with_a_summary_per_region(
 
 # ------------------------------------------------------------------- 8. export --with-curve
 
-EXPORT_ARGS = ("--interval", "Toarcian", "--with-curve", "--by", "region", "--bin-myr",
-               "0.25")
+EXPORT_ARGS = ("--interval", "Toarcian", "--with-curve", "--by", "region", "--bin-myr", "0.25")
 
 
 @pytest.fixture(scope="module")
@@ -609,7 +714,8 @@ def exports(store: Path, outs: Path) -> tuple[Path, Path]:
 
 
 def test_export_with_curve_records_its_files_and_repeats_byte_for_byte(
-        exports: tuple[Path, Path], region_curve: tuple[Path, Ran]) -> None:
+    exports: tuple[Path, Path], region_curve: tuple[Path, Ran]
+) -> None:
     a, b = exports
     assert {p.name for p in (a / "curve").iterdir()} == CURVE_FILES | {"curve_manifest.json"}
     m = manifest(a, "manifest.json")
@@ -619,7 +725,13 @@ def test_export_with_curve_records_its_files_and_repeats_byte_for_byte(
         assert sha(a / path) == digest, path
     p = m["curve"]["parameters"]
     assert (p["by"], p["bin_myr"], p["span"], p["boots"], p["seed"], p["weight"]) == (
-        "region", 0.25, 0.3, 200, 0, "sections")
+        "region",
+        0.25,
+        0.3,
+        200,
+        0,
+        "sections",
+    )
     assert m["curve"]["store_version"] == m["store_version"]
     assert m["curve"]["filters"]["interval"]["given"] == "Toarcian"
     # the curve beside the export is the one `strata13 curve` draws for the same request
@@ -633,7 +745,8 @@ def test_export_with_curve_records_its_files_and_repeats_byte_for_byte(
 
 
 def test_export_reproduce_line_names_the_filters_and_curve_options(
-        exports: tuple[Path, Path]) -> None:
+    exports: tuple[Path, Path],
+) -> None:
     line = manifest(exports[0], "manifest.json")["reproduce"]
     assert "--interval Toarcian" in line
     assert "--by region" in line and "--bin-myr 0.25" in line
@@ -641,8 +754,18 @@ def test_export_reproduce_line_names_the_filters_and_curve_options(
 
 def test_a_refused_curve_leaves_no_half_export(store: Path, tmp_path: Path) -> None:
     out = tmp_path / "export"
-    r = run("export", "--out", out, "--interval", "Toarcian", "--with-curve", "--bin-myr", "5",
-            "--store", store)
+    r = run(
+        "export",
+        "--out",
+        out,
+        "--interval",
+        "Toarcian",
+        "--with-curve",
+        "--bin-myr",
+        "5",
+        "--store",
+        store,
+    )
     assert r.code == 2 and "--bin-myr" in r.err
     assert not (out / "manifest.json").exists()
 
@@ -660,11 +783,22 @@ BAD = [
 ]
 
 
-@pytest.mark.parametrize(("args", "code", "words"), BAD,
-                         ids=["empty-interval", "bin-wider", "span-0", "span-1.5", "boots-neg",
-                              "by-planet", "isotope-water"])
+@pytest.mark.parametrize(
+    ("args", "code", "words"),
+    BAD,
+    ids=[
+        "empty-interval",
+        "bin-wider",
+        "span-0",
+        "span-1.5",
+        "boots-neg",
+        "by-planet",
+        "isotope-water",
+    ],
+)
 def test_bad_curve_requests_are_refused_clearly(
-        store: Path, tmp_path: Path, args: tuple[str, ...], code: int, words: str) -> None:
+    store: Path, tmp_path: Path, args: tuple[str, ...], code: int, words: str
+) -> None:
     out = tmp_path / "curve"
     r = run(args[0], "--out", out, *args[1:], "--store", store)
     assert r.code == code, r.err
@@ -683,8 +817,7 @@ def test_excursion_without_interval_is_refused(store: Path, tmp_path: Path) -> N
     assert not out.exists()
 
 
-def test_curve_out_inside_the_store_is_refused_and_the_store_is_untouched(
-        demo_store: Path) -> None:
+def test_curve_out_inside_the_store_is_refused_and_the_store_is_untouched(demo_store: Path) -> None:
     before = tree_bytes(demo_store)
     for target in (demo_store / "curves", demo_store):
         r = run("curve", "--out", target, "--interval", "Toarcian", "--store", demo_store)

@@ -18,32 +18,70 @@ from strata13.errors import DomainError
 STAGES = [("Toarcian", 184.2, 174.7), ("Pliensbachian", 192.9, 184.2)]
 
 
-def _inputs(groups: tuple[str, ...] = ("North", "South"), band: bool = True
-            ) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+def _inputs(
+    groups: tuple[str, ...] = ("North", "South"), band: bool = True
+) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     rng = np.random.default_rng(3)
     ages = np.linspace(180.0, 187.0, 60)
-    samples = pd.concat([pd.DataFrame({
-        "group": g, "age_ma": ages,
-        "value": 1.0 + k - 3.0 * np.exp(-((ages - 183.5) / 0.5) ** 2)
-        + rng.normal(0, 0.2, ages.size)}) for k, g in enumerate(groups)])
+    samples = pd.concat(
+        [
+            pd.DataFrame(
+                {
+                    "group": g,
+                    "age_ma": ages,
+                    "value": 1.0
+                    + k
+                    - 3.0 * np.exp(-(((ages - 183.5) / 0.5) ** 2))
+                    + rng.normal(0, 0.2, ages.size),
+                }
+            )
+            for k, g in enumerate(groups)
+        ]
+    )
     grid = np.linspace(180.0, 187.0, 40)
-    curve = pd.concat([pd.DataFrame({
-        "group": g, "age_ma": grid, "fit": (f := 1.0 + k - 3.0 * np.exp(-((grid - 183.5)
-                                                                        / 0.5) ** 2)),
-        "lo": f - 0.3, "hi": f + 0.3, "band_shown": band & (grid > 181.0)})
-        for k, g in enumerate(groups)])
-    robust = pd.concat([pd.DataFrame({"group": groups[0], "left_out": s, "age_ma": grid,
-                                      "fit": 1.0 + 0.1 * j - 3.0 * np.exp(
-                                          -((grid - 183.5) / 0.5) ** 2)})
-                        for j, s in enumerate(("A", "B", "C"))])
+    curve = pd.concat(
+        [
+            pd.DataFrame(
+                {
+                    "group": g,
+                    "age_ma": grid,
+                    "fit": (f := 1.0 + k - 3.0 * np.exp(-(((grid - 183.5) / 0.5) ** 2))),
+                    "lo": f - 0.3,
+                    "hi": f + 0.3,
+                    "band_shown": band & (grid > 181.0),
+                }
+            )
+            for k, g in enumerate(groups)
+        ]
+    )
+    robust = pd.concat(
+        [
+            pd.DataFrame(
+                {
+                    "group": groups[0],
+                    "left_out": s,
+                    "age_ma": grid,
+                    "fit": 1.0 + 0.1 * j - 3.0 * np.exp(-(((grid - 183.5) / 0.5) ** 2)),
+                }
+            )
+            for j, s in enumerate(("A", "B", "C"))
+        ]
+    )
     return samples, curve, robust
 
 
 def test_curve_figure_size_and_png_pixels(tmp_path: Path) -> None:
     # Source: matplotlib's own reading of the file (imread) against size × DPI.
     samples, curve, robust = _inputs()
-    fig = figures.curve_figure(samples, curve, robustness=robust, stages=STAGES,
-                               bins=[182.0, 184.0, 186.0], title="Invented", size=(7.0, 4.5))
+    fig = figures.curve_figure(
+        samples,
+        curve,
+        robustness=robust,
+        stages=STAGES,
+        bins=[182.0, 184.0, 186.0],
+        title="Invented",
+        size=(7.0, 4.5),
+    )
     fig.canvas.draw()
     assert tuple(fig.get_size_inches()) == (7.0, 4.5)
     png, svg = figures.save_figure(fig, tmp_path / "c.png", tmp_path / "c.svg")
@@ -86,8 +124,9 @@ def test_one_group_and_band_hidden_everywhere() -> None:
 def test_legend_overlaps_no_axes_and_notes() -> None:
     # Source: the layout promise, checked on the rendered extents.
     samples, curve, robust = _inputs()
-    fig = figures.curve_figure(samples, curve, robustness=robust, stages=STAGES,
-                               merged=True, group_label="region")
+    fig = figures.curve_figure(
+        samples, curve, robustness=robust, stages=STAGES, merged=True, group_label="region"
+    )
     fig.canvas.draw()
     r = fig.canvas.get_renderer()
     box = fig.legends[0].get_window_extent(r)
@@ -102,8 +141,11 @@ def test_legend_overlaps_no_axes_and_notes() -> None:
 def test_stage_names_dropped_where_they_do_not_fit() -> None:
     # Source: the rendered text extent against the stage's width on the strip.
     samples, curve, _ = _inputs()
-    stages = [("Toarcian", 184.2, 174.7), ("Narrowstage", 184.3, 184.2),
-              ("Pliensbachian", 192.9, 184.3)]
+    stages = [
+        ("Toarcian", 184.2, 174.7),
+        ("Narrowstage", 184.3, 184.2),
+        ("Pliensbachian", 192.9, 184.3),
+    ]
     fig = figures.curve_figure(samples, curve, stages=stages)
     strip = fig.axes[1]
     shown = {t.get_text(): t.get_visible() for t in strip.texts}
@@ -113,8 +155,15 @@ def test_stage_names_dropped_where_they_do_not_fit() -> None:
 def test_bins_table_and_missing_columns() -> None:
     # Source: the documented input columns.
     samples, curve, _ = _inputs()
-    bins = pd.DataFrame({"group": ["North", "North"], "age_ma": [182.0, 185.0],
-                         "value": [1.0, 0.9], "lo": [0.7, 0.6], "hi": [1.3, 1.2]})
+    bins = pd.DataFrame(
+        {
+            "group": ["North", "North"],
+            "age_ma": [182.0, 185.0],
+            "value": [1.0, 0.9],
+            "lo": [0.7, 0.6],
+            "hi": [1.3, 1.2],
+        }
+    )
     fig = figures.curve_figure(samples, curve, bins=bins)
     assert "bin summaries" in [t.get_text() for t in fig.legends[0].get_texts()]
     with pytest.raises(DomainError, match="fit"):
@@ -128,15 +177,32 @@ def _sections() -> pd.DataFrame:
     parts = []
     for i, (kind, amp) in enumerate((("height", -3.0), ("depth", -2.0), ("height", 2.5))):
         pos = x if kind == "height" else 300.0 - x
-        parts.append(pd.DataFrame({"source_id": "inv", "section_id": f"S{i}",
-                                   "position_m": pos, "position_kind": kind,
-                                   "age_ma": 190.0 - 0.2 * x,
-                                   "d13c_carb": 1.0 + amp * np.exp(-(x - 10.0 - i) ** 2)}))
+        parts.append(
+            pd.DataFrame(
+                {
+                    "source_id": "inv",
+                    "section_id": f"S{i}",
+                    "position_m": pos,
+                    "position_kind": kind,
+                    "age_ma": 190.0 - 0.2 * x,
+                    "d13c_carb": 1.0 + amp * np.exp(-((x - 10.0 - i) ** 2)),
+                }
+            )
+        )
     # a section that begins inside the event: it has no onset to align on
     late = x[x >= 10.0]
-    parts.append(pd.DataFrame({"source_id": "inv", "section_id": "Late", "position_m": late,
-                               "position_kind": "height", "age_ma": 190.0 - 0.2 * late,
-                               "d13c_carb": 1.0 - 3.0 * np.exp(-(late - 10.0) ** 2)}))
+    parts.append(
+        pd.DataFrame(
+            {
+                "source_id": "inv",
+                "section_id": "Late",
+                "position_m": late,
+                "position_kind": "height",
+                "age_ma": 190.0 - 0.2 * late,
+                "d13c_carb": 1.0 - 3.0 * np.exp(-((late - 10.0) ** 2)),
+            }
+        )
+    )
     return pd.concat(parts, ignore_index=True)
 
 
@@ -166,21 +232,33 @@ def test_excursion_figure(tmp_path: Path) -> None:
 # Colour-vision simulation matrices, Machado, Oliveira & Fernandes (2009), severity 1.0,
 # applied to linear RGB (from memory); CIELAB ΔE*76 under D65 (CIE formulas, from memory).
 MACHADO = {
-    "deutan": [[0.367322, 0.860646, -0.227968], [0.280085, 0.672501, 0.047413],
-               [-0.011820, 0.042940, 0.968881]],
-    "protan": [[0.152286, 1.052583, -0.204868], [0.114503, 0.786281, 0.099216],
-               [-0.003882, -0.048116, 1.051998]],
-    "tritan": [[1.255528, -0.076749, -0.178779], [-0.078411, 0.930809, 0.147602],
-               [0.004733, 0.691367, 0.303900]],
+    "deutan": [
+        [0.367322, 0.860646, -0.227968],
+        [0.280085, 0.672501, 0.047413],
+        [-0.011820, 0.042940, 0.968881],
+    ],
+    "protan": [
+        [0.152286, 1.052583, -0.204868],
+        [0.114503, 0.786281, 0.099216],
+        [-0.003882, -0.048116, 1.051998],
+    ],
+    "tritan": [
+        [1.255528, -0.076749, -0.178779],
+        [-0.078411, 0.930809, 0.147602],
+        [0.004733, 0.691367, 0.303900],
+    ],
 }
 
 
 def _lab(hex_colour: str, matrix: list[list[float]]) -> np.ndarray:
-    c = np.array([int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)])
+    c = np.array([int(hex_colour[i : i + 2], 16) / 255 for i in (1, 3, 5)])
     lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
     lin = np.clip(np.asarray(matrix) @ lin, 0.0, 1.0)
-    xyz = np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722],
-                    [0.0193, 0.1192, 0.9505]]) @ lin / np.array([0.95047, 1.0, 1.08883])
+    xyz = (
+        np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]])
+        @ lin
+        / np.array([0.95047, 1.0, 1.08883])
+    )
     f = np.where(xyz > 216 / 24389, np.cbrt(xyz), (24389 / 27 * xyz + 16) / 116)
     return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
 
@@ -198,11 +276,21 @@ def test_curve_module_tables_are_accepted() -> None:
     # Source: the column names of the curve tables (age for age_ma; bin statistics with
     # age_old/age_young/median/q25/q75; refits without a group column).
     samples, curve, robust = _inputs(groups=("Only",))
-    stats = pd.DataFrame({"age_old": [186.0, 184.0], "age_young": [184.0, 182.0],
-                          "median": [1.0, -0.5], "q25": [0.8, -1.0], "q75": [1.2, 0.0]})
-    fig = figures.curve_figure(samples, curve.rename(columns={"age_ma": "age"}),
-                               robustness=robust.drop(columns="group").rename(
-                                   columns={"age_ma": "age"}), bins=stats)
+    stats = pd.DataFrame(
+        {
+            "age_old": [186.0, 184.0],
+            "age_young": [184.0, 182.0],
+            "median": [1.0, -0.5],
+            "q25": [0.8, -1.0],
+            "q75": [1.2, 0.0],
+        }
+    )
+    fig = figures.curve_figure(
+        samples,
+        curve.rename(columns={"age_ma": "age"}),
+        robustness=robust.drop(columns="group").rename(columns={"age_ma": "age"}),
+        bins=stats,
+    )
     fig.canvas.draw()
     labels = [t.get_text() for t in fig.legends[0].get_texts()]
     assert "bin summaries" in labels and "refits, one left out each" in labels

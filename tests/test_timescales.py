@@ -27,139 +27,156 @@ def base(version: str, name: str) -> tuple[float, float | None]:
 
 # --- the tables hold the chart values -------------------------------------------------
 
-@pytest.mark.parametrize("name,value,unc", [
-    # §6b "Base Triassic — ICS v2024/12" 251.902 ± 0.024, VERIFIED
-    ("Triassic", 251.902, 0.024),
-    # §6b "Base Paleogene — ICS v2024/12" 66.00, none given, VERIFIED
-    ("Paleogene", 66.00, None),
-    # §6b "Base Cretaceous — ICS v2024/12" 143.1 ± 0.6, VERIFIED
-    ("Cretaceous", 143.1, 0.6),
-    # §6b "Base Jurassic — ICS v2024/12" 201.4 ± 0.2, VERIFIED
-    ("Jurassic", 201.4, 0.2),
-    # §6b "Base Permian — ICS v2024/12" 298.9 ± 0.15, VERIFIED
-    ("Permian", 298.9, 0.15),
-    # §6b "Base Carboniferous — ICS v2024/12" 358.86 ± 0.19, VERIFIED
-    ("Carboniferous", 358.86, 0.19),
-    # §6b "Base Devonian — ICS v2024/12" 419.62 ± 1.36, VERIFIED
-    ("Devonian", 419.62, 1.36),
-    # §6b "Base Silurian — ICS v2024/12" 443.1 ± 1.0, VERIFIED
-    ("Silurian", 443.1, 1.0),
-    # §6b "Base Ordovician — ICS v2024/12" 486.85 ± 1.5, VERIFIED
-    ("Ordovician", 486.85, 1.5),
-    # §6b "Base Cambrian — ICS v2024/12" 538.8 ± 0.6, VERIFIED
-    ("Cambrian", 538.8, 0.6),
-    # §6b "Base Quaternary — ICS v2024/12" 2.58, none given, VERIFIED
-    ("Quaternary", 2.58, None),
-    # §6b "Base Přídolí Series (no stages)" 422.7 ± 1.6, VERIFIED
-    ("Přídolí", 422.7, 1.6),
-    # §6b "Base Pennsylvanian subsystem" 323.4 ± 0.4, VERIFIED
-    ("Pennsylvanian", 323.4, 0.4),
-    # §6a "What changed in v2024/12": base Valanginian 137.05 ± 0.2, VERIFIED
-    ("Valanginian", 137.05, 0.2),
-    # §6c "Base Toarcian" 184.2 ± 0.3, VERIFIED
-    ("Toarcian", 184.2, 0.3),
-])
+
+@pytest.mark.parametrize(
+    "name,value,unc",
+    [
+        # §6b "Base Triassic — ICS v2024/12" 251.902 ± 0.024, VERIFIED
+        ("Triassic", 251.902, 0.024),
+        # §6b "Base Paleogene — ICS v2024/12" 66.00, none given, VERIFIED
+        ("Paleogene", 66.00, None),
+        # §6b "Base Cretaceous — ICS v2024/12" 143.1 ± 0.6, VERIFIED
+        ("Cretaceous", 143.1, 0.6),
+        # §6b "Base Jurassic — ICS v2024/12" 201.4 ± 0.2, VERIFIED
+        ("Jurassic", 201.4, 0.2),
+        # §6b "Base Permian — ICS v2024/12" 298.9 ± 0.15, VERIFIED
+        ("Permian", 298.9, 0.15),
+        # §6b "Base Carboniferous — ICS v2024/12" 358.86 ± 0.19, VERIFIED
+        ("Carboniferous", 358.86, 0.19),
+        # §6b "Base Devonian — ICS v2024/12" 419.62 ± 1.36, VERIFIED
+        ("Devonian", 419.62, 1.36),
+        # §6b "Base Silurian — ICS v2024/12" 443.1 ± 1.0, VERIFIED
+        ("Silurian", 443.1, 1.0),
+        # §6b "Base Ordovician — ICS v2024/12" 486.85 ± 1.5, VERIFIED
+        ("Ordovician", 486.85, 1.5),
+        # §6b "Base Cambrian — ICS v2024/12" 538.8 ± 0.6, VERIFIED
+        ("Cambrian", 538.8, 0.6),
+        # §6b "Base Quaternary — ICS v2024/12" 2.58, none given, VERIFIED
+        ("Quaternary", 2.58, None),
+        # §6b "Base Přídolí Series (no stages)" 422.7 ± 1.6, VERIFIED
+        ("Přídolí", 422.7, 1.6),
+        # §6b "Base Pennsylvanian subsystem" 323.4 ± 0.4, VERIFIED
+        ("Pennsylvanian", 323.4, 0.4),
+        # §6a "What changed in v2024/12": base Valanginian 137.05 ± 0.2, VERIFIED
+        ("Valanginian", 137.05, 0.2),
+        # §6c "Base Toarcian" 184.2 ± 0.3, VERIFIED
+        ("Toarcian", 184.2, 0.3),
+    ],
+)
 def test_v2024_12_chart_values(name: str, value: float, unc: float | None) -> None:
     assert base(V24, name) == (value, unc)
 
 
-@pytest.mark.parametrize("name,value,unc", [
-    # §6b "Base Cretaceous — v2023/09 data" 145.0, VERIFIED
-    ("Cretaceous", 145.0, None),
-    # §6b "Base Carboniferous — v2023/09 data" 358.9 ± 0.4, VERIFIED
-    ("Carboniferous", 358.9, 0.4),
-    # §6b "Base Devonian — v2023/09 data" 419.2 ± 3.2, VERIFIED
-    ("Devonian", 419.2, 3.2),
-    # §6b "Base Silurian — v2023/09 data" 443.8 ± 1.5, VERIFIED
-    ("Silurian", 443.8, 1.5),
-    # §6b "Base Ordovician — v2023/09 data" 485.4 ± 1.9, VERIFIED
-    ("Ordovician", 485.4, 1.9),
-    # §6b "Base Cambrian — v2023/09 data" 538.8 ± 0.2, VERIFIED
-    ("Cambrian", 538.8, 0.2),
-    # §6b "Base Přídolí": v2023/09 data 423.0 ± 2.3, VERIFIED
-    ("Pridoli", 423.0, 2.3),
-    # §6b "Base Pennsylvanian": v2023/09 data 323.2 ± 0.4, VERIFIED
-    ("Pennsylvanian", 323.2, 0.4),
-    # §6b "Base Neogene — v2023/09 data" 23.03, VERIFIED
-    ("Neogene", 23.03, None),
-    # §6b "Base Paleogene" (v2023/09: 66.0), VERIFIED
-    ("Paleogene", 66.0, None),
-    # §6c "Base Toarcian": v2023/09-tag 184.2 ± 0.3, VERIFIED
-    ("Toarcian", 184.2, 0.3),
-    # §6c "Base Roadian": v2023/09-tag 273.01 ± 0.14, VERIFIED
-    ("Roadian", 273.01, 0.14),
-])
+@pytest.mark.parametrize(
+    "name,value,unc",
+    [
+        # §6b "Base Cretaceous — v2023/09 data" 145.0, VERIFIED
+        ("Cretaceous", 145.0, None),
+        # §6b "Base Carboniferous — v2023/09 data" 358.9 ± 0.4, VERIFIED
+        ("Carboniferous", 358.9, 0.4),
+        # §6b "Base Devonian — v2023/09 data" 419.2 ± 3.2, VERIFIED
+        ("Devonian", 419.2, 3.2),
+        # §6b "Base Silurian — v2023/09 data" 443.8 ± 1.5, VERIFIED
+        ("Silurian", 443.8, 1.5),
+        # §6b "Base Ordovician — v2023/09 data" 485.4 ± 1.9, VERIFIED
+        ("Ordovician", 485.4, 1.9),
+        # §6b "Base Cambrian — v2023/09 data" 538.8 ± 0.2, VERIFIED
+        ("Cambrian", 538.8, 0.2),
+        # §6b "Base Přídolí": v2023/09 data 423.0 ± 2.3, VERIFIED
+        ("Pridoli", 423.0, 2.3),
+        # §6b "Base Pennsylvanian": v2023/09 data 323.2 ± 0.4, VERIFIED
+        ("Pennsylvanian", 323.2, 0.4),
+        # §6b "Base Neogene — v2023/09 data" 23.03, VERIFIED
+        ("Neogene", 23.03, None),
+        # §6b "Base Paleogene" (v2023/09: 66.0), VERIFIED
+        ("Paleogene", 66.0, None),
+        # §6c "Base Toarcian": v2023/09-tag 184.2 ± 0.3, VERIFIED
+        ("Toarcian", 184.2, 0.3),
+        # §6c "Base Roadian": v2023/09-tag 273.01 ± 0.14, VERIFIED
+        ("Roadian", 273.01, 0.14),
+    ],
+)
 def test_v2023_09_chart_values(name: str, value: float, unc: float | None) -> None:
     assert base(V23, name) == (value, unc)
 
 
-@pytest.mark.parametrize("name,value", [
-    # §6b "Base Neogene — ... ICS 2020" 23.03, VERIFIED (IUGS-CGI isc2020.ttl)
-    ("Neogene", 23.03),
-    # §6b "Base Cretaceous — ... ICS 2020" 145.0, VERIFIED
-    ("Cretaceous", 145.0),
-    # §6b "Base Cambrian — ... ICS 2020" 541.0, VERIFIED
-    ("Cambrian", 541.0),
-    # §6c "Base Induan": ICS-2020 251.902, VERIFIED
-    ("Triassic", 251.902),
-    # §6c "Base Chibanian": ICS-2020 0.774, VERIFIED
-    ("Chibanian", 0.774),
-    # §6c "Base Northgrippian": ICS-2020 0.008276, VERIFIED
-    ("Northgrippian", 0.008276),
-    # §6c "Base Hauterivian": ICS-2020 132.6, VERIFIED
-    ("Hauterivian", 132.6),
-    # §6c "Base Toarcian": ICS-2020 182.7, VERIFIED
-    ("Toarcian", 182.7),
-    # §6c "Base Aalenian": ICS-2020 174.1, VERIFIED
-    ("Aalenian", 174.1),
-    # §6c "Base Rhuddanian": ICS-2020 443.8, VERIFIED
-    ("Silurian", 443.8),
-    # §6c "Base Roadian": ICS-2020 272.95, VERIFIED
-    ("Roadian", 272.95),
-    # §6c "Base Sakmarian": ICS-2020 293.52, VERIFIED
-    ("Sakmarian", 293.52),
-])
+@pytest.mark.parametrize(
+    "name,value",
+    [
+        # §6b "Base Neogene — ... ICS 2020" 23.03, VERIFIED (IUGS-CGI isc2020.ttl)
+        ("Neogene", 23.03),
+        # §6b "Base Cretaceous — ... ICS 2020" 145.0, VERIFIED
+        ("Cretaceous", 145.0),
+        # §6b "Base Cambrian — ... ICS 2020" 541.0, VERIFIED
+        ("Cambrian", 541.0),
+        # §6c "Base Induan": ICS-2020 251.902, VERIFIED
+        ("Triassic", 251.902),
+        # §6c "Base Chibanian": ICS-2020 0.774, VERIFIED
+        ("Chibanian", 0.774),
+        # §6c "Base Northgrippian": ICS-2020 0.008276, VERIFIED
+        ("Northgrippian", 0.008276),
+        # §6c "Base Hauterivian": ICS-2020 132.6, VERIFIED
+        ("Hauterivian", 132.6),
+        # §6c "Base Toarcian": ICS-2020 182.7, VERIFIED
+        ("Toarcian", 182.7),
+        # §6c "Base Aalenian": ICS-2020 174.1, VERIFIED
+        ("Aalenian", 174.1),
+        # §6c "Base Rhuddanian": ICS-2020 443.8, VERIFIED
+        ("Silurian", 443.8),
+        # §6c "Base Roadian": ICS-2020 272.95, VERIFIED
+        ("Roadian", 272.95),
+        # §6c "Base Sakmarian": ICS-2020 293.52, VERIFIED
+        ("Sakmarian", 293.52),
+    ],
+)
 def test_ics2020_chart_values(name: str, value: float) -> None:
     # §6c header: "Uncertainties of the 2020 data were not parsed" -> blank, not zero
     assert base(V20, name) == (value, None)
 
 
-@pytest.mark.parametrize("name,value,unc", [
-    # §6b "Base Cretaceous — ... ICS 2012 (=GTS2012)" 145.0 ± 0.8, VERIFIED
-    ("Cretaceous", 145.0, 0.8),
-    # §6b "Base Jurassic — ICS 2012 (=GTS2012)" 201.3 ± 0.2, VERIFIED
-    ("Jurassic", 201.3, 0.2),
-    # §6b "Base Permian — ICS 2012 (=GTS2012)" 298.9 ± 0.2, VERIFIED
-    ("Permian", 298.9, 0.2),
-    # §6b "Base Carboniferous — ... ICS 2012" 358.9 ± 0.4, VERIFIED
-    ("Carboniferous", 358.9, 0.4),
-    # §6b "Base Devonian — ... ICS 2012" 419.2 ± 3.2, VERIFIED
-    ("Devonian", 419.2, 3.2),
-    # §6b "Base Silurian — ... ICS chart v2012" 443.4 ± 1.5 (the chart's erratum), VERIFIED
-    ("Silurian", 443.4, 1.5),
-    # §6b "Base Ordovician — ... ICS 2012" 485.4 ± 1.9, VERIFIED
-    ("Ordovician", 485.4, 1.9),
-    # §6b "Base Cambrian — ... ICS 2012" 541.0 ± 1.0, VERIFIED
-    ("Cambrian", 541.0, 1.0),
-    # §6b "Base Quaternary — GTS2012" 2.588 (isc2012 Gelasian), VERIFIED
-    ("Quaternary", 2.588, None),
-    # §6b "Base Paleogene": ICS 2012 chart data 66.0, VERIFIED
-    ("Paleogene", 66.0, None),
-    # §6b "Base Přídolí": ICS 2012 423 ± 2.3, VERIFIED
-    ("Přídolí", 423.0, 2.3),
-    # §6c "Base Toarcian": ICS-2012 182.7 ± 0.7, VERIFIED
-    ("Toarcian", 182.7, 0.7),
-    # §6a change log: the 2012 chart had 11.62 for the Tortonian, VERIFIED
-    ("Tortonian", 11.62, None),
-])
+@pytest.mark.parametrize(
+    "name,value,unc",
+    [
+        # §6b "Base Cretaceous — ... ICS 2012 (=GTS2012)" 145.0 ± 0.8, VERIFIED
+        ("Cretaceous", 145.0, 0.8),
+        # §6b "Base Jurassic — ICS 2012 (=GTS2012)" 201.3 ± 0.2, VERIFIED
+        ("Jurassic", 201.3, 0.2),
+        # §6b "Base Permian — ICS 2012 (=GTS2012)" 298.9 ± 0.2, VERIFIED
+        ("Permian", 298.9, 0.2),
+        # §6b "Base Carboniferous — ... ICS 2012" 358.9 ± 0.4, VERIFIED
+        ("Carboniferous", 358.9, 0.4),
+        # §6b "Base Devonian — ... ICS 2012" 419.2 ± 3.2, VERIFIED
+        ("Devonian", 419.2, 3.2),
+        # §6b "Base Silurian — ... ICS chart v2012" 443.4 ± 1.5 (the chart's erratum), VERIFIED
+        ("Silurian", 443.4, 1.5),
+        # §6b "Base Ordovician — ... ICS 2012" 485.4 ± 1.9, VERIFIED
+        ("Ordovician", 485.4, 1.9),
+        # §6b "Base Cambrian — ... ICS 2012" 541.0 ± 1.0, VERIFIED
+        ("Cambrian", 541.0, 1.0),
+        # §6b "Base Quaternary — GTS2012" 2.588 (isc2012 Gelasian), VERIFIED
+        ("Quaternary", 2.588, None),
+        # §6b "Base Paleogene": ICS 2012 chart data 66.0, VERIFIED
+        ("Paleogene", 66.0, None),
+        # §6b "Base Přídolí": ICS 2012 423 ± 2.3, VERIFIED
+        ("Přídolí", 423.0, 2.3),
+        # §6c "Base Toarcian": ICS-2012 182.7 ± 0.7, VERIFIED
+        ("Toarcian", 182.7, 0.7),
+        # §6a change log: the 2012 chart had 11.62 for the Tortonian, VERIFIED
+        ("Tortonian", 11.62, None),
+    ],
+)
 def test_ics2012_chart_values(name: str, value: float, unc: float | None) -> None:
     assert base(V12, name) == (value, unc)
 
 
 def test_every_table_names_its_source_and_confidence() -> None:
     # §6 "Sources used": (i) ICS chart data, (ii) IUGS-CGI RDF versions of earlier charts
-    expect = {V24: "ICS chart data", V23: "ICS chart data", V20: "IUGS-CGI RDF",
-              V12: "IUGS-CGI RDF"}
+    expect = {
+        V24: "ICS chart data",
+        V23: "ICS chart data",
+        V20: "IUGS-CGI RDF",
+        V12: "IUGS-CGI RDF",
+    }
     assert ts.versions() == [V24, V23, V20, V12]
     for version, source in expect.items():
         scale = ts.load(version)
@@ -169,6 +186,7 @@ def test_every_table_names_its_source_and_confidence() -> None:
 
 
 # --- uncertainties as 1σ --------------------------------------------------------------
+
 
 def test_chart_uncertainty_converted_to_one_sigma() -> None:
     # ± taken as 95 % (GTS convention, from memory); 1σ = u / z(0.975), z from scipy
@@ -189,6 +207,7 @@ def test_chart_uncertainty_converted_to_one_sigma() -> None:
 
 # --- deliberate choices on inconsistent values ----------------------------------------
 
+
 def test_base_neogene_takes_the_stage_value() -> None:
     # §6b "Base Neogene — ICS v2024/12": 23.03 (Aquitanian record) vs 23.04 (Neogene/Miocene
     # records), VERIFIED internal inconsistency; rule: the stage base rules
@@ -208,8 +227,11 @@ def test_v2023_09_slips_replaced_and_flagged() -> None:
     # (= Hauterivian) and Olenekian 247.2 (= Anisian) would leave a stage without duration.
     # Choice: the ICS2020 value (§6c, VERIFIED), flagged approximate, the slip quoted in the note.
     scale = ts.load(V23)
-    for name, value, slip in (("Cambrian Stage 2", 529.0, "521"), ("Valanginian", 139.8, "132.6"),
-                              ("Olenekian", 251.2, "247.2")):
+    for name, value, slip in (
+        ("Cambrian Stage 2", 529.0, "521"),
+        ("Valanginian", 139.8, "132.6"),
+        ("Olenekian", 251.2, "247.2"),
+    ):
         u = scale.find(name)
         assert (u.base_ma, u.approximate) == (value, True)
         assert slip in u.note and "slip" in u.note
@@ -267,6 +289,7 @@ def test_a_boundary_found_by_key_on_another_chart() -> None:
 
 # --- stage ages -------------------------------------------------------------------------
 
+
 def test_toarcian_midpoint_and_uniform_sigma() -> None:
     # §6c Toarcian 184.2, Aalenian 174.7 (v2024/12, VERIFIED); uniform σ = width/√12
     mid, sigma, b, t = ts.stage_age("toarcian", V24)
@@ -285,6 +308,7 @@ def test_stage_age_of_stageless_series_and_youngest_stage() -> None:
 
 # --- conversion between charts ----------------------------------------------------------
 
+
 def test_conversion_toarcian_worked_example() -> None:
     # §6c Toarcian ICS-2012 182.7, Aalenian ICS-2012 174.1; v2024/12 184.2 and 174.7.
     # By hand: 174.7 + (180.0 − 174.1)/(182.7 − 174.1) × (184.2 − 174.7) = 181.2174
@@ -292,9 +316,14 @@ def test_conversion_toarcian_worked_example() -> None:
     assert out[0] == pytest.approx(181.217, abs=1e-3)
     assert step["method"] == "piecewise-linear between shared chart boundaries"
     assert step["parameters"]["from"] == V12 and step["parameters"]["to"] == V24
-    assert step["parameters"]["bracketing"] == [{
-        "younger": "aalenian", "older": "toarcian", "from_ma": [174.1, 182.7],
-        "to_ma": [174.7, 184.2]}]
+    assert step["parameters"]["bracketing"] == [
+        {
+            "younger": "aalenian",
+            "older": "toarcian",
+            "from_ma": [174.1, 182.7],
+            "to_ma": [174.7, 184.2],
+        }
+    ]
     assert V12 in step["source"] and V24 in step["source"]
     assert step["size_myr"] == pytest.approx(1.2174, abs=1e-4)
 
@@ -354,6 +383,7 @@ def test_round_trip_returns_the_age(x: float) -> None:
 
 # --- intervals ------------------------------------------------------------------------------
 
+
 def test_interval_by_name_case_insensitive_and_epoch_words() -> None:
     # §6c v2024/12: Hettangian 201.4, Aalenian 174.7 (VERIFIED)
     assert ts.resolve_interval("TOARCIAN", V24)[:2] == (184.2, 174.7)
@@ -398,8 +428,8 @@ def test_older_chart_name_on_newer_chart_is_explained() -> None:
 
 # --- versions -------------------------------------------------------------------------------
 
-@pytest.mark.parametrize("text", ["ICS2024/12", "ics2024-12", "v2024/12", "2024-12",
-                                  "ICS 2024/12"])
+
+@pytest.mark.parametrize("text", ["ICS2024/12", "ics2024-12", "v2024/12", "2024-12", "ICS 2024/12"])
 def test_common_spellings_of_a_version(text: str) -> None:
     assert ts.load(text).version == V24
 
@@ -443,17 +473,21 @@ def test_user_table_loads_and_converts(tmp_path: Path) -> None:
     assert out.tolist() == pytest.approx([17.0, 24 + 10 * 11 / 15])
 
 
-@pytest.mark.parametrize("change,line,words", [
-    ((2, "name,rank,parent,bse_ma,boundary_key"), 3, "bse_ma"),
-    ((4, "Old,stage,Upper,twenty,1,95%,,false,old,"), 5, "not a number"),
-    ((4, "Old,stage,Upper,5,1,95%,,false,old,"), 5, "youngest to oldest"),
-    ((3, "Young,stage,Uper,10,,,,false,young,"), 4, "Did you mean Upper"),
-    ((6, "Upper,series,Whole,21,1,95%,,false,old,"), 7, "oldest stage"),
-    ((4, "Old,stage,Upper,20,1,99.9%,,false,old,"), 5, "95%"),
-    ((4, "Old,stage,Upper,20,1,95%,0.9,false,old,"), 5, "sigma_ma"),
-])
+@pytest.mark.parametrize(
+    "change,line,words",
+    [
+        ((2, "name,rank,parent,bse_ma,boundary_key"), 3, "bse_ma"),
+        ((4, "Old,stage,Upper,twenty,1,95%,,false,old,"), 5, "not a number"),
+        ((4, "Old,stage,Upper,5,1,95%,,false,old,"), 5, "youngest to oldest"),
+        ((3, "Young,stage,Uper,10,,,,false,young,"), 4, "Did you mean Upper"),
+        ((6, "Upper,series,Whole,21,1,95%,,false,old,"), 7, "oldest stage"),
+        ((4, "Old,stage,Upper,20,1,99.9%,,false,old,"), 5, "95%"),
+        ((4, "Old,stage,Upper,20,1,95%,0.9,false,old,"), 5, "sigma_ma"),
+    ],
+)
 def test_malformed_user_table_names_file_line_and_fix(
-        tmp_path: Path, change: tuple[int, str], line: int, words: str) -> None:
+    tmp_path: Path, change: tuple[int, str], line: int, words: str
+) -> None:
     lines = list(GOOD)
     lines[change[0]] = change[1]
     with pytest.raises(ConfigError) as err:

@@ -61,8 +61,7 @@ import numpy as np
 
 from strata13.errors import DomainError, OptionError
 
-BASES = ("chart boundary", "biozone boundary", "radiometric", "astrochronologic",
-         "correlation")
+BASES = ("chart boundary", "biozone boundary", "radiometric", "astrochronologic", "correlation")
 KEYED_BASES = ("chart boundary", "biozone boundary")  # must carry a boundary_key
 POSITION_KINDS = ("height", "depth")
 
@@ -74,9 +73,11 @@ GATHER_ELEMENTS = 1 << 15  # sample values per gather block: stays in cache (256
 TINY = 1e-200  # an interval's summed gamma draws below this are taken as underflow
 BOUNDARY_SEED = 0  # seed of shared_offsets when the caller passes none
 
-METHOD = ("Monte Carlo age model: tie ages by sequential truncated normal sampling, shared "
-          "boundary errors; gamma-process (Dirichlet) bridge between ties after the compound "
-          "Poisson–gamma model of Haslett & Parnell 2008")
+METHOD = (
+    "Monte Carlo age model: tie ages by sequential truncated normal sampling, shared "
+    "boundary errors; gamma-process (Dirichlet) bridge between ties after the compound "
+    "Poisson–gamma model of Haslett & Parnell 2008"
+)
 
 # Per-sample flags ("" = an ordinary interpolated age).
 EXTRAPOLATED = "extrapolated"
@@ -100,8 +101,10 @@ class Tie:
     def describe(self, position_kind: str) -> str:
         """The tie as error messages name it: its note (or basis), age, σ and position."""
         label = self.note or f"the {self.basis} tie"
-        return (f"{label} ({self.age_ma:g} ± {self.age_sigma_ma:g} Ma at {self.position_m:g} m "
-                f"{position_kind})")
+        return (
+            f"{label} ({self.age_ma:g} ± {self.age_sigma_ma:g} Ma at {self.position_m:g} m "
+            f"{position_kind})"
+        )
 
 
 class SectionDraws(NamedTuple):
@@ -142,9 +145,10 @@ def _z(positions: np.ndarray, position_kind: str) -> np.ndarray:
 
 def _check_kind(position_kind: str) -> None:
     if position_kind not in POSITION_KINDS:
-        raise DomainError(f"position kind {position_kind!r} is neither 'height' nor 'depth'.",
-                          "Give the section's position kind: height above or depth below its "
-                          "datum.")
+        raise DomainError(
+            f"position kind {position_kind!r} is neither 'height' nor 'depth'.",
+            "Give the section's position kind: height above or depth below its datum.",
+        )
 
 
 def validate_ties(ties: Sequence[Tie], position_kind: str) -> list[Tie]:
@@ -155,57 +159,77 @@ def validate_ties(ties: Sequence[Tie], position_kind: str) -> list[Tie]:
     """
     _check_kind(position_kind)
     if len(ties) < 2:
-        raise DomainError(f"a section needs at least two ties for an age model (this one has "
-                          f"{len(ties)}).", "Add a second dated level, or date the samples by "
-                          "stage only.")
+        raise DomainError(
+            f"a section needs at least two ties for an age model (this one has {len(ties)}).",
+            "Add a second dated level, or date the samples by stage only.",
+        )
     keys: dict[str, Tie] = {}
     for t in ties:
         what = t.describe(position_kind)
-        values = (t.position_m, t.age_ma, t.age_sigma_ma,
-                  0.0 if t.position_sigma_m is None else t.position_sigma_m)
+        values = (
+            t.position_m,
+            t.age_ma,
+            t.age_sigma_ma,
+            0.0 if t.position_sigma_m is None else t.position_sigma_m,
+        )
         if not all(math.isfinite(v) for v in values):
-            raise DomainError(f"{what} has a missing or infinite number.",
-                              "Give the tie's position, age and 1σ as finite numbers.")
+            raise DomainError(
+                f"{what} has a missing or infinite number.",
+                "Give the tie's position, age and 1σ as finite numbers.",
+            )
         if t.age_ma < 0 or t.age_sigma_ma < 0 or values[3] < 0:
-            raise DomainError(f"{what} has a negative age or error.",
-                              "Ages are Ma before present and errors are 1σ, both ≥ 0.")
+            raise DomainError(
+                f"{what} has a negative age or error.",
+                "Ages are Ma before present and errors are 1σ, both ≥ 0.",
+            )
         if t.basis not in BASES:
-            raise DomainError(f"{what} has the unknown basis {t.basis!r}.",
-                              f"Bases: {', '.join(BASES)}.")
+            raise DomainError(
+                f"{what} has the unknown basis {t.basis!r}.", f"Bases: {', '.join(BASES)}."
+            )
         if t.basis in KEYED_BASES and not t.boundary_key:
-            raise DomainError(f"{what} is a {t.basis} without a boundary key.",
-                              "Give the boundary's identity so its error is shared across "
-                              "sections.")
+            raise DomainError(
+                f"{what} is a {t.basis} without a boundary key.",
+                "Give the boundary's identity so its error is shared across sections.",
+            )
         if t.boundary_key:
             if t.boundary_key in keys:
-                raise DomainError(f"{keys[t.boundary_key].describe(position_kind)} and {what} "
-                                  f"both mark boundary {t.boundary_key!r}.",
-                                  "A boundary crosses a section once; keep one of the two.")
+                raise DomainError(
+                    f"{keys[t.boundary_key].describe(position_kind)} and {what} "
+                    f"both mark boundary {t.boundary_key!r}.",
+                    "A boundary crosses a section once; keep one of the two.",
+                )
             keys[t.boundary_key] = t
     ordered = [ties[i] for i in _order(ties, position_kind)]
     z = _z(np.array([t.position_m for t in ordered]), position_kind)
     levels, starts = np.unique(z, return_index=True)
     if len(levels) < 2:
-        raise DomainError(f"the section's ties all lie at {ordered[0].position_m:g} m, but an "
-                          "age model needs ties at two different positions.",
-                          "Add a tie at another level of the section.")
+        raise DomainError(
+            f"the section's ties all lie at {ordered[0].position_m:g} m, but an "
+            "age model needs ties at two different positions.",
+            "Add a tie at another level of the section.",
+        )
     oldest_above: Tie | None = None
     for g, start in enumerate(starts):
-        group = ordered[start:starts[g + 1] if g + 1 < len(starts) else len(ordered)]
+        group = ordered[start : starts[g + 1] if g + 1 < len(starts) else len(ordered)]
         if len(group) > 2:
-            raise DomainError(f"{len(group)} ties lie at {group[0].position_m:g} m.",
-                              "One level takes one tie, or two for a hiatus (its top and base "
-                              "ages).")
+            raise DomainError(
+                f"{len(group)} ties lie at {group[0].position_m:g} m.",
+                "One level takes one tie, or two for a hiatus (its top and base ages).",
+            )
         if len(group) == 2 and group[0].age_ma == group[1].age_ma:
-            raise DomainError(f"{group[0].describe(position_kind)} and "
-                              f"{group[1].describe(position_kind)} give one level the same age.",
-                              "Keep one of them; two ties at one level mean a hiatus and need "
-                              "two different ages.")
+            raise DomainError(
+                f"{group[0].describe(position_kind)} and "
+                f"{group[1].describe(position_kind)} give one level the same age.",
+                "Keep one of them; two ties at one level mean a hiatus and need "
+                "two different ages.",
+            )
         if oldest_above is not None and oldest_above.age_ma > group[0].age_ma:
-            raise DomainError(f"superposition is violated: {oldest_above.describe(position_kind)}"
-                              f" lies above {group[0].describe(position_kind)} but is older.",
-                              "Check the two ties' positions, the section's position kind "
-                              "(height or depth) and their ages.")
+            raise DomainError(
+                f"superposition is violated: {oldest_above.describe(position_kind)}"
+                f" lies above {group[0].describe(position_kind)} but is older.",
+                "Check the two ties' positions, the section's position kind "
+                "(height or depth) and their ages.",
+            )
         if oldest_above is None or group[-1].age_ma > oldest_above.age_ma:
             oldest_above = group[-1]
     return ordered
@@ -217,8 +241,9 @@ def _order(ties: Sequence[Tie], position_kind: str) -> np.ndarray:
     return np.lexsort((np.array([t.age_ma for t in ties], dtype=float), z))
 
 
-def shared_offsets(keys: Iterable[str], n_draws: int, seed: int = BOUNDARY_SEED
-                   ) -> dict[str, np.ndarray]:
+def shared_offsets(
+    keys: Iterable[str], n_draws: int, seed: int = BOUNDARY_SEED
+) -> dict[str, np.ndarray]:
     """One standard-normal vector of ``n_draws`` per boundary key.
 
     Each vector comes from SHA-256 of (seed, key) alone, so a section drawn today and one
@@ -239,8 +264,9 @@ def section_seed(section_id: str, seed: int = 0) -> int:
     return int.from_bytes(digest[:8], "little")
 
 
-def _truncated_normal(mu: float, sigma: float, lo: np.ndarray, hi: np.ndarray,
-                      u: np.ndarray) -> np.ndarray:
+def _truncated_normal(
+    mu: float, sigma: float, lo: np.ndarray, hi: np.ndarray, u: np.ndarray
+) -> np.ndarray:
     """Quantile ``u`` of N(mu, sigma) truncated to [lo, hi] (inverse CDF, vectorised).
 
     Intervals in the upper tail are mirrored into the lower tail, where the normal CDF keeps
@@ -269,15 +295,23 @@ def _tie_sigmas(ordered: list[Tie], z: np.ndarray) -> np.ndarray:
     for k, t in enumerate(ordered):
         if not t.position_sigma_m:
             continue
-        rates = [abs(age[j] - age[k]) / abs(z[j] - z[k]) for j in (k - 1, k + 1)
-                 if 0 <= j < len(ordered) and z[j] != z[k]]
+        rates = [
+            abs(age[j] - age[k]) / abs(z[j] - z[k])
+            for j in (k - 1, k + 1)
+            if 0 <= j < len(ordered) and z[j] != z[k]
+        ]
         rate = float(np.mean(rates)) if rates else 0.0
         sig[k] = math.hypot(sig[k], rate * t.position_sigma_m)
     return sig
 
 
-def _draw_ties(ordered: list[Tie], sig: np.ndarray, n_draws: int, rng: np.random.Generator,
-               shared: Mapping[str, np.ndarray]) -> np.ndarray:
+def _draw_ties(
+    ordered: list[Tie],
+    sig: np.ndarray,
+    n_draws: int,
+    rng: np.random.Generator,
+    shared: Mapping[str, np.ndarray],
+) -> np.ndarray:
     """n_draws × n_ties ages in stratigraphic order, non-decreasing in every draw."""
     n = len(ordered)
     out = np.empty((n_draws, n))
@@ -287,15 +321,16 @@ def _draw_ties(ordered: list[Tie], sig: np.ndarray, n_draws: int, rng: np.random
     lower = np.zeros(n_draws)  # ages are ≥ 0 Ma
     for k in keyed:  # pass 1: keyed ties keep their shared value where it is in order
         t = ordered[k]
-        own = math.sqrt(max(sig[k] ** 2 - t.age_sigma_ma ** 2, 0.0))
+        own = math.sqrt(max(sig[k] ** 2 - t.age_sigma_ma**2, 0.0))
         value = t.age_ma + t.age_sigma_ma * shared[t.boundary_key] + own * eps[:, k]
         bad = value < lower
         if bad.any():
             from scipy.special import ndtr
 
-            q = ndtr((value[bad] - t.age_ma) / sig[k]) if sig[k] > 0 else np.full(bad.sum(), .5)
-            value[bad] = _truncated_normal(t.age_ma, sig[k], lower[bad],
-                                           np.full(bad.sum(), np.inf), q)
+            q = ndtr((value[bad] - t.age_ma) / sig[k]) if sig[k] > 0 else np.full(bad.sum(), 0.5)
+            value[bad] = _truncated_normal(
+                t.age_ma, sig[k], lower[bad], np.full(bad.sum(), np.inf), q
+            )
         out[:, k] = value
         lower = value
     lower = np.zeros(n_draws)
@@ -359,21 +394,43 @@ def _layout(z: np.ndarray, segment_m: float, shape_per_m: float, max_segments: i
     offset = 1 + np.cumsum(width) - width
     seg_shape = shape_per_m * nominal
     jt = starts[hiatus]
-    return _Layout(levels, starts[:-1] + counts[:-1] - 1, starts[1:], length, first, seg_iv,
-                   offset[seg_iv] + hiatus[seg_iv] + local, seg_start, seg_end - seg_start,
-                   seg_shape, offset[hiatus], jt, jt + 1, levels[hiatus], int(1 + width.sum()),
-                   np.flatnonzero(seg_shape != 1.0))
+    return _Layout(
+        levels,
+        starts[:-1] + counts[:-1] - 1,
+        starts[1:],
+        length,
+        first,
+        seg_iv,
+        offset[seg_iv] + hiatus[seg_iv] + local,
+        seg_start,
+        seg_end - seg_start,
+        seg_shape,
+        offset[hiatus],
+        jt,
+        jt + 1,
+        levels[hiatus],
+        int(1 + width.sum()),
+        np.flatnonzero(seg_shape != 1.0),
+    )
 
 
 # ------------------------------------------------------------------ draws
 
 
-def draw_section(positions: Sequence[float] | np.ndarray, ties: Sequence[Tie],
-                 position_kind: str, n_draws: int, seed: int,
-                 shared_offsets: Mapping[str, np.ndarray] | None = None, *,
-                 allow_extrapolation: bool = False, segment_m: float = SEGMENT_M,
-                 shape_per_m: float = SHAPE_PER_M, max_segments: int = MAX_SEGMENTS,
-                 chunk_draws: int | None = None) -> SectionDraws:
+def draw_section(
+    positions: Sequence[float] | np.ndarray,
+    ties: Sequence[Tie],
+    position_kind: str,
+    n_draws: int,
+    seed: int,
+    shared_offsets: Mapping[str, np.ndarray] | None = None,
+    *,
+    allow_extrapolation: bool = False,
+    segment_m: float = SEGMENT_M,
+    shape_per_m: float = SHAPE_PER_M,
+    max_segments: int = MAX_SEGMENTS,
+    chunk_draws: int | None = None,
+) -> SectionDraws:
     """Draw the ages of a section's samples (positions in metres, the section's own kind).
 
     ``seed`` is the section's own (see ``section_seed``: two sections with one seed would
@@ -382,22 +439,28 @@ def draw_section(positions: Sequence[float] | np.ndarray, ties: Sequence[Tie],
     derives them with ``BOUNDARY_SEED``. The result does not depend on ``chunk_draws``.
     """
     if n_draws < 1:
-        raise OptionError(f"the number of draws must be at least 1 (got {n_draws}).",
-                          "Ask for 1000 draws or more for stable percentiles.")
+        raise OptionError(
+            f"the number of draws must be at least 1 (got {n_draws}).",
+            "Ask for 1000 draws or more for stable percentiles.",
+        )
     if not (segment_m > 0 and shape_per_m > 0 and max_segments >= 1):
-        raise OptionError("segment length, shape per metre and segments per interval must be "
-                          "positive.", f"The defaults are {SEGMENT_M:g} m, {SHAPE_PER_M:g} per "
-                          f"m and {MAX_SEGMENTS}.")
+        raise OptionError(
+            "segment length, shape per metre and segments per interval must be positive.",
+            f"The defaults are {SEGMENT_M:g} m, {SHAPE_PER_M:g} per m and {MAX_SEGMENTS}.",
+        )
     ordered = validate_ties(ties, position_kind)
     keys = [t.boundary_key for t in ordered if t.boundary_key]
-    shared = dict(_offsets(keys, n_draws, BOUNDARY_SEED) if shared_offsets is None
-                  else shared_offsets)
+    shared = dict(
+        _offsets(keys, n_draws, BOUNDARY_SEED) if shared_offsets is None else shared_offsets
+    )
     for key in keys:
         vec = shared.get(key)
         if vec is None or np.shape(vec) != (n_draws,):
-            raise DomainError(f"no shared offsets of length {n_draws} for boundary {key!r}.",
-                              "Make them with shared_offsets(keys, n_draws, seed) over every "
-                              "boundary key of the sections drawn together.")
+            raise DomainError(
+                f"no shared offsets of length {n_draws} for boundary {key!r}.",
+                "Make them with shared_offsets(keys, n_draws, seed) over every "
+                "boundary key of the sections drawn together.",
+            )
     z_ties = _z(np.array([t.position_m for t in ordered], dtype=float), position_kind)
     tie_rng, *rngs = (np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(3))
     ages = _draw_ties(ordered, _tie_sigmas(ordered, z_ties), n_draws, tie_rng, shared)
@@ -432,7 +495,7 @@ def draw_section(positions: Sequence[float] | np.ndarray, ties: Sequence[Tie],
         inc, knots = _knots(lay, ages[d0:d1], tuple(rngs))
         for e0 in range(0, d1 - d0, sub):
             e1 = min(e0 + sub, d1 - d0)
-            block, buf = out[d0 + e0:d0 + e1], scratch[:e1 - e0]
+            block, buf = out[d0 + e0 : d0 + e1], scratch[: e1 - e0]
             np.take(knots[e0:e1], knot, axis=1, out=block, mode="clip")
             np.take(inc[e0:e1], slope, axis=1, out=buf, mode="clip")
             buf *= f
@@ -450,8 +513,9 @@ def draw_section(positions: Sequence[float] | np.ndarray, ties: Sequence[Tie],
     return SectionDraws(out, flags)
 
 
-def _knots(lay: _Layout, ages: np.ndarray, rngs: tuple[np.random.Generator, ...]
-           ) -> tuple[np.ndarray, np.ndarray]:
+def _knots(
+    lay: _Layout, ages: np.ndarray, rngs: tuple[np.random.Generator, ...]
+) -> tuple[np.ndarray, np.ndarray]:
     """Increments and knot ages (one running sum) of a chunk of draws.
 
     Sub-segments of shape exactly 1 are exponentials (numpy's fastest gamma); the others are
@@ -460,8 +524,7 @@ def _knots(lay: _Layout, ages: np.ndarray, rngs: tuple[np.random.Generator, ...]
     c = ages.shape[0]
     g = rngs[0].standard_exponential((c, lay.seg_shape.size))  # all, to avoid a scatter
     if lay.other.size:
-        g[:, lay.other] = rngs[1].standard_gamma(lay.seg_shape[lay.other],
-                                                 (c, lay.other.size))
+        g[:, lay.other] = rngs[1].standard_gamma(lay.seg_shape[lay.other], (c, lay.other.size))
     total = np.add.reduceat(g, lay.iv_first, axis=1)
     empty = total < TINY  # durations underflowed (tiny shapes): spread evenly instead
     if empty.any():
@@ -488,7 +551,7 @@ def summarise(draws: np.ndarray, chunk: int = 4096) -> Summary:
     n = d.shape[1]
     med, sig, lo, hi = (np.full(n, np.nan) for _ in range(4))
     for c0 in range(0, n, chunk):
-        part = d[:, c0:c0 + chunk]
+        part = d[:, c0 : c0 + chunk]
         good = np.isfinite(part)
         full = np.flatnonzero(good.all(axis=0))
         some = np.flatnonzero(good.any(axis=0) & ~good.all(axis=0))
@@ -507,18 +570,33 @@ def stage_only(base_ma: float, top_ma: float) -> StageAge:
     """An age known only to lie within a stage: uniform over it, σ = span/√12 (either order)."""
     old, young = max(base_ma, top_ma), min(base_ma, top_ma)
     if not (math.isfinite(old) and math.isfinite(young)) or young < 0 or old == young:
-        raise DomainError(f"a stage from {base_ma:g} to {top_ma:g} Ma has no usable span.",
-                          "Give the stage's base and top ages in Ma (base older).")
+        raise DomainError(
+            f"a stage from {base_ma:g} to {top_ma:g} Ma has no usable span.",
+            "Give the stage's base and top ages in Ma (base older).",
+        )
     return StageAge((old + young) / 2, (old - young) / math.sqrt(12))
 
 
-def parameters(n_draws: int, seed: int, *, allow_extrapolation: bool = False,
-               segment_m: float = SEGMENT_M, shape_per_m: float = SHAPE_PER_M,
-               max_segments: int = MAX_SEGMENTS) -> dict[str, Any]:
+def parameters(
+    n_draws: int,
+    seed: int,
+    *,
+    allow_extrapolation: bool = False,
+    segment_m: float = SEGMENT_M,
+    shape_per_m: float = SHAPE_PER_M,
+    max_segments: int = MAX_SEGMENTS,
+) -> dict[str, Any]:
     """The settings of one draw, for the chain of steps (what a reader needs to redo it)."""
-    return {"n_draws": n_draws, "seed": seed, "allow_extrapolation": allow_extrapolation,
-            "segment_m": segment_m, "shape_per_m": shape_per_m, "max_segments": max_segments,
-            "boundary_seed": BOUNDARY_SEED, "numpy": np.__version__}
+    return {
+        "n_draws": n_draws,
+        "seed": seed,
+        "allow_extrapolation": allow_extrapolation,
+        "segment_m": segment_m,
+        "shape_per_m": shape_per_m,
+        "max_segments": max_segments,
+        "boundary_seed": BOUNDARY_SEED,
+        "numpy": np.__version__,
+    }
 
 
 _offsets = shared_offsets  # draw_section's parameter of the same name hides the function

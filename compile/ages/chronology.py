@@ -17,8 +17,18 @@ from strata13.errors import DomainError, OptionError
 if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
 
-STAGE_COLUMNS = ["name", "rank", "parent", "base_ma", "top_ma", "uncertainty_ma", "confidence",
-                 "sigma_ma", "approximate", "note"]
+STAGE_COLUMNS = [
+    "name",
+    "rank",
+    "parent",
+    "base_ma",
+    "top_ma",
+    "uncertainty_ma",
+    "confidence",
+    "sigma_ma",
+    "approximate",
+    "note",
+]
 
 
 def chart(name: str | None, store: Store | None = None) -> Any:
@@ -60,8 +70,13 @@ class Interval:
     notes: list[str] = field(default_factory=list)
 
     def describe(self) -> dict[str, Any]:
-        return {"given": self.text, "younger_ma": self.younger_ma, "older_ma": self.older_ma,
-                "time_scale": self.time_scale, "notes": self.notes}
+        return {
+            "given": self.text,
+            "younger_ma": self.younger_ma,
+            "older_ma": self.older_ma,
+            "time_scale": self.time_scale,
+            "notes": self.notes,
+        }
 
 
 def resolve(text: str, store: Store | None, time_scale: str | None = None) -> Interval:
@@ -82,16 +97,22 @@ def resolve(text: str, store: Store | None, time_scale: str | None = None) -> In
     if scale.version != store_scale.version:
         moved, _ = timescales.convert(np.array([younger, older]), scale, store_scale)
         if np.isnan(moved).any():
-            raise OptionError(f"--interval {text!r} on {scale.version} lies outside the "
-                              f"boundaries it shares with the store's chart "
-                              f"{store_scale.version}.", "Give the interval on the store's chart.")
-        notes.append(f"{iv.description} on {scale.version} is {moved[1]:g}–{moved[0]:g} Ma on "
-                     f"the store's chart {store_scale.version}")
+            raise OptionError(
+                f"--interval {text!r} on {scale.version} lies outside the "
+                f"boundaries it shares with the store's chart "
+                f"{store_scale.version}.",
+                "Give the interval on the store's chart.",
+            )
+        notes.append(
+            f"{iv.description} on {scale.version} is {moved[1]:g}–{moved[0]:g} Ma on "
+            f"the store's chart {store_scale.version}"
+        )
         younger, older = float(moved[0]), float(moved[1])
     return Interval(younger, older, text, store_scale.version, notes)
 
 
 # --------------------------------------------------------------------------- age models
+
 
 @dataclass
 class SectionModel:
@@ -120,15 +141,16 @@ def find_section(con: Any, name: str) -> tuple[str, str]:
     if len(hits) == 1:
         return hits[0]
     if len(hits) > 1:
-        raise OptionError(f"section {name!r} is in {len(hits)} sources: "
-                          f"{', '.join(h[0] for h in hits)}.",
-                          f"Write SOURCE/SECTION, e.g. {hits[0][0]}/{name}.")
+        raise OptionError(
+            f"section {name!r} is in {len(hits)} sources: {', '.join(h[0] for h in hits)}.",
+            f"Write SOURCE/SECTION, e.g. {hits[0][0]}/{name}.",
+        )
     known = sorted({r[1] for r in rows} | {f"{r[0]}/{r[1]}" for r in rows})
     sug = difflib.get_close_matches(name, known, n=1, cutoff=0.5)
-    raise DomainError(f"no section {name!r} in this store." +
-                      (f" Did you mean {sug[0]!r}?" if sug else ""),
-                      "List sections with `strata13 sql \"SELECT DISTINCT source_id, "
-                      "section_id FROM records\"`.")
+    raise DomainError(
+        f"no section {name!r} in this store." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+        'List sections with `strata13 sql "SELECT DISTINCT source_id, section_id FROM records"`.',
+    )
 
 
 def section_model(store: Store, name: str) -> SectionModel:
@@ -140,16 +162,31 @@ def section_model(store: Store, name: str) -> SectionModel:
     try:
         src, sec = find_section(con, name)
         scale = store.settings().get("time_scale")
-        ties = con.execute("SELECT * FROM age_ties WHERE source_id = ? AND section_id = ? "
-                           "ORDER BY position_m", [src, sec]).to_arrow_table().to_pylist()
-        chunks = con.execute("SELECT positions_json, n_draws, draws FROM age_draws WHERE "
-                             "source_id = ? AND section_id = ? ORDER BY chunk",
-                             [src, sec]).fetchall()
-        kind = con.execute("SELECT any_value(position_kind), count(*) FROM records WHERE "
-                           "source_id = ? AND section_id = ?", [src, sec]).fetchone()
-        counts = dict(con.execute("SELECT coalesce(age_basis, 'undated'), count(*) FROM records "
-                                  "WHERE source_id = ? AND section_id = ? GROUP BY 1",
-                                  [src, sec]).fetchall())
+        ties = (
+            con.execute(
+                "SELECT * FROM age_ties WHERE source_id = ? AND section_id = ? ORDER BY position_m",
+                [src, sec],
+            )
+            .to_arrow_table()
+            .to_pylist()
+        )
+        chunks = con.execute(
+            "SELECT positions_json, n_draws, draws FROM age_draws WHERE "
+            "source_id = ? AND section_id = ? ORDER BY chunk",
+            [src, sec],
+        ).fetchall()
+        kind = con.execute(
+            "SELECT any_value(position_kind), count(*) FROM records WHERE "
+            "source_id = ? AND section_id = ?",
+            [src, sec],
+        ).fetchone()
+        counts = dict(
+            con.execute(
+                "SELECT coalesce(age_basis, 'undated'), count(*) FROM records "
+                "WHERE source_id = ? AND section_id = ? GROUP BY 1",
+                [src, sec],
+            ).fetchall()
+        )
     finally:
         con.close()
     placed = ties_on_scale(ties, scale) if ties else []
@@ -160,8 +197,17 @@ def section_model(store: Store, name: str) -> SectionModel:
         positions += p
         blocks.append(np.frombuffer(blob, dtype="<f4").reshape(n_draws, len(p)))
     draws = np.concatenate(blocks, axis=1) if blocks else np.empty((0, 0), dtype="<f4")
-    model = SectionModel(src, sec, kind[0] or "height", scale, placed, np.array(positions),
-                         draws, int(kind[1]), counts)
+    model = SectionModel(
+        src,
+        sec,
+        kind[0] or "height",
+        scale,
+        placed,
+        np.array(positions),
+        draws,
+        int(kind[1]),
+        counts,
+    )
     if not draws.size:
         model.reason = _no_model_reason(model)
     return model
@@ -183,9 +229,14 @@ def _no_model_reason(model: SectionModel) -> str:
 def _model_tie(t: dict[str, Any]) -> Any:
     from strata13.compile.ages import agemodel
 
-    return agemodel.Tie(position_m=t["position_m"], age_ma=t["age"], age_sigma_ma=t["sigma"],
-                        basis=t["basis"], boundary_key=t["shared_key"],
-                        note=t.get("boundary") or t.get("note") or "")
+    return agemodel.Tie(
+        position_m=t["position_m"],
+        age_ma=t["age"],
+        age_sigma_ma=t["sigma"],
+        basis=t["basis"],
+        boundary_key=t["shared_key"],
+        note=t.get("boundary") or t.get("note") or "",
+    )
 
 
 def plot_model(model: SectionModel, path: Path) -> Path:
@@ -195,11 +246,14 @@ def plot_model(model: SectionModel, path: Path) -> Path:
     from strata13.compile.ages import agemodel
 
     if model.draws.size == 0:
-        raise DomainError(f"section {model.source_id}/{model.section_id} has no age model "
-                          f"({model.reason}).",
-                          "Add or correct its age ties in a mapping file or a source of ties.")
+        raise DomainError(
+            f"section {model.source_id}/{model.section_id} has no age model ({model.reason}).",
+            "Add or correct its age ties in a mapping file or a source of ties.",
+        )
     ties = [_model_tie(t) for t in model.ties]
     summary = agemodel.summarise(model.draws.astype(np.float64))
-    title = (f"{model.section_id} ({model.source_id})\nage model on {model.time_scale}, "
-             f"{model.draws.shape[0]} draws")
+    title = (
+        f"{model.section_id} ({model.source_id})\nage model on {model.time_scale}, "
+        f"{model.draws.shape[0]} draws"
+    )
     return plot_section(ties, model.positions, summary, model.position_kind, title, path)

@@ -23,69 +23,108 @@ from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError
 
-TIE_KEYS = {"id", "section", "position", "unit", "position_uncertainty", "age",
-            "uncertainty", "confidence", "basis", "boundary", "chart", "anchor", "note"}
-CONFIDENCE = {"1σ": 1.0, "1s": 1.0, "1sigma": 1.0, "68%": 1.0,
-              "2σ": 2.0, "2s": 2.0, "2sigma": 2.0, "95%": 1.96}
+TIE_KEYS = {
+    "id",
+    "section",
+    "position",
+    "unit",
+    "position_uncertainty",
+    "age",
+    "uncertainty",
+    "confidence",
+    "basis",
+    "boundary",
+    "chart",
+    "anchor",
+    "note",
+}
+CONFIDENCE = {
+    "1σ": 1.0,
+    "1s": 1.0,
+    "1sigma": 1.0,
+    "68%": 1.0,
+    "2σ": 2.0,
+    "2s": 2.0,
+    "2sigma": 2.0,
+    "95%": 1.96,
+}
 MOVES_WITH_CHART = ("chart boundary", "biozone boundary", "correlation")
 
 
-def _num(value: Any, key: str, where: str, path: Path, *, positive: bool = False
-         ) -> float | None:
+def _num(value: Any, key: str, where: str, path: Path, *, positive: bool = False) -> float | None:
     if value is None or (isinstance(value, str) and not value.strip()):
         return None
     if isinstance(value, bool):
-        raise ConfigError(f"{path.name}: {where} {key} = {value!r} is not a number.",
-                          f"Write {key} as a number.")
+        raise ConfigError(
+            f"{path.name}: {where} {key} = {value!r} is not a number.", f"Write {key} as a number."
+        )
     try:
-        x = float(str(value).strip().replace("−", "-").replace(",", ".")) \
-            if isinstance(value, str) else float(value)
+        x = (
+            float(str(value).strip().replace("−", "-").replace(",", "."))
+            if isinstance(value, str)
+            else float(value)
+        )
     except ValueError:
-        raise ConfigError(f"{path.name}: {where} {key} = {value!r} is not a number.",
-                          f"Write {key} as a number.") from None
+        raise ConfigError(
+            f"{path.name}: {where} {key} = {value!r} is not a number.", f"Write {key} as a number."
+        ) from None
     if x != x or x in (float("inf"), float("-inf")) or (positive and x < 0):
-        raise ConfigError(f"{path.name}: {where} {key} = {value!r} is not a usable number.",
-                          f"Write {key} as a finite number" + (" ≥ 0." if positive else "."))
+        raise ConfigError(
+            f"{path.name}: {where} {key} = {value!r} is not a usable number.",
+            f"Write {key} as a finite number" + (" ≥ 0." if positive else "."),
+        )
     return x
 
 
-def parse_tie(spec: dict[str, Any], where: str, path: Path, source_id: str,
-              default_chart: str | None) -> dict[str, Any]:
+def parse_tie(
+    spec: dict[str, Any], where: str, path: Path, source_id: str, default_chart: str | None
+) -> dict[str, Any]:
     """One tie block or CSV row -> one stored tie row (metres, Ma, 1σ)."""
     from strata13.compile.read.mapping import _did_you_mean
 
     for key in spec:
         if key not in TIE_KEYS:
-            raise ConfigError(f"{path.name}: unknown key {key!r} in {where}."
-                              + _did_you_mean(key, TIE_KEYS),
-                              f"Tie keys: {', '.join(sorted(TIE_KEYS))}.")
+            raise ConfigError(
+                f"{path.name}: unknown key {key!r} in {where}." + _did_you_mean(key, TIE_KEYS),
+                f"Tie keys: {', '.join(sorted(TIE_KEYS))}.",
+            )
     section = str(spec.get("section") or "").strip()
     if not section:
-        raise ConfigError(f"{path.name}: {where} names no section.",
-                          "Give section = \"…\" (or \"other-source/section\").")
+        raise ConfigError(
+            f"{path.name}: {where} names no section.",
+            'Give section = "…" (or "other-source/section").',
+        )
     target, _, sec = section.rpartition("/")
     target = target or source_id
     unit = str(spec.get("unit") or "m")
     if unit not in UNITS["length"]:
-        raise ConfigError(f"{path.name}: {where} unit = {unit!r} is not a length unit.",
-                          f"Units: {', '.join(UNITS['length'])}.")
+        raise ConfigError(
+            f"{path.name}: {where} unit = {unit!r} is not a length unit.",
+            f"Units: {', '.join(UNITS['length'])}.",
+        )
     factor = UNITS["length"][unit]
     pos = _num(spec.get("position"), "position", where, path)
     if pos is None:
-        raise ConfigError(f"{path.name}: {where} has no position.",
-                          "Give the tie's height or depth in the section's own convention.")
+        raise ConfigError(
+            f"{path.name}: {where} has no position.",
+            "Give the tie's height or depth in the section's own convention.",
+        )
     raw_basis = str(spec.get("basis") or "")
     basis = vocabulary("tie_basis").resolve(raw_basis) if raw_basis else None
     if basis is None:
         sug = vocabulary("tie_basis").suggest(raw_basis) if raw_basis else None
-        raise ConfigError(f"{path.name}: {where} basis = {raw_basis!r} is not known."
-                          + (f" Did you mean {sug!r}?" if sug else ""),
-                          f"Bases: {', '.join(vocabulary('tie_basis').terms)}.")
+        raise ConfigError(
+            f"{path.name}: {where} basis = {raw_basis!r} is not known."
+            + (f" Did you mean {sug!r}?" if sug else ""),
+            f"Bases: {', '.join(vocabulary('tie_basis').terms)}.",
+        )
     conf_text = str(spec.get("confidence") or "1σ").strip().lower().replace(" ", "")
     divisor = CONFIDENCE.get(conf_text)
     if divisor is None:
-        raise ConfigError(f"{path.name}: {where} confidence = {spec.get('confidence')!r} is "
-                          "not known.", "Use \"1σ\", \"2σ\" or \"95%\".")
+        raise ConfigError(
+            f"{path.name}: {where} confidence = {spec.get('confidence')!r} is not known.",
+            'Use "1σ", "2σ" or "95%".',
+        )
     age = _num(spec.get("age"), "age", where, path, positive=True)
     unc = _num(spec.get("uncertainty"), "uncertainty", where, path, positive=True)
     boundary = str(spec.get("boundary") or "").strip() or None
@@ -93,71 +132,100 @@ def parse_tie(spec: dict[str, Any], where: str, path: Path, source_id: str,
     chart = vocabulary("time_scale").resolve(chart_text) if chart_text else None
     if chart_text and chart is None:
         sug = vocabulary("time_scale").suggest(chart_text)
-        raise ConfigError(f"{path.name}: {where} chart = {chart_text!r} is not a known chart "
-                          "version." + (f" Did you mean {sug!r}?" if sug else ""),
-                          f"Charts: {', '.join(vocabulary('time_scale').terms)}.")
+        raise ConfigError(
+            f"{path.name}: {where} chart = {chart_text!r} is not a known chart "
+            "version." + (f" Did you mean {sug!r}?" if sug else ""),
+            f"Charts: {', '.join(vocabulary('time_scale').terms)}.",
+        )
     if basis in ("chart boundary", "biozone boundary") and not boundary:
-        raise ConfigError(f"{path.name}: {where} is a {basis} tie without boundary = \"…\".",
-                          "Name the boundary (for a chart boundary: the stage, series or "
-                          "period whose base it is).")
+        raise ConfigError(
+            f'{path.name}: {where} is a {basis} tie without boundary = "…".',
+            "Name the boundary (for a chart boundary: the stage, series or "
+            "period whose base it is).",
+        )
     if basis in MOVES_WITH_CHART and chart is None:
-        raise ConfigError(f"{path.name}: {where} is a {basis} tie without a chart version.",
-                          "Give chart = \"ICS2012\" (the chart its age was read on), or "
-                          "age_time_scale in [constants].")
+        raise ConfigError(
+            f"{path.name}: {where} is a {basis} tie without a chart version.",
+            'Give chart = "ICS2012" (the chart its age was read on), or '
+            "age_time_scale in [constants].",
+        )
     if age is None and basis != "chart boundary":
-        raise ConfigError(f"{path.name}: {where} has no age.",
-                          "Give age = … in Ma (only chart-boundary ties take theirs from the "
-                          "chart).")
+        raise ConfigError(
+            f"{path.name}: {where} has no age.",
+            "Give age = … in Ma (only chart-boundary ties take theirs from the chart).",
+        )
     if basis == "astrochronologic" and not spec.get("anchor"):
-        raise ConfigError(f"{path.name}: {where} is astrochronologic without anchor = \"…\".",
-                          "Name the id of the tie its duration is counted from.")
-    psig = _num(spec.get("position_uncertainty"), "position_uncertainty", where, path,
-                positive=True)
-    return {"tie_source_id": source_id, "source_id": target, "section_id": sec,
-            "tie_id": str(spec.get("id") or "").strip() or None,
-            "position_m": pos * factor,
-            "position_sigma_m": psig * factor if psig is not None else None,
-            "age_ma": age, "age_sigma_ma": unc / divisor if unc is not None else None,
-            "confidence": conf_text, "basis": basis, "boundary": boundary, "chart": chart,
-            "anchor": str(spec.get("anchor") or "").strip() or None,
-            "note": str(spec.get("note") or "").strip() or None}
+        raise ConfigError(
+            f'{path.name}: {where} is astrochronologic without anchor = "…".',
+            "Name the id of the tie its duration is counted from.",
+        )
+    psig = _num(
+        spec.get("position_uncertainty"), "position_uncertainty", where, path, positive=True
+    )
+    return {
+        "tie_source_id": source_id,
+        "source_id": target,
+        "section_id": sec,
+        "tie_id": str(spec.get("id") or "").strip() or None,
+        "position_m": pos * factor,
+        "position_sigma_m": psig * factor if psig is not None else None,
+        "age_ma": age,
+        "age_sigma_ma": unc / divisor if unc is not None else None,
+        "confidence": conf_text,
+        "basis": basis,
+        "boundary": boundary,
+        "chart": chart,
+        "anchor": str(spec.get("anchor") or "").strip() or None,
+        "note": str(spec.get("note") or "").strip() or None,
+    }
 
 
-def read_ties(path: Path, blocks: Any, table_file: Path | None, source_id: str,
-              default_chart: str | None) -> list[dict[str, Any]]:
+def read_ties(
+    path: Path, blocks: Any, table_file: Path | None, source_id: str, default_chart: str | None
+) -> list[dict[str, Any]]:
     """Every tie of a mapping file: its ``[[ties]]`` blocks, then its ``[ties_table]`` rows."""
     if not isinstance(blocks, list) or not all(isinstance(b, dict) for b in blocks):
-        raise ConfigError(f"{path.name}: ties are [[ties]] blocks.",
-                          "Write each tie as a [[ties]] block.")
-    ties = [parse_tie(b, f"[[ties]] block {i + 1}", path, source_id, default_chart)
-            for i, b in enumerate(blocks)]
+        raise ConfigError(
+            f"{path.name}: ties are [[ties]] blocks.", "Write each tie as a [[ties]] block."
+        )
+    ties = [
+        parse_tie(b, f"[[ties]] block {i + 1}", path, source_id, default_chart)
+        for i, b in enumerate(blocks)
+    ]
     if table_file is not None:
         from strata13.compile.read.inputs import read_text
 
-        text = read_text(table_file, f"{path.name}: [ties_table] file",
-                         "Check the file name, relative to the mapping file.")
+        text = read_text(
+            table_file,
+            f"{path.name}: [ties_table] file",
+            "Check the file name, relative to the mapping file.",
+        )
         reader = csv.DictReader(text.splitlines())
         unknown = [h for h in reader.fieldnames or [] if h and h.strip() not in TIE_KEYS]
         if unknown:
             from strata13.compile.read.mapping import _did_you_mean
 
-            raise ConfigError(f"{table_file.name}: unknown column {unknown[0]!r}."
-                              + _did_you_mean(unknown[0], TIE_KEYS),
-                              f"Columns: {', '.join(sorted(TIE_KEYS))}.")
+            raise ConfigError(
+                f"{table_file.name}: unknown column {unknown[0]!r}."
+                + _did_you_mean(unknown[0], TIE_KEYS),
+                f"Columns: {', '.join(sorted(TIE_KEYS))}.",
+            )
         for line, row in enumerate(reader, start=2):
             clean = {k.strip(): v for k, v in row.items() if k and v not in (None, "")}
             if clean:
-                ties.append(parse_tie(clean, f"line {line}", table_file, source_id,
-                                      default_chart))
+                ties.append(parse_tie(clean, f"line {line}", table_file, source_id, default_chart))
     ids = [t["tie_id"] for t in ties if t["tie_id"]]
     dup = {i for i in ids if ids.count(i) > 1}
     if dup:
-        raise ConfigError(f"{path.name}: two ties have the id {sorted(dup)[0]!r}.",
-                          "Give each tie its own id.")
+        raise ConfigError(
+            f"{path.name}: two ties have the id {sorted(dup)[0]!r}.", "Give each tie its own id."
+        )
     for t in ties:
         if t["anchor"] and t["anchor"] not in ids:
-            raise ConfigError(f"{path.name}: tie anchor {t['anchor']!r} names no tie of this "
-                              "file.", "Anchor an astrochronologic tie on a tie id given here.")
+            raise ConfigError(
+                f"{path.name}: tie anchor {t['anchor']!r} names no tie of this file.",
+                "Anchor an astrochronologic tie on a tie id given here.",
+            )
     return ties
 
 

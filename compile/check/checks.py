@@ -46,9 +46,14 @@ class RowErrors:
             self.reasons.setdefault(int(i), []).append(f"{cell}: {rule}")
 
 
-def interval_order(cols: dict[str, Any], column: Any, rows: RowErrors,
-                    letters: dict[str, tuple[str, str]], section_blocks: dict[str, Any],
-                    sec: Any) -> None:
+def interval_order(
+    cols: dict[str, Any],
+    column: Any,
+    rows: RowErrors,
+    letters: dict[str, tuple[str, str]],
+    section_blocks: dict[str, Any],
+    sec: Any,
+) -> None:
     """A sampled interval's top must lie above its base (heights: top ≥ base; depths: top ≤
     base)."""
     import numpy as np
@@ -58,19 +63,32 @@ def interval_order(cols: dict[str, Any], column: Any, rows: RowErrors,
         return
     top = pd.to_numeric(pd.Series(column("top_m")), errors="coerce").to_numpy(dtype=float)
     base = pd.to_numeric(pd.Series(column("base_m")), errors="coerce").to_numpy(dtype=float)
-    kinds = column("position_kind") if "position_kind" in cols else np.array(
-        [section_blocks.get(s, {}).get("position_kind") for s in sec], dtype=object)
+    kinds = (
+        column("position_kind")
+        if "position_kind" in cols
+        else np.array([section_blocks.get(s, {}).get("position_kind") for s in sec], dtype=object)
+    )
     depth = np.array([k == "depth" for k in kinds], dtype=bool)
     wrong = np.where(depth, top > base, top < base)
     letter, header = letters.get("top_m", ("", "top"))
     for i in np.nonzero(wrong)[0]:
-        rows.error(int(i), letter, header, top[i], "interval order",
-                   f"top {top[i]:g} m is {'below' if not depth[i] else 'deeper than'} base "
-                   f"{base[i]:g} m; check that top and base are not swapped")
+        rows.error(
+            int(i),
+            letter,
+            header,
+            top[i],
+            "interval order",
+            f"top {top[i]:g} m is {'below' if not depth[i] else 'deeper than'} base "
+            f"{base[i]:g} m; check that top and base are not swapped",
+        )
 
 
-def schema_check(frame: pa.Table, rows: RowErrors, letters: dict[str, tuple[str, str]],
-                  raw_text: Any = lambda col, i: None) -> None:
+def schema_check(
+    frame: pa.Table,
+    rows: RowErrors,
+    letters: dict[str, tuple[str, str]],
+    raw_text: Any = lambda col, i: None,
+) -> None:
     """Run the pandera schema lazily and turn its failure cases into cell errors."""
     import pandera.errors as pe
     import pyarrow as pa
@@ -79,11 +97,24 @@ def schema_check(frame: pa.Table, rows: RowErrors, letters: dict[str, tuple[str,
     schema = record_schema()
     # the schema sees the columns this sheet filled (ids and text are checked above, row by
     # row); vocabulary columns go in dictionary-encoded, so no Python object per cell
-    keep = [c for c in frame.column_names if c in schema.columns and c not in TEXT_CHECKED
-            and frame.column(c).null_count < frame.num_rows]
+    keep = [
+        c
+        for c in frame.column_names
+        if c in schema.columns
+        and c not in TEXT_CHECKED
+        and frame.column(c).null_count < frame.num_rows
+    ]
     sub = frame.select(keep)
-    sub = pa.table({c: (sub.column(c).dictionary_encode() if pa.types.is_string(sub.column(c).type)
-                        else sub.column(c)) for c in keep})
+    sub = pa.table(
+        {
+            c: (
+                sub.column(c).dictionary_encode()
+                if pa.types.is_string(sub.column(c).type)
+                else sub.column(c)
+            )
+            for c in keep
+        }
+    )
     schema = schema.select_columns(keep) if keep else schema.select_columns([])
     failures = []
     for start in range(0, max(sub.num_rows, 1), SCHEMA_CHUNK):  # bounded memory
@@ -105,16 +136,24 @@ def schema_check(frame: pa.Table, rows: RowErrors, letters: dict[str, tuple[str,
             if check.startswith("in_range") and f is not None and f.plausible:
                 lo, hi = f.plausible
                 rule = f"plausible {f.plausible_name or 'range'}"
-                hint = (f"outside {lo:g} … {hi:g}"
-                        f"{' ' + f.stored_unit if f.stored_unit else ''}; check the unit and the "
-                        "column mapping")
+                hint = (
+                    f"outside {lo:g} … {hi:g}"
+                    f"{' ' + f.stored_unit if f.stored_unit else ''}; check the unit and the "
+                    "column mapping"
+                )
             elif check.startswith("in_range"):
                 rule, hint = "plausible range", f"outside {check}; check the unit and mapping"
             else:
                 rule, hint = check, f"failed the {check} check"
             shown = raw_text(str(col), int(idx))
-            rows.error(int(idx), letter, header,
-                       shown if shown is not None else r.get("failure_case"), rule, hint)
+            rows.error(
+                int(idx),
+                letter,
+                header,
+                shown if shown is not None else r.get("failure_case"),
+                rule,
+                hint,
+            )
 
 
 TEXT_CHECKED = ("record_id", "source_id", "section_id", "sample_id")
@@ -140,12 +179,17 @@ def superposition(frame: pa.Table, rows: RowErrors, letters: dict[str, tuple[str
     sec = frame.column("section_id").to_numpy(zero_copy_only=False)
     pos = frame.column("position_m").to_numpy(zero_copy_only=False).astype(float)
     age = frame.column("age_reported_ma").to_numpy(zero_copy_only=False).astype(float)
-    sig = frame.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float) \
-        if "age_reported_sigma_ma" in frame.column_names else np.zeros(len(age))
+    sig = (
+        frame.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float)
+        if "age_reported_sigma_ma" in frame.column_names
+        else np.zeros(len(age))
+    )
     sig = np.nan_to_num(sig)
-    kind = frame.column("position_kind").to_numpy(zero_copy_only=False) \
-        if "position_kind" in frame.column_names \
+    kind = (
+        frame.column("position_kind").to_numpy(zero_copy_only=False)
+        if "position_kind" in frame.column_names
         else [None] * len(age)
+    )
     letter, header = letters.get("age_reported_ma", ("", "age"))
     import pandas as pd
 
@@ -162,13 +206,20 @@ def superposition(frame: pa.Table, rows: RowErrors, letters: dict[str, tuple[str
     gap = np.where(depth, age[a] - age[b], age[b] - age[a])
     wrong = same & (gap > sig[a] + sig[b])
     for i, j in zip(a[wrong], b[wrong], strict=True):
-        rows.error(int(j), letter, header, age[j], "superposition",
-                   f"age {age[j]:g} Ma at {pos[j]:g} m contradicts {age[i]:g} Ma at "
-                   f"{pos[i]:g} m (row {rows.raw.row_numbers[i]}) in the same section")
+        rows.error(
+            int(j),
+            letter,
+            header,
+            age[j],
+            "superposition",
+            f"age {age[j]:g} Ma at {pos[j]:g} m contradicts {age[i]:g} Ma at "
+            f"{pos[i]:g} m (row {rows.raw.row_numbers[i]}) in the same section",
+        )
 
 
-def plausibility(frame: pa.Table, raw: RawTable, report: Report,
-                  letters: dict[str, tuple[str, str]]) -> None:
+def plausibility(
+    frame: pa.Table, raw: RawTable, report: Report, letters: dict[str, tuple[str, str]]
+) -> None:
     """Warnings for swapped δ columns and unit slips (common-practice heuristics)."""
     import numpy as np
 
@@ -179,24 +230,54 @@ def plausibility(frame: pa.Table, raw: RawTable, report: Report,
         return v[~np.isnan(v)]
 
     c13, o18 = values("d13c_carb_reported"), values("d18o_carb_reported")
-    scales = set(frame.column("d18o_carb_scale").unique().to_pylist()) \
-        if "d18o_carb_scale" in frame.column_names else set()
+    scales = (
+        set(frame.column("d18o_carb_scale").unique().to_pylist())
+        if "d18o_carb_scale" in frame.column_names
+        else set()
+    )
     if len(c13) >= 5 and len(o18) >= 5 and scales <= {"VPDB", "PDB", None}:
         # Marine carbonate δ18O (VPDB) is mostly below δ13C (common practice, from memory:
         # Phanerozoic δ13C ~ -3…+6 ‰, δ18O ~ -10…0 ‰); the reverse suggests swapped columns.
         if np.median(o18) > np.median(c13) + 2:
             letter, header = letters.get("d13c_carb_reported", ("", ""))
-            report.add(Issue("warning", raw.sheet, letter, header, f"{np.median(c13):.2f}",
-                             "swapped δ columns?", "median δ18O is well above median δ13C; "
-                             "check that the δ13C and δ18O columns are not swapped"))
+            report.add(
+                Issue(
+                    "warning",
+                    raw.sheet,
+                    letter,
+                    header,
+                    f"{np.median(c13):.2f}",
+                    "swapped δ columns?",
+                    "median δ18O is well above median δ13C; "
+                    "check that the δ13C and δ18O columns are not swapped",
+                )
+            )
     pos = values("position_m")
     letter, header = letters.get("position_m", ("", ""))
     if len(pos) >= 5 and np.nanmax(np.abs(pos)) > 2000:
-        report.add(Issue("warning", raw.sheet, letter, header, f"{np.nanmax(pos):g}",
-                         "unit slip?", "positions above 2000 m: were they given in cm or ft?"))
+        report.add(
+            Issue(
+                "warning",
+                raw.sheet,
+                letter,
+                header,
+                f"{np.nanmax(pos):g}",
+                "unit slip?",
+                "positions above 2000 m: were they given in cm or ft?",
+            )
+        )
     for c in CONC_FIELDS:
         v = values(BY_NAME[c].stored)
         letter, header = letters.get(BY_NAME[c].stored, ("", ""))
         if c in ("mn", "sr", "fe") and len(v) >= 5 and np.nanmax(v) < 1.0:
-            report.add(Issue("warning", raw.sheet, letter, header, f"{np.nanmax(v):g}",
-                             "unit slip?", f"all {c} values below 1 ppm: were they in %?"))
+            report.add(
+                Issue(
+                    "warning",
+                    raw.sheet,
+                    letter,
+                    header,
+                    f"{np.nanmax(v):g}",
+                    "unit slip?",
+                    f"all {c} values below 1 ppm: were they in %?",
+                )
+            )

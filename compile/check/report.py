@@ -56,8 +56,10 @@ class Report:
 
     def sorted(self) -> list[Issue]:
         order = {s: k for k, s in enumerate(SEVERITIES)}
-        return sorted(self.issues, key=lambda i: (order.get(i.severity, 9), i.sheet,
-                                                  _cell_key(i.cell), i.rule))
+        return sorted(
+            self.issues,
+            key=lambda i: (order.get(i.severity, 9), i.sheet, _cell_key(i.cell), i.rule),
+        )
 
     def to_csv(self) -> str:
         buf = io.StringIO()
@@ -68,10 +70,17 @@ class Report:
         return buf.getvalue()
 
     def to_json(self) -> str:
-        return json.dumps({"rows_read": self.rows_read, "rows_blank": self.rows_blank,
-                           "rows_valid": self.rows_valid, "rows_rejected": self.rows_rejected,
-                           "issues": [i.as_dict() for i in self.sorted()]},
-                          ensure_ascii=False, indent=1)
+        return json.dumps(
+            {
+                "rows_read": self.rows_read,
+                "rows_blank": self.rows_blank,
+                "rows_valid": self.rows_valid,
+                "rows_rejected": self.rows_rejected,
+                "issues": [i.as_dict() for i in self.sorted()],
+            },
+            ensure_ascii=False,
+            indent=1,
+        )
 
     def write(self, path: Path) -> None:
         """CSV or JSON by the file's suffix (JSON for .json, CSV otherwise)."""

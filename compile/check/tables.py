@@ -32,16 +32,28 @@ def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arra
     import pyarrow.compute as pc
 
     n = len(replicate)
-    t = pa.table({"sec": strings(sec), "sample": strings(sample),
-                  "rep": pa.array(np.asarray(replicate, dtype=np.int64)),
-                  "i": pa.array(np.arange(n, dtype=np.int64))})
+    t = pa.table(
+        {
+            "sec": strings(sec),
+            "sample": strings(sample),
+            "rep": pa.array(np.asarray(replicate, dtype=np.int64)),
+            "i": pa.array(np.arange(n, dtype=np.int64)),
+        }
+    )
     con = duckdb.connect()
     try:
         con.register("k", t)
-        ids = con.execute(
-            "SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
-            "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
-            "END AS id FROM k ORDER BY i", [sid]).to_arrow_table().column("id").combine_chunks()
+        ids = (
+            con.execute(
+                "SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
+                "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
+                "END AS id FROM k ORDER BY i",
+                [sid],
+            )
+            .to_arrow_table()
+            .column("id")
+            .combine_chunks()
+        )
     finally:
         con.close()
     first = np.full(n, -1, dtype=np.int64)
@@ -62,14 +74,17 @@ def const(value: Any, n: int, sqltype: str) -> pa.Array:
     """One value for every row, built by Arrow (no Python object per row)."""
     import pyarrow as pa
 
-    t = {"VARCHAR": pa.string(), "DOUBLE": pa.float64(), "INTEGER": pa.int32(),
-         "BIGINT": pa.int64()}[sqltype]
+    t = {
+        "VARCHAR": pa.string(),
+        "DOUBLE": pa.float64(),
+        "INTEGER": pa.int32(),
+        "BIGINT": pa.int64(),
+    }[sqltype]
     if value is None:
         return pa.nulls(n, t)
     import pyarrow.compute as pc
 
-    return pc.fill_null(pa.nulls(n, t), pa.scalar(str(value) if sqltype == "VARCHAR"
-                                                   else value, t))
+    return pc.fill_null(pa.nulls(n, t), pa.scalar(str(value) if sqltype == "VARCHAR" else value, t))
 
 
 def strings(values: Any) -> pa.Array:
@@ -81,16 +96,19 @@ def strings(values: Any) -> pa.Array:
     try:
         return pa.array(values, type=pa.string(), from_pandas=True)
     except (pa.ArrowInvalid, pa.ArrowTypeError):
-        return pa.array([None if v is None or v != v else str(v) for v in values],
-                        type=pa.string())
+        return pa.array([None if v is None or v != v else str(v) for v in values], type=pa.string())
 
 
 def to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
     import numpy as np
     import pyarrow as pa
 
-    t = {"VARCHAR": pa.string(), "DOUBLE": pa.float64(), "INTEGER": pa.int32(),
-         "BIGINT": pa.int64()}[sqltype]
+    t = {
+        "VARCHAR": pa.string(),
+        "DOUBLE": pa.float64(),
+        "INTEGER": pa.int32(),
+        "BIGINT": pa.int64(),
+    }[sqltype]
     if isinstance(values, pa.ChunkedArray):
         values = values.combine_chunks()
     if isinstance(values, pa.Array):
@@ -98,8 +116,13 @@ def to_arrow(values: Any, sqltype: str, n: int) -> pa.Array:
     if isinstance(values, np.ndarray) and values.dtype != object:
         return pa.array(values, from_pandas=True).cast(t)  # NaN -> null
     if sqltype == "DOUBLE":  # object arrays (lat/lon filled from localities)
-        return pa.array([None if v is None or (isinstance(v, float) and np.isnan(v)) else float(v)
-                         for v in values], type=t)
+        return pa.array(
+            [
+                None if v is None or (isinstance(v, float) and np.isnan(v)) else float(v)
+                for v in values
+            ],
+            type=t,
+        )
     if sqltype == "VARCHAR":
         return strings(values)
     return pa.array(list(values), type=t)
@@ -144,8 +167,7 @@ def row_hashes(table: pa.Table) -> pa.Array:
         k = hash_array(np.array([name], dtype=object))[0] | np.uint64(1)
         if pa.types.is_string(col.type):  # hash each distinct text once, spread by index
             d = col.combine_chunks().dictionary_encode()
-            per_value = hash_array(d.dictionary.to_numpy(zero_copy_only=False),
-                                   categorize=False)
+            per_value = hash_array(d.dictionary.to_numpy(zero_copy_only=False), categorize=False)
             idx = pc.fill_null(d.indices, -1).to_numpy(zero_copy_only=False)
             v = np.where(idx >= 0, per_value[np.maximum(idx, 0)], 0).astype(np.uint64)
         else:
@@ -161,10 +183,19 @@ def localities_table(sid: str, blocks: dict[str, dict[str, Any]]) -> pa.Table:
     import pyarrow as pa
     from strata13.schemas.records import arrow_schema
 
-    rows = [{"source_id": sid, "locality_id": k, "name": b.get("name"), "lat": b["lat"],
-             "lon": b["lon"], "precision_km": b.get("precision_km"),
-             "aliases": "|".join(b.get("aliases", []) or []), "note": b.get("note")}
-            for k, b in sorted(blocks.items())]
+    rows = [
+        {
+            "source_id": sid,
+            "locality_id": k,
+            "name": b.get("name"),
+            "lat": b["lat"],
+            "lon": b["lon"],
+            "precision_km": b.get("precision_km"),
+            "aliases": "|".join(b.get("aliases", []) or []),
+            "note": b.get("note"),
+        }
+        for k, b in sorted(blocks.items())
+    ]
     return pa.Table.from_pylist(rows, schema=arrow_schema(LOCALITIES))
 
 
@@ -180,13 +211,20 @@ def sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: A
     rows = []
     for s in ids:
         b = blocks.get(s, {})
-        rows.append({"source_id": sid, "section_id": s,
-                     "locality_id": b.get("locality") or first_loc.get(s),
-                     "name": b.get("name"), "datum": b.get("datum"),
-                     "position_kind": b.get("position_kind"),
-                     "datum_offset_m": b.get("datum_offset_m"),
-                     "offset_from": b.get("offset_from"), "offset_source": b.get("offset_source"),
-                     "note": b.get("note")})
+        rows.append(
+            {
+                "source_id": sid,
+                "section_id": s,
+                "locality_id": b.get("locality") or first_loc.get(s),
+                "name": b.get("name"),
+                "datum": b.get("datum"),
+                "position_kind": b.get("position_kind"),
+                "datum_offset_m": b.get("datum_offset_m"),
+                "offset_from": b.get("offset_from"),
+                "offset_source": b.get("offset_source"),
+                "note": b.get("note"),
+            }
+        )
     return pa.Table.from_pylist(rows, schema=arrow_schema(SECTIONS))
 
 
@@ -198,9 +236,11 @@ def samples_table(records: pa.Table) -> pa.Table:
     con = duckdb.connect()
     try:
         con.register("r", records.select([c for c, _ in SAMPLES]))
-        t = con.execute("SELECT source_id, section_id, sample_id, min(position_m), min(top_m), "
-                        "max(base_m), min(lithostrat_unit) FROM r GROUP BY ALL "
-                        "ORDER BY section_id, sample_id").to_arrow_table()
+        t = con.execute(
+            "SELECT source_id, section_id, sample_id, min(position_m), min(top_m), "
+            "max(base_m), min(lithostrat_unit) FROM r GROUP BY ALL "
+            "ORDER BY section_id, sample_id"
+        ).to_arrow_table()
     finally:
         con.close()
     return t.rename_columns([c for c, _ in SAMPLES]).cast(arrow_schema(SAMPLES))

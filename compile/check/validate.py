@@ -78,8 +78,15 @@ def prepare_ties_only(mapping: Mapping) -> Prepared:
     def empty(cols: list[tuple[str, str]]) -> pa.Table:
         return arrow_schema(cols).empty_table()
 
-    return Prepared(mapping, mapping.sha256, empty(ANALYSES), empty(LOCALITIES), empty(SECTIONS),
-                    empty(SAMPLES), [])
+    return Prepared(
+        mapping,
+        mapping.sha256,
+        empty(ANALYSES),
+        empty(LOCALITIES),
+        empty(SECTIONS),
+        empty(SAMPLES),
+        [],
+    )
 
 
 def _file_sha(path: Any) -> str:
@@ -90,8 +97,9 @@ def _file_sha(path: Any) -> str:
     return h.hexdigest()
 
 
-def _match_columns(raw: RawTable, spec: TableSpec,
-                   report: Report) -> dict[str, tuple[int, str | None]]:
+def _match_columns(
+    raw: RawTable, spec: TableSpec, report: Report
+) -> dict[str, tuple[int, str | None]]:
     """Mapped header -> (column index, unit found in the header).
 
     An exact header (ignoring case and spacing) wins over one matched without its unit;
@@ -107,14 +115,17 @@ def _match_columns(raw: RawTable, spec: TableSpec,
     missing = []
     for c in spec.columns:
         key = norm_header(c.header)
-        hits = [(j, None) for j in exact.get(key, [])] or \
-            bare.get(norm_header(strip_unit(c.header)[0]), [])
+        hits = [(j, None) for j in exact.get(key, [])] or bare.get(
+            norm_header(strip_unit(c.header)[0]), []
+        )
         if len(hits) > 1:
             cells = " and ".join(f"{raw.letters[j]}{raw.header_row}" for j, _ in hits)
-            raise ConfigError(f"{raw.file} ({raw.sheet}): the mapped column {c.header!r} matches "
-                              f"more than one header ({cells}).",
-                              "Give the columns distinct headers in the sheet, or map the "
-                              "exact header text including its unit.")
+            raise ConfigError(
+                f"{raw.file} ({raw.sheet}): the mapped column {c.header!r} matches "
+                f"more than one header ({cells}).",
+                "Give the columns distinct headers in the sheet, or map the "
+                "exact header text including its unit.",
+            )
         if hits:
             out[c.header] = hits[0]
         else:
@@ -122,9 +133,11 @@ def _match_columns(raw: RawTable, spec: TableSpec,
     taken: dict[int, str] = {}
     for header, (j, _) in out.items():
         if j in taken:
-            raise ConfigError(f"{spec.file.name}: mapping keys {taken[j]!r} and {header!r} both "
-                              f"name column {raw.letters[j]} ({raw.headers[j]!r}).",
-                              "Map each sheet column once.")
+            raise ConfigError(
+                f"{spec.file.name}: mapping keys {taken[j]!r} and {header!r} both "
+                f"name column {raw.letters[j]} ({raw.headers[j]!r}).",
+                "Map each sheet column once.",
+            )
         taken[j] = header
     if missing:
         import difflib
@@ -134,34 +147,62 @@ def _match_columns(raw: RawTable, spec: TableSpec,
             f"{raw.file} ({raw.sheet}): column {missing[0]!r} of the mapping is not in the header "
             f"row {raw.header_row}." + (f" Did you mean {hint[0]!r}?" if hint else ""),
             f"Header cells found: {', '.join(h for h in raw.headers if h)}. Set header_row "
-            "in [table] if the header is elsewhere.")
+            "in [table] if the header is elsewhere.",
+        )
     return out
 
 
-def _unit_for(c: ColumnMap, header_unit: str | None, raw: RawTable, letter: str,
-              report: Report) -> str | None:
+def _unit_for(
+    c: ColumnMap, header_unit: str | None, raw: RawTable, letter: str, report: Report
+) -> str | None:
     f = BY_NAME.get(c.field)
     if f is None or f.unit_kind is None:
         return None
     units = UNITS[f.unit_kind]
     if c.unit:
         if header_unit and header_unit in units and header_unit != c.unit:
-            report.add(Issue("warning", raw.sheet, f"{letter}{raw.header_row}", c.header,
-                             header_unit, "unit conflict",
-                             f"the header says {header_unit} but the mapping says {c.unit}; "
-                             f"the mapping's {c.unit} is used"))
+            report.add(
+                Issue(
+                    "warning",
+                    raw.sheet,
+                    f"{letter}{raw.header_row}",
+                    c.header,
+                    header_unit,
+                    "unit conflict",
+                    f"the header says {header_unit} but the mapping says {c.unit}; "
+                    f"the mapping's {c.unit} is used",
+                )
+            )
         return c.unit
     if header_unit:
         hu = header_unit.replace(" ", "")
         for u in units:
             if hu.lower() == u.lower().replace(" ", ""):
-                report.add(Issue("info", raw.sheet, f"{letter}{raw.header_row}", c.header, u,
-                                 "unit from header", f"unit {u} taken from the header"))
+                report.add(
+                    Issue(
+                        "info",
+                        raw.sheet,
+                        f"{letter}{raw.header_row}",
+                        c.header,
+                        u,
+                        "unit from header",
+                        f"unit {u} taken from the header",
+                    )
+                )
                 return u
     if f.unit_kind == "length":
-        report.add(Issue("warning", raw.sheet, f"{letter}{raw.header_row}", c.header, "",
-                         "unit not stated", "no unit for this length column; metres assumed — "
-                         "set unit = \"m\", \"cm\" or \"ft\" in the mapping"))
+        report.add(
+            Issue(
+                "warning",
+                raw.sheet,
+                f"{letter}{raw.header_row}",
+                c.header,
+                "",
+                "unit not stated",
+                "no unit for this length column; metres assumed — "
+                'set unit = "m", "cm" or "ft" in the mapping',
+            )
+        )
     return f.stored_unit
 
 
@@ -173,8 +214,14 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     import pyarrow.compute as pc
 
     spec = mapping.table
-    raw = read_table(spec.file, spec.sheet, spec.header_row, [c.header for c in spec.columns],
-                     spec.delimiter, spec.encoding)
+    raw = read_table(
+        spec.file,
+        spec.sheet,
+        spec.header_row,
+        [c.header for c in spec.columns],
+        spec.delimiter,
+        spec.encoding,
+    )
     report = Report()
     report.extend(raw.issues)
     report.rows_read = raw.n_rows + raw.blank_rows + raw.rejected_rows
@@ -224,15 +271,29 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                 factor = UNITS[f.unit_kind][unit]
                 if factor != 1.0:
                     values = pc.multiply(values, pa.scalar(factor))
-                    report.add(Issue("info", raw.sheet, f"{letter}{raw.header_row}", header, unit,
-                                     "unit conversion",
-                                     f"{unit} converted to {f.stored_unit} (× {factor:g})"))
+                    report.add(
+                        Issue(
+                            "info",
+                            raw.sheet,
+                            f"{letter}{raw.header_row}",
+                            header,
+                            unit,
+                            "unit conversion",
+                            f"{unit} converted to {f.stored_unit} (× {factor:g})",
+                        )
+                    )
             if f.kind == "int":
                 arr = values.to_numpy(zero_copy_only=False)
                 frac = ~np.isnan(arr) & (np.floor(arr) != arr)
                 for i in np.nonzero(frac)[0]:
-                    rows.error(int(i), letter, header, raw.column(j)[int(i)].as_py(),
-                               "whole number", "this column takes whole numbers")
+                    rows.error(
+                        int(i),
+                        letter,
+                        header,
+                        raw.column(j)[int(i)].as_py(),
+                        "whole number",
+                        "this column takes whole numbers",
+                    )
                 cols[f.stored] = values
             else:
                 cols[f.stored] = values
@@ -241,16 +302,23 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                 cols[f"{target}_qualifier"] = q
                 if c.detection_limit is not None:
                     is_bdl = pc.fill_null(pc.equal(q, "bdl"), False)
-                    cols[f"{target}_dl"] = pc.if_else(is_bdl, pa.scalar(c.detection_limit),
-                                                      pa.scalar(None, pa.float64()))
+                    cols[f"{target}_dl"] = pc.if_else(
+                        is_bdl, pa.scalar(c.detection_limit), pa.scalar(None, pa.float64())
+                    )
                 if c.basis:
                     cols[f"{target}_basis"] = c.basis
             elif parsed.qualifier.null_count < len(parsed.qualifier):
                 idx = np.nonzero(pc.is_valid(parsed.qualifier).to_numpy(zero_copy_only=False))[0]
                 for i in idx:
-                    rows.error(int(i), letter, header, raw.column(j)[int(i)].as_py(),
-                               "censored value", f"{target} takes plain numbers; "
-                               "'<x' and 'bdl' belong to concentration columns")
+                    rows.error(
+                        int(i),
+                        letter,
+                        header,
+                        raw.column(j)[int(i)].as_py(),
+                        "censored value",
+                        f"{target} takes plain numbers; "
+                        "'<x' and 'bdl' belong to concentration columns",
+                    )
             if f.kind == "delta" and c.scale:
                 cols[f"{target}_scale"] = c.scale
 
@@ -262,24 +330,28 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
             term = vocabulary(f.vocab or "").resolve(str(value))
             if term is None:
                 sug = vocabulary(f.vocab or "").suggest(str(value))
-                raise ConfigError(f"{mapping.path.name}: [constants] {key} = {value!r} is not in "
-                                  f"the {f.vocab} vocabulary." + (f" Did you mean {sug!r}?" if sug
-                                                                  else ""),
-                                  f"Known terms: {', '.join(vocabulary(f.vocab or '').terms)}.")
+                raise ConfigError(
+                    f"{mapping.path.name}: [constants] {key} = {value!r} is not in "
+                    f"the {f.vocab} vocabulary." + (f" Did you mean {sug!r}?" if sug else ""),
+                    f"Known terms: {', '.join(vocabulary(f.vocab or '').terms)}.",
+                )
             value = term
-        if f and f.kind in ("float", "delta", "conc", "int", "coord") and not isinstance(
-                value, (int, float)):
+        if (
+            f
+            and f.kind in ("float", "delta", "conc", "int", "coord")
+            and not isinstance(value, (int, float))
+        ):
             if f.kind == "coord":
                 try:
                     value = parse_coordinate(str(value), key)
                 except ValueError as exc:
-                    raise ConfigError(f"{mapping.path.name}: [constants] {key}: {exc}.", "") \
-                        from None
+                    raise ConfigError(
+                        f"{mapping.path.name}: [constants] {key}: {exc}.", ""
+                    ) from None
             else:
                 raise ConfigError(f"{mapping.path.name}: [constants] {key} must be a number.", "")
         cols[stored] = value
         letters.setdefault(stored, ("", f"[constants] {key}"))
-
 
     for d, declared in mapping.normalisation.items():  # constant per source, kept per value
         cols[f"{d}_normalisation"] = json.dumps(declared, sort_keys=True)
@@ -303,8 +375,14 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     else:
         letter_sec, header_sec = letters.get("section_id", ("", "section_id"))
         for i in np.flatnonzero(pd.isna(pd.Series(sec, dtype=object)).to_numpy()):
-            rows.error(int(i), letter_sec, header_sec, "", "section missing",
-                       "every row needs a section; fill the cell")
+            rows.error(
+                int(i),
+                letter_sec,
+                header_sec,
+                "",
+                "section missing",
+                "every row needs a section; fill the cell",
+            )
     locality_blocks = _localities(mapping, report)
     loc = column("locality_id")
     if "locality_id" not in cols:
@@ -325,18 +403,28 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     lon = np.where(lon > 180, lon - 360, lon)
     for s_id, block in section_blocks.items():
         if block.get("locality") and block["locality"] not in locality_blocks:
-            raise ConfigError(f"{mapping.path.name}: section {s_id!r} names locality "
-                              f"{block['locality']!r}, which is not defined.",
-                              "Add a [[localities]] block or a [localities_table].")
+            raise ConfigError(
+                f"{mapping.path.name}: section {s_id!r} names locality "
+                f"{block['locality']!r}, which is not defined.",
+                "Add a [[localities]] block or a [localities_table].",
+            )
 
     sample = column("sample_id")
     letter_s, header_s = letters.get("sample_id", ("", "sample_id"))
     if "sample_id" not in cols:
-        raise ConfigError(f"{mapping.path.name}: no column is mapped to sample_id.",
-                          "Every record needs a sample identifier.")
+        raise ConfigError(
+            f"{mapping.path.name}: no column is mapped to sample_id.",
+            "Every record needs a sample identifier.",
+        )
     for i in np.nonzero(np.array([v is None for v in sample], dtype=bool))[0]:
-        rows.error(int(i), letter_s, header_s, "", "sample missing",
-                   "every row needs a sample id; fill it or delete the row")
+        rows.error(
+            int(i),
+            letter_s,
+            header_s,
+            "",
+            "sample missing",
+            "every row needs a sample id; fill it or delete the row",
+        )
 
     rep = pd.to_numeric(pd.Series(column("replicate")), errors="coerce").to_numpy(dtype=float)
     replicate = np.where(np.isnan(rep), 1, np.nan_to_num(rep)).astype(np.int64)
@@ -352,20 +440,37 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         has = ~np.isnan(vals)
         no_scale = has & scale.isna().to_numpy()
         unknown = has & ~no_scale & ~scale.isin(DELTA_SCALES[d]).to_numpy()
-        hint = (f"state the reference scale of {d}: scale = \"VPDB\" on the column or "
-                f"{d}_scale in [constants]")
+        hint = (
+            f'state the reference scale of {d}: scale = "VPDB" on the column or '
+            f"{d}_scale in [constants]"
+        )
         missing = np.nonzero(no_scale)[0]
         if len(missing) and f"{d}_scale" not in cols:  # the whole column lacks a scale: one line
             first, last = (int(raw.row_numbers[missing[0]]), int(raw.row_numbers[missing[-1]]))
-            report.add(Issue("error", raw.sheet, f"{letter}{first}:{letter}{last}", header,
-                             f"{len(missing)} values", "scale not stated", hint))
+            report.add(
+                Issue(
+                    "error",
+                    raw.sheet,
+                    f"{letter}{first}:{letter}{last}",
+                    header,
+                    f"{len(missing)} values",
+                    "scale not stated",
+                    hint,
+                )
+            )
             rows.mark(missing, "scale not stated", letter)
         else:
             for i in missing:
                 rows.error(int(i), letter, header, vals[i], "scale not stated", hint)
         for i in np.nonzero(unknown)[0]:
-            rows.error(int(i), letter, header, scale[i], "unknown scale",
-                       f"scales for {d}: {', '.join(DELTA_SCALES[d])}")
+            rows.error(
+                int(i),
+                letter,
+                header,
+                scale[i],
+                "unknown scale",
+                f"scales for {d}: {', '.join(DELTA_SCALES[d])}",
+            )
 
     interval_order(cols, column, rows, letters, section_blocks, sec)
 
@@ -374,14 +479,23 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback
 
     ids, first = record_ids(sid, text("section_id", sec), text("sample_id", sample), replicate)
-    standards = {m.lower() for m in [*mapping.run["anchors"], *mapping.run["checks"]]} \
-        if mapping.run else set()  # a run's standards repeat by design; they leave below
+    standards = (
+        {m.lower() for m in [*mapping.run["anchors"], *mapping.run["checks"]]}
+        if mapping.run
+        else set()
+    )  # a run's standards repeat by design; they leave below
     for i in np.flatnonzero(first >= 0):
         if standards and str(sample[i]).strip().lower() in standards:
             continue
-        rows.error(int(i), letter_s, header_s, sample[i], "duplicate record",
-                   f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is already "
-                   f"in row {raw.row_numbers[first[i]]}; give replicates a replicate number")
+        rows.error(
+            int(i),
+            letter_s,
+            header_s,
+            sample[i],
+            "duplicate record",
+            f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is already "
+            f"in row {raw.row_numbers[first[i]]}; give replicates a replicate number",
+        )
 
     # assemble the analyses table: Arrow columns pass through, constants are broadcast
     out: dict[str, Any] = {}
@@ -390,18 +504,23 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
         if name in ("lat", "lon"):
             out[name] = lat if name == "lat" else lon
         elif name in ("section_id", "locality_id") and not isinstance(
-                cols.get(name), (pa.Array, pa.ChunkedArray)):
+            cols.get(name), (pa.Array, pa.ChunkedArray)
+        ):
             out[name] = sec if name == "section_id" else loc
         elif name in cols:
             v = cols[name]
-            out[name] = v if isinstance(v, (pa.Array, pa.ChunkedArray, np.ndarray)) \
+            out[name] = (
+                v
+                if isinstance(v, (pa.Array, pa.ChunkedArray, np.ndarray))
                 else const(v, n, types[name])
+            )
     out["record_id"] = ids
     out["source_id"] = const(sid, n, "VARCHAR")
     plates = {str(b["id"]): b.get("plate") for b in mapping.localities if b.get("plate")}
     if plates:  # the mapping places these localities on a plate (displaced terranes)
-        out["plate_override"] = np.array([plates.get(str(x)) if x is not None else None
-                                          for x in loc], dtype=object)
+        out["plate_override"] = np.array(
+            [plates.get(str(x)) if x is not None else None for x in loc], dtype=object
+        )
     out["replicate"] = replicate
     out["sheet"] = const(raw.sheet, n, "VARCHAR")
     out["sheet_row"] = raw.row_numbers
@@ -433,30 +552,48 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     quarantine = []
     for i in np.nonzero(rows.bad)[0]:
         cells = {raw.headers[j]: raw.column(j)[int(i)].as_py() for j in range(len(raw.headers))}
-        quarantine.append({"sheet": raw.sheet, "sheet_row": int(raw.row_numbers[i]),
-                           "cells_json": json.dumps(cells, ensure_ascii=False),
-                           "reasons": "; ".join(rows.reasons.get(int(i), []))})
+        quarantine.append(
+            {
+                "sheet": raw.sheet,
+                "sheet_row": int(raw.row_numbers[i]),
+                "cells_json": json.dumps(cells, ensure_ascii=False),
+                "reasons": "; ".join(rows.reasons.get(int(i), [])),
+            }
+        )
     for issue in raw.issues:  # rows the reader could not split: quarantined with their text
         if issue.rule == "row shape":
             digits = "".join(ch for ch in issue.cell if ch.isdigit())
-            quarantine.append({"sheet": raw.sheet, "sheet_row": int(digits) if digits else None,
-                               "cells_json": json.dumps({"line": issue.value},
-                                                        ensure_ascii=False),
-                               "reasons": f"{issue.cell}: row shape"})
+            quarantine.append(
+                {
+                    "sheet": raw.sheet,
+                    "sheet_row": int(digits) if digits else None,
+                    "cells_json": json.dumps({"line": issue.value}, ensure_ascii=False),
+                    "reasons": f"{issue.cell}: row shape",
+                }
+            )
     records = complete(frame if valid.all() else frame.filter(pa.array(valid)))
-    records = records.append_column("row_hash", row_hashes(records)) \
-        if "row_hash" not in records.column_names else records
+    records = (
+        records.append_column("row_hash", row_hashes(records))
+        if "row_hash" not in records.column_names
+        else records
+    )
     runs = None
     if mapping.run is not None:
         records, runs = _split_run(records, mapping, report)
-    return Prepared(mapping, _file_sha(spec.file), records,
-                    localities_table(sid, locality_blocks),
-                    sections_table(sid, section_blocks, sec, loc),
-                    samples_table(records), quarantine, report, runs)
+    return Prepared(
+        mapping,
+        _file_sha(spec.file),
+        records,
+        localities_table(sid, locality_blocks),
+        sections_table(sid, section_blocks, sec, loc),
+        samples_table(records),
+        quarantine,
+        report,
+        runs,
+    )
 
 
-def _split_run(records: pa.Table, mapping: Mapping, report: Report
-               ) -> tuple[pa.Table, pa.Table]:
+def _split_run(records: pa.Table, mapping: Mapping, report: Report) -> tuple[pa.Table, pa.Table]:
     """An in-house run sheet: rows whose sample_id names one of the run's reference
     materials are its standards (kept in the runs table), the rest are samples."""
     import pyarrow as pa
@@ -468,22 +605,53 @@ def _split_run(records: pa.Table, mapping: Mapping, report: Report
     sample = pc.utf8_lower(pc.utf8_trim_whitespace(records.column("sample_id")))
     is_std = pc.fill_null(pc.is_in(sample, value_set=pa.array(list(names))), False)
     std = records.filter(is_std)
-    rows = [{"source_id": r["source_id"], "run_id": r["run_id"],
-             "material": names[str(r["sample_id"]).strip().lower()],
-             "d13c_measured": r["d13c_carb_reported"], "d18o_measured": r["d18o_carb_reported"],
-             "note": r["note"], "run_position": r["run_position"], "sheet_row": r["sheet_row"]}
-            for r in std.select(["source_id", "run_id", "sample_id", "d13c_carb_reported",
-                                 "d18o_carb_reported", "note", "run_position",
-                                 "sheet_row"]).to_pylist()]
-    report.add(Issue("info", "", "", "", str(len(rows)), "in-house run",
-                     f"{len(rows)} reference-material measurements kept as run standards; "
-                     f"{records.num_rows - len(rows)} samples"))
-    return records.filter(pc.invert(is_std)), pa.Table.from_pylist(
-        rows, schema=arrow_schema(RUNS))
+    rows = [
+        {
+            "source_id": r["source_id"],
+            "run_id": r["run_id"],
+            "material": names[str(r["sample_id"]).strip().lower()],
+            "d13c_measured": r["d13c_carb_reported"],
+            "d18o_measured": r["d18o_carb_reported"],
+            "note": r["note"],
+            "run_position": r["run_position"],
+            "sheet_row": r["sheet_row"],
+        }
+        for r in std.select(
+            [
+                "source_id",
+                "run_id",
+                "sample_id",
+                "d13c_carb_reported",
+                "d18o_carb_reported",
+                "note",
+                "run_position",
+                "sheet_row",
+            ]
+        ).to_pylist()
+    ]
+    report.add(
+        Issue(
+            "info",
+            "",
+            "",
+            "",
+            str(len(rows)),
+            "in-house run",
+            f"{len(rows)} reference-material measurements kept as run standards; "
+            f"{records.num_rows - len(rows)} samples",
+        )
+    )
+    return records.filter(pc.invert(is_std)), pa.Table.from_pylist(rows, schema=arrow_schema(RUNS))
 
 
-def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stored: str,
-                 text: pa.ChunkedArray, letter: str, header: str) -> None:
+def _text_column(
+    cols: dict[str, Any],
+    letters: dict[str, tuple[str, str]],
+    stored: str,
+    text: pa.ChunkedArray,
+    letter: str,
+    header: str,
+) -> None:
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -492,8 +660,9 @@ def _text_column(cols: dict[str, Any], letters: dict[str, tuple[str, str]], stor
     letters[stored] = (letter, header)
 
 
-def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: RowErrors, letter: str,
-                  header: str) -> Any:
+def _vocab_column(
+    text: pa.ChunkedArray, vocab: str, rows: RowErrors, letter: str, header: str
+) -> Any:
     """Resolve each distinct cell once; map the column through the result (vectorised)."""
     import numpy as np
     import pyarrow as pa
@@ -512,14 +681,20 @@ def _vocab_column(text: pa.ChunkedArray, vocab: str, rows: RowErrors, letter: st
         for i in np.nonzero(pc.fill_null(bad, False).to_numpy(zero_copy_only=False))[0]:
             v = arr[int(i)].as_py()
             sug = voc.suggest(v)
-            rows.error(int(i), letter, header, v, f"{vocab} vocabulary",
-                       (f"did you mean {sug!r}? " if sug else "") +
-                       f"known terms: {', '.join(voc.terms)}")
+            rows.error(
+                int(i),
+                letter,
+                header,
+                v,
+                f"{vocab} vocabulary",
+                (f"did you mean {sug!r}? " if sug else "") + f"known terms: {', '.join(voc.terms)}",
+            )
     return out
 
 
-def _coord_column(text: pa.ChunkedArray, axis: str, rows: RowErrors, letter: str,
-                  header: str) -> Any:
+def _coord_column(
+    text: pa.ChunkedArray, axis: str, rows: RowErrors, letter: str, header: str
+) -> Any:
     """Decimal degrees: plain numbers cast at once, DMS and hemisphere letters cell by cell."""
     import numpy as np
     import pyarrow as pa
@@ -530,8 +705,9 @@ def _coord_column(text: pa.ChunkedArray, axis: str, rows: RowErrors, letter: str
     plain = pc.fill_null(pc.match_substring_regex(col, NUMBER_PATTERN), False)
     out = pc.cast(pc.if_else(plain, col, pa.scalar(None, pa.string())), pa.float64())
     out = out.to_numpy(zero_copy_only=False).astype(float, copy=True)
-    rest = ~plain.to_numpy(zero_copy_only=False) & \
-        pc.fill_null(pc.not_equal(col, ""), False).to_numpy(zero_copy_only=False)
+    rest = ~plain.to_numpy(zero_copy_only=False) & pc.fill_null(
+        pc.not_equal(col, ""), False
+    ).to_numpy(zero_copy_only=False)
     cache: dict[str, float | str] = {}
     for i in np.nonzero(rest)[0]:
         v = col[int(i)].as_py()
@@ -559,31 +735,43 @@ def _localities(mapping: Mapping, report: Report) -> dict[str, dict[str, Any]]:
             try:
                 b[axis] = parse_coordinate(str(b[axis]), axis)
             except ValueError as exc:
-                raise ConfigError(f"{mapping.path.name}: locality {b['id']!r} {axis} "
-                                  f"{block[axis]!r}: {exc}.", "") from None
+                raise ConfigError(
+                    f"{mapping.path.name}: locality {b['id']!r} {axis} {block[axis]!r}: {exc}.", ""
+                ) from None
         _check_range(b, mapping)
         out[str(b["id"])] = b
     spec = mapping.localities_table
     if spec is not None:
-        raw = read_table(spec.file, spec.sheet, spec.header_row, [c.header for c in spec.columns],
-                         spec.delimiter, spec.encoding)
+        raw = read_table(
+            spec.file,
+            spec.sheet,
+            spec.header_row,
+            [c.header for c in spec.columns],
+            spec.delimiter,
+            spec.encoding,
+        )
         found = _match_columns(raw, spec, report)
         by_field = {c.field: raw.column(found[c.header][0]).to_pylist() for c in spec.columns}
         for k in ("locality_id", "lat", "lon"):
             if k not in by_field:
-                raise ConfigError(f"{mapping.path.name}: [localities_table] needs a column for "
-                                  f"{k}.", "")
+                raise ConfigError(
+                    f"{mapping.path.name}: [localities_table] needs a column for {k}.", ""
+                )
         for i, lid in enumerate(by_field["locality_id"]):
             if not lid:
                 continue
             try:
-                b = {"id": lid, "name": (by_field.get("locality_name") or [None] * (i + 1))[i],
-                     "lat": parse_coordinate(str(by_field["lat"][i]), "lat"),
-                     "lon": parse_coordinate(str(by_field["lon"][i]), "lon")}
+                b = {
+                    "id": lid,
+                    "name": (by_field.get("locality_name") or [None] * (i + 1))[i],
+                    "lat": parse_coordinate(str(by_field["lat"][i]), "lat"),
+                    "lon": parse_coordinate(str(by_field["lon"][i]), "lon"),
+                }
             except ValueError as exc:
-                raise ConfigError(f"{raw.file} ({raw.sheet}) row {raw.row_numbers[i]}: locality "
-                                  f"{lid!r}: {exc}.", "Fix the coordinate in the localities "
-                                  "sheet.") from None
+                raise ConfigError(
+                    f"{raw.file} ({raw.sheet}) row {raw.row_numbers[i]}: locality {lid!r}: {exc}.",
+                    "Fix the coordinate in the localities sheet.",
+                ) from None
             _check_range(b, mapping)
             out[str(lid)] = b
     return out
@@ -591,9 +779,10 @@ def _localities(mapping: Mapping, report: Report) -> dict[str, dict[str, Any]]:
 
 def _check_range(b: dict[str, Any], mapping: Mapping) -> None:
     if not -90 <= b["lat"] <= 90 or not -180 <= b["lon"] <= 360:
-        raise ConfigError(f"{mapping.path.name}: locality {b['id']!r} has coordinates out of "
-                          f"range ({b['lat']}, {b['lon']}).", "Latitude −90…90, longitude "
-                          "−180…180; check for swapped lat/lon.")
+        raise ConfigError(
+            f"{mapping.path.name}: locality {b['id']!r} has coordinates out of "
+            f"range ({b['lat']}, {b['lon']}).",
+            "Latitude −90…90, longitude −180…180; check for swapped lat/lon.",
+        )
     if b["lon"] > 180:
         b["lon"] -= 360
-

@@ -31,14 +31,19 @@ if TYPE_CHECKING:
 DEFAULT_DRAWS = 1000
 DEFAULT_SEED = 13
 CHUNK = 512  # sample positions per stored age_draws row
-METHOD = ("whole-section Monte Carlo draws: sequential truncated sampling of tie ages, "
-          "gamma-process accumulation between ties (after Haslett & Parnell 2008)")
+METHOD = (
+    "whole-section Monte Carlo draws: sequential truncated sampling of tie ages, "
+    "gamma-process accumulation between ties (after Haslett & Parnell 2008)"
+)
 
 
 def _options(settings: Any) -> tuple[bool, int, int]:
     extra = settings.extra
-    return (bool(extra.get("age_extrapolation", False)),
-            int(extra.get("age_draws", DEFAULT_DRAWS)), int(extra.get("age_seed", DEFAULT_SEED)))
+    return (
+        bool(extra.get("age_extrapolation", False)),
+        int(extra.get("age_draws", DEFAULT_DRAWS)),
+        int(extra.get("age_seed", DEFAULT_SEED)),
+    )
 
 
 def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]]:
@@ -63,34 +68,55 @@ def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]
                 unit = timescales.load(chart).unit(t["boundary"])
                 target = timescales.load(scale).by_key(unit.boundary_key)
             except Exception as exc:  # the chart lacks the boundary: refuse, naming the tie
-                raise DomainError(f"{where}: the boundary {t['boundary']!r} cannot be placed on "
-                                  f"{scale} ({getattr(exc, 'message', exc)}).",
-                                  "Name a stage, series or period of the tie's chart.") from None
+                raise DomainError(
+                    f"{where}: the boundary {t['boundary']!r} cannot be placed on "
+                    f"{scale} ({getattr(exc, 'message', exc)}).",
+                    "Name a stage, series or period of the tie's chart.",
+                ) from None
             t["age"], t["sigma"] = target.base_ma, target.sigma_ma or 0.0
             t["shared_key"] = f"{scale}:{target.boundary_key}"
-            t["step"] = {"tie": where, "method": "chart boundary: the boundary's base on the "
-                         "store's chart", "from": chart, "to": scale, "age_ma": t["age"]}
+            t["step"] = {
+                "tie": where,
+                "method": "chart boundary: the boundary's base on the store's chart",
+                "from": chart,
+                "to": scale,
+                "age_ma": t["age"],
+            }
         elif basis in ("biozone boundary", "correlation"):
             new, _ = timescales.convert(np.array([t["age_ma"]]), t["chart"], scale)
             if np.isnan(new[0]):
-                raise DomainError(f"{where}: {t['age_ma']} Ma on {t['chart']} lies outside the "
-                                  f"boundaries {t['chart']} and {scale} share.",
-                                  "Check the tie's age and chart.")
+                raise DomainError(
+                    f"{where}: {t['age_ma']} Ma on {t['chart']} lies outside the "
+                    f"boundaries {t['chart']} and {scale} share.",
+                    "Check the tie's age and chart.",
+                )
             t["age"], t["sigma"] = float(new[0]), t["age_sigma_ma"] or 0.0
-            t["shared_key"] = (f"biozone:{t['boundary'].strip().lower()}"
-                               if basis == "biozone boundary" else None)
-            t["step"] = {"tie": where, "method": f"{basis}: moves with its chart",
-                         "from": t["chart"], "to": scale, "age_ma": t["age"]}
+            t["shared_key"] = (
+                f"biozone:{t['boundary'].strip().lower()}" if basis == "biozone boundary" else None
+            )
+            t["step"] = {
+                "tie": where,
+                "method": f"{basis}: moves with its chart",
+                "from": t["chart"],
+                "to": scale,
+                "age_ma": t["age"],
+            }
         elif basis == "astrochronologic":
             anchor = by_id.get(t["anchor"])
             if anchor is None or anchor["tie_id"] not in placed:
-                raise DomainError(f"{where}: its anchor {t['anchor']!r} is not a tie of the same "
-                                  "section.", "Anchor it on a tie of its own section.")
+                raise DomainError(
+                    f"{where}: its anchor {t['anchor']!r} is not a tie of the same section.",
+                    "Anchor it on a tie of its own section.",
+                )
             t["age"] = placed[anchor["tie_id"]] + (t["age_ma"] - anchor["age_ma"])
             t["sigma"] = t["age_sigma_ma"] or 0.0
             t["shared_key"] = None
-            t["step"] = {"tie": where, "method": "astrochronologic: keeps its duration from "
-                         f"anchor {anchor['tie_id']}", "to": scale, "age_ma": t["age"]}
+            t["step"] = {
+                "tie": where,
+                "method": f"astrochronologic: keeps its duration from anchor {anchor['tie_id']}",
+                "to": scale,
+                "age_ma": t["age"],
+            }
         else:  # radiometric
             t["age"], t["sigma"], t["shared_key"] = t["age_ma"], t["age_sigma_ma"] or 0.0, None
             t["step"] = {"tie": where, "method": "radiometric: keeps its age", "age_ma": t["age"]}
@@ -102,13 +128,17 @@ def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]
 
 def _tie_name(t: dict[str, Any]) -> str:
     name = t.get("tie_id") or t.get("boundary") or t["basis"]
-    return (f"tie {name!r} of section {t['source_id']}/{t['section_id']} at "
-            f"{t['position_m']:g} m")
+    return f"tie {name!r} of section {t['source_id']}/{t['section_id']} at {t['position_m']:g} m"
 
 
-def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[str, str],
-           strict: bool = True, conflicts: list[str] | None = None
-           ) -> tuple[pa.Table, pa.Table]:
+def assign(
+    table: pa.Table,
+    ties: pa.Table | None,
+    settings: Any,
+    chains: dict[str, str],
+    strict: bool = True,
+    conflicts: list[str] | None = None,
+) -> tuple[pa.Table, pa.Table]:
     """Fill age_ma, age_sigma_ma, the 95 % range, age_basis, time_scale, age_status and
     age_chain.
 
@@ -134,8 +164,16 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[s
     lo95 = np.full(n, np.nan)
     hi95 = np.full(n, np.nan)
 
-    def put(rows: np.ndarray, a: np.ndarray, s: np.ndarray, b: str, st: str,
-            steps: list[dict[str, Any]], lo: Any = None, hi: Any = None) -> None:
+    def put(
+        rows: np.ndarray,
+        a: np.ndarray,
+        s: np.ndarray,
+        b: str,
+        st: str,
+        steps: list[dict[str, Any]],
+        lo: Any = None,
+        hi: Any = None,
+    ) -> None:
         """Date ``rows``; the 95 % range defaults to ±1.96σ (normal)."""
         cid, text = chain_id(steps)
         chains[cid] = text
@@ -148,10 +186,15 @@ def assign(table: pa.Table, ties: pa.Table | None, settings: Any, chains: dict[s
     draws = _models(table, ties, settings, put, status, basis, strict, conflicts)
     out = table
     f64, txt = pa.float64(), pa.string()
-    for name, values, typ in (("age_ma", age, f64), ("age_sigma_ma", sigma, f64),
-                              ("age_basis", basis, txt), ("age_status", status, txt),
-                              ("age_chain", chain, txt), ("age_lo95_ma", lo95, f64),
-                              ("age_hi95_ma", hi95, f64)):
+    for name, values, typ in (
+        ("age_ma", age, f64),
+        ("age_sigma_ma", sigma, f64),
+        ("age_basis", basis, txt),
+        ("age_status", status, txt),
+        ("age_chain", chain, txt),
+        ("age_lo95_ma", lo95, f64),
+        ("age_hi95_ma", hi95, f64),
+    ):
         out = set_column(out, name, pa.array(values, type=typ, from_pandas=True))
     dated = ~np.isnan(age)
     out = set_column(out, "time_scale", pa.array(np.where(dated, scale, None), pa.string()))
@@ -167,8 +210,9 @@ def _stage_only(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> No
     from strata13.errors import Strata13Error
 
     stages = np.asarray(table.column("stage_reported").to_numpy(zero_copy_only=False), object)
-    has_age = ~np.isnan(table.column("age_reported_ma").to_numpy(zero_copy_only=False)
-                        .astype(float))
+    has_age = ~np.isnan(
+        table.column("age_reported_ma").to_numpy(zero_copy_only=False).astype(float)
+    )
     for name in sorted({s for s in stages[~has_age] if s}):
         rows = np.flatnonzero((stages == name) & ~has_age)
         try:
@@ -176,13 +220,24 @@ def _stage_only(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> No
         except Strata13Error:
             status[rows] = f"pending: stage {name!r} is not on {scale}"
             continue
-        step = {"step": "stage only", "method": "uniform over the stage: midpoint, "
-                "σ = span/√12", "parameters": {"stage": name, "base_ma": base, "top_ma": top,
-                                               "time_scale": scale},
-                "source": f"time-scale table {scale}", "flags": ["dated to a stage only"]}
+        step = {
+            "step": "stage only",
+            "method": "uniform over the stage: midpoint, σ = span/√12",
+            "parameters": {"stage": name, "base_ma": base, "top_ma": top, "time_scale": scale},
+            "source": f"time-scale table {scale}",
+            "flags": ["dated to a stage only"],
+        }
         half = 0.475 * (base - top)  # the central 95 % of a uniform spread
-        put(rows, np.full(len(rows), mid), np.full(len(rows), sig), "stage only",
-            "dated: stage only (uniform over the stage)", [step], mid - half, mid + half)
+        put(
+            rows,
+            np.full(len(rows), mid),
+            np.full(len(rows), sig),
+            "stage only",
+            "dated: stage only (uniform over the stage)",
+            [step],
+            mid - half,
+            mid + half,
+        )
 
 
 def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None:
@@ -206,20 +261,33 @@ def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None
         new, step = timescales.convert(ages[rows], canon, scale)
         ok = ~np.isnan(new)
         status[rows[~ok]] = f"pending: outside the boundaries {canon} and {scale} share"
-        first = {"step": "reported", "method": "as reported", "parameters":
-                 {"time_scale": canon}, "source": "the authors' age"}
+        first = {
+            "step": "reported",
+            "method": "as reported",
+            "parameters": {"time_scale": canon},
+            "source": "the authors' age",
+        }
         steps = [first] + ([step] if canon != scale else [])
         no_sigma = np.isnan(sig[rows])
-        for mask, note in ((~no_sigma, "dated: reported"),
-                           (no_sigma, "dated: reported (no uncertainty given)")):
+        for mask, note in (
+            (~no_sigma, "dated: reported"),
+            (no_sigma, "dated: reported (no uncertainty given)"),
+        ):
             pick = ok & mask
             if pick.any():
                 put(rows[pick], new[pick], sig[rows][pick], "reported", note, steps)
 
 
-def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
-            status: np.ndarray, basis: np.ndarray, strict: bool, conflicts: list[str]
-            ) -> list[dict[str, Any]]:
+def _models(
+    table: pa.Table,
+    ties: pa.Table | None,
+    settings: Any,
+    put: Any,
+    status: np.ndarray,
+    basis: np.ndarray,
+    strict: bool,
+    conflicts: list[str],
+) -> list[dict[str, Any]]:
     """Age models for every section of ``table`` that has two or more ties."""
     import json
 
@@ -251,10 +319,17 @@ def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
             status[rows[np.isnan(pos[rows])]] = "pending: no position"
             continue
         kind = str(kinds[rows[0]] or "height")
-        model_ties = [agemodel.Tie(position_m=t["position_m"], age_ma=t["age"],
-                                   age_sigma_ma=t["sigma"], basis=t["basis"],
-                                   boundary_key=t["shared_key"], note=_tie_name(t))
-                      for t in tl]
+        model_ties = [
+            agemodel.Tie(
+                position_m=t["position_m"],
+                age_ma=t["age"],
+                age_sigma_ma=t["sigma"],
+                basis=t["basis"],
+                boundary_key=t["shared_key"],
+                note=_tie_name(t),
+            )
+            for t in tl
+        ]
         try:
             agemodel.validate_ties(model_ties, kind)
         except DomainError as exc:
@@ -268,30 +343,58 @@ def _models(table: pa.Table, ties: pa.Table | None, settings: Any, put: Any,
             continue
         have = rows[~np.isnan(pos[rows])]
         uniq, inverse = np.unique(pos[have], return_inverse=True)
-        res = agemodel.draw_section(uniq, model_ties, kind, n_draws,
-                                    agemodel.section_seed(f"{s}/{c}", seed), shared,
-                                    allow_extrapolation=extrapolate)
+        res = agemodel.draw_section(
+            uniq,
+            model_ties,
+            kind,
+            n_draws,
+            agemodel.section_seed(f"{s}/{c}", seed),
+            shared,
+            allow_extrapolation=extrapolate,
+        )
         d = res.draws
         summary = agemodel.summarise(d)
-        steps = [{"step": "age model", "method": METHOD, "parameters":
-                  agemodel.parameters(n_draws, seed, allow_extrapolation=extrapolate)
-                  | {"time_scale": scale}, "ties": [t["step"] for t in tl],
-                  "source": "the section's age ties"}]
+        steps = [
+            {
+                "step": "age model",
+                "method": METHOD,
+                "parameters": agemodel.parameters(n_draws, seed, allow_extrapolation=extrapolate)
+                | {"time_scale": scale},
+                "ties": [t["step"] for t in tl],
+                "source": "the section's age ties",
+            }
+        ]
         inside = ~np.isnan(summary.median)
         flagged = res.flags == agemodel.EXTRAPOLATED
-        for mask, note in ((inside & ~flagged, "dated: age model"),
-                           (inside & flagged, "dated: age model, extrapolated beyond the ties")):
+        for mask, note in (
+            (inside & ~flagged, "dated: age model"),
+            (inside & flagged, "dated: age model, extrapolated beyond the ties"),
+        ):
             if mask.any():
                 pick = np.isin(inverse, np.flatnonzero(mask))
-                put(have[pick], summary.median[inverse[pick]], summary.sigma[inverse[pick]],
-                    "age model", note, steps, summary.lo95[inverse[pick]],
-                    summary.hi95[inverse[pick]])
+                put(
+                    have[pick],
+                    summary.median[inverse[pick]],
+                    summary.sigma[inverse[pick]],
+                    "age model",
+                    note,
+                    steps,
+                    summary.lo95[inverse[pick]],
+                    summary.hi95[inverse[pick]],
+                )
         outside = have[np.isin(inverse, np.flatnonzero(~inside))]
         left = outside[np.equal(basis[outside], None)]
         status[left] = "pending: outside the section's ties (extrapolation is off)"
         for i in range(0, len(uniq), CHUNK):
-            block = d[:, i:i + CHUNK].astype("<f4")
-            draws_rows.append({"source_id": s, "section_id": c, "chunk": i // CHUNK,
-                               "positions_json": json.dumps([float(x) for x in uniq[i:i + CHUNK]]),
-                               "n_draws": n_draws, "draws": block.tobytes(order="C")})
+            block = d[:, i : i + CHUNK].astype("<f4")
+            draws_rows.append(
+                {
+                    "source_id": s,
+                    "section_id": c,
+                    "chunk": i // CHUNK,
+                    "positions_json": json.dumps([float(x) for x in uniq[i : i + CHUNK]]),
+                    "n_draws": n_draws,
+                    "draws": block.tobytes(order="C"),
+                }
+            )
     return draws_rows

@@ -27,10 +27,26 @@ if TYPE_CHECKING:
     import pyarrow as pa
 
 DERIVED_COLUMNS = {
-    *DELTA_FIELDS, *(f"{d}_chain" for d in DELTA_FIELDS), *(f"{d}_status" for d in DELTA_FIELDS),
-    "age_ma", "age_sigma_ma", "age_basis", "time_scale", "age_status", "age_chain", "age_lo95_ma",
-    "age_hi95_ma", "big_delta_13c", "paleolat_sigma",
-    "plate_id", "paleolat", "paleolon", "paleo_model", "paleo_frame", "paleo_status", "screen",
+    *DELTA_FIELDS,
+    *(f"{d}_chain" for d in DELTA_FIELDS),
+    *(f"{d}_status" for d in DELTA_FIELDS),
+    "age_ma",
+    "age_sigma_ma",
+    "age_basis",
+    "time_scale",
+    "age_status",
+    "age_chain",
+    "age_lo95_ma",
+    "age_hi95_ma",
+    "big_delta_13c",
+    "paleolat_sigma",
+    "plate_id",
+    "paleolat",
+    "paleolon",
+    "paleo_model",
+    "paleo_frame",
+    "paleo_status",
+    "screen",
     "row_hash",
 }
 DEFAULT_TIME_SCALE = "ICS2024/12"
@@ -52,8 +68,10 @@ class Settings:
 
     @classmethod
     def from_stored(cls, values: dict[str, Any]) -> Settings:
-        return cls(time_scale=values.get("time_scale", DEFAULT_TIME_SCALE),
-                   extra={k: v for k, v in values.items() if k != "time_scale"})
+        return cls(
+            time_scale=values.get("time_scale", DEFAULT_TIME_SCALE),
+            extra={k: v for k, v in values.items() if k != "time_scale"},
+        )
 
     def hash(self) -> str:
         text = json.dumps(self.as_dict(), sort_keys=True)
@@ -75,9 +93,14 @@ def chain_id(steps: list[dict[str, Any]]) -> tuple[str, str]:
     return hashlib.sha256(text.encode()).hexdigest()[:16], text
 
 
-def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
-           strict: bool = True, runs: pa.Table | None = None,
-           corrections: pa.Table | None = None) -> Derived:
+def derive(
+    records: pa.Table,
+    settings: Settings,
+    ties: pa.Table | None = None,
+    strict: bool = True,
+    runs: pa.Table | None = None,
+    corrections: pa.Table | None = None,
+) -> Derived:
     """Fill the derived columns of ``records`` from its reported columns, ``settings`` and
     the age ties of its sections (``ties``: age_ties rows; others are ignored).
 
@@ -102,16 +125,23 @@ def derive(records: pa.Table, settings: Settings, ties: pa.Table | None = None,
     table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
     table = _paleo(table, settings)
     table, screens = _screens(table, settings)
-    return Derived(table, chains, draws, screens, conflicts,
-                   pa.Table.from_pylist(qc, schema=arrow_schema(RUN_QC)))
+    return Derived(
+        table,
+        chains,
+        draws,
+        screens,
+        conflicts,
+        pa.Table.from_pylist(qc, schema=arrow_schema(RUN_QC)),
+    )
 
 
 def _big_delta(table: pa.Table) -> pa.Table:
     """Δ13C = δ13C carbonate − δ13C organic, where both are harmonised on the same record."""
     import pyarrow.compute as pc
 
-    return set_column(table, "big_delta_13c",
-                      pc.subtract(table.column("d13c_carb"), table.column("d13c_org")))
+    return set_column(
+        table, "big_delta_13c", pc.subtract(table.column("d13c_carb"), table.column("d13c_org"))
+    )
 
 
 def set_column(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
@@ -120,9 +150,14 @@ def set_column(table: pa.Table, name: str, values: pa.Array) -> pa.Table:
 
 
 def _reported_step(scale: str, flags: tuple[str, ...]) -> dict[str, Any]:
-    return {"step": f"reported on {scale}", "method": "as reported (no correction)",
-            "parameters": {"scale": scale}, "source": "the authors' statement of scale",
-            "size_permil": 0.0, "flags": list(flags)}
+    return {
+        "step": f"reported on {scale}",
+        "method": "as reported (no correction)",
+        "parameters": {"scale": scale},
+        "source": "the authors' statement of scale",
+        "size_permil": 0.0,
+        "flags": list(flags),
+    }
 
 
 # samples whose δ18O a normalisation to calcite standards carries through acid digestion
@@ -132,8 +167,9 @@ PRECISION_PERMIL = 0.05  # typical external precision of carbonate δ13C/δ18O (
 SCREEN_CHUNK = 200_000  # records per screening pass (whole sections; bounds memory)
 
 
-def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: Any,
-              relation: str) -> tuple[Any, list[dict[str, Any]]]:
+def _reanchor(
+    d: str, scale: str, values: Any, spec: dict[str, Any], materials: Any, relation: str
+) -> tuple[Any, list[dict[str, Any]]]:
     """Re-anchor values whose authors stated their anchors: map the values they assumed for
     the anchor materials onto the values the store accepts (compile.harmonise.anchors)."""
     from strata13.compile.harmonise import anchors
@@ -143,23 +179,31 @@ def _reanchor(d: str, scale: str, values: Any, spec: dict[str, Any], materials: 
     iso = "d18o" if d.startswith("d18o") else "d13c"
     named = sorted(spec["anchors"].items())
     accepted = [accepted_value(m, iso, table, choice, relation) for m, _ in named]
-    source = "; ".join(f"{m}: {v:g} ‰ ({row.value_set}, {row.status}; {row.source})"
-                       for (m, _), (v, row) in zip(named, accepted, strict=True))
+    source = "; ".join(
+        f"{m}: {v:g} ‰ ({row.value_set}, {row.status}; {row.source})"
+        for (m, _), (v, row) in zip(named, accepted, strict=True)
+    )
     if spec["method"] == "two-point":
-        out, step = anchors.two_point(values, (named[0][1], named[1][1]),
-                                      (accepted[0][0], accepted[1][0]),
-                                      (named[0][0], named[1][0]), source)
+        out, step = anchors.two_point(
+            values,
+            (named[0][1], named[1][1]),
+            (accepted[0][0], accepted[1][0]),
+            (named[0][0], named[1][0]),
+            source,
+        )
     else:
         out, step = anchors.one_point(values, named[0][1], accepted[0][0], named[0][0], source)
     info = step.as_dict()
     old_rows = [row for _, row in accepted if row.status != "current"]
     info["flags"] = list(info.get("flags", [])) + [
-        f"{row.material}: the accepted value is {row.status} ({row.value_set})"
-        for row in old_rows]
+        f"{row.material}: the accepted value is {row.status} ({row.value_set})" for row in old_rows
+    ]
     if info.get("size_permil", 0.0) < PRECISION_PERMIL - 1e-9:  # not fooled by rounding
-        info["flags"].append(f"largest change {info.get('size_permil', 0.0):.3g} ‰ is below "
-                             f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
-                             "practice): the scales agree here within precision")
+        info["flags"].append(
+            f"largest change {info.get('size_permil', 0.0):.3g} ‰ is below "
+            f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
+            "practice): the scales agree here within precision"
+        )
     return out, [_reported_step(scale, ()), info]
 
 
@@ -176,21 +220,36 @@ def _offset_values(values: Any, spec: dict[str, Any] | None) -> Any:
     return values + off["value"] if off else values
 
 
-def _with_offset(steps: list[dict[str, Any]], spec: dict[str, Any] | None,
-                 before: Any) -> list[dict[str, Any]]:
+def _with_offset(
+    steps: list[dict[str, Any]], spec: dict[str, Any] | None, before: Any
+) -> list[dict[str, Any]]:
     """The chain with the source's declared offset as its last step, when there is one."""
     off = (spec or {}).get("offset")
     if not off:
         return steps
-    return [*steps, {"step": "declared per-source offset", "method": "add a constant",
-                     "parameters": {"offset_permil": off["value"]},
-                     "source": f"the mapping's justification: {off['why']}",
-                     "size_permil": abs(off["value"]), "flags": []}]
+    return [
+        *steps,
+        {
+            "step": "declared per-source offset",
+            "method": "add a constant",
+            "parameters": {"offset_permil": off["value"]},
+            "source": f"the mapping's justification: {off['why']}",
+            "size_permil": abs(off["value"]),
+            "flags": [],
+        },
+    ]
 
 
-def _run_values(d: str, table: pa.Table, rows: Any, reported: Any, spec: dict[str, Any],
-                runs: pa.Table | None, materials: Any, relation: str
-                ) -> tuple[Any, list[tuple[list[dict[str, Any]], Any, Any]], list[dict]]:
+def _run_values(
+    d: str,
+    table: pa.Table,
+    rows: Any,
+    reported: Any,
+    spec: dict[str, Any],
+    runs: pa.Table | None,
+    materials: Any,
+    relation: str,
+) -> tuple[Any, list[tuple[list[dict[str, Any]], Any, Any]], list[dict]]:
     """Normalise raw in-house run values, run by run, to the store's accepted values of the
     run's anchor materials (compile.harmonise.runs); returns per-run chains and the QC."""
     import numpy as np
@@ -209,42 +268,62 @@ def _run_values(d: str, table: pa.Table, rows: Any, reported: Any, spec: dict[st
     mat_table, choice = materials
     for key in sorted(set(zip(src, run_ids, strict=True)), key=str):
         sel = np.array([(a, b) == key for a, b in zip(src, run_ids, strict=True)])
-        here = [r for r in std if (r["source_id"], r["run_id"]) == key
-                and r[measured] is not None]
+        here = [r for r in std if (r["source_id"], r["run_id"]) == key and r[measured] is not None]
         where = f"run {key[1]!r} of source {key[0]}"
         if key[1] is None:
-            raise DomainError(f"source {key[0]}: a raw value has no run_id.",
-                              "Every row of an in-house run sheet needs its run.")
+            raise DomainError(
+                f"source {key[0]}: a raw value has no run_id.",
+                "Every row of an in-house run sheet needs its run.",
+            )
 
         def meas(material: str, rows_: list[dict[str, Any]] = here) -> list[float]:
             return [float(r[measured]) for r in rows_ if r["material"] == material]
+
         anchors = {}
         for m in spec["anchors"]:
             if meas(m):
                 anchors[m] = (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
-        checks = {m: (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
-                  for m in spec.get("checks", []) if meas(m)}
+        checks = {
+            m: (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
+            for m in spec.get("checks", [])
+            if meas(m)
+        }
         raw = reported[rows][sel]
         drift = None
         if spec.get("drift"):
-            ref = [(r["run_position"], float(r[measured])) for r in here
-                   if r["run_position"] is not None]
+            ref = [
+                (r["run_position"], float(r[measured]))
+                for r in here
+                if r["run_position"] is not None
+            ]
             by_mat = {}
             for r in here:
                 by_mat.setdefault(r["material"], []).append(float(r[measured]))
-            offsets = [float(r[measured]) - float(np.mean(by_mat[r["material"]])) for r in here
-                       if r["run_position"] is not None]
-            raw, drift = run_math.drift_correct(raw, pos[sel], np.array([p for p, _ in ref]),
-                                                np.array(offsets))
+            offsets = [
+                float(r[measured]) - float(np.mean(by_mat[r["material"]]))
+                for r in here
+                if r["run_position"] is not None
+            ]
+            raw, drift = run_math.drift_correct(
+                raw, pos[sel], np.array([p for p, _ in ref]), np.array(offsets)
+            )
             pp = np.array([r["run_position"] or 0.0 for r in here])
             for m in list(anchors):
-                got = [float(r[measured]) - drift * p for r, p in zip(here, pp, strict=True)
-                       if r["material"] == m]
+                got = [
+                    float(r[measured]) - drift * p
+                    for r, p in zip(here, pp, strict=True)
+                    if r["material"] == m
+                ]
                 anchors[m] = (got, anchors[m][1])
         try:
             values, step, qc = run_math.normalise_run(
-                str(key[1]), raw, anchors, checks, spec.get("slope_tolerance", 0.05),
-                f"{where}: reference materials measured in the run")
+                str(key[1]),
+                raw,
+                anchors,
+                checks,
+                spec.get("slope_tolerance", 0.05),
+                f"{where}: reference materials measured in the run",
+            )
         except DomainError as exc:
             raise DomainError(f"{where}, {iso}: {exc.message}", exc.hint) from None
         info = step.as_dict()
@@ -252,29 +331,60 @@ def _run_values(d: str, table: pa.Table, rows: Any, reported: Any, spec: dict[st
         if drift is not None:
             info["parameters"]["drift_per_position"] = drift
         if iso == "d18o":
-            info["flags"] = [*info["flags"], "acid fractionation: carried by the normalisation "
-                             "to calcite standards reacted alongside (calcite samples; a "
-                             "mineralogy not stated is read as calcite)"]
+            info["flags"] = [
+                *info["flags"],
+                "acid fractionation: carried by the normalisation "
+                "to calcite standards reacted alongside (calcite samples; a "
+                "mineralogy not stated is read as calcite)",
+            ]
             mineral = table.column("mineralogy").take(idx).to_pylist()
             other = np.array([(m or "calcite") not in CALCITE_LIKE for m in mineral]) & sel
             if other.any():  # no shipped relation corrects dolomite against calcite standards
                 values = np.where(other[sel], np.nan, values)
-        out.append(([{"step": "reported on the lab's working gas (raw)",
-                      "method": "as measured", "parameters": {"scale": "raw"},
-                      "source": where, "size_permil": 0.0, "flags": []}, info], sel, values))
-        qcs.append({"source_id": key[0], "run_id": key[1], "isotope": iso, "slope": qc.slope,
-                    "intercept": qc.intercept, "n_anchors": qc.n_anchors,
-                    "anchors": ", ".join(sorted(anchors)),
-                    "residuals_json": json.dumps(qc.residuals, sort_keys=True),
-                    "precision_1s": qc.precision_1s, "drift_per_position": drift,
-                    "warnings": "; ".join(qc.warnings) or None})
+        out.append(
+            (
+                [
+                    {
+                        "step": "reported on the lab's working gas (raw)",
+                        "method": "as measured",
+                        "parameters": {"scale": "raw"},
+                        "source": where,
+                        "size_permil": 0.0,
+                        "flags": [],
+                    },
+                    info,
+                ],
+                sel,
+                values,
+            )
+        )
+        qcs.append(
+            {
+                "source_id": key[0],
+                "run_id": key[1],
+                "isotope": iso,
+                "slope": qc.slope,
+                "intercept": qc.intercept,
+                "n_anchors": qc.n_anchors,
+                "anchors": ", ".join(sorted(anchors)),
+                "residuals_json": json.dumps(qc.residuals, sort_keys=True),
+                "precision_1s": qc.precision_1s,
+                "drift_per_position": drift,
+                "warnings": "; ".join(qc.warnings) or None,
+            }
+        )
     return None, out, qcs
 
 
-def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
-               strict: bool = True, runs: pa.Table | None = None,
-               run_qc: list[dict[str, Any]] | None = None,
-               fixes: dict[str, dict[str, Any]] | None = None) -> pa.Table:
+def _harmonise(
+    table: pa.Table,
+    chains: dict[str, str],
+    settings: Settings,
+    strict: bool = True,
+    runs: pa.Table | None = None,
+    run_qc: list[dict[str, Any]] | None = None,
+    fixes: dict[str, dict[str, Any]] | None = None,
+) -> pa.Table:
     """Each δ column onto ‰ VPDB where a method exists for its reported scale:
 
     * VPDB: taken as reported (normalisation not stated: flagged, not corrected);
@@ -302,18 +412,22 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
         out = np.full(len(reported), np.nan)
         chain = np.full(len(reported), None, dtype=object)
         status = np.where(has, "pending", None).astype(object)
-        norm = np.asarray(table.column(f"{d}_normalisation").to_numpy(zero_copy_only=False),
-                          object) if f"{d}_normalisation" in table.column_names else \
-            np.full(len(reported), None, dtype=object)
-        for sc, nm in sorted({(x, y) for x, y in zip(scale[has], norm[has], strict=True)
-                              if x is not None}, key=str):
+        norm = (
+            np.asarray(table.column(f"{d}_normalisation").to_numpy(zero_copy_only=False), object)
+            if f"{d}_normalisation" in table.column_names
+            else np.full(len(reported), None, dtype=object)
+        )
+        for sc, nm in sorted(
+            {(x, y) for x, y in zip(scale[has], norm[has], strict=True) if x is not None}, key=str
+        ):
             rows = has & (scale == sc) & np.equal(norm, nm)
             spec = json.loads(nm) if nm else None
             stated = spec is not None and spec.get("method") != "not stated"
             if sc == "raw":
                 try:
-                    values, steps, qc = _run_values(d, table, rows, reported, spec, runs,
-                                                    materials, constants)
+                    values, steps, qc = _run_values(
+                        d, table, rows, reported, spec, runs, materials, constants
+                    )
                 except DomainError as exc:
                     if strict:
                         raise
@@ -330,8 +444,10 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
                     status[values_rows] = "harmonised"
                     gap = values_rows[np.isnan(np.asarray(r_vals, float))]
                     chain[gap] = None
-                    status[gap] = ("pending: no acid-fractionation relation for this "
-                                   "mineralogy against calcite standards is shipped")
+                    status[gap] = (
+                        "pending: no acid-fractionation relation for this "
+                        "mineralogy against calcite standards is shipped"
+                    )
                 continue
             if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated:
                 try:
@@ -339,21 +455,25 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
                 except DomainError as exc:
                     if strict:
                         src = table.column("source_id")[int(np.flatnonzero(rows)[0])].as_py()
-                        raise DomainError(f"source {src}: [normalisation.{d}]: {exc.message}",
-                                          exc.hint) from None
+                        raise DomainError(
+                            f"source {src}: [normalisation.{d}]: {exc.message}", exc.hint
+                        ) from None
                     status[rows] = f"pending: {exc.message}"
                     continue
             elif sc in ("VPDB", "PDB"):
                 flags = ("normalisation not stated",) + (
-                    ("reported as PDB; read as VPDB (common practice)",) if sc == "PDB" else ())
+                    ("reported as PDB; read as VPDB (common practice)",) if sc == "PDB" else ()
+                )
                 steps = [_reported_step(sc, flags)]
                 values = reported[rows]
             elif sc == "VSMOW" and d == "d18o_carb":
                 values, step = oxygen.vsmow_to_vpdb(reported[rows], constants)
                 steps = [_reported_step(sc, ()), step.as_dict()]
             elif sc == "VPDB-LSVEC":
-                status[rows] = ("pending: VPDB-LSVEC values need the authors' anchors "
-                                "([normalisation] in the mapping)")
+                status[rows] = (
+                    "pending: VPDB-LSVEC values need the authors' anchors "
+                    "([normalisation] in the mapping)"
+                )
                 continue
             else:
                 status[rows] = f"pending: harmonisation from {sc} not available yet"
@@ -368,11 +488,17 @@ def _harmonise(table: pa.Table, chains: dict[str, str], settings: Settings,
         for i, (value, why, rep) in fixed.items():  # a correction opens the record's chain
             if chain[i] is None:
                 continue
-            steps = [{"step": "correction", "method": "the user's correction of the published "
-                      "value", "parameters": {"published": rep, "corrected": value},
-                      "source": why, "size_permil": abs(value - rep) if rep is not None and
-                      rep == rep else 0.0, "flags": ["corrected by the user"]},
-                     *json.loads(chains[chain[i]])]
+            steps = [
+                {
+                    "step": "correction",
+                    "method": "the user's correction of the published value",
+                    "parameters": {"published": rep, "corrected": value},
+                    "source": why,
+                    "size_permil": abs(value - rep) if rep is not None and rep == rep else 0.0,
+                    "flags": ["corrected by the user"],
+                },
+                *json.loads(chains[chain[i]]),
+            ]
             cid, text = chain_id(steps)
             chains[cid] = text
             chain[i] = cid
@@ -388,8 +514,10 @@ def _paleo_model(model_text: str, polygons_text: str) -> tuple[Any, Any]:
     """The store's rotation model and plate polygons, parsed once per content."""
     from strata13.compile.paleo import plates, rotations
 
-    return (rotations.parse_model(model_text, "the store's rotation model"),
-            plates.parse_polygons(json.loads(polygons_text), "the store's plate polygons"))
+    return (
+        rotations.parse_model(model_text, "the store's rotation model"),
+        plates.parse_polygons(json.loads(polygons_text), "the store's plate polygons"),
+    )
 
 
 def _paleo(table: pa.Table, settings: Settings) -> pa.Table:
@@ -403,8 +531,11 @@ def _paleo(table: pa.Table, settings: Settings) -> pa.Table:
     n = table.num_rows
     model_text = settings.extra.get("rotation_model_csv")
     if not model_text or n == 0:
-        return set_column(table, "paleo_status",
-                          pa.array(["pending: no rotation model in the store"] * n, pa.string()))
+        return set_column(
+            table,
+            "paleo_status",
+            pa.array(["pending: no rotation model in the store"] * n, pa.string()),
+        )
     model, polygons = _paleo_model(model_text, settings.extra["plate_polygons_geojson"])
     lat = table.column("lat").to_numpy(zero_copy_only=False).astype(float)
     lon = table.column("lon").to_numpy(zero_copy_only=False).astype(float)
@@ -423,15 +554,20 @@ def _paleo(table: pa.Table, settings: Settings) -> pa.Table:
     for i in np.flatnonzero(status == None):  # noqa: E711 (object array)
         status[i] = f"pending: {rec.status[i]}"
     status[~has_xy & ~forced] = "pending: no present-day coordinates"
-    status[(plate == plates.UNASSIGNED) & has_xy & ~forced] = \
+    status[(plate == plates.UNASSIGNED) & has_xy & ~forced] = (
         "pending: outside every plate polygon (unassigned)"
+    )
     ok = status == "placed"
     out = table
     out = set_column(out, "plate_id", pa.array(plate, mask=plate < 0).cast(pa.int32()))
-    for name, values in (("paleolat", rec.paleolat), ("paleolon", rec.paleolon),
-                         ("paleolat_sigma", sigma)):
-        out = set_column(out, name, pa.array(np.where(ok, values, np.nan), type=pa.float64(),
-                                             from_pandas=True))
+    for name, values in (
+        ("paleolat", rec.paleolat),
+        ("paleolon", rec.paleolon),
+        ("paleolat_sigma", sigma),
+    ):
+        out = set_column(
+            out, name, pa.array(np.where(ok, values, np.nan), type=pa.float64(), from_pandas=True)
+        )
     out = set_column(out, "paleo_model", pa.array(np.where(ok, model.name, None), pa.string()))
     out = set_column(out, "paleo_frame", pa.array(np.where(ok, model.frame, None), pa.string()))
     return set_column(out, "paleo_status", pa.array(status, pa.string()))
@@ -460,13 +596,14 @@ def _screens(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
     rules = rule_set(settings)
     untested_passes = bool(settings.extra.get("screen_untested_passes", False))
     if table.num_rows == 0 or not rules.rules:
-        return set_column(table, "screen", pa.array(["untested"] * table.num_rows,
-                                                    pa.string())), \
-            arrow_schema(SCREEN_RESULTS).empty_table()
+        return set_column(
+            table, "screen", pa.array(["untested"] * table.num_rows, pa.string())
+        ), arrow_schema(SCREEN_RESULTS).empty_table()
     # whole sections per chunk (covariance rules look at a section at once), so a large
     # ingest or recompute screens a bounded slice of the records at a time
-    key = pc.binary_join_element_wise(table.column("source_id"),
-                                      pc.fill_null(table.column("section_id"), ""), "\x1f")
+    key = pc.binary_join_element_wise(
+        table.column("source_id"), pc.fill_null(table.column("section_id"), ""), "\x1f"
+    )
     codes = pc.dictionary_encode(key).combine_chunks().indices.to_numpy(zero_copy_only=False)
     order = np.argsort(codes, kind="stable")
     bounds = np.flatnonzero(np.diff(codes[order])) + 1
@@ -485,8 +622,9 @@ def _screens(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
         screen[slice(None) if rows is None else rows] = overall
         k = res.results.num_rows // chunk.num_rows
         # the same source_id chunks once per rule: no copy (results are rule by rule)
-        src = pa.chunked_array([c for _ in range(k) for c in chunk.column("source_id").chunks],
-                               pa.string())
+        src = pa.chunked_array(
+            [c for _ in range(k) for c in chunk.column("source_id").chunks], pa.string()
+        )
         parts.append(res.results.append_column("source_id", src))
         del chunk, res
     out = set_column(table, "screen", pa.array(screen, pa.string()))

@@ -18,8 +18,7 @@ from strata13.compile.derive.engine import DERIVED_COLUMNS, Settings, derive
 from strata13.compile.ingest import replace_derived_tables
 from strata13.compile.store.lake import Store
 
-COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "age_sigma_ma", "paleolat",
-            "paleolon")
+COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "age_sigma_ma", "paleolat", "paleolon")
 
 
 @dataclass
@@ -47,8 +46,11 @@ def _changes(old: Any, new: Any) -> tuple[int, float, float]:
     moved = diff > 1e-12
     flipped = int((np.isnan(a) != np.isnan(b)).sum())
     n = int(moved.sum()) + flipped
-    return n, float(diff[moved].max()) if moved.any() else 0.0, \
-        float(np.median(diff[moved])) if moved.any() else 0.0
+    return (
+        n,
+        float(diff[moved].max()) if moved.any() else 0.0,
+        float(np.median(diff[moved])) if moved.any() else 0.0,
+    )
 
 
 def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeResult:
@@ -64,8 +66,14 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         runs = con.execute("SELECT * FROM lake.runs").to_arrow_table()
         fixes = con.execute("SELECT * FROM lake.corrections").to_arrow_table()
         derived = derive(table, settings, ties, strict=False, runs=runs, corrections=fixes)
-        result = RecomputeResult(command, None, table.num_rows, settings_before=before,
-                                 settings_after=after, conflicts=derived.conflicts)
+        result = RecomputeResult(
+            command,
+            None,
+            table.num_rows,
+            settings_before=before,
+            settings_after=after,
+            conflicts=derived.conflicts,
+        )
         status_changed = False
         for col in table.column_names:
             if col in DERIVED_COLUMNS and col != "row_hash" and col not in COMPARED:
@@ -76,8 +84,14 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
                 result.changed[col], result.max_change[col], result.median_change[col] = n, mx, med
         import pyarrow.compute as pc
 
-        result.screen_changed = int(pc.sum(pc.fill_null(pc.not_equal(
-            table.column("screen"), derived.table.column("screen")), True)).as_py() or 0)
+        result.screen_changed = int(
+            pc.sum(
+                pc.fill_null(
+                    pc.not_equal(table.column("screen"), derived.table.column("screen")), True
+                )
+            ).as_py()
+            or 0
+        )
         if after == before and not result.changed and not status_changed:
             con.execute("ROLLBACK")
             return result
@@ -89,13 +103,21 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         h = settings.hash()
         store.write_settings(con, after, h)
         store.add_chains(con, derived.chains)
-        logged = {k: v for k, v in change.items()  # long texts: their names and hashes stand in
-                  if k not in ("screen_rules", "rotation_model_csv", "plate_polygons_geojson",
-                               "materials_csv")}
-        summary = {"records": table.num_rows, "changed": result.changed,
-                   "screen_changed": result.screen_changed,
-                   "max_change": result.max_change, "settings": logged}
-        result.version = store._record_commit(con, command, json.dumps(logged, sort_keys=True),
-                                              h, summary)
+        logged = {
+            k: v
+            for k, v in change.items()  # long texts: their names and hashes stand in
+            if k
+            not in ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
+        }
+        summary = {
+            "records": table.num_rows,
+            "changed": result.changed,
+            "screen_changed": result.screen_changed,
+            "max_change": result.max_change,
+            "settings": logged,
+        }
+        result.version = store._record_commit(
+            con, command, json.dumps(logged, sort_keys=True), h, summary
+        )
         con.execute("COMMIT")
     return result

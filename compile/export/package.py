@@ -101,8 +101,15 @@ def _bibtex(sources: list[dict[str, Any]]) -> str:
     return "\n".join(out)
 
 
-def export(con: Any, version: int, out: Path, filters: Filters, settings_hash: str,
-           store_path: Path, settings: dict[str, Any] | None = None) -> ExportResult:
+def export(
+    con: Any,
+    version: int,
+    out: Path,
+    filters: Filters,
+    settings_hash: str,
+    store_path: Path,
+    settings: dict[str, Any] | None = None,
+) -> ExportResult:
     """Write the export folder for ``version`` (``con`` is a reader pinned to it);
     ``settings`` (time scale, screening rule set and its hash, …) go into the manifest."""
     import pyarrow as pa
@@ -116,37 +123,68 @@ def export(con: Any, version: int, out: Path, filters: Filters, settings_hash: s
     table = run(con, filters, order="record_id")
     table = table.select(RECORDS_COLUMNS).cast(_records_schema())
     files: dict[str, str] = {}
-    pq.write_table(table, out / "records.parquet", compression="zstd",
-                   write_statistics=True, use_dictionary=True, store_schema=True)
+    pq.write_table(
+        table,
+        out / "records.parquet",
+        compression="zstd",
+        write_statistics=True,
+        use_dictionary=True,
+        store_schema=True,
+    )
     write_csv(table, out / "records.csv")
     ids = sorted(set(table.column("source_id").to_pylist()))
     srcs = []
     if ids:
         srcs = con.execute(
             f"SELECT source_id, citation, year, doi, url, kind FROM sources WHERE source_id IN "
-            f"({', '.join('?' for _ in ids)}) ORDER BY source_id", ids).to_arrow_table()
+            f"({', '.join('?' for _ in ids)}) ORDER BY source_id",
+            ids,
+        ).to_arrow_table()
         srcs = srcs.to_pylist()
     (out / "bibliography.bib").write_text(_bibtex(srcs), encoding="utf-8")
     (out / "bibliography.txt").write_text(
-        "".join(f"[{s['source_id']}] {s['citation']}" + (f" doi:{s['doi']}" if s.get('doi')
-                                                        else "") + "\n" for s in srcs),
-        encoding="utf-8")
+        "".join(
+            f"[{s['source_id']}] {s['citation']}"
+            + (f" doi:{s['doi']}" if s.get("doi") else "")
+            + "\n"
+            for s in srcs
+        ),
+        encoding="utf-8",
+    )
     for name in ("records.parquet", "records.csv", "bibliography.bib", "bibliography.txt"):
         files[name] = _sha(out / name)
-    counts = {"records": table.num_rows, "sources": len(ids),
-              "sections": len(set(zip(table.column("source_id").to_pylist(),
-                                      table.column("section_id").to_pylist(), strict=True)))}
-    snap = con.execute("SELECT CAST(snapshot_time AS VARCHAR) FROM lake.snapshots() WHERE "
-                       "snapshot_id = ?", [version]).fetchone()
+    counts = {
+        "records": table.num_rows,
+        "sources": len(ids),
+        "sections": len(
+            set(
+                zip(
+                    table.column("source_id").to_pylist(),
+                    table.column("section_id").to_pylist(),
+                    strict=True,
+                )
+            )
+        ),
+    }
+    snap = con.execute(
+        "SELECT CAST(snapshot_time AS VARCHAR) FROM lake.snapshots() WHERE snapshot_id = ?",
+        [version],
+    ).fetchone()
     manifest = {
-        "tool": "strata13", "tool_version": __version__, "schema_version": SCHEMA_VERSION,
-        "store_version": version, "store_version_time": snap[0] if snap else None,
-        "settings_hash": settings_hash, "settings": settings or {},
-        "filters": filters.describe(), "counts": counts,
+        "tool": "strata13",
+        "tool_version": __version__,
+        "schema_version": SCHEMA_VERSION,
+        "store_version": version,
+        "store_version_time": snap[0] if snap else None,
+        "settings_hash": settings_hash,
+        "settings": settings or {},
+        "filters": filters.describe(),
+        "counts": counts,
         "files": [{"path": k, "sha256": v} for k, v in sorted(files.items())],
         "reproduce": f"strata13 export --store {store_path.name} --as-of {version} --out DIR",
     }
-    (out / "manifest.json").write_text(json.dumps(manifest, indent=1, sort_keys=True,
-                                                  ensure_ascii=False) + "\n", encoding="utf-8")
+    (out / "manifest.json").write_text(
+        json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False) + "\n", encoding="utf-8"
+    )
     _ = pa  # arrow is the table type throughout
     return ExportResult(out, version, table.num_rows, files)

@@ -23,9 +23,17 @@ def alpha_calcite(temp_c: float) -> float:
 def alpha(mineral: str, temp_c: float) -> tuple[float, list[str]]:
     """α and any caveats (extrapolation beyond the calibration range)."""
     if mineral not in ("calcite", "low-Mg calcite", "high-Mg calcite"):
-        raise DomainError(f"no acid-fractionation relation is shipped for {mineral}.",
-                          "Give the fractionation factor for this mineral explicitly.")
+        raise DomainError(
+            f"no acid-fractionation relation is shipped for {mineral}.",
+            "Give the fractionation factor for this mineral explicitly.",
+        )
     lo, hi = KIM_2015_RANGE_C
-    notes = [] if lo <= temp_c <= hi else [f"{temp_c:g} °C is outside the {lo:g}–{hi:g} °C "
-                                           "calibration of Kim et al. 2015 (extrapolated)"]
+    notes = (
+        []
+        if lo <= temp_c <= hi
+        else [
+            f"{temp_c:g} °C is outside the {lo:g}–{hi:g} °C "
+            "calibration of Kim et al. 2015 (extrapolated)"
+        ]
+    )
     return alpha_calcite(temp_c), notes

@@ -20,8 +20,9 @@ DEFAULT = "IUPAC-2014"
 def relation(name: str = DEFAULT) -> OxygenRelation:
     rels = oxygen_relations()
     if name not in rels:
-        raise OptionError(f"VSMOW–VPDB constants {name!r} are not known.",
-                          f"Known: {', '.join(rels)}.")
+        raise OptionError(
+            f"VSMOW–VPDB constants {name!r} are not known.", f"Known: {', '.join(rels)}."
+        )
     return rels[name]
 
 
@@ -30,9 +31,14 @@ def vsmow_to_vpdb(values: np.ndarray, name: str = DEFAULT) -> tuple[np.ndarray, 
     a, b = rel.to_vpdb()
     v = np.asarray(values, dtype=float)
     out = a * v + b
-    return out, Step("δ18O VSMOW → VPDB", f"linear relation {rel.name}", rel.source,
-                     {"a": a, "b": b, "constants": rel.name}, largest_change(v, out),
-                     ("constants from memory",) if rel.confidence == "MEMORY" else ())
+    return out, Step(
+        "δ18O VSMOW → VPDB",
+        f"linear relation {rel.name}",
+        rel.source,
+        {"a": a, "b": b, "constants": rel.name},
+        largest_change(v, out),
+        ("constants from memory",) if rel.confidence == "MEMORY" else (),
+    )
 
 
 def vpdb_to_vsmow(values: np.ndarray, name: str = DEFAULT) -> tuple[np.ndarray, Step]:
@@ -40,5 +46,10 @@ def vpdb_to_vsmow(values: np.ndarray, name: str = DEFAULT) -> tuple[np.ndarray, 
     a, b = rel.to_vpdb()
     v = np.asarray(values, dtype=float)
     out = (v - b) / a
-    return out, Step("δ18O VPDB → VSMOW", f"linear relation {rel.name} (inverse)", rel.source,
-                     {"a": 1 / a, "b": -b / a, "constants": rel.name}, largest_change(v, out))
+    return out, Step(
+        "δ18O VPDB → VSMOW",
+        f"linear relation {rel.name} (inverse)",
+        rel.source,
+        {"a": 1 / a, "b": -b / a, "constants": rel.name},
+        largest_change(v, out),
+    )

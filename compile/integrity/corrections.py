@@ -27,9 +27,27 @@ if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
 
 # fields a correction may change: δ values, positions, ages, concentrations, material terms
-CORRECTABLE = (*DELTA_FIELDS, "position", "top", "base", "age", "age_sigma", "mn", "sr", "fe",
-               "mg_ca", "caco3", "toc", "lithology", "texture", "component", "mineralogy",
-               "setting", "preservation", "lithostrat_unit")
+CORRECTABLE = (
+    *DELTA_FIELDS,
+    "position",
+    "top",
+    "base",
+    "age",
+    "age_sigma",
+    "mn",
+    "sr",
+    "fe",
+    "mg_ca",
+    "caco3",
+    "toc",
+    "lithology",
+    "texture",
+    "component",
+    "mineralogy",
+    "setting",
+    "preservation",
+    "lithostrat_unit",
+)
 CORRECTABLE = tuple(f for f in CORRECTABLE if f in BY_NAME)
 
 
@@ -56,9 +74,11 @@ def parse_value(field: str, text: str, where: str) -> Any:
         term = vocabulary(f.vocab or "").resolve(text)
         if term is None:
             sug = vocabulary(f.vocab or "").suggest(text)
-            raise OptionError(f"{where}: {text!r} is not a known {f.vocab}."
-                              + (f" Did you mean {sug!r}?" if sug else ""),
-                              f"Known: {', '.join(vocabulary(f.vocab or '').terms)}.")
+            raise OptionError(
+                f"{where}: {text!r} is not a known {f.vocab}."
+                + (f" Did you mean {sug!r}?" if sug else ""),
+                f"Known: {', '.join(vocabulary(f.vocab or '').terms)}.",
+            )
         return term
     if f.kind == "text":
         if not text.strip():
@@ -67,16 +87,20 @@ def parse_value(field: str, text: str, where: str) -> Any:
     try:
         x = float(text.strip().replace("−", "-"))
     except ValueError:
-        raise OptionError(f"{where}: {field} takes a number, not {text!r}.",
-                          f"Give the corrected {field} as a plain number"
-                          + (f" in {f.stored_unit}" if f.stored_unit else "") + ".") from None
+        raise OptionError(
+            f"{where}: {field} takes a number, not {text!r}.",
+            f"Give the corrected {field} as a plain number"
+            + (f" in {f.stored_unit}" if f.stored_unit else "")
+            + ".",
+        ) from None
     if x != x or x in (float("inf"), float("-inf")):
         raise OptionError(f"{where}: {text!r} is not a finite number.", "Give a number.")
     if f.plausible and not f.plausible[0] <= x <= f.plausible[1]:
-        raise OptionError(f"{where}: {x:g} is outside the plausible {f.plausible_name} "
-                          f"({f.plausible[0]:g} … {f.plausible[1]:g}).",
-                          "Check the value and its unit (the stored unit is "
-                          f"{f.stored_unit or 'none'}).")
+        raise OptionError(
+            f"{where}: {x:g} is outside the plausible {f.plausible_name} "
+            f"({f.plausible[0]:g} … {f.plausible[1]:g}).",
+            f"Check the value and its unit (the stored unit is {f.stored_unit or 'none'}).",
+        )
     return x
 
 
@@ -86,13 +110,17 @@ def check(c: Correction, where: str) -> Any:
 
     if c.field not in CORRECTABLE:
         sug = difflib.get_close_matches(c.field, CORRECTABLE, n=1)
-        raise OptionError(f"{where}: {c.field!r} is not a field a correction can change."
-                          + (f" Did you mean {sug[0]!r}?" if sug else ""),
-                          f"Correctable: {', '.join(CORRECTABLE)}.")
+        raise OptionError(
+            f"{where}: {c.field!r} is not a field a correction can change."
+            + (f" Did you mean {sug[0]!r}?" if sug else ""),
+            f"Correctable: {', '.join(CORRECTABLE)}.",
+        )
     if not c.why or len(c.why.strip()) < 5:
-        raise OptionError(f"{where}: a correction needs its reason (--why).",
-                          "Say what is wrong and how you know, e.g. \"minus sign lost in "
-                          "the journal table; the supplement gives −1.2\".")
+        raise OptionError(
+            f"{where}: a correction needs its reason (--why).",
+            'Say what is wrong and how you know, e.g. "minus sign lost in '
+            'the journal table; the supplement gives −1.2".',
+        )
     return parse_value(c.field, c.value, where)
 
 
@@ -104,14 +132,22 @@ def read_file(path: Path) -> list[Correction]:
     reader = csv.DictReader(text.splitlines())
     need = {"record_id", "field", "value", "why"}
     if not need <= set(reader.fieldnames or []):
-        raise ConfigError(f"{path.name} needs the columns record_id, field, value, why.",
-                          "Write a header line: record_id,field,value,why")
+        raise ConfigError(
+            f"{path.name} needs the columns record_id, field, value, why.",
+            "Write a header line: record_id,field,value,why",
+        )
     out = []
     for line, r in enumerate(reader, start=2):
         if not any((v or "").strip() for v in r.values()):
             continue
-        out.append(Correction((r["record_id"] or "").strip(), (r["field"] or "").strip(),
-                              (r["value"] or "").strip(), (r["why"] or "").strip()))
+        out.append(
+            Correction(
+                (r["record_id"] or "").strip(),
+                (r["field"] or "").strip(),
+                (r["value"] or "").strip(),
+                (r["why"] or "").strip(),
+            )
+        )
         try:
             check(out[-1], f"{path.name} line {line}")
         except OptionError as exc:
@@ -125,8 +161,9 @@ def correction_id(record_id: str, field: str) -> str:
     return hashlib.sha256(f"{record_id}\x1f{field}".encode()).hexdigest()[:16]
 
 
-def apply(table: pa.Table, corrections: pa.Table | None
-          ) -> tuple[pa.Table, dict[str, dict[str, tuple[float, str, float | None]]]]:
+def apply(
+    table: pa.Table, corrections: pa.Table | None
+) -> tuple[pa.Table, dict[str, dict[str, tuple[float, str, float | None]]]]:
     """Corrections of non-δ fields written into ``table``; δ corrections returned as
     {δ field: {record_id: (value, why, reported)}} for the harmonisation step."""
     import json
@@ -186,25 +223,44 @@ def correct(store: Store, items: list[Correction]) -> CorrectResult:
         sources: set[str] = set()
         replaced = 0
         for c in items:
-            hit = con.execute("SELECT record_id, source_id FROM lake.analyses WHERE "
-                              "starts_with(record_id, ?) LIMIT 3", [c.record_id]).fetchall()
+            hit = con.execute(
+                "SELECT record_id, source_id FROM lake.analyses WHERE "
+                "starts_with(record_id, ?) LIMIT 3",
+                [c.record_id],
+            ).fetchall()
             if len(c.record_id) < 6 or not hit:
-                raise DomainError(f"no record {c.record_id!r} in this store; nothing was "
-                                  "written.", "Find record ids with `strata13 query`.")
+                raise DomainError(
+                    f"no record {c.record_id!r} in this store; nothing was written.",
+                    "Find record ids with `strata13 query`.",
+                )
             if len(hit) > 1:
-                raise OptionError(f"record id {c.record_id!r} matches more than one record.",
-                                  "Give more characters of the id.")
+                raise OptionError(
+                    f"record id {c.record_id!r} matches more than one record.",
+                    "Give more characters of the id.",
+                )
             rid, sid = hit[0]
-            original = con.execute(f'SELECT CAST("{_source_column(c.field)}" AS VARCHAR) FROM '
-                                   "lake.analyses WHERE record_id = ?", [rid]).fetchone()[0]
+            original = con.execute(
+                f'SELECT CAST("{_source_column(c.field)}" AS VARCHAR) FROM '
+                "lake.analyses WHERE record_id = ?",
+                [rid],
+            ).fetchone()[0]
             cid = correction_id(rid, c.field)
-            replaced += con.execute("SELECT count(*) FROM lake.corrections WHERE "
-                                    "correction_id = ?", [cid]).fetchone()[0]
+            replaced += con.execute(
+                "SELECT count(*) FROM lake.corrections WHERE correction_id = ?", [cid]
+            ).fetchone()[0]
             con.execute("DELETE FROM lake.corrections WHERE correction_id = ?", [cid])
-            rows.append({"correction_id": cid, "record_id": rid, "source_id": sid,
-                         "field": c.field, "value_text": c.value.strip(), "why": c.why.strip(),
-                         "original_text": original,
-                         "created_utc": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M:%S")})
+            rows.append(
+                {
+                    "correction_id": cid,
+                    "record_id": rid,
+                    "source_id": sid,
+                    "field": c.field,
+                    "value_text": c.value.strip(),
+                    "why": c.why.strip(),
+                    "original_text": original,
+                    "created_utc": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M:%S"),
+                }
+            )
             sources.add(sid)
         import pyarrow as pa
         from strata13.compile.ingest import _insert
@@ -212,9 +268,13 @@ def correct(store: Store, items: list[Correction]) -> CorrectResult:
         _insert(con, "corrections", pa.Table.from_pylist(rows, schema=arrow_schema(CORRECTIONS)))
         settings = Settings.from_stored(store.read_settings(con))
         rederive_sources(store, con, sorted(sources), settings)
-        version = store._record_commit(con, "correct", ", ".join(sorted(sources)),
-                                       settings.hash(), {"corrections": len(rows),
-                                                         "replaced": replaced})
+        version = store._record_commit(
+            con,
+            "correct",
+            ", ".join(sorted(sources)),
+            settings.hash(),
+            {"corrections": len(rows), "replaced": replaced},
+        )
         con.execute("COMMIT")
     return CorrectResult(version, len(rows) - replaced, replaced, sorted(sources))
 
@@ -236,7 +296,9 @@ def listing(store: Store, source: list[str] | None = None) -> list[dict[str, Any
             "c.original_text AS published, c.value_text AS corrected, c.why, c.created_utc, "
             "CASE WHEN r.record_id IS NULL THEN 'orphaned' ELSE 'applied' END AS status "
             f"FROM corrections c LEFT JOIN records r USING (record_id){where} "
-            "ORDER BY c.source_id, r.section_id, r.sample_id, c.field", params)
+            "ORDER BY c.source_id, r.section_id, r.sample_id, c.field",
+            params,
+        )
         cols = [d[0] for d in cur.description]
         return [dict(zip(cols, r, strict=True)) for r in cur.fetchall()]
     finally:

@@ -15,8 +15,7 @@ if TYPE_CHECKING:
     import pandas as pd
 
 
-def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None
-           ) -> pd.DataFrame:
+def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None) -> pd.DataFrame:
     """Samples and sections per (bin, group, component), zeros included.
 
     ``samples``: one row per sample with age_ma, group, component, source_id, section_id.
@@ -35,14 +34,22 @@ def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None
     df = df[(df["bin"] >= 0) & (df["bin"] < len(edges) - 1)]
     df["component"] = df["component"].fillna("component not stated")
     df["section"] = df["source_id"].astype(str) + "/" + df["section_id"].astype(str)
-    got = df.groupby(["bin", "group", "component"]).agg(
-        n_samples=("section", "size"), n_sections=("section", "nunique")).reset_index()
+    got = (
+        df.groupby(["bin", "group", "component"])
+        .agg(n_samples=("section", "size"), n_sections=("section", "nunique"))
+        .reset_index()
+    )
     full = pd.MultiIndex.from_product(
-        [range(len(edges) - 1), sorted(set(df["group"].unique()) | set(groups or [])),
-         sorted(df["component"].unique())],
-        names=["bin", "group", "component"]).to_frame(index=False)
+        [
+            range(len(edges) - 1),
+            sorted(set(df["group"].unique()) | set(groups or [])),
+            sorted(df["component"].unique()),
+        ],
+        names=["bin", "group", "component"],
+    ).to_frame(index=False)
     out = full.merge(got, how="left", on=["bin", "group", "component"]).fillna(
-        {"n_samples": 0, "n_sections": 0})
+        {"n_samples": 0, "n_sections": 0}
+    )
     out["age_old"] = edges[out["bin"].to_numpy()]
     out["age_young"] = edges[out["bin"].to_numpy() + 1]
     out = out.astype({"n_samples": int, "n_sections": int})
@@ -60,8 +67,12 @@ def heatmap(table: pd.DataFrame, path_png: Path, path_svg: Path, title: str) -> 
     table = table.copy()
     table["row"] = table["group"] + " · " + table["component"]
     rows = sorted(table["row"].unique())
-    bins = table[["age_old", "age_young"]].drop_duplicates().sort_values(
-        "age_old", ascending=False).to_numpy()
+    bins = (
+        table[["age_old", "age_young"]]
+        .drop_duplicates()
+        .sort_values("age_old", ascending=False)
+        .to_numpy()
+    )
     grid = np.zeros((len(rows), len(bins)), dtype=int)
     samples = np.zeros_like(grid)
     for r in table.itertuples():
@@ -72,19 +83,26 @@ def heatmap(table: pd.DataFrame, path_png: Path, path_svg: Path, title: str) -> 
     FigureCanvasAgg(fig)
     ax = fig.add_subplot(1, 1, 1)
     masked = np.ma.masked_equal(grid, 0)
-    im = ax.imshow(masked, aspect="auto", cmap="viridis", vmin=1,
-                   vmax=max(1, int(grid.max())))
+    im = ax.imshow(masked, aspect="auto", cmap="viridis", vmin=1, vmax=max(1, int(grid.max())))
     ax.set_facecolor("white")
     for i in range(len(rows)):
         for j in range(len(bins)):
             if grid[i, j] == 0:
                 ax.add_patch(_hatch(j, i))
             dark = 0 < grid[i, j] < 0.6 * max(1, int(grid.max()))  # dark end of viridis
-            ax.text(j, i, f"{grid[i, j]}\n({samples[i, j]})", ha="center", va="center",
-                    fontsize=7, color="white" if dark else "black")
+            ax.text(
+                j,
+                i,
+                f"{grid[i, j]}\n({samples[i, j]})",
+                ha="center",
+                va="center",
+                fontsize=7,
+                color="white" if dark else "black",
+            )
     ax.set_yticks(range(len(rows)), rows, fontsize=8)
-    ax.set_xticks(range(len(bins)), [f"{a:g}–{b:g}" for a, b in bins], rotation=60,
-                  ha="right", fontsize=7)
+    ax.set_xticks(
+        range(len(bins)), [f"{a:g}–{b:g}" for a, b in bins], rotation=60, ha="right", fontsize=7
+    )
     ax.set_xlabel("Age bin (Ma), older to the left")
     ax.set_title(title, fontsize=9)
     cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
@@ -96,12 +114,18 @@ def heatmap(table: pd.DataFrame, path_png: Path, path_svg: Path, title: str) -> 
 def _hatch(x: int, y: int) -> Any:
     from matplotlib.patches import Rectangle
 
-    return Rectangle((x - 0.5, y - 0.5), 1, 1, fill=False, hatch="///", edgecolor="0.75",
-                     linewidth=0)
+    return Rectangle(
+        (x - 0.5, y - 0.5), 1, 1, fill=False, hatch="///", edgecolor="0.75", linewidth=0
+    )
 
 
-def coverage(store: Any, filters: Any, by: str = "region", bin_myr: float | None = None,
-             out: Path | None = None) -> tuple[pd.DataFrame, dict[str, str]]:
+def coverage(
+    store: Any,
+    filters: Any,
+    by: str = "region",
+    bin_myr: float | None = None,
+    out: Path | None = None,
+) -> tuple[pd.DataFrame, dict[str, str]]:
     """The coverage table for the filtered records (and, with ``out``, CSV and heatmap)."""
     import hashlib
 
@@ -126,11 +150,16 @@ def coverage(store: Any, filters: Any, by: str = "region", bin_myr: float | None
     files: dict[str, str] = {}
     if out is not None:
         out.mkdir(parents=True, exist_ok=True)
-        table.to_csv(out / "coverage.csv", index=False, lineterminator="\n",
-                     float_format="%.6g")
-        heatmap(table, out / "coverage.png", out / "coverage.svg",
-                f"Coverage by {by} and component — {len(df)} samples, store version "
-                f"{s.version}")
-        files = {p.name: hashlib.sha256(p.read_bytes()).hexdigest()
-                 for p in sorted(out.iterdir()) if p.name.startswith("coverage")}
+        table.to_csv(out / "coverage.csv", index=False, lineterminator="\n", float_format="%.6g")
+        heatmap(
+            table,
+            out / "coverage.png",
+            out / "coverage.svg",
+            f"Coverage by {by} and component — {len(df)} samples, store version {s.version}",
+        )
+        files = {
+            p.name: hashlib.sha256(p.read_bytes()).hexdigest()
+            for p in sorted(out.iterdir())
+            if p.name.startswith("coverage")
+        }
     return table, files

@@ -57,8 +57,19 @@ if TYPE_CHECKING:
 EARTH_RADIUS_KM = 6371.0  # mean Earth radius (common convention)
 WEIGHTS = {"locality": 1.0, "position": 1.0, "d13c": 2.0, "d18o": 1.0, "sample": 1.0}
 LINEAGE_PULL = 0.5  # declared lineage moves the score this share of the way to 1
-COLUMNS = ("record_a", "source_a", "record_b", "source_b", "locality", "position_a_m",
-           "position_b_m", "d13c_a", "d13c_b", "score", "reasons")
+COLUMNS = (
+    "record_a",
+    "source_a",
+    "record_b",
+    "source_b",
+    "locality",
+    "position_a_m",
+    "position_b_m",
+    "d13c_a",
+    "d13c_b",
+    "score",
+    "reasons",
+)
 DECISIONS = ("confirm", "reject")
 DECISION_HEADER = ("record_a", "record_b", "decision", "note")
 _SLACK = 1e-9  # floating-point noise allowed at a tolerance's edge
@@ -77,8 +88,9 @@ class Decision(NamedTuple):
 # ------------------------------------------------------------------ small helpers
 
 
-def haversine_km(lat1: Any, lon1: Any, lat2: Any, lon2: Any,
-                 radius_km: float = EARTH_RADIUS_KM) -> np.ndarray:
+def haversine_km(
+    lat1: Any, lon1: Any, lat2: Any, lon2: Any, radius_km: float = EARTH_RADIUS_KM
+) -> np.ndarray:
     """Great-circle distance (km) by the haversine formula on a sphere (degrees in).
 
     d = 2R·asin(√(sin²(Δφ/2) + cos φ1 cos φ2 sin²(Δλ/2))); well conditioned at small
@@ -135,16 +147,19 @@ def _expand(lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return k, start + np.arange(int(counts.sum()))
 
 
-def _check_tolerances(position_tol_m: float, value_tol_permil: float,
-                      coord_tol_km: float) -> None:
-    for name, val, zero_ok in (("position_tol_m", position_tol_m, False),
-                               ("value_tol_permil", value_tol_permil, False),
-                               ("coord_tol_km", coord_tol_km, True)):
+def _check_tolerances(position_tol_m: float, value_tol_permil: float, coord_tol_km: float) -> None:
+    for name, val, zero_ok in (
+        ("position_tol_m", position_tol_m, False),
+        ("value_tol_permil", value_tol_permil, False),
+        ("coord_tol_km", coord_tol_km, True),
+    ):
         ok = isinstance(val, int | float | np.floating | np.integer) and np.isfinite(val)
         if not ok or val < 0 or (val == 0 and not zero_ok):
-            raise OptionError(f"the tolerance {name}={val!r} is not a positive number.",
-                              "Give e.g. position_tol_m=0.5, value_tol_permil=0.15, "
-                              "coord_tol_km=5 (0 turns coordinate matching off).")
+            raise OptionError(
+                f"the tolerance {name}={val!r} is not a positive number.",
+                "Give e.g. position_tol_m=0.5, value_tol_permil=0.15, "
+                "coord_tol_km=5 (0 turns coordinate matching off).",
+            )
 
 
 # ------------------------------------------------------------------ locality groups
@@ -175,9 +190,14 @@ def _near_places(lat: np.ndarray, lon: np.ndarray, tol_km: float) -> tuple[np.nd
     return idx[k][close], idx[j][close], d[close]
 
 
-def _locality_groups(loc_id: np.ndarray, loc_name: np.ndarray, lat: np.ndarray,
-                     lon: np.ndarray, aliases: Mapping[str, Iterable[str]] | None,
-                     coord_tol_km: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _locality_groups(
+    loc_id: np.ndarray,
+    loc_name: np.ndarray,
+    lat: np.ndarray,
+    lon: np.ndarray,
+    aliases: Mapping[str, Iterable[str]] | None,
+    coord_tol_km: float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per record: its place code, its name group (ids, names, aliases) and its block.
 
     A place is a distinct (locality_id, locality_name, lat, lon). Name groups join places
@@ -211,8 +231,7 @@ def _locality_groups(loc_id: np.ndarray, loc_name: np.ndarray, lat: np.ndarray,
             if t0 is not None and t1 is not None:
                 ea.append(t0)
                 eb.append(t1)
-    comp = _components(n_place + len(tokens), np.asarray(ea, np.int64),
-                       np.asarray(eb, np.int64))
+    comp = _components(n_place + len(tokens), np.asarray(ea, np.int64), np.asarray(eb, np.int64))
     group = comp[:n_place]
     na, nb, _ = _near_places(lat[first], lon[first], coord_tol_km)
     _, rep = np.unique(group, return_index=True)  # one place stands for its name group
@@ -248,8 +267,9 @@ class _Recs(NamedTuple):
     sample_norm: np.ndarray
 
 
-def _prepare(records: pd.DataFrame, aliases: Mapping[str, Iterable[str]] | None,
-             coord_tol_km: float) -> tuple[_Recs, np.ndarray, int]:
+def _prepare(
+    records: pd.DataFrame, aliases: Mapping[str, Iterable[str]] | None, coord_tol_km: float
+) -> tuple[_Recs, np.ndarray, int]:
     """Usable records (a source, a position and a δ13C), sorted; the source names; the
     number left out."""
     needed = ["record_id", "source_id", "d13c_carb"]
@@ -259,24 +279,36 @@ def _prepare(records: pd.DataFrame, aliases: Mapping[str, Iterable[str]] | None,
     if "position_m" not in records.columns and not {"top_m", "base_m"} <= set(records.columns):
         missing.append("position_m or top_m/base_m")
     if missing:
-        raise DomainError(f"the records lack the column(s) {', '.join(missing)} needed to "
-                          "find overlaps.", "Pass rows of the records view (query or sql).")
+        raise DomainError(
+            f"the records lack the column(s) {', '.join(missing)} needed to find overlaps.",
+            "Pass rows of the records view (query or sql).",
+        )
     pos = _float(records, "position_m")
     mid = (_float(records, "top_m") + _float(records, "base_m")) / 2.0
     pos = np.where(np.isfinite(pos), pos, mid)
     d13c = _float(records, "d13c_carb")
     src_all = _text(records, "source_id")
     loc_id, loc_name = _text(records, "locality_id"), _text(records, "locality_name")
-    usable = (np.isfinite(pos) & np.isfinite(d13c) & (src_all != None)  # noqa: E711
-              & ((loc_id != None) | (loc_name != None)))  # noqa: E711
+    usable = (
+        np.isfinite(pos)
+        & np.isfinite(d13c)
+        & (src_all != None)  # noqa: E711
+        & ((loc_id != None) | (loc_name != None))
+    )  # noqa: E711
     rows = np.flatnonzero(usable)
     src, sources = _codes(src_all[rows])
     code_of = {s: k for k, s in enumerate(sources)}
-    orig = np.array([code_of.get(s, -1) if s is not None else -1
-                     for s in _text(records, "original_source_id")[rows]], dtype=np.int64)
+    orig = np.array(
+        [
+            code_of.get(s, -1) if s is not None else -1
+            for s in _text(records, "original_source_id")[rows]
+        ],
+        dtype=np.int64,
+    )
     lat, lon = _float(records, "lat")[rows], _float(records, "lon")[rows]
-    _, group, block = _locality_groups(loc_id[rows], loc_name[rows], lat, lon, aliases,
-                                       coord_tol_km)
+    _, group, block = _locality_groups(
+        loc_id[rows], loc_name[rows], lat, lon, aliases, coord_tol_km
+    )
     p = pos[rows]
     order = np.lexsort((p, block))
     rid = _text(records, "record_id")[rows]
@@ -286,13 +318,26 @@ def _prepare(records: pd.DataFrame, aliases: Mapping[str, Iterable[str]] | None,
     label = np.where(loc_name[rows] != None, loc_name[rows], loc_id[rows])  # noqa: E711
     l_codes, l_uniques = _codes(label)
     l_norm = np.array([normalise_name(x) for x in l_uniques] + [""], dtype=object)
-    recs = _Recs(rid=rid, rid_rank=_codes(rid)[0], src=src, orig=orig, pos=p,
-                 kind=_codes(_text(records, "position_kind")[rows])[0], d13c=d13c[rows],
-                 d18o=_float(records, "d18o_carb")[rows], lat=lat, lon=lon, group=group,
-                 block=block, loc_id=loc_id[rows], loc_name=loc_name[rows], label=label,
-                 label_norm=l_norm[l_codes],
-                 sample=np.where(sample != None, sample, ""),  # noqa: E711
-                 sample_norm=s_norm[s_codes])
+    recs = _Recs(
+        rid=rid,
+        rid_rank=_codes(rid)[0],
+        src=src,
+        orig=orig,
+        pos=p,
+        kind=_codes(_text(records, "position_kind")[rows])[0],
+        d13c=d13c[rows],
+        d18o=_float(records, "d18o_carb")[rows],
+        lat=lat,
+        lon=lon,
+        group=group,
+        block=block,
+        loc_id=loc_id[rows],
+        loc_name=loc_name[rows],
+        label=label,
+        label_norm=l_norm[l_codes],
+        sample=np.where(sample != None, sample, ""),  # noqa: E711
+        sample_norm=s_norm[s_codes],
+    )
     recs = _Recs(*(a[order] for a in recs))
     return recs, sources, len(records) - rows.size
 
@@ -314,15 +359,19 @@ def _windows(r: _Recs, tol: float) -> tuple[np.ndarray, np.ndarray]:
     return lo, hi
 
 
-def _candidates(r: _Recs, only: int | None, ptol: float, vtol: float,
-                ctol: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _candidates(
+    r: _Recs, only: int | None, ptol: float, vtol: float, ctol: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Pairs (i, j) of the sorted records that meet every tolerance, with their distance
     in km (NaN where the locality group alone links them)."""
     lo, hi = _windows(r, ptol)
     counts = np.maximum(hi - lo, 0)
     cum = np.cumsum(counts)
-    cuts = np.r_[0, np.searchsorted(cum, np.arange(_CHUNK, cum[-1] if cum.size else 0,
-                                                   _CHUNK), side="right"), counts.size]
+    cuts = np.r_[
+        0,
+        np.searchsorted(cum, np.arange(_CHUNK, cum[-1] if cum.size else 0, _CHUNK), side="right"),
+        counts.size,
+    ]
     out_i, out_j, out_d = [], [], []
     for c0, c1 in zip(cuts[:-1], cuts[1:], strict=True):
         k, j = _expand(lo[c0:c1], hi[c0:c1])
@@ -338,8 +387,7 @@ def _candidates(r: _Recs, only: int | None, ptol: float, vtol: float,
         i, j = i[ok], j[ok]
         d = np.full(i.size, np.nan)
         other = r.group[i] != r.group[j]
-        d[other] = haversine_km(r.lat[i[other]], r.lon[i[other]], r.lat[j[other]],
-                                r.lon[j[other]])
+        d[other] = haversine_km(r.lat[i[other]], r.lon[i[other]], r.lat[j[other]], r.lon[j[other]])
         keep = ~other | (d <= ctol + _SLACK)
         out_i.append(i[keep])
         out_j.append(j[keep])
@@ -349,8 +397,9 @@ def _candidates(r: _Recs, only: int | None, ptol: float, vtol: float,
     return np.concatenate(out_i), np.concatenate(out_j), np.concatenate(out_d)
 
 
-def _declared_codes(declared: Mapping[str, Iterable[str]] | None,
-                    sources: np.ndarray) -> np.ndarray:
+def _declared_codes(
+    declared: Mapping[str, Iterable[str]] | None, sources: np.ndarray
+) -> np.ndarray:
     """Declared lineage as codes re-publisher·S + original (sources absent are ignored)."""
     code_of = {s: k for k, s in enumerate(sources)}
     n = len(sources)
@@ -379,10 +428,16 @@ def _one_to_one(ka: np.ndarray, kb: np.ndarray, order: np.ndarray) -> np.ndarray
 # ------------------------------------------------------------------ the finder
 
 
-def find_overlaps(records: pd.DataFrame, *, source: str | None = None,
-                  position_tol_m: float = 0.5, value_tol_permil: float = 0.15,
-                  coord_tol_km: float = 5.0, aliases: dict[str, set[str]] | None = None,
-                  declared: dict[str, set[str]] | None = None) -> pd.DataFrame:
+def find_overlaps(
+    records: pd.DataFrame,
+    *,
+    source: str | None = None,
+    position_tol_m: float = 0.5,
+    value_tol_permil: float = 0.15,
+    coord_tol_km: float = 5.0,
+    aliases: dict[str, set[str]] | None = None,
+    declared: dict[str, set[str]] | None = None,
+) -> pd.DataFrame:
     """Candidate pairs of records of different sources that are probably one measurement.
 
     ``records``: rows of the records view (read, never changed). ``source``: only pairs
@@ -400,9 +455,11 @@ def find_overlaps(records: pd.DataFrame, *, source: str | None = None,
     if source is not None:
         hit = np.flatnonzero(sources == source)
         if hit.size == 0:
-            raise DomainError(f"no comparable record has the source {source!r}.",
-                              "Check the id with `strata13 sources`; records need a "
-                              "position and a δ13C value to be compared.")
+            raise DomainError(
+                f"no comparable record has the source {source!r}.",
+                "Check the id with `strata13 sources`; records need a "
+                "position and a δ13C value to be compared.",
+            )
         only = int(hit[0])
     i, j, dist = _candidates(r, only, position_tol_m, value_tol_permil, coord_tol_km)
 
@@ -421,19 +478,28 @@ def find_overlaps(records: pd.DataFrame, *, source: str | None = None,
     # score: weighted mean closeness, pulled towards 1 by declared lineage
     w = WEIGHTS
     same_group = np.isnan(dist)
-    c_loc = np.where(same_group, 1.0,
-                     1.0 - np.nan_to_num(dist) / coord_tol_km if coord_tol_km > 0 else 1.0)
+    c_loc = np.where(
+        same_group, 1.0, 1.0 - np.nan_to_num(dist) / coord_tol_km if coord_tol_km > 0 else 1.0
+    )
     dpos = np.abs(r.pos[a] - r.pos[b])
     dc = np.abs(r.d13c[a] - r.d13c[b])
     do = np.abs(r.d18o[a] - r.d18o[b])
     has_o = np.isfinite(do)
     same_sample = (r.sample_norm[a] == r.sample_norm[b]) & (r.sample_norm[a] != "")
-    num = (w["locality"] * c_loc + w["position"] * (1.0 - dpos / position_tol_m)
-           + w["d13c"] * (1.0 - dc / value_tol_permil)
-           + np.where(has_o, w["d18o"] * (1.0 - np.nan_to_num(do) / value_tol_permil), 0.0)
-           + np.where(same_sample, w["sample"], 0.0))
-    den = (w["locality"] + w["position"] + w["d13c"] + np.where(has_o, w["d18o"], 0.0)
-           + np.where(same_sample, w["sample"], 0.0))
+    num = (
+        w["locality"] * c_loc
+        + w["position"] * (1.0 - dpos / position_tol_m)
+        + w["d13c"] * (1.0 - dc / value_tol_permil)
+        + np.where(has_o, w["d18o"] * (1.0 - np.nan_to_num(do) / value_tol_permil), 0.0)
+        + np.where(same_sample, w["sample"], 0.0)
+    )
+    den = (
+        w["locality"]
+        + w["position"]
+        + w["d13c"]
+        + np.where(has_o, w["d18o"], 0.0)
+        + np.where(same_sample, w["sample"], 0.0)
+    )
     base = np.clip(num / den, 0.0, 1.0)
     lineage = ij | ji
     score = np.round(np.where(lineage, base + LINEAGE_PULL * (1.0 - base), base), 6)
@@ -443,15 +509,34 @@ def find_overlaps(records: pd.DataFrame, *, source: str | None = None,
     a, b = a[keep], b[keep]
     sel = (dist[keep], dict_ab[keep], dict_ba[keep], orig_ab[keep], orig_ba[keep])
     reasons = _reasons(r, sources, a, b, *sel)
-    out = pd.DataFrame({"record_a": r.rid[a], "source_a": sources[r.src[a]], "record_b": r.rid[b],
-                        "source_b": sources[r.src[b]],
-                        "locality": r.label[a], "position_a_m": r.pos[a], "position_b_m": r.pos[b],
-                        "d13c_a": r.d13c[a], "d13c_b": r.d13c[b], "score": score[keep],
-                        "reasons": np.asarray(reasons, dtype=object)}, columns=list(COLUMNS))
-    out.attrs.update({"position_tol_m": position_tol_m, "value_tol_permil": value_tol_permil,
-                      "coord_tol_km": coord_tol_km, "weights": dict(WEIGHTS),
-                      "lineage_pull": LINEAGE_PULL, "source": source,
-                      "candidates": int(i.size), "left_out": int(left_out)})
+    out = pd.DataFrame(
+        {
+            "record_a": r.rid[a],
+            "source_a": sources[r.src[a]],
+            "record_b": r.rid[b],
+            "source_b": sources[r.src[b]],
+            "locality": r.label[a],
+            "position_a_m": r.pos[a],
+            "position_b_m": r.pos[b],
+            "d13c_a": r.d13c[a],
+            "d13c_b": r.d13c[b],
+            "score": score[keep],
+            "reasons": np.asarray(reasons, dtype=object),
+        },
+        columns=list(COLUMNS),
+    )
+    out.attrs.update(
+        {
+            "position_tol_m": position_tol_m,
+            "value_tol_permil": value_tol_permil,
+            "coord_tol_km": coord_tol_km,
+            "weights": dict(WEIGHTS),
+            "lineage_pull": LINEAGE_PULL,
+            "source": source,
+            "candidates": int(i.size),
+            "left_out": int(left_out),
+        }
+    )
     return out
 
 
@@ -466,9 +551,17 @@ def _fmt(*arrays: np.ndarray) -> list[np.ndarray]:
     return np.split(text[inv], np.cumsum(sizes)[:-1])
 
 
-def _reasons(r: _Recs, sources: np.ndarray, a: np.ndarray, b: np.ndarray, dist: np.ndarray,
-             dict_ab: np.ndarray, dict_ba: np.ndarray, orig_ab: np.ndarray,
-             orig_ba: np.ndarray) -> np.ndarray:
+def _reasons(
+    r: _Recs,
+    sources: np.ndarray,
+    a: np.ndarray,
+    b: np.ndarray,
+    dist: np.ndarray,
+    dict_ab: np.ndarray,
+    dict_ba: np.ndarray,
+    orig_ab: np.ndarray,
+    orig_ba: np.ndarray,
+) -> np.ndarray:
     """The criteria each pair met and by how much, one line of text per pair."""
 
     def q(x: np.ndarray) -> np.ndarray:
@@ -476,32 +569,57 @@ def _reasons(r: _Recs, sources: np.ndarray, a: np.ndarray, b: np.ndarray, dist: 
 
     name_a, name_b = r.label[a], r.label[b]
     pa, pb, ca, cb, oa, ob = r.pos[a], r.pos[b], r.d13c[a], r.d13c[b], r.d18o[a], r.d18o[b]
-    t = dict(zip(["pa", "pb", "dp", "ca", "cb", "dc", "oa", "ob", "do", "km"],
-                 _fmt(pa, pb, np.abs(pa - pb), ca, cb, np.abs(ca - cb), oa, ob,
-                      np.abs(oa - ob), dist), strict=True))
+    t = dict(
+        zip(
+            ["pa", "pb", "dp", "ca", "cb", "dc", "oa", "ob", "do", "km"],
+            _fmt(pa, pb, np.abs(pa - pb), ca, cb, np.abs(ca - cb), oa, ob, np.abs(oa - ob), dist),
+            strict=True,
+        )
+    )
     same_name = r.label_norm[a] == r.label_norm[b]
     same_id = (r.loc_id[a] != None) & (r.loc_id[a] == r.loc_id[b])  # noqa: E711
     pair = q(name_a) + " and " + q(name_b)
-    loc = np.where(np.isfinite(dist), "localities " + pair + " " + t["km"] + " km apart",
-                   np.where(same_id, "same locality " + q(name_a),
-                            np.where(same_name, "same locality name " + q(name_a) + " / "
-                                     + q(name_b), "localities " + pair + " linked by aliases")))
-    parts = [loc,
-             "positions " + t["pa"] + " m vs " + t["pb"] + " m (Δ " + t["dp"] + " m)",
-             "δ13C " + t["ca"] + " vs " + t["cb"] + " ‰ (Δ " + t["dc"] + ")"]
+    loc = np.where(
+        np.isfinite(dist),
+        "localities " + pair + " " + t["km"] + " km apart",
+        np.where(
+            same_id,
+            "same locality " + q(name_a),
+            np.where(
+                same_name,
+                "same locality name " + q(name_a) + " / " + q(name_b),
+                "localities " + pair + " linked by aliases",
+            ),
+        ),
+    )
+    parts = [
+        loc,
+        "positions " + t["pa"] + " m vs " + t["pb"] + " m (Δ " + t["dp"] + " m)",
+        "δ13C " + t["ca"] + " vs " + t["cb"] + " ‰ (Δ " + t["dc"] + ")",
+    ]
     both, one = np.isfinite(oa) & np.isfinite(ob), np.isfinite(oa) ^ np.isfinite(ob)
-    parts.append(np.where(both, "δ18O " + t["oa"] + " vs " + t["ob"] + " ‰ (Δ " + t["do"] + ")",
-                          np.where(one, "δ18O in one record only", "")))
+    parts.append(
+        np.where(
+            both,
+            "δ18O " + t["oa"] + " vs " + t["ob"] + " ‰ (Δ " + t["do"] + ")",
+            np.where(one, "δ18O in one record only", ""),
+        )
+    )
     sa, sb = r.sample[a], r.sample[b]
     has = (sa != "") & (sb != "")
     same = has & (r.sample_norm[a] == r.sample_norm[b]) & (r.sample_norm[a] != "")
-    parts.append(np.where(same, "same sample id " + q(sa),
-                          np.where(has, "sample ids " + sa + " / " + sb, "")))
+    parts.append(
+        np.where(
+            same, "same sample id " + q(sa), np.where(has, "sample ids " + sa + " / " + sb, "")
+        )
+    )
     src_a, src_b = sources[r.src[a]].astype(object), sources[r.src[b]].astype(object)
-    parts += [np.where(dict_ab, "declared lineage: " + src_b + " re-publishes " + src_a, ""),
-              np.where(dict_ba, "declared lineage: " + src_a + " re-publishes " + src_b, ""),
-              np.where(orig_ab, r.rid[b] + " names " + src_a + " as its original source", ""),
-              np.where(orig_ba, r.rid[a] + " names " + src_b + " as its original source", "")]
+    parts += [
+        np.where(dict_ab, "declared lineage: " + src_b + " re-publishes " + src_a, ""),
+        np.where(dict_ba, "declared lineage: " + src_a + " re-publishes " + src_b, ""),
+        np.where(orig_ab, r.rid[b] + " names " + src_a + " as its original source", ""),
+        np.where(orig_ba, r.rid[a] + " names " + src_b + " as its original source", ""),
+    ]
     out = np.asarray(parts[0], dtype=object)
     for part in parts[1:]:
         part = np.asarray(part, dtype=object)
@@ -525,16 +643,23 @@ def read_decisions(path: str | Path) -> list[Decision]:
     from strata13.compile.read.inputs import read_text
 
     p = Path(path)
-    text = read_text(p, "the decisions file", "Check the path; the file is a CSV with the "
-                     "header record_a,record_b,decision,note.")
-    rows = [(n, row) for n, row in _csv_lines(text)
-            if any(c.strip() for c in row) and not row[0].lstrip().startswith("#")]
-    hint = ("Write one pair a line: record_a,record_b,confirm|reject,note (the note may be "
-            "empty).")
+    text = read_text(
+        p,
+        "the decisions file",
+        "Check the path; the file is a CSV with the header record_a,record_b,decision,note.",
+    )
+    rows = [
+        (n, row)
+        for n, row in _csv_lines(text)
+        if any(c.strip() for c in row) and not row[0].lstrip().startswith("#")
+    ]
+    hint = "Write one pair a line: record_a,record_b,confirm|reject,note (the note may be empty)."
     header = [c.strip().lower() for c in rows[0][1]] if rows else []
     if header not in (list(DECISION_HEADER), list(DECISION_HEADER[:3])):
-        raise ConfigError(f"the decisions file {p} does not start with the header "
-                          f"{','.join(DECISION_HEADER)}.", hint)
+        raise ConfigError(
+            f"the decisions file {p} does not start with the header {','.join(DECISION_HEADER)}.",
+            hint,
+        )
     problems: list[str] = []
     seen: dict[frozenset[str], tuple[int, str]] = {}
     out: list[Decision] = []
@@ -554,14 +679,17 @@ def read_decisions(path: str | Path) -> list[Decision]:
         else:
             key = frozenset((ra, rb))
             if key in seen and seen[key][1] != decision:
-                problems.append(f"line {line}: {decision} contradicts {seen[key][1]} on line "
-                                f"{seen[key][0]} for the same pair")
+                problems.append(
+                    f"line {line}: {decision} contradicts {seen[key][1]} on line "
+                    f"{seen[key][0]} for the same pair"
+                )
             elif key not in seen:
                 seen[key] = (line, decision)
                 out.append(Decision(ra, rb, decision, note))
     if problems:
-        raise ConfigError(f"the decisions file {p} has {len(problems)} bad line(s): "
-                          f"{'; '.join(problems)}.", hint)
+        raise ConfigError(
+            f"the decisions file {p} has {len(problems)} bad line(s): {'; '.join(problems)}.", hint
+        )
     return out
 
 
@@ -574,9 +702,12 @@ def _csv_lines(text: str) -> Iterable[tuple[int, list[str]]]:
         start = reader.line_num + 1
 
 
-def duplicates_to_drop(decisions: Iterable[Decision | tuple[str, str, str, str]], *,
-                       source_of: Mapping[str, str] | None = None,
-                       declared: Mapping[str, Iterable[str]] | None = None) -> set[str]:
+def duplicates_to_drop(
+    decisions: Iterable[Decision | tuple[str, str, str, str]],
+    *,
+    source_of: Mapping[str, str] | None = None,
+    declared: Mapping[str, Iterable[str]] | None = None,
+) -> set[str]:
     """Record ids a view leaves out: one record of each confirmed pair (never deleted).
 
     Rule: keep ``record_a`` and drop ``record_b`` — unless told otherwise: with
@@ -591,8 +722,10 @@ def duplicates_to_drop(decisions: Iterable[Decision | tuple[str, str, str, str]]
     for item in decisions:
         ra, rb, decision = str(item[0]), str(item[1]), str(item[2]).strip().lower()
         if decision not in DECISIONS:
-            raise OptionError(f"the decision {item[2]!r} for {ra} / {rb} is not confirm or "
-                              "reject.", "Read the file with read_decisions, which checks it.")
+            raise OptionError(
+                f"the decision {item[2]!r} for {ra} / {rb} is not confirm or reject.",
+                "Read the file with read_decisions, which checks it.",
+            )
         last[frozenset((ra, rb))] = (ra, rb, decision)
     republishes = {k: {v} if isinstance(v, str) else set(v) for k, v in (declared or {}).items()}
     parent: dict[str, str] = {}

@@ -45,8 +45,9 @@ def overlaps(store: Store, source: str | None = None, **tolerances: float) -> pd
     if len(decided) and len(pairs):
         key = {(a, b): d for a, b, d in decided.itertuples(index=False)}
         key |= {(b, a): d for (a, b), d in list(key.items())}
-        pairs["decision"] = [key.get((a, b), "") for a, b in
-                             zip(pairs["record_a"], pairs["record_b"], strict=True)]
+        pairs["decision"] = [
+            key.get((a, b), "") for a, b in zip(pairs["record_a"], pairs["record_b"], strict=True)
+        ]
     return pairs
 
 
@@ -64,33 +65,59 @@ def confirm(store: Store, path: Path) -> tuple[int | None, int, int]:
         con.execute("BEGIN")
         store.migrate(con)
         ids = {d.record_a for d in decisions} | {d.record_b for d in decisions}
-        found = dict(con.execute(
-            f"SELECT record_id, source_id FROM lake.analyses WHERE record_id IN "
-            f"({', '.join('?' for _ in ids)})", sorted(ids)).fetchall()) if ids else {}
+        found = (
+            dict(
+                con.execute(
+                    f"SELECT record_id, source_id FROM lake.analyses WHERE record_id IN "
+                    f"({', '.join('?' for _ in ids)})",
+                    sorted(ids),
+                ).fetchall()
+            )
+            if ids
+            else {}
+        )
         missing = sorted(ids - set(found))
         if missing:
-            raise DomainError(f"{path.name} names record {missing[0]!r}, which is not in the "
-                              "store; nothing was written.",
-                              "Use the record ids `strata13 overlaps` lists.")
+            raise DomainError(
+                f"{path.name} names record {missing[0]!r}, which is not in the "
+                "store; nothing was written.",
+                "Use the record ids `strata13 overlaps` lists.",
+            )
         declared = {k: set(v) for k, v in _declared(_Lake(con)).items()}
         drop = duplicates_to_drop(decisions, source_of=found, declared=declared)
         now = dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M:%S")
         rows = []
         for d in decisions:
-            con.execute("DELETE FROM lake.duplicates WHERE (record_a = ? AND record_b = ?) OR "
-                        "(record_a = ? AND record_b = ?)",
-                        [d.record_a, d.record_b, d.record_b, d.record_a])
-            dropped = (d.record_a if d.record_a in drop else d.record_b if d.record_b in drop
-                       else None) if d.decision == "confirm" else None
-            rows.append({"record_a": d.record_a, "record_b": d.record_b,
-                         "decision": d.decision, "note": d.note or None,
-                         "drop_record_id": dropped, "decided_utc": now})
+            con.execute(
+                "DELETE FROM lake.duplicates WHERE (record_a = ? AND record_b = ?) OR "
+                "(record_a = ? AND record_b = ?)",
+                [d.record_a, d.record_b, d.record_b, d.record_a],
+            )
+            dropped = (
+                (d.record_a if d.record_a in drop else d.record_b if d.record_b in drop else None)
+                if d.decision == "confirm"
+                else None
+            )
+            rows.append(
+                {
+                    "record_a": d.record_a,
+                    "record_b": d.record_b,
+                    "decision": d.decision,
+                    "note": d.note or None,
+                    "drop_record_id": dropped,
+                    "decided_utc": now,
+                }
+            )
         _insert(con, "duplicates", pa.Table.from_pylist(rows, schema=arrow_schema(DUPLICATES)))
         settings = Settings.from_stored(store.read_settings(con))
         n_conf = sum(d.decision == "confirm" for d in decisions)
-        version = store._record_commit(con, "overlaps", path.name, settings.hash(),
-                                       {"confirmed": n_conf,
-                                        "rejected": len(decisions) - n_conf})
+        version = store._record_commit(
+            con,
+            "overlaps",
+            path.name,
+            settings.hash(),
+            {"confirmed": n_conf, "rejected": len(decisions) - n_conf},
+        )
         con.execute("COMMIT")
     return version, n_conf, len(decisions) - n_conf
 

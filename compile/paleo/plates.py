@@ -60,32 +60,43 @@ def load_polygons(path: Path | str) -> PlatePolygons:
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
-        raise ConfigError(f"{path.name} is not readable GeoJSON ({exc}).",
-                          "Check the file with a GeoJSON validator.") from None
+        raise ConfigError(
+            f"{path.name} is not readable GeoJSON ({exc}).",
+            "Check the file with a GeoJSON validator.",
+        ) from None
     return parse_polygons(doc, path.name, hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
 def _plate_id(props: Any, where: str) -> int:
     value = props.get(PLATE_KEY) if isinstance(props, dict) else None
     if value is None:
-        raise ConfigError(f"{where} has no '{PLATE_KEY}' property.",
-                          f'Give each feature properties: {{"{PLATE_KEY}": 101}}.')
-    if isinstance(value, bool) or not (isinstance(value, int) or
-                                       (isinstance(value, str) and value.strip().isdigit())):
-        raise ConfigError(f"{where}: {PLATE_KEY} {value!r} is not a whole number.",
-                          "Use the integer plate id of the rotation model.")
+        raise ConfigError(
+            f"{where} has no '{PLATE_KEY}' property.",
+            f'Give each feature properties: {{"{PLATE_KEY}": 101}}.',
+        )
+    if isinstance(value, bool) or not (
+        isinstance(value, int) or (isinstance(value, str) and value.strip().isdigit())
+    ):
+        raise ConfigError(
+            f"{where}: {PLATE_KEY} {value!r} is not a whole number.",
+            "Use the integer plate id of the rotation model.",
+        )
     plate = int(value)
     if plate < 1:
-        raise ConfigError(f"{where}: {PLATE_KEY} {plate} is not a plate.",
-                          "Plate ids are ≥ 1 (0 is the model's frame, −1 means unassigned).")
+        raise ConfigError(
+            f"{where}: {PLATE_KEY} {plate} is not a plate.",
+            "Plate ids are ≥ 1 (0 is the model's frame, −1 means unassigned).",
+        )
     return plate
 
 
 def parse_polygons(doc: Any, name: str = "plate polygons", digest: str = "") -> PlatePolygons:
     """Validate a parsed GeoJSON document (see the module docstring)."""
     if not isinstance(doc, dict) or doc.get("type") != "FeatureCollection":
-        raise ConfigError(f"{name} must be a GeoJSON FeatureCollection.",
-                          f"Each feature a polygon with a '{PLATE_KEY}' property.")
+        raise ConfigError(
+            f"{name} must be a GeoJSON FeatureCollection.",
+            f"Each feature a polygon with a '{PLATE_KEY}' property.",
+        )
     features = doc.get("features")
     if not isinstance(features, list) or not features:
         raise ConfigError(f"{name} holds no features.", "Add one polygon per plate.")
@@ -106,8 +117,9 @@ def parse_polygons(doc: Any, name: str = "plate polygons", digest: str = "") -> 
     return PlatePolygons(plate_ids, geometries, tree, digest)
 
 
-def _refuse_overlaps(plate_ids: np.ndarray, geoms: np.ndarray, tree: shapely.STRtree,
-                     name: str) -> None:
+def _refuse_overlaps(
+    plate_ids: np.ndarray, geoms: np.ndarray, tree: shapely.STRtree, name: str
+) -> None:
     left, right = tree.query(geoms, predicate="intersects")
     pairs = (left < right) & (plate_ids[left] != plate_ids[right])
     left, right = left[pairs], right[pairs]
@@ -117,14 +129,20 @@ def _refuse_overlaps(plate_ids: np.ndarray, geoms: np.ndarray, tree: shapely.STR
     bad = np.flatnonzero(area > OVERLAP_TOL_DEG2)
     if len(bad):
         i, j = int(left[bad[0]]), int(right[bad[0]])
-        raise ConfigError(f"{name}: feature {i + 1} (plate {plate_ids[i]}) and feature {j + 1} "
-                          f"(plate {plate_ids[j]}) overlap by {area[bad[0]]:.3g} square degrees.",
-                          "A point must lie on one plate: trim one polygon to the shared edge.")
+        raise ConfigError(
+            f"{name}: feature {i + 1} (plate {plate_ids[i]}) and feature {j + 1} "
+            f"(plate {plate_ids[j]}) overlap by {area[bad[0]]:.3g} square degrees.",
+            "A point must lie on one plate: trim one polygon to the shared edge.",
+        )
 
 
-def assign(lat: np.ndarray, lon: np.ndarray, polygons: PlatePolygons,
-           overrides: Mapping[str, int] | None = None,
-           locality_ids: Sequence[str] | np.ndarray | None = None) -> Assignment:
+def assign(
+    lat: np.ndarray,
+    lon: np.ndarray,
+    polygons: PlatePolygons,
+    overrides: Mapping[str, int] | None = None,
+    locality_ids: Sequence[str] | np.ndarray | None = None,
+) -> Assignment:
     """Plate id per point (UNASSIGNED = −1 where no polygon holds it), overrides applied."""
     lat = np.atleast_1d(np.asarray(lat, dtype=float))
     lon = np.atleast_1d(np.asarray(lon, dtype=float))
@@ -144,8 +162,10 @@ def assign(lat: np.ndarray, lon: np.ndarray, polygons: PlatePolygons,
             raise ValueError("overrides need locality_ids, one per point")
         for loc, pid in overrides.items():
             if isinstance(pid, bool) or not isinstance(pid, int | np.integer) or pid < 1:
-                raise ConfigError(f"the plate override for locality {loc!r} is {pid!r}, "
-                                  "not a plate id.", "Give a whole number ≥ 1.")
+                raise ConfigError(
+                    f"the plate override for locality {loc!r} is {pid!r}, not a plate id.",
+                    "Give a whole number ≥ 1.",
+                )
         ids = np.asarray(locality_ids, dtype=object)
         hit = np.isin(ids, np.array(list(overrides), dtype=object))
         plate[hit] = [overrides[k] for k in ids[hit]]

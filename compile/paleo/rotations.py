@@ -165,11 +165,14 @@ def _number(cell: str, col: str, where: str) -> float:
     try:
         value = float(cell)
     except ValueError:
-        raise ConfigError(f"{where}: {col} {cell!r} is not a number.",
-                          "Use a plain decimal number with a point, e.g. 12.5.") from None
+        raise ConfigError(
+            f"{where}: {col} {cell!r} is not a number.",
+            "Use a plain decimal number with a point, e.g. 12.5.",
+        ) from None
     if not np.isfinite(value):
-        raise ConfigError(f"{where}: {col} {cell!r} is not a finite number.",
-                          "Give a finite number.")
+        raise ConfigError(
+            f"{where}: {col} {cell!r} is not a finite number.", "Give a finite number."
+        )
     return value
 
 
@@ -177,8 +180,10 @@ def _integer(cell: str, col: str, where: str) -> int:
     try:
         return int(cell)
     except ValueError:
-        raise ConfigError(f"{where}: {col} {cell!r} is not a whole number.",
-                          "Plate ids are integers, e.g. 101 (0 is the model's frame).") from None
+        raise ConfigError(
+            f"{where}: {col} {cell!r} is not a whole number.",
+            "Plate ids are integers, e.g. 101 (0 is the model's frame).",
+        ) from None
 
 
 def _check_range(value: float, lo: float, hi: float, col: str, where: str, hint: str) -> None:
@@ -199,48 +204,60 @@ def _header(lines: list[str], name: str) -> tuple[dict[str, str], int]:
         key = key.strip().lower()
         if sep and key and " " not in key:
             if key in meta:
-                raise ConfigError(f"{name} line {i + 1}: '# {key}:' is given twice.",
-                                  "Keep one line per header key.")
+                raise ConfigError(
+                    f"{name} line {i + 1}: '# {key}:' is given twice.",
+                    "Keep one line per header key.",
+                )
             meta[key] = value.strip()
-    raise ConfigError(f"{name} has no column line.",
-                      "After the '#' header, add: " + ",".join(REQUIRED + OPTIONAL))
+    raise ConfigError(
+        f"{name} has no column line.", "After the '#' header, add: " + ",".join(REQUIRED + OPTIONAL)
+    )
 
 
-def parse_model(text: str, name: str = "rotation model", digest: str | None = None
-                ) -> RotationModel:
+def parse_model(
+    text: str, name: str = "rotation model", digest: str | None = None
+) -> RotationModel:
     """Validate the CSV text of a rotation model (see the module docstring)."""
     lines = text.splitlines()
     meta, start = _header(lines, name)
     for key in ("model", "frame"):
         if not meta.get(key):
-            raise ConfigError(f"{name}: the header has no '# {key}:' line.",
-                              "Start the file with '# model: NAME' and "
-                              "'# frame: paleomagnetic|mantle|other'.")
+            raise ConfigError(
+                f"{name}: the header has no '# {key}:' line.",
+                "Start the file with '# model: NAME' and '# frame: paleomagnetic|mantle|other'.",
+            )
     frame = meta["frame"].lower()
     if frame not in FRAMES:
-        raise ConfigError(f"{name}: frame {meta['frame']!r} is not one of {', '.join(FRAMES)}.",
-                          "State the reference frame the rotations to plate 0 are in.")
+        raise ConfigError(
+            f"{name}: frame {meta['frame']!r} is not one of {', '.join(FRAMES)}.",
+            "State the reference frame the rotations to plate 0 are in.",
+        )
     columns = [c.strip() for c in next(csv.reader([lines[start]]))]
     unknown = [c for c in columns if c not in REQUIRED + OPTIONAL]
     missing = [c for c in REQUIRED if c not in columns]
     if unknown or missing or len(set(columns)) != len(columns):
-        raise ConfigError(f"{name} line {start + 1}: the columns are not "
-                          f"{','.join(REQUIRED)}[,{','.join(OPTIONAL)}]"
-                          + (f" (unknown: {', '.join(unknown)})" if unknown else "")
-                          + (f" (missing: {', '.join(missing)})" if missing else "") + ".",
-                          "Use exactly these column names, each once, in any order.")
+        raise ConfigError(
+            f"{name} line {start + 1}: the columns are not "
+            f"{','.join(REQUIRED)}[,{','.join(OPTIONAL)}]"
+            + (f" (unknown: {', '.join(unknown)})" if unknown else "")
+            + (f" (missing: {', '.join(missing)})" if missing else "")
+            + ".",
+            "Use exactly these column names, each once, in any order.",
+        )
 
     rows: dict[int, list[tuple[int, float, float, float, float, int, float]]] = {}
     seen: dict[tuple[int, float], int] = {}
-    body = io.StringIO("\n".join(lines[start + 1:]))
+    body = io.StringIO("\n".join(lines[start + 1 :]))
     for offset, cells in enumerate(csv.reader(body)):
         lineno = start + 2 + offset
         if not cells or not "".join(cells).strip() or cells[0].lstrip().startswith("#"):
             continue
         where = f"{name} line {lineno}"
         if len(cells) > len(columns):
-            raise ConfigError(f"{where} has {len(cells)} cells for {len(columns)} columns.",
-                              "Quote a comment that contains commas.")
+            raise ConfigError(
+                f"{where} has {len(cells)} cells for {len(columns)} columns.",
+                "Quote a comment that contains commas.",
+            )
         row = {c: (cells[k].strip() if k < len(cells) else "") for k, c in enumerate(columns)}
         for c in REQUIRED:
             if not row[c]:
@@ -248,16 +265,26 @@ def parse_model(text: str, name: str = "rotation model", digest: str | None = No
         plate = _integer(row["plate_id"], "plate_id", where)
         rel = _integer(row["relative_to"], "relative_to", where)
         if plate < 1:
-            raise ConfigError(f"{where}: plate_id {plate} is not a plate.",
-                              "Plate ids are ≥ 1; 0 is the model's frame and has no rows.")
+            raise ConfigError(
+                f"{where}: plate_id {plate} is not a plate.",
+                "Plate ids are ≥ 1; 0 is the model's frame and has no rows.",
+            )
         if rel < 0:
-            raise ConfigError(f"{where}: relative_to {rel} is negative.",
-                              "Name the fixed plate's id, or 0 for the model's frame.")
+            raise ConfigError(
+                f"{where}: relative_to {rel} is negative.",
+                "Name the fixed plate's id, or 0 for the model's frame.",
+            )
         age = _number(row["age_ma"], "age_ma", where)
         _check_range(age, 0, np.inf, "age_ma", where, "Ages are Ma before present, ≥ 0.")
         plat = _number(row["pole_lat"], "pole_lat", where)
-        _check_range(plat, -90, 90, "pole_lat", where,
-                     "Pole latitude is −90…90; check for swapped latitude and longitude.")
+        _check_range(
+            plat,
+            -90,
+            90,
+            "pole_lat",
+            where,
+            "Pole latitude is −90…90; check for swapped latitude and longitude.",
+        )
         plon = _number(row["pole_lon"], "pole_lon", where)
         _check_range(plon, -180, 360, "pole_lon", where, "Pole longitude is −180…360 (east).")
         angle = _number(row["angle_deg"], "angle_deg", where)
@@ -265,20 +292,32 @@ def parse_model(text: str, name: str = "rotation model", digest: str | None = No
         sigma = np.nan
         if row.get("pole_sigma_deg"):
             sigma = _number(row["pole_sigma_deg"], "pole_sigma_deg", where)
-            _check_range(sigma, 0, 90, "pole_sigma_deg", where,
-                         "The pole's 1σ cone angle is degrees, 0…90; leave blank if unknown.")
+            _check_range(
+                sigma,
+                0,
+                90,
+                "pole_sigma_deg",
+                where,
+                "The pole's 1σ cone angle is degrees, 0…90; leave blank if unknown.",
+            )
         if (plate, age) in seen:
-            raise ConfigError(f"{where}: plate {plate} at {age:g} Ma repeats line "
-                              f"{seen[(plate, age)]}.", "Keep one row per plate and age.")
+            raise ConfigError(
+                f"{where}: plate {plate} at {age:g} Ma repeats line {seen[(plate, age)]}.",
+                "Keep one row per plate and age.",
+            )
         seen[(plate, age)] = lineno
         if age == 0 and angle % 360 != 0:
-            raise ConfigError(f"{where}: plate {plate} at 0 Ma has angle {angle:g}, not 0.",
-                              "At 0 Ma every plate is where it is today: angle 0.")
+            raise ConfigError(
+                f"{where}: plate {plate} at 0 Ma has angle {angle:g}, not 0.",
+                "At 0 Ma every plate is where it is today: angle 0.",
+            )
         first = rows.get(plate)
         if first and first[0][5] != rel:
-            raise ConfigError(f"{where}: plate {plate} is relative to {rel} here but to "
-                              f"{first[0][5]} on line {first[0][0]}.",
-                              "One fixed plate per plate; give the other stage its own id.")
+            raise ConfigError(
+                f"{where}: plate {plate} is relative to {rel} here but to "
+                f"{first[0][5]} on line {first[0][0]}.",
+                "One fixed plate per plate; give the other stage its own id.",
+            )
         rows.setdefault(plate, []).append((lineno, age, plat, plon, angle, rel, sigma))
     if not rows:
         raise ConfigError(f"{name} has no rotation rows.", "Add at least one plate.")
@@ -287,14 +326,20 @@ def parse_model(text: str, name: str = "rotation model", digest: str | None = No
     for plate, prow in rows.items():
         prow.sort(key=lambda r: r[1])
         if prow[0][1] != 0:
-            raise ConfigError(f"{name} line {prow[0][0]}: plate {plate} has no row at 0 Ma.",
-                              f"Add '{plate},0,90,0,0,{prow[0][5]}' (the present day).")
+            raise ConfigError(
+                f"{name} line {prow[0][0]}: plate {plate} has no row at 0 Ma.",
+                f"Add '{plate},0,90,0,0,{prow[0][5]}' (the present day).",
+            )
         arr = np.array([r[1:5] for r in prow], dtype=float)
         tracks[plate] = PlateTrack(
-            plate=plate, relative_to=prow[0][5], ages=arr[:, 0],
-            poles=unit_vectors(arr[:, 1], arr[:, 2]), angles_rad=np.radians(arr[:, 3]),
+            plate=plate,
+            relative_to=prow[0][5],
+            ages=arr[:, 0],
+            poles=unit_vectors(arr[:, 1], arr[:, 2]),
+            angles_rad=np.radians(arr[:, 3]),
             sigma_rad=np.radians(np.array([r[6] for r in prow], dtype=float)),
-            lines=tuple(r[0] for r in prow))
+            lines=tuple(r[0] for r in prow),
+        )
     _check_circuit(tracks, name)
     body_hash = digest or hashlib.sha256(text.encode("utf-8")).hexdigest()
     notes = {k: v for k, v in meta.items() if k not in ("model", "frame")}
@@ -305,18 +350,21 @@ def _check_circuit(tracks: Mapping[int, PlateTrack], name: str) -> None:
     """Every relative plate exists, and every circuit reaches the frame without a loop."""
     for plate, track in tracks.items():
         if track.relative_to != FRAME_PLATE and track.relative_to not in tracks:
-            raise ConfigError(f"{name} line {track.lines[0]}: plate {plate} is relative to "
-                              f"plate {track.relative_to}, which has no rows.",
-                              f"Add rows for plate {track.relative_to}, or use 0 (the frame).")
+            raise ConfigError(
+                f"{name} line {track.lines[0]}: plate {plate} is relative to "
+                f"plate {track.relative_to}, which has no rows.",
+                f"Add rows for plate {track.relative_to}, or use 0 (the frame).",
+            )
     for plate in sorted(tracks):
         path = [plate]
         current = tracks[plate].relative_to
         while current != FRAME_PLATE:
             if current in path:
-                loop = " → ".join(str(p) for p in path[path.index(current):] + [current])
-                raise ConfigError(f"{name} line {tracks[current].lines[0]}: the plate circuit "
-                                  f"loops ({loop}).",
-                                  "Each plate chain must end at 0, the model's frame.")
+                loop = " → ".join(str(p) for p in path[path.index(current) :] + [current])
+                raise ConfigError(
+                    f"{name} line {tracks[current].lines[0]}: the plate circuit loops ({loop}).",
+                    "Each plate chain must end at 0, the model's frame.",
+                )
             path.append(current)
             current = tracks[current].relative_to
 
@@ -332,8 +380,9 @@ def _interpolate(track: PlateTrack, ages: np.ndarray, table: Rotation) -> Rotati
     return Slerp(track.ages, table)(ages)
 
 
-def _to_frame(model: RotationModel, plate: int, ages: np.ndarray,
-              tables: Mapping[int, Rotation]) -> Rotation:
+def _to_frame(
+    model: RotationModel, plate: int, ages: np.ndarray, tables: Mapping[int, Rotation]
+) -> Rotation:
     """R(plate→0, t) = R(F→0, t) · R(plate→F, t), ages within ``model.limit_ma(plate)``."""
     if plate == FRAME_PLATE:
         return Rotation.identity(len(ages))
@@ -363,8 +412,10 @@ def frame_rotation(model: RotationModel, plate: int, ages: np.ndarray) -> Rotati
 
 def _refuse_out_of_range(ages: np.ndarray, limit: float, plate: int) -> None:
     if np.any(~(ages >= 0)) or np.any(ages > limit):
-        raise ValueError(f"ages must lie in 0…{limit:g} Ma for plate {plate}; "
-                         "use reconstruct() for NaN-and-status handling")
+        raise ValueError(
+            f"ages must lie in 0…{limit:g} Ma for plate {plate}; "
+            "use reconstruct() for NaN-and-status handling"
+        )
 
 
 # ---------------------------------------------------------------------------------------------
@@ -399,12 +450,16 @@ def _group(plate_ids: np.ndarray, ages: np.ndarray, model: RotationModel) -> _Gr
     a_vals, a_code = np.unique(ages[valid], return_inverse=True)
     combined = p_code.astype(np.int64) * len(a_vals) + a_code
     key, inverse = np.unique(combined, return_inverse=True)
-    return _Groups(status, valid, p_vals[key // len(a_vals)].astype(np.int64),
-                   a_vals[key % len(a_vals)], np.asarray(inverse).reshape(-1))
+    return _Groups(
+        status,
+        valid,
+        p_vals[key // len(a_vals)].astype(np.int64),
+        a_vals[key % len(a_vals)],
+        np.asarray(inverse).reshape(-1),
+    )
 
 
-def _key_quats(groups: _Groups, model: RotationModel, tables: Mapping[int, Rotation]
-               ) -> np.ndarray:
+def _key_quats(groups: _Groups, model: RotationModel, tables: Mapping[int, Rotation]) -> np.ndarray:
     """One rotation (as a quaternion) per distinct (plate, age); a loop over plates only."""
     quats = np.empty((len(groups.key_plate), 4))
     for plate in np.unique(groups.key_plate):
@@ -413,17 +468,18 @@ def _key_quats(groups: _Groups, model: RotationModel, tables: Mapping[int, Rotat
     return quats
 
 
-def _as_arrays(lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages: np.ndarray
-               ) -> tuple[np.ndarray, ...]:
-    arrays = tuple(np.atleast_1d(np.asarray(a, dtype=float)) for a in
-                   (lat, lon, plate_ids, ages))
+def _as_arrays(
+    lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages: np.ndarray
+) -> tuple[np.ndarray, ...]:
+    arrays = tuple(np.atleast_1d(np.asarray(a, dtype=float)) for a in (lat, lon, plate_ids, ages))
     if len({len(a) for a in arrays}) != 1:
         raise ValueError("lat, lon, plate_ids and ages must have one length")
     return arrays
 
 
-def reconstruct(lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages: np.ndarray,
-                model: RotationModel) -> Reconstruction:
+def reconstruct(
+    lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages: np.ndarray, model: RotationModel
+) -> Reconstruction:
     """Rotate present-day points on their plates to the model's frame at their ages.
 
     Vectorised: one rotation per distinct (plate, age), applied to all records at once.
@@ -437,13 +493,13 @@ def reconstruct(lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages: n
     if groups.valid.any():
         quats = _key_quats(groups, model, _tables(model))
         moved = Rotation.from_quat(quats[groups.inverse]).apply(
-            unit_vectors(lat[groups.valid], lon[groups.valid]))
+            unit_vectors(lat[groups.valid], lon[groups.valid])
+        )
         plat[groups.valid], plon[groups.valid] = lat_lon(moved)
     return Reconstruction(plat, plon, groups.status)
 
 
-def _displaced_poles(poles: np.ndarray, sigma: np.ndarray, rng: np.random.Generator
-                     ) -> np.ndarray:
+def _displaced_poles(poles: np.ndarray, sigma: np.ndarray, rng: np.random.Generator) -> np.ndarray:
     """Each pole moved by a 2-D normal offset (σ per component, radians) in its tangent plane."""
     z = np.array([0.0, 0.0, 1.0])
     e1 = np.cross(poles, z)
@@ -461,9 +517,15 @@ def _displaced_poles(poles: np.ndarray, sigma: np.ndarray, rng: np.random.Genera
     return poles * np.cos(theta)[:, None] + u * np.sin(theta)[:, None]
 
 
-def paleolat_sigma(lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages: np.ndarray,
-                   model: RotationModel, n_draws: int = N_DRAWS, seed: int = SEED
-                   ) -> np.ndarray:
+def paleolat_sigma(
+    lat: np.ndarray,
+    lon: np.ndarray,
+    plate_ids: np.ndarray,
+    ages: np.ndarray,
+    model: RotationModel,
+    n_draws: int = N_DRAWS,
+    seed: int = SEED,
+) -> np.ndarray:
     """1σ of paleolatitude (degrees) from the poles' cones, by Monte Carlo (module docstring).
 
     NaN where the record is not reconstructed or no row on its circuit gives a pole σ.
@@ -475,21 +537,26 @@ def paleolat_sigma(lat: np.ndarray, lon: np.ndarray, plate_ids: np.ndarray, ages
     out = np.full(len(lat), np.nan)
     if not groups.valid.any():
         return out
-    has_sigma = {p: any(np.isfinite(model.tracks[q].sigma_rad).any() for q in model.circuit(p))
-                 for p in np.unique(groups.key_plate).tolist()}
+    has_sigma = {
+        p: any(np.isfinite(model.tracks[q].sigma_rad).any() for q in model.circuit(p))
+        for p in np.unique(groups.key_plate).tolist()
+    }
     key_ok = np.array([has_sigma[int(p)] for p in groups.key_plate])
     rec_ok = key_ok[groups.inverse]
     if not rec_ok.any():
         return out
     rng = np.random.default_rng(seed)
     vecs = unit_vectors(lat[groups.valid], lon[groups.valid])
-    shift, _ = lat_lon(Rotation.from_quat(
-        _key_quats(groups, model, _tables(model))[groups.inverse]).apply(vecs))
+    shift, _ = lat_lon(
+        Rotation.from_quat(_key_quats(groups, model, _tables(model))[groups.inverse]).apply(vecs)
+    )
     total = np.zeros(len(vecs))  # sums of (draw − undisturbed) keep the variance exact
     total_sq = np.zeros(len(vecs))
     for _ in range(n_draws):
-        tables = {p: t.rotations(_displaced_poles(t.poles, t.sigma_rad, rng))
-                  for p, t in model.tracks.items()}
+        tables = {
+            p: t.rotations(_displaced_poles(t.poles, t.sigma_rad, rng))
+            for p, t in model.tracks.items()
+        }
         quats = _key_quats(groups, model, tables)
         drawn, _ = lat_lon(Rotation.from_quat(quats[groups.inverse]).apply(vecs))
         drawn -= shift

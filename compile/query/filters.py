@@ -31,9 +31,11 @@ def parse_interval(text: str) -> tuple[float, float]:
     """
     m = _RANGE.match(text)
     if not m:
-        raise OptionError(f"--interval {text!r} is not a range in Ma like 185-180.",
-                          "Give two ages in Ma separated by '-', in either order; stage names "
-                          "need the time-scale tables.")
+        raise OptionError(
+            f"--interval {text!r} is not a range in Ma like 185-180.",
+            "Give two ages in Ma separated by '-', in either order; stage names "
+            "need the time-scale tables.",
+        )
     a, b = float(m.group(1)), float(m.group(2))
     return (min(a, b), max(a, b))
 
@@ -67,8 +69,11 @@ class Filters:
                 sql, p = self.region.sql()
             parts.append(sql)
             params += p
-        for column, values in (("lithology", self.lithology), ("component", self.component),
-                               ("source_id", self.source)):
+        for column, values in (
+            ("lithology", self.lithology),
+            ("component", self.component),
+            ("source_id", self.source),
+        ):
             if values:
                 parts.append(f"{column} IN ({', '.join('?' for _ in values)})")
                 params += list(values)
@@ -76,28 +81,35 @@ class Filters:
             parts.append("screen = ?")
             params.append(self.screened)
         if not self.keep_duplicates:  # counted once: the dropped side of confirmed pairs
-            parts.append("record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE "
-                         "decision = 'confirm' AND drop_record_id IS NOT NULL)")
+            parts.append(
+                "record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE "
+                "decision = 'confirm' AND drop_record_id IS NOT NULL)"
+            )
         return (" AND ".join(parts) if parts else "TRUE"), params
 
     def describe(self) -> dict[str, Any]:
         """The filter as plain data, for manifests and messages."""
-        return {"interval_ma": list(self.interval) if self.interval else None,
-                "interval": self.interval_info,
-                "region": self.region.describe() if self.region else None,
-                "frame": self.frame, "lithology": self.lithology, "component": self.component,
-                "source": self.source, "screened": self.screened,
-                "keep_duplicates": self.keep_duplicates,
-                "paleolat": list(self.paleolat) if self.paleolat else None}
+        return {
+            "interval_ma": list(self.interval) if self.interval else None,
+            "interval": self.interval_info,
+            "region": self.region.describe() if self.region else None,
+            "frame": self.frame,
+            "lithology": self.lithology,
+            "component": self.component,
+            "source": self.source,
+            "screened": self.screened,
+            "keep_duplicates": self.keep_duplicates,
+            "paleolat": list(self.paleolat) if self.paleolat else None,
+        }
 
 
 def parse_paleolat(text: str) -> tuple[float, float]:
     """``'-30:30'`` -> (-30.0, 30.0) degrees (either order; both within −90…90)."""
-    m = re.match(r"^\s*([+-]?\d+(?:\.\d+)?)\s*:\s*([+-]?\d+(?:\.\d+)?)\s*$",
-                 text.replace("−", "-"))
+    m = re.match(r"^\s*([+-]?\d+(?:\.\d+)?)\s*:\s*([+-]?\d+(?:\.\d+)?)\s*$", text.replace("−", "-"))
     if not m:
-        raise OptionError(f"--paleolat {text!r} is not MIN:MAX in degrees.",
-                          "Example: --paleolat -30:30")
+        raise OptionError(
+            f"--paleolat {text!r} is not MIN:MAX in degrees.", "Example: --paleolat -30:30"
+        )
     a, b = sorted((float(m.group(1)), float(m.group(2))))
     if a < -90 or b > 90:
         raise OptionError(f"--paleolat {text!r} leaves −90…90.", "Latitudes lie in −90…90.")
@@ -114,9 +126,11 @@ def check_vocab(values: list[str], vocab: str, option: str) -> list[str]:
         term = voc.resolve(v)
         if term is None:
             sug = voc.suggest(v)
-            raise OptionError(f"{option} {v!r} is not a known {vocab}."
-                              + (f" Did you mean {sug!r}?" if sug else ""),
-                              f"Known: {', '.join(voc.terms)}.")
+            raise OptionError(
+                f"{option} {v!r} is not a known {vocab}."
+                + (f" Did you mean {sug!r}?" if sug else ""),
+                f"Known: {', '.join(voc.terms)}.",
+            )
         out.append(term)
     return out
 
@@ -124,19 +138,23 @@ def check_vocab(values: list[str], vocab: str, option: str) -> list[str]:
 READING_ORDER = "source_id, section_id, position_m, top_m, sample_id, replicate, record_id"
 
 
-def run(con: Any, filters: Filters, columns: list[str] | None = None,
-        order: str = READING_ORDER) -> pa.Table:
+def run(
+    con: Any, filters: Filters, columns: list[str] | None = None, order: str = READING_ORDER
+) -> pa.Table:
     """Records matching ``filters`` as an Arrow table: by default in reading order (source,
     section, position); exports ask for ``order="record_id"``, which never changes."""
     import pyarrow as pa
 
     where, params = filters.where()
     cols = ", ".join(f'"{c}"' for c in columns) if columns else "*"
-    table = con.execute(f"SELECT {cols} FROM records WHERE {where} ORDER BY {order}",
-                        params).to_arrow_table()
+    table = con.execute(
+        f"SELECT {cols} FROM records WHERE {where} ORDER BY {order}", params
+    ).to_arrow_table()
     if filters.region is not None and table.num_rows:
         lon_c, lat_c = ("paleolon", "paleolat") if filters.frame == "paleo" else ("lon", "lat")
-        keep = filters.region.contains(table.column(lon_c).to_numpy(zero_copy_only=False),
-                                       table.column(lat_c).to_numpy(zero_copy_only=False))
+        keep = filters.region.contains(
+            table.column(lon_c).to_numpy(zero_copy_only=False),
+            table.column(lat_c).to_numpy(zero_copy_only=False),
+        )
         table = table.filter(pa.array(keep))
     return table

@@ -36,8 +36,10 @@ class Region:
         """Bounding-box predicate with bound parameters (a prefilter; exact test after)."""
         parts, params = [], []
         for w, s, e, n in self.boxes:
-            parts.append(f"({lat} BETWEEN ? AND ? AND ({lon} BETWEEN ? AND ? "
-                         f"OR {lon} + 360 BETWEEN ? AND ? OR {lon} - 360 BETWEEN ? AND ?))")
+            parts.append(
+                f"({lat} BETWEEN ? AND ? AND ({lon} BETWEEN ? AND ? "
+                f"OR {lon} + 360 BETWEEN ? AND ? OR {lon} - 360 BETWEEN ? AND ?))"
+            )
             params += [s, n, w, e, w, e, w, e]
         return "(" + " OR ".join(parts) + ")", params
 
@@ -90,12 +92,15 @@ def parse_bbox(text: str) -> Region:
     try:
         w, s, e, n = (float(x) for x in body.split(","))
     except ValueError:
-        raise OptionError(f"--region {text!r} is not bbox:W,S,E,N with four numbers.",
-                          "Example: --region bbox:-10,30,25,50") from None
+        raise OptionError(
+            f"--region {text!r} is not bbox:W,S,E,N with four numbers.",
+            "Example: --region bbox:-10,30,25,50",
+        ) from None
     if not (-90 <= s <= n <= 90) or not (-180 <= w <= 180 and -180 <= e <= 180):
-        raise OptionError(f"--region {text!r} is out of range or has south above north.",
-                          "Longitudes −180…180, latitudes −90…90, S ≤ N; W > E crosses the "
-                          "antimeridian.")
+        raise OptionError(
+            f"--region {text!r} is out of range or has south above north.",
+            "Longitudes −180…180, latitudes −90…90, S ≤ N; W > E crosses the antimeridian.",
+        )
     geo = _box_geojson(w, s, e, n)
     return Region(text, geo, _boxes(geo))
 
@@ -115,21 +120,29 @@ def polygon_shape(geo: Any, where: str, unwrap: bool = False) -> Any:
     import shapely
 
     if not isinstance(geo, dict) or geo.get("type") not in ("Polygon", "MultiPolygon"):
-        raise ConfigError(f"{where}: only Polygon and MultiPolygon geometries are accepted.",
-                          "Draw it as a polygon.")
+        raise ConfigError(
+            f"{where}: only Polygon and MultiPolygon geometries are accepted.",
+            "Draw it as a polygon.",
+        )
     try:
         shp = shapely.geometry.shape(_unwrap(geo) if unwrap else geo)
     except Exception as exc:  # shapely raises several types for bad coordinates
-        raise ConfigError(f"{where}: the polygon cannot be read ({exc}).",
-                          "Check the coordinate nesting: [[[lon, lat], …]].") from None
+        raise ConfigError(
+            f"{where}: the polygon cannot be read ({exc}).",
+            "Check the coordinate nesting: [[[lon, lat], …]].",
+        ) from None
     lo_x, lo_y, hi_x, hi_y = shp.bounds
     if shp.is_empty or lo_y < -90 or hi_y > 90 or lo_x < -360 or hi_x > 360:
-        raise ConfigError(f"{where}: the polygon is empty or has coordinates out of range "
-                          f"(lon {lo_x:g}…{hi_x:g}, lat {lo_y:g}…{hi_y:g}).",
-                          "GeoJSON is [longitude, latitude]; check for swapped pairs.")
+        raise ConfigError(
+            f"{where}: the polygon is empty or has coordinates out of range "
+            f"(lon {lo_x:g}…{hi_x:g}, lat {lo_y:g}…{hi_y:g}).",
+            "GeoJSON is [longitude, latitude]; check for swapped pairs.",
+        )
     if not shp.is_valid:
-        raise ConfigError(f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
-                          "Fix self-intersections; close each ring.")
+        raise ConfigError(
+            f"{where}: the polygon is invalid ({shapely.is_valid_reason(shp)}).",
+            "Fix self-intersections; close each ring.",
+        )
     return shp
 
 
@@ -160,17 +173,22 @@ def load_regions_file(path: Path) -> list[tuple[str, str]]:
     try:
         doc = json.loads(path.read_text(encoding="utf-8"))
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).",
-                          "Check the file with a GeoJSON validator.") from None
+        raise ConfigError(
+            f"{path.name} is not valid GeoJSON ({exc}).", "Check the file with a GeoJSON validator."
+        ) from None
     if not isinstance(doc, dict) or doc.get("type") != "FeatureCollection":
-        raise ConfigError(f"{path.name} must be a GeoJSON FeatureCollection.",
-                          "Each feature a polygon with a 'name' property.")
+        raise ConfigError(
+            f"{path.name} must be a GeoJSON FeatureCollection.",
+            "Each feature a polygon with a 'name' property.",
+        )
     out = []
     for k, feat in enumerate(doc.get("features", [])):
         name = (feat.get("properties") or {}).get("name")
         if not isinstance(name, str) or not name.strip():
-            raise ConfigError(f"{path.name}: feature {k + 1} has no 'name' property.",
-                              "Give each feature properties: {\"name\": \"…\"}.")
+            raise ConfigError(
+                f"{path.name}: feature {k + 1} has no 'name' property.",
+                'Give each feature properties: {"name": "…"}.',
+            )
         region = from_geojson(feat, name, f"{path.name} feature {name!r}")
         out.append((name, json.dumps(region.geojson, sort_keys=True)))
     names = [n for n, _ in out]
@@ -183,8 +201,9 @@ def resolve_region(spec: str, named: dict[str, str]) -> Region:
     """``bbox:W,S,E,N``, a GeoJSON file path, or a name from the store's regions (names
     compare without regard to case)."""
     if not spec.strip():
-        raise OptionError("--region is empty.", "Give a region name, a GeoJSON file or "
-                          "bbox:W,S,E,N.")
+        raise OptionError(
+            "--region is empty.", "Give a region name, a GeoJSON file or bbox:W,S,E,N."
+        )
     if spec.startswith("bbox:"):
         return parse_bbox(spec)
     by_case = {k.casefold(): k for k in named}
@@ -194,17 +213,23 @@ def resolve_region(spec: str, named: dict[str, str]) -> Region:
     path = Path(spec)
     if path.suffix.lower() in (".json", ".geojson") or path.exists():
         if not path.is_file():
-            raise ConfigError(f"region file {spec} " + ("is a folder." if path.is_dir() else
-                                                        "does not exist."), "Check --region.")
+            raise ConfigError(
+                f"region file {spec} " + ("is a folder." if path.is_dir() else "does not exist."),
+                "Check --region.",
+            )
         try:
             doc = json.loads(path.read_text(encoding="utf-8"))
         except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-            raise ConfigError(f"{path.name} is not valid GeoJSON ({exc}).",
-                              "Check the file with a GeoJSON validator.") from None
+            raise ConfigError(
+                f"{path.name} is not valid GeoJSON ({exc}).",
+                "Check the file with a GeoJSON validator.",
+            ) from None
         return from_geojson(doc, path.name, path.name)
     import difflib
 
     hit = difflib.get_close_matches(spec, list(named), n=1)
-    raise OptionError(f"--region {spec!r} is not a bbox, a GeoJSON file or a region of this store."
-                      + (f" Did you mean {hit[0]!r}?" if hit else ""),
-                      "Regions of this store: " + (", ".join(sorted(named)) or "none") + ".")
+    raise OptionError(
+        f"--region {spec!r} is not a bbox, a GeoJSON file or a region of this store."
+        + (f" Did you mean {hit[0]!r}?" if hit else ""),
+        "Regions of this store: " + (", ".join(sorted(named)) or "none") + ".",
+    )

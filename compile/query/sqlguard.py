@@ -19,9 +19,25 @@ from strata13.compile import interrupts
 
 from strata13.errors import OptionError, QueryRefused
 
-VIEWS = ("records", "sources", "localities", "sections", "samples", "quarantine", "regions",
-         "chains", "settings", "commits", "runs", "age_ties", "age_draws", "screen_results",
-         "run_qc", "corrections", "duplicates")
+VIEWS = (
+    "records",
+    "sources",
+    "localities",
+    "sections",
+    "samples",
+    "quarantine",
+    "regions",
+    "chains",
+    "settings",
+    "commits",
+    "runs",
+    "age_ties",
+    "age_draws",
+    "screen_results",
+    "run_qc",
+    "corrections",
+    "duplicates",
+)
 SAFE_TABLE_FUNCTIONS = {"range", "generate_series", "unnest"}
 DEFAULT_TIMEOUT_S = 30.0
 DEFAULT_ROW_CAP = 100_000
@@ -47,8 +63,15 @@ def _walk(node: Any, ctes: set[str], problems: list[str]) -> None:
             name = str(node.get("table_name", "")).lower()
             qualified = node.get("catalog_name") or node.get("schema_name")
             if qualified or (name not in VIEWS and name not in ctes):
-                full = ".".join(x for x in (node.get("catalog_name"), node.get("schema_name"),
-                                            node.get("table_name")) if x)
+                full = ".".join(
+                    x
+                    for x in (
+                        node.get("catalog_name"),
+                        node.get("schema_name"),
+                        node.get("table_name"),
+                    )
+                    if x
+                )
                 problems.append(f"table {full!r} is not one of the views")
         elif t == "TABLE_FUNCTION":
             fn = node.get("function", {}).get("function_name", "")
@@ -65,33 +88,41 @@ def check(con: Any, sql: str) -> str:
     """The statement to run (EXPLAIN kept), or QueryRefused with the reason."""
     text = sql.strip().rstrip(";").strip()
     if not text:
-        raise QueryRefused("the SQL statement is empty.", "Example: strata13 sql \"SELECT "
-                           "count(*) FROM records\"")
+        raise QueryRefused(
+            "the SQL statement is empty.", 'Example: strata13 sql "SELECT count(*) FROM records"'
+        )
     import duckdb
 
     try:
         statements = con.extract_statements(text)
     except duckdb.Error as exc:
-        raise QueryRefused(f"the statement does not parse: {str(exc).splitlines()[0]}",
-                           "Check the SQL syntax.") from None
+        raise QueryRefused(
+            f"the statement does not parse: {str(exc).splitlines()[0]}", "Check the SQL syntax."
+        ) from None
     if len(statements) > 1:
         raise QueryRefused("only one statement at a time is allowed.", "Remove the extra ';'.")
     kind = str(statements[0].type).rsplit(".", 1)[-1]
     if kind not in ("SELECT", "EXPLAIN"):
-        raise QueryRefused(f"only SELECT (or EXPLAIN SELECT) statements are allowed, and this "
-                           f"one is of kind {kind}.", f"Query the views: {', '.join(VIEWS)}.")
+        raise QueryRefused(
+            f"only SELECT (or EXPLAIN SELECT) statements are allowed, and this "
+            f"one is of kind {kind}.",
+            f"Query the views: {', '.join(VIEWS)}.",
+        )
     explain = re.match(r"^\s*explain\s+(analyze\s+)?", text, re.IGNORECASE)
-    body = text[explain.end():] if explain else text
+    body = text[explain.end() :] if explain else text
     tree = json.loads(con.execute("SELECT json_serialize_sql(?)", [body]).fetchone()[0])
     if tree.get("error"):
-        raise QueryRefused("only SELECT (or EXPLAIN SELECT) statements over the views are "
-                           "allowed, and this statement is not one.",
-                           f"Query the views: {', '.join(VIEWS)}.")
+        raise QueryRefused(
+            "only SELECT (or EXPLAIN SELECT) statements over the views are "
+            "allowed, and this statement is not one.",
+            f"Query the views: {', '.join(VIEWS)}.",
+        )
     problems: list[str] = []
     _walk(tree.get("statements", []), set(), problems)
     if problems:
-        raise QueryRefused(f"refused: {problems[0]}.",
-                           f"`sql` reads only the views {', '.join(VIEWS)}.")
+        raise QueryRefused(
+            f"refused: {problems[0]}.", f"`sql` reads only the views {', '.join(VIEWS)}."
+        )
     return text
 
 
@@ -104,16 +135,23 @@ def lock_down(con: Any, data_dir: str | None = None) -> None:
     con.execute("SET lock_configuration = true")
 
 
-def run_sql(con: Any, sql: str, timeout_s: float = DEFAULT_TIMEOUT_S,
-            row_cap: int = DEFAULT_ROW_CAP, data_dir: str | None = None) -> SqlResult:
+def run_sql(
+    con: Any,
+    sql: str,
+    timeout_s: float = DEFAULT_TIMEOUT_S,
+    row_cap: int = DEFAULT_ROW_CAP,
+    data_dir: str | None = None,
+) -> SqlResult:
     import duckdb
 
     if not 0 < timeout_s <= MAX_TIMEOUT_S:
-        raise OptionError(f"--timeout {timeout_s:g} is outside 0 … {MAX_TIMEOUT_S:g} s.",
-                          "Example: --timeout 60")
+        raise OptionError(
+            f"--timeout {timeout_s:g} is outside 0 … {MAX_TIMEOUT_S:g} s.", "Example: --timeout 60"
+        )
     if not 1 <= row_cap <= MAX_ROW_CAP:
-        raise OptionError(f"--max-rows {row_cap} is outside 1 … {MAX_ROW_CAP}.",
-                          "Example: --max-rows 1000")
+        raise OptionError(
+            f"--max-rows {row_cap} is outside 1 … {MAX_ROW_CAP}.", "Example: --max-rows 1000"
+        )
     statement = check(con, sql)
     lock_down(con, data_dir)
     fired = threading.Event()
@@ -140,11 +178,15 @@ def run_sql(con: Any, sql: str, timeout_s: float = DEFAULT_TIMEOUT_S,
     except duckdb.InterruptException:
         if cancelled.is_set() or not fired.is_set():  # Ctrl-C, not our time limit
             raise KeyboardInterrupt from None
-        raise QueryRefused(f"the query ran longer than {timeout_s:g} s and was stopped.",
-                           "Add a WHERE clause or a LIMIT, or raise --timeout.") from None
+        raise QueryRefused(
+            f"the query ran longer than {timeout_s:g} s and was stopped.",
+            "Add a WHERE clause or a LIMIT, or raise --timeout.",
+        ) from None
     except duckdb.Error as exc:
-        raise QueryRefused(f"the query failed: {str(exc).splitlines()[0]}",
-                           f"Views: {', '.join(VIEWS)}; see DEVELOPERS.md for columns.") from None
+        raise QueryRefused(
+            f"the query failed: {str(exc).splitlines()[0]}",
+            f"Views: {', '.join(VIEWS)}; see DEVELOPERS.md for columns.",
+        ) from None
     finally:
         timer.cancel()
         _swap_sigint(previous)

@@ -27,8 +27,29 @@ if TYPE_CHECKING:
     import numpy as np
     import pyarrow as pa
 
-MISSING_TOKENS = ["n.d.", "n.d", "nd", "n/a", "na", "n.a.", "-", "—", "–", "−", "?", "nm",
-                  "n.m.", "not determined", "not measured", "nan", "..", "…", "x", "null", "none"]
+MISSING_TOKENS = [
+    "n.d.",
+    "n.d",
+    "nd",
+    "n/a",
+    "na",
+    "n.a.",
+    "-",
+    "—",
+    "–",
+    "−",
+    "?",
+    "nm",
+    "n.m.",
+    "not determined",
+    "not measured",
+    "nan",
+    "..",
+    "…",
+    "x",
+    "null",
+    "none",
+]
 BDL_PATTERN = r"^(bdl|b\.d\.l\.?|bd|b\.d\.|<\s*dl|<\s*lod|<\s*d\.l\.|below detection( limit)?|lod)$"
 MINUS_CHARS = "−–‒‐﹣－"  # U+2212 U+2013 U+2012 U+2010 U+FE63 U+FF0D
 NUMBER_PATTERN = r"^[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$"
@@ -62,19 +83,31 @@ def _mask(arr: pa.Array) -> np.ndarray:
     return pc.fill_null(arr, False).to_numpy(zero_copy_only=False)
 
 
-def _cell_lines(ctx: CellContext, idx: np.ndarray, texts: list[str | None], severity: str,
-                rule: str, hint: str) -> list[Issue]:
-    out = [Issue(severity, ctx.sheet, ctx.cell(int(i)), ctx.header, t or "", rule, hint)
-           for i, t in zip(idx[:MAX_CELL_LINES], texts[:MAX_CELL_LINES], strict=False)]
+def _cell_lines(
+    ctx: CellContext, idx: np.ndarray, texts: list[str | None], severity: str, rule: str, hint: str
+) -> list[Issue]:
+    out = [
+        Issue(severity, ctx.sheet, ctx.cell(int(i)), ctx.header, t or "", rule, hint)
+        for i, t in zip(idx[:MAX_CELL_LINES], texts[:MAX_CELL_LINES], strict=False)
+    ]
     if len(idx) > MAX_CELL_LINES:
-        out.append(Issue(severity, ctx.sheet, ctx.letter, ctx.header, "",
-                         rule, f"{len(idx) - MAX_CELL_LINES} more cells in this column "
-                         f"with the same problem"))
+        out.append(
+            Issue(
+                severity,
+                ctx.sheet,
+                ctx.letter,
+                ctx.header,
+                "",
+                rule,
+                f"{len(idx) - MAX_CELL_LINES} more cells in this column with the same problem",
+            )
+        )
     return out
 
 
-def _summary(ctx: CellContext, mask: np.ndarray, original: pa.Array, rule: str,
-             hint: str) -> list[Issue]:
+def _summary(
+    ctx: CellContext, mask: np.ndarray, original: pa.Array, rule: str, hint: str
+) -> list[Issue]:
     import numpy as np
 
     idx = np.nonzero(mask)[0]
@@ -82,12 +115,22 @@ def _summary(ctx: CellContext, mask: np.ndarray, original: pa.Array, rule: str,
         return []
     first = int(idx[0])
     example = original[first].as_py()
-    return [Issue("info", ctx.sheet, ctx.cell(first), ctx.header, str(example), rule,
-                  f"{hint} ({len(idx)} cell{'s' if len(idx) != 1 else ''} in this column)")]
+    return [
+        Issue(
+            "info",
+            ctx.sheet,
+            ctx.cell(first),
+            ctx.header,
+            str(example),
+            rule,
+            f"{hint} ({len(idx)} cell{'s' if len(idx) != 1 else ''} in this column)",
+        )
+    ]
 
 
-def parse_numbers(col: pa.Array | pa.ChunkedArray, ctx: CellContext,
-                  decimal: str = "auto") -> Parsed:
+def parse_numbers(
+    col: pa.Array | pa.ChunkedArray, ctx: CellContext, decimal: str = "auto"
+) -> Parsed:
     """Parse a column of cell texts into float64 values with qualifiers and report lines.
 
     Fast path: cells that are already plain numbers are cast in one pass; only the others
@@ -116,8 +159,12 @@ def parse_numbers(col: pa.Array | pa.ChunkedArray, ctx: CellContext,
     qual[idx] = slow.qualifier.to_numpy(zero_copy_only=False)
     bad = np.zeros(n, dtype=bool)
     bad[idx] = slow.bad
-    return Parsed(pa.array(merged, type=pa.float64(), from_pandas=True),
-                  pa.array(qual, type=pa.string()), bad, slow.issues)
+    return Parsed(
+        pa.array(merged, type=pa.float64(), from_pandas=True),
+        pa.array(qual, type=pa.string()),
+        bad,
+        slow.issues,
+    )
 
 
 def _parse_slow(col: pa.Array, ctx: CellContext, decimal: str) -> Parsed:
@@ -135,23 +182,31 @@ def _parse_slow(col: pa.Array, ctx: CellContext, decimal: str) -> Parsed:
     missing = _mask(pc.is_in(lower, value_set=pa.array(MISSING_TOKENS))) & present
     bdl = _mask(pc.match_substring_regex(lower, BDL_PATTERN)) & present & ~missing
     issues += _summary(ctx, missing, original, "missing token", "read as no value")
-    issues += _summary(ctx, bdl, original, "censored value",
-                       "below detection limit: value empty, qualifier 'bdl' kept")
+    issues += _summary(
+        ctx,
+        bdl,
+        original,
+        "censored value",
+        "below detection limit: value empty, qualifier 'bdl' kept",
+    )
     work = pc.if_else(pa.array(present & ~missing & ~bdl), s, pa.scalar(None, pa.string()))
 
     minus = _mask(pc.match_substring_regex(work, f"[{MINUS_CHARS}]"))
     for ch in MINUS_CHARS:
         work = pc.replace_substring(work, ch, "-")
-    issues += _summary(ctx, minus, original, "minus sign",
-                       "a dash or Unicode minus read as a minus sign")
+    issues += _summary(
+        ctx, minus, original, "minus sign", "a dash or Unicode minus read as a minus sign"
+    )
 
     censored_lt = _mask(pc.match_substring_regex(work, r"^[<≤]\s*"))
     censored_gt = _mask(pc.match_substring_regex(work, r"^[>≥]\s*"))
     work = pc.replace_substring_regex(work, r"^[<>≤≥]\s*", "")
-    issues += _summary(ctx, censored_lt, original, "censored value",
-                       "'<x' kept as value x with qualifier '<'")
-    issues += _summary(ctx, censored_gt, original, "censored value",
-                       "'>x' kept as value x with qualifier '>'")
+    issues += _summary(
+        ctx, censored_lt, original, "censored value", "'<x' kept as value x with qualifier '<'"
+    )
+    issues += _summary(
+        ctx, censored_gt, original, "censored value", "'>x' kept as value x with qualifier '>'"
+    )
 
     unit = _mask(pc.match_substring_regex(work, r"\s*(‰|%|permil|ppm)$"))
     work = pc.replace_substring_regex(work, r"\s*(‰|%|permil|ppm)$", "")
@@ -161,8 +216,13 @@ def _parse_slow(col: pa.Array, ctx: CellContext, decimal: str) -> Parsed:
     spaced = _mask(pc.match_substring_regex(work, "\\d[ \u00a0\u2009\u202f']\\d{3}"))
     for _ in range(3):
         work = pc.replace_substring_regex(work, "(\\d)[ \u00a0\u2009\u202f'](\\d{3})", r"\1\2")
-    issues += _summary(ctx, spaced, original, "thousands separator",
-                       "space or apostrophe between digit groups removed")
+    issues += _summary(
+        ctx,
+        spaced,
+        original,
+        "thousands separator",
+        "space or apostrophe between digit groups removed",
+    )
 
     has_comma = _mask(pc.match_substring(work, ","))
     comma_errors = np.zeros(n, dtype=bool)
@@ -176,17 +236,26 @@ def _parse_slow(col: pa.Array, ctx: CellContext, decimal: str) -> Parsed:
     bad = nonempty & ~valid
     if bad.any():
         idx = np.nonzero(bad & date)[0]
-        issues += _cell_lines(ctx, idx, [original[int(i)].as_py() for i in idx[:MAX_CELL_LINES]],
-                              "error", "date in numeric column",
-                              "the spreadsheet turned a number into a date; type the number "
-                              "again with the cell formatted as text or number")
+        issues += _cell_lines(
+            ctx,
+            idx,
+            [original[int(i)].as_py() for i in idx[:MAX_CELL_LINES]],
+            "error",
+            "date in numeric column",
+            "the spreadsheet turned a number into a date; type the number "
+            "again with the cell formatted as text or number",
+        )
         idx = np.nonzero(bad & ~date)[0]
-        issues += _cell_lines(ctx, idx, [original[int(i)].as_py() for i in idx[:MAX_CELL_LINES]],
-                              "error", "not a number",
-                              "write a number, leave the cell empty, or use n.d. / bdl / <x")
+        issues += _cell_lines(
+            ctx,
+            idx,
+            [original[int(i)].as_py() for i in idx[:MAX_CELL_LINES]],
+            "error",
+            "not a number",
+            "write a number, leave the cell empty, or use n.d. / bdl / <x",
+        )
     bad = bad | comma_errors
-    values = pc.cast(pc.if_else(pa.array(valid), work, pa.scalar(None, pa.string())),
-                     pa.float64())
+    values = pc.cast(pc.if_else(pa.array(valid), work, pa.scalar(None, pa.string())), pa.float64())
     qual = np.full(n, None, dtype=object)
     qual[bdl] = "bdl"
     qual[censored_lt & valid] = "<"
@@ -194,8 +263,9 @@ def _parse_slow(col: pa.Array, ctx: CellContext, decimal: str) -> Parsed:
     return Parsed(values, pa.array(qual, type=pa.string()), bad, issues)
 
 
-def _commas(work: pa.Array, has_comma: np.ndarray, ctx: CellContext, original: pa.Array,
-            decimal: str) -> tuple[pa.Array, list[Issue], np.ndarray]:
+def _commas(
+    work: pa.Array, has_comma: np.ndarray, ctx: CellContext, original: pa.Array, decimal: str
+) -> tuple[pa.Array, list[Issue], np.ndarray]:
     """Resolve commas: thousands separators, decimal commas and the ambiguous ``1,234``."""
     import numpy as np
     import pyarrow as pa
@@ -222,30 +292,53 @@ def _commas(work: pa.Array, has_comma: np.ndarray, ctx: CellContext, original: p
     thousands = us | as_thousands
     if thousands.any():
         out = pc.if_else(pa.array(thousands), pc.replace_substring(out, ",", ""), out)
-        issues += _summary(ctx, thousands & ~ambiguous, original, "thousands separator",
-                           "comma between digit groups removed")
+        issues += _summary(
+            ctx,
+            thousands & ~ambiguous,
+            original,
+            "thousands separator",
+            "comma between digit groups removed",
+        )
     if eu.any():
         fixed = pc.replace_substring(pc.replace_substring(out, ".", ""), ",", ".")
         out = pc.if_else(pa.array(eu), fixed, out)
-        issues += _summary(ctx, eu, original, "decimal comma",
-                           "'1.234,5' read as 1234.5 (dot groups, comma decimal)")
+        issues += _summary(
+            ctx,
+            eu,
+            original,
+            "decimal comma",
+            "'1.234,5' read as 1234.5 (dot groups, comma decimal)",
+        )
     decided = as_decimal
     errors = np.zeros_like(us)
     if decided.any():
         out = pc.if_else(pa.array(decided), pc.replace_substring(out, ",", "."), out)
-        issues += _summary(ctx, decided & ~ambiguous, original, "decimal comma",
-                           "comma read as the decimal mark")
+        issues += _summary(
+            ctx, decided & ~ambiguous, original, "decimal comma", "comma read as the decimal mark"
+        )
     if decimal == "auto" and ambiguous.any():
         idx = np.nonzero(ambiguous)[0]
         texts = [original[int(i)].as_py() for i in idx[:MAX_CELL_LINES]]
         if as_decimal[ambiguous].all():
-            issues += _cell_lines(ctx, idx, texts, "warning", "ambiguous comma",
-                                  "read as a decimal comma like the rest of this column; set "
-                                  "decimal = \".\" in [table] if it was a thousands separator")
+            issues += _cell_lines(
+                ctx,
+                idx,
+                texts,
+                "warning",
+                "ambiguous comma",
+                "read as a decimal comma like the rest of this column; set "
+                'decimal = "." in [table] if it was a thousands separator',
+            )
         else:
-            issues += _cell_lines(ctx, idx, texts, "error", "ambiguous comma",
-                                  "'1,234' could be 1234 or 1.234; set decimal = \",\" or "
-                                  "decimal = \".\" in the mapping's [table]")
+            issues += _cell_lines(
+                ctx,
+                idx,
+                texts,
+                "error",
+                "ambiguous comma",
+                "'1,234' could be 1234 or 1.234; set decimal = \",\" or "
+                'decimal = "." in the mapping\'s [table]',
+            )
             out = pc.if_else(pa.array(ambiguous), pa.scalar(None, pa.string()), out)
             errors = ambiguous
     return out, issues, errors
@@ -257,7 +350,8 @@ _DMS = re.compile(
     r"^\s*(?P<h1>[NSEW])?\s*(?P<deg>[-+]?\d+(?:[.,]\d+)?)\s*(?:°|º|d|deg|\s|(?=[NSEW]\s*$))\s*"
     r"(?:(?P<min>\d+(?:[.,]\d+)?)\s*(?:'|′|’|m|min|\s)\s*)?"
     r"(?:(?P<sec>\d+(?:[.,]\d+)?)\s*(?:\"|″|''|s|sec)?\s*)?(?P<h2>[NSEW])?\s*$",
-    re.IGNORECASE)
+    re.IGNORECASE,
+)
 
 
 def parse_coordinate(text: str, axis: str) -> float:

@@ -22,7 +22,6 @@ def read_text(path: Path | str, what: str, hint: str) -> str:
     try:
         return p.read_bytes().decode("utf-8-sig")
     except UnicodeDecodeError:
-        raise ConfigError(f"{p.name} is not UTF-8 text.", f"Save the {what} as UTF-8.") \
-            from None
+        raise ConfigError(f"{p.name} is not UTF-8 text.", f"Save the {what} as UTF-8.") from None
     except OSError as exc:
         raise InputFileError(f"{what} {p} cannot be read ({exc.strerror}).", hint) from None

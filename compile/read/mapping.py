@@ -30,13 +30,34 @@ from strata13.schemas.vocabularies import vocabulary
 from strata13.errors import ConfigError, InputFileError
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
-TOP_KEYS = {"source", "table", "columns", "constants", "sections", "localities",
-            "localities_table", "ties", "ties_table", "normalisation", "run", "offsets"}
+TOP_KEYS = {
+    "source",
+    "table",
+    "columns",
+    "constants",
+    "sections",
+    "localities",
+    "localities_table",
+    "ties",
+    "ties_table",
+    "normalisation",
+    "run",
+    "offsets",
+}
 SOURCE_KEYS = {"id", "citation", "year", "doi", "url", "kind", "lab", "republishes", "note"}
 TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
 COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
-SECTION_KEYS = {"id", "locality", "name", "datum", "position_kind", "datum_offset_m",
-                "offset_from", "offset_source", "note"}
+SECTION_KEYS = {
+    "id",
+    "locality",
+    "name",
+    "datum",
+    "position_kind",
+    "datum_offset_m",
+    "offset_from",
+    "offset_source",
+    "note",
+}
 LOCALITY_KEYS = {"id", "name", "lat", "lon", "precision_km", "aliases", "note", "plate"}
 
 
@@ -91,24 +112,31 @@ def _did_you_mean(word: str, options: set[str] | list[str]) -> str:
 def _unknown_keys(where: str, given: dict[str, Any], allowed: set[str], path: Path) -> None:
     for key in given:
         if key not in allowed:
-            raise ConfigError(f"{path.name}: unknown key {key!r} in {where}."
-                              + _did_you_mean(key, allowed),
-                              f"Allowed keys in {where}: {', '.join(sorted(allowed))}.")
+            raise ConfigError(
+                f"{path.name}: unknown key {key!r} in {where}." + _did_you_mean(key, allowed),
+                f"Allowed keys in {where}: {', '.join(sorted(allowed))}.",
+            )
 
 
 def safe_path(base: Path, relative: str, what: str, mapping: Path) -> Path:
     """Resolve ``relative`` against ``base``; refuse anything that leaves ``base``."""
     if not isinstance(relative, str) or not relative.strip():
-        raise ConfigError(f"{mapping.name}: {what} must be a file name.", "Give a path "
-                          "relative to the mapping file.")
+        raise ConfigError(
+            f"{mapping.name}: {what} must be a file name.",
+            "Give a path relative to the mapping file.",
+        )
     p = Path(relative)
     if p.is_absolute():
-        raise ConfigError(f"{mapping.name}: {what} = {relative!r} is an absolute path.",
-                          "Paths in a mapping file are relative to its folder.")
+        raise ConfigError(
+            f"{mapping.name}: {what} = {relative!r} is an absolute path.",
+            "Paths in a mapping file are relative to its folder.",
+        )
     resolved = (base / p).resolve()
     if not resolved.is_relative_to(base.resolve()):
-        raise ConfigError(f"{mapping.name}: {what} = {relative!r} leaves the mapping file's "
-                          "folder.", "Put the sheet in the mapping file's folder or below it.")
+        raise ConfigError(
+            f"{mapping.name}: {what} = {relative!r} leaves the mapping file's folder.",
+            "Put the sheet in the mapping file's folder or below it.",
+        )
     return resolved
 
 
@@ -116,28 +144,38 @@ def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) ->
     allowed = TABLE_KEYS | ({"columns"} if with_columns else set())
     _unknown_keys(where, block, allowed, path)
     if "file" not in block:
-        raise ConfigError(f"{path.name}: {where} needs file = \"…\".",
-                          "Name the sheet file, relative to the mapping file.")
+        raise ConfigError(
+            f'{path.name}: {where} needs file = "…".',
+            "Name the sheet file, relative to the mapping file.",
+        )
     spec = TableSpec(file=safe_path(path.parent, block["file"], f"{where} file", path))
     sheet = block.get("sheet")
     if sheet is not None and (not isinstance(sheet, (str, int)) or isinstance(sheet, bool)):
-        raise ConfigError(f"{path.name}: {where} sheet must be a name or a number.",
-                          "Example: sheet = \"Table S1\" or sheet = 2")
+        raise ConfigError(
+            f"{path.name}: {where} sheet must be a name or a number.",
+            'Example: sheet = "Table S1" or sheet = 2',
+        )
     spec.sheet = sheet
     hr = block.get("header_row")
     if hr is not None and (not isinstance(hr, int) or isinstance(hr, bool) or hr < 1):
-        raise ConfigError(f"{path.name}: {where} header_row must be a row number from 1.",
-                          "Give the spreadsheet row that holds the column names.")
+        raise ConfigError(
+            f"{path.name}: {where} header_row must be a row number from 1.",
+            "Give the spreadsheet row that holds the column names.",
+        )
     spec.header_row = hr
     dec = block.get("decimal", "auto")
     if dec not in ("auto", ".", ","):
-        raise ConfigError(f"{path.name}: {where} decimal = {dec!r} is not one of auto . ,",
-                          "Use decimal = \",\" for comma decimals.")
+        raise ConfigError(
+            f"{path.name}: {where} decimal = {dec!r} is not one of auto . ,",
+            'Use decimal = "," for comma decimals.',
+        )
     spec.decimal = dec
     delim = str(block.get("delimiter", "auto"))
     if delim not in ("auto", "tab", "\\t") and len(delim) != 1:
-        raise ConfigError(f"{path.name}: {where} delimiter = {delim!r} must be one character, "
-                          "\"tab\" or \"auto\".", "Example: delimiter = \";\"")
+        raise ConfigError(
+            f'{path.name}: {where} delimiter = {delim!r} must be one character, "tab" or "auto".',
+            'Example: delimiter = ";"',
+        )
     spec.delimiter = delim
     enc = str(block.get("encoding", "auto"))
     if enc != "auto":
@@ -146,9 +184,10 @@ def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) ->
         try:
             codecs.lookup(enc)
         except LookupError:
-            raise ConfigError(f"{path.name}: {where} encoding = {enc!r} is not an encoding "
-                              "Python knows.", "Use \"auto\", \"utf-8\", \"cp1252\" or "
-                              "\"latin-1\".") from None
+            raise ConfigError(
+                f"{path.name}: {where} encoding = {enc!r} is not an encoding Python knows.",
+                'Use "auto", "utf-8", "cp1252" or "latin-1".',
+            ) from None
     spec.encoding = enc
     return spec
 
@@ -158,43 +197,56 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
     if isinstance(spec, str):
         spec = {"field": spec}
     if not isinstance(spec, dict) or "field" not in spec:
-        raise ConfigError(f"{path.name}: {where} must be a field name or {{ field = … }}.",
-                          "Example: \"Height (ft)\" = { field = \"position\", unit = \"ft\" }")
+        raise ConfigError(
+            f"{path.name}: {where} must be a field name or {{ field = … }}.",
+            'Example: "Height (ft)" = { field = "position", unit = "ft" }',
+        )
     _unknown_keys(where, spec, COLUMN_KEYS, path)
     name = spec["field"]
     if name not in BY_NAME and name not in SCALE_KEYS and name not in BASIS_KEYS:
-        raise ConfigError(f"{path.name}: {where} names unknown field {name!r}."
-                          + _did_you_mean(name, field_names()),
-                          "The fields are listed in DEVELOPERS.md (schemas/fields.py).")
+        raise ConfigError(
+            f"{path.name}: {where} names unknown field {name!r}."
+            + _did_you_mean(name, field_names()),
+            "The fields are listed in DEVELOPERS.md (schemas/fields.py).",
+        )
     f = BY_NAME.get(name)
     unit = spec.get("unit")
     if unit is not None:
         kinds = UNITS.get(f.unit_kind or "", {}) if f else {}
         if unit not in kinds:
-            raise ConfigError(f"{path.name}: {where} unit {unit!r} does not fit field {name}.",
-                              f"Units for {name}: {', '.join(kinds) or 'none'}.")
+            raise ConfigError(
+                f"{path.name}: {where} unit {unit!r} does not fit field {name}.",
+                f"Units for {name}: {', '.join(kinds) or 'none'}.",
+            )
     scale = spec.get("scale")
     if scale is not None:
         _check_scale(name, scale, where, path)
     basis = spec.get("basis")
     if basis is not None and basis not in CONC_BASES:
-        raise ConfigError(f"{path.name}: {where} basis {basis!r} is not one of "
-                          f"{', '.join(CONC_BASES)}.", "")
+        raise ConfigError(
+            f"{path.name}: {where} basis {basis!r} is not one of {', '.join(CONC_BASES)}.", ""
+        )
     dl = spec.get("detection_limit")
     if dl is not None and (not isinstance(dl, (int, float)) or isinstance(dl, bool) or dl < 0):
-        raise ConfigError(f"{path.name}: {where} detection_limit must be a number ≥ 0.",
-                          "Example: detection_limit = 5 (in the column's unit).")
+        raise ConfigError(
+            f"{path.name}: {where} detection_limit must be a number ≥ 0.",
+            "Example: detection_limit = 5 (in the column's unit).",
+        )
     return ColumnMap(header, name, unit, scale, basis, float(dl) if dl is not None else None)
 
 
 def _check_scale(name: str, scale: str, where: str, path: Path) -> None:
     if name not in DELTA_SCALES:
-        raise ConfigError(f"{path.name}: {where} gives a scale, but {name} is not a δ field.",
-                          "Scales go on d13c_carb, d18o_carb and d13c_org.")
+        raise ConfigError(
+            f"{path.name}: {where} gives a scale, but {name} is not a δ field.",
+            "Scales go on d13c_carb, d18o_carb and d13c_org.",
+        )
     if scale not in DELTA_SCALES[name]:
-        raise ConfigError(f"{path.name}: {where} scale {scale!r} is not known for {name}."
-                          + _did_you_mean(scale, set(DELTA_SCALES[name])),
-                          f"Scales for {name}: {', '.join(DELTA_SCALES[name])}.")
+        raise ConfigError(
+            f"{path.name}: {where} scale {scale!r} is not known for {name}."
+            + _did_you_mean(scale, set(DELTA_SCALES[name])),
+            f"Scales for {name}: {', '.join(DELTA_SCALES[name])}.",
+        )
 
 
 def load_mapping(path: Path) -> Mapping:
@@ -207,55 +259,74 @@ def load_mapping(path: Path) -> Mapping:
     try:
         doc = tomllib.loads(raw.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"{path.name} is not valid TOML ({exc}).",
-                          "Check quotes and brackets on the line named.") from None
+        raise ConfigError(
+            f"{path.name} is not valid TOML ({exc}).",
+            "Check quotes and brackets on the line named.",
+        ) from None
     _unknown_keys("the top level", doc, TOP_KEYS, path)
-    ties_only = "table" not in doc and "columns" not in doc and (
-        "ties" in doc or "ties_table" in doc)
+    ties_only = (
+        "table" not in doc and "columns" not in doc and ("ties" in doc or "ties_table" in doc)
+    )
     for block in ("source",) if ties_only else ("source", "table", "columns"):
         if not isinstance(doc.get(block), dict):
-            raise ConfigError(f"{path.name} has no [{block}] block.",
-                              "See the commented example "
-                              "demo_compilation/sheets/quillar_2011.toml.")
+            raise ConfigError(
+                f"{path.name} has no [{block}] block.",
+                "See the commented example demo_compilation/sheets/quillar_2011.toml.",
+            )
     source = dict(doc["source"])
     _unknown_keys("[source]", source, SOURCE_KEYS, path)
     sid = source.get("id")
     if sid is None:
-        raise ConfigError(f"{path.name}: [source] has no id.",
-                          "Add id = \"…\": 3–64 lowercase letters, digits and hyphens.")
+        raise ConfigError(
+            f"{path.name}: [source] has no id.",
+            'Add id = "…": 3–64 lowercase letters, digits and hyphens.',
+        )
     if not isinstance(sid, str) or not SLUG.match(sid):
-        raise ConfigError(f"{path.name}: [source] id = {sid!r} is not a valid source id.",
-                          "Use 3–64 lowercase letters, digits and hyphens, e.g. "
-                          "\"obrien-delta-2019\".")
+        raise ConfigError(
+            f"{path.name}: [source] id = {sid!r} is not a valid source id.",
+            'Use 3–64 lowercase letters, digits and hyphens, e.g. "obrien-delta-2019".',
+        )
     if not isinstance(source.get("citation"), str) or not source["citation"].strip():
-        raise ConfigError(f"{path.name}: [source] needs a citation.", "Give the full "
-                          "reference (or a description of the in-house run).")
+        raise ConfigError(
+            f"{path.name}: [source] needs a citation.",
+            "Give the full reference (or a description of the in-house run).",
+        )
     kind = source.get("kind", "published")
     if vocabulary("source_kind").resolve(str(kind)) is None:
-        raise ConfigError(f"{path.name}: [source] kind = {kind!r} is not published or in-house.",
-                          "Use kind = \"published\" or kind = \"in-house\".")
+        raise ConfigError(
+            f"{path.name}: [source] kind = {kind!r} is not published or in-house.",
+            'Use kind = "published" or kind = "in-house".',
+        )
     source["kind"] = vocabulary("source_kind").resolve(str(kind))
     year = source.get("year")
-    if year is not None and (not isinstance(year, int) or isinstance(year, bool)
-                             or not 1600 <= year <= 2200):
-        raise ConfigError(f"{path.name}: [source] year = {year!r} is not a plausible year.",
-                          "Write the publication year, e.g. year = 2019.")
+    if year is not None and (
+        not isinstance(year, int) or isinstance(year, bool) or not 1600 <= year <= 2200
+    ):
+        raise ConfigError(
+            f"{path.name}: [source] year = {year!r} is not a plausible year.",
+            "Write the publication year, e.g. year = 2019.",
+        )
     rep = source.get("republishes", [])
     if not isinstance(rep, list) or not all(isinstance(x, str) for x in rep):
-        raise ConfigError(f"{path.name}: [source] republishes must be a list of source ids "
-                          "or citations.", "Example: republishes = [\"other-source-2015\"]")
+        raise ConfigError(
+            f"{path.name}: [source] republishes must be a list of source ids or citations.",
+            'Example: republishes = ["other-source-2015"]',
+        )
     if sid in rep:
-        raise ConfigError(f"{path.name}: source {sid!r} cannot re-publish itself.",
-                          "List the sources whose data this one re-publishes.")
+        raise ConfigError(
+            f"{path.name}: source {sid!r} cannot re-publish itself.",
+            "List the sources whose data this one re-publishes.",
+        )
 
     ties = _ties(doc, path, sid)
     if ties_only:
         extra = sorted(set(doc) - {"source", "ties", "ties_table"})
         if extra:
-            raise ConfigError(f"{path.name} has ties but no [table]; [{extra[0]}] needs a sheet.",
-                              "A ties-only mapping holds [source], [[ties]] and [ties_table].")
-        return Mapping(path, hashlib.sha256(raw).hexdigest(), source, None, {}, [], [], None,
-                       ties)
+            raise ConfigError(
+                f"{path.name} has ties but no [table]; [{extra[0]}] needs a sheet.",
+                "A ties-only mapping holds [source], [[ties]] and [ties_table].",
+            )
+        return Mapping(path, hashlib.sha256(raw).hexdigest(), source, None, {}, [], [], None, ties)
     table = _table(doc["table"], "[table]", path, with_columns=False)
     columns = doc["columns"]
     if not columns:
@@ -267,57 +338,78 @@ def load_mapping(path: Path) -> Mapping:
     for c in table.columns:
         key = norm_header(c.header)
         if key in by_norm:
-            raise ConfigError(f"{path.name}: [columns] {by_norm[key]!r} and {c.header!r} name the "
-                              "same header (case and spacing are ignored).", "Keep one of them.")
+            raise ConfigError(
+                f"{path.name}: [columns] {by_norm[key]!r} and {c.header!r} name the "
+                "same header (case and spacing are ignored).",
+                "Keep one of them.",
+            )
         by_norm[key] = c.header
     seen: dict[str, str] = {}
     for c in table.columns:
         if c.field in seen:
-            raise ConfigError(f"{path.name}: columns {seen[c.field]!r} and {c.header!r} both map "
-                              f"to {c.field}.", "Map each field from one column.")
+            raise ConfigError(
+                f"{path.name}: columns {seen[c.field]!r} and {c.header!r} both map to {c.field}.",
+                "Map each field from one column.",
+            )
         seen[c.field] = c.header
 
     constants = dict(doc.get("constants", {}))
     for key, value in constants.items():
         if key not in BY_NAME and key not in SCALE_KEYS and key not in BASIS_KEYS:
-            raise ConfigError(f"{path.name}: [constants] names unknown field {key!r}."
-                              + _did_you_mean(key, field_names()),
-                              "The fields are listed in DEVELOPERS.md.")
+            raise ConfigError(
+                f"{path.name}: [constants] names unknown field {key!r}."
+                + _did_you_mean(key, field_names()),
+                "The fields are listed in DEVELOPERS.md.",
+            )
         if key in seen:
-            raise ConfigError(f"{path.name}: {key} is both a column ({seen[key]!r}) and a "
-                              "constant.", "Keep one.")
+            raise ConfigError(
+                f"{path.name}: {key} is both a column ({seen[key]!r}) and a constant.", "Keep one."
+            )
         if key in SCALE_KEYS:
             _check_scale(SCALE_KEYS[key], value, f"[constants] {key}", path)
         if key in BASIS_KEYS and value not in CONC_BASES:
-            raise ConfigError(f"{path.name}: [constants] {key} = {value!r} is not one of "
-                              f"{', '.join(CONC_BASES)}.", "")
+            raise ConfigError(
+                f"{path.name}: [constants] {key} = {value!r} is not one of "
+                f"{', '.join(CONC_BASES)}.",
+                "",
+            )
 
     sections = doc.get("sections", [])
     localities = doc.get("localities", [])
     if not isinstance(sections, list) or not isinstance(localities, list):
-        raise ConfigError(f"{path.name}: sections and localities are [[sections]] / "
-                          "[[localities]] blocks.", "")
-    for kind, blocks, keys in (("sections", sections, SECTION_KEYS),
-                               ("localities", localities, LOCALITY_KEYS)):
+        raise ConfigError(
+            f"{path.name}: sections and localities are [[sections]] / [[localities]] blocks.", ""
+        )
+    for kind, blocks, keys in (
+        ("sections", sections, SECTION_KEYS),
+        ("localities", localities, LOCALITY_KEYS),
+    ):
         ids: set[str] = set()
         for block in blocks:
             if not isinstance(block, dict):
                 raise ConfigError(f"{path.name}: [[{kind}]] entries must be tables.", "")
             _unknown_keys(f"[[{kind}]]", block, keys, path)
             if not block.get("id"):
-                raise ConfigError(f"{path.name}: a [[{kind}]] block has no id.",
-                                  f"Give every [[{kind}]] block an id = \"…\".")
+                raise ConfigError(
+                    f"{path.name}: a [[{kind}]] block has no id.",
+                    f'Give every [[{kind}]] block an id = "…".',
+                )
             if str(block["id"]) in ids:
-                raise ConfigError(f"{path.name}: two [[{kind}]] blocks have the id "
-                                  f"{block['id']!r}.", "Give each its own id.")
+                raise ConfigError(
+                    f"{path.name}: two [[{kind}]] blocks have the id {block['id']!r}.",
+                    "Give each its own id.",
+                )
             ids.add(str(block["id"]))
     for loc_block in localities:
         plate = loc_block.get("plate")
-        if plate is not None and (not isinstance(plate, int) or isinstance(plate, bool)
-                                  or plate < 1):
-            raise ConfigError(f"{path.name}: locality {loc_block['id']!r} plate = {plate!r} is "
-                              "not a plate id.", "Give the plate id (a whole number ≥ 1) of "
-                              "the rotation model this locality rides on.")
+        if plate is not None and (
+            not isinstance(plate, int) or isinstance(plate, bool) or plate < 1
+        ):
+            raise ConfigError(
+                f"{path.name}: locality {loc_block['id']!r} plate = {plate!r} is not a plate id.",
+                "Give the plate id (a whole number ≥ 1) of "
+                "the rotation model this locality rides on.",
+            )
     for s in sections:
         for key, vocab in (("position_kind", "position_kind"), ("datum", "datum")):
             if key in s:
@@ -327,12 +419,15 @@ def load_mapping(path: Path) -> Mapping:
                     raise ConfigError(
                         f"{path.name}: section {s['id']!r} {key} = {s[key]!r} is not known."
                         + (f" Did you mean {sug!r}?" if sug else ""),
-                        f"Known: {', '.join(vocabulary(vocab).terms)}.")
+                        f"Known: {', '.join(vocabulary(vocab).terms)}.",
+                    )
                 s[key] = term
     if "section_id" not in seen and "section_id" not in constants and len(sections) != 1:
-        raise ConfigError(f"{path.name} does not say which section the rows belong to.",
-                          "Map a section column to section_id, set section_id in [constants], "
-                          "or define exactly one [[sections]] block.")
+        raise ConfigError(
+            f"{path.name} does not say which section the rows belong to.",
+            "Map a section column to section_id, set section_id in [constants], "
+            "or define exactly one [[sections]] block.",
+        )
     loc_table = None
     if "localities_table" in doc:
         block = doc["localities_table"]
@@ -342,33 +437,55 @@ def load_mapping(path: Path) -> Mapping:
         allowed = {"locality_id", "locality_name", "lat", "lon"}
         for c in loc_table.columns:
             if c.field not in allowed:
-                raise ConfigError(f"{path.name}: [localities_table] maps {c.header!r} to "
-                                  f"{c.field}; only {', '.join(sorted(allowed))} belong there.", "")
+                raise ConfigError(
+                    f"{path.name}: [localities_table] maps {c.header!r} to "
+                    f"{c.field}; only {', '.join(sorted(allowed))} belong there.",
+                    "",
+                )
     normalisation = _normalisation(doc.get("normalisation", {}), path)
     run = _run(doc.get("run"), path)
-    raw_fields = sorted({c.field for c in table.columns if c.scale == "raw"}
-                        | {SCALE_KEYS[k] for k, v in constants.items()
-                           if k in SCALE_KEYS and v == "raw"})
+    raw_fields = sorted(
+        {c.field for c in table.columns if c.scale == "raw"}
+        | {SCALE_KEYS[k] for k, v in constants.items() if k in SCALE_KEYS and v == "raw"}
+    )
     if raw_fields and run is None:
-        raise ConfigError(f"{path.name}: {', '.join(raw_fields)} are raw run values but the "
-                          "mapping has no [run] block.",
-                          "Add [run] with anchors = [\"…\", \"…\"] (the reference materials "
-                          "measured in the run).")
+        raise ConfigError(
+            f"{path.name}: {', '.join(raw_fields)} are raw run values but the "
+            "mapping has no [run] block.",
+            'Add [run] with anchors = ["…", "…"] (the reference materials measured in the run).',
+        )
     if run is not None and not raw_fields:
-        raise ConfigError(f"{path.name}: [run] is given but no δ column has scale = \"raw\".",
-                          "Mark the run's δ columns scale = \"raw\", or drop [run].")
+        raise ConfigError(
+            f'{path.name}: [run] is given but no δ column has scale = "raw".',
+            'Mark the run\'s δ columns scale = "raw", or drop [run].',
+        )
     if run is not None and "run_id" not in seen and "run_id" not in constants:
-        raise ConfigError(f"{path.name}: an in-house run needs run_id (a column or a constant).",
-                          "Map the run column to run_id, or set run_id in [constants].")
+        raise ConfigError(
+            f"{path.name}: an in-house run needs run_id (a column or a constant).",
+            "Map the run column to run_id, or set run_id in [constants].",
+        )
     for fld in raw_fields:
         if fld in normalisation:
-            raise ConfigError(f"{path.name}: {fld} is a raw run value; [normalisation.{fld}] "
-                              "does not apply.", "The [run] block says how it is normalised.")
+            raise ConfigError(
+                f"{path.name}: {fld} is a raw run value; [normalisation.{fld}] does not apply.",
+                "The [run] block says how it is normalised.",
+            )
         normalisation[fld] = {"method": "in-house run", **run}
     for fld, off in _offsets(doc.get("offsets", {}), path).items():
         normalisation.setdefault(fld, {"method": "not stated", "anchors": {}})["offset"] = off
-    return Mapping(path, hashlib.sha256(raw).hexdigest(), source, table, constants, sections,
-                   localities, loc_table, ties, normalisation, run)
+    return Mapping(
+        path,
+        hashlib.sha256(raw).hexdigest(),
+        source,
+        table,
+        constants,
+        sections,
+        localities,
+        loc_table,
+        ties,
+        normalisation,
+        run,
+    )
 
 
 RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "note"}
@@ -384,27 +501,38 @@ def _run(block: Any, path: Path) -> dict[str, Any] | None:
     _unknown_keys("[run]", block, RUN_KEYS, path)
     anchors, checks = block.get("anchors", []), block.get("checks", [])
     for key, names in (("anchors", anchors), ("checks", checks)):
-        if not isinstance(names, list) or not all(isinstance(x, str) and x.strip()
-                                                  for x in names):
-            raise ConfigError(f"{path.name}: [run] {key} must be a list of material names.",
-                              "Example: anchors = [\"IAEA-603\", \"NBS-18\"]")
+        if not isinstance(names, list) or not all(isinstance(x, str) and x.strip() for x in names):
+            raise ConfigError(
+                f"{path.name}: [run] {key} must be a list of material names.",
+                'Example: anchors = ["IAEA-603", "NBS-18"]',
+            )
     if len(anchors) < 2:
-        raise ConfigError(f"{path.name}: [run] names {len(anchors)} anchor(s); a run is "
-                          "normalised to at least two.",
-                          "List two or more reference materials that bracket the samples.")
+        raise ConfigError(
+            f"{path.name}: [run] names {len(anchors)} anchor(s); a run is "
+            "normalised to at least two.",
+            "List two or more reference materials that bracket the samples.",
+        )
     both = set(anchors) & set(checks)
     if both:
-        raise ConfigError(f"{path.name}: [run] lists {sorted(both)[0]!r} as anchor and check.",
-                          "A material is either an anchor or a check.")
+        raise ConfigError(
+            f"{path.name}: [run] lists {sorted(both)[0]!r} as anchor and check.",
+            "A material is either an anchor or a check.",
+        )
     tol = block.get("slope_tolerance", 0.05)
     if not isinstance(tol, (int, float)) or isinstance(tol, bool) or not 0 < tol < 1:
-        raise ConfigError(f"{path.name}: [run] slope_tolerance must be a number in (0, 1).",
-                          "0.05 (common practice) warns when |slope − 1| > 0.05.")
+        raise ConfigError(
+            f"{path.name}: [run] slope_tolerance must be a number in (0, 1).",
+            "0.05 (common practice) warns when |slope − 1| > 0.05.",
+        )
     drift = block.get("drift", False)
     if not isinstance(drift, bool):
         raise ConfigError(f"{path.name}: [run] drift must be true or false.", "")
-    return {"anchors": [str(a) for a in anchors], "checks": [str(c) for c in checks],
-            "drift": drift, "slope_tolerance": float(tol)}
+    return {
+        "anchors": [str(a) for a in anchors],
+        "checks": [str(c) for c in checks],
+        "drift": drift,
+        "slope_tolerance": float(tol),
+    }
 
 
 def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:
@@ -415,19 +543,25 @@ def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:
     for fld, spec in block.items():
         where = f"[offsets.{fld}]"
         if fld not in DELTA_SCALES:
-            raise ConfigError(f"{path.name}: {where} is not a δ field."
-                              + _did_you_mean(fld, set(DELTA_SCALES)), "")
+            raise ConfigError(
+                f"{path.name}: {where} is not a δ field." + _did_you_mean(fld, set(DELTA_SCALES)),
+                "",
+            )
         if not isinstance(spec, dict):
             raise ConfigError(f"{path.name}: {where} must be a table.", "")
         _unknown_keys(where, spec, {"value", "why"}, path)
         value, why = spec.get("value"), spec.get("why")
         if not isinstance(value, (int, float)) or isinstance(value, bool) or abs(value) > 5:
-            raise ConfigError(f"{path.name}: {where} value must be a number of ‰ (|value| ≤ 5).",
-                              "Example: value = 0.12")
+            raise ConfigError(
+                f"{path.name}: {where} value must be a number of ‰ (|value| ≤ 5).",
+                "Example: value = 0.12",
+            )
         if not isinstance(why, str) or len(why.strip()) < 10:
-            raise ConfigError(f"{path.name}: {where} needs why = \"…\": the justification, "
-                              "in words.", "Say what the offset rests on, e.g. an "
-                              "inter-laboratory comparison and its reference.")
+            raise ConfigError(
+                f'{path.name}: {where} needs why = "…": the justification, in words.',
+                "Say what the offset rests on, e.g. an "
+                "inter-laboratory comparison and its reference.",
+            )
         out[fld] = {"value": float(value), "why": why.strip()}
     return out
 
@@ -439,36 +573,50 @@ def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
     """``[normalisation.<δ field>]``: how the authors normalised that column — method and
     the anchor values they assumed (material = ‰). Re-anchoring uses nothing else."""
     if not isinstance(block, dict):
-        raise ConfigError(f"{path.name}: [normalisation] must hold one table per δ field.",
-                          "Example: [normalisation.d13c_carb] method = \"two-point\"")
+        raise ConfigError(
+            f"{path.name}: [normalisation] must hold one table per δ field.",
+            'Example: [normalisation.d13c_carb] method = "two-point"',
+        )
     out = {}
     for fld, spec in block.items():
         where = f"[normalisation.{fld}]"
         if fld not in DELTA_SCALES:
-            raise ConfigError(f"{path.name}: {where} is not a δ field."
-                              + _did_you_mean(fld, set(DELTA_SCALES)),
-                              f"δ fields: {', '.join(DELTA_SCALES)}.")
+            raise ConfigError(
+                f"{path.name}: {where} is not a δ field." + _did_you_mean(fld, set(DELTA_SCALES)),
+                f"δ fields: {', '.join(DELTA_SCALES)}.",
+            )
         if not isinstance(spec, dict):
             raise ConfigError(f"{path.name}: {where} must be a table.", "")
         _unknown_keys(where, spec, {"method", "anchors", "note"}, path)
         method = spec.get("method")
         if method not in NORMALISATION_METHODS:
-            raise ConfigError(f"{path.name}: {where} method = {method!r} is not one of "
-                              f"{', '.join(NORMALISATION_METHODS)}.",
-                              "Say how the authors normalised; \"not stated\" if they did not.")
+            raise ConfigError(
+                f"{path.name}: {where} method = {method!r} is not one of "
+                f"{', '.join(NORMALISATION_METHODS)}.",
+                'Say how the authors normalised; "not stated" if they did not.',
+            )
         anchors = spec.get("anchors", {})
         if not isinstance(anchors, dict) or not all(
-                isinstance(v, (int, float)) and not isinstance(v, bool) for v in anchors.values()):
-            raise ConfigError(f"{path.name}: {where} anchors must map material names to the "
-                              "values the authors assumed (‰).",
-                              "Example: anchors = { \"NBS-19\" = 1.95, \"LSVEC\" = -46.48 }")
+            isinstance(v, (int, float)) and not isinstance(v, bool) for v in anchors.values()
+        ):
+            raise ConfigError(
+                f"{path.name}: {where} anchors must map material names to the "
+                "values the authors assumed (‰).",
+                'Example: anchors = { "NBS-19" = 1.95, "LSVEC" = -46.48 }',
+            )
         need = NORMALISATION_METHODS[method]
         if len(anchors) != need:
-            raise ConfigError(f"{path.name}: {where} is {method} but names {len(anchors)} "
-                              f"anchor(s).", f"A {method} normalisation names {need} anchor(s)."
-                              if need else "Leave anchors out for \"not stated\".")
-        out[fld] = {"method": method, "anchors": {str(k): float(v) for k, v in anchors.items()},
-                    **({"note": str(spec["note"])} if spec.get("note") else {})}
+            raise ConfigError(
+                f"{path.name}: {where} is {method} but names {len(anchors)} anchor(s).",
+                f"A {method} normalisation names {need} anchor(s)."
+                if need
+                else 'Leave anchors out for "not stated".',
+            )
+        out[fld] = {
+            "method": method,
+            "anchors": {str(k): float(v) for k, v in anchors.items()},
+            **({"note": str(spec["note"])} if spec.get("note") else {}),
+        }
     return out
 
 
@@ -480,12 +628,19 @@ def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any
     if "ties_table" in doc:
         block = doc["ties_table"]
         if not isinstance(block, dict):
-            raise ConfigError(f"{path.name}: [ties_table] must be a table with file = \"…\".", "")
+            raise ConfigError(f'{path.name}: [ties_table] must be a table with file = "…".', "")
         _unknown_keys("[ties_table]", block, {"file"}, path)
         if "file" not in block:
-            raise ConfigError(f"{path.name}: [ties_table] needs file = \"…\".",
-                              "Name the CSV of ties, relative to the mapping file.")
+            raise ConfigError(
+                f'{path.name}: [ties_table] needs file = "…".',
+                "Name the CSV of ties, relative to the mapping file.",
+            )
         table_file = safe_path(path.parent, block["file"], "[ties_table] file", path)
     chart = (doc.get("constants") or {}).get("age_time_scale")
-    return read_ties(path, doc.get("ties", []), table_file, source_id,
-                     str(chart) if isinstance(chart, str) else None)
+    return read_ties(
+        path,
+        doc.get("ties", []),
+        table_file,
+        source_id,
+        str(chart) if isinstance(chart, str) else None,
+    )

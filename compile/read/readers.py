@@ -34,8 +34,9 @@ if TYPE_CHECKING:
 
 SPREADSHEET_SUFFIXES = {".xlsx", ".xlsm", ".ods"}
 TEXT_SUFFIXES = {".csv", ".tsv", ".txt"}
-FOOTNOTE_START = re.compile(r"^\s*([*†‡§¶]|\(?[a-z]\)|notes?\b|source\b|n\.?d\.?\s*=|bdl\s*=)",
-                            re.IGNORECASE)
+FOOTNOTE_START = re.compile(
+    r"^\s*([*†‡§¶]|\(?[a-z]\)|notes?\b|source\b|n\.?d\.?\s*=|bdl\s*=)", re.IGNORECASE
+)
 
 
 def col_letter(index: int) -> str:
@@ -84,13 +85,20 @@ class RawTable:
         return self.table.num_rows
 
 
-def read_table(path: Path, sheet: str | int | None = None, header_row: int | None = None,
-               expected_headers: Iterable[str] = (), delimiter: str = "auto",
-               encoding: str = "auto") -> RawTable:
+def read_table(
+    path: Path,
+    sheet: str | int | None = None,
+    header_row: int | None = None,
+    expected_headers: Iterable[str] = (),
+    delimiter: str = "auto",
+    encoding: str = "auto",
+) -> RawTable:
     """Read one table from a spreadsheet or text file; see the module docstring."""
     if not path.exists():
-        raise InputFileError(f"{path} does not exist.", "Check the path (relative paths in a "
-                             "mapping file start at the mapping file's folder).")
+        raise InputFileError(
+            f"{path} does not exist.",
+            "Check the path (relative paths in a mapping file start at the mapping file's folder).",
+        )
     if path.is_dir():
         raise InputFileError(f"{path} is a folder, not a spreadsheet.", "Name a file.")
     suffix = path.suffix.lower()
@@ -99,12 +107,14 @@ def read_table(path: Path, sheet: str | int | None = None, header_row: int | Non
         return _read_spreadsheet(path, sheet, header_row, expected)
     if suffix in TEXT_SUFFIXES:
         return _read_text(path, header_row, expected, delimiter, encoding)
-    raise InputFileError(f"{path.name} is not a spreadsheet strata13 reads "
-                         f"({suffix or 'no suffix'}).",
-                         "Use .xlsx, .ods, .csv or .tsv.")
+    raise InputFileError(
+        f"{path.name} is not a spreadsheet strata13 reads ({suffix or 'no suffix'}).",
+        "Use .xlsx, .ods, .csv or .tsv.",
+    )
 
 
 # ---------------------------------------------------------------- spreadsheets
+
 
 def _cell_text(value: Any) -> str | None:
     if value is None or value == "":
@@ -120,23 +130,27 @@ def _cell_text(value: Any) -> str | None:
     return str(value)
 
 
-def _read_spreadsheet(path: Path, sheet: str | int | None, header_row: int | None,
-                      expected: list[str]) -> RawTable:
+def _read_spreadsheet(
+    path: Path, sheet: str | int | None, header_row: int | None, expected: list[str]
+) -> RawTable:
     import python_calamine as pcal
 
     try:
         wb = pcal.CalamineWorkbook.from_path(str(path))
     except Exception as exc:  # calamine raises several types for a broken file
-        raise InputFileError(f"{path.name} could not be opened as a spreadsheet ({exc}).",
-                             "Check that the file is a real .xlsx/.ods and not password "
-                             "protected or truncated.") from None
+        raise InputFileError(
+            f"{path.name} could not be opened as a spreadsheet ({exc}).",
+            "Check that the file is a real .xlsx/.ods and not password protected or truncated.",
+        ) from None
     names = wb.sheet_names
     if sheet is None:
         name = names[0]
     elif isinstance(sheet, int):
         if not 1 <= sheet <= len(names):
-            raise ConfigError(f"{path.name} has {len(names)} sheets; sheet {sheet} does not exist.",
-                              f"Sheets: {', '.join(names)}.")
+            raise ConfigError(
+                f"{path.name} has {len(names)} sheets; sheet {sheet} does not exist.",
+                f"Sheets: {', '.join(names)}.",
+            )
         name = names[sheet - 1]
     else:
         loose = [n for n in names if norm_header(n) == norm_header(sheet)]
@@ -145,9 +159,11 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, header_row: int | Non
         elif len(loose) == 1:
             name = loose[0]
         else:
-            raise ConfigError(f"{path.name} has no sheet named {sheet!r}"
-                              + (" (several match loosely)." if loose else "."),
-                              "Sheets: " + ", ".join(repr(n) for n in names) + ".")
+            raise ConfigError(
+                f"{path.name} has no sheet named {sheet!r}"
+                + (" (several match loosely)." if loose else "."),
+                "Sheets: " + ", ".join(repr(n) for n in names) + ".",
+            )
     ws = wb.get_sheet_by_name(name)
     grid = [list(r) for r in ws.to_python(skip_empty_area=False)]
     issues: list[Issue] = []
@@ -163,25 +179,46 @@ def _read_spreadsheet(path: Path, sheet: str | int | None, header_row: int | Non
             for cc in range(c0, min(c1, width - 1) + 1):
                 grid[rr][cc] = top
         ref = f"{col_letter(c0)}{r0 + 1}:{col_letter(c1)}{r1 + 1}"
-        issues.append(Issue("info", name, f"{col_letter(c0)}{r0 + 1}", "", _cell_text(top) or "",
-                            "merged cell", f"merged range {ref} filled from its top-left cell"))
+        issues.append(
+            Issue(
+                "info",
+                name,
+                f"{col_letter(c0)}{r0 + 1}",
+                "",
+                _cell_text(top) or "",
+                "merged cell",
+                f"merged range {ref} filled from its top-left cell",
+            )
+        )
     if path.suffix.lower() in {".xlsx", ".xlsm"}:
         for r, c, formula in _formulas_without_value(path, name, grid):
-            issues.append(Issue("error", name, f"{col_letter(c)}{r + 1}", "", formula,
-                                "formula without cached value",
-                                "the cell holds a formula the file has no computed value for; "
-                                "open and save it in a spreadsheet program, or type the value"))
+            issues.append(
+                Issue(
+                    "error",
+                    name,
+                    f"{col_letter(c)}{r + 1}",
+                    "",
+                    formula,
+                    "formula without cached value",
+                    "the cell holds a formula the file has no computed value for; "
+                    "open and save it in a spreadsheet program, or type the value",
+                )
+            )
     text_grid = [[_cell_text(v) for v in row] for row in grid]
     return _table_from_grid(path.name, name, text_grid, header_row, expected, issues)
 
 
-def _formulas_without_value(path: Path, sheet: str, grid: list[list[Any]]
-                            ) -> list[tuple[int, int, str]]:
+def _formulas_without_value(
+    path: Path, sheet: str, grid: list[list[Any]]
+) -> list[tuple[int, int, str]]:
     """Cells holding a formula that calamine read as empty (no cached value)."""
     try:
         with zipfile.ZipFile(path) as zf:
-            has_formula = any(b"<f" in zf.read(n) for n in zf.namelist()
-                              if n.startswith("xl/worksheets/") and n.endswith(".xml"))
+            has_formula = any(
+                b"<f" in zf.read(n)
+                for n in zf.namelist()
+                if n.startswith("xl/worksheets/") and n.endswith(".xml")
+            )
     except (zipfile.BadZipFile, KeyError, OSError):
         return []
     if not has_formula:
@@ -194,8 +231,13 @@ def _formulas_without_value(path: Path, sheet: str, grid: list[list[Any]]
         ws = wb[sheet]
         for r, row in enumerate(ws.iter_rows(values_only=True)):
             for c, v in enumerate(row):
-                if isinstance(v, str) and v.startswith("=") and r < len(grid) \
-                        and c < len(grid[r]) and grid[r][c] in ("", None):
+                if (
+                    isinstance(v, str)
+                    and v.startswith("=")
+                    and r < len(grid)
+                    and c < len(grid[r])
+                    and grid[r][c] in ("", None)
+                ):
                     out.append((r, c, v))
     finally:
         wb.close()
@@ -218,9 +260,15 @@ def _find_header(rows: list[list[str | None]], expected: list[str], limit: int =
     return best
 
 
-def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
-                     header_row: int | None, expected: list[str], issues: list[Issue],
-                     row_offset: int = 1) -> RawTable:
+def _table_from_grid(
+    file: str,
+    sheet: str,
+    grid: list[list[str | None]],
+    header_row: int | None,
+    expected: list[str],
+    issues: list[Issue],
+    row_offset: int = 1,
+) -> RawTable:
     import numpy as np
     import pyarrow as pa
 
@@ -228,20 +276,32 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
         raise InputFileError(f"{file} ({sheet}) is empty.", "Check the sheet name and file.")
     if header_row is not None:
         if not 1 <= header_row <= len(grid):
-            raise ConfigError(f"header_row = {header_row} is outside {file} ({sheet}), which has "
-                              f"{len(grid)} rows.", "Give the spreadsheet row of the header.")
+            raise ConfigError(
+                f"header_row = {header_row} is outside {file} ({sheet}), which has "
+                f"{len(grid)} rows.",
+                "Give the spreadsheet row of the header.",
+            )
         h = header_row - row_offset
     else:
         h = _find_header(grid, expected)
     for i in range(h):
         if any(grid[i]):
             text = next(c for c in grid[i] if c)
-            issues.append(Issue("info", sheet, f"{_first_col(grid[i])}{i + row_offset}", "", text,
-                                "title row", "row above the header skipped"))
+            issues.append(
+                Issue(
+                    "info",
+                    sheet,
+                    f"{_first_col(grid[i])}{i + row_offset}",
+                    "",
+                    text,
+                    "title row",
+                    "row above the header skipped",
+                )
+            )
     headers_raw = grid[h]
     keep = [j for j, v in enumerate(headers_raw) if v] or list(range(len(headers_raw)))
     headers = [headers_raw[j] or "" for j in keep]
-    body = grid[h + 1:]
+    body = grid[h + 1 :]
     rows = [[r[j] if j < len(r) else None for j in keep] for r in body]
     numbers = list(range(h + 1 + row_offset, h + 1 + row_offset + len(rows)))
     # footnotes: trailing rows with a single text cell (or a footnote marker)
@@ -252,8 +312,11 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
         filled = [c for c in rows[end - 1] if c]
         if len(filled) == 1 and (FOOTNOTE_START.match(filled[0]) or not _numberish(filled[0])):
             ref = f"{_first_col(body[end - 1])}{numbers[end - 1]}"
-            issues.append(Issue("info", sheet, ref,
-                                "", filled[0], "footnote row", "row below the data skipped"))
+            issues.append(
+                Issue(
+                    "info", sheet, ref, "", filled[0], "footnote row", "row below the data skipped"
+                )
+            )
             end -= 1
             while end and not any(rows[end - 1]):
                 end -= 1
@@ -271,13 +334,30 @@ def _table_from_grid(file: str, sheet: str, grid: list[list[str | None]],
     for k, issue in enumerate(issues):  # name the column of cell findings made before the header
         letter = "".join(ch for ch in issue.cell if ch.isalpha())
         if not issue.column and letter in by_letter and issue.rule != "title row":
-            issues[k] = Issue(issue.severity, issue.sheet, issue.cell, by_letter[letter] or "",
-                              issue.value, issue.rule, issue.hint)
-    cols = {f"c{j}": pa.array([r[j] for r in kept_rows], type=pa.string())
-            for j in range(len(headers))}
+            issues[k] = Issue(
+                issue.severity,
+                issue.sheet,
+                issue.cell,
+                by_letter[letter] or "",
+                issue.value,
+                issue.rule,
+                issue.hint,
+            )
+    cols = {
+        f"c{j}": pa.array([r[j] for r in kept_rows], type=pa.string()) for j in range(len(headers))
+    }
     table = pa.table(cols) if cols else pa.table({})
-    return RawTable(file, sheet, h + row_offset, headers, [col_letter(j) for j in keep], table,
-                    np.asarray(kept_numbers, dtype=np.int64), blank, issues=issues)
+    return RawTable(
+        file,
+        sheet,
+        h + row_offset,
+        headers,
+        [col_letter(j) for j in keep],
+        table,
+        np.asarray(kept_numbers, dtype=np.int64),
+        blank,
+        issues=issues,
+    )
 
 
 def _first_col(row: list[str | None]) -> str:
@@ -294,14 +374,17 @@ def _numberish(text: str) -> bool:
 
 # ---------------------------------------------------------------- text files
 
+
 def decode_bytes(data: bytes, encoding: str = "auto") -> tuple[str, str]:
     """Decode as UTF-8 (BOM or not), else cp1252, else Latin-1; return (text, encoding)."""
     if encoding != "auto":
         try:
             return data.decode(encoding), encoding
         except (UnicodeDecodeError, LookupError) as exc:
-            raise ConfigError(f"the file cannot be decoded as {encoding} ({exc}).",
-                              "Set encoding = \"auto\" in the mapping file's [table].") from None
+            raise ConfigError(
+                f"the file cannot be decoded as {encoding} ({exc}).",
+                'Set encoding = "auto" in the mapping file\'s [table].',
+            ) from None
     for enc in ("utf-8-sig", "cp1252", "latin-1"):
         try:
             return data.decode(enc), ("utf-8" if enc == "utf-8-sig" else enc)
@@ -335,8 +418,9 @@ def sniff_delimiter(sample: str) -> str:
     return best
 
 
-def _read_text(path: Path, header_row: int | None, expected: list[str], delimiter: str,
-               encoding: str) -> RawTable:
+def _read_text(
+    path: Path, header_row: int | None, expected: list[str], delimiter: str, encoding: str
+) -> RawTable:
     import numpy as np
     import pyarrow as pa
     import pyarrow.csv as pcsv
@@ -347,8 +431,10 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     if data.startswith((b"\xff\xfe", b"\xfe\xff")) and encoding == "auto":
         encoding = "utf-16"  # "Unicode text" exports of spreadsheet programs
     if b"\x00" in data[:4096] and not encoding.lower().startswith("utf-16"):
-        raise InputFileError(f"{path.name} is a binary file, not a CSV/TSV text table.",
-                             "Export the table as CSV or give the .xlsx/.ods file.")
+        raise InputFileError(
+            f"{path.name} is a binary file, not a CSV/TSV text table.",
+            "Export the table as CSV or give the .xlsx/.ods file.",
+        )
     if encoding == "auto" and _is_utf8(data):
         text, enc = "", "utf-8"
     else:
@@ -356,13 +442,14 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     issues: list[Issue] = []
     sheet = path.name
     if enc != "utf-8":
-        issues.append(Issue("info", sheet, "", "", enc, "encoding",
-                            f"file is not UTF-8; decoded as {enc}"))
+        issues.append(
+            Issue("info", sheet, "", "", enc, "encoding", f"file is not UTF-8; decoded as {enc}")
+        )
         data = text.encode("utf-8")
     elif data.startswith(b"\xef\xbb\xbf"):
         data = data[3:]
     del text  # work on the UTF-8 bytes from here: no Python object per line
-    head_text = data[:1 << 16].decode("utf-8", errors="replace")
+    head_text = data[: 1 << 16].decode("utf-8", errors="replace")
     if delimiter == "auto":
         delim = "\t" if path.suffix.lower() == ".tsv" else sniff_delimiter(head_text)
     else:
@@ -377,24 +464,35 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     if ends[-1] == starts[-1]:  # the file ends with a newline: no last line
         starts, ends = starts[:-1], ends[:-1]
     if h >= len(starts):
-        raise ConfigError(f"header_row = {header_row} is past the end of {path.name}.",
-                          "Give the line number of the header.")
+        raise ConfigError(
+            f"header_row = {header_row} is past the end of {path.name}.",
+            "Give the line number of the header.",
+        )
     for i in range(min(h, len(head_rows))):
         if any(head_rows[i]):
-            issues.append(Issue("info", sheet, f"A{i + 1}", "", next(c for c in head_rows[i] if c),
-                                "title row", "line above the header skipped"))
-    lengths = ends[h + 1:] - starts[h + 1:]
+            issues.append(
+                Issue(
+                    "info",
+                    sheet,
+                    f"A{i + 1}",
+                    "",
+                    next(c for c in head_rows[i] if c),
+                    "title row",
+                    "line above the header skipped",
+                )
+            )
+    lengths = ends[h + 1 :] - starts[h + 1 :]
     cr_only = np.zeros(len(lengths), dtype=bool)
     one = np.flatnonzero(lengths == 1)
-    cr_only[one] = buf[starts[h + 1:][one]] == 13
+    cr_only[one] = buf[starts[h + 1 :][one]] == 13
     # pyarrow skips empty lines: keep the line numbers of the others
     nonempty = (lengths > 0) & ~cr_only
     line_numbers = np.nonzero(nonempty)[0] + h + 2
-    body = memoryview(data)[int(starts[h]):]
+    body = memoryview(data)[int(starts[h]) :]
 
     def body_line(k: int) -> str:
         j = h + 1 + k
-        return bytes(data[starts[j]:ends[j]]).decode("utf-8", errors="replace")
+        return bytes(data[starts[j] : ends[j]]).decode("utf-8", errors="replace")
 
     bad_rows: list[tuple[int | None, str, int, int]] = []
 
@@ -406,35 +504,61 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
         table = pcsv.read_csv(
             pa.BufferReader(pa.py_buffer(body)),
             read_options=pcsv.ReadOptions(block_size=1 << 24),
-            parse_options=pcsv.ParseOptions(delimiter=delim, newlines_in_values=False,
-                                            invalid_row_handler=on_invalid),
+            parse_options=pcsv.ParseOptions(
+                delimiter=delim, newlines_in_values=False, invalid_row_handler=on_invalid
+            ),
             convert_options=pcsv.ConvertOptions(
                 # every cell stays text, exactly as written; cleaning parses it
                 column_types={name: pa.string() for name in (head[h] if h < len(head) else [])},
-                strings_can_be_null=True, quoted_strings_can_be_null=True,
-                null_values=[""], check_utf8=False, auto_dict_encode=False,
-                timestamp_parsers=[]),
+                strings_can_be_null=True,
+                quoted_strings_can_be_null=True,
+                null_values=[""],
+                check_utf8=False,
+                auto_dict_encode=False,
+                timestamp_parsers=[],
+            ),
         )
     except pa.ArrowInvalid as exc:
-        raise InputFileError(f"{path.name} is not a well-formed delimited table ({exc}).",
-                             "Check that every line has the same number of separators "
-                             f"({delim!r}) and that quotes are closed.") from None
+        raise InputFileError(
+            f"{path.name} is not a well-formed delimited table ({exc}).",
+            "Check that every line has the same number of separators "
+            f"({delim!r}) and that quotes are closed.",
+        ) from None
     if bad_rows:
         skip_idx = []
         for number, text_, actual, expected_n in bad_rows:
             # row.number counts the header as row 1 of the text pyarrow saw; when pyarrow
             # does not know it, find the line by its text
             idx = (number - 2) if number else _find_line(body_line, nonempty, text_, skip_idx)
-            line = int(line_numbers[idx]) if idx is not None and 0 <= idx < len(line_numbers) \
-                else None
+            line = (
+                int(line_numbers[idx]) if idx is not None and 0 <= idx < len(line_numbers) else None
+            )
             is_last = idx is not None and idx >= len(line_numbers) - len(bad_rows)
             if actual == 1 and is_last:
-                issues.append(Issue("info", sheet, f"A{line or ''}", "", text_.strip(),
-                                    "footnote row", "row below the data skipped"))
+                issues.append(
+                    Issue(
+                        "info",
+                        sheet,
+                        f"A{line or ''}",
+                        "",
+                        text_.strip(),
+                        "footnote row",
+                        "row below the data skipped",
+                    )
+                )
             else:
-                issues.append(Issue("error", sheet, f"A{line or ''}", "", text_[:80],
-                                    "row shape", f"row has {actual} cells where the header "
-                                    f"has {expected_n}; fix the separators in this row"))
+                issues.append(
+                    Issue(
+                        "error",
+                        sheet,
+                        f"A{line or ''}",
+                        "",
+                        text_[:80],
+                        "row shape",
+                        f"row has {actual} cells where the header "
+                        f"has {expected_n}; fix the separators in this row",
+                    )
+                )
             if idx is not None:
                 skip_idx.append(idx)
         line_numbers = np.delete(line_numbers, skip_idx)
@@ -442,13 +566,27 @@ def _read_text(path: Path, header_row: int | None, expected: list[str], delimite
     stripped = nonempty
     headers = [str(n) for n in table.column_names]
     table = table.rename_columns([f"c{j}" for j in range(len(headers))])
-    table = pa.table({n: table.column(n) if table.column(n).type == pa.string()
-                      else table.column(n).cast(pa.string()) for n in table.column_names})
+    table = pa.table(
+        {
+            n: table.column(n)
+            if table.column(n).type == pa.string()
+            else table.column(n).cast(pa.string())
+            for n in table.column_names
+        }
+    )
     if table.num_rows != len(nonblank_numbers):  # quoted newlines: fall back to counting
         nonblank_numbers = np.arange(h + 2, h + 2 + table.num_rows)
-    raw = RawTable(path.name, sheet, h + 1, headers, [col_letter(j) for j in range(len(headers))],
-                   table, nonblank_numbers.astype(np.int64),
-                   int(len(stripped) - stripped.sum()), issues=issues)
+    raw = RawTable(
+        path.name,
+        sheet,
+        h + 1,
+        headers,
+        [col_letter(j) for j in range(len(headers))],
+        table,
+        nonblank_numbers.astype(np.int64),
+        int(len(stripped) - stripped.sum()),
+        issues=issues,
+    )
     raw.rejected_rows = sum(1 for i in issues if i.rule == "row shape")
     _drop_blank_and_footnotes(raw)
     return raw
@@ -488,8 +626,17 @@ def _drop_blank_and_footnotes(raw: RawTable) -> None:
             text = next(v for v in row.values() if v and v.strip())
             if _numberish(text) and not FOOTNOTE_START.match(text):
                 break
-            raw.issues.append(Issue("info", raw.sheet, f"A{raw.row_numbers[end - 1]}", "", text,
-                                    "footnote row", "row below the data skipped"))
+            raw.issues.append(
+                Issue(
+                    "info",
+                    raw.sheet,
+                    f"A{raw.row_numbers[end - 1]}",
+                    "",
+                    text,
+                    "footnote row",
+                    "row below the data skipped",
+                )
+            )
             keep[end - 1] = False
         end -= 1
     raw.blank_rows += int((counts == 0).sum())

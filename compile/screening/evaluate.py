@@ -61,6 +61,7 @@ class Screening(NamedTuple):
 
 # --- reading columns -------------------------------------------------------------------
 
+
 class _Columns:
     """Read-only access to the record columns as numpy/pyarrow arrays (absent = null)."""
 
@@ -128,7 +129,7 @@ def _num_text(v: np.ndarray, digits: int = 4) -> pa.Array:
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         mag = np.floor(np.log10(np.abs(v)))
         dec = np.where(np.isfinite(mag), np.clip(digits - 1 - mag, 0, 12), 0)
-        scale = 10.0 ** dec
+        scale = 10.0**dec
         out = np.where(np.isfinite(v), np.round(v * scale) / scale, v)
     return pc.cast(pa.array(out, from_pandas=True), pa.string())
 
@@ -144,7 +145,8 @@ def _pick(index: np.ndarray, texts: list[str]) -> pa.Array:
     import pyarrow as pa
 
     return pa.DictionaryArray.from_arrays(pa.array(index), pa.array(texts, pa.string())).cast(
-        pa.string())
+        pa.string()
+    )
 
 
 def _decode(values: pa.Array, codes: np.ndarray) -> pa.Array:
@@ -238,14 +240,17 @@ class _Detail:
                 continue
             enc = texts.take(pa.array(rows)).dictionary_encode()
             codes = enc.indices.to_numpy(zero_copy_only=False)
-            idx[rows] = np.where(np.isnan(codes.astype(float)), -1,
-                                 np.nan_to_num(codes.astype(float)) + len(words)).astype(np.int32)
+            idx[rows] = np.where(
+                np.isnan(codes.astype(float)), -1, np.nan_to_num(codes.astype(float)) + len(words)
+            ).astype(np.int32)
             words += enc.dictionary.to_pylist()
-        return pa.DictionaryArray.from_arrays(pa.array(idx, mask=idx < 0),
-                                              pa.array(words or [""], pa.string()))
+        return pa.DictionaryArray.from_arrays(
+            pa.array(idx, mask=idx < 0), pa.array(words or [""], pa.string())
+        )
 
 
 # --- scope -----------------------------------------------------------------------------
+
 
 def _scope(rule: Rule, cols: _Columns, detail: _Detail) -> tuple[np.ndarray, np.ndarray]:
     """(outside, unknown) masks; claims the detail of those records."""
@@ -264,8 +269,12 @@ def _scope(rule: Rule, cols: _Columns, detail: _Detail) -> tuple[np.ndarray, np.
         out = known & ((age < lo) | (age > hi))
         bounds = _age_bounds(s.age_min_ma, s.age_max_ma)
         outside |= detail.const(out, f"not applicable: age outside the rule's scope ({bounds})")
-        reasons_unknown.append((~known, f"untested: no age_ma (pending or not reported) and "
-                                        f"the rule is scoped to {bounds}"))
+        reasons_unknown.append(
+            (
+                ~known,
+                f"untested: no age_ma (pending or not reported) and the rule is scoped to {bounds}",
+            )
+        )
     for key in ("component", "mineralogy", "setting"):
         terms = getattr(s, key)
         if not terms:
@@ -274,10 +283,12 @@ def _scope(rule: Rule, cols: _Columns, detail: _Detail) -> tuple[np.ndarray, np.
         present = _mask(pc.is_valid(vals))
         inside = _mask(pc.is_in(vals, value_set=pa.array(list(terms), pa.string())))
         listed = ", ".join(terms)
-        outside |= detail.const(present & ~inside,
-                                f"not applicable: {key} outside the rule's scope ({listed})")
-        reasons_unknown.append((~present, f"untested: no {key} recorded and the rule is "
-                                          f"scoped to {key} {listed}"))
+        outside |= detail.const(
+            present & ~inside, f"not applicable: {key} outside the rule's scope ({listed})"
+        )
+        reasons_unknown.append(
+            (~present, f"untested: no {key} recorded and the rule is scoped to {key} {listed}")
+        )
     for mask, text in reasons_unknown:  # known-and-outside wins over unknown
         unknown |= detail.const(mask & ~outside, text)
     return outside, unknown
@@ -290,6 +301,7 @@ def _age_bounds(lo: float | None, hi: float | None) -> str:
 
 
 # --- censored values as bounds ---------------------------------------------------------
+
 
 class _Bounds(NamedTuple):
     lo: np.ndarray
@@ -341,8 +353,9 @@ def _read_bounds(column: str, cols: _Columns) -> _Bounds:
     return _Bounds(lo, hi, exact, missing, bdl_no, text)
 
 
-def _decide(lo: np.ndarray, hi: np.ndarray, pass_if: str,
-            limit: float) -> tuple[np.ndarray, np.ndarray]:
+def _decide(
+    lo: np.ndarray, hi: np.ndarray, pass_if: str, limit: float
+) -> tuple[np.ndarray, np.ndarray]:
     """(passes, fails) for a true value known to lie in [lo, hi]; neither = undecided."""
     with np.errstate(invalid="ignore"):
         if pass_if == "below":
@@ -354,16 +367,26 @@ def _decide(lo: np.ndarray, hi: np.ndarray, pass_if: str,
         return lo >= limit, hi < limit  # at_least
 
 
-def _verdicts(rule: Rule, lead: list[Any], passes: np.ndarray, fails: np.ndarray,
-              valid: np.ndarray, cond: str, detail: _Detail) -> np.ndarray:
+def _verdicts(
+    rule: Rule,
+    lead: list[Any],
+    passes: np.ndarray,
+    fails: np.ndarray,
+    valid: np.ndarray,
+    cond: str,
+    detail: _Detail,
+) -> np.ndarray:
     """Outcome codes from the decisions, with "<lead>; <cond> — <verdict>" details."""
     code = np.full(detail.n, UNTESTED, dtype=np.int8)
     broke = FAIL if rule.severity == "fail" else WARN
     code[valid & passes] = PASS
     code[valid & fails] = broke
     word = "fails" if rule.severity == "fail" else "warning"
-    tails = [f"; passes if {cond} — passes", f"; passes if {cond} — {word}",
-             f"; passes if {cond} — the censored value cannot decide it"]
+    tails = [
+        f"; passes if {cond} — passes",
+        f"; passes if {cond} — {word}",
+        f"; passes if {cond} — the censored value cannot decide it",
+    ]
     which = np.where(passes, 0, np.where(fails, 1, 2)).astype(np.int8)
     keep = valid if detail.keep_all else valid & ~passes
     detail.dynamic(keep, _join_at(keep, [*lead, _pick(which, tails)]))
@@ -372,13 +395,15 @@ def _verdicts(rule: Rule, lead: list[Any], passes: np.ndarray, fails: np.ndarray
 
 # --- rule kinds ------------------------------------------------------------------------
 
+
 def _value_limit(rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail) -> np.ndarray:
     f = NUMERIC_FIELDS[spec.field]
     b = _bounds(spec.field, cols)
     limit = spec.limit_stored
     detail.const(b.missing, f"untested: no {f.label} value")
-    detail.const(b.bdl_no_dl, f"untested: {f.label} below detection limit, but no detection "
-                              "limit recorded")
+    detail.const(
+        b.bdl_no_dl, f"untested: {f.label} below detection limit, but no detection limit recorded"
+    )
     passes, fails = _decide(b.lo, b.hi, spec.pass_if, limit)
     unit = f" {f.stored_unit}"
     lead = [f"{f.label} ", b.text, unit]
@@ -397,12 +422,20 @@ def _ratio_limit(rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail) 
     zero = db.exact & (db.lo == 0)
     detail.const(zero, f"untested: {fd.label} is zero, so {spec.label} is undefined")
     nbasis, dbasis = cols.text(f"{fn.censor}_basis"), cols.text(f"{fd.censor}_basis")
-    mixed = _mask(pc.and_(pc.and_(pc.is_valid(nbasis), pc.is_valid(dbasis)),
-                          pc.not_equal(nbasis, dbasis)))
+    mixed = _mask(
+        pc.and_(pc.and_(pc.is_valid(nbasis), pc.is_valid(dbasis)), pc.not_equal(nbasis, dbasis))
+    )
     if mixed.any():
-        detail.dynamic(mixed & ~nb.missing & ~db.missing, _join(
-            f"untested: {fn.label} and {fd.label} are on different bases (", nbasis, " vs ",
-            dbasis, f"), so {spec.label} is not meaningful"))
+        detail.dynamic(
+            mixed & ~nb.missing & ~db.missing,
+            _join(
+                f"untested: {fn.label} and {fd.label} are on different bases (",
+                nbasis,
+                " vs ",
+                dbasis,
+                f"), so {spec.label} is not meaningful",
+            ),
+        )
     valid = ~nb.missing & ~db.missing & ~zero & ~mixed
     k = spec.factor
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -415,16 +448,21 @@ def _ratio_limit(rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail) 
     lo_t = _num_text(lo)
     shown = _join(" = ", lo_t)
     if (valid & ~point).any():  # censored inputs: the ratio is an interval
-        shown = pc.if_else(pa.array(point), shown,
-                           _join(" in [", lo_t, ", ", _num_text(hi), "]"))
-    lead = [spec.label, shown, f" ({fn.label} ", nb.text, f" {fn.stored_unit}, {fd.label} ",
-            db.text, f" {fd.stored_unit})"]
+        shown = pc.if_else(pa.array(point), shown, _join(" in [", lo_t, ", ", _num_text(hi), "]"))
+    lead = [
+        spec.label,
+        shown,
+        f" ({fn.label} ",
+        nb.text,
+        f" {fn.stored_unit}, {fd.label} ",
+        db.text,
+        f" {fd.stored_unit})",
+    ]
     cond = f"{PASS_WORDS[spec.pass_if]} {_fmt(spec.limit)}"
     return _verdicts(rule, lead, passes, fails, valid, cond, detail)
 
 
-def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns,
-                    detail: _Detail) -> np.ndarray:
+def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns, detail: _Detail) -> np.ndarray:
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -442,16 +480,19 @@ def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns,
     word = "fails" if rule.severity == "fail" else "warning"
     terms_text = ", ".join(spec.allowed or spec.excluded or ())
     if detail.keep_all:
-        detail.dynamic(ok, _join_at(ok, [f"{spec.field} '", vals,
-                                         f"' — passes ({which}: {terms_text})"]))
+        detail.dynamic(
+            ok, _join_at(ok, [f"{spec.field} '", vals, f"' — passes ({which}: {terms_text})"])
+        )
     bad = present & ~ok
-    detail.dynamic(bad, _join_at(bad, [f"{spec.field} '", vals,
-                                       f"' — {word} ({which}: {terms_text})"]))
+    detail.dynamic(
+        bad, _join_at(bad, [f"{spec.field} '", vals, f"' — {word} ({which}: {terms_text})"])
+    )
     return code
 
 
-def _covariance(rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail,
-                in_scope: np.ndarray) -> tuple[np.ndarray, pa.Table]:
+def _covariance(
+    rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> tuple[np.ndarray, pa.Table]:
     """Per-record outcome from its group's (or window's) statistics, and the group table."""
     import pyarrow as pa
     import pyarrow.compute as pc
@@ -532,20 +573,44 @@ def _covariance(rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail,
         label = _join(label, "/", unit_t)
     if spec.group_by == "window":
         label = _join(label, " @ ", _num_text(centre), " m")
-    r_t, n_t, ne_t = _num_text(st.r, 3), pc.cast(pa.array(st.n), pa.string()), _num_text(
-        st.n_eff, 3)
-    stats_t = _join(label, ": r = ", r_t, ", r² = ", _num_text(st.r ** 2, 3), ", n = ", n_t,
-                    ", n_eff = ", ne_t, ", p = ", _num_text(st.p, 3))
+    r_t, n_t, ne_t = (
+        _num_text(st.r, 3),
+        pc.cast(pa.array(st.n), pa.string()),
+        _num_text(st.n_eff, 3),
+    )
+    stats_t = _join(
+        label,
+        ": r = ",
+        r_t,
+        ", r² = ",
+        _num_text(st.r**2, 3),
+        ", n = ",
+        n_t,
+        ", n_eff = ",
+        ne_t,
+        ", p = ",
+        _num_text(st.p, 3),
+    )
     rule_t = f"warn if r ≥ {_fmt(spec.min_r)} and p < {_fmt(spec.alpha)}"
     word = "fails" if rule.severity == "fail" else "warning"
-    itext = pc.if_else(pa.array(warned), _join(stats_t, f" — {word} ({rule_t})"),
-                       _join(stats_t, f" — passes ({rule_t})"))
-    itext = pc.if_else(pa.array(small), _join(label, ": untested: n = ", n_t,
-                                              f" records, fewer than min_n = {spec.min_n}"), itext)
-    itext = pc.if_else(pa.array(flat), _join(label, ": untested: no spread in ", fx.label,
-                                             " or ", fy.label), itext)
-    itext = pc.if_else(pa.array(thin), _join(label, ": untested: too few effectively "
-                                             "independent records (n_eff = ", ne_t, ")"), itext)
+    itext = pc.if_else(
+        pa.array(warned),
+        _join(stats_t, f" — {word} ({rule_t})"),
+        _join(stats_t, f" — passes ({rule_t})"),
+    )
+    itext = pc.if_else(
+        pa.array(small),
+        _join(label, ": untested: n = ", n_t, f" records, fewer than min_n = {spec.min_n}"),
+        itext,
+    )
+    itext = pc.if_else(
+        pa.array(flat), _join(label, ": untested: no spread in ", fx.label, " or ", fy.label), itext
+    )
+    itext = pc.if_else(
+        pa.array(thin),
+        _join(label, ": untested: too few effectively independent records (n_eff = ", ne_t, ")"),
+        itext,
+    )
 
     code = np.full(n, UNTESTED, dtype=np.int8)
     code[rec] = icode[owner]
@@ -557,25 +622,31 @@ def _covariance(rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail,
         full = pc.take(texts, pa.array(inv, mask=inv < 0))
     detail.dynamic(ok if detail.keep_all else ok & (code != PASS), full)
 
-    groups = pa.table({
-        "rule": pa.array([rule.name] * len(lo), pa.string()),
-        "group": label,
-        "source_id": src_t, "section_id": sec_t, "lithostrat_unit": unit_t,
-        "centre_m": pa.array(centre, from_pandas=True),
-        "n": pa.array(st.n, pa.int64()),
-        "n_eff": pa.array(st.n_eff, from_pandas=True),
-        "r": pa.array(st.r, from_pandas=True),
-        "r2": pa.array(st.r ** 2, from_pandas=True),
-        "p": pa.array(st.p, from_pandas=True),
-        "rho1_x": pa.array(st.rho_x, from_pandas=True),
-        "rho1_y": pa.array(st.rho_y, from_pandas=True),
-        "outcome": pa.DictionaryArray.from_arrays(pa.array(icode), pa.array(OUTCOMES))
-        .cast(pa.string()),
-    })
+    groups = pa.table(
+        {
+            "rule": pa.array([rule.name] * len(lo), pa.string()),
+            "group": label,
+            "source_id": src_t,
+            "section_id": sec_t,
+            "lithostrat_unit": unit_t,
+            "centre_m": pa.array(centre, from_pandas=True),
+            "n": pa.array(st.n, pa.int64()),
+            "n_eff": pa.array(st.n_eff, from_pandas=True),
+            "r": pa.array(st.r, from_pandas=True),
+            "r2": pa.array(st.r**2, from_pandas=True),
+            "p": pa.array(st.p, from_pandas=True),
+            "rho1_x": pa.array(st.rho_x, from_pandas=True),
+            "rho1_y": pa.array(st.rho_y, from_pandas=True),
+            "outcome": pa.DictionaryArray.from_arrays(pa.array(icode), pa.array(OUTCOMES)).cast(
+                pa.string()
+            ),
+        }
+    )
     return code, groups
 
 
 # --- the public functions --------------------------------------------------------------
+
 
 def _as_table(records: Any) -> pa.Table:
     import pyarrow as pa
@@ -594,16 +665,29 @@ def _as_table(records: Any) -> pa.Table:
 def _group_schema() -> pa.Schema:
     import pyarrow as pa
 
-    return pa.schema([("rule", pa.string()), ("group", pa.string()),
-                      ("source_id", pa.string()), ("section_id", pa.string()),
-                      ("lithostrat_unit", pa.string()), ("centre_m", pa.float64()),
-                      ("n", pa.int64()), ("n_eff", pa.float64()), ("r", pa.float64()),
-                      ("r2", pa.float64()), ("p", pa.float64()), ("rho1_x", pa.float64()),
-                      ("rho1_y", pa.float64()), ("outcome", pa.string())])
+    return pa.schema(
+        [
+            ("rule", pa.string()),
+            ("group", pa.string()),
+            ("source_id", pa.string()),
+            ("section_id", pa.string()),
+            ("lithostrat_unit", pa.string()),
+            ("centre_m", pa.float64()),
+            ("n", pa.int64()),
+            ("n_eff", pa.float64()),
+            ("r", pa.float64()),
+            ("r2", pa.float64()),
+            ("p", pa.float64()),
+            ("rho1_x", pa.float64()),
+            ("rho1_y", pa.float64()),
+            ("outcome", pa.string()),
+        ]
+    )
 
 
-def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False,
-             all_details: bool = True) -> Screening:
+def evaluate(
+    records: Any, rules: RuleSet, untested_passes: bool = False, all_details: bool = True
+) -> Screening:
     """Screen ``records`` (a pyarrow Table or pandas DataFrame with the stored columns).
 
     ``all_details`` False (the derive engine) leaves passes and "not applicable" without a
@@ -619,8 +703,10 @@ def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False,
 
     table = _as_table(records)
     if "record_id" not in table.column_names:
-        raise DomainError("the records to screen have no record_id column.",
-                          "Screen records read from a store or built by validate.")
+        raise DomainError(
+            "the records to screen have no record_id column.",
+            "Screen records read from a store or built by validate.",
+        )
     cols = _Columns(table)
     n = cols.n
     rid = cols.text("record_id")
@@ -653,16 +739,28 @@ def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False,
     def text(arr: pa.Array) -> pa.Array:
         return arr.cast(pa.string()) if all_details else arr
 
-    batches = [pa.record_batch({
-        "record_id": rid,
-        "rule": text(pa.DictionaryArray.from_arrays(pa.array(np.full(n, i, np.int8)), names)),
-        "outcome": text(pa.DictionaryArray.from_arrays(pa.array(code), outcomes)),
-        "detail": det,
-    }) for i, (code, det) in enumerate(zip(codes, details, strict=True))]
+    batches = [
+        pa.record_batch(
+            {
+                "record_id": rid,
+                "rule": text(
+                    pa.DictionaryArray.from_arrays(pa.array(np.full(n, i, np.int8)), names)
+                ),
+                "outcome": text(pa.DictionaryArray.from_arrays(pa.array(code), outcomes)),
+                "detail": det,
+            }
+        )
+        for i, (code, det) in enumerate(zip(codes, details, strict=True))
+    ]
     kind = pa.string() if all_details else coded
-    schema = pa.schema([("record_id", pa.string()), ("rule", kind), ("outcome", kind),
-                        ("detail", pa.string() if all_details else
-                         pa.dictionary(pa.int32(), pa.string()))])
+    schema = pa.schema(
+        [
+            ("record_id", pa.string()),
+            ("rule", kind),
+            ("outcome", kind),
+            ("detail", pa.string() if all_details else pa.dictionary(pa.int32(), pa.string())),
+        ]
+    )
     results = pa.Table.from_batches(batches, schema)
 
     m = np.stack(codes) if k else np.empty((0, n), np.int8)
@@ -671,10 +769,19 @@ def evaluate(records: Any, rules: RuleSet, untested_passes: bool = False,
     if untested_passes:
         tested |= (m == UNTESTED).any(axis=0)
     status = np.where(failed, 1, np.where(tested, 0, 2)).astype(np.int8)
-    overall = pa.table({"record_id": rid, "screen": pa.DictionaryArray.from_arrays(
-        pa.array(status), pa.array(OVERALL)).cast(pa.string())})
-    groups = (pa.concat_tables([t.cast(_group_schema()) for t in group_tables])
-              if group_tables else _group_schema().empty_table())
+    overall = pa.table(
+        {
+            "record_id": rid,
+            "screen": pa.DictionaryArray.from_arrays(pa.array(status), pa.array(OVERALL)).cast(
+                pa.string()
+            ),
+        }
+    )
+    groups = (
+        pa.concat_tables([t.cast(_group_schema()) for t in group_tables])
+        if group_tables
+        else _group_schema().empty_table()
+    )
     return Screening(results, overall, groups)
 
 
@@ -705,8 +812,7 @@ def summarise(records: Any, results: pa.Table) -> pa.Table:
     parts = []
     for name in ("rule", "outcome"):
         enc = pc.dictionary_encode(results.column(name).combine_chunks().cast(pa.string()))
-        parts.append((enc.indices.to_numpy(zero_copy_only=False).astype(np.int64),
-                      enc.dictionary))
+        parts.append((enc.indices.to_numpy(zero_copy_only=False).astype(np.int64), enc.dictionary))
     (r_code, r_vals), (o_code, o_vals) = parts
     radix = [len(sec_vals) + 1, len(r_vals) + 1, len(o_vals) + 1]
     key = ((s_code * radix[0] + t_code) * radix[1] + r_code) * radix[2] + o_code
@@ -719,9 +825,22 @@ def summarise(records: Any, results: pa.Table) -> pa.Table:
         c = code - shift
         return pc.take(values, pa.array(c, mask=c < 0))
 
-    out = pa.table({"source_id": back(src_vals, s_, 1), "section_id": back(sec_vals, t, 1),
-                    "rule": back(r_vals, r, 0), "outcome": back(o_vals, o, 0),
-                    "n": pa.array(counts, pa.int64())})
-    order = pc.sort_indices(out, [("source_id", "ascending"), ("section_id", "ascending"),
-                                  ("rule", "ascending"), ("outcome", "ascending")])
+    out = pa.table(
+        {
+            "source_id": back(src_vals, s_, 1),
+            "section_id": back(sec_vals, t, 1),
+            "rule": back(r_vals, r, 0),
+            "outcome": back(o_vals, o, 0),
+            "n": pa.array(counts, pa.int64()),
+        }
+    )
+    order = pc.sort_indices(
+        out,
+        [
+            ("source_id", "ascending"),
+            ("section_id", "ascending"),
+            ("rule", "ascending"),
+            ("outcome", "ascending"),
+        ],
+    )
     return out.take(order)

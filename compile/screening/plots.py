@@ -47,15 +47,19 @@ def _marks(rid: pa.Array, results: pa.Table) -> np.ndarray:
     import pyarrow.compute as pc
 
     rank = pc.index_in(results.column("outcome"), value_set=pa.array(RANKS))
-    worst = pa.table({"record_id": results.column("record_id"), "rank": rank}).group_by(
-        "record_id").aggregate([("rank", "max")])
+    worst = (
+        pa.table({"record_id": results.column("record_id"), "rank": rank})
+        .group_by("record_id")
+        .aggregate([("rank", "max")])
+    )
     at = pc.index_in(rid, value_set=worst.column("record_id"))
     r = pc.fill_null(pc.take(worst.column("rank_max"), at), 1).to_numpy(zero_copy_only=False)
     return np.asarray(SHOWN, dtype=object)[np.asarray(r, dtype=np.int64)]
 
 
-def cross_plots(records: Any, results: pa.Table, group_stats: pa.Table,
-                out_dir: str | Path) -> list[Path]:
+def cross_plots(
+    records: Any, results: pa.Table, group_stats: pa.Table, out_dir: str | Path
+) -> list[Path]:
     """Write one cross-plot per (source, section) to ``out_dir``; returns the files."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
@@ -75,13 +79,15 @@ def cross_plots(records: Any, results: pa.Table, group_stats: pa.Table,
     uniq, first, inverse = np.unique(pair, return_index=True, return_inverse=True)
     order = np.argsort(inverse, kind="stable")
     bounds = np.r_[0, np.cumsum(np.bincount(inverse, minlength=uniq.size))]
-    names = [(str(src_vals[int(src[i])]) if src[i] >= 0 else "", str(sec_vals[int(sec[i])]))
-             for i in idx[first]]
+    names = [
+        (str(src_vals[int(src[i])]) if src[i] >= 0 else "", str(sec_vals[int(sec[i])]))
+        for i in idx[first]
+    ]
 
     written: list[Path] = []
     for k in sorted(range(uniq.size), key=lambda k: names[k]):
         s, t = names[k]
-        rows = idx[order[bounds[k]:bounds[k + 1]]]
+        rows = idx[order[bounds[k] : bounds[k + 1]]]
         fig = Figure(figsize=(6.0, 5.0), dpi=120)
         FigureCanvasAgg(fig)
         ax = fig.add_subplot()
@@ -89,8 +95,17 @@ def cross_plots(records: Any, results: pa.Table, group_stats: pa.Table,
             m = rows[mark[rows] == kind]
             if m.size:
                 marker, face, edge, label = STYLES[kind]
-                ax.scatter(x[m], y[m], marker=marker, facecolors=face, edgecolors=edge, s=46,
-                           linewidths=0.9, label=f"{label} ({m.size})", zorder=3)
+                ax.scatter(
+                    x[m],
+                    y[m],
+                    marker=marker,
+                    facecolors=face,
+                    edgecolors=edge,
+                    s=46,
+                    linewidths=0.9,
+                    label=f"{label} ({m.size})",
+                    zorder=3,
+                )
         ax.set_xlabel(X_LABEL)
         ax.set_ylabel(Y_LABEL)
         lines = stats.get((s, t)) or [f"n = {rows.size} (no covariance rule applied)"]
@@ -126,8 +141,11 @@ def _stats_by_section(groups: pa.Table | None) -> dict[tuple[str, str], list[str
 
 def _line(g: dict[str, Any]) -> str:
     def f(v: Any, spec: str) -> str:
-        return "–" if v is None or (isinstance(v, float) and not np.isfinite(v)) else format(
-            v, spec)
+        return (
+            "–" if v is None or (isinstance(v, float) and not np.isfinite(v)) else format(v, spec)
+        )
 
-    return (f"r = {f(g['r'], '.2f')}, r² = {f(g['r2'], '.2f')}, n = {g['n']}, "
-            f"n_eff = {f(g['n_eff'], '.1f')}, p = {f(g['p'], '.2g')} ({g['outcome']})")
+    return (
+        f"r = {f(g['r'], '.2f')}, r² = {f(g['r2'], '.2f')}, n = {g['n']}, "
+        f"n_eff = {f(g['n_eff'], '.1f')}, p = {f(g['p'], '.2g')} ({g['outcome']})"
+    )

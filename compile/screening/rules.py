@@ -57,8 +57,7 @@ COMMON_KEYS = {"name", "kind", "description", "citation", "confidence", "severit
 KIND_KEYS = {
     "value-limit": {"field", "pass_if", "limit", "unit"},
     "ratio-limit": {"numerator", "denominator", "ratio_by", "pass_if", "limit"},
-    "covariance": {"x", "y", "group_by", "window_m", "min_n", "min_r", "alpha",
-                   "lag1_correction"},
+    "covariance": {"x", "y", "group_by", "window_m", "min_n", "min_r", "alpha", "lag1_correction"},
     "allowed-values": {"field", "allowed", "excluded"},
 }
 SCOPE_KEYS = {"age_min_ma", "age_max_ma", "component", "mineralogy", "setting"}
@@ -78,15 +77,28 @@ class NumericField:
 
 
 def _numeric_fields() -> dict[str, NumericField]:
-    labels = {"mn": ("Mn", "Mn"), "sr": ("Sr", "Sr"), "fe": ("Fe", "Fe"),
-              "mg_ca": ("Mg/Ca", None), "caco3": ("CaCO3", None), "toc": ("TOC", None)}
+    labels = {
+        "mn": ("Mn", "Mn"),
+        "sr": ("Sr", "Sr"),
+        "fe": ("Fe", "Fe"),
+        "mg_ca": ("Mg/Ca", None),
+        "caco3": ("CaCO3", None),
+        "toc": ("TOC", None),
+    }
     per_ppm = {"ppm": 1.0, "%": 1.0e4}
     out: dict[str, NumericField] = {}
     for c in CONC_FIELDS:
         f = BY_NAME[c]
         label, element = labels[c]
-        out[f.stored] = NumericField(f.stored, label, f.unit_kind or "", f.stored_unit or "",
-                                     c, per_ppm.get(f.stored_unit or ""), element)
+        out[f.stored] = NumericField(
+            f.stored,
+            label,
+            f.unit_kind or "",
+            f.stored_unit or "",
+            c,
+            per_ppm.get(f.stored_unit or ""),
+            element,
+        )
     for d in DELTA_FIELDS:
         label = {"d13c_carb": "δ13C carb", "d18o_carb": "δ18O carb", "d13c_org": "δ13C org"}[d]
         out[d] = NumericField(d, label, "permil", "‰")
@@ -95,7 +107,9 @@ def _numeric_fields() -> dict[str, NumericField]:
 
 NUMERIC_FIELDS = _numeric_fields()
 CATEGORICAL_FIELDS: dict[str, str | None] = {
-    **{f.stored: f.vocab for f in FIELDS if f.kind == "vocab"}, "preservation": None}
+    **{f.stored: f.vocab for f in FIELDS if f.kind == "vocab"},
+    "preservation": None,
+}
 
 
 @dataclass(frozen=True)
@@ -134,8 +148,12 @@ class ValueLimit:
         return self.limit * UNITS[f.unit_kind][self.unit]
 
     def canonical(self) -> dict[str, Any]:
-        return {"field": self.field, "pass_if": self.pass_if, "limit": self.limit,
-                "unit": self.unit}
+        return {
+            "field": self.field,
+            "pass_if": self.pass_if,
+            "limit": self.limit,
+            "unit": self.unit,
+        }
 
 
 @dataclass(frozen=True)
@@ -160,12 +178,19 @@ class RatioLimit:
 
     @property
     def label(self) -> str:
-        return (f"{NUMERIC_FIELDS[self.numerator].label}/"
-                f"{NUMERIC_FIELDS[self.denominator].label} ({self.ratio_by})")
+        return (
+            f"{NUMERIC_FIELDS[self.numerator].label}/"
+            f"{NUMERIC_FIELDS[self.denominator].label} ({self.ratio_by})"
+        )
 
     def canonical(self) -> dict[str, Any]:
-        return {"numerator": self.numerator, "denominator": self.denominator,
-                "ratio_by": self.ratio_by, "pass_if": self.pass_if, "limit": self.limit}
+        return {
+            "numerator": self.numerator,
+            "denominator": self.denominator,
+            "ratio_by": self.ratio_by,
+            "pass_if": self.pass_if,
+            "limit": self.limit,
+        }
 
 
 @dataclass(frozen=True)
@@ -180,9 +205,15 @@ class Covariance:
     lag1_correction: bool = True
 
     def canonical(self) -> dict[str, Any]:
-        out: dict[str, Any] = {"x": self.x, "y": self.y, "group_by": self.group_by,
-                               "min_n": self.min_n, "min_r": self.min_r, "alpha": self.alpha,
-                               "lag1_correction": self.lag1_correction}
+        out: dict[str, Any] = {
+            "x": self.x,
+            "y": self.y,
+            "group_by": self.group_by,
+            "min_n": self.min_n,
+            "min_r": self.min_r,
+            "alpha": self.alpha,
+            "lag1_correction": self.lag1_correction,
+        }
         if self.window_m is not None:
             out["window_m"] = self.window_m
         return out
@@ -218,9 +249,14 @@ class Rule:
     spec: Spec
 
     def canonical(self) -> dict[str, Any]:
-        out: dict[str, Any] = {"name": self.name, "kind": self.kind,
-                               "description": self.description, "citation": self.citation,
-                               "confidence": self.confidence, "severity": self.severity}
+        out: dict[str, Any] = {
+            "name": self.name,
+            "kind": self.kind,
+            "description": self.description,
+            "citation": self.citation,
+            "confidence": self.confidence,
+            "severity": self.severity,
+        }
         scope = self.scope.canonical()
         if scope:
             out["scope"] = scope
@@ -240,14 +276,24 @@ class RuleSet:
     origin: str = field(default="", compare=False)
 
     def canonical(self) -> dict[str, Any]:
-        return {"ruleset": {"name": self.name, "version": self.version,
-                            "description": self.description},
-                "rule": [r.canonical() for r in sorted(self.rules, key=lambda r: r.name)]}
+        return {
+            "ruleset": {
+                "name": self.name,
+                "version": self.version,
+                "description": self.description,
+            },
+            "rule": [r.canonical() for r in sorted(self.rules, key=lambda r: r.name)],
+        }
 
     def canonical_text(self) -> str:
         """Canonical JSON: sorted keys, no spaces, UTF-8 text; ``parse_canonical`` reads it."""
-        return json.dumps(self.canonical(), sort_keys=True, ensure_ascii=False,
-                          separators=(",", ":"), allow_nan=False)
+        return json.dumps(
+            self.canonical(),
+            sort_keys=True,
+            ensure_ascii=False,
+            separators=(",", ":"),
+            allow_nan=False,
+        )
 
     @property
     def sha256(self) -> str:
@@ -271,8 +317,7 @@ def load_rules(path: Path | str | None = None) -> RuleSet:
     from strata13.compile.read.inputs import read_text
 
     p = Path(path) if path is not None else default_rules_path()
-    return parse_rules(read_text(p, "rule file", "Check the --rules path (a .toml file)."),
-                       p.name)
+    return parse_rules(read_text(p, "rule file", "Check the --rules path (a .toml file)."), p.name)
 
 
 def parse_rules(text: str, origin: str = "rules") -> RuleSet:
@@ -284,9 +329,11 @@ def parse_rules(text: str, origin: str = "rules") -> RuleSet:
         rule = _rule_at_line(text, line) if line else None
         where = f" at line {line}" if line else ""
         inside = f" (in rule {rule!r})" if rule else ""
-        raise ConfigError(f"{origin} is not valid TOML{where}{inside}: {_bare(exc)}.",
-                          "Check quotes, brackets and commas on that line; strings need "
-                          "double quotes, lists square brackets.") from None
+        raise ConfigError(
+            f"{origin} is not valid TOML{where}{inside}: {_bare(exc)}.",
+            "Check quotes, brackets and commas on that line; strings need "
+            "double quotes, lists square brackets.",
+        ) from None
     return _build(doc, origin)
 
 
@@ -300,6 +347,7 @@ def parse_canonical(text: str, origin: str = "stored rule set") -> RuleSet:
 
 
 # --- building and checking -------------------------------------------------------------
+
 
 def _error_line(exc: tomllib.TOMLDecodeError) -> int | None:
     line = getattr(exc, "lineno", None)
@@ -356,36 +404,45 @@ class _Ctx:
         if value is None and not required:
             return ""
         if not isinstance(value, str) or not value.strip():
-            raise self.fail(f"{key} is missing or empty.",
-                            _TEXT_HINTS.get(key, f"Add {key} = \"…\"."))
+            raise self.fail(
+                f"{key} is missing or empty.", _TEXT_HINTS.get(key, f'Add {key} = "…".')
+            )
         return value.strip()
 
     def number(self, block: dict[str, Any], key: str, default: float | None = None) -> float:
         value = block.get(key, default)
         if value is None:
             raise self.fail(f"{key} is missing.", f"Add {key} = <number>.")
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(
-                value):
-            raise self.fail(f"{key} = {value!r} is not a finite number.",
-                            f"Write {key} as a plain number, e.g. {key} = 10.")
+        if (
+            isinstance(value, bool)
+            or not isinstance(value, (int, float))
+            or not math.isfinite(value)
+        ):
+            raise self.fail(
+                f"{key} = {value!r} is not a finite number.",
+                f"Write {key} as a plain number, e.g. {key} = 10.",
+            )
         return float(value)
 
-    def choice(self, block: dict[str, Any], key: str, options: tuple[str, ...],
-               default: str | None = None) -> str:
+    def choice(
+        self, block: dict[str, Any], key: str, options: tuple[str, ...], default: str | None = None
+    ) -> str:
         value = block.get(key, default)
         if value is None:
             raise self.fail(f"{key} is missing.", f"Add {key} = one of {', '.join(options)}.")
         if value not in options:
-            raise self.fail(f"{key} = {value!r} is not one of {', '.join(options)}."
-                            + _did_you_mean(str(value), options),
-                            f"Use {key} = \"{options[0]}\" (or another of the listed values).")
+            raise self.fail(
+                f"{key} = {value!r} is not one of {', '.join(options)}."
+                + _did_you_mean(str(value), options),
+                f'Use {key} = "{options[0]}" (or another of the listed values).',
+            )
         return str(value)
 
 
 _TEXT_HINTS = {
-    "citation": "Give the reference the threshold comes from, or citation = \"common practice\".",
+    "citation": 'Give the reference the threshold comes from, or citation = "common practice".',
     "description": "Say in a sentence what the rule checks and that it is a rule of thumb.",
-    "confidence": "Say how firmly the value stands, e.g. confidence = \"from memory, low\".",
+    "confidence": 'Say how firmly the value stands, e.g. confidence = "from memory, low".',
 }
 
 
@@ -394,22 +451,28 @@ def _build(doc: Any, origin: str) -> RuleSet:
         raise ConfigError(f"{origin} is not a rule file.", "Start with a [ruleset] header.")
     for key in doc:
         if key not in TOP_KEYS:
-            raise ConfigError(f"{origin}: unknown top-level key {key!r}."
-                              + _did_you_mean(key, TOP_KEYS),
-                              "A rule file holds one [ruleset] header and [[rule]] entries.")
+            raise ConfigError(
+                f"{origin}: unknown top-level key {key!r}." + _did_you_mean(key, TOP_KEYS),
+                "A rule file holds one [ruleset] header and [[rule]] entries.",
+            )
     header = doc.get("ruleset")
     if not isinstance(header, dict):
-        raise ConfigError(f"{origin} has no [ruleset] header.",
-                          "Add [ruleset] with name, version and description.")
+        raise ConfigError(
+            f"{origin} has no [ruleset] header.",
+            "Add [ruleset] with name, version and description.",
+        )
     for key in header:
         if key not in HEADER_KEYS:
-            raise ConfigError(f"{origin}: unknown key {key!r} in [ruleset]."
-                              + _did_you_mean(key, HEADER_KEYS),
-                              f"Keys of [ruleset]: {', '.join(sorted(HEADER_KEYS))}.")
+            raise ConfigError(
+                f"{origin}: unknown key {key!r} in [ruleset]." + _did_you_mean(key, HEADER_KEYS),
+                f"Keys of [ruleset]: {', '.join(sorted(HEADER_KEYS))}.",
+            )
     for key in ("name", "version"):
         if not isinstance(header.get(key), str) or not header[key].strip():
-            raise ConfigError(f"{origin}: [ruleset] needs {key} = \"…\".",
-                              "Name and version identify the rule set in exports.")
+            raise ConfigError(
+                f'{origin}: [ruleset] needs {key} = "…".',
+                "Name and version identify the rule set in exports.",
+            )
     description = header.get("description", "")
     if not isinstance(description, str):
         raise ConfigError(f"{origin}: [ruleset] description must be text.", "")
@@ -421,12 +484,14 @@ def _build(doc: Any, origin: str) -> RuleSet:
     for i, entry in enumerate(entries, start=1):
         rule = _rule(entry, i, origin)
         if rule.name in seen:
-            raise ConfigError(f"{origin}: two rules are named {rule.name!r}.",
-                              "Give each [[rule]] its own name.")
+            raise ConfigError(
+                f"{origin}: two rules are named {rule.name!r}.", "Give each [[rule]] its own name."
+            )
         seen.add(rule.name)
         rules.append(rule)
-    return RuleSet(header["name"].strip(), header["version"].strip(), description.strip(),
-                   tuple(rules), origin)
+    return RuleSet(
+        header["name"].strip(), header["version"].strip(), description.strip(), tuple(rules), origin
+    )
 
 
 def _rule(entry: Any, index: int, origin: str) -> Rule:
@@ -435,20 +500,26 @@ def _rule(entry: Any, index: int, origin: str) -> Rule:
         raise ctx.fail("is not a table.", "Write each rule as a [[rule]] block.")
     name = entry.get("name")
     if not isinstance(name, str) or not RULE_NAME.match(name):
-        raise ctx.fail(f"name = {name!r} is not a valid rule name.",
-                       "Use 2–64 lowercase letters, digits and hyphens, e.g. name = \"mn-sr\".")
+        raise ctx.fail(
+            f"name = {name!r} is not a valid rule name.",
+            'Use 2–64 lowercase letters, digits and hyphens, e.g. name = "mn-sr".',
+        )
     ctx.rule = repr(name)
     kind = entry.get("kind")
     if kind is None:
         raise ctx.fail("has no kind.", f"Add kind = one of {', '.join(KINDS)}.")
     if kind not in KINDS:
-        raise ctx.fail(f"kind = {kind!r} is not a rule kind." + _did_you_mean(str(kind), KINDS),
-                       f"Rule kinds: {', '.join(KINDS)}.")
+        raise ctx.fail(
+            f"kind = {kind!r} is not a rule kind." + _did_you_mean(str(kind), KINDS),
+            f"Rule kinds: {', '.join(KINDS)}.",
+        )
     allowed = COMMON_KEYS | KIND_KEYS[kind]
     for key in entry:
         if key not in allowed:
-            raise ctx.fail(f"unknown key {key!r}." + _did_you_mean(key, allowed),
-                           f"Keys of a {kind} rule: {', '.join(sorted(allowed))}.")
+            raise ctx.fail(
+                f"unknown key {key!r}." + _did_you_mean(key, allowed),
+                f"Keys of a {kind} rule: {', '.join(sorted(allowed))}.",
+            )
     description = ctx.text(entry, "description")
     citation = ctx.text(entry, "citation")
     confidence = ctx.text(entry, "confidence")
@@ -468,19 +539,26 @@ def _rule(entry: Any, index: int, origin: str) -> Rule:
 
 def _scope(block: Any, ctx: _Ctx) -> Scope:
     if not isinstance(block, dict):
-        raise ctx.fail("scope must be a table.",
-                       "Example: scope = { age_max_ma = 538.8, component = [\"bulk\"] }")
+        raise ctx.fail(
+            "scope must be a table.",
+            'Example: scope = { age_max_ma = 538.8, component = ["bulk"] }',
+        )
     for key in block:
         if key not in SCOPE_KEYS:
-            raise ctx.fail(f"unknown scope key {key!r}." + _did_you_mean(key, SCOPE_KEYS),
-                           f"Scope keys: {', '.join(sorted(SCOPE_KEYS))}.")
+            raise ctx.fail(
+                f"unknown scope key {key!r}." + _did_you_mean(key, SCOPE_KEYS),
+                f"Scope keys: {', '.join(sorted(SCOPE_KEYS))}.",
+            )
     lo = ctx.number(block, "age_min_ma") if "age_min_ma" in block else None
     hi = ctx.number(block, "age_max_ma") if "age_max_ma" in block else None
     if lo is not None and hi is not None and lo > hi:
-        raise ctx.fail(f"scope age_min_ma = {lo:g} is older than age_max_ma = {hi:g}.",
-                       "Ages are in Ma: age_min_ma is the younger bound.")
-    lists = {key: _terms(block.get(key), key, key, ctx) for key in
-             ("component", "mineralogy", "setting")}
+        raise ctx.fail(
+            f"scope age_min_ma = {lo:g} is older than age_max_ma = {hi:g}.",
+            "Ages are in Ma: age_min_ma is the younger bound.",
+        )
+    lists = {
+        key: _terms(block.get(key), key, key, ctx) for key in ("component", "mineralogy", "setting")
+    }
     return Scope(lo, hi, **lists)
 
 
@@ -491,8 +569,9 @@ def _terms(value: Any, key: str, vocab: str | None, ctx: _Ctx) -> tuple[str, ...
     if isinstance(value, str):
         value = [value]
     if not isinstance(value, list) or not value or not all(isinstance(v, str) for v in value):
-        raise ctx.fail(f"{key} must be a non-empty list of text values.",
-                       f"Example: {key} = [\"…\", \"…\"]")
+        raise ctx.fail(
+            f"{key} must be a non-empty list of text values.", f'Example: {key} = ["…", "…"]'
+        )
     if vocab is None:
         return tuple(dict.fromkeys(v.strip() for v in value))
     voc = vocabulary(vocab)
@@ -501,15 +580,18 @@ def _terms(value: Any, key: str, vocab: str | None, ctx: _Ctx) -> tuple[str, ...
         term = voc.resolve(v)
         if term is None:
             sug = voc.suggest(v)
-            raise ctx.fail(f"{key} value {v!r} is not in the {vocab} vocabulary."
-                           + (f" Did you mean {sug!r}?" if sug else ""),
-                           f"Known terms: {', '.join(voc.terms)}.")
+            raise ctx.fail(
+                f"{key} value {v!r} is not in the {vocab} vocabulary."
+                + (f" Did you mean {sug!r}?" if sug else ""),
+                f"Known terms: {', '.join(voc.terms)}.",
+            )
         out.append(term)
     return tuple(dict.fromkeys(out))
 
 
-def _unknown_field(name: Any, key: str, options: set[str] | dict[str, Any], ctx: _Ctx,
-                   what: str) -> ConfigError:
+def _unknown_field(
+    name: Any, key: str, options: set[str] | dict[str, Any], ctx: _Ctx, what: str
+) -> ConfigError:
     """An unknown column; mapping-file names (``mn``) point to their stored column."""
     f = BY_NAME.get(str(name))
     if f is not None and f.stored in options:
@@ -518,17 +600,21 @@ def _unknown_field(name: Any, key: str, options: set[str] | dict[str, Any], ctx:
         hint = f" Did you mean {str(name)[:-9]!r} (screens test harmonised ‰ VPDB values)?"
     else:
         hint = _did_you_mean(str(name), set(options))
-    return ctx.fail(f"{key} = {name!r} is not a {what} column." + hint,
-                    f"{what.capitalize()} columns: {', '.join(sorted(options))}.")
+    return ctx.fail(
+        f"{key} = {name!r} is not a {what} column." + hint,
+        f"{what.capitalize()} columns: {', '.join(sorted(options))}.",
+    )
 
 
 def _numeric(entry: dict[str, Any], key: str, ctx: _Ctx, default: str | None = None) -> str:
     name = entry.get(key, default)
     if name is None:
-        raise ctx.fail(f"{key} is missing.", f"Add {key} = \"<stored column>\", e.g. \"mn_ppm\".")
+        raise ctx.fail(f"{key} is missing.", f'Add {key} = "<stored column>", e.g. "mn_ppm".')
     if name in CATEGORICAL_FIELDS:
-        raise ctx.fail(f"{key} = {name!r} is a categorical column.",
-                       "Test categories with kind = \"allowed-values\".")
+        raise ctx.fail(
+            f"{key} = {name!r} is a categorical column.",
+            'Test categories with kind = "allowed-values".',
+        )
     if name not in NUMERIC_FIELDS:
         raise _unknown_field(name, key, NUMERIC_FIELDS, ctx, "numeric")
     return str(name)
@@ -542,8 +628,10 @@ def _value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
     unit = entry.get("unit")
     units = UNITS[f.unit_kind]
     if unit not in units:
-        raise ctx.fail(f"unit = {unit!r} does not fit {name}." + _did_you_mean(str(unit), units),
-                       f"Units for {name}: {', '.join(units)} (stored in {f.stored_unit}).")
+        raise ctx.fail(
+            f"unit = {unit!r} does not fit {name}." + _did_you_mean(str(unit), units),
+            f"Units for {name}: {', '.join(units)} (stored in {f.stored_unit}).",
+        )
     return ValueLimit(name, pass_if, limit, str(unit))
 
 
@@ -554,20 +642,24 @@ def _ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
     for key, name in (("numerator", num), ("denominator", den)):
         f = NUMERIC_FIELDS[name]
         if f.ppm_factor is None:
-            raise ctx.fail(f"{key} = {name!r} is not a concentration (it is in {f.stored_unit}).",
-                           "Ratios are formed from concentration columns such as mn_ppm, "
-                           "sr_ppm, fe_ppm.")
+            raise ctx.fail(
+                f"{key} = {name!r} is not a concentration (it is in {f.stored_unit}).",
+                "Ratios are formed from concentration columns such as mn_ppm, sr_ppm, fe_ppm.",
+            )
         if ratio_by == "molar" and f.element is None:
-            raise ctx.fail(f"a molar ratio needs an element, and {name!r} is not one.",
-                           f"Use ratio_by = \"mass\", or elements with atomic masses: "
-                           f"{', '.join(sorted(ATOMIC_MASS))}.")
+            raise ctx.fail(
+                f"a molar ratio needs an element, and {name!r} is not one.",
+                f'Use ratio_by = "mass", or elements with atomic masses: '
+                f"{', '.join(sorted(ATOMIC_MASS))}.",
+            )
     if num == den:
         raise ctx.fail("numerator and denominator are the same column.", "Pick two columns.")
     pass_if = ctx.choice(entry, "pass_if", tuple(PASS_IF))
     limit = ctx.number(entry, "limit")
     if limit < 0:
-        raise ctx.fail(f"limit = {limit:g} is negative; a concentration ratio is not.",
-                       "Give a limit ≥ 0.")
+        raise ctx.fail(
+            f"limit = {limit:g} is negative; a concentration ratio is not.", "Give a limit ≥ 0."
+        )
     return RatioLimit(num, den, ratio_by, pass_if, limit)
 
 
@@ -576,7 +668,7 @@ def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
     x = _numeric(entry, "x", ctx, d.x)
     y = _numeric(entry, "y", ctx, d.y)
     if x == y:
-        raise ctx.fail("x and y are the same column.", "Use x = \"d18o_carb\", y = \"d13c_carb\".")
+        raise ctx.fail("x and y are the same column.", 'Use x = "d18o_carb", y = "d13c_carb".')
     group_by = ctx.choice(entry, "group_by", GROUP_BY, d.group_by)
     window = None
     if group_by == "window":
@@ -584,12 +676,16 @@ def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
         if window <= 0:
             raise ctx.fail("window_m must be > 0.", "Give the window width in metres.")
     elif "window_m" in entry:
-        raise ctx.fail(f"window_m is given but group_by = {group_by!r}.",
-                       "Use group_by = \"window\" or drop window_m.")
+        raise ctx.fail(
+            f"window_m is given but group_by = {group_by!r}.",
+            'Use group_by = "window" or drop window_m.',
+        )
     min_n = entry.get("min_n", d.min_n)
     if isinstance(min_n, bool) or not isinstance(min_n, int) or min_n < 3:
-        raise ctx.fail(f"min_n = {min_n!r} must be a whole number ≥ 3.",
-                       "A correlation needs at least 3 records; 10 is common practice.")
+        raise ctx.fail(
+            f"min_n = {min_n!r} must be a whole number ≥ 3.",
+            "A correlation needs at least 3 records; 10 is common practice.",
+        )
     min_r = ctx.number(entry, "min_r", d.min_r)
     if not -1.0 <= min_r <= 1.0:
         raise ctx.fail(f"min_r = {min_r:g} is outside −1 … 1.", "Example: min_r = 0.7")
@@ -605,15 +701,17 @@ def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
 def _allowed_values(entry: dict[str, Any], ctx: _Ctx) -> AllowedValues:
     name = entry.get("field")
     if name is None:
-        raise ctx.fail("field is missing.", "Add field = \"component\" (a categorical column).")
+        raise ctx.fail("field is missing.", 'Add field = "component" (a categorical column).')
     if name in NUMERIC_FIELDS:
-        raise ctx.fail(f"field = {name!r} is numeric.", "Use kind = \"value-limit\" for numbers.")
+        raise ctx.fail(f"field = {name!r} is numeric.", 'Use kind = "value-limit" for numbers.')
     if name not in CATEGORICAL_FIELDS:
         raise _unknown_field(name, "field", CATEGORICAL_FIELDS, ctx, "categorical")
     has_a, has_e = "allowed" in entry, "excluded" in entry
     if has_a == has_e:
-        raise ctx.fail("needs exactly one of allowed or excluded.",
-                       "Example: excluded = [\"cement\"] or allowed = [\"bulk\", \"micrite\"].")
+        raise ctx.fail(
+            "needs exactly one of allowed or excluded.",
+            'Example: excluded = ["cement"] or allowed = ["bulk", "micrite"].',
+        )
     key = "allowed" if has_a else "excluded"
     terms = _terms(entry[key], key, CATEGORICAL_FIELDS[name], ctx)
     return AllowedValues(str(name), terms if has_a else None, None if has_a else terms)

@@ -80,8 +80,14 @@ def _prefix(v: np.ndarray) -> np.ndarray:
     return out
 
 
-def interval_stats(x: np.ndarray, y: np.ndarray, pair_ok: np.ndarray, lo: np.ndarray,
-                   hi: np.ndarray, lag1_correction: bool = True) -> IntervalStats:
+def interval_stats(
+    x: np.ndarray,
+    y: np.ndarray,
+    pair_ok: np.ndarray,
+    lo: np.ndarray,
+    hi: np.ndarray,
+    lag1_correction: bool = True,
+) -> IntervalStats:
     """Statistics of ``x[lo:hi]`` against ``y[lo:hi]`` for every interval at once.
 
     ``x`` and ``y`` are sorted by group and position, finite, and best centred per group
@@ -115,8 +121,14 @@ def interval_stats(x: np.ndarray, y: np.ndarray, pair_ok: np.ndarray, lo: np.nda
     return IntervalStats(n.astype(np.int64), r, rho_x, rho_y, n_eff, p)
 
 
-def _lag1(v: np.ndarray, pair_ok: np.ndarray, lo: np.ndarray, hi: np.ndarray, m: np.ndarray,
-          svv: np.ndarray) -> np.ndarray:
+def _lag1(
+    v: np.ndarray,
+    pair_ok: np.ndarray,
+    lo: np.ndarray,
+    hi: np.ndarray,
+    m: np.ndarray,
+    svv: np.ndarray,
+) -> np.ndarray:
     """Lag-1 autocorrelation per interval from prefix sums over neighbouring pairs."""
     ok = np.asarray(pair_ok, dtype=float)
     if v.size < 2:

@@ -60,12 +60,18 @@ if TYPE_CHECKING:
 
 SECTION_KEY = ("source_id", "section_id")
 SAMPLE_KEY = (*SECTION_KEY, "sample_id")
-KEEP = ("position_m", "position_kind", "age_ma", "age_sigma_ma", "age_basis", "component",
-        "setting")
+KEEP = (
+    "position_m",
+    "position_kind",
+    "age_ma",
+    "age_sigma_ma",
+    "age_basis",
+    "component",
+    "setting",
+)
 WEIGHTS = ("sections", "samples")
 LEAVE = ("source", "section")
-QUANTILES = (("median", 0.5), ("q25", 0.25), ("q75", 0.75), ("p2_5", 0.025),
-             ("p97_5", 0.975))
+QUANTILES = (("median", 0.5), ("q25", 0.25), ("q75", 0.75), ("p2_5", 0.025), ("p97_5", 0.975))
 BAND = (2.5, 97.5)  # percentiles of the bootstrap fits
 MIN_WINDOW = 3  # a window's farthest sample has weight 0: a line needs two more
 SPREAD_TOL = 1e-12  # weighted variance of d/h below this × E[(d/h)²]: no slope (one age)
@@ -81,31 +87,39 @@ AgeDrawSource = Callable[[int], Any] | Mapping[int, Any] | np.ndarray
 
 def _check_span(span: float) -> float:
     if not (isinstance(span, int | float) and 0.0 < span <= 1.0):
-        raise OptionError(f"the LOESS span {span!r} is outside (0, 1].",
-                          "Give the fraction of samples in each window, e.g. 0.3.")
+        raise OptionError(
+            f"the LOESS span {span!r} is outside (0, 1].",
+            "Give the fraction of samples in each window, e.g. 0.3.",
+        )
     return float(span)
 
 
 def _check_weight(weight: str) -> str:
     if weight not in WEIGHTS:
-        raise OptionError(f"the weighting {weight!r} is neither 'sections' nor 'samples'.",
-                          "Weight by 'sections' (each section counts once) or 'samples'.")
+        raise OptionError(
+            f"the weighting {weight!r} is neither 'sections' nor 'samples'.",
+            "Weight by 'sections' (each section counts once) or 'samples'.",
+        )
     return weight
 
 
 def _check_columns(samples: pd.DataFrame, cols: Sequence[str], what: str) -> None:
     missing = [c for c in cols if c not in samples.columns]
     if missing:
-        raise DomainError(f"the samples lack the column(s) {', '.join(missing)} needed for "
-                          f"{what}.", "Average the replicates first (average_replicates), "
-                          "which keeps the key, age and value columns.")
+        raise DomainError(
+            f"the samples lack the column(s) {', '.join(missing)} needed for {what}.",
+            "Average the replicates first (average_replicates), "
+            "which keeps the key, age and value columns.",
+        )
 
 
 def _check_grid(grid: Any) -> np.ndarray:
     g = np.atleast_1d(np.asarray(grid, dtype=float))
     if g.ndim != 1 or g.size == 0 or not np.isfinite(g).all():
-        raise OptionError("the grid of ages is empty or has missing or infinite values.",
-                          "Give the ages (Ma) at which to evaluate the curve as finite numbers.")
+        raise OptionError(
+            "the grid of ages is empty or has missing or infinite values.",
+            "Give the ages (Ma) at which to evaluate the curve as finite numbers.",
+        )
     return g
 
 
@@ -117,17 +131,18 @@ def _window_size(n: int, span: float) -> int:
 def _need_window(n: int, span: float) -> int:
     k = _window_size(n, span)
     if k < MIN_WINDOW:
-        raise DomainError(f"a span of {span:g} covers {k} of {n} samples, but a local line "
-                          f"needs at least {MIN_WINDOW}.",
-                          "Widen the span or add samples (or a wider age range).")
+        raise DomainError(
+            f"a span of {span:g} covers {k} of {n} samples, but a local line "
+            f"needs at least {MIN_WINDOW}.",
+            "Widen the span or add samples (or a wider age range).",
+        )
     return k
 
 
 # ------------------------------------------------------------------ replicates
 
 
-def average_replicates(df: pd.DataFrame, value: str, keep: Sequence[str] = KEEP
-                       ) -> pd.DataFrame:
+def average_replicates(df: pd.DataFrame, value: str, keep: Sequence[str] = KEEP) -> pd.DataFrame:
     """One row per (source_id, section_id, sample_id): the mean of the replicates' ``value``.
 
     Why: replicate analyses of one sample are one observation of the rock; counting each
@@ -138,13 +153,18 @@ def average_replicates(df: pd.DataFrame, value: str, keep: Sequence[str] = KEEP
     """
     _check_columns(df, [*SAMPLE_KEY, value], "averaging replicates")
     if df.empty:
-        raise DomainError("there are no samples to average.",
-                          "Widen the query (interval, region, material) or ingest data.")
+        raise DomainError(
+            "there are no samples to average.",
+            "Widen the query (interval, region, material) or ingest data.",
+        )
     cols = [c for c in keep if c in df.columns and c not in SAMPLE_KEY]
     data = df.loc[df[value].notna(), [*SAMPLE_KEY, value, *cols]]
     grouped = data.groupby(list(SAMPLE_KEY), sort=False, dropna=False)
-    out = grouped[value].agg(["mean", "count"]).rename(
-        columns={"mean": "value", "count": "n_replicates"})
+    out = (
+        grouped[value]
+        .agg(["mean", "count"])
+        .rename(columns={"mean": "value", "count": "n_replicates"})
+    )
     if cols:
         out = out.join(grouped[cols].first())
     out = out.reset_index()
@@ -163,12 +183,16 @@ def bin_edges(older: float, younger: float, width: float) -> np.ndarray:
     """
     old, young = max(older, younger), min(older, younger)
     if not all(math.isfinite(v) for v in (old, young, width)) or width <= 0:
-        raise OptionError(f"bins of {width!r} Myr from {older!r} to {younger!r} Ma cannot be "
-                          "made.", "Give finite ages and a positive bin width in Myr.")
+        raise OptionError(
+            f"bins of {width!r} Myr from {older!r} to {younger!r} Ma cannot be made.",
+            "Give finite ages and a positive bin width in Myr.",
+        )
     if width > old - young:
-        raise OptionError(f"a bin width of {width:g} Myr is wider than the interval "
-                          f"{old:g}–{young:g} Ma ({old - young:g} Myr).",
-                          "Choose a narrower bin or a longer interval.")
+        raise OptionError(
+            f"a bin width of {width:g} Myr is wider than the interval "
+            f"{old:g}–{young:g} Ma ({old - young:g} Myr).",
+            "Choose a narrower bin or a longer interval.",
+        )
     n = max(1, math.ceil((old - young) / width - 1e-9))
     edges = old - width * np.arange(n + 1, dtype=float)
     edges[-1] = young
@@ -182,8 +206,9 @@ def _segments(keys: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
     return starts, counts
 
 
-def _sorted_quantiles(keys: np.ndarray, v: np.ndarray, w: np.ndarray | None, n: int,
-                      qs: Sequence[float]) -> np.ndarray:
+def _sorted_quantiles(
+    keys: np.ndarray, v: np.ndarray, w: np.ndarray | None, n: int, qs: Sequence[float]
+) -> np.ndarray:
     """Quantiles (len(qs) × n) per group of values sorted by (key, value); NaN if empty.
 
     ``w`` None: linear interpolation at h = (m − 1)·q (type 7). Weighted: the midpoint rule
@@ -229,10 +254,15 @@ def weighted_quantile(values: Any, weights: Any, q: float | Sequence[float]) -> 
     """
     v = np.asarray(values, dtype=float).ravel()
     w = np.asarray(weights, dtype=float).ravel()
-    if v.size == 0 or v.size != w.size or not (np.isfinite(v).all() and np.isfinite(w).all()
-                                               and (w > 0).all()):
-        raise DomainError("weighted quantiles need as many finite values as positive weights.",
-                          "Drop missing values and give every value a weight above 0.")
+    if (
+        v.size == 0
+        or v.size != w.size
+        or not (np.isfinite(v).all() and np.isfinite(w).all() and (w > 0).all())
+    ):
+        raise DomainError(
+            "weighted quantiles need as many finite values as positive weights.",
+            "Drop missing values and give every value a weight above 0.",
+        )
     order = np.argsort(v, kind="stable")
     qs = np.atleast_1d(np.asarray(q, dtype=float))
     res = _sorted_quantiles(np.zeros(v.size, dtype=np.int64), v[order], w[order], 1, qs)
@@ -260,13 +290,17 @@ def bin_stats(samples: pd.DataFrame, edges: Any, weight: str = "sections") -> pd
     _check_weight(weight)
     _check_columns(samples, [*SECTION_KEY, "age_ma", "value"], "binned statistics")
     if samples.empty:
-        raise DomainError("there are no samples to bin.",
-                          "Widen the query (interval, region, material) or ingest data.")
+        raise DomainError(
+            "there are no samples to bin.",
+            "Widen the query (interval, region, material) or ingest data.",
+        )
     raw = np.asarray(edges, dtype=float).ravel()
     e = np.unique(raw)
     if raw.size < 2 or e.size != raw.size or not np.isfinite(raw).all():
-        raise OptionError("bin edges must be at least two distinct finite ages.",
-                          "Give edges in Ma, e.g. from bin_edges() or stage boundaries.")
+        raise OptionError(
+            "bin edges must be at least two distinct finite ages.",
+            "Give edges in Ma, e.g. from bin_edges() or stage boundaries.",
+        )
     nb = e.size - 1
     age = samples["age_ma"].to_numpy(dtype=float, na_value=np.nan)
     val = samples["value"].to_numpy(dtype=float, na_value=np.nan)
@@ -278,8 +312,9 @@ def bin_stats(samples: pd.DataFrame, edges: Any, weight: str = "sections") -> pd
     order = np.lexsort((val, b))
     b, val, sec = b[order], val[order], sec[order]
 
-    pair, inverse, per_pair = np.unique(b * max(n_sec, 1) + sec, return_inverse=True,
-                                        return_counts=True)
+    pair, inverse, per_pair = np.unique(
+        b * max(n_sec, 1) + sec, return_inverse=True, return_counts=True
+    )
     n_samples = np.bincount(b, minlength=nb)
     n_sections = np.bincount(pair // max(n_sec, 1), minlength=nb)
     if weight == "sections":
@@ -292,9 +327,17 @@ def bin_stats(samples: pd.DataFrame, edges: Any, weight: str = "sections") -> pd
         with np.errstate(invalid="ignore", divide="ignore"):
             mean = np.bincount(b, weights=val, minlength=nb) / n_samples
         qv = _sorted_quantiles(b, val, None, nb, [q for _, q in QUANTILES])
-    out = pd.DataFrame({"age_old": e[1:], "age_young": e[:-1], "n_samples": n_samples,
-                        "n_sections": n_sections, "median": qv[0], "mean": mean,
-                        **{name: qv[j] for j, (name, _) in enumerate(QUANTILES) if j}})
+    out = pd.DataFrame(
+        {
+            "age_old": e[1:],
+            "age_young": e[:-1],
+            "n_samples": n_samples,
+            "n_sections": n_sections,
+            "median": qv[0],
+            "mean": mean,
+            **{name: qv[j] for j, (name, _) in enumerate(QUANTILES) if j},
+        }
+    )
     out = out.iloc[::-1].reset_index(drop=True)
     out.attrs.update({"weight": weight, "outside": int((~ok).sum())})
     return out
@@ -328,8 +371,9 @@ def _step(k: int, n_sec: int = 1) -> int:
     return max(1, CHUNK_ELEMENTS // max(k, n_sec, 1))
 
 
-def _tricube_chunk(xs: np.ndarray, ws: np.ndarray | None, grid: np.ndarray, win: _Windows,
-                   c0: int, c1: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _tricube_chunk(
+    xs: np.ndarray, ws: np.ndarray | None, grid: np.ndarray, win: _Windows, c0: int, c1: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """For grid ages c0..c1: window rows, u = (x − g)/h and weights (tricube × prior)."""
     rows = win.left[c0:c1]
     g = grid[c0:c1, None]
@@ -347,8 +391,9 @@ def _tricube_chunk(xs: np.ndarray, ws: np.ndarray | None, grid: np.ndarray, win:
     return rows, u, t
 
 
-def _line_value(s0: np.ndarray, mu: np.ndarray, var: np.ndarray, ybar: np.ndarray,
-                cov: np.ndarray) -> np.ndarray:
+def _line_value(
+    s0: np.ndarray, mu: np.ndarray, var: np.ndarray, ybar: np.ndarray, cov: np.ndarray
+) -> np.ndarray:
     """The weighted line's value at u = 0; the weighted mean where the ages do not spread."""
     with np.errstate(invalid="ignore", divide="ignore"):
         flat = var <= SPREAD_TOL * (var + mu * mu)
@@ -356,9 +401,15 @@ def _line_value(s0: np.ndarray, mu: np.ndarray, var: np.ndarray, ybar: np.ndarra
     return np.where(s0 > 0, fit, np.nan)
 
 
-def _fit_sorted(xs: np.ndarray, ys: np.ndarray, ws: np.ndarray | None, grid: np.ndarray,
-                k: int, sec: np.ndarray | None = None, n_sec: int = 0
-                ) -> tuple[np.ndarray, np.ndarray | None]:
+def _fit_sorted(
+    xs: np.ndarray,
+    ys: np.ndarray,
+    ws: np.ndarray | None,
+    grid: np.ndarray,
+    k: int,
+    sec: np.ndarray | None = None,
+    n_sec: int = 0,
+) -> tuple[np.ndarray, np.ndarray | None]:
     """LOESS at ``grid`` over ages sorted ascending; optionally contributing sections."""
     win = _windows(xs, grid, k)
     fit = np.empty(grid.size)
@@ -384,9 +435,16 @@ def _fit_sorted(xs: np.ndarray, ys: np.ndarray, ws: np.ndarray | None, grid: np.
     return fit, contrib
 
 
-def _fit(x: np.ndarray, y: np.ndarray, w: np.ndarray | None, grid: np.ndarray, span: float,
-         sec: np.ndarray | None = None, n_sec: int = 0, strict: bool = True
-         ) -> tuple[np.ndarray, np.ndarray | None]:
+def _fit(
+    x: np.ndarray,
+    y: np.ndarray,
+    w: np.ndarray | None,
+    grid: np.ndarray,
+    span: float,
+    sec: np.ndarray | None = None,
+    n_sec: int = 0,
+    strict: bool = True,
+) -> tuple[np.ndarray, np.ndarray | None]:
     """Sort, size the window and fit; ``strict=False`` gives NaN instead of an error."""
     n = x.size
     if strict:
@@ -394,11 +452,19 @@ def _fit(x: np.ndarray, y: np.ndarray, w: np.ndarray | None, grid: np.ndarray, s
     else:
         k = _window_size(n, span)
         if k < MIN_WINDOW:
-            return np.full(grid.size, np.nan), (np.zeros(grid.size, dtype=np.int64)
-                                                if sec is not None else None)
+            return np.full(grid.size, np.nan), (
+                np.zeros(grid.size, dtype=np.int64) if sec is not None else None
+            )
     order = np.argsort(x)  # ties are harmless: a tie cut by the window sits at h
-    return _fit_sorted(x[order], y[order], None if w is None else w[order], grid, k,
-                       None if sec is None else sec[order], n_sec)
+    return _fit_sorted(
+        x[order],
+        y[order],
+        None if w is None else w[order],
+        grid,
+        k,
+        None if sec is None else sec[order],
+        n_sec,
+    )
 
 
 def loess(x: Any, y: Any, grid: Any, span: float, weights: Any = None) -> np.ndarray:
@@ -413,18 +479,24 @@ def loess(x: Any, y: Any, grid: Any, span: float, weights: Any = None) -> np.nda
     ya = np.asarray(y, dtype=float).ravel()
     wa = None if weights is None else np.asarray(weights, dtype=float).ravel()
     if xa.size != ya.size or (wa is not None and wa.size != xa.size):
-        raise DomainError(f"LOESS got {xa.size} x, {ya.size} y"
-                          + ("" if wa is None else f" and {wa.size} weights")
-                          + " values; they must pair up.", "Give one y (and weight) per x.")
+        raise DomainError(
+            f"LOESS got {xa.size} x, {ya.size} y"
+            + ("" if wa is None else f" and {wa.size} weights")
+            + " values; they must pair up.",
+            "Give one y (and weight) per x.",
+        )
     ok = np.isfinite(xa) & np.isfinite(ya)
     if wa is not None:
         ok &= np.isfinite(wa)
         if (wa[ok] < 0).any():
-            raise DomainError("LOESS weights must not be negative.",
-                              "Give each sample a weight of 0 or more.")
+            raise DomainError(
+                "LOESS weights must not be negative.", "Give each sample a weight of 0 or more."
+            )
     if not ok.any():
-        raise DomainError("there are no samples with both an age and a value to fit.",
-                          "Widen the query or check that ages and values are present.")
+        raise DomainError(
+            "there are no samples with both an age and a value to fit.",
+            "Widen the query or check that ages and values are present.",
+        )
     g = _check_grid(grid)
     return _fit(xa[ok], ya[ok], None if wa is None else wa[ok], g, span)[0]
 
@@ -474,16 +546,20 @@ def _nearest_position(positions: Any, wanted: np.ndarray) -> tuple[np.ndarray, n
     order = np.argsort(p)
     ps = p[order]
     at = np.clip(np.searchsorted(ps, wanted), 1, max(ps.size - 1, 1))
-    at = np.where(np.abs(ps[at - 1] - wanted) <= np.abs(ps[np.minimum(at, ps.size - 1)]
-                                                          - wanted), at - 1, at)
+    at = np.where(
+        np.abs(ps[at - 1] - wanted) <= np.abs(ps[np.minimum(at, ps.size - 1)] - wanted), at - 1, at
+    )
     at = np.minimum(at, ps.size - 1)
     hit = np.abs(ps[at] - wanted) <= np.maximum(1e-4, 1e-6 * np.abs(wanted))
     return order[at], hit
 
 
-def sample_age_draws(samples: pd.DataFrame, n_draws: int, seed: int = 0,
-                     section_draws: Mapping[tuple[str, str], tuple[Any, Any]] | None = None
-                     ) -> SampleAgeDraws:
+def sample_age_draws(
+    samples: pd.DataFrame,
+    n_draws: int,
+    seed: int = 0,
+    section_draws: Mapping[tuple[str, str], tuple[Any, Any]] | None = None,
+) -> SampleAgeDraws:
     """Age draws for ``curve(age_draws=…)``, one age per row of ``samples`` per draw.
 
     ``section_draws`` maps (source_id, section_id) to (positions, draws): the section's
@@ -498,15 +574,24 @@ def sample_age_draws(samples: pd.DataFrame, n_draws: int, seed: int = 0,
         raise OptionError(f"{n_draws} age draws were asked for.", "Ask for at least one draw.")
     n = len(samples)
     age = samples["age_ma"].to_numpy(dtype=float, na_value=np.nan)
-    sig = (samples["age_sigma_ma"].to_numpy(dtype=float, na_value=np.nan)
-           if "age_sigma_ma" in samples.columns else np.full(n, np.nan))
-    basis = (samples["age_basis"].astype(object).to_numpy() if "age_basis" in samples.columns
-             else np.full(n, None, dtype=object))
+    sig = (
+        samples["age_sigma_ma"].to_numpy(dtype=float, na_value=np.nan)
+        if "age_sigma_ma" in samples.columns
+        else np.full(n, np.nan)
+    )
+    basis = (
+        samples["age_basis"].astype(object).to_numpy()
+        if "age_basis" in samples.columns
+        else np.full(n, None, dtype=object)
+    )
     taken = np.zeros(n, dtype=bool)
     groups: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
     if section_draws:
-        pos = (samples["position_m"].to_numpy(dtype=float, na_value=np.nan)
-               if "position_m" in samples.columns else np.full(n, np.nan))
+        pos = (
+            samples["position_m"].to_numpy(dtype=float, na_value=np.nan)
+            if "position_m" in samples.columns
+            else np.full(n, np.nan)
+        )
         model = np.flatnonzero(basis == AGE_MODEL)
         keys = samples.iloc[model][list(SECTION_KEY)].astype(str)
         for key, at_rows in keys.groupby(list(SECTION_KEY), sort=False).indices.items():
@@ -520,8 +605,15 @@ def sample_age_draws(samples: pd.DataFrame, n_draws: int, seed: int = 0,
     spread = np.isfinite(sig) & (sig > 0) & np.isfinite(age) & ~taken
     uniform = np.flatnonzero(spread & (basis == STAGE_ONLY))
     normal = np.flatnonzero(spread & (basis != STAGE_ONLY))
-    return SampleAgeDraws(age, np.where(np.isfinite(sig), sig, 0.0), uniform, normal,
-                          tuple(groups), int(n_draws), int(seed))
+    return SampleAgeDraws(
+        age,
+        np.where(np.isfinite(sig), sig, 0.0),
+        uniform,
+        normal,
+        tuple(groups),
+        int(n_draws),
+        int(seed),
+    )
 
 
 def _draw_getter(age_draws: AgeDrawSource, n_rows: int) -> Callable[[int], np.ndarray]:
@@ -537,17 +629,20 @@ def _draw_getter(age_draws: AgeDrawSource, n_rows: int) -> Callable[[int], np.nd
         n = len(age_draws) if hasattr(age_draws, "__len__") else 0  # type: ignore[arg-type]
         get = age_draws
     else:
-        raise OptionError(f"age draws of type {type(age_draws).__name__} are not understood.",
-                          "Give an array (draws × samples), a mapping draw → ages, or a "
-                          "callable draw → ages.")
+        raise OptionError(
+            f"age draws of type {type(age_draws).__name__} are not understood.",
+            "Give an array (draws × samples), a mapping draw → ages, or a callable draw → ages.",
+        )
     if n == 0 and not callable(age_draws):
         raise DomainError("the age draws are empty.", "Give at least one draw of the ages.")
 
     def ages(b: int) -> np.ndarray:
         out = np.asarray(get(b % n if n else b), dtype=float).ravel()
         if out.size != n_rows:
-            raise DomainError(f"age draw {b} gives {out.size} ages for {n_rows} samples.",
-                              "Give one age per row of the samples table, in its order.")
+            raise DomainError(
+                f"age draw {b} gives {out.size} ages for {n_rows} samples.",
+                "Give one age per row of the samples table, in its order.",
+            )
         return out
 
     return ages
@@ -561,22 +656,33 @@ def _prepare(samples: pd.DataFrame, weight: str) -> tuple[np.ndarray, ...]:
     _check_weight(weight)
     _check_columns(samples, [*SECTION_KEY, "age_ma", "value"], "a curve")
     if samples.empty:
-        raise DomainError("there are no samples to fit a curve to.",
-                          "Widen the query (interval, region, material) or ingest data.")
+        raise DomainError(
+            "there are no samples to fit a curve to.",
+            "Widen the query (interval, region, material) or ingest data.",
+        )
     age = samples["age_ma"].to_numpy(dtype=float, na_value=np.nan)
     val = samples["value"].to_numpy(dtype=float, na_value=np.nan)
     rows = np.flatnonzero(np.isfinite(age) & np.isfinite(val))
     if rows.size == 0:
-        raise DomainError("none of the samples has both an age and a value.",
-                          "Date the sections (ties or stages) or choose another value.")
+        raise DomainError(
+            "none of the samples has both an age and a value.",
+            "Date the sections (ties or stages) or choose another value.",
+        )
     sec, _ = _section_codes(samples.iloc[rows])
     per = np.bincount(sec)
     prior = 1.0 / per[sec] if weight == "sections" else np.ones(rows.size)
     return rows, age[rows], val[rows], sec, prior
 
 
-def _fast_replicates(x: np.ndarray, y: np.ndarray, prior: np.ndarray, sec: np.ndarray,
-                     counts: np.ndarray, grid: np.ndarray, k: int) -> np.ndarray:
+def _fast_replicates(
+    x: np.ndarray,
+    y: np.ndarray,
+    prior: np.ndarray,
+    sec: np.ndarray,
+    counts: np.ndarray,
+    grid: np.ndarray,
+    k: int,
+) -> np.ndarray:
     """Replicate fits (boots × grid) with the full data's windows, in one pass over them.
 
     Per grid age and section the window sums of w, w·u, w·u², w·y, w·u·y (w = tricube ×
@@ -606,9 +712,16 @@ def _fast_replicates(x: np.ndarray, y: np.ndarray, prior: np.ndarray, sec: np.nd
     return out
 
 
-def curve(samples: pd.DataFrame, grid: Any, span: float, boots: int = 200, seed: int = 0,
-          min_sections: int = 5, weight: str = "sections",
-          age_draws: AgeDrawSource | None = None) -> pd.DataFrame:
+def curve(
+    samples: pd.DataFrame,
+    grid: Any,
+    span: float,
+    boots: int = 200,
+    seed: int = 0,
+    min_sections: int = 5,
+    weight: str = "sections",
+    age_draws: AgeDrawSource | None = None,
+) -> pd.DataFrame:
     """A LOESS composite of ``value`` against ``age_ma`` with a whole-section bootstrap band.
 
     Columns, one row per grid age (in the grid's order): age, fit, lo, hi, n_sections,
@@ -627,11 +740,15 @@ def curve(samples: pd.DataFrame, grid: Any, span: float, boots: int = 200, seed:
     span = _check_span(span)
     g = _check_grid(grid)
     if not isinstance(boots, int | np.integer) or boots < 0:
-        raise OptionError(f"{boots!r} bootstrap draws were asked for.",
-                          "Give 0 (no band) or more draws, e.g. 1000.")
+        raise OptionError(
+            f"{boots!r} bootstrap draws were asked for.",
+            "Give 0 (no band) or more draws, e.g. 1000.",
+        )
     if min_sections < 1:
-        raise OptionError(f"min_sections {min_sections!r} is below 1.",
-                          "Give how many sections a band needs, e.g. 5.")
+        raise OptionError(
+            f"min_sections {min_sections!r} is below 1.",
+            "Give how many sections a band needs, e.g. 5.",
+        )
     rows, x, y, sec, prior = _prepare(samples, weight)
     n_sec = int(sec.max()) + 1
     k = _need_window(x.size, span)
@@ -662,19 +779,38 @@ def curve(samples: pd.DataFrame, grid: Any, span: float, boots: int = 200, seed:
     if some.any():
         band = np.nanpercentile(reps[:, some], BAND, axis=0)
         lo[some], hi[some] = band
-    out = pd.DataFrame({"age": g, "fit": fit, "lo": lo, "hi": hi, "n_sections": contrib,
-                        "band_shown": some})
-    out.attrs.update({"method": "LOESS (Cleveland 1979, degree 1) with a whole-section "
-                      "bootstrap", "span": span, "window": k, "boots": int(boots),
-                      "seed": seed, "weight": weight, "min_sections": min_sections,
-                      "age_draws": age_draws is not None, "n_samples": int(x.size),
-                      "n_sections": n_sec, "left_out": int(len(samples) - rows.size)})
+    out = pd.DataFrame(
+        {"age": g, "fit": fit, "lo": lo, "hi": hi, "n_sections": contrib, "band_shown": some}
+    )
+    out.attrs.update(
+        {
+            "method": "LOESS (Cleveland 1979, degree 1) with a whole-section bootstrap",
+            "span": span,
+            "window": k,
+            "boots": int(boots),
+            "seed": seed,
+            "weight": weight,
+            "min_sections": min_sections,
+            "age_draws": age_draws is not None,
+            "n_samples": int(x.size),
+            "n_sections": n_sec,
+            "left_out": int(len(samples) - rows.size),
+        }
+    )
     return out
 
 
-def curves(samples: pd.DataFrame, group_cols: str | Sequence[str], grid: Any, span: float,
-           boots: int = 200, seed: int = 0, min_sections: int = 5, weight: str = "sections",
-           age_draws: AgeDrawSource | None = None) -> pd.DataFrame:
+def curves(
+    samples: pd.DataFrame,
+    group_cols: str | Sequence[str],
+    grid: Any,
+    span: float,
+    boots: int = 200,
+    seed: int = 0,
+    min_sections: int = 5,
+    weight: str = "sections",
+    age_draws: AgeDrawSource | None = None,
+) -> pd.DataFrame:
     """``curve`` per group of ``group_cols`` (e.g. component and setting), stacked.
 
     Columns: the group columns, then those of ``curve``. Every group uses the same seed.
@@ -686,8 +822,10 @@ def curves(samples: pd.DataFrame, group_cols: str | Sequence[str], grid: Any, sp
     cols = [group_cols] if isinstance(group_cols, str) else list(group_cols)
     _check_columns(samples, cols, "grouping curves")
     if samples.empty:
-        raise DomainError("there are no samples to fit curves to.",
-                          "Widen the query (interval, region, material) or ingest data.")
+        raise DomainError(
+            "there are no samples to fit curves to.",
+            "Widen the query (interval, region, material) or ingest data.",
+        )
     getter = None if age_draws is None else _draw_getter(age_draws, len(samples))
     parts, skipped = [], []
     for label, idx in samples.groupby(cols, sort=True, dropna=False).indices.items():
@@ -702,10 +840,22 @@ def curves(samples: pd.DataFrame, group_cols: str | Sequence[str], grid: Any, sp
         for name, val in zip(cols, label_t, strict=True):
             c.insert(cols.index(name), name, val)
         parts.append(c)
-    out = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(
-        columns=[*cols, "age", "fit", "lo", "hi", "n_sections", "band_shown"])
-    out.attrs.update({"group_cols": cols, "skipped": skipped, "span": span, "boots": boots,
-                      "seed": seed, "weight": weight, "min_sections": min_sections})
+    out = (
+        pd.concat(parts, ignore_index=True)
+        if parts
+        else pd.DataFrame(columns=[*cols, "age", "fit", "lo", "hi", "n_sections", "band_shown"])
+    )
+    out.attrs.update(
+        {
+            "group_cols": cols,
+            "skipped": skipped,
+            "span": span,
+            "boots": boots,
+            "seed": seed,
+            "weight": weight,
+            "min_sections": min_sections,
+        }
+    )
     return out
 
 
@@ -727,8 +877,9 @@ class Robustness(NamedTuple):
     influence: pd.DataFrame  # left_out, max_abs_change, rms_change, n_samples, n_undefined
 
 
-def robustness(samples: pd.DataFrame, grid: Any, span: float, leave: str = "source",
-               weight: str = "sections") -> Robustness:
+def robustness(
+    samples: pd.DataFrame, grid: Any, span: float, leave: str = "source", weight: str = "sections"
+) -> Robustness:
     """Refit the curve without each source (or section) and rank them by influence.
 
     Why: a composite should not hang on one paper or one section. Each refit is a full
@@ -741,8 +892,10 @@ def robustness(samples: pd.DataFrame, grid: Any, span: float, leave: str = "sour
     import pandas as pd
 
     if leave not in LEAVE:
-        raise OptionError(f"cannot leave out {leave!r}; only a 'source' or a 'section'.",
-                          "Use leave='source' or leave='section'.")
+        raise OptionError(
+            f"cannot leave out {leave!r}; only a 'source' or a 'section'.",
+            "Use leave='source' or leave='section'.",
+        )
     span = _check_span(span)
     g = _check_grid(grid)
     rows, x, y, sec, prior = _prepare(samples, weight)
@@ -752,22 +905,32 @@ def robustness(samples: pd.DataFrame, grid: Any, span: float, leave: str = "sour
     if leave == "source":
         labels = used["source_id"].astype(str).to_numpy()
     else:
-        labels = (used["source_id"].astype(str) + "/" + used["section_id"].astype(str)
-                  ).to_numpy()
+        labels = (used["source_id"].astype(str) + "/" + used["section_id"].astype(str)).to_numpy()
     units, unit = np.unique(labels, return_inverse=True)
     curves_, infl = [], []
     for j, name in enumerate(units):
         keep = unit != j
-        fit_j = (_fit(x[keep], y[keep], prior[keep], g, span, strict=False)[0] if keep.any()
-                 else np.full(g.size, np.nan))
+        fit_j = (
+            _fit(x[keep], y[keep], prior[keep], g, span, strict=False)[0]
+            if keep.any()
+            else np.full(g.size, np.nan)
+        )
         curves_.append(pd.DataFrame({"left_out": name, "age": g, "fit": fit_j}))
         both = np.isfinite(full) & np.isfinite(fit_j)
         d = np.abs(fit_j[both] - full[both])
-        infl.append((name, float(d.max()) if d.size else np.nan,
-                     float(np.sqrt(np.mean(d * d))) if d.size else np.nan,
-                     int((~keep).sum()), int((np.isfinite(full) & ~np.isfinite(fit_j)).sum())))
-    influence = pd.DataFrame(infl, columns=["left_out", "max_abs_change", "rms_change",
-                                            "n_samples", "n_undefined"])
-    influence = influence.sort_values(["max_abs_change", "rms_change"], ascending=False,
-                                      na_position="last", kind="stable").reset_index(drop=True)
+        infl.append(
+            (
+                name,
+                float(d.max()) if d.size else np.nan,
+                float(np.sqrt(np.mean(d * d))) if d.size else np.nan,
+                int((~keep).sum()),
+                int((np.isfinite(full) & ~np.isfinite(fit_j)).sum()),
+            )
+        )
+    influence = pd.DataFrame(
+        infl, columns=["left_out", "max_abs_change", "rms_change", "n_samples", "n_undefined"]
+    )
+    influence = influence.sort_values(
+        ["max_abs_change", "rms_change"], ascending=False, na_position="last", kind="stable"
+    ).reset_index(drop=True)
     return Robustness(pd.concat(curves_, ignore_index=True), influence)

@@ -61,10 +61,23 @@ WINDOW_UNITS = ("ma", "m")
 VALUE_COLUMNS = ("value", "d13c_carb")  # looked for in this order when value_col is None
 
 PER_SECTION_COLUMNS = (
-    "source_id", "section_id", "group", "position_kind", "baseline", "baseline_window",
-    "peak_value", "peak_position_m", "peak_age_ma", "magnitude", "onset_position_m",
-    "onset_age_ma", "recovery_position_m", "recovery_age_ma", "n_samples",
-    "median_spacing_m", "flags",
+    "source_id",
+    "section_id",
+    "group",
+    "position_kind",
+    "baseline",
+    "baseline_window",
+    "peak_value",
+    "peak_position_m",
+    "peak_age_ma",
+    "magnitude",
+    "onset_position_m",
+    "onset_age_ma",
+    "recovery_position_m",
+    "recovery_age_ma",
+    "n_samples",
+    "median_spacing_m",
+    "flags",
 )
 SUMMARY_STATS = ("magnitude", "peak_age_ma", "onset_age_ma")
 
@@ -103,9 +116,14 @@ class Metrics:
 NAN = float("nan")
 
 
-def metrics(section_df: pd.DataFrame, baseline_window: Window | tuple[float, float, str]
-            | None = None, fraction: float = 0.10, direction: str = "auto",
-            position_kind: str | None = None, value_col: str | None = None) -> Metrics:
+def metrics(
+    section_df: pd.DataFrame,
+    baseline_window: Window | tuple[float, float, str] | None = None,
+    fraction: float = 0.10,
+    direction: str = "auto",
+    position_kind: str | None = None,
+    value_col: str | None = None,
+) -> Metrics:
     """Excursion metrics of one section's samples (columns ``position_m``, ``age_ma`` and
     the value: ``value_col``, else ``value``, else ``d13c_carb``).
 
@@ -115,24 +133,33 @@ def metrics(section_df: pd.DataFrame, baseline_window: Window | tuple[float, flo
     _check_request(fraction, direction)
     window = _window(baseline_window)
     if len(section_df) == 0:
-        raise DomainError("The interval holds no samples of this section.",
-                          "Widen the interval or check the section and filters.")
+        raise DomainError(
+            "The interval holds no samples of this section.",
+            "Widen the interval or check the section and filters.",
+        )
     vcol = _value_column(section_df, value_col)
     for col in ("position_m", "age_ma"):
         if col not in section_df.columns:
-            raise DomainError(f"The samples have no {col!r} column.",
-                              "Pass records with position_m and age_ma (NaN allowed).")
+            raise DomainError(
+                f"The samples have no {col!r} column.",
+                "Pass records with position_m and age_ma (NaN allowed).",
+            )
     flags: list[str] = []
     kind = position_kind
     if kind is None:
-        kinds = (set(section_df["position_kind"].dropna().astype(str))
-                 if "position_kind" in section_df.columns else set())
+        kinds = (
+            set(section_df["position_kind"].dropna().astype(str))
+            if "position_kind" in section_df.columns
+            else set()
+        )
         if len(kinds) > 1:
             return _empty(len(section_df), ["mixed_position_kinds"], "")
         kind = kinds.pop() if kinds else "height"
     if kind not in ("height", "depth"):
-        raise DomainError(f"Position kind {kind!r} is neither 'height' nor 'depth'.",
-                          "Give the section's position kind: height or depth.")
+        raise DomainError(
+            f"Position kind {kind!r} is neither 'height' nor 'depth'.",
+            "Give the section's position kind: height or depth.",
+        )
 
     pos = pd.to_numeric(section_df["position_m"], errors="coerce").to_numpy(float)
     age = pd.to_numeric(section_df["age_ma"], errors="coerce").to_numpy(float)
@@ -167,8 +194,9 @@ def metrics(section_df: pd.DataFrame, baseline_window: Window | tuple[float, flo
         lo, hi = sorted((float(window.lo), float(window.hi)))
         coord = age if window.unit == "ma" else pos
         inside = np.isfinite(coord) & (coord >= lo) & (coord <= hi)
-        described = f"{_fmt(hi)}–{_fmt(lo)} Ma" if window.unit == "ma" else \
-            f"{_fmt(lo)}–{_fmt(hi)} m"
+        described = (
+            f"{_fmt(hi)}–{_fmt(lo)} Ma" if window.unit == "ma" else f"{_fmt(lo)}–{_fmt(hi)} m"
+        )
         described += f" ({int(inside.sum())} samples)"
         if inside.sum() < MIN_BASELINE:
             return _empty(n, [*flags, "short_baseline"], described, spacing)
@@ -189,10 +217,16 @@ def metrics(section_df: pd.DataFrame, baseline_window: Window | tuple[float, flo
     d = sign * dep  # departure in the excursion's direction
     ipk = int(cand[np.argmax(d[cand])])  # first of equal peaks, stratigraphically
     magnitude = float(val[ipk] - baseline)
-    res = dict(baseline=baseline, baseline_window=described, peak_value=float(val[ipk]),
-               peak_position_m=float(pos[ipk]) if has_pos else NAN,
-               peak_age_ma=float(age[ipk]), magnitude=magnitude, n_samples=n,
-               median_spacing_m=spacing)
+    res = dict(
+        baseline=baseline,
+        baseline_window=described,
+        peak_value=float(val[ipk]),
+        peak_position_m=float(pos[ipk]) if has_pos else NAN,
+        peak_age_ma=float(age[ipk]),
+        magnitude=magnitude,
+        n_samples=n,
+        median_spacing_m=spacing,
+    )
     onset = recovery = (NAN, NAN)
     if d[ipk] <= 0.0:
         flags.append("no_departure")
@@ -204,21 +238,30 @@ def metrics(section_df: pd.DataFrame, baseline_window: Window | tuple[float, flo
             onset = _cross(d, pos, age, i, i + 1, thr)
         else:
             flags.append("starts_in_excursion")
-        after = np.flatnonzero(d[ipk + 1:] <= thr)
+        after = np.flatnonzero(d[ipk + 1 :] <= thr)
         if after.size:
             j = ipk + 1 + int(after[0])
             recovery = _cross(d, pos, age, j - 1, j, thr)
         else:
             flags.append("no_recovery")
-    return Metrics(**res, onset_position_m=onset[0] if has_pos else NAN,
-                   onset_age_ma=onset[1], recovery_position_m=recovery[0] if has_pos else NAN,
-                   recovery_age_ma=recovery[1], flags="; ".join(flags))
+    return Metrics(
+        **res,
+        onset_position_m=onset[0] if has_pos else NAN,
+        onset_age_ma=onset[1],
+        recovery_position_m=recovery[0] if has_pos else NAN,
+        recovery_age_ma=recovery[1],
+        flags="; ".join(flags),
+    )
 
 
-def per_section(df: pd.DataFrame, group_col: str | None = None,
-                baseline_window: Window | tuple[float, float, str] | None = None,
-                fraction: float = 0.10, direction: str = "auto",
-                value_col: str | None = None) -> pd.DataFrame:
+def per_section(
+    df: pd.DataFrame,
+    group_col: str | None = None,
+    baseline_window: Window | tuple[float, float, str] | None = None,
+    fraction: float = 0.10,
+    direction: str = "auto",
+    value_col: str | None = None,
+) -> pd.DataFrame:
     """One row per (source_id, section_id[, group]) with the columns ``PER_SECTION_COLUMNS``.
 
     ``group`` is the value of ``group_col`` (e.g. "region", "component"), None without one;
@@ -227,25 +270,37 @@ def per_section(df: pd.DataFrame, group_col: str | None = None,
     _check_request(fraction, direction)
     _window(baseline_window)
     if len(df) == 0:
-        raise DomainError("The interval holds no samples: there is nothing to measure.",
-                          "Widen the interval or loosen the filters.")
+        raise DomainError(
+            "The interval holds no samples: there is nothing to measure.",
+            "Widen the interval or loosen the filters.",
+        )
     keys = ["source_id", "section_id"] + ([group_col] if group_col else [])
     missing = [c for c in keys if c not in df.columns]
     if missing:
-        raise DomainError(f"The samples have no {', '.join(map(repr, missing))} column.",
-                          "Pass records as queried from the store, or name an existing "
-                          "group column.")
+        raise DomainError(
+            f"The samples have no {', '.join(map(repr, missing))} column.",
+            "Pass records as queried from the store, or name an existing group column.",
+        )
     vcol = _value_column(df, value_col)
     rows: list[dict[str, Any]] = []
     for key, part in df.groupby(keys, sort=True, dropna=False):
         m = metrics(part, baseline_window, fraction, direction, value_col=vcol)
-        kinds = (part["position_kind"].dropna().astype(str).unique()
-                 if "position_kind" in part.columns else np.array(["height"]))
-        rows.append({"source_id": key[0], "section_id": key[1],
-                     "group": key[2] if group_col else None,
-                     "position_kind": str(kinds[0]) if len(kinds) == 1 else
-                     ("height" if len(kinds) == 0 else "mixed"),
-                     **m.as_dict()})
+        kinds = (
+            part["position_kind"].dropna().astype(str).unique()
+            if "position_kind" in part.columns
+            else np.array(["height"])
+        )
+        rows.append(
+            {
+                "source_id": key[0],
+                "section_id": key[1],
+                "group": key[2] if group_col else None,
+                "position_kind": str(kinds[0])
+                if len(kinds) == 1
+                else ("height" if len(kinds) == 0 else "mixed"),
+                **m.as_dict(),
+            }
+        )
     return pd.DataFrame(rows, columns=list(PER_SECTION_COLUMNS))
 
 
@@ -259,11 +314,15 @@ def summary(per_section: pd.DataFrame, group_col: str | None = "group") -> pd.Da
     magnitude, peak_age_ma, onset_age_ma."""
     missing = [c for c in SUMMARY_STATS if c not in per_section.columns]
     if missing:
-        raise DomainError(f"The table has no {', '.join(missing)} column.",
-                          "Pass the table that per_section() returned.")
+        raise DomainError(
+            f"The table has no {', '.join(missing)} column.",
+            "Pass the table that per_section() returned.",
+        )
     if group_col is not None and group_col not in per_section.columns:
-        raise DomainError(f"The table has no {group_col!r} column.",
-                          "Name a column of the per-section table, or pass None.")
+        raise DomainError(
+            f"The table has no {group_col!r} column.",
+            "Name a column of the per-section table, or pass None.",
+        )
 
     def row(scope: str, group: Any, part: pd.DataFrame) -> dict[str, Any]:
         out: dict[str, Any] = {"scope": scope, "group": group, "n_sections": len(part)}
@@ -279,15 +338,18 @@ def summary(per_section: pd.DataFrame, group_col: str | None = "group") -> pd.Da
     if group_col is not None:
         for g, part in per_section.groupby(group_col, sort=True, dropna=True):
             rows.append(row("group", g, part))
-    cols = ["scope", "group", "n_sections"] + [f"{q}_{s}" for q in SUMMARY_STATS
-                                               for s in ("mean", "sd", "n")]
+    cols = ["scope", "group", "n_sections"] + [
+        f"{q}_{s}" for q in SUMMARY_STATS for s in ("mean", "sd", "n")
+    ]
     return pd.DataFrame(rows, columns=cols)
 
 
 # --- helpers --------------------------------------------------------------------------
 
-def _cross(d: np.ndarray, pos: np.ndarray, age: np.ndarray, i: int, j: int,
-           thr: float) -> tuple[float, float]:
+
+def _cross(
+    d: np.ndarray, pos: np.ndarray, age: np.ndarray, i: int, j: int, thr: float
+) -> tuple[float, float]:
     """Where the departure, linear between samples i and j (one each side of ``thr``),
     equals ``thr``: (position, age) at that same fraction of the way from i to j."""
     t = (thr - d[i]) / (d[j] - d[i])
@@ -295,17 +357,22 @@ def _cross(d: np.ndarray, pos: np.ndarray, age: np.ndarray, i: int, j: int,
 
 
 def _empty(n: int, flags: list[str], window: str, spacing: float = NAN) -> Metrics:
-    return Metrics(NAN, window, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, n, spacing,
-                   "; ".join(flags))
+    return Metrics(
+        NAN, window, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, n, spacing, "; ".join(flags)
+    )
 
 
 def _check_request(fraction: float, direction: str) -> None:
     if direction not in DIRECTIONS:
-        raise DomainError(f"Direction {direction!r} is not one of {', '.join(DIRECTIONS)}.",
-                          "Use auto (the sign of the larger departure), negative or positive.")
+        raise DomainError(
+            f"Direction {direction!r} is not one of {', '.join(DIRECTIONS)}.",
+            "Use auto (the sign of the larger departure), negative or positive.",
+        )
     if not (0.0 < float(fraction) < 1.0):
-        raise DomainError(f"The onset/recovery fraction {fraction} is not between 0 and 1.",
-                          "Give a fraction of the magnitude such as 0.1 (10 %).")
+        raise DomainError(
+            f"The onset/recovery fraction {fraction} is not between 0 and 1.",
+            "Give a fraction of the magnitude such as 0.1 (10 %).",
+        )
 
 
 def _window(w: Any) -> Window | None:
@@ -315,25 +382,33 @@ def _window(w: Any) -> Window | None:
         lo, hi, unit = w
         win = Window(float(lo), float(hi), str(unit).strip().lower())
     except (TypeError, ValueError):
-        raise DomainError(f"Baseline window {w!r} is not (lo, hi, unit).",
-                          "Give e.g. (184.0, 183.5, 'ma') or (0.0, 2.5, 'm').") from None
+        raise DomainError(
+            f"Baseline window {w!r} is not (lo, hi, unit).",
+            "Give e.g. (184.0, 183.5, 'ma') or (0.0, 2.5, 'm').",
+        ) from None
     if win.unit not in WINDOW_UNITS or not (np.isfinite(win.lo) and np.isfinite(win.hi)):
-        raise DomainError(f"Baseline window {w!r} needs finite bounds and unit 'ma' or 'm'.",
-                          "Give e.g. (184.0, 183.5, 'ma') or (0.0, 2.5, 'm').")
+        raise DomainError(
+            f"Baseline window {w!r} needs finite bounds and unit 'ma' or 'm'.",
+            "Give e.g. (184.0, 183.5, 'ma') or (0.0, 2.5, 'm').",
+        )
     return win
 
 
 def _value_column(df: pd.DataFrame, value_col: str | None) -> str:
     if value_col is not None:
         if value_col not in df.columns:
-            raise DomainError(f"The samples have no {value_col!r} column.",
-                              "Name the column holding the δ13C values.")
+            raise DomainError(
+                f"The samples have no {value_col!r} column.",
+                "Name the column holding the δ13C values.",
+            )
         return value_col
     for c in VALUE_COLUMNS:
         if c in df.columns:
             return c
-    raise DomainError("The samples have neither a 'value' nor a 'd13c_carb' column.",
-                      "Name the column holding the δ13C values with value_col.")
+    raise DomainError(
+        "The samples have neither a 'value' nor a 'd13c_carb' column.",
+        "Name the column holding the δ13C values with value_col.",
+    )
 
 
 def _fmt(x: float) -> str:

@@ -59,17 +59,25 @@ def group_style(groups: Sequence[Any]) -> dict[Any, tuple[str, str]]:
     """Colour and marker of each group, in sorted order of the groups' text (the same
     group gets the same style whatever else is plotted with it in one figure)."""
     ordered = sorted({g for g in groups}, key=str)
-    return {g: (PALETTE[i % len(PALETTE)], MARKERS[(i + i // len(PALETTE)) % len(MARKERS)])
-            for i, g in enumerate(ordered)}
+    return {
+        g: (PALETTE[i % len(PALETTE)], MARKERS[(i + i // len(PALETTE)) % len(MARKERS)])
+        for i, g in enumerate(ordered)
+    }
 
 
-def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
-                 bins: pd.DataFrame | Sequence[float] | None = None,
-                 robustness: pd.DataFrame | None = None,
-                 stages: Sequence[tuple[str, float, float]] | None = None,
-                 group_label: str = "group", title: str = "",
-                 size: tuple[float, float] = (8.0, 5.0), value_label: str = CARB_LABEL,
-                 merged: bool = False, note: str = "") -> Figure:
+def curve_figure(
+    samples: pd.DataFrame,
+    curve: pd.DataFrame,
+    bins: pd.DataFrame | Sequence[float] | None = None,
+    robustness: pd.DataFrame | None = None,
+    stages: Sequence[tuple[str, float, float]] | None = None,
+    group_label: str = "group",
+    title: str = "",
+    size: tuple[float, float] = (8.0, 5.0),
+    value_label: str = CARB_LABEL,
+    merged: bool = False,
+    note: str = "",
+) -> Figure:
     """δ13C against age: points by group, the LOESS curve of each group and its band.
 
     Inputs (pandas DataFrames):
@@ -98,16 +106,22 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
 
     samples = _frame(samples, SAMPLE_COLUMNS, "samples")
     curve = _frame(_age_alias(curve), CURVE_COLUMNS[:3], "curve")
-    robustness = None if robustness is None else _frame(_age_alias(robustness),
-                                                        ROBUST_COLUMNS, "robustness")
+    robustness = (
+        None if robustness is None else _frame(_age_alias(robustness), ROBUST_COLUMNS, "robustness")
+    )
     bin_table = _bins_frame(bins) if isinstance(bins, pd.DataFrame) else None
-    bin_edges = None if bins is None or bin_table is not None else \
-        np.asarray([float(b) for b in bins], dtype=float)
+    bin_edges = (
+        None
+        if bins is None or bin_table is not None
+        else np.asarray([float(b) for b in bins], dtype=float)
+    )
     pts = samples.dropna(subset=["age_ma", "value"])
     fit = curve.dropna(subset=["age_ma", "fit"])
     if pts.empty and fit.empty:
-        raise DomainError("There is nothing to plot: no dated samples and no curve.",
-                          "Widen the interval or loosen the filters.")
+        raise DomainError(
+            "There is nothing to plot: no dated samples and no curve.",
+            "Widen the interval or loosen the filters.",
+        )
 
     ages = [pts["age_ma"].to_numpy(float), fit["age_ma"].to_numpy(float)]
     if robustness is not None:
@@ -136,42 +150,67 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
     if bin_edges is not None:
         for e in bin_edges[np.isfinite(bin_edges)]:
             ax.axvline(e, color="0.75", linestyle=":", linewidth=0.7, zorder=1)
-        handles.append(Line2D([], [], color="0.75", linestyle=":", linewidth=0.7,
-                              label="bin edges"))
+        handles.append(
+            Line2D([], [], color="0.75", linestyle=":", linewidth=0.7, label="bin edges")
+        )
 
     band_drawn = False
     for g, (colour, marker) in styles.items():
         p = pts[pts["group"] == g]
         c = fit[fit["group"] == g].sort_values("age_ma", kind="stable")
         if len(p):
-            ax.scatter(p["age_ma"], p["value"], s=14, marker=marker, color=colour,
-                       alpha=0.7, linewidths=0, zorder=2)
+            ax.scatter(
+                p["age_ma"],
+                p["value"],
+                s=14,
+                marker=marker,
+                color=colour,
+                alpha=0.7,
+                linewidths=0,
+                zorder=2,
+            )
         if len(c):
             x = c["age_ma"].to_numpy(float)
             lo = pd.to_numeric(c["lo"], errors="coerce").to_numpy(float)
             hi = pd.to_numeric(c["hi"], errors="coerce").to_numpy(float)
-            shown = (c["band_shown"].fillna(False).astype(bool).to_numpy()
-                     if "band_shown" in c.columns else np.ones(len(c), bool))
+            shown = (
+                c["band_shown"].fillna(False).astype(bool).to_numpy()
+                if "band_shown" in c.columns
+                else np.ones(len(c), bool)
+            )
             shown = shown & np.isfinite(lo) & np.isfinite(hi)
             if shown.any():
-                ax.fill_between(x, lo, hi, where=shown, color=colour, alpha=0.22,
-                                linewidth=0, zorder=1.5)
+                ax.fill_between(
+                    x, lo, hi, where=shown, color=colour, alpha=0.22, linewidth=0, zorder=1.5
+                )
                 band_drawn = True
-        handles.append(Line2D([], [], color=colour, marker=marker, markersize=5,
-                              linewidth=2.0 if len(c) else 0.0,
-                              label=f"{g} (n = {len(p)})"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=colour,
+                marker=marker,
+                markersize=5,
+                linewidth=2.0 if len(c) else 0.0,
+                label=f"{g} (n = {len(p)})",
+            )
+        )
 
     if robustness is not None and len(robustness):
         r = robustness.dropna(subset=["age_ma", "fit"])
         if "group" not in r.columns:
             r = r.assign(group="")
-        for _, part in sorted(r.groupby(["group", "left_out"], sort=False),
-                              key=lambda kv: (str(kv[0][0]), str(kv[0][1]))):
+        for _, part in sorted(
+            r.groupby(["group", "left_out"], sort=False),
+            key=lambda kv: (str(kv[0][0]), str(kv[0][1])),
+        ):
             part = part.sort_values("age_ma", kind="stable")
-            ax.plot(part["age_ma"], part["fit"], color=ROBUST_COLOUR, linewidth=0.6,
-                    alpha=0.7, zorder=3)
-        handles.append(Line2D([], [], color=ROBUST_COLOUR, linewidth=0.6,
-                              label="refits, one left out each"))
+            ax.plot(
+                part["age_ma"], part["fit"], color=ROBUST_COLOUR, linewidth=0.6, alpha=0.7, zorder=3
+            )
+        handles.append(
+            Line2D([], [], color=ROBUST_COLOUR, linewidth=0.6, label="refits, one left out each")
+        )
 
     from matplotlib import patheffects
 
@@ -179,26 +218,49 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
     for g, (colour, _) in styles.items():
         c = fit[fit["group"] == g].sort_values("age_ma", kind="stable")
         if len(c):
-            ax.plot(c["age_ma"], c["fit"], color=colour, linewidth=2.0, zorder=4,
-                    path_effects=halo)
+            ax.plot(c["age_ma"], c["fit"], color=colour, linewidth=2.0, zorder=4, path_effects=halo)
     if band_drawn:
-        handles.append(Patch(color="0.5", alpha=0.3, linewidth=0,
-                             label="curve band (lo–hi)"))
+        handles.append(Patch(color="0.5", alpha=0.3, linewidth=0, label="curve band (lo–hi)"))
     if bin_table is not None and len(bin_table):
-        for g, part in sorted(bin_table.dropna(subset=["age_ma", "value"]).groupby(
-                "group", sort=False, dropna=False), key=lambda kv: str(kv[0])):
+        for g, part in sorted(
+            bin_table.dropna(subset=["age_ma", "value"]).groupby("group", sort=False, dropna=False),
+            key=lambda kv: str(kv[0]),
+        ):
             colour = styles.get(g, ("0.3", "o"))[0]
             yerr = None
             if {"lo", "hi"} <= set(part.columns):
                 v = part["value"].to_numpy(float)
-                yerr = np.vstack([np.clip(v - part["lo"].to_numpy(float), 0, None),
-                                  np.clip(part["hi"].to_numpy(float) - v, 0, None)])
+                yerr = np.vstack(
+                    [
+                        np.clip(v - part["lo"].to_numpy(float), 0, None),
+                        np.clip(part["hi"].to_numpy(float) - v, 0, None),
+                    ]
+                )
                 yerr = np.nan_to_num(yerr)
-            ax.errorbar(part["age_ma"], part["value"], yerr=yerr, fmt="s", markersize=5,
-                        markerfacecolor="white", markeredgecolor=colour, ecolor=colour,
-                        elinewidth=1.0, capsize=2, zorder=5)
-        handles.append(Line2D([], [], marker="s", markerfacecolor="white",
-                              markeredgecolor="0.3", linewidth=0, label="bin summaries"))
+            ax.errorbar(
+                part["age_ma"],
+                part["value"],
+                yerr=yerr,
+                fmt="s",
+                markersize=5,
+                markerfacecolor="white",
+                markeredgecolor=colour,
+                ecolor=colour,
+                elinewidth=1.0,
+                capsize=2,
+                zorder=5,
+            )
+        handles.append(
+            Line2D(
+                [],
+                [],
+                marker="s",
+                markerfacecolor="white",
+                markeredgecolor="0.3",
+                linewidth=0,
+                label="bin summaries",
+            )
+        )
 
     ax.set_xlim((old, young) if OLDER_ON_LEFT else (young, old))
     ax.set_ylabel(value_label)
@@ -211,18 +273,29 @@ def curve_figure(samples: pd.DataFrame, curve: pd.DataFrame,
         ax.set_title("\n".join(notes), fontsize="small", style="italic", loc="left")
     if title:
         fig.suptitle(title)
-    fig.legend(handles=handles, loc="outside right upper", title=group_label,
-               fontsize="small", title_fontsize="small", frameon=False)
+    fig.legend(
+        handles=handles,
+        loc="outside right upper",
+        title=group_label,
+        fontsize="small",
+        title_fontsize="small",
+        frameon=False,
+    )
     if strip is not None:  # last: names are measured against the final layout
         ax.tick_params(labelbottom=False)
         _stage_strip(fig, strip, stage_list)
     return fig
 
 
-def excursion_figure(df: pd.DataFrame, per_section: pd.DataFrame,
-                     size: tuple[float, float] | None = None, group_col: str | None = None,
-                     value_col: str | None = None, value_label: str = CARB_LABEL,
-                     title: str = "") -> Figure:
+def excursion_figure(
+    df: pd.DataFrame,
+    per_section: pd.DataFrame,
+    size: tuple[float, float] | None = None,
+    group_col: str | None = None,
+    value_col: str | None = None,
+    value_label: str = CARB_LABEL,
+    title: str = "",
+) -> Figure:
     """Each section's δ13C against its position relative to the onset, one panel per
     section side by side, sharing that vertical axis (0 = onset, up = younger: height −
     onset height, or onset depth − depth). The baseline is a dashed vertical line, the
@@ -241,14 +314,17 @@ def excursion_figure(df: pd.DataFrame, per_section: pd.DataFrame,
     vcol = _value_column(df, value_col)
     for col in ("source_id", "section_id", "position_m", *([group_col] if group_col else [])):
         if col not in df.columns:
-            raise DomainError(f"The records have no {col!r} column.",
-                              "Pass the records the per-section table was made from.")
+            raise DomainError(
+                f"The records have no {col!r} column.",
+                "Pass the records the per-section table was made from.",
+            )
     ok = np.isfinite(pd.to_numeric(per_section["onset_position_m"], errors="coerce"))
     shown, skipped = per_section[ok.to_numpy()], per_section[~ok.to_numpy()]
     if shown.empty:
-        raise DomainError("No section has an onset to align on.",
-                          "Check the flags of the per-section table (starts_in_excursion, "
-                          "too_few_samples …).")
+        raise DomainError(
+            "No section has an onset to align on.",
+            "Check the flags of the per-section table (starts_in_excursion, too_few_samples …).",
+        )
     n = len(shown)
     size = size if size is not None else (max(4.0, 1.9 * n + 1.2), 6.0)
     fig = Figure(figsize=size, dpi=DPI, layout="constrained")
@@ -268,14 +344,25 @@ def excursion_figure(df: pd.DataFrame, per_section: pd.DataFrame,
         onset = float(row["onset_position_m"])
         y = (onset - pos[keep]) if depth else (pos[keep] - onset)
         order = np.argsort(y, kind="stable")
-        ax.plot(val[keep][order], y[order], color=PALETTE[0], linewidth=0.9, marker="o",
-                markersize=3, zorder=3)
+        ax.plot(
+            val[keep][order],
+            y[order],
+            color=PALETTE[0],
+            linewidth=0.9,
+            marker="o",
+            markersize=3,
+            zorder=3,
+        )
         ax.axvline(float(row["baseline"]), color="0.35", linestyle="--", linewidth=1.0)
         ax.axhline(0.0, color=PALETTE[1], linewidth=1.3)
         rec = float(row["recovery_position_m"])
         if np.isfinite(rec):
-            ax.axhline((onset - rec) if depth else (rec - onset), color=PALETTE[1],
-                       linestyle=":", linewidth=1.3)
+            ax.axhline(
+                (onset - rec) if depth else (rec - onset),
+                color=PALETTE[1],
+                linestyle=":",
+                linewidth=1.3,
+            )
         label = str(row["section_id"]) + "\n" + str(row["source_id"])
         if group_col and row["group"] is not None:
             label += f"\n{row['group']}"
@@ -283,27 +370,30 @@ def excursion_figure(df: pd.DataFrame, per_section: pd.DataFrame,
         ax.grid(True, color="0.9", linewidth=0.5)
         ax.set_axisbelow(True)
         ax.tick_params(labelsize="small")
-    axes[0].set_ylabel("Position above onset (m)" + ("; depths: onset − depth"
-                                                     if any_depth else ""))
+    axes[0].set_ylabel(
+        "Position above onset (m)" + ("; depths: onset − depth" if any_depth else "")
+    )
     fig.supxlabel(value_label, fontsize="medium")
     lines = [title] if title else []
     if len(skipped):
-        lines.append("not shown, no onset to align on: "
-                     + ", ".join(map(str, skipped["section_id"])))
+        lines.append(
+            "not shown, no onset to align on: " + ", ".join(map(str, skipped["section_id"]))
+        )
     if lines:
         fig.suptitle("\n".join(lines), fontsize="medium")
-    handles = [Line2D([], [], color=PALETTE[0], marker="o", markersize=3, linewidth=0.9,
-                      label="samples"),
-               Line2D([], [], color="0.35", linestyle="--", label="baseline"),
-               Line2D([], [], color=PALETTE[1], linewidth=1.3, label="onset"),
-               Line2D([], [], color=PALETTE[1], linestyle=":", linewidth=1.3,
-                      label="recovery")]
+    handles = [
+        Line2D([], [], color=PALETTE[0], marker="o", markersize=3, linewidth=0.9, label="samples"),
+        Line2D([], [], color="0.35", linestyle="--", label="baseline"),
+        Line2D([], [], color=PALETTE[1], linewidth=1.3, label="onset"),
+        Line2D([], [], color=PALETTE[1], linestyle=":", linewidth=1.3, label="recovery"),
+    ]
     fig.legend(handles=handles, loc="outside right upper", fontsize="small", frameon=False)
     return fig
 
 
-def save_figure(fig: Figure, path_png: str | Path | None,
-                path_svg: str | Path | None) -> tuple[Path | None, Path | None]:
+def save_figure(
+    fig: Figure, path_png: str | Path | None, path_svg: str | Path | None
+) -> tuple[Path | None, Path | None]:
     """Write ``fig`` as PNG (``DPI``, no software tag: PNG from Agg carries no date) and as
     SVG (hash salt ``SVG_SALT``, creator ``SVG_CREATOR``, no date), either may be None.
     The same figure inputs give the same bytes. Returns the two paths."""
@@ -311,26 +401,31 @@ def save_figure(fig: Figure, path_png: str | Path | None,
 
     png = None if path_png is None else Path(path_png)
     svg = None if path_svg is None else Path(path_svg)
-    with matplotlib.rc_context({"svg.hashsalt": SVG_SALT, "svg.id": "strata13-figure",
-                                "svg.fonttype": "path"}):
+    with matplotlib.rc_context(
+        {"svg.hashsalt": SVG_SALT, "svg.id": "strata13-figure", "svg.fonttype": "path"}
+    ):
         if png is not None:
             fig.savefig(png, format="png", dpi=DPI, metadata={"Software": None})
         if svg is not None:
-            fig.savefig(svg, format="svg",
-                        metadata={"Date": None, "Creator": SVG_CREATOR})
+            fig.savefig(svg, format="svg", metadata={"Date": None, "Creator": SVG_CREATOR})
     return png, svg
 
 
 # --- helpers --------------------------------------------------------------------------
 
+
 def _frame(df: Any, columns: Sequence[str], what: str) -> pd.DataFrame:
     if not isinstance(df, pd.DataFrame):
-        raise DomainError(f"The {what} table is not a pandas DataFrame.",
-                          f"Pass a DataFrame with columns {', '.join(columns)}.")
+        raise DomainError(
+            f"The {what} table is not a pandas DataFrame.",
+            f"Pass a DataFrame with columns {', '.join(columns)}.",
+        )
     missing = [c for c in columns if c not in df.columns]
     if missing:
-        raise DomainError(f"The {what} table has no {', '.join(missing)} column.",
-                          f"Its columns are {', '.join(columns)}.")
+        raise DomainError(
+            f"The {what} table has no {', '.join(missing)} column.",
+            f"Its columns are {', '.join(columns)}.",
+        )
     return df
 
 
@@ -344,15 +439,21 @@ def _bins_frame(df: pd.DataFrame) -> pd.DataFrame:
     """Per-bin summaries as group, age_ma, value, lo, hi (from either documented form)."""
     if "age_ma" not in df.columns and {"age_old", "age_young"} <= set(df.columns):
         df = _frame(df, BIN_STATS_COLUMNS, "bins")
-        return pd.DataFrame({
-            "group": df["group"] if "group" in df.columns else None,
-            "age_ma": (df["age_old"].astype(float) + df["age_young"].astype(float)) / 2,
-            "value": df["median"], "lo": df["q25"], "hi": df["q75"]})
+        return pd.DataFrame(
+            {
+                "group": df["group"] if "group" in df.columns else None,
+                "age_ma": (df["age_old"].astype(float) + df["age_young"].astype(float)) / 2,
+                "value": df["median"],
+                "lo": df["q25"],
+                "hi": df["q75"],
+            }
+        )
     return _frame(df, BIN_COLUMNS, "bins")
 
 
-def _stages_in(stages: Sequence[tuple[str, float, float]] | None, old: float,
-               young: float) -> list[tuple[str, float, float]]:
+def _stages_in(
+    stages: Sequence[tuple[str, float, float]] | None, old: float, young: float
+) -> list[tuple[str, float, float]]:
     """The stages overlapping [young, old], clipped to it, oldest first."""
     out = []
     for name, base, top in stages or ():
@@ -371,8 +472,9 @@ def _stage_strip(fig: Figure, strip: Axes, stages: list[tuple[str, float, float]
     texts = []
     for i, (name, base, top) in enumerate(stages):
         strip.axvspan(base, top, color=STAGE_STRIP[i % 2], linewidth=0)
-        t = strip.text((base + top) / 2, 0.5, name, ha="center", va="center",
-                       fontsize="small", clip_on=True)
+        t = strip.text(
+            (base + top) / 2, 0.5, name, ha="center", va="center", fontsize="small", clip_on=True
+        )
         t.set_in_layout(False)
         texts.append((t, base, top))
     fig.canvas.draw()  # lay the figure out, so text and box widths are final

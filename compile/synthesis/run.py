@@ -49,29 +49,40 @@ class CurveRequest:
 
     def check(self) -> None:
         if self.isotope not in ISOTOPES:
-            raise OptionError(f"--isotope {self.isotope!r} is not carb or org.",
-                              "Curves are of carbonate (carb) or organic (org) δ13C.")
+            raise OptionError(
+                f"--isotope {self.isotope!r} is not carb or org.",
+                "Curves are of carbonate (carb) or organic (org) δ13C.",
+            )
         if self.by is not None and self.by not in BY:
-            raise OptionError(f"--by {self.by!r} is not one of {', '.join(BY)}.",
-                              "Example: --by region")
+            raise OptionError(
+                f"--by {self.by!r} is not one of {', '.join(BY)}.", "Example: --by region"
+            )
         if self.bin_myr is not None and not self.bin_myr > 0:
-            raise OptionError(f"--bin-myr {self.bin_myr:g} must be above 0.",
-                              "Example: --bin-myr 0.5")
+            raise OptionError(
+                f"--bin-myr {self.bin_myr:g} must be above 0.", "Example: --bin-myr 0.5"
+            )
         if not 0 < self.span <= 1:
-            raise OptionError(f"--span {self.span:g} is outside (0, 1].",
-                              "The span is the fraction of samples in each local fit; 0.3 is "
-                              "a common start.")
+            raise OptionError(
+                f"--span {self.span:g} is outside (0, 1].",
+                "The span is the fraction of samples in each local fit; 0.3 is a common start.",
+            )
         if self.boots < 0 or self.boots > 10_000:
-            raise OptionError(f"--boots {self.boots} is outside 0 … 10000.",
-                              "200 bootstrap draws give stable 95 % bands (common practice).")
+            raise OptionError(
+                f"--boots {self.boots} is outside 0 … 10000.",
+                "200 bootstrap draws give stable 95 % bands (common practice).",
+            )
         if self.age_draws < 0 or self.age_draws > 10_000:
-            raise OptionError(f"--age-draws {self.age_draws} is outside 0 … 10000.",
-                              "Use up to the number of draws the store keeps (see redate).")
+            raise OptionError(
+                f"--age-draws {self.age_draws} is outside 0 … 10000.",
+                "Use up to the number of draws the store keeps (see redate).",
+            )
         if self.min_sections < 1:
             raise OptionError("--min-sections must be at least 1.", "The default is 5.")
         if self.weight not in ("sections", "samples"):
-            raise OptionError(f"--weight {self.weight!r} is not sections or samples.",
-                              "Sections weigh equally by default.")
+            raise OptionError(
+                f"--weight {self.weight!r} is not sections or samples.",
+                "Sections weigh equally by default.",
+            )
 
 
 @dataclass
@@ -97,18 +108,22 @@ def _region_names(store: Store, lon: Any, lat: Any) -> Any:
     finally:
         con.close()
     if not named:
-        raise DomainError("the store has no named regions for --by region.",
-                          "Create the store with --regions FILE.")
+        raise DomainError(
+            "the store has no named regions for --by region.",
+            "Create the store with --regions FILE.",
+        )
     out = np.full(len(lon), "outside any region", dtype=object)
     for name in sorted(named):
-        inside = resolve_region(name, named).contains(np.asarray(lon, float),
-                                                      np.asarray(lat, float))
+        inside = resolve_region(name, named).contains(
+            np.asarray(lon, float), np.asarray(lat, float)
+        )
         out[inside & (out == "outside any region")] = name
     return out
 
 
-def samples_for(store: Store, filters: Filters, req: CurveRequest, *,
-                as_of: int | None = None) -> Samples:
+def samples_for(
+    store: Store, filters: Filters, req: CurveRequest, *, as_of: int | None = None
+) -> Samples:
     """The filtered records, one value per sample, each with its group label."""
     import numpy as np
     import pandas as pd
@@ -124,9 +139,10 @@ def samples_for(store: Store, filters: Filters, req: CurveRequest, *,
         con.close()
     df = table.to_pandas()
     if df.empty:
-        raise DomainError("no records match these filters; there is nothing to draw.",
-                          "Widen --interval or drop a filter; `strata13 query` shows what "
-                          "matches.")
+        raise DomainError(
+            "no records match these filters; there is nothing to draw.",
+            "Widen --interval or drop a filter; `strata13 query` shows what matches.",
+        )
     notes: list[str] = []
     frames = []
     kinds = ["carb", "org"] if req.allow_mixed else [req.isotope]
@@ -141,26 +157,33 @@ def samples_for(store: Store, filters: Filters, req: CurveRequest, *,
             part["sample_id"] = part["sample_id"].astype(str) + f" ({kind})"
         frames.append(part)
     if not frames:
-        raise DomainError(f"none of the {len(df)} matching records has a harmonised "
-                          f"{ISOTOPES[req.isotope]} value.",
-                          "Check `strata13 query` (values may be pending) or --isotope.")
+        raise DomainError(
+            f"none of the {len(df)} matching records has a harmonised "
+            f"{ISOTOPES[req.isotope]} value.",
+            "Check `strata13 query` (values may be pending) or --isotope.",
+        )
     data = pd.concat(frames, ignore_index=True)
     merged = req.allow_mixed and data["isotope"].nunique() > 1
     if req.allow_mixed and not merged:
         notes.append("--allow-mixed: only one kind of δ13C matched, nothing was merged")
     if req.by is None:
-        label = data["component"].fillna("component not stated") + " · " + \
-            data["setting"].fillna("setting not stated")
+        label = (
+            data["component"].fillna("component not stated")
+            + " · "
+            + data["setting"].fillna("setting not stated")
+        )
     elif req.by == "region":
         label = pd.Series(_region_names(store, data["lon"], data["lat"]), index=data.index)
     elif req.by == "paleolat-band":
         if data["paleolat"].isna().all():
-            raise DomainError("no matching record has a paleolatitude (the store has no "
-                              "rotation model yet).", "Group --by region, source, setting or "
-                              "component instead.")
+            raise DomainError(
+                "no matching record has a paleolatitude (the store has no rotation model yet).",
+                "Group --by region, source, setting or component instead.",
+            )
         band = np.floor(data["paleolat"] / 30.0) * 30.0
-        label = band.map(lambda b: "no paleolatitude" if pd.isna(b) else
-                         f"{b:+.0f}° to {b + 30:+.0f}°")
+        label = band.map(
+            lambda b: "no paleolatitude" if pd.isna(b) else f"{b:+.0f}° to {b + 30:+.0f}°"
+        )
     else:
         label = data[{"source": "source_id"}.get(req.by, req.by)].fillna(f"{req.by} not stated")
     if not merged and req.by is not None and req.by != "component":
@@ -172,29 +195,51 @@ def samples_for(store: Store, filters: Filters, req: CurveRequest, *,
     data["group"] = label.astype(str)
     data = data[data["age_ma"].notna()]
     if data.empty:
-        raise DomainError("the matching records have no ages yet; a curve needs ages.",
-                          "Add age ties (see `strata13 agemodel`) or reported ages.")
-    keep = ("position_m", "position_kind", "age_ma", "age_sigma_ma", "age_basis", "component",
-            "setting", "group", "isotope")
+        raise DomainError(
+            "the matching records have no ages yet; a curve needs ages.",
+            "Add age ties (see `strata13 agemodel`) or reported ages.",
+        )
+    keep = (
+        "position_m",
+        "position_kind",
+        "age_ma",
+        "age_sigma_ma",
+        "age_basis",
+        "component",
+        "setting",
+        "group",
+        "isotope",
+    )
     samples = average_replicates(data, "value", keep=keep)
-    value_label = "δ13C carb and org (‰ VPDB)" if merged else (
-        CARB_LABEL if req.isotope == "carb" else ORG_LABEL)
+    value_label = (
+        "δ13C carb and org (‰ VPDB)"
+        if merged
+        else (CARB_LABEL if req.isotope == "carb" else ORG_LABEL)
+    )
     return Samples(samples, version, settings, value_label, merged, notes)
 
 
-def _edges(req: CurveRequest, older: float, younger: float, scale: str
-           ) -> tuple[Any, list[tuple[str, float, float]]]:
+def _edges(
+    req: CurveRequest, older: float, younger: float, scale: str
+) -> tuple[Any, list[tuple[str, float, float]]]:
     """Bin edges (a width, or the stage boundaries) and the stages for the figure."""
     import numpy as np
     from strata13.compile.synthesis.curve import bin_edges
     from strata13.schemas import timescales
 
-    stages = [(u.name, u.base_ma, u.top_ma) for u in timescales.load(scale).units_of("stage")
-              if u.base_ma > younger and u.top_ma < older]
+    stages = [
+        (u.name, u.base_ma, u.top_ma)
+        for u in timescales.load(scale).units_of("stage")
+        if u.base_ma > younger and u.top_ma < older
+    ]
     if req.bin_myr is not None:
         return bin_edges(older, younger, req.bin_myr), stages
-    edges = sorted({older, younger} | {b for _, b, t in stages if younger < b < older}
-                   | {t for _, b, t in stages if younger < t < older}, reverse=True)
+    edges = sorted(
+        {older, younger}
+        | {b for _, b, t in stages if younger < b < older}
+        | {t for _, b, t in stages if younger < t < older},
+        reverse=True,
+    )
     return np.array(edges, dtype=float), stages
 
 
@@ -204,8 +249,10 @@ def _section_draws(store: Store, version: int, keys: set[tuple[str, str]]) -> di
 
     con, _ = store.reader(version)
     try:
-        rows = con.execute("SELECT source_id, section_id, chunk, positions_json, n_draws, draws "
-                           "FROM age_draws ORDER BY source_id, section_id, chunk").fetchall()
+        rows = con.execute(
+            "SELECT source_id, section_id, chunk, positions_json, n_draws, draws "
+            "FROM age_draws ORDER BY source_id, section_id, chunk"
+        ).fetchall()
     finally:
         con.close()
     out: dict[tuple[str, str], list[Any]] = {}
@@ -240,8 +287,9 @@ def _write_csv(df: pd.DataFrame, path: Path) -> None:
     df.to_csv(path, index=False, float_format="%.6g", lineterminator="\n")
 
 
-def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
-               as_of: int | None = None) -> CurveResult:
+def make_curve(
+    store: Store, filters: Filters, req: CurveRequest, out: Path, *, as_of: int | None = None
+) -> CurveResult:
     """Bins, LOESS curves with bands (and robustness), figure and manifest in ``out``."""
     import numpy as np
     import pandas as pd
@@ -258,23 +306,30 @@ def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
     older, younger = float(df["age_ma"].max()), float(df["age_ma"].min())
     if filters.interval is not None:
         if req.bin_myr is not None and req.bin_myr > filters.interval[1] - filters.interval[0]:
-            raise OptionError(f"--bin-myr {req.bin_myr:g} is wider than the interval "
-                              f"({filters.interval[1] - filters.interval[0]:g} Myr).",
-                              "Give a narrower bin or a wider --interval.")
+            raise OptionError(
+                f"--bin-myr {req.bin_myr:g} is wider than the interval "
+                f"({filters.interval[1] - filters.interval[0]:g} Myr).",
+                "Give a narrower bin or a wider --interval.",
+            )
     if older - younger <= 0:
-        raise DomainError("all matching samples have one age; a curve needs an age range.",
-                          "Widen --interval or add sections.")
+        raise DomainError(
+            "all matching samples have one age; a curve needs an age range.",
+            "Widen --interval or add sections.",
+        )
     if req.bin_myr is not None and req.bin_myr > (older - younger):
-        raise OptionError(f"--bin-myr {req.bin_myr:g} is wider than the ages of the matching "
-                          f"samples ({older:g}–{younger:g} Ma, {older - younger:.3g} Myr).",
-                          "Give a narrower bin; bins cover the samples' ages.")
+        raise OptionError(
+            f"--bin-myr {req.bin_myr:g} is wider than the ages of the matching "
+            f"samples ({older:g}–{younger:g} Ma, {older - younger:.3g} Myr).",
+            "Give a narrower bin; bins cover the samples' ages.",
+        )
     edges, stages = _edges(req, older, younger, scale)
     full_grid = np.linspace(older, younger, GRID_POINTS)
     draws = None
     if req.age_draws:
         keys = set(zip(df["source_id"], df["section_id"], strict=True))
-        draws = cv.sample_age_draws(df, req.age_draws, req.seed,
-                                    _section_draws(store, s.version, keys))
+        draws = cv.sample_age_draws(
+            df, req.age_draws, req.seed, _section_draws(store, s.version, keys)
+        )
     bins, curves, robust, influence = [], [], [], []
     groups = sorted(df["group"].unique())
     for g in groups:
@@ -292,8 +347,9 @@ def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
             if draws is not None:
                 rows = np.flatnonzero(df["group"].to_numpy() == g)
                 gd = np.stack([draws(k)[rows] for k in range(req.age_draws)])
-            c = cv.curve(part, grid, req.span, req.boots, req.seed, req.min_sections,
-                         req.weight, gd)
+            c = cv.curve(
+                part, grid, req.span, req.boots, req.seed, req.min_sections, req.weight, gd
+            )
         except DomainError as exc:
             notes.append(f"group {g!r}: no curve ({exc.message})")
             continue
@@ -301,8 +357,12 @@ def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
         curves.append(c)
         if req.robustness:
             for leave in ("source", "section"):
-                if part[["source_id"] if leave == "source" else ["source_id", "section_id"]
-                        ].drop_duplicates().shape[0] < 2:
+                if (
+                    part[["source_id"] if leave == "source" else ["source_id", "section_id"]]
+                    .drop_duplicates()
+                    .shape[0]
+                    < 2
+                ):
                     continue
                 r = cv.robustness(part, grid, req.span, leave, req.weight)
                 rc = r.curves.copy()
@@ -315,8 +375,11 @@ def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
                 influence.append(ri)
     out.mkdir(parents=True, exist_ok=True)
     bins_df = pd.concat(bins, ignore_index=True)
-    curve_df = pd.concat(curves, ignore_index=True) if curves else pd.DataFrame(
-        columns=["group", "age", "fit", "lo", "hi", "n_sections", "band_shown"])
+    curve_df = (
+        pd.concat(curves, ignore_index=True)
+        if curves
+        else pd.DataFrame(columns=["group", "age", "fit", "lo", "hi", "n_sections", "band_shown"])
+    )
     _write_csv(bins_df, out / "bins.csv")
     _write_csv(curve_df, out / "curve.csv")
     infl = pd.concat(influence, ignore_index=True) if influence else None
@@ -325,26 +388,40 @@ def make_curve(store: Store, filters: Filters, req: CurveRequest, out: Path, *,
         _write_csv(rob, out / "robustness_curves.csv")
         _write_csv(infl, out / "influence.csv")
     fig = curve_figure(
-        df[["group", "age_ma", "value"]], curve_df,
+        df[["group", "age_ma", "value"]],
+        curve_df,
         bins=bins_df if len(groups) == 1 else list(edges),
         robustness=rob[rob["leave"] == "source"] if rob is not None else None,
-        stages=stages, group_label="group (component · setting)" if req.by is None
-        else req.by, title=_title(filters, s, req), size=req.size,
-        value_label=s.value_label, merged=s.merged)
+        stages=stages,
+        group_label="group (component · setting)" if req.by is None else req.by,
+        title=_title(filters, s, req),
+        size=req.size,
+        value_label=s.value_label,
+        merged=s.merged,
+    )
     save_figure(fig, out / "curve.png", out / "curve.svg")
-    files = {p.name: _sha(p) for p in sorted(out.iterdir())
-             if p.suffix in (".csv", ".png", ".svg")}
-    manifest = {"tool": "strata13", "what": "curve", "store_version": s.version,
-                "time_scale": scale, "parameters": asdict(req) | {"size": list(req.size)},
-                "filters": filters.describe(),
-                "screening_rules": {"name": s.settings.get("screen_rules_name"),
-                                    "sha256": s.settings.get("screen_rules_sha256"),
-                                    "untested_passes": s.settings.get("screen_untested_passes")},
-                "samples": int(len(df)), "groups": groups, "notes": notes,
-                "files": [{"path": k, "sha256": v} for k, v in sorted(files.items())]}
-    (out / "curve_manifest.json").write_text(json.dumps(manifest, indent=1, sort_keys=True,
-                                                        ensure_ascii=False, default=str) + "\n",
-                                             encoding="utf-8")
+    files = {p.name: _sha(p) for p in sorted(out.iterdir()) if p.suffix in (".csv", ".png", ".svg")}
+    manifest = {
+        "tool": "strata13",
+        "what": "curve",
+        "store_version": s.version,
+        "time_scale": scale,
+        "parameters": asdict(req) | {"size": list(req.size)},
+        "filters": filters.describe(),
+        "screening_rules": {
+            "name": s.settings.get("screen_rules_name"),
+            "sha256": s.settings.get("screen_rules_sha256"),
+            "untested_passes": s.settings.get("screen_untested_passes"),
+        },
+        "samples": int(len(df)),
+        "groups": groups,
+        "notes": notes,
+        "files": [{"path": k, "sha256": v} for k, v in sorted(files.items())],
+    }
+    (out / "curve_manifest.json").write_text(
+        json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False, default=str) + "\n",
+        encoding="utf-8",
+    )
     return CurveResult(out, files, groups, bins_df, curve_df, infl, notes, s.version)
 
 
@@ -357,6 +434,7 @@ def _title(filters: Filters, s: Samples, req: CurveRequest) -> str:
 
 # ------------------------------------------------------------------------- excursions
 
+
 @dataclass
 class ExcursionResult:
     per_section: pd.DataFrame
@@ -365,17 +443,26 @@ class ExcursionResult:
     version: int
 
 
-def make_excursion(store: Store, filters: Filters, *, by: str | None = None,
-                   baseline: tuple[float, float, str] | None = None, fraction: float = 0.10,
-                   direction: str = "auto", out: Path | None = None) -> ExcursionResult:
+def make_excursion(
+    store: Store,
+    filters: Filters,
+    *,
+    by: str | None = None,
+    baseline: tuple[float, float, str] | None = None,
+    fraction: float = 0.10,
+    direction: str = "auto",
+    out: Path | None = None,
+) -> ExcursionResult:
     """Per-section excursion metrics in the filtered interval (and, with ``out``, the
     tables and the figure aligned on onset)."""
     from strata13.compile.synthesis import excursion as ex
     from strata13.compile.synthesis.figures import excursion_figure, save_figure
 
     if filters.interval is None:
-        raise OptionError("excursion needs --interval (the interval holding the excursion).",
-                          "Example: --interval Toarcian")
+        raise OptionError(
+            "excursion needs --interval (the interval holding the excursion).",
+            "Example: --interval Toarcian",
+        )
     # never mix components within a section's record: by default one row per section and
     # component (the samples of bulk and micrite alternate in some cores)
     req = CurveRequest(by=by or "component")
@@ -391,11 +478,15 @@ def make_excursion(store: Store, filters: Filters, *, by: str | None = None,
         _write_csv(per, out / "excursion_sections.csv")
         _write_csv(summ, out / "excursion_summary.csv")
         try:
-            fig = excursion_figure(df, per, group_col=group_col, value_label=s.value_label,
-                                   title="δ13C aligned on the excursion onset")
+            fig = excursion_figure(
+                df,
+                per,
+                group_col=group_col,
+                value_label=s.value_label,
+                title="δ13C aligned on the excursion onset",
+            )
             save_figure(fig, out / "excursion.png", out / "excursion.svg")
         except DomainError as exc:
-            (out / "excursion_figure_skipped.txt").write_text(exc.message + "\n",
-                                                              encoding="utf-8")
+            (out / "excursion_figure_skipped.txt").write_text(exc.message + "\n", encoding="utf-8")
         files = {p.name: _sha(p) for p in sorted(out.iterdir()) if p.is_file()}
     return ExcursionResult(per, summ, files, s.version)
