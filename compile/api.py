@@ -345,8 +345,8 @@ def _export_records(
     store: Store, out: str | Path, filters: Filters | None = None, as_of: int | None = None
 ) -> ExportResult:
     import duckdb
-    from strata13.compile.export.outputs import output_dir
     from strata13.compile.export import package as _export
+    from strata13.compile.export.outputs import output_dir
 
     output_dir(Path(out), option="--out", stores=[store.path])
     con, version = store.reader(as_of)

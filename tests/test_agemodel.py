@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from strata13.compile.ages import agemodel
 from strata13.compile.ages.agemodel import (
     AT_HIATUS,
     EXTRAPOLATED,
@@ -22,7 +23,6 @@ from strata13.compile.ages.agemodel import (
     shared_offsets,
     summarise,
 )
-from strata13.compile.ages import agemodel
 
 from strata13.errors import DomainError
 

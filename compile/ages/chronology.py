@@ -242,8 +242,8 @@ def _model_tie(t: dict[str, Any]) -> Any:
 def plot_model(model: SectionModel, path: Path) -> Path:
     """The section's age–position figure (ties, median, 95 % band) as PNG."""
     import numpy as np
-    from strata13.compile.ages.plot import plot_section
     from strata13.compile.ages import agemodel
+    from strata13.compile.ages.plot import plot_section
 
     if model.draws.size == 0:
         raise DomainError(

@@ -292,9 +292,9 @@ def _prepare(
     usable = (
         np.isfinite(pos)
         & np.isfinite(d13c)
-        & (src_all != None)  # noqa: E711
-        & ((loc_id != None) | (loc_name != None))
-    )  # noqa: E711
+        & (src_all != None)  # noqa: E711  (element-wise on object arrays)
+        & ((loc_id != None) | (loc_name != None))  # noqa: E711
+    )
     rows = np.flatnonzero(usable)
     src, sources = _codes(src_all[rows])
     code_of = {s: k for k, s in enumerate(sources)}
