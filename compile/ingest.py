@@ -275,8 +275,8 @@ def _moved(con: Any, source_id: str, records: pa.Table) -> int:
         return int(
             con.execute(
                 "SELECT count(*) FROM incoming_rows n JOIN (SELECT record_id, sheet, sheet_row "
-                "FROM lake.analyses WHERE source_id = ?) o USING (record_id) WHERE n.sheet <> o.sheet "
-                "OR n.sheet_row <> o.sheet_row",
+                "FROM lake.analyses WHERE source_id = ?) o USING (record_id) WHERE "
+                "n.sheet <> o.sheet OR n.sheet_row <> o.sheet_row",
                 [source_id],
             ).fetchone()[0]
         )
