@@ -210,7 +210,7 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
         command="strata13 export --out DIR --interval Toarcian --with-curve "
         "--by region --bin-myr 0.25 --min-sections 3 --robustness",
     )
-    exc = api.excursion(
+    excursion = api.excursion(
         store,
         Filters(interval=(iv.younger_ma, iv.older_ma), interval_info=iv.describe()),
         by="region",
@@ -237,7 +237,7 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                     round(r.magnitude, 2),
                     round(r.onset_age_ma, 2),
                 )
-                for r in exc.per_section.itertuples()
+                for r in excursion.per_section.itertuples()
             ],
         ),
     )

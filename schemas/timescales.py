@@ -295,9 +295,9 @@ def _read(path: Path) -> TimeScale:
             )
             continue
         rows.append((n, dict(zip(columns, (v.strip() for v in values), strict=True))))
-    units = _units(rows, problems)
+    unit_rows = _units(rows, problems)
     problems.raise_any()
-    units = _with_tops(units, problems)
+    units = _with_tops(unit_rows, problems)
     problems.raise_any()
     return TimeScale(
         meta.get("version") or path.stem,
@@ -464,9 +464,10 @@ def _with_tops(rows: list[dict[str, Any]], problems: _Problems) -> list[Unit]:
             )
     if problems.items:
         return []
-    for younger, older in zip([None, *leaves[:-1]], leaves, strict=True):
-        older["top_ma"] = younger["base_ma"] if younger else 0.0
-        older["top_key"] = younger["boundary_key"] if younger else PRESENT
+    above: dict[str, Any] | None
+    for above, leaf in zip([None, *leaves[:-1]], leaves, strict=True):
+        leaf["top_ma"] = above["base_ma"] if above else 0.0
+        leaf["top_key"] = above["boundary_key"] if above else PRESENT
     for rank in RANKS[1:]:  # a unit spans its children; it begins at the oldest one's base
         for r in rows:
             kids = children.get(_norm(r["name"]))
@@ -532,9 +533,15 @@ def _with_tops(rows: list[dict[str, Any]], problems: _Problems) -> list[Unit]:
 
 
 def _ancestors(r: dict[str, Any], by_name: dict[str, dict[str, Any]]) -> list[dict[str, Any]]:
-    out = []
-    while r["parent"] and (r := by_name.get(_norm(r["parent"]))) is not None and r not in out:
-        out.append(r)
+    out: list[dict[str, Any]] = []
+    unit: dict[str, Any] | None = r
+    while (
+        unit is not None
+        and unit["parent"]
+        and (unit := by_name.get(_norm(unit["parent"]))) is not None
+        and unit not in out
+    ):
+        out.append(unit)
     return out
 
 

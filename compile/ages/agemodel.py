@@ -273,7 +273,8 @@ def _truncated_normal(
     its precision; an interval too far out to have mass takes its end nearer the mean.
     """
     if sigma <= 0:
-        return np.clip(np.full(u.shape, mu), lo, hi)
+        clipped: np.ndarray = np.clip(np.full(u.shape, mu), lo, hi)
+        return clipped
     from scipy.special import ndtr, ndtri
 
     with np.errstate(over="ignore"):  # a tiny σ: bounds go to ±inf, which is right
@@ -321,6 +322,7 @@ def _draw_ties(
     lower = np.zeros(n_draws)  # ages are ≥ 0 Ma
     for k in keyed:  # pass 1: keyed ties keep their shared value where it is in order
         t = ordered[k]
+        assert t.boundary_key is not None  # keyed: chosen above for having a key
         own = math.sqrt(max(sig[k] ** 2 - t.age_sigma_ma**2, 0.0))
         value = t.age_ma + t.age_sigma_ma * shared[t.boundary_key] + own * eps[:, k]
         bad = value < lower

@@ -10,7 +10,7 @@ from __future__ import annotations
 import json
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, cast
 
 from strata13.errors import DomainError, OptionError
 
@@ -139,7 +139,8 @@ def find_section(con: Any, name: str) -> tuple[str, str]:
             return src, sec
     hits = [r for r in rows if r[1] == name]
     if len(hits) == 1:
-        return hits[0]
+        hit: tuple[str, str] = hits[0]
+        return hit
     if len(hits) > 1:
         raise OptionError(
             f"section {name!r} is in {len(hits)} sources: {', '.join(h[0] for h in hits)}.",
@@ -161,7 +162,8 @@ def section_model(store: Store, name: str) -> SectionModel:
     con, _ = store.reader()
     try:
         src, sec = find_section(con, name)
-        scale = store.settings().get("time_scale")
+        # a store's settings name its chart (written when the store is made)
+        scale = cast(str, store.settings().get("time_scale"))
         ties = (
             con.execute(
                 "SELECT * FROM age_ties WHERE source_id = ? AND section_id = ? ORDER BY position_m",
@@ -189,6 +191,7 @@ def section_model(store: Store, name: str) -> SectionModel:
         )
     finally:
         con.close()
+    assert kind is not None  # an aggregate without GROUP BY returns one row
     placed = ties_on_scale(ties, scale) if ties else []
     positions: list[float] = []
     blocks = []

@@ -226,8 +226,9 @@ def plausibility(
     def values(name: str) -> np.ndarray:
         if name not in frame.column_names:
             return np.zeros(0)
-        v = frame.column(name).to_numpy(zero_copy_only=False).astype(float)
-        return v[~np.isnan(v)]
+        v: np.ndarray = frame.column(name).to_numpy(zero_copy_only=False).astype(float)
+        finite: np.ndarray = v[~np.isnan(v)]
+        return finite
 
     c13, o18 = values("d13c_carb_reported"), values("d18o_carb_reported")
     scales = (

@@ -250,7 +250,9 @@ def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None
     sig = table.column("age_reported_sigma_ma").to_numpy(zero_copy_only=False).astype(float)
     charts = np.asarray(table.column("age_reported_scale").to_numpy(zero_copy_only=False), object)
     has = ~np.isnan(ages)
-    status[has & np.equal(charts, None)] = "pending: the reported age's time scale is not stated"
+    # numpy's stubs reject None in equal(); on an object array it compares each item with None
+    no_chart = np.equal(charts, None)  # type: ignore[call-overload]
+    status[has & no_chart] = "pending: the reported age's time scale is not stated"
     voc = vocabulary("time_scale")
     for chart in sorted({c for c in charts[has] if c is not None}):
         rows = np.flatnonzero(has & (charts == chart))
@@ -337,7 +339,7 @@ def _models(
                 raise
             # a recompute (another chart) made consistent ties contradict each other: the
             # section falls back to its other ages and says why; the store stays usable
-            left = rows[np.equal(basis[rows], None)]
+            left = rows[np.equal(basis[rows], None)]  # type: ignore[call-overload]  # as above
             status[left] = f"pending: the section's ties contradict each other on {scale}"
             conflicts.append(f"{s}/{c}: {exc.message}")
             continue
@@ -383,7 +385,7 @@ def _models(
                     summary.hi95[inverse[pick]],
                 )
         outside = have[np.isin(inverse, np.flatnonzero(~inside))]
-        left = outside[np.equal(basis[outside], None)]
+        left = outside[np.equal(basis[outside], None)]  # type: ignore[call-overload]  # as above
         status[left] = "pending: outside the section's ties (extrapolation is off)"
         for i in range(0, len(uniq), CHUNK):
             block = d[:, i : i + CHUNK].astype("<f4")

@@ -249,7 +249,7 @@ def _run_values(
     runs: pa.Table | None,
     materials: Any,
     relation: str,
-) -> tuple[Any, list[tuple[list[dict[str, Any]], Any, Any]], list[dict]]:
+) -> tuple[Any, list[tuple[list[dict[str, Any]], Any, Any]], list[dict[str, Any]]]:
     """Normalise raw in-house run values, run by run, to the store's accepted values of the
     run's anchor materials (compile.harmonise.runs); returns per-run chains and the QC."""
     import numpy as np
@@ -296,7 +296,7 @@ def _run_values(
                 for r in here
                 if r["run_position"] is not None
             ]
-            by_mat = {}
+            by_mat: dict[str, list[float]] = {}
             for r in here:
                 by_mat.setdefault(r["material"], []).append(float(r[measured]))
             offsets = [
@@ -411,7 +411,8 @@ def _harmonise(
         has = ~np.isnan(reported)
         out = np.full(len(reported), np.nan)
         chain = np.full(len(reported), None, dtype=object)
-        status = np.where(has, "pending", None).astype(object)
+        # numpy's stubs reject None as a value of where(); on object output it is the null
+        status = np.where(has, "pending", None).astype(object)  # type: ignore[call-overload]
         norm = (
             np.asarray(table.column(f"{d}_normalisation").to_numpy(zero_copy_only=False), object)
             if f"{d}_normalisation" in table.column_names
@@ -424,8 +425,10 @@ def _harmonise(
             spec = json.loads(nm) if nm else None
             stated = spec is not None and spec.get("method") != "not stated"
             if sc == "raw":
+                # a raw run's mapping always gives its normalisation (the [run] block)
+                assert spec is not None
                 try:
-                    values, steps, qc = _run_values(
+                    values, run_steps, qc = _run_values(
                         d, table, rows, reported, spec, runs, materials, constants
                     )
                 except DomainError as exc:
@@ -434,7 +437,7 @@ def _harmonise(
                     status[rows] = f"pending: {exc.message}"
                     continue
                 run_qc += qc
-                for r_steps, r_rows, r_vals in steps:  # one chain per run
+                for r_steps, r_rows, r_vals in run_steps:  # one chain per run
                     values_rows = np.flatnonzero(rows)[r_rows]
                     r_steps = _with_offset(r_steps, spec, r_vals)
                     cid, text = chain_id(r_steps)
@@ -449,7 +452,7 @@ def _harmonise(
                         "mineralogy against calcite standards is shipped"
                     )
                 continue
-            if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated:
+            if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated and spec is not None:
                 try:
                     values, steps = _reanchor(d, sc, reported[rows], spec, materials, constants)
                 except DomainError as exc:
@@ -550,7 +553,9 @@ def _paleo(table: pa.Table, settings: Settings) -> pa.Table:
     plate[forced] = np.asarray(override[forced], dtype=np.int64)
     rec = rotations.reconstruct(lat, lon, plate.astype(float), age, model)
     sigma = rotations.paleolat_sigma(lat, lon, plate.astype(float), age, model)
-    status = np.where(np.asarray(rec.status, dtype=object) == "", "placed", None).astype(object)
+    # numpy's stubs reject None as a value of where(); on object output it is the null
+    placed = np.asarray(rec.status, dtype=object) == ""
+    status = np.where(placed, "placed", None).astype(object)  # type: ignore[call-overload]
     for i in np.flatnonzero(status == None):  # noqa: E711 (object array)
         status[i] = f"pending: {rec.status[i]}"
     status[~has_xy & ~forced] = "pending: no present-day coordinates"

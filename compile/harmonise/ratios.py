@@ -28,4 +28,5 @@ def atom_fraction(ratio: np.ndarray) -> np.ndarray:
 
 def big_delta_13c(d13c_carb: np.ndarray, d13c_org: np.ndarray) -> np.ndarray:
     """Δ13C = δ13C(carbonate) − δ13C(organic), on the same sample."""
-    return np.asarray(d13c_carb, float) - np.asarray(d13c_org, float)
+    big_delta: np.ndarray = np.asarray(d13c_carb, float) - np.asarray(d13c_org, float)
+    return big_delta

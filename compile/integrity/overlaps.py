@@ -100,7 +100,8 @@ def haversine_km(
     dp = p2 - p1
     dl = np.radians(np.asarray(lon2, float) - np.asarray(lon1, float))
     h = np.sin(dp / 2) ** 2 + np.cos(p1) * np.cos(p2) * np.sin(dl / 2) ** 2
-    return 2.0 * radius_km * np.arcsin(np.sqrt(np.clip(h, 0.0, 1.0)))
+    d: np.ndarray = 2.0 * radius_km * np.arcsin(np.sqrt(np.clip(h, 0.0, 1.0)))
+    return d
 
 
 def normalise_name(text: Any) -> str:
@@ -120,7 +121,8 @@ def _text(records: pd.DataFrame, col: str) -> np.ndarray:
     """A text column as an object array (None where missing or absent)."""
     if col not in records.columns:
         return np.full(len(records), None, dtype=object)
-    return records[col].astype("string").to_numpy(dtype=object, na_value=None)
+    text: np.ndarray = records[col].astype("string").to_numpy(dtype=object, na_value=None)
+    return text
 
 
 def _float(records: pd.DataFrame, col: str) -> np.ndarray:
@@ -128,7 +130,10 @@ def _float(records: pd.DataFrame, col: str) -> np.ndarray:
 
     if col not in records.columns:
         return np.full(len(records), np.nan)
-    return pd.to_numeric(records[col], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    values: np.ndarray = pd.to_numeric(records[col], errors="coerce").to_numpy(
+        dtype=float, na_value=np.nan
+    )
+    return values
 
 
 def _codes(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -171,7 +176,8 @@ def _components(n: int, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     from scipy.sparse.csgraph import connected_components
 
     graph = coo_matrix((np.ones(a.size, dtype=np.int8), (a, b)), shape=(n, n))
-    return connected_components(graph, directed=False)[1].astype(np.int64)
+    labels: np.ndarray = connected_components(graph, directed=False)[1].astype(np.int64)
+    return labels
 
 
 def _near_places(lat: np.ndarray, lon: np.ndarray, tol_km: float) -> tuple[np.ndarray, ...]:
@@ -727,7 +733,9 @@ def duplicates_to_drop(
                 "Read the file with read_decisions, which checks it.",
             )
         last[frozenset((ra, rb))] = (ra, rb, decision)
-    republishes = {k: {v} if isinstance(v, str) else set(v) for k, v in (declared or {}).items()}
+    republishes: dict[str | None, set[str]] = {
+        k: {v} if isinstance(v, str) else set(v) for k, v in (declared or {}).items()
+    }
     parent: dict[str, str] = {}
 
     def root(x: str) -> str:

@@ -80,7 +80,8 @@ class Parsed:
 def _mask(arr: pa.Array) -> np.ndarray:
     import pyarrow.compute as pc
 
-    return pc.fill_null(arr, False).to_numpy(zero_copy_only=False)
+    mask: np.ndarray = pc.fill_null(arr, False).to_numpy(zero_copy_only=False)
+    return mask
 
 
 def _cell_lines(

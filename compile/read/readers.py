@@ -82,7 +82,7 @@ class RawTable:
 
     @property
     def n_rows(self) -> int:
-        return self.table.num_rows
+        return int(self.table.num_rows)
 
 
 def read_table(
@@ -168,8 +168,8 @@ def _read_spreadsheet(
     grid = [list(r) for r in ws.to_python(skip_empty_area=False)]
     issues: list[Issue] = []
     width = max((len(r) for r in grid), default=0)
-    for r in grid:
-        r.extend([""] * (width - len(r)))
+    for row in grid:
+        row.extend([""] * (width - len(row)))
     # merged ranges: fill from the top-left cell and say so
     for (r0, c0), (r1, c1) in getattr(ws, "merged_cell_ranges", None) or []:
         if r0 >= len(grid):
@@ -525,7 +525,7 @@ def _read_text(
             f"({delim!r}) and that quotes are closed.",
         ) from None
     if bad_rows:
-        skip_idx = []
+        skip_idx: list[int] = []
         for number, text_, actual, expected_n in bad_rows:
             # row.number counts the header as row 1 of the text pyarrow saw; when pyarrow
             # does not know it, find the line by its text

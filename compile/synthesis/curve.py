@@ -207,7 +207,7 @@ def _segments(keys: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _sorted_quantiles(
-    keys: np.ndarray, v: np.ndarray, w: np.ndarray | None, n: int, qs: Sequence[float]
+    keys: np.ndarray, v: np.ndarray, w: np.ndarray | None, n: int, qs: Sequence[float] | np.ndarray
 ) -> np.ndarray:
     """Quantiles (len(qs) × n) per group of values sorted by (key, value); NaN if empty.
 
@@ -619,6 +619,7 @@ def sample_age_draws(
 def _draw_getter(age_draws: AgeDrawSource, n_rows: int) -> Callable[[int], np.ndarray]:
     """Replicate b → the ages of draw b (cycling when the number of draws is known),
     checked to give one age per row."""
+    get: Callable[[int], np.ndarray]
     if isinstance(age_draws, np.ndarray):
         arr = np.atleast_2d(age_draws)
         n, get = arr.shape[0], arr.__getitem__
@@ -626,7 +627,7 @@ def _draw_getter(age_draws: AgeDrawSource, n_rows: int) -> Callable[[int], np.nd
         keys = sorted(age_draws)
         n, get = len(keys), (lambda b: age_draws[keys[b]])
     elif callable(age_draws):
-        n = len(age_draws) if hasattr(age_draws, "__len__") else 0  # type: ignore[arg-type]
+        n = len(age_draws) if hasattr(age_draws, "__len__") else 0
         get = age_draws
     else:
         raise OptionError(
@@ -867,7 +868,8 @@ class _Rows:
     rows: np.ndarray
 
     def __call__(self, b: int) -> np.ndarray:
-        return self.ages(b)[self.rows]
+        ages: np.ndarray = self.ages(b)[self.rows]
+        return ages
 
 
 class Robustness(NamedTuple):

@@ -217,7 +217,7 @@ def metrics(
     d = sign * dep  # departure in the excursion's direction
     ipk = int(cand[np.argmax(d[cand])])  # first of equal peaks, stratigraphically
     magnitude = float(val[ipk] - baseline)
-    res = dict(
+    res: dict[str, Any] = dict(
         baseline=baseline,
         baseline_window=described,
         peak_value=float(val[ipk]),

@@ -478,7 +478,9 @@ def _stage_strip(fig: Figure, strip: Axes, stages: list[tuple[str, float, float]
         t.set_in_layout(False)
         texts.append((t, base, top))
     fig.canvas.draw()  # lay the figure out, so text and box widths are final
-    renderer = fig.canvas.get_renderer()
+    # the Agg canvas the figures draw on has get_renderer; matplotlib's stubs type the canvas
+    # as FigureCanvasBase, which does not declare it
+    renderer = fig.canvas.get_renderer()  # type: ignore[attr-defined]
     for t, base, top in texts:
         x0, x1 = strip.transData.transform([(base, 0.5), (top, 0.5)])[:, 0]
         if t.get_window_extent(renderer).width > abs(x1 - x0) - 4:
