@@ -91,3 +91,28 @@ def test_the_cli_imports_only_the_api_of_the_library() -> None:
     for path in sorted(CLI.glob("*.py")):
         hits = pattern.findall(path.read_text(encoding="utf-8"))
         assert not hits, f"{path.name} imports {hits}"
+
+
+def test_artifact_hashes_each_file_and_writes_the_manifest_once(tmp_path: pathlib.Path) -> None:
+    import hashlib
+    import json
+
+    import pytest
+    from strata13.compile.export.artifact import Artifact
+
+    art = Artifact(tmp_path / "out")
+    art.open()
+    art.write_text("a.txt", "alpha\n")
+    part = art.sub("curve", "curve_manifest.json")
+    part.open()
+    part.write_text("b.csv", "x\n1\n")
+    part.finish({"what": "curve"})
+    art.finish({"what": "export"})
+    m = json.loads((tmp_path / "out" / "manifest.json").read_text(encoding="utf-8"))
+    listed = {f["path"]: f["sha256"] for f in m["files"]}
+    assert set(listed) == {"a.txt", "curve/b.csv"}  # the part's own manifest is not listed
+    for path, digest in listed.items():
+        assert hashlib.sha256((tmp_path / "out" / path).read_bytes()).hexdigest() == digest
+    assert (tmp_path / "out" / "curve" / "curve_manifest.json").is_file()
+    with pytest.raises(RuntimeError):
+        art.write_text("late.txt", "after the manifest\n")
