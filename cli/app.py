@@ -4,7 +4,7 @@ errors to exit codes (0 done, 1 refused, 2 wrong instructions, 130 interrupted).
 from __future__ import annotations
 
 import sys
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 from strata13.cli import (
@@ -85,17 +85,26 @@ def main(argv: list[str] | None = None) -> None:
     import signal
     import threading
 
-    from strata13.compile.interrupts import pressed
+    seen = threading.Event()
+
+    def library() -> Any:
+        # the API is imported by the commands, not here: --help stays quick
+        return sys.modules.get("strata13.compile.api")
 
     def on_sigint(signum: int, frame: object) -> None:
-        pressed.set()
+        seen.set()
+        api = library()
+        if api is not None:  # the library's long loops stop at their next safe point
+            api.interrupt()
         raise KeyboardInterrupt
 
     if threading.current_thread() is threading.main_thread():
         signal.signal(signal.SIGINT, on_sigint)
     try:
         code = _run(list(sys.argv[1:] if argv is None else argv))
-        if pressed.is_set() and code != 130:  # swallowed by a library, but the user asked
+        api = library()
+        pressed = seen.is_set() or (api is not None and api.interrupted())
+        if pressed and code != 130:  # swallowed by a library, but the user asked
             code = _interrupted("")
     except KeyboardInterrupt:
         code = _interrupted("")
@@ -122,7 +131,7 @@ def _run(args: list[str]) -> int:
     try:  # recent typer releases carry their own copy of click
         from typer._click import exceptions as cx
     except ImportError:  # pragma: no cover - older typer with click as a dependency
-        from click import exceptions as cx
+        from click import exceptions as cx  # type: ignore[no-redef]
 
     from strata13.cli import render
 

@@ -134,12 +134,11 @@ def agemodel(
 ) -> None:
     """A section's ties (as given and on the store's chart) and its age model."""
     from strata13.compile import api
-    from strata13.compile.export.outputs import output_file
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
     if plot is not None:
-        output_file(plot, option="--plot", stores=[path])
+        api.output_file(plot, option="--plot", stores=[path])
     m = api.agemodel(api.open_store(path), section)
     rows = [
         [

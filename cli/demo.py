@@ -15,9 +15,9 @@ def demo(
     ] = Path("strata13-demo"),
 ) -> None:
     """Build a store from the invented demo data, show a broken sheet's report, query, export."""
-    from strata13.compile.demo import run_demo
+    from strata13.compile import api
 
-    for kind, payload in run_demo(out):
+    for kind, payload in api.run_demo(out):
         if kind == "say":
             render.message(payload)
         elif kind == "note":

@@ -7,20 +7,8 @@ from typing import Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import (
-    ComponentOpt,
-    FrameOpt,
-    IntervalOpt,
-    KeepDupOpt,
-    LithologyOpt,
-    PaleolatOpt,
-    RegionOpt,
-    ScreenedOpt,
-    SourceOpt,
-    StoreOpt,
-    TimeScaleOpt,
-    build_filters,
-)
+from strata13.cli.common import StoreOpt, command_line
+from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
 from strata13.cli.synthesis import (
     BinOpt,
     BootsOpt,
@@ -33,21 +21,14 @@ from strata13.cli.synthesis import (
     SeedOpt,
     SpanOpt,
     WeightOpt,
+    curve_request,
 )
 
 
+@filter_options
 def export(
     out: Annotated[Path, typer.Option("--out", help="Folder to write.")],
-    interval: IntervalOpt = None,
-    time_scale: TimeScaleOpt = None,
-    region: RegionOpt = None,
-    frame: FrameOpt = "present",
-    lithology: LithologyOpt = None,
-    component: ComponentOpt = None,
-    source: SourceOpt = None,
-    screened: ScreenedOpt = "all",
-    keep_duplicates: KeepDupOpt = False,
-    paleolat: PaleolatOpt = None,
+    filters: FilterArgs = NO_FILTERS,
     as_of: Annotated[
         int | None, typer.Option("--as-of", help="Export this store version.", show_default=False)
     ] = None,
@@ -76,24 +57,11 @@ def export(
     from strata13.compile import api
 
     s = api.open_store(api.store_path(store))
-    filters = build_filters(
-        s,
-        interval,
-        region,
-        frame,
-        lithology,
-        component,
-        source,
-        screened,
-        time_scale,
-        keep_duplicates,
-        paleolat,
-    )
+    wanted = filters.build(s)
     request = None
+    options = filters.given()
     if with_curve:
-        from strata13.compile.synthesis.run import CurveRequest
-
-        request = CurveRequest(
+        request, given = curve_request(
             isotope,
             bin_myr,
             span,
@@ -106,64 +74,10 @@ def export(
             allow_mixed,
             robustness,
         )
-        request.check()
-    options: dict[str, object] = {
-        "interval": interval,
-        "time_scale": time_scale,
-        "region": region,
-        "frame": frame if frame != "present" else None,
-        "lithology": lithology or [],
-        "component": component or [],
-        "source": source or [],
-        "screened": screened if screened != "all" else None,
-        "keep_duplicates": keep_duplicates,
-        "paleolat": paleolat,
-    }
-    if with_curve:
-        options |= {
-            "with_curve": True,
-            "isotope": isotope,
-            "by": by,
-            "bin_myr": bin_myr,
-            "span": span,
-            "boots": boots,
-            "seed": seed,
-            "min_sections": min_sections,
-            "weight": weight,
-            "age_draws": age_draws,
-            "allow_mixed": allow_mixed,
-            "robustness": robustness,
-        }
-    res = api.export(s, out, filters, as_of, curve=request, command=_command(s, as_of, options))
+        options |= {"with_curve": True, **given}
+    version = as_of if as_of is not None else s.latest_version()
+    command = command_line("export", s.path, options, pinned=("--as-of", str(version)))
+    res = api.export(s, out, wanted, as_of, curve=request, command=command)
     render.message(f"exported {res.records} records of version {res.version} to {res.out}")
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")
-
-
-def _command(store: object, as_of: int | None, options: dict[str, object]) -> str:
-    """The command that reproduces this export: every option given, pinned to the version
-    (store by folder name, output as DIR, so the manifest does not depend on where)."""
-    import shlex
-
-    args = [
-        "strata13",
-        "export",
-        "--store",
-        Path(str(getattr(store, "path", ""))).name,
-        "--out",
-        "DIR",
-        "--as-of",
-        str(as_of if as_of is not None else store.latest_version()),
-    ]  # type: ignore[attr-defined]
-    for name, value in options.items():
-        flag = "--" + name.replace("_", "-")
-        if value is None or value is False or value == []:
-            continue
-        if value is True:
-            args.append(flag)
-        elif isinstance(value, list):
-            for v in value:
-                args += [flag, str(v)]
-        else:
-            args += [flag, str(value)]
-    return shlex.join(args)

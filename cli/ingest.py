@@ -37,13 +37,11 @@ def ingest(
     import json
 
     from strata13.compile import api
-    from strata13.compile.export.outputs import output_file
-    from strata13.compile.ingest import reconcile
 
     from strata13.errors import ValidationFailed
 
     if report is not None:
-        output_file(
+        api.output_file(
             report,
             option="--report",
             protect=[p for p in (file, map_) if p],
@@ -99,7 +97,7 @@ def ingest(
             + (f"; {result.redated} records of other sources re-dated" if result.redated else "")
         )
     if result.report.rows_read:
-        render.message(reconcile(result))
+        render.message(api.reconcile(result))
     if result.orphaned:
         render.note(
             f"{result.orphaned} stored correction(s) name records this sheet no longer "

@@ -8,22 +8,13 @@ from typing import Annotated
 import typer
 from strata13.cli import render
 from strata13.cli.common import (
-    ComponentOpt,
     FormatOpt,
-    FrameOpt,
-    IntervalOpt,
-    KeepDupOpt,
-    LithologyOpt,
     OutOpt,
-    PaleolatOpt,
-    RegionOpt,
-    ScreenedOpt,
-    SourceOpt,
     StoreOpt,
-    TimeScaleOpt,
-    build_filters,
     check_format,
+    command_line,
 )
+from strata13.cli.filters import NO_FILTERS, FilterArgs, SourceOpt, filter_options
 
 PAIR_COLUMNS = [
     "record_a",
@@ -91,17 +82,9 @@ def overlaps(
         )
 
 
+@filter_options
 def coverage(
-    interval: IntervalOpt = None,
-    time_scale: TimeScaleOpt = None,
-    region: RegionOpt = None,
-    frame: FrameOpt = "present",
-    lithology: LithologyOpt = None,
-    component: ComponentOpt = None,
-    source: SourceOpt = None,
-    screened: ScreenedOpt = "all",
-    keep_duplicates: KeepDupOpt = False,
-    paleolat: PaleolatOpt = None,
+    filters: FilterArgs = NO_FILTERS,
     by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")] = "region",
     bin_myr: Annotated[
         float | None,
@@ -121,7 +104,6 @@ def coverage(
     """Samples and sections per time bin × region (or paleolatitude band) × component,
     empty cells included: where the curve is well founded and where it is not."""
     from strata13.compile import api
-    from strata13.compile.export.outputs import output_dir
 
     from strata13.errors import OptionError
 
@@ -130,22 +112,12 @@ def coverage(
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))
     if out is not None:
-        output_dir(out, option="--out", stores=[path])
+        api.output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
-    filters = build_filters(
-        s,
-        interval,
-        region,
-        frame,
-        lithology,
-        component,
-        source,
-        screened,
-        time_scale,
-        keep_duplicates,
-        paleolat,
-    )
-    table, files = api.coverage(s, filters, by, bin_myr, out)
+    command = None
+    if out is not None:
+        command = command_line("coverage", s.path, filters.given() | {"by": by, "bin_myr": bin_myr})
+    table, files = api.coverage(s, filters.build(s), by, bin_myr, out, command=command)
     render.table(list(table.columns), table.itertuples(index=False, name=None), fmt, None)
     empty = int((table["n_samples"] == 0).sum())
     render.note(f"{len(table)} cells, {empty} empty")
@@ -199,7 +171,6 @@ def correct(
     """Record a correction of a published value (kept as data, applied on every
     derivation, kept across re-ingests while the record exists)."""
     from strata13.compile import api
-    from strata13.compile.integrity.corrections import Correction, read_file
 
     from strata13.errors import OptionError
 
@@ -209,14 +180,14 @@ def correct(
                 "give either --file or RECORD FIELD VALUE --why, not both.",
                 "One correction on the command line, many in a file.",
             )
-        items = read_file(file)
+        items = api.read_corrections(file)
     else:
         if not (record and field and value is not None):
             raise OptionError(
                 "correct needs RECORD FIELD VALUE (or --file FILE).",
                 'Example: strata13 correct 0e0e85f9f1 d13c_carb 1.2 --why "minus sign lost"',
             )
-        items = [Correction(record, field, value, why or "")]
+        items = [api.Correction(record, field, value, why or "")]
     s = api.open_store(api.store_path(store))
     res = api.correct(s, items)
     render.message(

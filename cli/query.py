@@ -7,22 +7,12 @@ from typing import Annotated
 import typer
 from strata13.cli import render
 from strata13.cli.common import (
-    ComponentOpt,
     FormatOpt,
-    FrameOpt,
-    IntervalOpt,
-    KeepDupOpt,
-    LithologyOpt,
     OutOpt,
-    PaleolatOpt,
-    RegionOpt,
-    ScreenedOpt,
-    SourceOpt,
     StoreOpt,
-    TimeScaleOpt,
-    build_filters,
     check_format,
 )
+from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
 
 BRIEF = [
     "record_id",
@@ -38,17 +28,9 @@ BRIEF = [
 ]
 
 
+@filter_options
 def query(
-    interval: IntervalOpt = None,
-    time_scale: TimeScaleOpt = None,
-    region: RegionOpt = None,
-    frame: FrameOpt = "present",
-    lithology: LithologyOpt = None,
-    component: ComponentOpt = None,
-    source: SourceOpt = None,
-    screened: ScreenedOpt = "all",
-    keep_duplicates: KeepDupOpt = False,
-    paleolat: PaleolatOpt = None,
+    filters: FilterArgs = NO_FILTERS,
     fmt: FormatOpt = "table",
     out: OutOpt = None,
     all_columns: Annotated[
@@ -62,19 +44,7 @@ def query(
 
     check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
-    filters = build_filters(
-        s,
-        interval,
-        region,
-        frame,
-        lithology,
-        component,
-        source,
-        screened,
-        time_scale,
-        keep_duplicates,
-        paleolat,
-    )
+    filters = filters.build(s)
     tbl = api.query_arrow(s, filters)
     if fmt == "table" and not all_columns:
         tbl = tbl.select(BRIEF)

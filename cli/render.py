@@ -91,7 +91,7 @@ def table(
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow(columns)
-        from strata13.compile.export.package import neutralise
+        from strata13.compile.api import neutralise
 
         w.writerows([[neutralise(v) if isinstance(v, str) else _cell(v) for v in r] for r in rows])
         text = buf.getvalue()

@@ -8,6 +8,7 @@ from typing import Annotated
 import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
+from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
 
 GROUP_COLUMNS = [
     "rule",
@@ -23,6 +24,7 @@ GROUP_COLUMNS = [
 ]
 
 
+@filter_options
 def screen(
     rules: Annotated[
         Path | None,
@@ -55,12 +57,14 @@ def screen(
             show_default=False,
         ),
     ] = None,
+    filters: FilterArgs = NO_FILTERS,
     fmt: FormatOpt = "table",
     out: OutOpt = None,
     store: StoreOpt = None,
 ) -> None:
     """Screen every record with the store's rules (rules of thumb: your judgement and your
-    lab's practice decide). Screening flags records; it never changes or deletes them."""
+    lab's practice decide). Screening flags records; it never changes or deletes them.
+    FILTERS choose the records of --summary and --plot."""
     from strata13.compile import api
 
     from strata13.errors import OptionError
@@ -70,6 +74,11 @@ def screen(
     if untested not in (None, "fails", "passes"):
         raise OptionError(
             f"--untested {untested!r} is not 'fails' or 'passes'.", "Example: --untested passes"
+        )
+    if filters != NO_FILTERS and not (summary or plot):
+        raise OptionError(
+            "FILTERS choose the records of --summary and --plot; re-screening covers every record.",
+            "Add --summary or --plot, or leave out the filters.",
         )
     s = api.open_store(path)
     if rules is not None or untested is not None or not (summary or plot):
@@ -86,7 +95,8 @@ def screen(
                 f"{res.version}: {res.screen_changed} overall results changed."
             )
     if summary or plot:
-        records, screening, counts = api.screen_report(s)
+        wanted = filters.build(s) if filters != NO_FILTERS else None
+        records, screening, counts = api.screen_report(s, wanted)
         if summary:
             cols = counts.column_names
             render.table(

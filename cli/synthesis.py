@@ -3,26 +3,15 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import (
-    ComponentOpt,
-    FormatOpt,
-    FrameOpt,
-    IntervalOpt,
-    KeepDupOpt,
-    LithologyOpt,
-    PaleolatOpt,
-    RegionOpt,
-    ScreenedOpt,
-    SourceOpt,
-    StoreOpt,
-    TimeScaleOpt,
-    build_filters,
-    check_format,
-)
+from strata13.cli.common import FormatOpt, StoreOpt, check_format, command_line
+from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
+
+if TYPE_CHECKING:
+    from strata13.compile.api import CurveRequest
 
 ByOpt = Annotated[
     str | None,
@@ -69,18 +58,56 @@ RobustOpt = Annotated[
 ]
 
 
+def curve_request(
+    isotope: str,
+    bin_myr: float | None,
+    span: float,
+    boots: int,
+    seed: int,
+    min_sections: int,
+    weight: str,
+    age_draws: int,
+    by: str | None,
+    allow_mixed: bool,
+    robustness: bool,
+) -> tuple[CurveRequest, dict[str, object]]:
+    """The curve options as a checked request, and as a command line names them."""
+    from strata13.compile import api
+
+    req = api.CurveRequest(
+        isotope,
+        bin_myr,
+        span,
+        boots,
+        seed,
+        min_sections,
+        weight,
+        age_draws,
+        by,
+        allow_mixed,
+        robustness,
+    )
+    req.check()
+    given: dict[str, object] = {
+        "isotope": isotope,
+        "by": by,
+        "bin_myr": bin_myr,
+        "span": span,
+        "boots": boots,
+        "seed": seed,
+        "min_sections": min_sections,
+        "weight": weight,
+        "age_draws": age_draws,
+        "allow_mixed": allow_mixed,
+        "robustness": robustness,
+    }
+    return req, given
+
+
+@filter_options
 def curve(
     out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, figure and manifest.")],
-    interval: IntervalOpt = None,
-    time_scale: TimeScaleOpt = None,
-    region: RegionOpt = None,
-    frame: FrameOpt = "present",
-    lithology: LithologyOpt = None,
-    component: ComponentOpt = None,
-    source: SourceOpt = None,
-    screened: ScreenedOpt = "all",
-    keep_duplicates: KeepDupOpt = False,
-    paleolat: PaleolatOpt = None,
+    filters: FilterArgs = NO_FILTERS,
     isotope: IsotopeOpt = "carb",
     by: ByOpt = None,
     bin_myr: BinOpt = None,
@@ -97,12 +124,10 @@ def curve(
     """A composite δ13C curve per group: binned statistics, LOESS with a section-bootstrap
     band, optional age draws and leave-one-out robustness; CSVs, PNG, SVG and a manifest."""
     from strata13.compile import api
-    from strata13.compile.export.outputs import output_dir
-    from strata13.compile.synthesis.run import CurveRequest
 
     path = api.store_path(store)
-    output_dir(out, option="--out", stores=[path])
-    req = CurveRequest(
+    api.output_dir(out, option="--out", stores=[path])
+    req, given = curve_request(
         isotope,
         bin_myr,
         span,
@@ -115,22 +140,14 @@ def curve(
         allow_mixed,
         robustness,
     )
-    req.check()
     s = api.open_store(path)
-    filters = build_filters(
+    res = api.curve(
         s,
-        interval,
-        region,
-        frame,
-        lithology,
-        component,
-        source,
-        screened,
-        time_scale,
-        keep_duplicates,
-        paleolat,
+        filters.build(s),
+        req,
+        out,
+        command=command_line("curve", s.path, filters.given() | given),
     )
-    res = api.curve(s, filters, req, out)
     render.message(
         f"curve of {len(res.groups)} group(s) from store version {res.version} → {res.out}"
     )
@@ -147,17 +164,9 @@ def curve(
         render.note(f"  {name}  sha256 {sha[:16]}…")
 
 
+@filter_options
 def excursion(
-    interval: IntervalOpt = None,
-    time_scale: TimeScaleOpt = None,
-    region: RegionOpt = None,
-    frame: FrameOpt = "present",
-    lithology: LithologyOpt = None,
-    component: ComponentOpt = None,
-    source: SourceOpt = None,
-    screened: ScreenedOpt = "all",
-    keep_duplicates: KeepDupOpt = False,
-    paleolat: PaleolatOpt = None,
+    filters: FilterArgs = NO_FILTERS,
     by: ByOpt = None,
     baseline: Annotated[
         str | None,
@@ -192,39 +201,39 @@ def excursion(
     """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset and
     recovery, sample count and spacing; a summary across sections and groups."""
     from strata13.compile import api
-    from strata13.compile.export.outputs import output_dir
 
     from strata13.errors import OptionError
 
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))
     if out is not None:
-        output_dir(out, option="--out", stores=[path])
+        api.output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
-    filters = build_filters(
-        s,
-        interval,
-        region,
-        frame,
-        lithology,
-        component,
-        source,
-        screened,
-        time_scale,
-        keep_duplicates,
-        paleolat,
-    )
+    wanted = filters.build(s)
     window = None
     if baseline is not None:
-        iv = api.interval(s, baseline, time_scale)
+        iv = api.interval(s, baseline, filters.time_scale)
         if "Ma" not in iv.text and "-" not in iv.text:
             raise OptionError(
                 f"--baseline {baseline!r} is not an age range.",
                 "Give the pre-excursion window as A-B in Ma.",
             )
         window = (iv.older_ma, iv.younger_ma, "ma")
+    options = filters.given() | {
+        "by": by,
+        "baseline": baseline,
+        "fraction": fraction,
+        "direction": direction,
+    }
     res = api.excursion(
-        s, filters, by=by, baseline=window, fraction=fraction, direction=direction, out=out
+        s,
+        wanted,
+        by=by,
+        baseline=window,
+        fraction=fraction,
+        direction=direction,
+        out=out,
+        command=command_line("excursion", s.path, options) if out is not None else None,
     )
     per = res.per_section
     render.table(

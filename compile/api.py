@@ -14,45 +14,132 @@ from __future__ import annotations
 
 import json
 import os
+from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive.engine import DEFAULT_TIME_SCALE, Settings
-from strata13.compile.export.package import ExportResult
-from strata13.compile.ingest import IngestResult
-from strata13.compile.query.filters import Filters, parse_interval
-from strata13.compile.store.lake import Store, Version, is_store
+from strata13.compile.export.outputs import output_dir, output_file
+from strata13.compile.export.package import ExportResult, neutralise
+from strata13.compile.ingest import IngestResult, reconcile
+from strata13.compile.integrity.corrections import Correction
+from strata13.compile.interrupts import pressed as _pressed
+from strata13.compile.query.filters import (
+    SCREENED,
+    Filters,
+    check_vocab,
+    parse_interval,
+    parse_paleolat,
+)
+from strata13.compile.store.lake import Store, Version
+from strata13.compile.store.lake import is_store as _is_store
+from strata13.compile.synthesis.run import CurveRequest, CurveResult, ExcursionResult
 
 from strata13.errors import ConfigError, NotAStoreError, OptionError, StoreError
 
 if TYPE_CHECKING:
     import pandas as pd
     import pyarrow as pa
+    from strata13.compile.ages.chronology import Interval, SectionModel
+    from strata13.compile.derive.recompute import RecomputeResult
+    from strata13.compile.export.artifact import Artifact
+    from strata13.compile.integrity.corrections import CorrectResult
+    from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
+    from strata13.compile.screening.evaluate import Screening
+    from strata13.schemas.timescales import TimeScale
 
 __all__ = [
+    "DEFAULT_TIME_SCALE",
+    "SCREENED",
+    "Correction",
+    "CurveRequest",
+    "CurveResult",
+    "ExcursionResult",
+    "ExportResult",
     "Filters",
     "IngestResult",
     "Settings",
     "Store",
     "Version",
+    "agemodel",
     "check_sources",
+    "check_vocab",
+    "confirm_overlaps",
+    "correct",
+    "corrections",
+    "coverage",
+    "curve",
+    "excursion",
     "explain",
     "export",
     "history",
     "ingest",
     "init_store",
+    "interrupt",
+    "interrupted",
+    "interval",
+    "is_store",
+    "materials_settings",
+    "neutralise",
     "open_store",
+    "output_dir",
+    "output_file",
+    "overlaps",
     "parse_interval",
+    "parse_paleolat",
+    "plot_agemodel",
     "query",
     "query_arrow",
+    "read_corrections",
+    "reconcile",
+    "redate",
     "region",
     "reharmonise",
+    "replace_rotations",
+    "rotations_settings",
+    "rules_settings",
+    "run_demo",
     "scales",
+    "screen",
+    "screen_plots",
+    "screen_report",
     "sources",
     "sql",
+    "stages",
     "store_path",
 ]
+
+
+def _document(cls: type, text: str) -> None:
+    """Give a re-exported dataclass its description here unless its module gives one."""
+    doc = (cls.__doc__ or "").strip()
+    if not doc or doc.startswith(f"{cls.__name__}("):
+        cls.__doc__ = text
+
+
+_document(
+    Filters,
+    "Which records a query, export, curve or summary reads: interval (younger, older Ma),"
+    " region and the frame it applies in, paleolatitude band, lithologies, components,"
+    " sources, screen outcome and whether confirmed duplicates are kept.",
+)
+_document(
+    IngestResult,
+    "What an ingest did: the sheet's report, the store version written (None for a dry run"
+    " or a refused sheet) and the counts of records and quarantined rows.",
+)
+_document(Version, "One version of the store: its id, time, command and what it changed.")
+_document(
+    Correction,
+    "A correction of a published value: the record (id or unique prefix), the field, the"
+    " corrected value and why.",
+)
+
+
+def is_store(path: str | Path) -> bool:
+    """Whether ``path`` is a strata13 store folder."""
+    return bool(_is_store(Path(path)))
 
 
 def store_path(given: str | Path | None) -> Path:
@@ -126,7 +213,7 @@ def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any
     }
 
 
-def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> Any:
+def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> RecomputeResult:
     """Set the store's rotation model and plate polygons and recompute every paleo-position
     (and the screens) in one commit; returns a RecomputeResult."""
     from strata13.compile.derive.recompute import recompute
@@ -187,7 +274,7 @@ def ingest(
     *,
     dry_run: bool = False,
     keep_valid: bool = False,
-    progress: Any = None,
+    progress: Callable[[str], object] | None = None,
 ) -> IngestResult:
     """Ingest a sheet through its mapping file; creates the store if the folder is new."""
     from strata13.compile import ingest as _ingest
@@ -195,7 +282,7 @@ def ingest(
     create = None
     if not isinstance(store, Store):
         path = Path(store)
-        if is_store(path):
+        if _is_store(path):
             store = Store.open(path)
         else:  # created only once the sheet has passed validation
             if path.exists() and (not path.is_dir() or any(path.iterdir())):
@@ -208,12 +295,12 @@ def ingest(
                 try:
                     return init_store(path)
                 except StoreError:
-                    if is_store(path):  # another ingest created it meanwhile: use it
+                    if _is_store(path):  # another ingest created it meanwhile: use it
                         return Store.open(path)
                     raise
 
             store = _DryStore()
-    return _ingest.ingest(
+    result: IngestResult = _ingest.ingest(
         store,
         Path(sheet) if sheet else None,
         Path(mapping),
@@ -222,24 +309,26 @@ def ingest(
         progress=progress,
         create=create,
     )
+    return result
 
 
-class _DryStore(Store):
+class _DryStore(Store):  # type: ignore[misc]
     """Stand-in for a store that does not exist yet, for --dry-run (default settings)."""
 
     def __init__(self) -> None:
         self.path = Path(".")
-        self._pending_files = []
+        self._pending_files: list[Any] = []
 
     def settings(self, version: int | None = None) -> dict[str, Any]:
-        return Settings().stored()
+        stored: dict[str, Any] = Settings().stored()
+        return stored
 
 
 def _named_regions(con: Any) -> dict[str, str]:
     return dict(con.execute("SELECT name, geojson FROM regions").fetchall())
 
 
-def region(store: Store, spec: str) -> Any:
+def region(store: Store, spec: str) -> Region:
     """Resolve a --region value against the store's named regions."""
     from strata13.compile.query.regions import resolve_region
 
@@ -263,7 +352,7 @@ def check_sources(store: Store, ids: list[str]) -> list[str]:
         return ids
     import difflib
 
-    known = [s["source_id"] for s in sources(store)]
+    known: list[str] = [s["source_id"] for s in sources(store)]
     for sid in ids:
         if sid not in known:
             hit = difflib.get_close_matches(sid, known, n=1)
@@ -276,6 +365,7 @@ def check_sources(store: Store, ids: list[str]) -> list[str]:
 
 
 def query_arrow(store: Store, filters: Filters | None = None, as_of: int | None = None) -> pa.Table:
+    """Records matching ``filters`` (of version ``as_of``, else the newest) as an Arrow table."""
     import duckdb
     from strata13.compile.query.filters import run
 
@@ -298,7 +388,7 @@ def export(
     out: str | Path,
     filters: Filters | None = None,
     as_of: int | None = None,
-    curve: Any = None,
+    curve: CurveRequest | None = None,
     command: str | None = None,
 ) -> ExportResult:
     """The filtered records of one version with bibliography and manifest; with ``curve``
@@ -306,62 +396,54 @@ def export(
     manifest records every curve parameter and file, so the same command reproduces them.
     ``command`` (the command line as given, pinned to the version) goes into the manifest's
     ``reproduce``."""
-    from strata13.compile.export.outputs import output_dir
+    from strata13.compile.export.artifact import Artifact
 
     output_dir(Path(out), option="--out", stores=[store.path])
-    cres = None
+    art = Artifact(Path(out))
+    extra: dict[str, Any] = {}
     if curve is not None:  # the curve first: a refused curve leaves no half export
         from strata13.compile.synthesis.run import make_curve
 
         version = as_of if as_of is not None else store.latest_version()
-        cres = make_curve(store, filters or Filters(), curve, Path(out) / "curve", as_of=version)
+        cres = make_curve(
+            store,
+            filters or Filters(),
+            curve,
+            art.sub("curve", "curve_manifest.json"),
+            as_of=version,
+        )
+        extra["curve"] = cres.manifest
         as_of = version
-    res = _export_records(store, out, filters, as_of)
-    manifest_path = Path(out) / "manifest.json"
-    if command is not None:
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        manifest["reproduce"] = command
-        manifest_path.write_text(
-            json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False) + "\n",
-            encoding="utf-8",
-        )
-    if cres is not None:
-        manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        manifest["curve"] = json.loads(
-            (cres.out / "curve_manifest.json").read_text(encoding="utf-8")
-        )
-        manifest["files"] += [
-            {"path": f"curve/{k}", "sha256": v} for k, v in sorted(cres.files.items())
-        ]
-        manifest_path.write_text(
-            json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False) + "\n",
-            encoding="utf-8",
-        )
-        res.files.update({f"curve/{k}": v for k, v in cres.files.items()})
-    return res
+    return _export_records(store, art, filters, as_of, command, extra)
 
 
 def _export_records(
-    store: Store, out: str | Path, filters: Filters | None = None, as_of: int | None = None
+    store: Store,
+    art: Artifact,
+    filters: Filters | None,
+    as_of: int | None,
+    command: str | None,
+    extra: dict[str, Any],
 ) -> ExportResult:
     import duckdb
     from strata13.compile.export import package as _export
-    from strata13.compile.export.outputs import output_dir
 
-    output_dir(Path(out), option="--out", stores=[store.path])
     con, version = store.reader(as_of)
     try:
         stored = store.settings(version)
         long = ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
-        return _export.export(
+        result: ExportResult = _export.export(
             con,
             version,
-            Path(out),
+            art,
             filters or Filters(),
             Settings.from_stored(stored).hash(),
             store.path,
             {k: v for k, v in stored.items() if k not in long},
+            reproduce=command,
+            extra=extra,
         )
+        return result
     except (duckdb.IOException, duckdb.InvalidInputException) as exc:
         raise _store_read_error(exc, store) from None
     finally:
@@ -369,16 +451,23 @@ def _export_records(
 
 
 def sql(store: Store, statement: str, timeout_s: float = 30.0, row_cap: int = 100_000) -> SqlResult:
+    """One read-only SQL statement over the store's views, stopped after ``timeout_s``
+    seconds and capped at ``row_cap`` rows."""
     from strata13.compile.query.sqlguard import run_sql
 
     con, _ = store.reader()
     try:
-        return run_sql(con, statement, timeout_s, row_cap, str(store.path / "data") + "/")
+        result: SqlResult = run_sql(
+            con, statement, timeout_s, row_cap, str(store.path / "data") + "/"
+        )
+        return result
     finally:
         con.close()
 
 
 def sources(store: Store) -> list[dict[str, Any]]:
+    """The store's sources, one dict each (id, kind, year, records, quarantined rows,
+    version ingested, file name, citation), ordered by id."""
     con, _ = store.reader()
     try:
         cur = con.execute(
@@ -394,12 +483,14 @@ def sources(store: Store) -> list[dict[str, Any]]:
 
 
 def history(store: Store) -> list[Version]:
-    return store.history()
+    """Every version of the store, oldest first, with its command and counts."""
+    versions: list[Version] = store.history()
+    return versions
 
 
 def reharmonise(
     store: Store, vsmow_constants: str | None = None, materials: str | Path | None = None
-) -> Any:
+) -> RecomputeResult:
     """Re-derive every record with new harmonisation settings (one commit, or none when
     nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
     from strata13.compile.derive.recompute import recompute
@@ -413,22 +504,23 @@ def reharmonise(
     return recompute(store, change, "reharmonise")
 
 
-def interval(store: Store | None, text: str, time_scale: str | None = None) -> Any:
+def interval(store: Store | None, text: str, time_scale: str | None = None) -> Interval:
     """``--interval`` text (stage/series/period name, NAME..NAME or A-B Ma) as an interval
     on the store's chart; names resolve on ``time_scale`` if given, else the store's."""
     from strata13.compile.ages.chronology import resolve
 
-    return resolve(text, store, time_scale)
+    iv: Interval = resolve(text, store, time_scale)
+    return iv
 
 
 def stages(
     store: Store | None = None, time_scale: str | None = None, interval: str | None = None
-) -> tuple[Any, list[dict[str, Any]], list[str]]:
+) -> tuple[TimeScale, list[dict[str, Any]], list[str]]:
     """(chart, its units, notes): ``time_scale`` (a version or a CSV table), else the
     store's chart, else the current one; only units overlapping ``interval`` if given."""
     from strata13.compile.ages import chronology
 
-    scale = chronology.chart(time_scale, store)
+    scale: TimeScale = chronology.chart(time_scale, store)
     rows, notes = chronology.stages(scale, interval)
     return scale, rows, notes
 
@@ -438,7 +530,7 @@ def redate(
     time_scale: str | None = None,
     extrapolation: bool | None = None,
     draws: int | None = None,
-) -> Any:
+) -> RecomputeResult:
     """Change the store's chart or age-model settings and re-derive every age (one commit,
     or none when nothing changes); returns a RecomputeResult."""
     from strata13.compile.derive.recompute import recompute
@@ -459,16 +551,17 @@ def redate(
     return recompute(store, change, "redate")
 
 
-def agemodel(store: Store, section: str) -> Any:
+def agemodel(store: Store, section: str) -> SectionModel:
     """One section's ties (as given and on the store's chart) and its age-model draws."""
     from strata13.compile.ages.chronology import section_model
 
-    return section_model(store, section)
+    model: SectionModel = section_model(store, section)
+    return model
 
 
 def screen(
     store: Store, rules: str | Path | None = None, untested_passes: bool | None = None
-) -> Any:
+) -> RecomputeResult:
     """Set the store's screening rules (a rule file; None keeps the store's) and whether
     untested counts as pass, and re-screen every record in one commit (none when nothing
     changes); returns a RecomputeResult."""
@@ -482,7 +575,9 @@ def screen(
     return recompute(store, change, "screen")
 
 
-def screen_report(store: Store, filters: Filters | None = None) -> Any:
+def screen_report(
+    store: Store, filters: Filters | None = None
+) -> tuple[pa.Table, Screening, pa.Table]:
     """The stored records re-screened with the store's rules, for the summary and the
     cross-plots: (records, Screening(results, overall, groups), counts per source, section,
     rule and outcome)."""
@@ -491,13 +586,15 @@ def screen_report(store: Store, filters: Filters | None = None) -> Any:
 
     records = query_arrow(store, filters)
     settings = Settings.from_stored(store.settings())
-    res = evaluate(
+    res: Screening = evaluate(
         records, rule_set(settings), bool(settings.extra.get("screen_untested_passes", False))
     )
     return records, res, summarise(records, res.results)
 
 
-def screen_plots(store: Store, records: Any, screening: Any, out: str | Path) -> list[Path]:
+def screen_plots(
+    store: Store, records: pa.Table, screening: Screening, out: str | Path
+) -> list[Path]:
     """One δ13C–δ18O cross-plot per section (PNG) into folder ``out``."""
     from strata13.compile.export.outputs import output_dir
     from strata13.compile.screening.plots import cross_plots
@@ -505,17 +602,23 @@ def screen_plots(store: Store, records: Any, screening: Any, out: str | Path) ->
     folder = Path(out)
     output_dir(folder, option="--plot", stores=[store.path])
     folder.mkdir(parents=True, exist_ok=True)
-    return cross_plots(records, screening.results, screening.groups, folder)
+    files: list[Path] = cross_plots(records, screening.results, screening.groups, folder)
+    return files
 
 
 def curve(
-    store: Store, filters: Filters, request: Any, out: str | Path, as_of: int | None = None
-) -> Any:
+    store: Store,
+    filters: Filters,
+    request: CurveRequest,
+    out: str | Path,
+    as_of: int | None = None,
+    command: str | None = None,
+) -> CurveResult:
     """Composite curves (bins, LOESS and band, robustness) with figure and manifest in
-    ``out``; ``request`` is a ``synthesis.run.CurveRequest``."""
+    ``out``; ``command`` (the command line) goes into the manifest."""
     from strata13.compile.synthesis.run import make_curve
 
-    return make_curve(store, filters, request, Path(out), as_of=as_of)
+    return make_curve(store, filters, request, Path(out), as_of=as_of, command=command)
 
 
 def excursion(
@@ -527,9 +630,10 @@ def excursion(
     fraction: float = 0.10,
     direction: str = "auto",
     out: str | Path | None = None,
-) -> Any:
-    """Per-section excursion metrics in the filtered interval (tables and a figure in
-    ``out`` when given)."""
+    command: str | None = None,
+) -> ExcursionResult:
+    """Per-section excursion metrics in the filtered interval (tables, a figure and a
+    manifest naming ``command`` in ``out`` when given)."""
     from strata13.compile.synthesis.run import make_excursion
 
     return make_excursion(
@@ -540,15 +644,17 @@ def excursion(
         fraction=fraction,
         direction=direction,
         out=Path(out) if out is not None else None,
+        command=command,
     )
 
 
-def correct(store: Store, items: list[Any]) -> Any:
+def correct(store: Store, items: list[Correction]) -> CorrectResult:
     """Store corrections (``corrections.Correction``: record, field, value, why) and
     re-derive the sources they touch, in one commit."""
     from strata13.compile.integrity.corrections import correct as _correct
 
-    return _correct(store, items)
+    result: CorrectResult = _correct(store, items)
+    return result
 
 
 def corrections(store: Store, source: list[str] | None = None) -> list[dict[str, Any]]:
@@ -556,24 +662,27 @@ def corrections(store: Store, source: list[str] | None = None) -> list[dict[str,
     value, the reason, and whether the record still exists ('applied' or 'orphaned')."""
     from strata13.compile.integrity.corrections import listing
 
-    return listing(store, check_sources(store, source) if source else None)
+    rows: list[dict[str, Any]] = listing(store, check_sources(store, source) if source else None)
+    return rows
 
 
-def overlaps(store: Store, source: str | None = None, **tolerances: float) -> Any:
+def overlaps(store: Store, source: str | None = None, **tolerances: float) -> pd.DataFrame:
     """Probable duplicates between sources (pairs with score and reasons, and the decision
     already stored on each)."""
     from strata13.compile.integrity.store_ops import overlaps as _overlaps
 
     if source is not None:
         check_sources(store, [source])
-    return _overlaps(store, source, **tolerances)
+    pairs: pd.DataFrame = _overlaps(store, source, **tolerances)
+    return pairs
 
 
 def confirm_overlaps(store: Store, path: str | Path) -> tuple[int | None, int, int]:
     """Store a decisions file (record_a, record_b, decision, note) in one commit."""
     from strata13.compile.integrity.store_ops import confirm
 
-    return confirm(store, Path(path))
+    counts: tuple[int | None, int, int] = confirm(store, Path(path))
+    return counts
 
 
 def coverage(
@@ -582,19 +691,25 @@ def coverage(
     by: str = "region",
     bin_myr: float | None = None,
     out: str | Path | None = None,
-) -> Any:
-    """Samples and sections per time bin × group × component (zeros kept); with ``out``
-    a CSV and a heatmap."""
+    command: str | None = None,
+) -> tuple[pd.DataFrame, dict[str, str]]:
+    """Samples and sections per time bin × group × component (zeros kept), and the files
+    written (name -> sha256); with ``out`` a CSV, a heatmap and a manifest naming
+    ``command``."""
     from strata13.compile.integrity.coverage import coverage as _coverage
 
-    return _coverage(store, filters, by, bin_myr, Path(out) if out is not None else None)
+    result: tuple[pd.DataFrame, dict[str, str]] = _coverage(
+        store, filters, by, bin_myr, Path(out) if out is not None else None, command=command
+    )
+    return result
 
 
-def plot_agemodel(model: Any, path: str | Path) -> Path:
+def plot_agemodel(model: SectionModel, path: str | Path) -> Path:
     """Write a section model's age–position figure (PNG)."""
     from strata13.compile.ages.chronology import plot_model
 
-    return plot_model(model, Path(path))
+    written: Path = plot_model(model, Path(path))
+    return written
 
 
 def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
@@ -630,19 +745,19 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
 
 def _replay(step: dict[str, Any], value: float | None) -> float | None:
     """A chain step applied to one value (linear maps and offsets; as-reported keeps it)."""
-    p = step.get("parameters") or {}
+    p: dict[str, float] = step.get("parameters") or {}
     if value is None:
         return None
     if "slope" in p and "intercept" in p:
-        return p["slope"] * value + p["intercept"]
+        return float(p["slope"] * value + p["intercept"])
     if "a" in p and "b" in p:
-        return p["a"] * value + p["b"]
+        return float(p["a"] * value + p["b"])
     if "offset" in p:
-        return value + p["offset"]
+        return float(value + p["offset"])
     if "offset_permil" in p:
-        return value + p["offset_permil"]
+        return float(value + p["offset_permil"])
     if "corrected" in p:
-        return p["corrected"]
+        return float(p["corrected"])
     if step.get("method", "").startswith(("as reported", "as measured", "identity")):
         return value
     return None
@@ -678,7 +793,7 @@ def explain(store: Store, record: str) -> dict[str, Any]:
         chains = {}
         for d in DELTA_FIELDS:
             cid = row.get(f"{d}_chain")
-            steps = []
+            steps: list[dict[str, Any]] = []
             if cid:
                 text = con.execute(
                     "SELECT steps_json FROM chains WHERE chain_id = ?", [cid]
@@ -708,3 +823,30 @@ def explain(store: Store, record: str) -> dict[str, Any]:
         "citation": source[0] if source else None,
         "file": source[1] if source else None,
     }
+
+
+def read_corrections(path: str | Path) -> list[Correction]:
+    """The corrections of a CSV file (record_id, field, value, why), checked."""
+    from strata13.compile.integrity.corrections import read_file
+
+    items: list[Correction] = read_file(Path(path))
+    return items
+
+
+def run_demo(out: str | Path) -> Iterator[tuple[str, Any]]:
+    """Build the invented demo compilation in ``out``, step by step: yields what to show
+    as (kind, payload) with kind one of say, note, report, table."""
+    from strata13.compile.demo import run_demo as _run_demo
+
+    steps: Iterator[tuple[str, Any]] = _run_demo(Path(out))
+    return steps
+
+
+def interrupt() -> None:
+    """Mark that the user pressed Ctrl-C (long loops of the library stop at their next step)."""
+    _pressed.set()
+
+
+def interrupted() -> bool:
+    """Whether the user pressed Ctrl-C during this run."""
+    return bool(_pressed.is_set())

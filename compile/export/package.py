@@ -3,7 +3,8 @@
 Files: ``records.parquet`` and ``records.csv`` (rows ordered by record id, column types
 fixed by the schema, never float32), ``bibliography.bib`` and ``bibliography.txt``, and
 ``manifest.json`` (tool, schema and store versions, settings hash, filters, counts, and the
-SHA-256 of every file written, by path relative to the manifest). Nothing in the output
+SHA-256 of every file written, by path relative to the manifest), written once after every
+file through an :class:`~strata13.compile.export.artifact.Artifact`. Nothing in the output
 depends on the clock, so one store version exported twice gives identical bytes.
 
 CSV text cells a spreadsheet would run as a formula (starting with = + - @ or a tab/CR)
@@ -14,18 +15,15 @@ number.
 from __future__ import annotations
 
 import csv
-import hashlib
-import json
 import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.export.artifact import Artifact
 from strata13.compile.query.filters import Filters, run
 from strata13.schemas.fields import SCHEMA_VERSION
 from strata13.schemas.records import ANALYSES, RECORDS_COLUMNS, arrow_schema
-
-from strata13.errors import OptionError
 
 if TYPE_CHECKING:
     import pyarrow as pa
@@ -34,8 +32,14 @@ _PLAIN_NUMBER = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$")
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
+__all__ = ["FORMULA_START", "ExportResult", "export", "neutralise", "write_csv"]
+
+
 @dataclass
 class ExportResult:
+    """What an export wrote: the folder, the store version, the record count and the
+    SHA-256 of every file by its path relative to the folder."""
+
     out: Path
     version: int
     records: int
@@ -49,10 +53,6 @@ def neutralise(text: str) -> str:
     return text
 
 
-def _sha(path: Path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
-
-
 def _records_schema() -> pa.Schema:
     types = dict(ANALYSES)
     return arrow_schema([(c, types[c]) for c in RECORDS_COLUMNS])
@@ -63,6 +63,8 @@ def _format_number(v: float) -> str:
 
 
 def write_csv(table: pa.Table, path: Path) -> None:
+    """The records as CSV: numbers in their shortest exact form, formula-like text
+    neutralised, empty cells for nulls."""
     import pyarrow as pa
 
     text_cols = {f.name for f in table.schema if pa.types.is_string(f.type)}
@@ -104,34 +106,38 @@ def _bibtex(sources: list[dict[str, Any]]) -> str:
 def export(
     con: Any,
     version: int,
-    out: Path,
+    art: Artifact,
     filters: Filters,
     settings_hash: str,
     store_path: Path,
     settings: dict[str, Any] | None = None,
+    *,
+    reproduce: str | None = None,
+    extra: dict[str, Any] | None = None,
 ) -> ExportResult:
-    """Write the export folder for ``version`` (``con`` is a reader pinned to it);
-    ``settings`` (time scale, screening rule set and its hash, …) go into the manifest."""
-    import pyarrow as pa
+    """Write the export folder ``art`` for ``version`` (``con`` is a reader pinned to it)
+    and its manifest, last; ``settings`` (time scale, screening rule set and its hash, …)
+    go into the manifest, ``reproduce`` (the command line) replaces the default one, and
+    ``extra`` adds entries (the curve's manifest). Files already registered in ``art``
+    (the curve) are listed with these."""
     import pyarrow.parquet as pq
 
     from strata13 import __version__
 
-    if out.exists() and not out.is_dir():
-        raise OptionError(f"--out {out} is a file, not a folder.", "Name a folder.")
-    out.mkdir(parents=True, exist_ok=True)
+    out = art.open()
     table = run(con, filters, order="record_id")
     table = table.select(RECORDS_COLUMNS).cast(_records_schema())
-    files: dict[str, str] = {}
     pq.write_table(
         table,
-        out / "records.parquet",
+        art.path("records.parquet"),
         compression="zstd",
         write_statistics=True,
         use_dictionary=True,
         store_schema=True,
     )
-    write_csv(table, out / "records.csv")
+    art.add("records.parquet")
+    write_csv(table, art.path("records.csv"))
+    art.add("records.csv")
     ids = sorted(set(table.column("source_id").to_pylist()))
     srcs = []
     if ids:
@@ -141,18 +147,16 @@ def export(
             ids,
         ).to_arrow_table()
         srcs = srcs.to_pylist()
-    (out / "bibliography.bib").write_text(_bibtex(srcs), encoding="utf-8")
-    (out / "bibliography.txt").write_text(
+    art.write_text("bibliography.bib", _bibtex(srcs))
+    art.write_text(
+        "bibliography.txt",
         "".join(
             f"[{s['source_id']}] {s['citation']}"
             + (f" doi:{s['doi']}" if s.get("doi") else "")
             + "\n"
             for s in srcs
         ),
-        encoding="utf-8",
     )
-    for name in ("records.parquet", "records.csv", "bibliography.bib", "bibliography.txt"):
-        files[name] = _sha(out / name)
     counts = {
         "records": table.num_rows,
         "sources": len(ids),
@@ -170,21 +174,20 @@ def export(
         "SELECT CAST(snapshot_time AS VARCHAR) FROM lake.snapshots() WHERE snapshot_id = ?",
         [version],
     ).fetchone()
-    manifest = {
-        "tool": "strata13",
-        "tool_version": __version__,
-        "schema_version": SCHEMA_VERSION,
-        "store_version": version,
-        "store_version_time": snap[0] if snap else None,
-        "settings_hash": settings_hash,
-        "settings": settings or {},
-        "filters": filters.describe(),
-        "counts": counts,
-        "files": [{"path": k, "sha256": v} for k, v in sorted(files.items())],
-        "reproduce": f"strata13 export --store {store_path.name} --as-of {version} --out DIR",
-    }
-    (out / "manifest.json").write_text(
-        json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False) + "\n", encoding="utf-8"
+    art.finish(
+        {
+            "tool": "strata13",
+            "tool_version": __version__,
+            "schema_version": SCHEMA_VERSION,
+            "store_version": version,
+            "store_version_time": snap[0] if snap else None,
+            "settings_hash": settings_hash,
+            "settings": settings or {},
+            "filters": filters.describe(),
+            "counts": counts,
+            "reproduce": reproduce
+            or f"strata13 export --store {store_path.name} --as-of {version} --out DIR",
+            **(extra or {}),
+        }
     )
-    _ = pa  # arrow is the table type throughout
-    return ExportResult(out, version, table.num_rows, files)
+    return ExportResult(out, version, int(table.num_rows), dict(art.files))

@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     import pandas as pd
+    from strata13.compile.query.filters import Filters
+    from strata13.compile.store.lake import Store
 
 
 def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None) -> pd.DataFrame:
@@ -120,16 +122,19 @@ def _hatch(x: int, y: int) -> Any:
 
 
 def coverage(
-    store: Any,
-    filters: Any,
+    store: Store,
+    filters: Filters,
     by: str = "region",
     bin_myr: float | None = None,
     out: Path | None = None,
+    command: str | None = None,
 ) -> tuple[pd.DataFrame, dict[str, str]]:
-    """The coverage table for the filtered records (and, with ``out``, CSV and heatmap)."""
-    import hashlib
-
-    from strata13.compile.synthesis.run import CurveRequest, _edges, samples_for
+    """The coverage table for the filtered records (and, with ``out``, CSV, heatmap and a
+    manifest naming ``command``, the filters, the store version and the settings hash);
+    returns the table and the files written (name -> sha256)."""
+    from strata13.compile.derive.engine import Settings
+    from strata13.compile.export.artifact import Artifact
+    from strata13.compile.synthesis.run import CurveRequest, bin_edges_for, samples_for
 
     req = CurveRequest(by=by, bin_myr=bin_myr)
     req.check()
@@ -138,7 +143,8 @@ def coverage(
     older, younger = float(df["age_ma"].max()), float(df["age_ma"].min())
     if filters.interval is not None:
         younger, older = filters.interval
-    edges, _ = _edges(req, older, younger, s.settings.get("time_scale", "ICS2024/12"))
+    scale = s.settings.get("time_scale", "ICS2024/12")
+    edges, _ = bin_edges_for(req, older, younger, scale)
     groups = None
     if by == "region":
         con, _ = store.reader(s.version)
@@ -149,17 +155,32 @@ def coverage(
     table = counts(df, edges, groups)
     files: dict[str, str] = {}
     if out is not None:
-        out.mkdir(parents=True, exist_ok=True)
-        table.to_csv(out / "coverage.csv", index=False, lineterminator="\n", float_format="%.6g")
+        art = Artifact(out)
+        art.open()
+        table.to_csv(
+            art.path("coverage.csv"), index=False, lineterminator="\n", float_format="%.6g"
+        )
+        art.add("coverage.csv")
         heatmap(
             table,
-            out / "coverage.png",
-            out / "coverage.svg",
+            art.path("coverage.png"),
+            art.path("coverage.svg"),
             f"Coverage by {by} and component — {len(df)} samples, store version {s.version}",
         )
-        files = {
-            p.name: hashlib.sha256(p.read_bytes()).hexdigest()
-            for p in sorted(out.iterdir())
-            if p.name.startswith("coverage")
-        }
+        art.add("coverage.png")
+        art.add("coverage.svg")
+        art.finish(
+            {
+                "tool": "strata13",
+                "what": "coverage",
+                **({"command": command} if command is not None else {}),
+                "store_version": s.version,
+                "settings_hash": Settings.from_stored(s.settings).hash(),
+                "time_scale": scale,
+                "parameters": {"by": by, "bin_myr": bin_myr},
+                "filters": filters.describe(),
+                "samples": int(len(df)),
+            }
+        )
+        files = dict(art.files)
     return table, files

@@ -5,17 +5,20 @@ The science is in ``curve`` (LOESS, section-weighted bins, bootstrap, leave-one-
 them: the filtered records of one store version, one value per sample (replicates
 averaged), the groups (by default component and setting; carbonate and organic δ13C never
 in one curve unless asked), the bins (a width in Myr, or the stages of the store's chart),
-the age draws stored with the age models, and it writes every output with a manifest that
-records each parameter, so the same request reproduces the same files.
+the age draws stored with the age models, and it writes every output through an
+:class:`~strata13.compile.export.artifact.Artifact` with a manifest that records the command,
+the filters, each parameter, the store version and the settings hash, so the same request
+reproduces the same files.
 """
 
 from __future__ import annotations
 
-import hashlib
 import json
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
+
+from strata13.compile.export.artifact import Artifact
 
 from strata13.errors import DomainError, OptionError
 
@@ -219,7 +222,7 @@ def samples_for(
     return Samples(samples, version, settings, value_label, merged, notes)
 
 
-def _edges(
+def bin_edges_for(
     req: CurveRequest, older: float, younger: float, scale: str
 ) -> tuple[Any, list[tuple[str, float, float]]]:
     """Bin edges (a width, or the stage boundaries) and the stages for the figure."""
@@ -269,6 +272,9 @@ def _section_draws(store: Store, version: int, keys: set[tuple[str, str]]) -> di
 
 @dataclass
 class CurveResult:
+    """The curve's folder, files (name -> sha256), groups, tables, notes, store version
+    and the manifest written beside them."""
+
     out: Path
     files: dict[str, str]  # name -> sha256
     groups: list[str]
@@ -277,10 +283,17 @@ class CurveResult:
     influence: pd.DataFrame | None
     notes: list[str]
     version: int
+    manifest: dict[str, Any] = field(default_factory=dict)
 
 
-def _sha(path: Path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
+def _settings_hash(settings: dict[str, Any]) -> str:
+    from strata13.compile.derive.engine import Settings
+
+    return str(Settings.from_stored(settings).hash())
+
+
+def _out_artifact(out: Path | Artifact, manifest: str) -> Artifact:
+    return out if isinstance(out, Artifact) else Artifact(out, manifest)
 
 
 def _write_csv(df: pd.DataFrame, path: Path) -> None:
@@ -288,9 +301,17 @@ def _write_csv(df: pd.DataFrame, path: Path) -> None:
 
 
 def make_curve(
-    store: Store, filters: Filters, req: CurveRequest, out: Path, *, as_of: int | None = None
+    store: Store,
+    filters: Filters,
+    req: CurveRequest,
+    out: Path | Artifact,
+    *,
+    as_of: int | None = None,
+    command: str | None = None,
 ) -> CurveResult:
-    """Bins, LOESS curves with bands (and robustness), figure and manifest in ``out``."""
+    """Bins, LOESS curves with bands (and robustness), figure and ``curve_manifest.json``
+    in ``out`` (a folder, or a part of an export's folder); ``command`` (the command line)
+    goes into the manifest."""
     import numpy as np
     import pandas as pd
     from strata13.compile.synthesis import curve as cv
@@ -322,7 +343,7 @@ def make_curve(
             f"samples ({older:g}–{younger:g} Ma, {older - younger:.3g} Myr).",
             "Give a narrower bin; bins cover the samples' ages.",
         )
-    edges, stages = _edges(req, older, younger, scale)
+    edges, stages = bin_edges_for(req, older, younger, scale)
     full_grid = np.linspace(older, younger, GRID_POINTS)
     draws = None
     if req.age_draws:
@@ -373,20 +394,25 @@ def make_curve(
                 ri.insert(0, "group", g)
                 ri.insert(1, "leave", leave)
                 influence.append(ri)
-    out.mkdir(parents=True, exist_ok=True)
+    art = _out_artifact(out, "curve_manifest.json")
+    folder = art.open()
     bins_df = pd.concat(bins, ignore_index=True)
     curve_df = (
         pd.concat(curves, ignore_index=True)
         if curves
         else pd.DataFrame(columns=["group", "age", "fit", "lo", "hi", "n_sections", "band_shown"])
     )
-    _write_csv(bins_df, out / "bins.csv")
-    _write_csv(curve_df, out / "curve.csv")
+    _write_csv(bins_df, art.path("bins.csv"))
+    art.add("bins.csv")
+    _write_csv(curve_df, art.path("curve.csv"))
+    art.add("curve.csv")
     infl = pd.concat(influence, ignore_index=True) if influence else None
     rob = pd.concat(robust, ignore_index=True) if robust else None
     if rob is not None and infl is not None:
-        _write_csv(rob, out / "robustness_curves.csv")
-        _write_csv(infl, out / "influence.csv")
+        _write_csv(rob, art.path("robustness_curves.csv"))
+        art.add("robustness_curves.csv")
+        _write_csv(infl, art.path("influence.csv"))
+        art.add("influence.csv")
     fig = curve_figure(
         df[["group", "age_ma", "value"]],
         curve_df,
@@ -399,12 +425,15 @@ def make_curve(
         value_label=s.value_label,
         merged=s.merged,
     )
-    save_figure(fig, out / "curve.png", out / "curve.svg")
-    files = {p.name: _sha(p) for p in sorted(out.iterdir()) if p.suffix in (".csv", ".png", ".svg")}
-    manifest = {
+    save_figure(fig, art.path("curve.png"), art.path("curve.svg"))
+    art.add("curve.png")
+    art.add("curve.svg")
+    manifest: dict[str, Any] = {
         "tool": "strata13",
         "what": "curve",
+        **({"command": command} if command is not None else {}),
         "store_version": s.version,
+        "settings_hash": _settings_hash(s.settings),
         "time_scale": scale,
         "parameters": asdict(req) | {"size": list(req.size)},
         "filters": filters.describe(),
@@ -416,13 +445,21 @@ def make_curve(
         "samples": int(len(df)),
         "groups": groups,
         "notes": notes,
-        "files": [{"path": k, "sha256": v} for k, v in sorted(files.items())],
     }
-    (out / "curve_manifest.json").write_text(
-        json.dumps(manifest, indent=1, sort_keys=True, ensure_ascii=False, default=str) + "\n",
-        encoding="utf-8",
+    art.finish(manifest)
+    files = dict(art.files)
+    manifest["files"] = [{"path": k, "sha256": v} for k, v in sorted(files.items())]
+    return CurveResult(
+        folder,
+        files,
+        groups,
+        bins_df,
+        curve_df,
+        infl,
+        notes,
+        s.version,
+        json.loads(json.dumps(manifest, default=str)),
     )
-    return CurveResult(out, files, groups, bins_df, curve_df, infl, notes, s.version)
 
 
 def _title(filters: Filters, s: Samples, req: CurveRequest) -> str:
@@ -437,6 +474,9 @@ def _title(filters: Filters, s: Samples, req: CurveRequest) -> str:
 
 @dataclass
 class ExcursionResult:
+    """Per-section metrics, the summary across sections and groups, the files written
+    (name -> sha256; empty without ``out``) and the store version."""
+
     per_section: pd.DataFrame
     summary: pd.DataFrame
     files: dict[str, str]
@@ -452,9 +492,10 @@ def make_excursion(
     fraction: float = 0.10,
     direction: str = "auto",
     out: Path | None = None,
+    command: str | None = None,
 ) -> ExcursionResult:
     """Per-section excursion metrics in the filtered interval (and, with ``out``, the
-    tables and the figure aligned on onset)."""
+    tables, the figure aligned on onset and a manifest naming ``command``)."""
     from strata13.compile.synthesis import excursion as ex
     from strata13.compile.synthesis.figures import excursion_figure, save_figure
 
@@ -474,9 +515,12 @@ def make_excursion(
     summ = ex.summary(per, "group")
     files: dict[str, str] = {}
     if out is not None:
-        out.mkdir(parents=True, exist_ok=True)
-        _write_csv(per, out / "excursion_sections.csv")
-        _write_csv(summ, out / "excursion_summary.csv")
+        art = Artifact(out)
+        art.open()
+        _write_csv(per, art.path("excursion_sections.csv"))
+        art.add("excursion_sections.csv")
+        _write_csv(summ, art.path("excursion_summary.csv"))
+        art.add("excursion_summary.csv")
         try:
             fig = excursion_figure(
                 df,
@@ -485,8 +529,29 @@ def make_excursion(
                 value_label=s.value_label,
                 title="δ13C aligned on the excursion onset",
             )
-            save_figure(fig, out / "excursion.png", out / "excursion.svg")
+            save_figure(fig, art.path("excursion.png"), art.path("excursion.svg"))
+            art.add("excursion.png")
+            art.add("excursion.svg")
         except DomainError as exc:
-            (out / "excursion_figure_skipped.txt").write_text(exc.message + "\n", encoding="utf-8")
-        files = {p.name: _sha(p) for p in sorted(out.iterdir()) if p.is_file()}
+            art.write_text("excursion_figure_skipped.txt", exc.message + "\n")
+        art.finish(
+            {
+                "tool": "strata13",
+                "what": "excursion",
+                **({"command": command} if command is not None else {}),
+                "store_version": s.version,
+                "settings_hash": _settings_hash(s.settings),
+                "time_scale": s.settings.get("time_scale"),
+                "parameters": {
+                    "by": req.by,
+                    "baseline": list(baseline) if baseline is not None else None,
+                    "fraction": fraction,
+                    "direction": direction,
+                },
+                "filters": filters.describe(),
+                "samples": int(len(df)),
+                "notes": list(s.notes),
+            }
+        )
+        files = dict(art.files)
     return ExcursionResult(per, summ, files, s.version)
