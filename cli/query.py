@@ -44,8 +44,8 @@ def query(
 
     check_format(fmt, out, api.store_path(store))
     s = api.open_store(api.store_path(store))
-    filters = filters.build(s)
-    tbl = api.query_arrow(s, filters)
+    chosen = filters.build(s)
+    tbl = api.query_arrow(s, chosen)
     if fmt == "table" and not all_columns:
         tbl = tbl.select(BRIEF)
     if tbl.num_rows == 0:

@@ -312,7 +312,7 @@ def ingest(
     return result
 
 
-class _DryStore(Store):  # type: ignore[misc]
+class _DryStore(Store):
     """Stand-in for a store that does not exist yet, for --dry-run (default settings)."""
 
     def __init__(self) -> None:
