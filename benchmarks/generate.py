@@ -6,7 +6,7 @@ Two products, both under ``benchmarks/_data/`` (gitignored):
   section + sample + replicate, plausible values, ages that respect superposition), plus a
   200-row warm-up sheet of the same shape;
 * a query store: a strata13 store holding N records, built cheaply by inserting Arrow tables
-  with the full ``analyses`` schema through ``Store.writer()`` in one transaction (the derived
+  with the full ``analyses`` schema in one ``Store.transaction()`` (the derived
   columns are filled the way derive would fill them: VPDB identity, reported ages, paleo
   pending, screens untested).
 
@@ -518,16 +518,13 @@ def make_store(
     store = api.init_store(folder)
     chunk = 1_000_000
     t0 = time.perf_counter()
-    with store.writer() as con:
-        con.execute("BEGIN")
+    with store.transaction("ingest", "benchmark store") as tx:
         for start in range(0, n_records, chunk):
             stop = min(n_records, start + chunk)
             table = _store_chunk(
                 start, stop, rps, sec_lat, sec_lon, sec_age, sec_rate, sections_per_source, rng
             )
-            con.register("incoming", table)
-            con.execute("INSERT INTO lake.analyses SELECT * FROM incoming")
-            con.unregister("incoming")
+            tx.insert("analyses", table)
             say(f"  store: {stop:,} / {n_records:,} records ({time.perf_counter() - t0:.0f} s)")
         counts = np.bincount(
             np.arange(n_records) // rps // sections_per_source, minlength=n_sources
@@ -548,19 +545,8 @@ def make_store(
             ],
             schema=arrow_schema(SOURCES),
         )
-        con.register("incoming", sources)
-        con.execute("INSERT INTO lake.sources SELECT * FROM incoming")
-        con.unregister("incoming")
-        record_commit = getattr(store, "_record_commit", None)
-        if record_commit is not None:
-            record_commit(
-                con,
-                "ingest",
-                "benchmark store",
-                "synthetic",
-                {"records": n_records, "sources": n_sources},
-            )
-        con.execute("COMMIT")
+        tx.insert("sources", sources)
+        tx.record({"records": n_records, "sources": n_sources}, "synthetic")
     stamp_dir.mkdir(parents=True, exist_ok=True)
     _write_stamp(stamp_dir, params)
     return folder

@@ -316,8 +316,7 @@ class _DryStore(Store):
     """Stand-in for a store that does not exist yet, for --dry-run (default settings)."""
 
     def __init__(self) -> None:
-        self.path = Path(".")
-        self._pending_files: list[Any] = []
+        super().__init__(Path("."))
 
     def settings(self, version: int | None = None) -> dict[str, Any]:
         stored: dict[str, Any] = Settings().stored()

@@ -12,24 +12,26 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile import interrupts
 from strata13.compile.check.report import Report
 from strata13.compile.check.validate import prepare
 from strata13.compile.derive.engine import Settings, derive
+from strata13.compile.derive.stored import derive_stored
 from strata13.compile.read.mapping import load_mapping
 from strata13.compile.store.lake import Store
+from strata13.compile.store.reader import Reader
+from strata13.compile.store.transaction import DERIVED_TABLES, Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
 
 from strata13.errors import (
     DomainError,
     InputFileError,
-    Interrupted,
     OptionError,
     ValidationFailed,
 )
 
 if TYPE_CHECKING:
     import pyarrow as pa
+    from strata13.compile.derive.engine import Derived
 
 
 @dataclass
@@ -180,23 +182,17 @@ def _land(
     step("waiting for the store's writer lock")
     if create is not None:
         store = create()
-    with store.writer() as con:
-        # one transaction from here: schema migration, diff and commit see one state
-        con.execute("BEGIN")
-        store.migrate(con)
+    sid = mapping.source_id
+    # one transaction from here: schema migration, diff and commit see one state
+    with store.transaction("ingest", sid) as tx:
         # settings are read under the lock, so the commit uses exactly what it derived with
-        settings = Settings.from_stored(store.read_settings(con))
+        settings = Settings.from_stored(tx.settings())
         step("deriving harmonised values and ages")
-        sid = mapping.source_id
-        old_ties = con.execute(
-            "SELECT * FROM lake.age_ties WHERE tie_source_id = ?", [sid]
-        ).to_arrow_table()
-        ties = _all_ties(con, sid, new_ties)
-        _check_tie_targets(con, prepared, new_ties)
+        old_ties = tx.fetch("SELECT * FROM age_ties WHERE tie_source_id = ?", [sid])
+        ties = _all_ties(tx, sid, new_ties)
+        _check_tie_targets(tx, prepared, new_ties)
         runs = prepared.runs
-        fixes = con.execute(
-            "SELECT * FROM lake.corrections WHERE source_id = ?", [sid]
-        ).to_arrow_table()
+        fixes = tx.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
         derived = derive(prepared.records, settings, ties, runs=runs, corrections=fixes)
         records = derived.table
         result.orphaned = _orphans(fixes, records)
@@ -209,51 +205,35 @@ def _land(
             + new_ties.column("source_id").to_pylist()
             if t and t != sid
         }
-        others = derive_sources(con, sorted(targets), settings, ties)
+        others = derive_stored(tx, sorted(targets), settings, ties)
         result.redated = sum(_age_changes(r, d.table) for r, d in others.values())
         result.pending = _pending_counts(records)
         result.committed = records.num_rows
-        result.added, result.removed, result.changed = _diff(con, mapping.source_id, records)
+        result.added, result.removed, result.changed = _diff(tx, sid, records)
         # nothing to commit when no record, no row position, no quarantined row and no
         # source metadata would change (a mapping edited only in its comments, say)
-        old = con.execute(
+        old = tx.rows(
             f"SELECT {', '.join(META)}, schema_version, (SELECT count(*) FROM "
-            "lake.quarantine q WHERE q.source_id = s.source_id) FROM "
-            "lake.sources s WHERE source_id = ?",
-            [mapping.source_id],
-        ).fetchone()
-        result.moved = _moved(con, mapping.source_id, records)
+            "quarantine q WHERE q.source_id = s.source_id) FROM "
+            "sources s WHERE source_id = ?",
+            [sid],
+        )
+        result.moved = _moved(tx, sid, records)
         if (
-            old is not None
-            and tuple(old[:-2]) == _meta(mapping.source)
-            and old[-2] == SCHEMA_VERSION
-            and old[-1] == len(prepared.quarantine)
+            old
+            and tuple(old[0][:-2]) == _meta(mapping.source)
+            and old[0][-2] == SCHEMA_VERSION
+            and old[0][-1] == len(prepared.quarantine)
             and _same_rows(old_ties, new_ties)
-            and _same_runs(con, sid, prepared.runs)
+            and _same_runs(tx, sid, prepared.runs)
             and not (result.added or result.removed or result.changed or result.moved)
         ):
             result.unchanged = True
-            result.version = None
-            con.execute("ROLLBACK")
+            tx.abandon()
             return result
-        before = store._latest(con)
         step("committing")
-        interrupts.check()  # a Ctrl-C a library swallowed still stops us before the commit
-        try:
-            result.version = _commit(
-                store, con, prepared, records, derived, settings, result, new_ties, others
-            )
-        except KeyboardInterrupt:
-            landed = store.latest_version() > before
-            raise Interrupted(
-                "interrupted: "
-                + (
-                    "the commit landed"
-                    if landed
-                    else "the commit did not land; the store is unchanged"
-                ),
-                landed,
-            ) from None
+        _write(tx, prepared, records, derived, settings, result, new_ties, others)
+    result.version = tx.version
     return result
 
 
@@ -268,52 +248,44 @@ def _meta(source: dict[str, Any]) -> tuple[Any, ...]:
     )
 
 
-def _moved(con: Any, source_id: str, records: pa.Table) -> int:
+def _moved(tx: Transaction, source_id: str, records: pa.Table) -> int:
     """Records that kept their content but sit in another sheet row than before."""
-    con.register("incoming_rows", records.select(["record_id", "sheet", "sheet_row"]))
-    try:
+    with tx.registered("incoming_rows", records.select(["record_id", "sheet", "sheet_row"])):
         return int(
-            con.execute(
+            tx.value(
                 "SELECT count(*) FROM incoming_rows n JOIN (SELECT record_id, sheet, sheet_row "
-                "FROM lake.analyses WHERE source_id = ?) o USING (record_id) WHERE "
+                "FROM records WHERE source_id = ?) o USING (record_id) WHERE "
                 "n.sheet <> o.sheet OR n.sheet_row <> o.sheet_row",
                 [source_id],
-            ).fetchone()[0]
+            )
         )
-    finally:
-        con.unregister("incoming_rows")
 
 
-def _diff(con: Any, source_id: str, records: pa.Table) -> tuple[int, int, int]:
+def _diff(tx: Transaction, source_id: str, records: pa.Table) -> tuple[int, int, int]:
     """(added, removed, changed) record counts against the stored source, in DuckDB."""
-    con.register("incoming_ids", records.select(["record_id", "row_hash"]))
-    try:
-        old = "(SELECT record_id, row_hash FROM lake.analyses WHERE source_id = ?)"
-        added = con.execute(
+    old = "(SELECT record_id, row_hash FROM records WHERE source_id = ?)"
+    with tx.registered("incoming_ids", records.select(["record_id", "row_hash"])):
+        added = tx.value(
             f"SELECT count(*) FROM incoming_ids n ANTI JOIN {old} o USING (record_id)", [source_id]
-        ).fetchone()[0]
-        removed = con.execute(
+        )
+        removed = tx.value(
             f"SELECT count(*) FROM {old} o ANTI JOIN incoming_ids n USING (record_id)", [source_id]
-        ).fetchone()[0]
-        changed = con.execute(
+        )
+        changed = tx.value(
             f"SELECT count(*) FROM incoming_ids n JOIN {old} o "
             "USING (record_id) WHERE n.row_hash <> o.row_hash",
             [source_id],
-        ).fetchone()[0]
-    finally:
-        con.unregister("incoming_ids")
+        )
     return int(added), int(removed), int(changed)
 
 
-def _all_ties(
-    con: Any, source_id: str, new_ties: pa.Table, relation: str = "lake.age_ties"
-) -> pa.Table:
+def _all_ties(reads: Transaction | Reader, source_id: str, new_ties: pa.Table) -> pa.Table:
     """Every stored tie except this source's old ones, plus its new ones."""
     import pyarrow as pa
 
-    others = con.execute(
-        f"SELECT * FROM {relation} WHERE tie_source_id IS DISTINCT FROM ?", [source_id]
-    ).to_arrow_table()
+    others = reads.fetch(
+        "SELECT * FROM age_ties WHERE tie_source_id IS DISTINCT FROM ?", [source_id]
+    )
     return pa.concat_tables([others.select(new_ties.column_names).cast(new_ties.schema), new_ties])
 
 
@@ -327,18 +299,19 @@ def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
         return derive(prepared.records, settings, new_ties, runs=prepared.runs)
     con, _ = store.reader()
     try:
-        ties = _all_ties(con, prepared.mapping.source_id, new_ties, "age_ties")
-        _check_tie_targets(con, prepared, new_ties, "records")
-        fixes = con.execute(
+        reads = Reader(con)
+        ties = _all_ties(reads, prepared.mapping.source_id, new_ties)
+        _check_tie_targets(reads, prepared, new_ties)
+        fixes = reads.fetch(
             "SELECT * FROM corrections WHERE source_id = ?", [prepared.mapping.source_id]
-        ).to_arrow_table()
+        )
     finally:
         con.close()
     return derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
 
 
 def _check_tie_targets(
-    con: Any, prepared: Any, new_ties: pa.Table, analyses: str = "lake.analyses"
+    reads: Transaction | Reader | None, prepared: Any, new_ties: pa.Table
 ) -> None:
     """Every tie dates a section that exists: this source's, or one already in the store."""
     import pyarrow.compute as pc
@@ -358,12 +331,9 @@ def _check_tie_targets(
                     "Check the tie's section (write other-source/section for a section of "
                     "another source).",
                 )
-        elif (
-            con is not None
-            and not con.execute(
-                f"SELECT count(*) FROM {analyses} WHERE source_id = ? AND section_id = ?",
-                [t["source_id"], t["section_id"]],
-            ).fetchone()[0]
+        elif reads is not None and not reads.value(
+            "SELECT count(*) FROM records WHERE source_id = ? AND section_id = ?",
+            [t["source_id"], t["section_id"]],
         ):
             raise DomainError(
                 f"{prepared.mapping.path.name}: a tie names section "
@@ -383,42 +353,6 @@ def _same_rows(a: pa.Table, b: pa.Table) -> bool:
     return a.num_rows == b.num_rows and rows(a) == rows(b)
 
 
-def derive_sources(
-    con: Any, sources: list[str], settings: Settings, ties: pa.Table | None = None
-) -> dict[str, tuple[pa.Table, Any]]:
-    """Re-derive stored sources (their records, runs, corrections and the given or stored
-    ties) inside the writer's transaction: {source: (stored records, Derived)}."""
-    if ties is None:
-        ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
-    out = {}
-    for sid in sources:
-        recs = con.execute(
-            "SELECT * FROM lake.analyses WHERE source_id = ? ORDER BY record_id", [sid]
-        ).to_arrow_table()
-        if not recs.num_rows:
-            continue
-        runs = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [sid]).to_arrow_table()
-        fixes = con.execute(
-            "SELECT * FROM lake.corrections WHERE source_id = ?", [sid]
-        ).to_arrow_table()
-        out[sid] = (recs, derive(recs, settings, ties, runs=runs, corrections=fixes))
-    return out
-
-
-def write_sources(store: Store, con: Any, derived: dict[str, tuple[pa.Table, Any]]) -> None:
-    """Replace re-derived sources' records and derived tables (inside the transaction)."""
-    for sid, (_, d) in derived.items():
-        con.execute("DELETE FROM lake.analyses WHERE source_id = ?", [sid])
-        store.add_parquet(con, "analyses", d.table)
-        replace_derived_tables(store, con, [sid], d)
-        store.add_chains(con, d.chains)
-
-
-def rederive_sources(store: Store, con: Any, sources: list[str], settings: Settings) -> None:
-    """Re-derive and rewrite stored sources (a correction, say), in the open transaction."""
-    write_sources(store, con, derive_sources(con, sources, settings))
-
-
 def _orphans(fixes: pa.Table, records: pa.Table) -> int:
     """Corrections of this source whose record id the incoming records no longer have."""
     import pyarrow.compute as pc
@@ -429,9 +363,9 @@ def _orphans(fixes: pa.Table, records: pa.Table) -> int:
     return int(fixes.num_rows - (pc.sum(have).as_py() or 0))
 
 
-def _same_runs(con: Any, source_id: str, runs: pa.Table | None) -> bool:
+def _same_runs(tx: Transaction, source_id: str, runs: pa.Table | None) -> bool:
     """Whether the source's stored run standards equal the incoming ones."""
-    old = con.execute("SELECT * FROM lake.runs WHERE source_id = ?", [source_id]).to_arrow_table()
+    old = tx.fetch("SELECT * FROM runs WHERE source_id = ?", [source_id])
     if runs is None:
         return old.num_rows == 0
     return _same_rows(old.select(runs.column_names), runs)
@@ -458,27 +392,26 @@ def _pending_counts(records: pa.Table) -> dict[str, int]:
     return out
 
 
-def _commit(
-    store: Store,
-    con: Any,
+def _write(
+    tx: Transaction,
     prepared: Any,
     records: pa.Table,
-    derived: Any,
+    derived: Derived,
     settings: Settings,
     result: IngestResult,
     ties: pa.Table,
-    others: dict[str, Any],
-) -> int:
-    """One transaction across all tables: replace the source (records, ties, age draws,
-    screen results), re-date the sources its ties date, add chains, log the commit."""
+    others: dict[str, tuple[pa.Table, Derived]],
+) -> None:
+    """Replace the source (records, ties, age draws, screen results), re-date the sources
+    its ties date, add chains and say what the commit did."""
     import pyarrow as pa
     from strata13.schemas.records import PER_SOURCE, QUARANTINE, SOURCES, arrow_schema
 
     m = prepared.mapping
     sid = m.source_id
     for table in PER_SOURCE:
-        con.execute(f"DELETE FROM lake.{table} WHERE source_id = ?", [sid])
-    version = store._latest(con) + 1
+        tx.delete(table, source_id=sid)
+    version = tx.latest_version() + 1
     src = m.source
     sources = pa.Table.from_pylist(
         [
@@ -506,8 +439,7 @@ def _commit(
         [{"source_id": sid, **q, "ingested_version": version} for q in prepared.quarantine],
         schema=arrow_schema(QUARANTINE),
     )
-    if records.num_rows:
-        store.add_parquet(con, "analyses", records)
+    tx.add_parquet("records", records)
     for name, table in (
         ("sources", sources),
         ("localities", prepared.localities),
@@ -516,15 +448,17 @@ def _commit(
         ("quarantine", quarantine),
         *([("runs", prepared.runs)] if prepared.runs is not None else []),
     ):
-        if table.num_rows:
-            _insert(con, name, table)
-    con.execute("DELETE FROM lake.age_ties WHERE tie_source_id = ?", [sid])
-    if ties.num_rows:
-        _insert(con, "age_ties", ties)
+        tx.insert(name, table)
+    tx.delete("age_ties", tie_source_id=sid)
+    tx.insert("age_ties", ties)
     result.ties = ties.num_rows
-    replace_derived_tables(store, con, [sid], derived)
-    store.add_chains(con, derived.chains)
-    write_sources(store, con, others)
+    for name, table in zip(
+        DERIVED_TABLES, (derived.draws, derived.screens, derived.run_qc), strict=True
+    ):
+        tx.replace_source(name, [sid], table)
+    tx.add_chains(derived.chains)
+    for other, (_, d) in others.items():
+        tx.write_derived([other], d)
     summary = {
         "source": sid,
         "records": records.num_rows,
@@ -536,43 +470,7 @@ def _commit(
         "ties": ties.num_rows,
         "redated": result.redated,
     }
-    got = store._record_commit(con, "ingest", sid, settings.hash(), summary)
-    con.execute("COMMIT")
-    return got
-
-
-def _insert(con: Any, name: str, table: pa.Table) -> None:
-    """Insert by column name (a migrated store's columns may sit in another order)."""
-    cols = ", ".join(f'"{c}"' for c in table.column_names)
-    con.register("incoming", table)
-    try:
-        con.execute(f"INSERT INTO lake.{name} ({cols}) SELECT {cols} FROM incoming")
-    finally:
-        con.unregister("incoming")
-
-
-def replace_derived_tables(
-    store: Store, con: Any, source_ids: list[str] | None, derived: Any
-) -> None:
-    """Replace the age draws and screen results of ``source_ids`` (None: all) with
-    ``derived``'s; the records themselves are written by the caller."""
-    where, params = (
-        ("", [])
-        if source_ids is None
-        else (f" WHERE source_id IN ({', '.join('?' for _ in source_ids)})", list(source_ids))
-    )
-    for name, table in (
-        ("age_draws", derived.draws),
-        ("screen_results", derived.screens),
-        ("run_qc", derived.run_qc),
-    ):
-        con.execute(f"DELETE FROM lake.{name}{where}", params)
-        if table is None or not table.num_rows:
-            continue
-        if name == "screen_results":  # rows per record x rule: written as Parquet directly
-            store.add_parquet(con, name, table)
-        else:
-            _insert(con, name, table)
+    tx.record(summary, settings.hash())
 
 
 def reconcile(result: IngestResult) -> str:

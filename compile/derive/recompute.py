@@ -1,10 +1,10 @@
 """Recompute: the derive engine re-run over every stored record with new settings.
 
-Every recompute command (``reharmonise`` now; ``redate``, ``replace-rotations`` and
-``screen`` as they arrive) is this one function with a settings change: under the writer
-lock, in one transaction, it re-derives all records from their reported columns, replaces
-the derived values, stores the new settings and chains, and reports what changed and by
-how much. When nothing would change it says so and makes no new version.
+Every recompute command (``reharmonise``, ``redate``, ``replace-rotations`` and ``screen``)
+is this one function with a settings change: in one store
+transaction it re-derives all records from their reported columns, replaces the derived
+values, stores the new settings and chains, and reports what changed and by how much.
+When nothing would change it says so and makes no new version.
 """
 
 from __future__ import annotations
@@ -13,9 +13,7 @@ import json
 from dataclasses import dataclass, field
 from typing import Any
 
-from strata13.compile import interrupts
 from strata13.compile.derive.engine import DERIVED_COLUMNS, Settings, derive
-from strata13.compile.ingest import replace_derived_tables
 from strata13.compile.store.lake import Store
 
 COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "age_sigma_ma", "paleolat", "paleolon")
@@ -55,16 +53,14 @@ def _changes(old: Any, new: Any) -> tuple[int, float, float]:
 
 def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeResult:
     """Apply ``change`` to the store's settings and re-derive every record (one commit)."""
-    with store.writer() as con:
-        con.execute("BEGIN")
-        store.migrate(con)
-        before = store.read_settings(con)
+    with store.transaction(command) as tx:
+        before = tx.settings()
         after = before | change
         settings = Settings.from_stored(after)
-        table = con.execute("SELECT * FROM lake.analyses ORDER BY record_id").to_arrow_table()
-        ties = con.execute("SELECT * FROM lake.age_ties").to_arrow_table()
-        runs = con.execute("SELECT * FROM lake.runs").to_arrow_table()
-        fixes = con.execute("SELECT * FROM lake.corrections").to_arrow_table()
+        table = tx.fetch("SELECT * FROM records ORDER BY record_id")
+        ties = tx.fetch("SELECT * FROM age_ties")
+        runs = tx.fetch("SELECT * FROM runs")
+        fixes = tx.fetch("SELECT * FROM corrections")
         derived = derive(table, settings, ties, strict=False, runs=runs, corrections=fixes)
         result = RecomputeResult(
             command,
@@ -93,16 +89,11 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             or 0
         )
         if after == before and not result.changed and not status_changed:
-            con.execute("ROLLBACK")
+            tx.abandon()
             return result
-        interrupts.check()
-        con.execute("DELETE FROM lake.analyses")
-        if derived.table.num_rows:
-            store.add_parquet(con, "analyses", derived.table)
-        replace_derived_tables(store, con, None, derived)
         h = settings.hash()
-        store.write_settings(con, after, h)
-        store.add_chains(con, derived.chains)
+        tx.write_derived(None, derived)
+        tx.write_settings(after, h)
         logged = {
             k: v
             for k, v in change.items()  # long texts: their names and hashes stand in
@@ -116,8 +107,6 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             "max_change": result.max_change,
             "settings": logged,
         }
-        result.version = store._record_commit(
-            con, command, json.dumps(logged, sort_keys=True), h, summary
-        )
-        con.execute("COMMIT")
+        tx.record(summary, h, detail=json.dumps(logged, sort_keys=True))
+    result.version = tx.version
     return result

@@ -170,17 +170,15 @@ def export(
             )
         ),
     }
-    snap = con.execute(
-        "SELECT CAST(snapshot_time AS VARCHAR) FROM lake.snapshots() WHERE snapshot_id = ?",
-        [version],
-    ).fetchone()
+    from strata13.compile.store.relations import snapshot_time
+
     art.finish(
         {
             "tool": "strata13",
             "tool_version": __version__,
             "schema_version": SCHEMA_VERSION,
             "store_version": version,
-            "store_version_time": snap[0] if snap else None,
+            "store_version_time": snapshot_time(con, version),
             "settings_hash": settings_hash,
             "settings": settings or {},
             "filters": filters.describe(),

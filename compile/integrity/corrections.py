@@ -210,24 +210,21 @@ class CorrectResult:
 
 def correct(store: Store, items: list[Correction]) -> CorrectResult:
     """Store corrections and re-derive the sources they touch, in one commit."""
+    import pyarrow as pa
     from strata13.compile.derive.engine import Settings
-    from strata13.compile.ingest import rederive_sources
     from strata13.schemas.records import CORRECTIONS, arrow_schema
 
     for k, c in enumerate(items):
         check(c, f"correction {k + 1}" if len(items) > 1 else "correction")
-    with store.writer() as con:
-        con.execute("BEGIN")
-        store.migrate(con)
+    with store.transaction("correct") as tx:
         rows = []
         sources: set[str] = set()
         replaced = 0
         for c in items:
-            hit = con.execute(
-                "SELECT record_id, source_id FROM lake.analyses WHERE "
-                "starts_with(record_id, ?) LIMIT 3",
+            hit = tx.rows(
+                "SELECT record_id, source_id FROM records WHERE starts_with(record_id, ?) LIMIT 3",
                 [c.record_id],
-            ).fetchall()
+            )
             if len(c.record_id) < 6 or not hit:
                 raise DomainError(
                     f"no record {c.record_id!r} in this store; nothing was written.",
@@ -239,16 +236,13 @@ def correct(store: Store, items: list[Correction]) -> CorrectResult:
                     "Give more characters of the id.",
                 )
             rid, sid = hit[0]
-            original = con.execute(
-                f'SELECT CAST("{_source_column(c.field)}" AS VARCHAR) FROM '
-                "lake.analyses WHERE record_id = ?",
+            original = tx.value(
+                f'SELECT CAST("{_source_column(c.field)}" AS VARCHAR) FROM records '
+                "WHERE record_id = ?",
                 [rid],
-            ).fetchone()[0]
+            )
             cid = correction_id(rid, c.field)
-            replaced += con.execute(
-                "SELECT count(*) FROM lake.corrections WHERE correction_id = ?", [cid]
-            ).fetchone()[0]
-            con.execute("DELETE FROM lake.corrections WHERE correction_id = ?", [cid])
+            replaced += tx.delete("corrections", correction_id=cid)
             rows.append(
                 {
                     "correction_id": cid,
@@ -262,21 +256,15 @@ def correct(store: Store, items: list[Correction]) -> CorrectResult:
                 }
             )
             sources.add(sid)
-        import pyarrow as pa
-        from strata13.compile.ingest import _insert
-
-        _insert(con, "corrections", pa.Table.from_pylist(rows, schema=arrow_schema(CORRECTIONS)))
-        settings = Settings.from_stored(store.read_settings(con))
-        rederive_sources(store, con, sorted(sources), settings)
-        version = store._record_commit(
-            con,
-            "correct",
-            ", ".join(sorted(sources)),
-            settings.hash(),
+        tx.insert("corrections", pa.Table.from_pylist(rows, schema=arrow_schema(CORRECTIONS)))
+        settings = Settings.from_stored(tx.settings())
+        tx.rederive(sorted(sources), settings)
+        tx.record(
             {"corrections": len(rows), "replaced": replaced},
+            settings.hash(),
+            detail=", ".join(sorted(sources)),
         )
-        con.execute("COMMIT")
-    return CorrectResult(version, len(rows) - replaced, replaced, sorted(sources))
+    return CorrectResult(tx.version, len(rows) - replaced, replaced, sorted(sources))
 
 
 def _source_column(field: str) -> str:

@@ -11,7 +11,9 @@ from __future__ import annotations
 
 import datetime as dt
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from strata13.compile.store.reader import Reader
 
 from strata13.errors import DomainError
 
@@ -20,10 +22,10 @@ if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
 
 
-def _declared(con: Any) -> dict[str, set[str]]:
+def _declared(reads: Reader) -> dict[str, set[str]]:
     """source -> sources it re-publishes (from the sources' lineage)."""
     out: dict[str, set[str]] = {}
-    for sid, rep in con.execute("SELECT source_id, republishes FROM sources").fetchall():
+    for sid, rep in reads.rows("SELECT source_id, republishes FROM sources"):
         if rep:
             out[sid] = {r for r in rep.split("|") if r}
     return out
@@ -36,7 +38,7 @@ def overlaps(store: Store, source: str | None = None, **tolerances: float) -> pd
     con, _ = store.reader()
     try:
         records = con.execute("SELECT * FROM records").df()
-        declared = _declared(con)
+        declared = _declared(Reader(con))
         decided = con.execute("SELECT record_a, record_b, decision FROM duplicates").df()
     finally:
         con.close()
@@ -56,43 +58,36 @@ def confirm(store: Store, path: Path) -> tuple[int | None, int, int]:
     Returns (version, confirmed, rejected)."""
     import pyarrow as pa
     from strata13.compile.derive.engine import Settings
-    from strata13.compile.ingest import _insert
     from strata13.compile.integrity.overlaps import duplicates_to_drop, read_decisions
     from strata13.schemas.records import DUPLICATES, arrow_schema
 
     decisions = read_decisions(path)
-    with store.writer() as con:
-        con.execute("BEGIN")
-        store.migrate(con)
-        ids = {d.record_a for d in decisions} | {d.record_b for d in decisions}
-        found = (
+    with store.transaction("overlaps", path.name) as tx:
+        ids = sorted({d.record_a for d in decisions} | {d.record_b for d in decisions})
+        found: dict[str, str] = (
             dict(
-                con.execute(
-                    f"SELECT record_id, source_id FROM lake.analyses WHERE record_id IN "
+                tx.rows(
+                    "SELECT record_id, source_id FROM records WHERE record_id IN "
                     f"({', '.join('?' for _ in ids)})",
-                    sorted(ids),
-                ).fetchall()
+                    ids,
+                )
             )
             if ids
             else {}
         )
-        missing = sorted(ids - set(found))
+        missing = sorted(set(ids) - set(found))
         if missing:
             raise DomainError(
                 f"{path.name} names record {missing[0]!r}, which is not in the "
                 "store; nothing was written.",
                 "Use the record ids `strata13 overlaps` lists.",
             )
-        declared = {k: set(v) for k, v in _declared(_Lake(con)).items()}
-        drop = duplicates_to_drop(decisions, source_of=found, declared=declared)
+        drop = duplicates_to_drop(decisions, source_of=found, declared=_declared(tx))
         now = dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M:%S")
         rows = []
         for d in decisions:
-            con.execute(
-                "DELETE FROM lake.duplicates WHERE (record_a = ? AND record_b = ?) OR "
-                "(record_a = ? AND record_b = ?)",
-                [d.record_a, d.record_b, d.record_b, d.record_a],
-            )
+            tx.delete("duplicates", record_a=d.record_a, record_b=d.record_b)
+            tx.delete("duplicates", record_a=d.record_b, record_b=d.record_a)
             dropped = (
                 (d.record_a if d.record_a in drop else d.record_b if d.record_b in drop else None)
                 if d.decision == "confirm"
@@ -108,25 +103,8 @@ def confirm(store: Store, path: Path) -> tuple[int | None, int, int]:
                     "decided_utc": now,
                 }
             )
-        _insert(con, "duplicates", pa.Table.from_pylist(rows, schema=arrow_schema(DUPLICATES)))
-        settings = Settings.from_stored(store.read_settings(con))
+        tx.insert("duplicates", pa.Table.from_pylist(rows, schema=arrow_schema(DUPLICATES)))
+        settings = Settings.from_stored(tx.settings())
         n_conf = sum(d.decision == "confirm" for d in decisions)
-        version = store._record_commit(
-            con,
-            "overlaps",
-            path.name,
-            settings.hash(),
-            {"confirmed": n_conf, "rejected": len(decisions) - n_conf},
-        )
-        con.execute("COMMIT")
-    return version, n_conf, len(decisions) - n_conf
-
-
-class _Lake:
-    """The writer's tables under the reader's view names, for shared queries."""
-
-    def __init__(self, con: Any) -> None:
-        self.con = con
-
-    def execute(self, sql: str, params: Any = None) -> Any:
-        return self.con.execute(sql.replace("FROM sources", "FROM lake.sources"), params or [])
+        tx.record({"confirmed": n_conf, "rejected": len(decisions) - n_conf}, settings.hash())
+    return tx.version, n_conf, len(decisions) - n_conf

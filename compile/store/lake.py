@@ -7,9 +7,11 @@ Layout of a store folder::
     data/                 Parquet data files (inlining off: all data are Parquet)
     writer.lock           flock target: one writer at a time, released by the kernel on crash
 
-Every write (init, ingest, recompute) is one transaction across all tables; its DuckLake
-snapshot id is the store version. Writers take the OS lock *before* attaching and write
-from one connection and one thread; readers attach READ_ONLY and pin one snapshot.
+Every write (init, ingest, recompute, correct, overlaps confirm) is one
+:meth:`Store.transaction` across all tables; its DuckLake snapshot id is the store version.
+Writers take the OS lock *before* attaching and write from one connection and one thread;
+readers attach READ_ONLY and pin one snapshot. The catalog backend sits behind
+``catalog.Catalog``; readers and the writer see the same relation names (``relations``).
 """
 
 from __future__ import annotations
@@ -25,38 +27,23 @@ from functools import cache
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.store.catalog import CATALOG_FILE, SqliteCatalog, attach
+from strata13.compile.store.relations import READ_VIEWS, bind_views
+from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
-from strata13.schemas.records import RECORDS_COLUMNS, TABLES
+from strata13.schemas.records import TABLES
 
-from strata13.errors import NotAStoreError, StoreError
+from strata13.errors import Interrupted, NotAStoreError, StoreError
 
 if TYPE_CHECKING:
     import duckdb
 
 MARKER = "strata13-store.json"
-CATALOG = "catalog.sqlite"
+CATALOG = CATALOG_FILE
 DATA = "data"
 LOCK = "writer.lock"
 LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
-READ_VIEWS = (
-    "analyses",
-    "sources",
-    "localities",
-    "sections",
-    "samples",
-    "quarantine",
-    "regions",
-    "chains",
-    "settings",
-    "commits",
-    "runs",
-    "age_ties",
-    "age_draws",
-    "screen_results",
-    "run_qc",
-    "corrections",
-    "duplicates",
-)
+__all__ = ["READ_VIEWS", "Store", "Transaction", "Version", "connect", "is_store"]
 
 
 @cache
@@ -97,10 +84,6 @@ def connect() -> duckdb.DuckDBPyConnection:
     return con
 
 
-def _q(text: str) -> str:
-    return "'" + text.replace("'", "''") + "'"
-
-
 def is_store(path: Path) -> bool:
     return (path / MARKER).is_file()
 
@@ -119,7 +102,7 @@ class Store:
 
     def __init__(self, path: Path) -> None:
         self.path = path.resolve()
-        self._pending_files: list[Path] = []  # added in the open transaction
+        self.catalog = SqliteCatalog(self.path / CATALOG)
 
     # ------------------------------------------------------------ creation and opening
     @classmethod
@@ -184,18 +167,16 @@ class Store:
         try:
             store = cls(tmp)
             (tmp / DATA).mkdir()
-            with store.writer() as con:
-                con.execute("BEGIN")
-                for name, columns in TABLES.items():
-                    cols = ", ".join(f'"{c}" {t}' for c, t in columns)
-                    con.execute(f"CREATE TABLE lake.{name} ({cols})")
-                store.write_settings(con, settings, settings_hash)
+            with store.transaction("init") as tx:  # migrating an empty catalog makes every table
+                tx.write_settings(settings, settings_hash)
                 for name, geojson, src in regions or []:
-                    con.execute("INSERT INTO lake.regions VALUES (?, ?, ?)", [name, geojson, src])
-                store._record_commit(
-                    con, "init", "", settings_hash, {"regions": len(regions or [])}
-                )
-                con.execute("COMMIT")
+                    tx.insert(
+                        "regions",
+                        _row_table(
+                            "regions", {"name": name, "geojson": geojson, "source_file": src}
+                        ),
+                    )
+                tx.record({"regions": len(regions or [])}, settings_hash)
             (tmp / MARKER).write_text(
                 json.dumps(
                     {
@@ -222,33 +203,12 @@ class Store:
         return cls(path)
 
     # ------------------------------------------------------------ connections
-    def _attach(self, con: duckdb.DuckDBPyConnection, read_only: bool) -> None:
-        import duckdb
-
-        catalog = self.path / CATALOG
-        data = str(self.path / DATA) + "/"
-        opts = [f"DATA_PATH {_q(data)}", "OVERRIDE_DATA_PATH TRUE"]
-        if read_only:
-            opts.append("READ_ONLY")
-        else:
-            opts += [
-                "DATA_INLINING_ROW_LIMIT 0",
-                "META_JOURNAL_MODE 'WAL'",
-                "META_BUSY_TIMEOUT 30000",
-            ]
-        try:
-            target = _q("ducklake:sqlite:" + str(catalog))
-            con.execute(f"ATTACH {target} AS lake ({', '.join(opts)})")
-        except duckdb.Error as exc:
-            raise StoreError(
-                f"the store catalog {catalog} could not be opened ({exc}).",
-                "Check the folder's permissions; if another program changed the "
-                "catalog, restore it from a copy.",
-            ) from None
-
     @contextlib.contextmanager
     def writer(self) -> Iterator[duckdb.DuckDBPyConnection]:
-        """Exclusive writer: flock first, then attach read-write; one connection, one thread."""
+        """The exclusive writer connection: flock first, then attach read-write.
+
+        Only :meth:`transaction` should use it; one connection, one thread.
+        """
         lock_path = self.path / LOCK
         fd = os.open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
         try:
@@ -266,31 +226,69 @@ class Store:
                         ) from None
                     time.sleep(0.05)
             con = connect()
-            self._pending_files = []
             try:
-                self._attach(con, read_only=False)
+                attach(con, self.catalog, self.path / DATA, read_only=False)
                 yield con
-            except BaseException:
-                with contextlib.suppress(Exception):
-                    con.execute("ROLLBACK")
-                if not self._landed(con):  # files of a transaction that did not commit
-                    for p in self._pending_files:
-                        p.unlink(missing_ok=True)
-                raise
             finally:
-                self._pending_files = []
                 con.close()
         finally:
             with contextlib.suppress(OSError):
                 fcntl.flock(fd, fcntl.LOCK_UN)
             os.close(fd)
 
+    @contextlib.contextmanager
+    def transaction(self, command: str, detail: str = "") -> Iterator[Transaction]:
+        """One unit of work: lock, begin, migrate, yield the writes, commit or roll back.
+
+        The body ends with ``tx.record(summary, settings_hash)`` or ``tx.abandon()``;
+        after the block ``tx.version`` is the new version (None when abandoned). Ctrl-C
+        raises :class:`Interrupted` saying truthfully whether the commit landed.
+        """
+        from strata13.compile import interrupts
+
+        with self.writer() as con:
+            con.execute("BEGIN")
+            tx = Transaction(con, self.path / DATA, command, detail)
+            before: int | None = None
+            try:
+                self.migrate(con)
+                bind_views(con, None)
+                yield tx
+                if tx.abandoned:
+                    con.execute("ROLLBACK")
+                    return
+                interrupts.check()  # a Ctrl-C a library swallowed still stops the commit
+                before = tx.latest_version()
+                version = tx._write_commit_row()
+                con.execute("COMMIT")
+                tx.version = version
+            except KeyboardInterrupt:
+                with contextlib.suppress(Exception):
+                    con.execute("ROLLBACK")
+                landed = before is not None and self.latest_version() > before
+                if not landed:
+                    tx._discard_files()
+                raise Interrupted(
+                    "interrupted: "
+                    + (
+                        "the commit landed"
+                        if landed
+                        else "the commit did not land; the store is unchanged"
+                    ),
+                    landed,
+                ) from None
+            except BaseException:
+                with contextlib.suppress(Exception):
+                    con.execute("ROLLBACK")
+                tx._discard_files()
+                raise
+
     def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
         """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
         import duckdb
 
         con = connect()
-        self._attach(con, read_only=True)
+        attach(con, self.catalog, self.path / DATA, read_only=True)
         latest = self._latest(con)
         v = latest if version is None else version
         if version is not None and not (1 <= version <= latest):
@@ -300,30 +298,7 @@ class Store:
                 "See `strata13 history`.",
             )
         try:
-            tables = self._tables_at(con, v)
-            for name in READ_VIEWS:
-                # a version written before a column existed shows it as NULL: the views
-                # always have today's columns, so old versions stay readable
-                wanted = RECORDS_COLUMNS if name == "analyses" else [c for c, _ in TABLES[name]]
-                types = dict(TABLES[name])
-                view = "records" if name == "analyses" else name
-                if name not in tables:  # a table added after this version: empty, typed
-                    cols = ", ".join(f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted)
-                    con.execute(f"CREATE TEMP VIEW {view} AS SELECT {cols} WHERE false")
-                    continue
-                have = {
-                    r[0]
-                    for r in con.execute(
-                        f"DESCRIBE SELECT * FROM lake.{name} AT (VERSION => {int(v)})"
-                    ).fetchall()
-                }
-                cols = ", ".join(
-                    f'"{c}"' if c in have else f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted
-                )
-                con.execute(
-                    f"CREATE TEMP VIEW {view} AS SELECT {cols} FROM lake.{name} "
-                    f"AT (VERSION => {int(v)})"
-                )
+            bind_views(con, v)
         except duckdb.Error as exc:
             con.close()
             raise StoreError(
@@ -332,35 +307,6 @@ class Store:
             ) from None
         return con, v
 
-    def _landed(self, con: duckdb.DuckDBPyConnection) -> bool:
-        """Whether every file added in this writer session is referenced by the catalog."""
-        if not self._pending_files:
-            return True
-        names: set[str] = set()
-        try:
-            for table in {p.parent.name for p in self._pending_files}:
-                names |= {
-                    r[0]
-                    for r in con.execute(
-                        "SELECT data_file FROM ducklake_list_files('lake', ?)", [table]
-                    ).fetchall()
-                }
-        except Exception:  # the catalog cannot be asked: keep the files, they are harmless
-            return True
-        return all(any(str(p.name) in n for n in names) for p in self._pending_files)
-
-    @staticmethod
-    def _tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
-        """The tables that existed at ``version`` (later schema versions add tables)."""
-        names = set()
-        for name in READ_VIEWS:
-            try:
-                con.execute(f"SELECT 1 FROM lake.{name} AT (VERSION => {int(version)}) LIMIT 0")
-            except Exception:  # duckdb.Error: the table did not exist at that version
-                continue
-            names.add(name)
-        return names
-
     @staticmethod
     def _latest(con: duckdb.DuckDBPyConnection) -> int:
         return int(con.execute("SELECT max(snapshot_id) FROM lake.snapshots()").fetchone()[0])
@@ -368,7 +314,7 @@ class Store:
     def latest_version(self) -> int:
         con = connect()
         try:
-            self._attach(con, read_only=True)
+            attach(con, self.catalog, self.path / DATA, read_only=True)
             return self._latest(con)
         finally:
             con.close()
@@ -403,74 +349,6 @@ class Store:
                     added.append(f"{name}.{col}")
         return added
 
-    def add_chains(self, con: duckdb.DuckDBPyConnection, chains: dict[str, str]) -> None:
-        """Store each distinct chain of steps once, keyed by its hash."""
-        known = {r[0] for r in con.execute("SELECT chain_id FROM lake.chains").fetchall()}
-        for cid, steps in sorted(chains.items()):
-            if cid not in known:
-                con.execute("INSERT INTO lake.chains VALUES (?, ?)", [cid, steps])
-
-    def add_parquet(self, con: duckdb.DuckDBPyConnection, table: str, data: Any) -> None:
-        """Add an Arrow table to ``table`` inside the open transaction.
-
-        The Parquet file is written by pyarrow into the store's data folder and registered
-        with ``ducklake_add_data_files`` (transactional: it counts only if the commit lands).
-        pyarrow writes this wide, mostly sparse table several times faster than an INSERT
-        through DuckDB's writer (measured in benchmarks/). A file whose transaction does not
-        commit is removed; after a crash it stays as an unreferenced orphan, never read.
-        """
-        import uuid
-
-        import pyarrow.parquet as pq
-
-        folder = self.path / DATA / "main" / table
-        folder.mkdir(parents=True, exist_ok=True)
-        path = folder / f"strata13-{uuid.uuid4()}.parquet"
-        try:
-            pq.write_table(data, path, compression="snappy", row_group_size=122_880)
-            con.execute("CALL ducklake_add_data_files('lake', ?, ?)", [table, str(path)])
-        except BaseException:
-            path.unlink(missing_ok=True)
-            raise
-        self._pending_files.append(path)
-
-    def _record_commit(
-        self,
-        con: duckdb.DuckDBPyConnection,
-        command: str,
-        detail: str,
-        settings_hash: str,
-        summary: dict[str, Any],
-    ) -> int:
-        """Write the commits row and commit message; returns the version this commit gets."""
-        from strata13 import __version__
-
-        version = self._latest(con) + 1  # the writer lock makes this prediction safe
-        con.execute(
-            "INSERT INTO lake.commits VALUES (?, ?, ?, ?, ?, ?, ?)",
-            [
-                version,
-                command,
-                detail,
-                __version__,
-                SCHEMA_VERSION,
-                settings_hash,
-                json.dumps(summary, sort_keys=True),
-            ],
-        )
-        extra = json.dumps(
-            {
-                "schema_version": SCHEMA_VERSION,
-                "tool_version": __version__,
-                "settings_hash": settings_hash,
-            }
-        )
-        con.execute(
-            f"CALL lake.set_commit_message('strata13', {_q(command + ' ' + detail)}, "
-            f"extra_info => {_q(extra)})"
-        )
-        return version
-
     # ------------------------------------------------------------ reading helpers
     @staticmethod
     def read_settings(
@@ -479,18 +357,6 @@ class Store:
         """The settings table as a dict (one key each, values decoded from JSON)."""
         rows = con.execute(f"SELECT key, value_json FROM {relation}").fetchall()
         return {k: json.loads(v) for k, v in rows}
-
-    @staticmethod
-    def write_settings(
-        con: duckdb.DuckDBPyConnection, values: dict[str, Any], settings_hash: str
-    ) -> None:
-        """Replace the settings table (inside the caller's transaction)."""
-        con.execute("DELETE FROM lake.settings")
-        for key, value in sorted(values.items()):
-            con.execute(
-                "INSERT INTO lake.settings VALUES (?, ?, ?)",
-                [key, json.dumps(value, sort_keys=True), settings_hash],
-            )
 
     def settings(self, version: int | None = None) -> dict[str, Any]:
         con, _ = self.reader(version)
@@ -516,3 +382,11 @@ class Store:
             Version(int(v), str(snaps.get(v, ""))[:19], c, d, json.loads(s or "{}"))
             for v, c, d, s in rows
         ]
+
+
+def _row_table(table: str, row: dict[str, Any]) -> Any:
+    """One row as an Arrow table typed like ``table``."""
+    import pyarrow as pa
+    from strata13.schemas.records import arrow_schema
+
+    return pa.Table.from_pylist([row], schema=arrow_schema(TABLES[table]))

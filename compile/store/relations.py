@@ -1,0 +1,95 @@
+"""One set of relation names for every reader and the writer.
+
+Modules outside the store read ``records``, ``sources``, ``age_ties`` … and never the
+catalog's own tables. A reader's views pin one snapshot; a writer's views show the open
+transaction, so code that reads before it writes needs no second spelling of its SQL.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from strata13.schemas.records import RECORDS_COLUMNS, TABLES
+
+if TYPE_CHECKING:
+    import duckdb
+
+# catalog table -> the name readers and the writer see (the only renamed one is records)
+VIEW_NAMES: dict[str, str] = {
+    "analyses": "records",
+    "sources": "sources",
+    "localities": "localities",
+    "sections": "sections",
+    "samples": "samples",
+    "quarantine": "quarantine",
+    "regions": "regions",
+    "chains": "chains",
+    "settings": "settings",
+    "commits": "commits",
+    "runs": "runs",
+    "age_ties": "age_ties",
+    "age_draws": "age_draws",
+    "screen_results": "screen_results",
+    "run_qc": "run_qc",
+    "corrections": "corrections",
+    "duplicates": "duplicates",
+}
+READ_VIEWS = tuple(VIEW_NAMES)
+TABLE_OF: dict[str, str] = {view: table for table, view in VIEW_NAMES.items()}
+
+
+def table_for(name: str) -> str:
+    """The catalog table behind a relation name (either spelling is accepted)."""
+    return TABLE_OF.get(name, name)
+
+
+def _columns(table: str, writer: bool) -> list[str]:
+    """A relation's columns; the writer's ``records`` also has the re-ingest diff's
+    ``row_hash``, which readers never see."""
+    if table != "analyses":
+        return [c for c, _ in TABLES[table]]
+    return [*RECORDS_COLUMNS, "row_hash"] if writer else RECORDS_COLUMNS
+
+
+def tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
+    """The tables that existed at ``version`` (later schema versions add tables)."""
+    names = set()
+    for name in READ_VIEWS:
+        try:
+            con.execute(f"SELECT 1 FROM lake.{name} AT (VERSION => {int(version)}) LIMIT 0")
+        except Exception:  # duckdb.Error: the table did not exist at that version
+            continue
+        names.add(name)
+    return names
+
+
+def bind_views(con: duckdb.DuckDBPyConnection, version: int | None) -> None:
+    """Create the temp views over ``lake`` at ``version`` (None: the live, writable state).
+
+    A version written before a column existed shows it as NULL: the views always have
+    today's columns, so old versions stay readable. A writer calls this after migrating,
+    when every table and column exists.
+    """
+    at = "" if version is None else f" AT (VERSION => {int(version)})"
+    present = set(READ_VIEWS) if version is None else tables_at(con, version)
+    for table, view in VIEW_NAMES.items():
+        wanted = _columns(table, writer=version is None)
+        types = dict(TABLES[table])
+        if table not in present:  # a table added after this version: empty, typed
+            cols = ", ".join(f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted)
+            con.execute(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} WHERE false")
+            continue
+        have = {r[0] for r in con.execute(f"DESCRIBE SELECT * FROM lake.{table}{at}").fetchall()}
+        cols = ", ".join(
+            f'"{c}"' if c in have else f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted
+        )
+        con.execute(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}")
+
+
+def snapshot_time(con: duckdb.DuckDBPyConnection, version: int) -> str | None:
+    """When ``version`` was committed (UTC text), or None for an unknown version."""
+    row = con.execute(
+        "SELECT CAST(snapshot_time AS VARCHAR) FROM lake.snapshots() WHERE snapshot_id = ?",
+        [version],
+    ).fetchone()
+    return None if row is None else str(row[0])
