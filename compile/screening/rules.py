@@ -37,6 +37,7 @@ from strata13.schemas.fields import BY_NAME, CONC_FIELDS, DELTA_FIELDS, FIELDS, 
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError
+from strata13.suggest import did_you_mean
 
 RULE_NAME = re.compile(r"^[a-z0-9][a-z0-9-]{0,62}[a-z0-9]$")
 KINDS = ("value-limit", "ratio-limit", "covariance", "allowed-values")
@@ -383,13 +384,6 @@ def _rule_at_line(text: str, line: int) -> str | None:
     return None
 
 
-def _did_you_mean(word: str, options: set[str] | list[str] | tuple[str, ...]) -> str:
-    import difflib
-
-    hit = difflib.get_close_matches(str(word), sorted(options), n=1, cutoff=0.6)
-    return f" Did you mean {hit[0]!r}?" if hit else ""
-
-
 class _Ctx:
     """Who is speaking in a message: the file and the rule."""
 
@@ -433,7 +427,7 @@ class _Ctx:
         if value not in options:
             raise self.fail(
                 f"{key} = {value!r} is not one of {', '.join(options)}."
-                + _did_you_mean(str(value), options),
+                + did_you_mean(str(value), options),
                 f'Use {key} = "{options[0]}" (or another of the listed values).',
             )
         return str(value)
@@ -452,7 +446,7 @@ def _build(doc: Any, origin: str) -> RuleSet:
     for key in doc:
         if key not in TOP_KEYS:
             raise ConfigError(
-                f"{origin}: unknown top-level key {key!r}." + _did_you_mean(key, TOP_KEYS),
+                f"{origin}: unknown top-level key {key!r}." + did_you_mean(key, TOP_KEYS),
                 "A rule file holds one [ruleset] header and [[rule]] entries.",
             )
     header = doc.get("ruleset")
@@ -464,7 +458,7 @@ def _build(doc: Any, origin: str) -> RuleSet:
     for key in header:
         if key not in HEADER_KEYS:
             raise ConfigError(
-                f"{origin}: unknown key {key!r} in [ruleset]." + _did_you_mean(key, HEADER_KEYS),
+                f"{origin}: unknown key {key!r} in [ruleset]." + did_you_mean(key, HEADER_KEYS),
                 f"Keys of [ruleset]: {', '.join(sorted(HEADER_KEYS))}.",
             )
     for key in ("name", "version"):
@@ -510,14 +504,14 @@ def _rule(entry: Any, index: int, origin: str) -> Rule:
         raise ctx.fail("has no kind.", f"Add kind = one of {', '.join(KINDS)}.")
     if kind not in KINDS:
         raise ctx.fail(
-            f"kind = {kind!r} is not a rule kind." + _did_you_mean(str(kind), KINDS),
+            f"kind = {kind!r} is not a rule kind." + did_you_mean(str(kind), KINDS),
             f"Rule kinds: {', '.join(KINDS)}.",
         )
     allowed = COMMON_KEYS | KIND_KEYS[kind]
     for key in entry:
         if key not in allowed:
             raise ctx.fail(
-                f"unknown key {key!r}." + _did_you_mean(key, allowed),
+                f"unknown key {key!r}." + did_you_mean(key, allowed),
                 f"Keys of a {kind} rule: {', '.join(sorted(allowed))}.",
             )
     description = ctx.text(entry, "description")
@@ -546,7 +540,7 @@ def _scope(block: Any, ctx: _Ctx) -> Scope:
     for key in block:
         if key not in SCOPE_KEYS:
             raise ctx.fail(
-                f"unknown scope key {key!r}." + _did_you_mean(key, SCOPE_KEYS),
+                f"unknown scope key {key!r}." + did_you_mean(key, SCOPE_KEYS),
                 f"Scope keys: {', '.join(sorted(SCOPE_KEYS))}.",
             )
     lo = ctx.number(block, "age_min_ma") if "age_min_ma" in block else None
@@ -599,7 +593,7 @@ def _unknown_field(
     elif str(name).endswith("_reported") and str(name)[:-9] in options:
         hint = f" Did you mean {str(name)[:-9]!r} (screens test harmonised ‰ VPDB values)?"
     else:
-        hint = _did_you_mean(str(name), set(options))
+        hint = did_you_mean(str(name), options)
     return ctx.fail(
         f"{key} = {name!r} is not a {what} column." + hint,
         f"{what.capitalize()} columns: {', '.join(sorted(options))}.",
@@ -629,7 +623,7 @@ def _value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
     units = UNITS[f.unit_kind]
     if unit not in units:
         raise ctx.fail(
-            f"unit = {unit!r} does not fit {name}." + _did_you_mean(str(unit), units),
+            f"unit = {unit!r} does not fit {name}." + did_you_mean(str(unit), units),
             f"Units for {name}: {', '.join(units)} (stored in {f.stored_unit}).",
         )
     return ValueLimit(name, pass_if, limit, str(unit))
