@@ -541,10 +541,11 @@ def _covariance(
     starts = np.flatnonzero(new_group)
     ends = np.r_[starts[1:], g.size].astype(np.int64)
     if spec.group_by == "window":
+        width = _window_width(spec)
         span = np.maximum(ps[ends - 1] - ps[starts], 0.0) if g.size else np.empty(0)
-        offset = np.r_[0.0, np.cumsum(span + 2.0 * spec.window_m + 1.0)][:-1] - ps[starts]
+        offset = np.r_[0.0, np.cumsum(span + 2.0 * width + 1.0)][:-1] - ps[starts]
         key = ps + offset[g]
-        half = (spec.window_m or 0.0) / 2.0
+        half = width / 2.0
         lo = np.searchsorted(key, key - half, side="left")
         hi = np.searchsorted(key, key + half, side="right")
         owner = np.arange(g.size)  # interval i belongs to sorted record i
@@ -643,6 +644,14 @@ def _covariance(
         }
     )
     return code, groups
+
+
+def _window_width(spec: Covariance) -> float:
+    """The moving window's width in metres. The rule-file parser requires window_m with
+    group_by "window"; a Covariance built by hand without one is refused, not guessed."""
+    if spec.window_m is None:
+        raise ValueError('a covariance rule with group_by = "window" needs window_m')
+    return spec.window_m
 
 
 # --- the public functions --------------------------------------------------------------
