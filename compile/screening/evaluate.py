@@ -393,10 +393,21 @@ def _verdicts(
     return code
 
 
-# --- rule kinds ------------------------------------------------------------------------
+# --- rule kinds (each evaluator is bound to its kind in kinds.KINDS) --------------------
 
 
-def _value_limit(rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail) -> np.ndarray:
+class Verdict(NamedTuple):
+    """What a kind's evaluator gives for one rule: an outcome code per record (scope is
+    applied afterwards) and, for a kind that tests groups, their statistics table."""
+
+    codes: np.ndarray
+    groups: pa.Table | None = None
+
+
+def screen_value_limit(
+    rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> Verdict:
+    """Each record's value (a bound when censored) against the limit in the stored unit."""
     f = NUMERIC_FIELDS[spec.field]
     b = _bounds(spec.field, cols)
     limit = spec.limit_stored
@@ -408,10 +419,14 @@ def _value_limit(rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail) 
     unit = f" {f.stored_unit}"
     lead = [f"{f.label} ", b.text, unit]
     cond = f"{PASS_WORDS[spec.pass_if]} {_fmt(limit)}{unit}"
-    return _verdicts(rule, lead, passes, fails, ~b.missing, cond, detail)
+    return Verdict(_verdicts(rule, lead, passes, fails, ~b.missing, cond, detail))
 
 
-def _ratio_limit(rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail) -> np.ndarray:
+def screen_ratio_limit(
+    rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> Verdict:
+    """Each record's ratio (an interval when an input is censored) against the limit;
+    untested where an input is missing, the denominator is zero or the bases differ."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -459,10 +474,13 @@ def _ratio_limit(rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail) 
         f" {fd.stored_unit})",
     ]
     cond = f"{PASS_WORDS[spec.pass_if]} {_fmt(spec.limit)}"
-    return _verdicts(rule, lead, passes, fails, valid, cond, detail)
+    return Verdict(_verdicts(rule, lead, passes, fails, valid, cond, detail))
 
 
-def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns, detail: _Detail) -> np.ndarray:
+def screen_allowed_values(
+    rule: Rule, spec: AllowedValues, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> Verdict:
+    """Each record's category against the allowed (or excluded) terms, ignoring case."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -487,13 +505,14 @@ def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns, detail: _De
     detail.dynamic(
         bad, _join_at(bad, [f"{spec.field} '", vals, f"' — {word} ({which}: {terms_text})"])
     )
-    return code
+    return Verdict(code)
 
 
-def _covariance(
+def screen_covariance(
     rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail, in_scope: np.ndarray
-) -> tuple[np.ndarray, pa.Table]:
-    """Per-record outcome from its group's (or window's) statistics, and the group table."""
+) -> Verdict:
+    """Per-record outcome from its group's (or window's) statistics, and the group table.
+    Only records in scope join a group: the others must not move its statistics."""
     import pyarrow as pa
     import pyarrow.compute as pc
     from strata13.compile.screening.stats import interval_stats
@@ -643,7 +662,7 @@ def _covariance(
             ),
         }
     )
-    return code, groups
+    return Verdict(code, groups)
 
 
 def _window_width(spec: Covariance) -> float:
@@ -709,6 +728,7 @@ def evaluate(
     lithostrat_unit, centre_m, n, n_eff, r, r2, p, rho1_x, rho1_y, outcome).
     """
     import pyarrow as pa
+    from strata13.compile.screening.kinds import kind_of  # kinds imports this module
 
     table = _as_table(records)
     if "record_id" not in table.column_names:
@@ -726,17 +746,10 @@ def evaluate(
         detail = _Detail(n, all_details)
         outside, unknown = _scope(rule, cols, detail)
         in_scope = ~outside & ~unknown
-        spec = rule.spec
-        if isinstance(spec, ValueLimit):
-            code = _value_limit(rule, spec, cols, detail)
-        elif isinstance(spec, RatioLimit):
-            code = _ratio_limit(rule, spec, cols, detail)
-        elif isinstance(spec, AllowedValues):
-            code = _allowed_values(rule, spec, cols, detail)
-        else:
-            code, groups = _covariance(rule, spec, cols, detail, in_scope)
-            group_tables.append(groups)
-        code = np.where(outside, NA, np.where(unknown, UNTESTED, code)).astype(np.int8)
+        verdict = kind_of(rule.spec).screen(rule, rule.spec, cols, detail, in_scope)
+        if verdict.groups is not None:
+            group_tables.append(verdict.groups)
+        code = np.where(outside, NA, np.where(unknown, UNTESTED, verdict.codes)).astype(np.int8)
         codes.append(code)
         details.append(detail.build())
 

@@ -31,7 +31,7 @@ import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from strata13.schemas.fields import BY_NAME, CONC_FIELDS, DELTA_FIELDS, FIELDS, UNITS
 from strata13.schemas.vocabularies import vocabulary
@@ -39,8 +39,10 @@ from strata13.schemas.vocabularies import vocabulary
 from strata13.errors import ConfigError
 from strata13.suggest import did_you_mean
 
+if TYPE_CHECKING:
+    from strata13.compile.screening.kinds import Kind
+
 RULE_NAME = re.compile(r"^[a-z0-9][a-z0-9-]{0,62}[a-z0-9]$")
-KINDS = ("value-limit", "ratio-limit", "covariance", "allowed-values")
 SEVERITIES = ("fail", "warn")
 # What passes, and so what happens exactly at the limit (the name says it).
 PASS_IF = {"below": "<", "at_most": "≤", "above": ">", "at_least": "≥"}
@@ -55,12 +57,6 @@ ATOMIC_MASS_SOURCE = "IUPAC standard atomic weights (abridged), from memory"
 TOP_KEYS = {"ruleset", "rule"}
 HEADER_KEYS = {"name", "version", "description"}
 COMMON_KEYS = {"name", "kind", "description", "citation", "confidence", "severity", "scope"}
-KIND_KEYS = {
-    "value-limit": {"field", "pass_if", "limit", "unit"},
-    "ratio-limit": {"numerator", "denominator", "ratio_by", "pass_if", "limit"},
-    "covariance": {"x", "y", "group_by", "window_m", "min_n", "min_r", "alpha", "lag1_correction"},
-    "allowed-values": {"field", "allowed", "excluded"},
-}
 SCOPE_KEYS = {"age_min_ma", "age_max_ma", "component", "mineralogy", "setting"}
 
 
@@ -235,6 +231,8 @@ class AllowedValues:
         return out
 
 
+# One spec class per rule kind; ``kinds.KINDS`` binds each to its name, parser and
+# evaluator, and refuses at import a class listed here without an entry there.
 Spec = ValueLimit | RatioLimit | Covariance | AllowedValues
 
 
@@ -499,36 +497,35 @@ def _rule(entry: Any, index: int, origin: str) -> Rule:
             'Use 2–64 lowercase letters, digits and hyphens, e.g. name = "mn-sr".',
         )
     ctx.rule = repr(name)
-    kind = entry.get("kind")
-    if kind is None:
-        raise ctx.fail("has no kind.", f"Add kind = one of {', '.join(KINDS)}.")
-    if kind not in KINDS:
-        raise ctx.fail(
-            f"kind = {kind!r} is not a rule kind." + did_you_mean(str(kind), KINDS),
-            f"Rule kinds: {', '.join(KINDS)}.",
-        )
-    allowed = COMMON_KEYS | KIND_KEYS[kind]
+    kind = _kind(entry.get("kind"), ctx)
+    allowed = COMMON_KEYS | kind.keys
     for key in entry:
         if key not in allowed:
             raise ctx.fail(
                 f"unknown key {key!r}." + did_you_mean(key, allowed),
-                f"Keys of a {kind} rule: {', '.join(sorted(allowed))}.",
+                f"Keys of a {kind.name} rule: {', '.join(sorted(allowed))}.",
             )
     description = ctx.text(entry, "description")
     citation = ctx.text(entry, "citation")
     confidence = ctx.text(entry, "confidence")
     severity = ctx.choice(entry, "severity", SEVERITIES)
     scope = _scope(entry.get("scope", {}), ctx)
-    spec: Spec
-    if kind == "value-limit":
-        spec = _value_limit(entry, ctx)
-    elif kind == "ratio-limit":
-        spec = _ratio_limit(entry, ctx)
-    elif kind == "covariance":
-        spec = _covariance(entry, ctx)
-    else:
-        spec = _allowed_values(entry, ctx)
-    return Rule(name, kind, description, citation, confidence, severity, scope, spec)
+    spec = kind.parse(entry, ctx)
+    return Rule(name, kind.name, description, citation, confidence, severity, scope, spec)
+
+
+def _kind(value: Any, ctx: _Ctx) -> Kind[Any]:
+    """The registered kind a rule names; anything else is refused with the list of kinds."""
+    from strata13.compile.screening.kinds import KINDS  # kinds imports this module
+
+    if value is None:
+        raise ctx.fail("has no kind.", f"Add kind = one of {', '.join(KINDS)}.")
+    if not isinstance(value, str) or value not in KINDS:
+        raise ctx.fail(
+            f"kind = {value!r} is not a rule kind." + did_you_mean(str(value), KINDS),
+            f"Rule kinds: {', '.join(KINDS)}.",
+        )
+    return KINDS[value]
 
 
 def _scope(block: Any, ctx: _Ctx) -> Scope:
@@ -614,7 +611,11 @@ def _numeric(entry: dict[str, Any], key: str, ctx: _Ctx, default: str | None = N
     return str(name)
 
 
-def _value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
+# --- the kinds' own keys (each parser is bound to its kind in kinds.KINDS) ---------------
+
+
+def parse_value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
+    """A value-limit's column, comparison, limit and a unit that fits the column."""
     name = _numeric(entry, "field", ctx)
     f = NUMERIC_FIELDS[name]
     pass_if = ctx.choice(entry, "pass_if", tuple(PASS_IF))
@@ -629,7 +630,8 @@ def _value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
     return ValueLimit(name, pass_if, limit, str(unit))
 
 
-def _ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
+def parse_ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
+    """Two different concentration columns (elements, for a molar ratio) and a limit ≥ 0."""
     num = _numeric(entry, "numerator", ctx)
     den = _numeric(entry, "denominator", ctx)
     ratio_by = ctx.choice(entry, "ratio_by", RATIO_BY)
@@ -657,7 +659,9 @@ def _ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
     return RatioLimit(num, den, ratio_by, pass_if, limit)
 
 
-def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
+def parse_covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
+    """Two numeric columns (δ18O, δ13C unless given), the grouping (window_m exactly when
+    by window) and the test's limits; keys left out take ``Covariance``'s defaults."""
     d = Covariance()
     x = _numeric(entry, "x", ctx, d.x)
     y = _numeric(entry, "y", ctx, d.y)
@@ -692,7 +696,8 @@ def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
     return Covariance(x, y, group_by, window, int(min_n), min_r, alpha, lag1)
 
 
-def _allowed_values(entry: dict[str, Any], ctx: _Ctx) -> AllowedValues:
+def parse_allowed_values(entry: dict[str, Any], ctx: _Ctx) -> AllowedValues:
+    """A categorical column and exactly one of allowed or excluded, as vocabulary terms."""
     name = entry.get("field")
     if name is None:
         raise ctx.fail("field is missing.", 'Add field = "component" (a categorical column).')
