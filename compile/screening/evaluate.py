@@ -21,8 +21,10 @@ else ``untested``. With ``untested_passes=True`` an applicable but untested rule
 passed (records with no applicable rule stay untested). These are rules of thumb: the
 user's judgement and their lab's practice decide what a flag means.
 
-Everything is vectorised (numpy/pyarrow; covariance by sorted groups and prefix sums); the
-input is read, never changed.
+Each rule is screened by its kind's evaluator (``screen_*`` here, bound in ``kinds.KINDS``),
+which gives an outcome code per record; scope then overrides it. Everything is vectorised
+(numpy/pyarrow; covariance by sorted groups and prefix sums); the input is read, never
+changed.
 """
 
 from __future__ import annotations

@@ -3,14 +3,15 @@
 A rule file has a ``[ruleset]`` header (name, version, description) and ``[[rule]]``
 entries. Every rule carries a description, a citation (a reference, or the literal
 "common practice"), a confidence note, a severity (``fail`` or ``warn``), an optional
-``scope`` and exactly one ``kind``:
+``scope`` and exactly one ``kind`` (registered in ``kinds.KINDS``, which binds each to its
+spec class below, its parser here and its evaluator in ``evaluate``):
 
 * ``value-limit``    — one stored column against a limit: ``field``, ``pass_if``, ``limit``,
   ``unit`` (converted to the stored unit first);
 * ``ratio-limit``    — ``numerator`` / ``denominator`` (concentration columns), ``ratio_by``
   ``mass`` or ``molar``, ``pass_if``, ``limit``;
 * ``covariance``     — δ13C against δ18O within a group (``group_by`` ``section``,
-  ``section-unit`` or ``window`` with ``window_m``), warned when ``r ≥ min_r`` with
+  ``section-unit`` or ``window`` with ``window_m``), flagged when ``r ≥ min_r`` with
   ``p < alpha``; groups under ``min_n`` records are untested;
 * ``allowed-values`` — a categorical column with ``allowed`` or ``excluded`` values.
 
