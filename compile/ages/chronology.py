@@ -1,6 +1,6 @@
-"""Time on the command line: chart listings, named time bins, redating and age-model views.
+"""Time on the command line: chart listings, named time bins and age-model views.
 
-The science lives in ``schemas.timescales`` (charts, conversion) and ``compile.agemodel``
+The science lives in ``schemas.timescales`` (charts, conversion) and ``compile.ages.agemodel``
 (draws); this module connects them to a store: which chart a name resolves on, which
 interval a filter means in the store's ages, and what one section's age model looks like.
 """
@@ -13,6 +13,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, cast
 
 from strata13.errors import DomainError, OptionError
+from strata13.suggest import closest
 
 if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
@@ -130,8 +131,6 @@ class SectionModel:
 
 def find_section(con: Any, name: str) -> tuple[str, str]:
     """``source/section`` or a section id unique in the store -> (source_id, section_id)."""
-    import difflib
-
     rows = con.execute("SELECT DISTINCT source_id, section_id FROM records").fetchall()
     if "/" in name:
         src, _, sec = name.rpartition("/")
@@ -147,7 +146,7 @@ def find_section(con: Any, name: str) -> tuple[str, str]:
             f"Write SOURCE/SECTION, e.g. {hits[0][0]}/{name}.",
         )
     known = sorted({r[1] for r in rows} | {f"{r[0]}/{r[1]}" for r in rows})
-    sug = difflib.get_close_matches(name, known, n=1, cutoff=0.5)
+    sug = closest(name, known, n=1, cutoff=0.5)
     raise DomainError(
         f"no section {name!r} in this store." + (f" Did you mean {sug[0]!r}?" if sug else ""),
         'List sections with `strata13 sql "SELECT DISTINCT source_id, section_id FROM records"`.',

@@ -18,6 +18,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.errors import ConfigError, OptionError
+from strata13.suggest import closest
 
 if TYPE_CHECKING:
     import numpy as np
@@ -225,9 +226,7 @@ def resolve_region(spec: str, named: dict[str, str]) -> Region:
                 "Check the file with a GeoJSON validator.",
             ) from None
         return from_geojson(doc, path.name, path.name)
-    import difflib
-
-    hit = difflib.get_close_matches(spec, list(named), n=1)
+    hit = closest(spec, named, n=1)
     raise OptionError(
         f"--region {spec!r} is not a bbox, a GeoJSON file or a region of this store."
         + (f" Did you mean {hit[0]!r}?" if hit else ""),

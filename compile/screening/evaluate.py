@@ -21,8 +21,10 @@ else ``untested``. With ``untested_passes=True`` an applicable but untested rule
 passed (records with no applicable rule stay untested). These are rules of thumb: the
 user's judgement and their lab's practice decide what a flag means.
 
-Everything is vectorised (numpy/pyarrow; covariance by sorted groups and prefix sums); the
-input is read, never changed.
+Each rule is screened by its kind's evaluator (``screen_*`` here, bound in ``kinds.KINDS``),
+which gives an outcome code per record; scope then overrides it. Everything is vectorised
+(numpy/pyarrow; covariance by sorted groups and prefix sums); the input is read, never
+changed.
 """
 
 from __future__ import annotations
@@ -393,10 +395,21 @@ def _verdicts(
     return code
 
 
-# --- rule kinds ------------------------------------------------------------------------
+# --- rule kinds (each evaluator is bound to its kind in kinds.KINDS) --------------------
 
 
-def _value_limit(rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail) -> np.ndarray:
+class Verdict(NamedTuple):
+    """What a kind's evaluator gives for one rule: an outcome code per record (scope is
+    applied afterwards) and, for a kind that tests groups, their statistics table."""
+
+    codes: np.ndarray
+    groups: pa.Table | None = None
+
+
+def screen_value_limit(
+    rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> Verdict:
+    """Each record's value (a bound when censored) against the limit in the stored unit."""
     f = NUMERIC_FIELDS[spec.field]
     b = _bounds(spec.field, cols)
     limit = spec.limit_stored
@@ -408,10 +421,14 @@ def _value_limit(rule: Rule, spec: ValueLimit, cols: _Columns, detail: _Detail) 
     unit = f" {f.stored_unit}"
     lead = [f"{f.label} ", b.text, unit]
     cond = f"{PASS_WORDS[spec.pass_if]} {_fmt(limit)}{unit}"
-    return _verdicts(rule, lead, passes, fails, ~b.missing, cond, detail)
+    return Verdict(_verdicts(rule, lead, passes, fails, ~b.missing, cond, detail))
 
 
-def _ratio_limit(rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail) -> np.ndarray:
+def screen_ratio_limit(
+    rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> Verdict:
+    """Each record's ratio (an interval when an input is censored) against the limit;
+    untested where an input is missing, the denominator is zero or the bases differ."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -459,10 +476,13 @@ def _ratio_limit(rule: Rule, spec: RatioLimit, cols: _Columns, detail: _Detail) 
         f" {fd.stored_unit})",
     ]
     cond = f"{PASS_WORDS[spec.pass_if]} {_fmt(spec.limit)}"
-    return _verdicts(rule, lead, passes, fails, valid, cond, detail)
+    return Verdict(_verdicts(rule, lead, passes, fails, valid, cond, detail))
 
 
-def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns, detail: _Detail) -> np.ndarray:
+def screen_allowed_values(
+    rule: Rule, spec: AllowedValues, cols: _Columns, detail: _Detail, in_scope: np.ndarray
+) -> Verdict:
+    """Each record's category against the allowed (or excluded) terms, ignoring case."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
@@ -487,13 +507,14 @@ def _allowed_values(rule: Rule, spec: AllowedValues, cols: _Columns, detail: _De
     detail.dynamic(
         bad, _join_at(bad, [f"{spec.field} '", vals, f"' — {word} ({which}: {terms_text})"])
     )
-    return code
+    return Verdict(code)
 
 
-def _covariance(
+def screen_covariance(
     rule: Rule, spec: Covariance, cols: _Columns, detail: _Detail, in_scope: np.ndarray
-) -> tuple[np.ndarray, pa.Table]:
-    """Per-record outcome from its group's (or window's) statistics, and the group table."""
+) -> Verdict:
+    """Per-record outcome from its group's (or window's) statistics, and the group table.
+    Only records in scope join a group: the others must not move its statistics."""
     import pyarrow as pa
     import pyarrow.compute as pc
     from strata13.compile.screening.stats import interval_stats
@@ -541,10 +562,11 @@ def _covariance(
     starts = np.flatnonzero(new_group)
     ends = np.r_[starts[1:], g.size].astype(np.int64)
     if spec.group_by == "window":
+        width = _window_width(spec)
         span = np.maximum(ps[ends - 1] - ps[starts], 0.0) if g.size else np.empty(0)
-        offset = np.r_[0.0, np.cumsum(span + 2.0 * spec.window_m + 1.0)][:-1] - ps[starts]
+        offset = np.r_[0.0, np.cumsum(span + 2.0 * width + 1.0)][:-1] - ps[starts]
         key = ps + offset[g]
-        half = (spec.window_m or 0.0) / 2.0
+        half = width / 2.0
         lo = np.searchsorted(key, key - half, side="left")
         hi = np.searchsorted(key, key + half, side="right")
         owner = np.arange(g.size)  # interval i belongs to sorted record i
@@ -642,7 +664,15 @@ def _covariance(
             ),
         }
     )
-    return code, groups
+    return Verdict(code, groups)
+
+
+def _window_width(spec: Covariance) -> float:
+    """The moving window's width in metres. The rule-file parser requires window_m with
+    group_by "window"; a Covariance built by hand without one is refused, not guessed."""
+    if spec.window_m is None:
+        raise ValueError('a covariance rule with group_by = "window" needs window_m')
+    return spec.window_m
 
 
 # --- the public functions --------------------------------------------------------------
@@ -700,6 +730,7 @@ def evaluate(
     lithostrat_unit, centre_m, n, n_eff, r, r2, p, rho1_x, rho1_y, outcome).
     """
     import pyarrow as pa
+    from strata13.compile.screening.kinds import kind_of  # kinds imports this module
 
     table = _as_table(records)
     if "record_id" not in table.column_names:
@@ -717,17 +748,10 @@ def evaluate(
         detail = _Detail(n, all_details)
         outside, unknown = _scope(rule, cols, detail)
         in_scope = ~outside & ~unknown
-        spec = rule.spec
-        if isinstance(spec, ValueLimit):
-            code = _value_limit(rule, spec, cols, detail)
-        elif isinstance(spec, RatioLimit):
-            code = _ratio_limit(rule, spec, cols, detail)
-        elif isinstance(spec, AllowedValues):
-            code = _allowed_values(rule, spec, cols, detail)
-        else:
-            code, groups = _covariance(rule, spec, cols, detail, in_scope)
-            group_tables.append(groups)
-        code = np.where(outside, NA, np.where(unknown, UNTESTED, code)).astype(np.int8)
+        verdict = kind_of(rule.spec).screen(rule, rule.spec, cols, detail, in_scope)
+        if verdict.groups is not None:
+            group_tables.append(verdict.groups)
+        code = np.where(outside, NA, np.where(unknown, UNTESTED, verdict.codes)).astype(np.int8)
         codes.append(code)
         details.append(detail.build())
 

@@ -3,14 +3,15 @@
 A rule file has a ``[ruleset]`` header (name, version, description) and ``[[rule]]``
 entries. Every rule carries a description, a citation (a reference, or the literal
 "common practice"), a confidence note, a severity (``fail`` or ``warn``), an optional
-``scope`` and exactly one ``kind``:
+``scope`` and exactly one ``kind`` (registered in ``kinds.KINDS``, which binds each to its
+spec class below, its parser here and its evaluator in ``evaluate``):
 
 * ``value-limit``    — one stored column against a limit: ``field``, ``pass_if``, ``limit``,
   ``unit`` (converted to the stored unit first);
 * ``ratio-limit``    — ``numerator`` / ``denominator`` (concentration columns), ``ratio_by``
   ``mass`` or ``molar``, ``pass_if``, ``limit``;
 * ``covariance``     — δ13C against δ18O within a group (``group_by`` ``section``,
-  ``section-unit`` or ``window`` with ``window_m``), warned when ``r ≥ min_r`` with
+  ``section-unit`` or ``window`` with ``window_m``), flagged when ``r ≥ min_r`` with
   ``p < alpha``; groups under ``min_n`` records are untested;
 * ``allowed-values`` — a categorical column with ``allowed`` or ``excluded`` values.
 
@@ -31,15 +32,18 @@ import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from strata13.schemas.fields import BY_NAME, CONC_FIELDS, DELTA_FIELDS, FIELDS, UNITS
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError
+from strata13.suggest import did_you_mean
+
+if TYPE_CHECKING:
+    from strata13.compile.screening.kinds import Kind
 
 RULE_NAME = re.compile(r"^[a-z0-9][a-z0-9-]{0,62}[a-z0-9]$")
-KINDS = ("value-limit", "ratio-limit", "covariance", "allowed-values")
 SEVERITIES = ("fail", "warn")
 # What passes, and so what happens exactly at the limit (the name says it).
 PASS_IF = {"below": "<", "at_most": "≤", "above": ">", "at_least": "≥"}
@@ -54,12 +58,6 @@ ATOMIC_MASS_SOURCE = "IUPAC standard atomic weights (abridged), from memory"
 TOP_KEYS = {"ruleset", "rule"}
 HEADER_KEYS = {"name", "version", "description"}
 COMMON_KEYS = {"name", "kind", "description", "citation", "confidence", "severity", "scope"}
-KIND_KEYS = {
-    "value-limit": {"field", "pass_if", "limit", "unit"},
-    "ratio-limit": {"numerator", "denominator", "ratio_by", "pass_if", "limit"},
-    "covariance": {"x", "y", "group_by", "window_m", "min_n", "min_r", "alpha", "lag1_correction"},
-    "allowed-values": {"field", "allowed", "excluded"},
-}
 SCOPE_KEYS = {"age_min_ma", "age_max_ma", "component", "mineralogy", "setting"}
 
 
@@ -234,6 +232,8 @@ class AllowedValues:
         return out
 
 
+# One spec class per rule kind; ``kinds.KINDS`` binds each to its name, parser and
+# evaluator, and refuses at import a class listed here without an entry there.
 Spec = ValueLimit | RatioLimit | Covariance | AllowedValues
 
 
@@ -383,13 +383,6 @@ def _rule_at_line(text: str, line: int) -> str | None:
     return None
 
 
-def _did_you_mean(word: str, options: set[str] | list[str] | tuple[str, ...]) -> str:
-    import difflib
-
-    hit = difflib.get_close_matches(str(word), sorted(options), n=1, cutoff=0.6)
-    return f" Did you mean {hit[0]!r}?" if hit else ""
-
-
 class _Ctx:
     """Who is speaking in a message: the file and the rule."""
 
@@ -433,7 +426,7 @@ class _Ctx:
         if value not in options:
             raise self.fail(
                 f"{key} = {value!r} is not one of {', '.join(options)}."
-                + _did_you_mean(str(value), options),
+                + did_you_mean(str(value), options),
                 f'Use {key} = "{options[0]}" (or another of the listed values).',
             )
         return str(value)
@@ -452,7 +445,7 @@ def _build(doc: Any, origin: str) -> RuleSet:
     for key in doc:
         if key not in TOP_KEYS:
             raise ConfigError(
-                f"{origin}: unknown top-level key {key!r}." + _did_you_mean(key, TOP_KEYS),
+                f"{origin}: unknown top-level key {key!r}." + did_you_mean(key, TOP_KEYS),
                 "A rule file holds one [ruleset] header and [[rule]] entries.",
             )
     header = doc.get("ruleset")
@@ -464,7 +457,7 @@ def _build(doc: Any, origin: str) -> RuleSet:
     for key in header:
         if key not in HEADER_KEYS:
             raise ConfigError(
-                f"{origin}: unknown key {key!r} in [ruleset]." + _did_you_mean(key, HEADER_KEYS),
+                f"{origin}: unknown key {key!r} in [ruleset]." + did_you_mean(key, HEADER_KEYS),
                 f"Keys of [ruleset]: {', '.join(sorted(HEADER_KEYS))}.",
             )
     for key in ("name", "version"):
@@ -505,36 +498,35 @@ def _rule(entry: Any, index: int, origin: str) -> Rule:
             'Use 2–64 lowercase letters, digits and hyphens, e.g. name = "mn-sr".',
         )
     ctx.rule = repr(name)
-    kind = entry.get("kind")
-    if kind is None:
-        raise ctx.fail("has no kind.", f"Add kind = one of {', '.join(KINDS)}.")
-    if kind not in KINDS:
-        raise ctx.fail(
-            f"kind = {kind!r} is not a rule kind." + _did_you_mean(str(kind), KINDS),
-            f"Rule kinds: {', '.join(KINDS)}.",
-        )
-    allowed = COMMON_KEYS | KIND_KEYS[kind]
+    kind = _kind(entry.get("kind"), ctx)
+    allowed = COMMON_KEYS | kind.keys
     for key in entry:
         if key not in allowed:
             raise ctx.fail(
-                f"unknown key {key!r}." + _did_you_mean(key, allowed),
-                f"Keys of a {kind} rule: {', '.join(sorted(allowed))}.",
+                f"unknown key {key!r}." + did_you_mean(key, allowed),
+                f"Keys of a {kind.name} rule: {', '.join(sorted(allowed))}.",
             )
     description = ctx.text(entry, "description")
     citation = ctx.text(entry, "citation")
     confidence = ctx.text(entry, "confidence")
     severity = ctx.choice(entry, "severity", SEVERITIES)
     scope = _scope(entry.get("scope", {}), ctx)
-    spec: Spec
-    if kind == "value-limit":
-        spec = _value_limit(entry, ctx)
-    elif kind == "ratio-limit":
-        spec = _ratio_limit(entry, ctx)
-    elif kind == "covariance":
-        spec = _covariance(entry, ctx)
-    else:
-        spec = _allowed_values(entry, ctx)
-    return Rule(name, kind, description, citation, confidence, severity, scope, spec)
+    spec = kind.parse(entry, ctx)
+    return Rule(name, kind.name, description, citation, confidence, severity, scope, spec)
+
+
+def _kind(value: Any, ctx: _Ctx) -> Kind[Any]:
+    """The registered kind a rule names; anything else is refused with the list of kinds."""
+    from strata13.compile.screening.kinds import KINDS  # kinds imports this module
+
+    if value is None:
+        raise ctx.fail("has no kind.", f"Add kind = one of {', '.join(KINDS)}.")
+    if not isinstance(value, str) or value not in KINDS:
+        raise ctx.fail(
+            f"kind = {value!r} is not a rule kind." + did_you_mean(str(value), KINDS),
+            f"Rule kinds: {', '.join(KINDS)}.",
+        )
+    return KINDS[value]
 
 
 def _scope(block: Any, ctx: _Ctx) -> Scope:
@@ -546,7 +538,7 @@ def _scope(block: Any, ctx: _Ctx) -> Scope:
     for key in block:
         if key not in SCOPE_KEYS:
             raise ctx.fail(
-                f"unknown scope key {key!r}." + _did_you_mean(key, SCOPE_KEYS),
+                f"unknown scope key {key!r}." + did_you_mean(key, SCOPE_KEYS),
                 f"Scope keys: {', '.join(sorted(SCOPE_KEYS))}.",
             )
     lo = ctx.number(block, "age_min_ma") if "age_min_ma" in block else None
@@ -599,7 +591,7 @@ def _unknown_field(
     elif str(name).endswith("_reported") and str(name)[:-9] in options:
         hint = f" Did you mean {str(name)[:-9]!r} (screens test harmonised ‰ VPDB values)?"
     else:
-        hint = _did_you_mean(str(name), set(options))
+        hint = did_you_mean(str(name), options)
     return ctx.fail(
         f"{key} = {name!r} is not a {what} column." + hint,
         f"{what.capitalize()} columns: {', '.join(sorted(options))}.",
@@ -620,7 +612,11 @@ def _numeric(entry: dict[str, Any], key: str, ctx: _Ctx, default: str | None = N
     return str(name)
 
 
-def _value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
+# --- the kinds' own keys (each parser is bound to its kind in kinds.KINDS) ---------------
+
+
+def parse_value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
+    """A value-limit's column, comparison, limit and a unit that fits the column."""
     name = _numeric(entry, "field", ctx)
     f = NUMERIC_FIELDS[name]
     pass_if = ctx.choice(entry, "pass_if", tuple(PASS_IF))
@@ -629,13 +625,14 @@ def _value_limit(entry: dict[str, Any], ctx: _Ctx) -> ValueLimit:
     units = UNITS[f.unit_kind]
     if unit not in units:
         raise ctx.fail(
-            f"unit = {unit!r} does not fit {name}." + _did_you_mean(str(unit), units),
+            f"unit = {unit!r} does not fit {name}." + did_you_mean(str(unit), units),
             f"Units for {name}: {', '.join(units)} (stored in {f.stored_unit}).",
         )
     return ValueLimit(name, pass_if, limit, str(unit))
 
 
-def _ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
+def parse_ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
+    """Two different concentration columns (elements, for a molar ratio) and a limit ≥ 0."""
     num = _numeric(entry, "numerator", ctx)
     den = _numeric(entry, "denominator", ctx)
     ratio_by = ctx.choice(entry, "ratio_by", RATIO_BY)
@@ -663,7 +660,9 @@ def _ratio_limit(entry: dict[str, Any], ctx: _Ctx) -> RatioLimit:
     return RatioLimit(num, den, ratio_by, pass_if, limit)
 
 
-def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
+def parse_covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
+    """Two numeric columns (δ18O, δ13C unless given), the grouping (window_m exactly when
+    by window) and the test's limits; keys left out take ``Covariance``'s defaults."""
     d = Covariance()
     x = _numeric(entry, "x", ctx, d.x)
     y = _numeric(entry, "y", ctx, d.y)
@@ -698,7 +697,8 @@ def _covariance(entry: dict[str, Any], ctx: _Ctx) -> Covariance:
     return Covariance(x, y, group_by, window, int(min_n), min_r, alpha, lag1)
 
 
-def _allowed_values(entry: dict[str, Any], ctx: _Ctx) -> AllowedValues:
+def parse_allowed_values(entry: dict[str, Any], ctx: _Ctx) -> AllowedValues:
+    """A categorical column and exactly one of allowed or excluded, as vocabulary terms."""
     name = entry.get("field")
     if name is None:
         raise ctx.fail("field is missing.", 'Add field = "component" (a categorical column).')
