@@ -38,12 +38,15 @@ from strata13.compile.synthesis.run import CurveRequest, CurveResult, ExcursionR
 from strata13.errors import ConfigError, NotAStoreError, OptionError, StoreError
 
 if TYPE_CHECKING:
+    from typing import Unpack
+
     import pandas as pd
     import pyarrow as pa
     from strata13.compile.ages.chronology import Interval, SectionModel
     from strata13.compile.derive.recompute import RecomputeResult
     from strata13.compile.export.artifact import Artifact
     from strata13.compile.integrity.corrections import CorrectResult
+    from strata13.compile.integrity.overlaps import Tolerances
     from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.screening.evaluate import Screening
@@ -665,7 +668,9 @@ def corrections(store: Store, source: list[str] | None = None) -> list[dict[str,
     return rows
 
 
-def overlaps(store: Store, source: str | None = None, **tolerances: float) -> pd.DataFrame:
+def overlaps(
+    store: Store, source: str | None = None, **tolerances: Unpack[Tolerances]
+) -> pd.DataFrame:
     """Probable duplicates between sources (pairs with score and reasons, and the decision
     already stored on each)."""
     from strata13.compile.integrity.store_ops import overlaps as _overlaps

@@ -367,8 +367,8 @@ def _same_runs(tx: Transaction, source_id: str, runs: pa.Table | None) -> bool:
     """Whether the source's stored run standards equal the incoming ones."""
     old = tx.fetch("SELECT * FROM runs WHERE source_id = ?", [source_id])
     if runs is None:
-        return old.num_rows == 0
-    return _same_rows(old.select(runs.column_names), runs)
+        return bool(old.num_rows == 0)
+    return bool(_same_rows(old.select(runs.column_names), runs))
 
 
 def _age_changes(before: pa.Table, after: pa.Table) -> int:
@@ -452,10 +452,10 @@ def _write(
     tx.delete("age_ties", tie_source_id=sid)
     tx.insert("age_ties", ties)
     result.ties = ties.num_rows
-    for name, table in zip(
+    for kind, rows in zip(
         DERIVED_TABLES, (derived.draws, derived.screens, derived.run_qc), strict=True
     ):
-        tx.replace_source(name, [sid], table)
+        tx.replace_source(kind, [sid], rows)
     tx.add_chains(derived.chains)
     for other, (_, d) in others.items():
         tx.write_derived([other], d)

@@ -27,7 +27,7 @@ if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
 
 # fields a correction may change: δ values, positions, ages, concentrations, material terms
-CORRECTABLE = (
+CORRECTABLE: tuple[str, ...] = (
     *DELTA_FIELDS,
     "position",
     "top",
@@ -191,10 +191,10 @@ def apply(
             delta.setdefault(f, {})[c["record_id"]] = (float(value), c["why"], rep)
             continue
         col = stored_column(f)
-        arr = table.column(col).to_pylist()
+        arr: list[Any] = table.column(col).to_pylist()
         arr[i] = value
         table = set_column(table, col, pa.array(arr, type=table.schema.field(col).type))
-    flags = [None] * table.num_rows
+    flags: list[str | None] = [None] * table.num_rows
     for i, fields in marks.items():
         flags[i] = json.dumps(sorted(fields))
     return set_column(table, "corrected_fields", pa.array(flags, pa.string())), delta

@@ -45,7 +45,7 @@ import csv
 import unicodedata
 from collections.abc import Iterable, Mapping
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, NamedTuple
+from typing import TYPE_CHECKING, Any, NamedTuple, TypedDict
 
 import numpy as np
 
@@ -432,6 +432,14 @@ def _one_to_one(ka: np.ndarray, kb: np.ndarray, order: np.ndarray) -> np.ndarray
 
 
 # ------------------------------------------------------------------ the finder
+
+
+class Tolerances(TypedDict, total=False):
+    """How close two records must be to count as one measurement (keywords of find_overlaps)."""
+
+    position_tol_m: float
+    value_tol_permil: float
+    coord_tol_km: float
 
 
 def find_overlaps(

@@ -18,7 +18,10 @@ from strata13.compile.store.reader import Reader
 from strata13.errors import DomainError
 
 if TYPE_CHECKING:
+    from typing import Unpack
+
     import pandas as pd
+    from strata13.compile.integrity.overlaps import Tolerances
     from strata13.compile.store.lake import Store
 
 
@@ -31,7 +34,9 @@ def _declared(reads: Reader) -> dict[str, set[str]]:
     return out
 
 
-def overlaps(store: Store, source: str | None = None, **tolerances: float) -> pd.DataFrame:
+def overlaps(
+    store: Store, source: str | None = None, **tolerances: Unpack[Tolerances]
+) -> pd.DataFrame:
     """Candidate duplicate pairs with the decision taken on each (if any)."""
     from strata13.compile.integrity.overlaps import find_overlaps
 

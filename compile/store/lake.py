@@ -55,8 +55,10 @@ def _extension_files() -> dict[str, str | None]:
         ("sqlite_scanner", "duckdb_extension_sqlite_scanner"),
     ):
         try:
-            mod = __import__(module)
-            hits = sorted(Path(mod.__file__).parent.glob("extensions/*/*.duckdb_extension"))
+            where = getattr(__import__(module), "__file__", None)
+            hits = (
+                sorted(Path(where).parent.glob("extensions/*/*.duckdb_extension")) if where else []
+            )
             out[name] = str(hits[-1]) if hits else None
         except ImportError:
             out[name] = None
@@ -309,7 +311,8 @@ class Store:
 
     @staticmethod
     def _latest(con: duckdb.DuckDBPyConnection) -> int:
-        return int(con.execute("SELECT max(snapshot_id) FROM lake.snapshots()").fetchone()[0])
+        row = con.execute("SELECT max(snapshot_id) FROM lake.snapshots()").fetchone()
+        return int(row[0]) if row else 0
 
     def latest_version(self) -> int:
         con = connect()
