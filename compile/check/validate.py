@@ -46,6 +46,7 @@ from strata13.schemas.records import ANALYSES
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError
+from strata13.suggest import did_you_mean
 
 if TYPE_CHECKING:
     import numpy as np
@@ -140,12 +141,9 @@ def _match_columns(
             )
         taken[j] = header
     if missing:
-        import difflib
-
-        hint = difflib.get_close_matches(missing[0], raw.headers, n=1, cutoff=0.5)
         raise ConfigError(
             f"{raw.file} ({raw.sheet}): column {missing[0]!r} of the mapping is not in the header "
-            f"row {raw.header_row}." + (f" Did you mean {hint[0]!r}?" if hint else ""),
+            f"row {raw.header_row}." + did_you_mean(missing[0], raw.headers, cutoff=0.5),
             f"Header cells found: {', '.join(h for h in raw.headers if h)}. Set header_row "
             "in [table] if the header is elsewhere.",
         )

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from strata13.compile.ages.ties import read_ties
 from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
@@ -28,6 +29,7 @@ from strata13.schemas.fields import (
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError, InputFileError
+from strata13.suggest import did_you_mean
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {
@@ -102,18 +104,11 @@ class Mapping:
         return str(self.source["id"])
 
 
-def _did_you_mean(word: str, options: set[str] | list[str]) -> str:
-    import difflib
-
-    hit = difflib.get_close_matches(word, sorted(options), n=1, cutoff=0.6)
-    return f" Did you mean {hit[0]!r}?" if hit else ""
-
-
 def _unknown_keys(where: str, given: dict[str, Any], allowed: set[str], path: Path) -> None:
     for key in given:
         if key not in allowed:
             raise ConfigError(
-                f"{path.name}: unknown key {key!r} in {where}." + _did_you_mean(key, allowed),
+                f"{path.name}: unknown key {key!r} in {where}." + did_you_mean(key, allowed),
                 f"Allowed keys in {where}: {', '.join(sorted(allowed))}.",
             )
 
@@ -206,7 +201,7 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
     if name not in BY_NAME and name not in SCALE_KEYS and name not in BASIS_KEYS:
         raise ConfigError(
             f"{path.name}: {where} names unknown field {name!r}."
-            + _did_you_mean(name, field_names()),
+            + did_you_mean(name, field_names()),
             "The fields are listed in DEVELOPERS.md (schemas/fields.py).",
         )
     f = BY_NAME.get(name)
@@ -244,7 +239,7 @@ def _check_scale(name: str, scale: str, where: str, path: Path) -> None:
     if scale not in DELTA_SCALES[name]:
         raise ConfigError(
             f"{path.name}: {where} scale {scale!r} is not known for {name}."
-            + _did_you_mean(scale, set(DELTA_SCALES[name])),
+            + did_you_mean(scale, DELTA_SCALES[name]),
             f"Scales for {name}: {', '.join(DELTA_SCALES[name])}.",
         )
 
@@ -358,7 +353,7 @@ def load_mapping(path: Path) -> Mapping:
         if key not in BY_NAME and key not in SCALE_KEYS and key not in BASIS_KEYS:
             raise ConfigError(
                 f"{path.name}: [constants] names unknown field {key!r}."
-                + _did_you_mean(key, field_names()),
+                + did_you_mean(key, field_names()),
                 "The fields are listed in DEVELOPERS.md.",
             )
         if key in seen:
@@ -544,7 +539,7 @@ def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:
         where = f"[offsets.{fld}]"
         if fld not in DELTA_SCALES:
             raise ConfigError(
-                f"{path.name}: {where} is not a δ field." + _did_you_mean(fld, set(DELTA_SCALES)),
+                f"{path.name}: {where} is not a δ field." + did_you_mean(fld, DELTA_SCALES),
                 "",
             )
         if not isinstance(spec, dict):
@@ -582,7 +577,7 @@ def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
         where = f"[normalisation.{fld}]"
         if fld not in DELTA_SCALES:
             raise ConfigError(
-                f"{path.name}: {where} is not a δ field." + _did_you_mean(fld, set(DELTA_SCALES)),
+                f"{path.name}: {where} is not a δ field." + did_you_mean(fld, DELTA_SCALES),
                 f"δ fields: {', '.join(DELTA_SCALES)}.",
             )
         if not isinstance(spec, dict):
@@ -622,8 +617,6 @@ def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
 
 def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any]]:
     """The mapping's age ties (``[[ties]]`` blocks and a ``[ties_table]`` CSV)."""
-    from strata13.compile.ages.ties import read_ties
-
     table_file = None
     if "ties_table" in doc:
         block = doc["ties_table"]
