@@ -15,6 +15,8 @@ from functools import cache
 from pathlib import Path
 from typing import Any
 
+from strata13.suggest import did_you_mean
+
 DATA = Path(__file__).with_name("data")
 
 
@@ -235,12 +237,9 @@ def accepted_value(
     ]
     if not hits:
         known = sorted({m.material for m in table})
-        import difflib
-
-        sug = difflib.get_close_matches(material, known, n=1)
         raise DomainError(
             f"reference material {material!r} has no accepted {isotope} value in "
-            "the store's material table." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+            "the store's material table." + did_you_mean(material, known),
             "Name a material `strata13 scales` lists, or add it with --materials FILE.",
         )
     m = hits[0]

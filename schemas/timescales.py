@@ -14,7 +14,6 @@ on a command line are OptionError with a "did you mean".
 from __future__ import annotations
 
 import csv
-import difflib
 import math
 import re
 import unicodedata
@@ -26,6 +25,7 @@ from typing import TYPE_CHECKING, Any, NamedTuple
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError, InputFileError, OptionError
+from strata13.suggest import closest
 
 if TYPE_CHECKING:
     import numpy as np
@@ -117,7 +117,7 @@ class TimeScale:
         every chart version, whatever its name there)."""
         hits = [u for u in self.units if u.boundary_key == str(key).strip().lower()]
         if not hits:
-            sug = difflib.get_close_matches(str(key).strip().lower(), list(self.boundaries), n=1)
+            sug = closest(str(key).strip().lower(), self.boundaries, n=1)
             raise OptionError(
                 f"Boundary {key!r} is not on the {self.version} chart.",
                 (f"Did you mean {sug[0]}? " if sug else "")
@@ -167,7 +167,7 @@ def canonical_version(text: str) -> str:
         if hit:
             return hit
     shipped = versions()
-    close = difflib.get_close_matches(raw.upper().replace(" ", ""), shipped, n=1, cutoff=0.6)
+    close = closest(raw.upper().replace(" ", ""), shipped, n=1, cutoff=0.6)
     sug = close[0] if close else voc.suggest(raw)
     raise OptionError(
         f"Time scale {raw!r} is not one of the shipped chart versions.",
@@ -275,7 +275,7 @@ def _read(path: Path) -> TimeScale:
     missing = [c for c in REQUIRED if c not in columns]
     if missing:
         extra = [c for c in columns if c not in REQUIRED + OPTIONAL]
-        sug = difflib.get_close_matches(missing[0], extra, n=1, cutoff=0.6)
+        sug = closest(missing[0], extra, n=1, cutoff=0.6)
         problems.add(
             head_line,
             f"the header lacks column{'s' * (len(missing) > 1)} "
@@ -345,7 +345,7 @@ def _units(rows: list[tuple[int, dict[str, str]]], problems: _Problems) -> list[
             continue
         seen[_norm(name)] = n
         if rank not in RANKS:
-            sug = difflib.get_close_matches(rank, RANKS, n=1)
+            sug = closest(rank, RANKS, n=1)
             problems.add(
                 n,
                 f"rank {r['rank']!r} of {name} is not a known rank",
@@ -414,7 +414,7 @@ def _with_tops(rows: list[dict[str, Any]], problems: _Problems) -> list[Unit]:
             continue
         parent = by_name.get(_norm(r["parent"]))
         if parent is None:
-            sug = difflib.get_close_matches(_norm(r["parent"]), list(by_name), n=1)
+            sug = closest(_norm(r["parent"]), by_name, n=1)
             problems.add(
                 r["line"],
                 f"parent {r['parent']!r} of {r['name']} is not in the table",
@@ -585,7 +585,7 @@ def _find(scale: TimeScale, text: str) -> tuple[Unit, str | None]:
                     return u, (
                         f"{old.name} is the {version} name of what {scale.version} calls {u.name}"
                     )
-    sug = difflib.get_close_matches(_norm(text), list(scale._index), n=3, cutoff=0.6)
+    sug = closest(_norm(text), scale._index, n=3, cutoff=0.6)
     names = [scale._index[s].name for s in sug]
     raise OptionError(
         f"{str(text).strip()!r} is not a unit of the {scale.version} chart.",

@@ -2,16 +2,17 @@
 
 Each file has ``term,description,aliases`` (aliases separated by ``|``). Matching is
 case-insensitive and ignores surrounding spaces; an alias maps to its term; anything else
-gets a "did you mean" hint from difflib.
+gets a "did you mean" hint (strata13.suggest).
 """
 
 from __future__ import annotations
 
 import csv
-import difflib
 from dataclasses import dataclass
 from functools import cache
 from pathlib import Path
+
+from strata13.suggest import closest
 
 VOCAB_DIR = Path(__file__).with_name("vocab")
 
@@ -28,7 +29,7 @@ class Vocabulary:
 
     def suggest(self, value: str) -> str | None:
         """The closest known term, for a "did you mean" hint."""
-        hits = difflib.get_close_matches(_norm(value), list(self.lookup), n=1, cutoff=0.6)
+        hits = closest(_norm(value), self.lookup, n=1, cutoff=0.6)
         return self.lookup[hits[0]] if hits else None
 
 

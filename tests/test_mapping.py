@@ -132,3 +132,17 @@ def test_every_field_has_a_stored_column_and_is_documented() -> None:
         assert name in stored, name  # nothing a mapping feeds is silently dropped
     for name in [f.name for f in FIELDS] + list(SCALE_KEYS) + list(BASIS_KEYS):
         assert f"`{name}`" in developers, name
+
+
+def test_ties_do_not_import_the_mapping_module() -> None:
+    """mapping reads its ties through ages.ties; the dependency runs that one way only,
+    not even through an import inside a function."""
+    import ast
+
+    import strata13.compile.ages.ties as ties
+
+    tree = ast.parse(Path(ties.__file__).read_text(encoding="utf-8"))
+    imported = {node.module for node in ast.walk(tree) if isinstance(node, ast.ImportFrom)} | {
+        a.name for node in ast.walk(tree) if isinstance(node, ast.Import) for a in node.names
+    }
+    assert "strata13.compile.read.mapping" not in imported

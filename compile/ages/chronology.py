@@ -13,7 +13,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, cast
 
 from strata13.errors import DomainError, OptionError
-from strata13.suggest import closest
+from strata13.suggest import did_you_mean
 
 if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
@@ -146,9 +146,8 @@ def find_section(con: Any, name: str) -> tuple[str, str]:
             f"Write SOURCE/SECTION, e.g. {hits[0][0]}/{name}.",
         )
     known = sorted({r[1] for r in rows} | {f"{r[0]}/{r[1]}" for r in rows})
-    sug = closest(name, known, n=1, cutoff=0.5)
     raise DomainError(
-        f"no section {name!r} in this store." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+        f"no section {name!r} in this store." + did_you_mean(name, known, cutoff=0.5),
         'List sections with `strata13 sql "SELECT DISTINCT source_id, section_id FROM records"`.',
     )
 

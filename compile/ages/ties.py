@@ -18,10 +18,12 @@ import csv
 from pathlib import Path
 from typing import Any
 
+from strata13.compile.read.inputs import read_text
 from strata13.schemas.fields import UNITS
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError
+from strata13.suggest import did_you_mean
 
 TIE_KEYS = {
     "id",
@@ -80,12 +82,10 @@ def parse_tie(
     spec: dict[str, Any], where: str, path: Path, source_id: str, default_chart: str | None
 ) -> dict[str, Any]:
     """One tie block or CSV row -> one stored tie row (metres, Ma, 1σ)."""
-    from strata13.compile.read.mapping import _did_you_mean
-
     for key in spec:
         if key not in TIE_KEYS:
             raise ConfigError(
-                f"{path.name}: unknown key {key!r} in {where}." + _did_you_mean(key, TIE_KEYS),
+                f"{path.name}: unknown key {key!r} in {where}." + did_you_mean(key, TIE_KEYS),
                 f"Tie keys: {', '.join(sorted(TIE_KEYS))}.",
             )
     section = str(spec.get("section") or "").strip()
@@ -193,8 +193,6 @@ def read_ties(
         for i, b in enumerate(blocks)
     ]
     if table_file is not None:
-        from strata13.compile.read.inputs import read_text
-
         text = read_text(
             table_file,
             f"{path.name}: [ties_table] file",
@@ -203,11 +201,9 @@ def read_ties(
         reader = csv.DictReader(text.splitlines())
         unknown = [h for h in reader.fieldnames or [] if h and h.strip() not in TIE_KEYS]
         if unknown:
-            from strata13.compile.read.mapping import _did_you_mean
-
             raise ConfigError(
                 f"{table_file.name}: unknown column {unknown[0]!r}."
-                + _did_you_mean(unknown[0], TIE_KEYS),
+                + did_you_mean(unknown[0], TIE_KEYS),
                 f"Columns: {', '.join(sorted(TIE_KEYS))}.",
             )
         for line, row in enumerate(reader, start=2):

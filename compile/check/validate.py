@@ -46,6 +46,7 @@ from strata13.schemas.records import ANALYSES
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError
+from strata13.suggest import did_you_mean
 
 if TYPE_CHECKING:
     import numpy as np
@@ -140,12 +141,9 @@ def _match_columns(
             )
         taken[j] = header
     if missing:
-        import difflib
-
-        hint = difflib.get_close_matches(missing[0], raw.headers, n=1, cutoff=0.5)
         raise ConfigError(
             f"{raw.file} ({raw.sheet}): column {missing[0]!r} of the mapping is not in the header "
-            f"row {raw.header_row}." + (f" Did you mean {hint[0]!r}?" if hint else ""),
+            f"row {raw.header_row}." + did_you_mean(missing[0], raw.headers, cutoff=0.5),
             f"Header cells found: {', '.join(h for h in raw.headers if h)}. Set header_row "
             "in [table] if the header is elsewhere.",
         )
@@ -206,14 +204,102 @@ def _unit_for(
     return f.stored_unit
 
 
+@dataclass
+class _Preparing:
+    """One sheet on its way through prepare: what the stages have read, cleaned and checked.
+
+    The fields from ``found`` on are filled by the stages in the order prepare calls them.
+    """
+
+    mapping: Mapping
+    spec: TableSpec  # the mapping's [table], which a sheet-less (ties-only) mapping lacks
+    raw: RawTable
+    report: Report
+    rows: RowErrors
+    # stored column -> numpy or Arrow array a row, or one constant for the whole sheet
+    cols: dict[str, Any] = field(default_factory=dict)
+    letters: dict[str, tuple[str, str]] = field(default_factory=dict)  # -> (letter, header)
+    quarantine: list[dict[str, Any]] = field(default_factory=list)
+    runs: pa.Table | None = None  # an in-house run's reference-material measurements
+    found: dict[str, tuple[int, str | None]] = field(init=False)  # header -> (column, unit)
+    section_blocks: dict[str, dict[str, Any]] = field(init=False)
+    locality_blocks: dict[str, dict[str, Any]] = field(init=False)
+    sec: np.ndarray = field(init=False)  # section id of each row
+    loc: np.ndarray = field(init=False)  # locality id of each row
+    lat: np.ndarray = field(init=False)
+    lon: np.ndarray = field(init=False)
+    sample: np.ndarray = field(init=False)
+    sample_cell: tuple[str, str] = field(init=False)  # (letter, header) of sample_id
+    replicate: np.ndarray = field(init=False)
+    ids: pa.Array = field(init=False)  # record id of each row
+    frame: pa.Table = field(init=False)  # every row, analyses columns
+    records: pa.Table = field(init=False)  # the valid rows, completed and hashed
+
+    @property
+    def n(self) -> int:
+        return self.raw.n_rows
+
+    def column(self, name: str) -> np.ndarray:
+        """A stored column as a numpy array of one value a row, whatever form it is kept in."""
+        import numpy as np
+        import pyarrow as pa
+
+        v = self.cols.get(name)
+        if v is None:
+            return np.empty(self.n, dtype=object)  # all None
+        if isinstance(v, (pa.Array, pa.ChunkedArray)):
+            values: np.ndarray = v.to_numpy(zero_copy_only=False)
+            return values
+        if isinstance(v, np.ndarray):
+            return v
+        return np.full(self.n, v, dtype=object)
+
+    def arrow_or(self, name: str, fallback: Any) -> Any:
+        """The stored column when the sheet gave it (as Arrow), else ``fallback``."""
+        import pyarrow as pa
+
+        v = self.cols.get(name)
+        return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback
+
+
 def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     """Read, clean, map and validate one mapping's sheet. Never writes anything."""
-    import numpy as np
-    import pandas as pd
-    import pyarrow as pa
-    import pyarrow.compute as pc
+    st = _read_sheet(mapping)
+    _read_mapped_columns(st)
+    _apply_constants(st)
+    _attach_normalisation(st)
+    _place_sections(st)
+    _place_localities(st)
+    _check_samples(st)
+    _read_replicates(st)
+    _check_delta_scales(st)
+    interval_order(st.cols, st.column, st.rows, st.letters, st.section_blocks, st.sec)
+    _check_duplicate_records(st)
+    _assemble_frame(st)
+    _check_frame(st)
+    _quarantine_bad_rows(st)
+    _keep_valid_records(st)
+    sid = mapping.source_id
+    return Prepared(
+        mapping,
+        _file_sha(st.spec.file),
+        st.records,
+        localities_table(sid, st.locality_blocks),
+        sections_table(sid, st.section_blocks, st.sec, st.loc),
+        samples_table(st.records),
+        st.quarantine,
+        st.report,
+        st.runs,
+    )
 
+
+def _read_sheet(mapping: Mapping) -> _Preparing:
+    """The sheet's cells, the reader's findings and the mapped headers matched: the start."""
     spec = mapping.table
+    if spec is None:
+        raise ValueError(
+            f"{mapping.path.name} maps no sheet; prepare_ties_only is for ties-only mappings."
+        )
     raw = read_table(
         spec.file,
         spec.sheet,
@@ -226,333 +312,467 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     report.extend(raw.issues)
     report.rows_read = raw.n_rows + raw.blank_rows + raw.rejected_rows
     report.rows_blank = raw.blank_rows
-    rows = RowErrors(raw, report)
-    n = raw.n_rows
-    for issue in raw.issues:  # reader errors on a data cell reject that row
+    st = _Preparing(mapping, spec, raw, report, RowErrors(raw, report))
+    _reject_reader_errors(st)
+    st.found = _match_columns(raw, spec, report)
+    return st
+
+
+def _reject_reader_errors(st: _Preparing) -> None:
+    """A reader error on a data cell rejects that row: its value cannot be trusted."""
+    import numpy as np
+
+    for issue in st.raw.issues:
         digits = "".join(ch for ch in issue.cell if ch.isdigit())
         if issue.severity == "error" and digits:
-            hit = np.flatnonzero(raw.row_numbers == int(digits))
+            hit = np.flatnonzero(st.raw.row_numbers == int(digits))
             for i in hit:
-                rows.bad[i] = True
-                rows.reasons.setdefault(int(i), []).append(f"{issue.cell}: {issue.rule}")
-    sid = mapping.source_id
-    found = _match_columns(raw, spec, report)
-    cols: dict[str, Any] = {}  # stored column -> array (numpy object/float or arrow)
-    letters: dict[str, tuple[str, str]] = {}  # stored column -> (letter, header)
+                st.rows.bad[i] = True
+                st.rows.reasons.setdefault(int(i), []).append(f"{issue.cell}: {issue.rule}")
 
-    for c in spec.columns:
-        j, header_unit = found[c.header]
-        letter, header = raw.letters[j], raw.headers[j]
-        ctx = CellContext(raw.sheet, header, letter, raw.row_numbers)
-        text = raw.column(j)
-        target = c.field
-        f = BY_NAME.get(target)
-        if target in SCALE_KEYS or target in BASIS_KEYS:
-            _text_column(cols, letters, target, text, letter, header)
+
+def _read_mapped_columns(st: _Preparing) -> None:
+    """Each mapped column cleaned as its field's kind says, into the column it is stored as."""
+    for c in st.spec.columns:
+        j, header_unit = st.found[c.header]
+        letter, header = st.raw.letters[j], st.raw.headers[j]
+        text = st.raw.column(j)
+        if c.field in SCALE_KEYS or c.field in BASIS_KEYS:
+            _text_column(st.cols, st.letters, c.field, text, letter, header)
             continue
-        assert f is not None
-        letters[f.stored] = (letter, header)
+        f = BY_NAME[c.field]  # load_mapping admits known fields only
+        st.letters[f.stored] = (letter, header)
         if f.kind in ("text",):
-            _text_column(cols, letters, f.stored, text, letter, header)
+            _text_column(st.cols, st.letters, f.stored, text, letter, header)
         elif f.kind == "vocab":
-            cols[f.stored] = _vocab_column(text, f.vocab or "", rows, letter, header)
+            st.cols[f.stored] = _vocab_column(text, f.vocab or "", st.rows, letter, header)
         elif f.kind == "coord":
-            cols[f.stored] = _coord_column(text, target, rows, letter, header)
+            st.cols[f.stored] = _coord_column(text, c.field, st.rows, letter, header)
         else:
-            parsed = parse_numbers(text, ctx, spec.decimal)
-            report.extend(parsed.issues)
-            rules = {i.cell: i.rule for i in parsed.issues if i.severity == "error"}
-            for i in np.nonzero(parsed.bad)[0]:
-                cell = f"{letter}{int(raw.row_numbers[i])}"
-                rows.mark(np.array([i]), rules.get(cell, "not a number"), letter)
-            unit = _unit_for(c, header_unit, raw, letter, report)
-            values = parsed.values
-            if unit and f.unit_kind:
-                factor = UNITS[f.unit_kind][unit]
-                if factor != 1.0:
-                    values = pc.multiply(values, pa.scalar(factor))
-                    report.add(
-                        Issue(
-                            "info",
-                            raw.sheet,
-                            f"{letter}{raw.header_row}",
-                            header,
-                            unit,
-                            "unit conversion",
-                            f"{unit} converted to {f.stored_unit} (× {factor:g})",
-                        )
-                    )
-            if f.kind == "int":
-                arr = values.to_numpy(zero_copy_only=False)
-                frac = ~np.isnan(arr) & (np.floor(arr) != arr)
-                for i in np.nonzero(frac)[0]:
-                    rows.error(
-                        int(i),
-                        letter,
-                        header,
-                        raw.column(j)[int(i)].as_py(),
-                        "whole number",
-                        "this column takes whole numbers",
-                    )
-                cols[f.stored] = values
-            else:
-                cols[f.stored] = values
-            if f.kind == "conc":
-                q = parsed.qualifier
-                cols[f"{target}_qualifier"] = q
-                if c.detection_limit is not None:
-                    is_bdl = pc.fill_null(pc.equal(q, "bdl"), False)
-                    cols[f"{target}_dl"] = pc.if_else(
-                        is_bdl, pa.scalar(c.detection_limit), pa.scalar(None, pa.float64())
-                    )
-                if c.basis:
-                    cols[f"{target}_basis"] = c.basis
-            elif parsed.qualifier.null_count < len(parsed.qualifier):
-                idx = np.nonzero(pc.is_valid(parsed.qualifier).to_numpy(zero_copy_only=False))[0]
-                for i in idx:
-                    rows.error(
-                        int(i),
-                        letter,
-                        header,
-                        raw.column(j)[int(i)].as_py(),
-                        "censored value",
-                        f"{target} takes plain numbers; "
-                        "'<x' and 'bdl' belong to concentration columns",
-                    )
-            if f.kind == "delta" and c.scale:
-                cols[f"{target}_scale"] = c.scale
+            _number_column(st, c, j, header_unit)
 
-    # constants fill whole columns (a column given in the sheet wins; load_mapping forbids both)
-    for key, value in mapping.constants.items():
+
+def _number_column(st: _Preparing, c: ColumnMap, j: int, header_unit: str | None) -> None:
+    """A numeric column: parsed, in its stored unit, with its qualifiers and δ scale."""
+    import numpy as np
+
+    raw, f = st.raw, BY_NAME[c.field]
+    letter, header = raw.letters[j], raw.headers[j]
+    ctx = CellContext(raw.sheet, header, letter, raw.row_numbers)
+    parsed = parse_numbers(raw.column(j), ctx, st.spec.decimal)
+    st.report.extend(parsed.issues)
+    rules = {i.cell: i.rule for i in parsed.issues if i.severity == "error"}
+    for i in np.nonzero(parsed.bad)[0]:
+        cell = f"{letter}{int(raw.row_numbers[i])}"
+        st.rows.mark(np.array([i]), rules.get(cell, "not a number"), letter)
+    unit = _unit_for(c, header_unit, raw, letter, st.report)
+    values = _in_stored_unit(st, parsed.values, c, unit, j)
+    if f.kind == "int":
+        _check_whole_numbers(st, values, j)
+    st.cols[f.stored] = values
+    if f.kind == "conc":
+        _concentration_columns(st, c, parsed.qualifier)
+    elif parsed.qualifier.null_count < len(parsed.qualifier):
+        _refuse_censored(st, c, j, parsed.qualifier)
+    if f.kind == "delta" and c.scale:
+        st.cols[f"{c.field}_scale"] = c.scale
+
+
+def _in_stored_unit(st: _Preparing, values: Any, c: ColumnMap, unit: str | None, j: int) -> Any:
+    """Values converted to the field's stored unit; the report says when a factor applied."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    f = BY_NAME[c.field]
+    if not unit or not f.unit_kind:
+        return values
+    factor = UNITS[f.unit_kind][unit]
+    if factor == 1.0:
+        return values
+    converted = pc.multiply(values, pa.scalar(factor))
+    raw = st.raw
+    st.report.add(
+        Issue(
+            "info",
+            raw.sheet,
+            f"{raw.letters[j]}{raw.header_row}",
+            raw.headers[j],
+            unit,
+            "unit conversion",
+            f"{unit} converted to {f.stored_unit} (× {factor:g})",
+        )
+    )
+    return converted
+
+
+def _check_whole_numbers(st: _Preparing, values: Any, j: int) -> None:
+    """A whole-number field refuses fractions rather than rounding them."""
+    import numpy as np
+
+    raw = st.raw
+    arr = values.to_numpy(zero_copy_only=False)
+    frac = ~np.isnan(arr) & (np.floor(arr) != arr)
+    for i in np.nonzero(frac)[0]:
+        st.rows.error(
+            int(i),
+            raw.letters[j],
+            raw.headers[j],
+            raw.column(j)[int(i)].as_py(),
+            "whole number",
+            "this column takes whole numbers",
+        )
+
+
+def _concentration_columns(st: _Preparing, c: ColumnMap, qualifier: Any) -> None:
+    """A concentration keeps its qualifier ('<x', 'bdl'), detection limit and basis beside it."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    st.cols[f"{c.field}_qualifier"] = qualifier
+    if c.detection_limit is not None:
+        is_bdl = pc.fill_null(pc.equal(qualifier, "bdl"), False)
+        st.cols[f"{c.field}_dl"] = pc.if_else(
+            is_bdl, pa.scalar(c.detection_limit), pa.scalar(None, pa.float64())
+        )
+    if c.basis:
+        st.cols[f"{c.field}_basis"] = c.basis
+
+
+def _refuse_censored(st: _Preparing, c: ColumnMap, j: int, qualifier: Any) -> None:
+    """'<x' and 'bdl' have a meaning only in concentration columns; elsewhere they are errors."""
+    import numpy as np
+    import pyarrow.compute as pc
+
+    raw = st.raw
+    idx = np.nonzero(pc.is_valid(qualifier).to_numpy(zero_copy_only=False))[0]
+    for i in idx:
+        st.rows.error(
+            int(i),
+            raw.letters[j],
+            raw.headers[j],
+            raw.column(j)[int(i)].as_py(),
+            "censored value",
+            f"{c.field} takes plain numbers; '<x' and 'bdl' belong to concentration columns",
+        )
+
+
+def _apply_constants(st: _Preparing) -> None:
+    """[constants] fill whole columns (load_mapping forbids a field as column and constant)."""
+    for key, value in st.mapping.constants.items():
         f = BY_NAME.get(key)
         stored = f.stored if f else key
-        if f and f.kind == "vocab":
-            term = vocabulary(f.vocab or "").resolve(str(value))
-            if term is None:
-                sug = vocabulary(f.vocab or "").suggest(str(value))
-                raise ConfigError(
-                    f"{mapping.path.name}: [constants] {key} = {value!r} is not in "
-                    f"the {f.vocab} vocabulary." + (f" Did you mean {sug!r}?" if sug else ""),
-                    f"Known terms: {', '.join(vocabulary(f.vocab or '').terms)}.",
-                )
-            value = term
-        if (
-            f
-            and f.kind in ("float", "delta", "conc", "int", "coord")
-            and not isinstance(value, (int, float))
-        ):
-            if f.kind == "coord":
-                try:
-                    value = parse_coordinate(str(value), key)
-                except ValueError as exc:
-                    raise ConfigError(
-                        f"{mapping.path.name}: [constants] {key}: {exc}.", ""
-                    ) from None
-            else:
-                raise ConfigError(f"{mapping.path.name}: [constants] {key} must be a number.", "")
-        cols[stored] = value
-        letters.setdefault(stored, ("", f"[constants] {key}"))
+        st.cols[stored] = _constant_value(st.mapping, key, value)
+        st.letters.setdefault(stored, ("", f"[constants] {key}"))
 
-    for d, declared in mapping.normalisation.items():  # constant per source, kept per value
-        cols[f"{d}_normalisation"] = json.dumps(declared, sort_keys=True)
 
-    def column(name: str) -> np.ndarray:
-        v = cols.get(name)
-        if v is None:
-            return np.empty(n, dtype=object)  # all None
-        if isinstance(v, (pa.Array, pa.ChunkedArray)):
-            return v.to_numpy(zero_copy_only=False)
-        if isinstance(v, np.ndarray):
-            return v
-        return np.full(n, v, dtype=object)
-
-    # sections and localities
-    section_blocks = {str(s["id"]): s for s in mapping.sections}
-    sec = column("section_id")
-    if "section_id" not in cols:
-        # load_mapping guarantees exactly one [[sections]] block in this case
-        sec = np.full(n, next(iter(section_blocks)), dtype=object)
-    else:
-        letter_sec, header_sec = letters.get("section_id", ("", "section_id"))
-        for i in np.flatnonzero(pd.isna(pd.Series(sec, dtype=object)).to_numpy()):
-            rows.error(
-                int(i),
-                letter_sec,
-                header_sec,
-                "",
-                "section missing",
-                "every row needs a section; fill the cell",
-            )
-    locality_blocks = _localities(mapping, report)
-    loc = column("locality_id")
-    if "locality_id" not in cols:
-        sec_loc = {k: v.get("locality") for k, v in section_blocks.items()}
-        loc_s = pd.Series(sec, dtype=object).map(sec_loc).astype(object)
-        if len(locality_blocks) == 1:
-            loc_s = loc_s.fillna(next(iter(locality_blocks)))
-        loc = loc_s.astype(object).where(loc_s.notna(), None).to_numpy()
-    # coordinates: the row's own, else its locality's (vectorised through pandas)
-    lat = pd.to_numeric(pd.Series(column("lat")), errors="coerce").to_numpy(dtype=float, copy=True)
-    lon = pd.to_numeric(pd.Series(column("lon")), errors="coerce").to_numpy(dtype=float, copy=True)
-    loc_series = pd.Series(loc, dtype=object)
-    block_lat = loc_series.map({k: b["lat"] for k, b in locality_blocks.items()})
-    block_lon = loc_series.map({k: b["lon"] for k, b in locality_blocks.items()})
-    fill = np.isnan(lat) & block_lat.notna().to_numpy()
-    lat[fill] = block_lat.to_numpy(dtype=float, na_value=np.nan)[fill]
-    lon[fill] = block_lon.to_numpy(dtype=float, na_value=np.nan)[fill]
-    lon = np.where(lon > 180, lon - 360, lon)
-    for s_id, block in section_blocks.items():
-        if block.get("locality") and block["locality"] not in locality_blocks:
+def _constant_value(mapping: Mapping, key: str, value: Any) -> Any:
+    """A constant as it is stored: a vocabulary term, a number or decimal degrees."""
+    f = BY_NAME.get(key)
+    if f and f.kind == "vocab":
+        term = vocabulary(f.vocab or "").resolve(str(value))
+        if term is None:
+            sug = vocabulary(f.vocab or "").suggest(str(value))
             raise ConfigError(
-                f"{mapping.path.name}: section {s_id!r} names locality "
+                f"{mapping.path.name}: [constants] {key} = {value!r} is not in "
+                f"the {f.vocab} vocabulary." + (f" Did you mean {sug!r}?" if sug else ""),
+                f"Known terms: {', '.join(vocabulary(f.vocab or '').terms)}.",
+            )
+        value = term
+    if (
+        f
+        and f.kind in ("float", "delta", "conc", "int", "coord")
+        and not isinstance(value, (int, float))
+    ):
+        if f.kind != "coord":
+            raise ConfigError(f"{mapping.path.name}: [constants] {key} must be a number.", "")
+        try:
+            value = parse_coordinate(str(value), key)
+        except ValueError as exc:
+            raise ConfigError(f"{mapping.path.name}: [constants] {key}: {exc}.", "") from None
+    return value
+
+
+def _attach_normalisation(st: _Preparing) -> None:
+    """The declared normalisation, constant per source, kept beside every δ value."""
+    for d, declared in st.mapping.normalisation.items():
+        st.cols[f"{d}_normalisation"] = json.dumps(declared, sort_keys=True)
+
+
+def _place_sections(st: _Preparing) -> None:
+    """Every row's section: its own cell (which must be filled) or the one [[sections]]."""
+    import numpy as np
+    import pandas as pd
+
+    st.section_blocks = {str(s["id"]): s for s in st.mapping.sections}
+    if "section_id" not in st.cols:
+        # load_mapping guarantees exactly one [[sections]] block in this case
+        st.sec = np.full(st.n, next(iter(st.section_blocks)), dtype=object)
+        return
+    st.sec = st.column("section_id")
+    letter, header = st.letters.get("section_id", ("", "section_id"))
+    for i in np.flatnonzero(pd.isna(pd.Series(st.sec, dtype=object)).to_numpy()):
+        st.rows.error(
+            int(i),
+            letter,
+            header,
+            "",
+            "section missing",
+            "every row needs a section; fill the cell",
+        )
+
+
+def _place_localities(st: _Preparing) -> None:
+    """Every row's locality and coordinates, from its own cells or else its section's."""
+    st.locality_blocks = _localities(st.mapping, st.report)
+    st.loc = _locality_ids(st)
+    st.lat, st.lon = _coordinates(st)
+    for s_id, block in st.section_blocks.items():
+        if block.get("locality") and block["locality"] not in st.locality_blocks:
+            raise ConfigError(
+                f"{st.mapping.path.name}: section {s_id!r} names locality "
                 f"{block['locality']!r}, which is not defined.",
                 "Add a [[localities]] block or a [localities_table].",
             )
 
-    sample = column("sample_id")
-    letter_s, header_s = letters.get("sample_id", ("", "sample_id"))
-    if "sample_id" not in cols:
+
+def _locality_ids(st: _Preparing) -> np.ndarray:
+    """A row's locality cell, else its section's locality, else the only locality there is."""
+    import pandas as pd
+
+    if "locality_id" in st.cols:
+        return st.column("locality_id")
+    sec_loc = {k: v.get("locality") for k, v in st.section_blocks.items()}
+    loc_s = pd.Series(st.sec, dtype=object).map(sec_loc).astype(object)
+    if len(st.locality_blocks) == 1:
+        loc_s = loc_s.fillna(next(iter(st.locality_blocks)))
+    loc: np.ndarray = loc_s.astype(object).where(loc_s.notna(), None).to_numpy()
+    return loc
+
+
+def _coordinates(st: _Preparing) -> tuple[np.ndarray, np.ndarray]:
+    """Latitude and longitude: the row's own, else its locality's (vectorised through pandas)."""
+    import numpy as np
+    import pandas as pd
+
+    lat = pd.to_numeric(pd.Series(st.column("lat")), errors="coerce").to_numpy(
+        dtype=float, copy=True
+    )
+    lon = pd.to_numeric(pd.Series(st.column("lon")), errors="coerce").to_numpy(
+        dtype=float, copy=True
+    )
+    loc_series = pd.Series(st.loc, dtype=object)
+    block_lat = loc_series.map({k: b["lat"] for k, b in st.locality_blocks.items()})
+    block_lon = loc_series.map({k: b["lon"] for k, b in st.locality_blocks.items()})
+    fill = np.isnan(lat) & block_lat.notna().to_numpy()
+    lat[fill] = block_lat.to_numpy(dtype=float, na_value=np.nan)[fill]
+    lon[fill] = block_lon.to_numpy(dtype=float, na_value=np.nan)[fill]
+    return lat, np.where(lon > 180, lon - 360, lon)
+
+
+def _check_samples(st: _Preparing) -> None:
+    """Every record needs a sample id: the mapping must map one and every row must fill it."""
+    import numpy as np
+
+    st.sample = st.column("sample_id")
+    st.sample_cell = st.letters.get("sample_id", ("", "sample_id"))
+    if "sample_id" not in st.cols:
         raise ConfigError(
-            f"{mapping.path.name}: no column is mapped to sample_id.",
+            f"{st.mapping.path.name}: no column is mapped to sample_id.",
             "Every record needs a sample identifier.",
         )
-    for i in np.nonzero(np.array([v is None for v in sample], dtype=bool))[0]:
-        rows.error(
+    letter, header = st.sample_cell
+    for i in np.nonzero(np.array([v is None for v in st.sample], dtype=bool))[0]:
+        st.rows.error(
             int(i),
-            letter_s,
-            header_s,
+            letter,
+            header,
             "",
             "sample missing",
             "every row needs a sample id; fill it or delete the row",
         )
 
-    rep = pd.to_numeric(pd.Series(column("replicate")), errors="coerce").to_numpy(dtype=float)
-    replicate = np.where(np.isnan(rep), 1, np.nan_to_num(rep)).astype(np.int64)
 
-    # δ scales: every δ value needs one
+def _read_replicates(st: _Preparing) -> None:
+    """The replicate number of each row (1 when not given), part of its record id."""
+    import numpy as np
+    import pandas as pd
+
+    rep = pd.to_numeric(pd.Series(st.column("replicate")), errors="coerce").to_numpy(dtype=float)
+    st.replicate = np.where(np.isnan(rep), 1, np.nan_to_num(rep)).astype(np.int64)
+
+
+def _check_delta_scales(st: _Preparing) -> None:
+    """Every δ value needs its reference scale: without one it cannot be compared."""
     for d in DELTA_FIELDS:
-        stored = BY_NAME[d].stored
-        if stored not in cols:
-            continue
-        vals = column(stored).astype(float)
-        scale = pd.Series(column(f"{d}_scale"), dtype=object)
-        letter, header = letters[stored]
-        has = ~np.isnan(vals)
-        no_scale = has & scale.isna().to_numpy()
-        unknown = has & ~no_scale & ~scale.isin(DELTA_SCALES[d]).to_numpy()
-        hint = (
-            f'state the reference scale of {d}: scale = "VPDB" on the column or '
-            f"{d}_scale in [constants]"
-        )
-        missing = np.nonzero(no_scale)[0]
-        if len(missing) and f"{d}_scale" not in cols:  # the whole column lacks a scale: one line
-            first, last = (int(raw.row_numbers[missing[0]]), int(raw.row_numbers[missing[-1]]))
-            report.add(
-                Issue(
-                    "error",
-                    raw.sheet,
-                    f"{letter}{first}:{letter}{last}",
-                    header,
-                    f"{len(missing)} values",
-                    "scale not stated",
-                    hint,
-                )
-            )
-            rows.mark(missing, "scale not stated", letter)
-        else:
-            for i in missing:
-                rows.error(int(i), letter, header, vals[i], "scale not stated", hint)
-        for i in np.nonzero(unknown)[0]:
-            rows.error(
-                int(i),
-                letter,
+        if BY_NAME[d].stored in st.cols:
+            _check_delta_scale(st, d)
+
+
+def _check_delta_scale(st: _Preparing, d: str) -> None:
+    """One δ column: one report line when the whole column lacks a scale, else cell by cell."""
+    import numpy as np
+    import pandas as pd
+
+    raw, rows = st.raw, st.rows
+    stored = BY_NAME[d].stored
+    vals = st.column(stored).astype(float)
+    scale = pd.Series(st.column(f"{d}_scale"), dtype=object)
+    letter, header = st.letters[stored]
+    has = ~np.isnan(vals)
+    no_scale = has & scale.isna().to_numpy()
+    unknown = has & ~no_scale & ~scale.isin(DELTA_SCALES[d]).to_numpy()
+    hint = (
+        f'state the reference scale of {d}: scale = "VPDB" on the column or '
+        f"{d}_scale in [constants]"
+    )
+    missing = np.nonzero(no_scale)[0]
+    if len(missing) and f"{d}_scale" not in st.cols:  # the whole column lacks a scale
+        first, last = (int(raw.row_numbers[missing[0]]), int(raw.row_numbers[missing[-1]]))
+        st.report.add(
+            Issue(
+                "error",
+                raw.sheet,
+                f"{letter}{first}:{letter}{last}",
                 header,
-                scale[i],
-                "unknown scale",
-                f"scales for {d}: {', '.join(DELTA_SCALES[d])}",
+                f"{len(missing)} values",
+                "scale not stated",
+                hint,
             )
-
-    interval_order(cols, column, rows, letters, section_blocks, sec)
-
-    def text(name: str, fallback: Any) -> Any:
-        v = cols.get(name)
-        return v if isinstance(v, (pa.Array, pa.ChunkedArray)) else fallback
-
-    ids, first = record_ids(sid, text("section_id", sec), text("sample_id", sample), replicate)
-    standards = (
-        {m.lower() for m in [*mapping.run["anchors"], *mapping.run["checks"]]}
-        if mapping.run
-        else set()
-    )  # a run's standards repeat by design; they leave below
-    for i in np.flatnonzero(first >= 0):
-        if standards and str(sample[i]).strip().lower() in standards:
-            continue
+        )
+        rows.mark(missing, "scale not stated", letter)
+    else:
+        for i in missing:
+            rows.error(int(i), letter, header, vals[i], "scale not stated", hint)
+    for i in np.nonzero(unknown)[0]:
         rows.error(
             int(i),
-            letter_s,
-            header_s,
-            sample[i],
-            "duplicate record",
-            f"section {sec[i]}, sample {sample[i]}, replicate {replicate[i]} is already "
-            f"in row {raw.row_numbers[first[i]]}; give replicates a replicate number",
+            letter,
+            header,
+            scale[i],
+            "unknown scale",
+            f"scales for {d}: {', '.join(DELTA_SCALES[d])}",
         )
 
-    # assemble the analyses table: Arrow columns pass through, constants are broadcast
+
+def _check_duplicate_records(st: _Preparing) -> None:
+    """Each row's record id; a repeated one is an error, except for a run's standards."""
+    import numpy as np
+
+    st.ids, first = record_ids(
+        st.mapping.source_id,
+        st.arrow_or("section_id", st.sec),
+        st.arrow_or("sample_id", st.sample),
+        st.replicate,
+    )
+    run = st.mapping.run
+    standards = (
+        {m.lower() for m in [*run["anchors"], *run["checks"]]} if run else set()
+    )  # a run's standards repeat by design; they leave in _keep_valid_records
+    letter, header = st.sample_cell
+    for i in np.flatnonzero(first >= 0):
+        if standards and str(st.sample[i]).strip().lower() in standards:
+            continue
+        first_row = st.raw.row_numbers[first[i]]
+        st.rows.error(
+            int(i),
+            letter,
+            header,
+            st.sample[i],
+            "duplicate record",
+            f"section {st.sec[i]}, sample {st.sample[i]}, replicate {st.replicate[i]} is "
+            f"already in row {first_row}; give replicates a replicate number",
+        )
+
+
+def _assemble_frame(st: _Preparing) -> None:
+    """The analyses table of every row, which the checks and the store then read."""
+    import pyarrow as pa
+
+    n = st.n
+    out = _analyses_columns(st)
+    out["record_id"] = st.ids
+    out["source_id"] = const(st.mapping.source_id, n, "VARCHAR")
+    plates = _plate_overrides(st)
+    if plates is not None:
+        out["plate_override"] = plates
+    out["replicate"] = st.replicate
+    out["sheet"] = const(st.raw.sheet, n, "VARCHAR")
+    out["sheet_row"] = st.raw.row_numbers
+    if "position_kind" not in st.cols:
+        out["position_kind"] = _position_kinds(st)
+    types = dict(ANALYSES)
+    st.frame = pa.table({name: to_arrow(v, types[name], n) for name, v in out.items()})
+
+
+def _analyses_columns(st: _Preparing) -> dict[str, Any]:
+    """The analyses columns the stages filled: arrays pass through, constants are broadcast."""
+    import numpy as np
+    import pyarrow as pa
+
     out: dict[str, Any] = {}
-    types = {name: t for name, t in ANALYSES}
-    for name, _t in ANALYSES:
+    for name, sqltype in ANALYSES:
         if name in ("lat", "lon"):
-            out[name] = lat if name == "lat" else lon
+            out[name] = st.lat if name == "lat" else st.lon
         elif name in ("section_id", "locality_id") and not isinstance(
-            cols.get(name), (pa.Array, pa.ChunkedArray)
+            st.cols.get(name), (pa.Array, pa.ChunkedArray)
         ):
-            out[name] = sec if name == "section_id" else loc
-        elif name in cols:
-            v = cols[name]
+            out[name] = st.sec if name == "section_id" else st.loc
+        elif name in st.cols:
+            v = st.cols[name]
             out[name] = (
                 v
                 if isinstance(v, (pa.Array, pa.ChunkedArray, np.ndarray))
-                else const(v, n, types[name])
+                else const(v, st.n, sqltype)
             )
-    out["record_id"] = ids
-    out["source_id"] = const(sid, n, "VARCHAR")
-    plates = {str(b["id"]): b.get("plate") for b in mapping.localities if b.get("plate")}
-    if plates:  # the mapping places these localities on a plate (displaced terranes)
-        out["plate_override"] = np.array(
-            [plates.get(str(x)) if x is not None else None for x in loc], dtype=object
-        )
-    out["replicate"] = replicate
-    out["sheet"] = const(raw.sheet, n, "VARCHAR")
-    out["sheet_row"] = raw.row_numbers
-    if "position_kind" not in cols:
-        kinds = {k: v.get("position_kind") for k, v in section_blocks.items()}
-        if len(set(kinds.values())) <= 1:
-            out["position_kind"] = const(next(iter(kinds.values()), None), n, "VARCHAR")
-        else:
-            out["position_kind"] = pd.Series(sec, dtype=object).map(kinds).to_numpy()
-    for name in list(out):
-        out[name] = to_arrow(out[name], types[name], n)
-    frame = pa.table(out)
+    return out
 
+
+def _plate_overrides(st: _Preparing) -> np.ndarray | None:
+    """The plate the mapping puts each row's locality on (displaced terranes), if any."""
+    import numpy as np
+
+    plates = {str(b["id"]): b.get("plate") for b in st.mapping.localities if b.get("plate")}
+    if not plates:
+        return None
+    return np.array([plates.get(str(x)) if x is not None else None for x in st.loc], dtype=object)
+
+
+def _position_kinds(st: _Preparing) -> Any:
+    """Height or depth of each row, from its section's block when no column gives it."""
+    import pandas as pd
+
+    kinds = {k: v.get("position_kind") for k, v in st.section_blocks.items()}
+    if len(set(kinds.values())) <= 1:
+        return const(next(iter(kinds.values()), None), st.n, "VARCHAR")
+    return pd.Series(st.sec, dtype=object).map(kinds).to_numpy()
+
+
+def _check_frame(st: _Preparing) -> None:
+    """The pandera schema, superposition and plausibility, on the assembled table."""
+    raw = st.raw
     col_index = {letter: j for j, letter in enumerate(raw.letters)}
 
     def raw_text(stored: str, i: int) -> str | None:
         """The cell as the sheet wrote it, for report lines about parsed values."""
-        letter = letters.get(stored, ("", ""))[0]
+        letter = st.letters.get(stored, ("", ""))[0]
         j = col_index.get(letter)
         return raw.column(j)[i].as_py() if j is not None else None
 
-    schema_check(frame, rows, letters, raw_text)
-    superposition(frame, rows, letters)
-    plausibility(frame, raw, report, letters)
+    schema_check(st.frame, st.rows, st.letters, raw_text)
+    superposition(st.frame, st.rows, st.letters)
+    plausibility(st.frame, raw, st.report, st.letters)
 
-    valid = ~rows.bad
-    report.rows_valid = int(valid.sum())
-    report.rows_rejected = int(rows.bad.sum()) + raw.rejected_rows
-    quarantine = []
+
+def _quarantine_bad_rows(st: _Preparing) -> None:
+    """Rejected rows keep their cells and reasons, so that --keep-valid can set them aside."""
+    import numpy as np
+
+    raw, rows = st.raw, st.rows
+    st.report.rows_valid = int((~rows.bad).sum())
+    st.report.rows_rejected = int(rows.bad.sum()) + raw.rejected_rows
     for i in np.nonzero(rows.bad)[0]:
         cells = {raw.headers[j]: raw.column(j)[int(i)].as_py() for j in range(len(raw.headers))}
-        quarantine.append(
+        st.quarantine.append(
             {
                 "sheet": raw.sheet,
                 "sheet_row": int(raw.row_numbers[i]),
@@ -563,7 +783,7 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
     for issue in raw.issues:  # rows the reader could not split: quarantined with their text
         if issue.rule == "row shape":
             digits = "".join(ch for ch in issue.cell if ch.isdigit())
-            quarantine.append(
+            st.quarantine.append(
                 {
                     "sheet": raw.sheet,
                     "sheet_row": int(digits) if digits else None,
@@ -571,26 +791,19 @@ def prepare(mapping: Mapping, progress: Any = None) -> Prepared:
                     "reasons": f"{issue.cell}: row shape",
                 }
             )
-    records = complete(frame if valid.all() else frame.filter(pa.array(valid)))
-    records = (
-        records.append_column("row_hash", row_hashes(records))
-        if "row_hash" not in records.column_names
-        else records
-    )
-    runs = None
-    if mapping.run is not None:
-        records, runs = _split_run(records, mapping, report)
-    return Prepared(
-        mapping,
-        _file_sha(spec.file),
-        records,
-        localities_table(sid, locality_blocks),
-        sections_table(sid, section_blocks, sec, loc),
-        samples_table(records),
-        quarantine,
-        report,
-        runs,
-    )
+
+
+def _keep_valid_records(st: _Preparing) -> None:
+    """The valid rows, completed and hashed; an in-house run's standards go to their table."""
+    import pyarrow as pa
+
+    valid = ~st.rows.bad
+    records = complete(st.frame if valid.all() else st.frame.filter(pa.array(valid)))
+    if "row_hash" not in records.column_names:
+        records = records.append_column("row_hash", row_hashes(records))
+    if st.mapping.run is not None:
+        records, st.runs = _split_run(records, st.mapping, st.report)
+    st.records = records
 
 
 def _split_run(records: pa.Table, mapping: Mapping, report: Report) -> tuple[pa.Table, pa.Table]:

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from strata13.compile.ages.ties import read_ties
 from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
@@ -28,6 +29,7 @@ from strata13.schemas.fields import (
 from strata13.schemas.vocabularies import vocabulary
 
 from strata13.errors import ConfigError, InputFileError
+from strata13.suggest import did_you_mean
 
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {
@@ -102,18 +104,11 @@ class Mapping:
         return str(self.source["id"])
 
 
-def _did_you_mean(word: str, options: set[str] | list[str]) -> str:
-    import difflib
-
-    hit = difflib.get_close_matches(word, sorted(options), n=1, cutoff=0.6)
-    return f" Did you mean {hit[0]!r}?" if hit else ""
-
-
 def _unknown_keys(where: str, given: dict[str, Any], allowed: set[str], path: Path) -> None:
     for key in given:
         if key not in allowed:
             raise ConfigError(
-                f"{path.name}: unknown key {key!r} in {where}." + _did_you_mean(key, allowed),
+                f"{path.name}: unknown key {key!r} in {where}." + did_you_mean(key, allowed),
                 f"Allowed keys in {where}: {', '.join(sorted(allowed))}.",
             )
 
@@ -206,7 +201,7 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
     if name not in BY_NAME and name not in SCALE_KEYS and name not in BASIS_KEYS:
         raise ConfigError(
             f"{path.name}: {where} names unknown field {name!r}."
-            + _did_you_mean(name, field_names()),
+            + did_you_mean(name, field_names()),
             "The fields are listed in DEVELOPERS.md (schemas/fields.py).",
         )
     f = BY_NAME.get(name)
@@ -244,13 +239,80 @@ def _check_scale(name: str, scale: str, where: str, path: Path) -> None:
     if scale not in DELTA_SCALES[name]:
         raise ConfigError(
             f"{path.name}: {where} scale {scale!r} is not known for {name}."
-            + _did_you_mean(scale, set(DELTA_SCALES[name])),
+            + did_you_mean(scale, DELTA_SCALES[name]),
             f"Scales for {name}: {', '.join(DELTA_SCALES[name])}.",
+        )
+
+
+@dataclass
+class _Loading:
+    """One mapping file between its TOML and its Mapping: what the stages have checked so far.
+
+    The stages fill the fields in the order load_mapping calls them; ``table`` is set by
+    _check_table, which a ties-only mapping never reaches.
+    """
+
+    path: Path
+    raw: bytes  # the file as read, hashed into Mapping.sha256
+    doc: dict[str, Any]
+    ties_only: bool = False  # no [table] and no [columns], only ties
+    source: dict[str, Any] = field(default_factory=dict)
+    ties: list[dict[str, Any]] = field(default_factory=list)
+    seen: dict[str, str] = field(default_factory=dict)  # field -> the header mapped to it
+    constants: dict[str, Any] = field(default_factory=dict)
+    sections: list[dict[str, Any]] = field(default_factory=list)
+    localities: list[dict[str, Any]] = field(default_factory=list)
+    localities_table: TableSpec | None = None
+    normalisation: dict[str, dict[str, Any]] = field(default_factory=dict)
+    run: dict[str, Any] | None = None
+    table: TableSpec = field(init=False)
+
+    @property
+    def source_id(self) -> str:
+        return str(self.source["id"])
+
+    @property
+    def sha256(self) -> str:
+        return hashlib.sha256(self.raw).hexdigest()
+
+    def mapping(self) -> Mapping:
+        """The checked mapping of a sheet."""
+        return Mapping(
+            self.path,
+            self.sha256,
+            self.source,
+            self.table,
+            self.constants,
+            self.sections,
+            self.localities,
+            self.localities_table,
+            self.ties,
+            self.normalisation,
+            self.run,
         )
 
 
 def load_mapping(path: Path) -> Mapping:
     """Read and check a mapping file. Raises InputFileError or ConfigError (exit 2)."""
+    st = _read_document(path)
+    _check_blocks(st)
+    _check_source(st)
+    _read_ties(st)
+    if st.ties_only:
+        return _ties_only_mapping(st)
+    _check_table(st)
+    _check_constants(st)
+    _check_sections_and_localities(st)
+    _check_rows_have_a_section(st)
+    _check_localities_table(st)
+    _read_normalisation(st)
+    _apply_run(st)
+    _apply_offsets(st)
+    return st.mapping()
+
+
+def _read_document(path: Path) -> _Loading:
+    """The file's bytes and its TOML, so that every later stage reads a parsed document."""
     if path.is_dir():
         raise InputFileError(f"mapping file {path} is a folder.", "Name the .toml file.")
     if not path.exists():
@@ -263,19 +325,43 @@ def load_mapping(path: Path) -> Mapping:
             f"{path.name} is not valid TOML ({exc}).",
             "Check quotes and brackets on the line named.",
         ) from None
+    return _Loading(path, raw, doc)
+
+
+def _check_blocks(st: _Loading) -> None:
+    """Top-level keys and required blocks first: a misspelt block explains what follows."""
+    doc, path = st.doc, st.path
     _unknown_keys("the top level", doc, TOP_KEYS, path)
-    ties_only = (
+    st.ties_only = (
         "table" not in doc and "columns" not in doc and ("ties" in doc or "ties_table" in doc)
     )
-    for block in ("source",) if ties_only else ("source", "table", "columns"):
+    for block in ("source",) if st.ties_only else ("source", "table", "columns"):
         if not isinstance(doc.get(block), dict):
             raise ConfigError(
                 f"{path.name} has no [{block}] block.",
                 "See the commented example demo_compilation/sheets/quillar_2011.toml.",
             )
-    source = dict(doc["source"])
+
+
+def _check_source(st: _Loading) -> None:
+    """[source]: the id every stored row carries and the reference it is credited to."""
+    path = st.path
+    source = dict(st.doc["source"])
     _unknown_keys("[source]", source, SOURCE_KEYS, path)
-    sid = source.get("id")
+    _check_source_id(source.get("id"), path)
+    if not isinstance(source.get("citation"), str) or not source["citation"].strip():
+        raise ConfigError(
+            f"{path.name}: [source] needs a citation.",
+            "Give the full reference (or a description of the in-house run).",
+        )
+    source["kind"] = _source_kind(source.get("kind", "published"), path)
+    _check_source_year(source.get("year"), path)
+    _check_republishes(source.get("republishes", []), source["id"], path)
+    st.source = source
+
+
+def _check_source_id(sid: Any, path: Path) -> None:
+    """The source id names the source in the store and in file names, so it is a slug."""
     if sid is None:
         raise ConfigError(
             f"{path.name}: [source] has no id.",
@@ -286,19 +372,21 @@ def load_mapping(path: Path) -> Mapping:
             f"{path.name}: [source] id = {sid!r} is not a valid source id.",
             'Use 3–64 lowercase letters, digits and hyphens, e.g. "obrien-delta-2019".',
         )
-    if not isinstance(source.get("citation"), str) or not source["citation"].strip():
-        raise ConfigError(
-            f"{path.name}: [source] needs a citation.",
-            "Give the full reference (or a description of the in-house run).",
-        )
-    kind = source.get("kind", "published")
-    if vocabulary("source_kind").resolve(str(kind)) is None:
+
+
+def _source_kind(kind: Any, path: Path) -> str:
+    """The source kind as its vocabulary term: published and in-house sources differ later."""
+    term = vocabulary("source_kind").resolve(str(kind))
+    if term is None:
         raise ConfigError(
             f"{path.name}: [source] kind = {kind!r} is not published or in-house.",
             'Use kind = "published" or kind = "in-house".',
         )
-    source["kind"] = vocabulary("source_kind").resolve(str(kind))
-    year = source.get("year")
+    return term
+
+
+def _check_source_year(year: Any, path: Path) -> None:
+    """An optional publication year, refused when it cannot be one (a typo or a date)."""
     if year is not None and (
         not isinstance(year, int) or isinstance(year, bool) or not 1600 <= year <= 2200
     ):
@@ -306,7 +394,10 @@ def load_mapping(path: Path) -> Mapping:
             f"{path.name}: [source] year = {year!r} is not a plausible year.",
             "Write the publication year, e.g. year = 2019.",
         )
-    rep = source.get("republishes", [])
+
+
+def _check_republishes(rep: Any, sid: str, path: Path) -> None:
+    """The sources this one re-publishes (overlap checks use them); never itself."""
     if not isinstance(rep, list) or not all(isinstance(x, str) for x in rep):
         raise ConfigError(
             f"{path.name}: [source] republishes must be a list of source ids or citations.",
@@ -318,24 +409,42 @@ def load_mapping(path: Path) -> Mapping:
             "List the sources whose data this one re-publishes.",
         )
 
-    ties = _ties(doc, path, sid)
-    if ties_only:
-        extra = sorted(set(doc) - {"source", "ties", "ties_table"})
-        if extra:
-            raise ConfigError(
-                f"{path.name} has ties but no [table]; [{extra[0]}] needs a sheet.",
-                "A ties-only mapping holds [source], [[ties]] and [ties_table].",
-            )
-        return Mapping(path, hashlib.sha256(raw).hexdigest(), source, None, {}, [], [], None, ties)
-    table = _table(doc["table"], "[table]", path, with_columns=False)
-    columns = doc["columns"]
+
+def _read_ties(st: _Loading) -> None:
+    """The ties come before the sheet, since a ties-only mapping ends with them."""
+    st.ties = _ties(st.doc, st.path, st.source_id)
+
+
+def _ties_only_mapping(st: _Loading) -> Mapping:
+    """A mapping of ties alone; a block that needs a sheet is refused, not ignored."""
+    extra = sorted(set(st.doc) - {"source", "ties", "ties_table"})
+    if extra:
+        raise ConfigError(
+            f"{st.path.name} has ties but no [table]; [{extra[0]}] needs a sheet.",
+            "A ties-only mapping holds [source], [[ties]] and [ties_table].",
+        )
+    return Mapping(st.path, st.sha256, st.source, None, {}, [], [], None, st.ties)
+
+
+def _check_table(st: _Loading) -> None:
+    """[table] and [columns]: the sheet, and one field for each mapped header."""
+    path = st.path
+    table = _table(st.doc["table"], "[table]", path, with_columns=False)
+    columns = st.doc["columns"]
     if not columns:
         raise ConfigError(f"{path.name}: [columns] is empty.", "Map at least one column.")
     table.columns = [_column(h, spec, path) for h, spec in columns.items()]
+    _refuse_repeated_headers(table.columns, path)
+    st.seen = _fields_mapped_once(table.columns, path)
+    st.table = table
+
+
+def _refuse_repeated_headers(columns: list[ColumnMap], path: Path) -> None:
+    """Headers are matched ignoring case and spacing, so two keys may name one header."""
     from strata13.compile.read.readers import norm_header
 
     by_norm: dict[str, str] = {}
-    for c in table.columns:
+    for c in columns:
         key = norm_header(c.header)
         if key in by_norm:
             raise ConfigError(
@@ -344,26 +453,36 @@ def load_mapping(path: Path) -> Mapping:
                 "Keep one of them.",
             )
         by_norm[key] = c.header
+
+
+def _fields_mapped_once(columns: list[ColumnMap], path: Path) -> dict[str, str]:
+    """Field -> its header; a field fed from two columns would have two values a row."""
     seen: dict[str, str] = {}
-    for c in table.columns:
+    for c in columns:
         if c.field in seen:
             raise ConfigError(
                 f"{path.name}: columns {seen[c.field]!r} and {c.header!r} both map to {c.field}.",
                 "Map each field from one column.",
             )
         seen[c.field] = c.header
+    return seen
 
-    constants = dict(doc.get("constants", {}))
+
+def _check_constants(st: _Loading) -> None:
+    """[constants]: known fields that no column also maps, with known scales and bases."""
+    path = st.path
+    constants = dict(st.doc.get("constants", {}))
     for key, value in constants.items():
         if key not in BY_NAME and key not in SCALE_KEYS and key not in BASIS_KEYS:
             raise ConfigError(
                 f"{path.name}: [constants] names unknown field {key!r}."
-                + _did_you_mean(key, field_names()),
+                + did_you_mean(key, field_names()),
                 "The fields are listed in DEVELOPERS.md.",
             )
-        if key in seen:
+        if key in st.seen:
             raise ConfigError(
-                f"{path.name}: {key} is both a column ({seen[key]!r}) and a constant.", "Keep one."
+                f"{path.name}: {key} is both a column ({st.seen[key]!r}) and a constant.",
+                "Keep one.",
             )
         if key in SCALE_KEYS:
             _check_scale(SCALE_KEYS[key], value, f"[constants] {key}", path)
@@ -373,33 +492,47 @@ def load_mapping(path: Path) -> Mapping:
                 f"{', '.join(CONC_BASES)}.",
                 "",
             )
+    st.constants = constants
 
-    sections = doc.get("sections", [])
-    localities = doc.get("localities", [])
+
+def _check_sections_and_localities(st: _Loading) -> None:
+    """[[sections]] and [[localities]]: tables with unique ids, plates and known terms."""
+    path = st.path
+    sections = st.doc.get("sections", [])
+    localities = st.doc.get("localities", [])
     if not isinstance(sections, list) or not isinstance(localities, list):
         raise ConfigError(
             f"{path.name}: sections and localities are [[sections]] / [[localities]] blocks.", ""
         )
-    for kind, blocks, keys in (
-        ("sections", sections, SECTION_KEYS),
-        ("localities", localities, LOCALITY_KEYS),
-    ):
-        ids: set[str] = set()
-        for block in blocks:
-            if not isinstance(block, dict):
-                raise ConfigError(f"{path.name}: [[{kind}]] entries must be tables.", "")
-            _unknown_keys(f"[[{kind}]]", block, keys, path)
-            if not block.get("id"):
-                raise ConfigError(
-                    f"{path.name}: a [[{kind}]] block has no id.",
-                    f'Give every [[{kind}]] block an id = "…".',
-                )
-            if str(block["id"]) in ids:
-                raise ConfigError(
-                    f"{path.name}: two [[{kind}]] blocks have the id {block['id']!r}.",
-                    "Give each its own id.",
-                )
-            ids.add(str(block["id"]))
+    _check_block_ids("sections", sections, SECTION_KEYS, path)
+    _check_block_ids("localities", localities, LOCALITY_KEYS, path)
+    _check_plates(localities, path)
+    _resolve_section_terms(sections, path)
+    st.sections, st.localities = sections, localities
+
+
+def _check_block_ids(kind: str, blocks: list[Any], keys: set[str], path: Path) -> None:
+    """Rows and other blocks name a section or locality by id, so each has its own."""
+    ids: set[str] = set()
+    for block in blocks:
+        if not isinstance(block, dict):
+            raise ConfigError(f"{path.name}: [[{kind}]] entries must be tables.", "")
+        _unknown_keys(f"[[{kind}]]", block, keys, path)
+        if not block.get("id"):
+            raise ConfigError(
+                f"{path.name}: a [[{kind}]] block has no id.",
+                f'Give every [[{kind}]] block an id = "…".',
+            )
+        if str(block["id"]) in ids:
+            raise ConfigError(
+                f"{path.name}: two [[{kind}]] blocks have the id {block['id']!r}.",
+                "Give each its own id.",
+            )
+        ids.add(str(block["id"]))
+
+
+def _check_plates(localities: list[dict[str, Any]], path: Path) -> None:
+    """A locality's plate override is a plate id of the rotation model, a whole number."""
     for loc_block in localities:
         plate = loc_block.get("plate")
         if plate is not None and (
@@ -410,6 +543,10 @@ def load_mapping(path: Path) -> Mapping:
                 "Give the plate id (a whole number ≥ 1) of "
                 "the rotation model this locality rides on.",
             )
+
+
+def _resolve_section_terms(sections: list[dict[str, Any]], path: Path) -> None:
+    """A section's position_kind and datum as vocabulary terms, which later stages compare."""
     for s in sections:
         for key, vocab in (("position_kind", "position_kind"), ("datum", "datum")):
             if key in s:
@@ -422,70 +559,83 @@ def load_mapping(path: Path) -> Mapping:
                         f"Known: {', '.join(vocabulary(vocab).terms)}.",
                     )
                 s[key] = term
-    if "section_id" not in seen and "section_id" not in constants and len(sections) != 1:
+
+
+def _check_rows_have_a_section(st: _Loading) -> None:
+    """Every row lands in a section: a mapped column, a constant or the one [[sections]]."""
+    if "section_id" not in st.seen and "section_id" not in st.constants and len(st.sections) != 1:
         raise ConfigError(
-            f"{path.name} does not say which section the rows belong to.",
+            f"{st.path.name} does not say which section the rows belong to.",
             "Map a section column to section_id, set section_id in [constants], "
             "or define exactly one [[sections]] block.",
         )
-    loc_table = None
-    if "localities_table" in doc:
-        block = doc["localities_table"]
-        loc_table = _table(block, "[localities_table]", path, with_columns=True)
-        cols = block.get("columns") or {}
-        loc_table.columns = [_column(h, spec, path) for h, spec in cols.items()]
-        allowed = {"locality_id", "locality_name", "lat", "lon"}
-        for c in loc_table.columns:
-            if c.field not in allowed:
-                raise ConfigError(
-                    f"{path.name}: [localities_table] maps {c.header!r} to "
-                    f"{c.field}; only {', '.join(sorted(allowed))} belong there.",
-                    "",
-                )
-    normalisation = _normalisation(doc.get("normalisation", {}), path)
-    run = _run(doc.get("run"), path)
+
+
+def _check_localities_table(st: _Loading) -> None:
+    """[localities_table]: a sheet of localities, mapped to locality fields only."""
+    if "localities_table" not in st.doc:
+        return
+    path = st.path
+    block = st.doc["localities_table"]
+    loc_table = _table(block, "[localities_table]", path, with_columns=True)
+    cols = block.get("columns") or {}
+    loc_table.columns = [_column(h, spec, path) for h, spec in cols.items()]
+    allowed = {"locality_id", "locality_name", "lat", "lon"}
+    for c in loc_table.columns:
+        if c.field not in allowed:
+            raise ConfigError(
+                f"{path.name}: [localities_table] maps {c.header!r} to "
+                f"{c.field}; only {', '.join(sorted(allowed))} belong there.",
+                "",
+            )
+    st.localities_table = loc_table
+
+
+def _read_normalisation(st: _Loading) -> None:
+    """[normalisation] and [run]: how the δ columns were put on their scales."""
+    st.normalisation = _normalisation(st.doc.get("normalisation", {}), st.path)
+    st.run = _run(st.doc.get("run"), st.path)
+
+
+def _apply_run(st: _Loading) -> None:
+    """Raw δ columns and a [run] come together; the run is then their normalisation."""
+    path = st.path
     raw_fields = sorted(
-        {c.field for c in table.columns if c.scale == "raw"}
-        | {SCALE_KEYS[k] for k, v in constants.items() if k in SCALE_KEYS and v == "raw"}
+        {c.field for c in st.table.columns if c.scale == "raw"}
+        | {SCALE_KEYS[k] for k, v in st.constants.items() if k in SCALE_KEYS and v == "raw"}
     )
-    if raw_fields and run is None:
-        raise ConfigError(
-            f"{path.name}: {', '.join(raw_fields)} are raw run values but the "
-            "mapping has no [run] block.",
-            'Add [run] with anchors = ["…", "…"] (the reference materials measured in the run).',
-        )
-    if run is not None and not raw_fields:
+    if st.run is None:
+        if raw_fields:
+            raise ConfigError(
+                f"{path.name}: {', '.join(raw_fields)} are raw run values but the "
+                "mapping has no [run] block.",
+                'Add [run] with anchors = ["…", "…"] '
+                "(the reference materials measured in the run).",
+            )
+        return
+    if not raw_fields:
         raise ConfigError(
             f'{path.name}: [run] is given but no δ column has scale = "raw".',
             'Mark the run\'s δ columns scale = "raw", or drop [run].',
         )
-    if run is not None and "run_id" not in seen and "run_id" not in constants:
+    if "run_id" not in st.seen and "run_id" not in st.constants:
         raise ConfigError(
             f"{path.name}: an in-house run needs run_id (a column or a constant).",
             "Map the run column to run_id, or set run_id in [constants].",
         )
     for fld in raw_fields:
-        if fld in normalisation:
+        if fld in st.normalisation:
             raise ConfigError(
                 f"{path.name}: {fld} is a raw run value; [normalisation.{fld}] does not apply.",
                 "The [run] block says how it is normalised.",
             )
-        normalisation[fld] = {"method": "in-house run", **run}
-    for fld, off in _offsets(doc.get("offsets", {}), path).items():
-        normalisation.setdefault(fld, {"method": "not stated", "anchors": {}})["offset"] = off
-    return Mapping(
-        path,
-        hashlib.sha256(raw).hexdigest(),
-        source,
-        table,
-        constants,
-        sections,
-        localities,
-        loc_table,
-        ties,
-        normalisation,
-        run,
-    )
+        st.normalisation[fld] = {"method": "in-house run", **st.run}
+
+
+def _apply_offsets(st: _Loading) -> None:
+    """[offsets]: a declared offset joins its field's normalisation ("not stated" if none)."""
+    for fld, off in _offsets(st.doc.get("offsets", {}), st.path).items():
+        st.normalisation.setdefault(fld, {"method": "not stated", "anchors": {}})["offset"] = off
 
 
 RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "note"}
@@ -544,7 +694,7 @@ def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:
         where = f"[offsets.{fld}]"
         if fld not in DELTA_SCALES:
             raise ConfigError(
-                f"{path.name}: {where} is not a δ field." + _did_you_mean(fld, set(DELTA_SCALES)),
+                f"{path.name}: {where} is not a δ field." + did_you_mean(fld, DELTA_SCALES),
                 "",
             )
         if not isinstance(spec, dict):
@@ -582,7 +732,7 @@ def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
         where = f"[normalisation.{fld}]"
         if fld not in DELTA_SCALES:
             raise ConfigError(
-                f"{path.name}: {where} is not a δ field." + _did_you_mean(fld, set(DELTA_SCALES)),
+                f"{path.name}: {where} is not a δ field." + did_you_mean(fld, DELTA_SCALES),
                 f"δ fields: {', '.join(DELTA_SCALES)}.",
             )
         if not isinstance(spec, dict):
@@ -622,8 +772,6 @@ def _normalisation(block: Any, path: Path) -> dict[str, dict[str, Any]]:
 
 def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any]]:
     """The mapping's age ties (``[[ties]]`` blocks and a ``[ties_table]`` CSV)."""
-    from strata13.compile.ages.ties import read_ties
-
     table_file = None
     if "ties_table" in doc:
         block = doc["ties_table"]
