@@ -393,7 +393,7 @@ def _store_chunk(
     import numpy as np
     import pyarrow as pa
     import pyarrow.compute as pc
-    from strata13.compile.derive.engine import chain_id
+    from strata13.compile.derive.steps import chain_id
     from strata13.schemas.records import ANALYSES, arrow_schema
 
     schema = arrow_schema(ANALYSES)

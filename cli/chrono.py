@@ -30,7 +30,7 @@ def stages(
         typer.Option(
             "--time-scale",
             help="Chart version, or a CSV table of the same format "
-            "(default: the store's, else ICS2024/12).",
+            "(default: the store's, else the newest shipped chart).",
             show_default=False,
         ),
     ] = None,

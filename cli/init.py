@@ -13,8 +13,13 @@ from strata13.cli.common import StoreOpt
 def init(
     store: StoreOpt = None,
     time_scale: Annotated[
-        str, typer.Option("--time-scale", help="Time scale of the store's ages.")
-    ] = "ICS2024/12",
+        str | None,
+        typer.Option(
+            "--time-scale",
+            help="Time scale of the store's ages (default: the newest shipped chart).",
+            show_default=False,
+        ),
+    ] = None,
     regions: Annotated[
         Path | None,
         typer.Option(
@@ -60,7 +65,7 @@ def init(
 
     s = api.init_store(
         api.store_path(store),
-        time_scale=time_scale,
+        time_scale=time_scale or api.DEFAULT_TIME_SCALE,
         regions=regions,
         rules=rules,
         age_extrapolation=extrapolate,

@@ -248,18 +248,16 @@ def init_store(
             + (f" Did you mean {sug!r}?" if sug else ""),
             f"Time scales: {', '.join(voc.terms)}.",
         )
-    from strata13.compile.harmonise.oxygen import DEFAULT as VSMOW_DEFAULT
 
     named = load_regions_file(Path(regions)) if regions else []
-    settings = Settings(
-        time_scale=ts,
-        extra={
-            "vsmow_constants": VSMOW_DEFAULT,
+    settings = Settings.from_stored(
+        {
+            "time_scale": ts,
             "age_extrapolation": bool(age_extrapolation),
             **rules_settings(rules, untested_passes=False),
             **materials_settings(materials),
             **(rotations_settings(*rotations) if rotations else {}),
-        },
+        }
     )
     return Store.create(
         Path(path),
@@ -583,14 +581,12 @@ def screen_report(
     """The stored records re-screened with the store's rules, for the summary and the
     cross-plots: (records, Screening(results, overall, groups), counts per source, section,
     rule and outcome)."""
-    from strata13.compile.derive.engine import rule_set
+    from strata13.compile.derive.screens import rule_set
     from strata13.compile.screening.evaluate import evaluate, summarise
 
     records = query_arrow(store, filters)
     settings = Settings.from_stored(store.settings())
-    res: Screening = evaluate(
-        records, rule_set(settings), bool(settings.extra.get("screen_untested_passes", False))
-    )
+    res: Screening = evaluate(records, rule_set(settings), bool(settings.screen_untested_passes))
     return records, res, summarise(records, res.results)
 
 
@@ -747,29 +743,10 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
     }
 
 
-def _replay(step: dict[str, Any], value: float | None) -> float | None:
-    """A chain step applied to one value (linear maps and offsets; as-reported keeps it)."""
-    p: dict[str, float] = step.get("parameters") or {}
-    if value is None:
-        return None
-    if "slope" in p and "intercept" in p:
-        return float(p["slope"] * value + p["intercept"])
-    if "a" in p and "b" in p:
-        return float(p["a"] * value + p["b"])
-    if "offset" in p:
-        return float(value + p["offset"])
-    if "offset_permil" in p:
-        return float(value + p["offset_permil"])
-    if "corrected" in p:
-        return float(p["corrected"])
-    if step.get("method", "").startswith(("as reported", "as measured", "identity")):
-        return value
-    return None
-
-
 def explain(store: Store, record: str) -> dict[str, Any]:
     """One record with its provenance and, for each δ value, the chain of steps from the
     reported value to the harmonised one. ``record`` may be a unique prefix (≥ 6 chars)."""
+    from strata13.compile.derive.steps import value_after
     from strata13.schemas.fields import DELTA_FIELDS
 
     from strata13.errors import DomainError
@@ -804,8 +781,8 @@ def explain(store: Store, record: str) -> dict[str, Any]:
                 ).fetchone()
                 steps = json.loads(text[0]) if text else []
             value = row[f"{d}_reported"]
-            for k, step in enumerate(steps):  # the value after each step, replayed
-                value = _replay(step, value)
+            for k, step in enumerate(steps):  # the value after each step, from its own map
+                value = value_after(step, value)
                 step["value_after"] = row[d] if k == len(steps) - 1 else value
             chains[d] = {
                 "reported": row[f"{d}_reported"],

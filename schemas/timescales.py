@@ -31,7 +31,16 @@ if TYPE_CHECKING:
     import numpy as np
 
 TABLES = Path(__file__).with_name("data") / "timescales"
-DEFAULT_VERSION = "ICS2024/12"
+
+
+def _newest_shipped() -> str:
+    """The newest shipped chart (its file name, e.g. ics2024-12.csv -> ICS2024/12): the
+    default time scale of a new store, so shipping a newer chart moves the default."""
+    stems = sorted(p.stem for p in TABLES.glob("ics*.csv"))
+    return stems[-1].upper().replace("-", "/")
+
+
+DEFAULT_VERSION = _newest_shipped()
 RANKS = ("stage", "series", "subsystem", "period", "era", "eon")  # young rank to old rank
 REQUIRED = ("name", "rank", "parent", "base_ma", "boundary_key")
 OPTIONAL = ("uncertainty_ma", "confidence", "sigma_ma", "approximate", "note")

@@ -54,12 +54,15 @@ def test_no_public_function_returns_bare_any() -> None:
 
 def test_signatures_resolve() -> None:
     """Every annotation names a real type (the ones under TYPE_CHECKING included)."""
+    from typing import Unpack
+
     import pandas as pd
     import pyarrow as pa
     from strata13.compile.ages.chronology import Interval, SectionModel
     from strata13.compile.derive.recompute import RecomputeResult
     from strata13.compile.export.artifact import Artifact
     from strata13.compile.integrity.corrections import CorrectResult
+    from strata13.compile.integrity.overlaps import Tolerances
     from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.screening.evaluate import Screening
@@ -77,6 +80,8 @@ def test_signatures_resolve() -> None:
         "SqlResult": SqlResult,
         "Screening": Screening,
         "TimeScale": TimeScale,
+        "Tolerances": Tolerances,
+        "Unpack": Unpack,
     }
     for name in api.__all__:
         value = getattr(api, name)

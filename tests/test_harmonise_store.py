@@ -759,7 +759,8 @@ def test_big_delta_uses_harmonised_values_and_is_null_when_one_is_missing(
 def test_reharmonise_rescreens_so_stored_screens_match_a_fresh_evaluation(
     demo_store: Path, tmp_path: Path
 ) -> None:
-    from strata13.compile.derive.engine import Settings, rule_set
+    from strata13.compile.derive.engine import Settings
+    from strata13.compile.derive.screens import rule_set
     from strata13.compile.screening.evaluate import evaluate
 
     # One invented bulk sample whose δ18O (+20.605 ‰ VSMOW) lands either side of the
@@ -795,7 +796,7 @@ def test_reharmonise_rescreens_so_stored_screens_match_a_fresh_evaluation(
     assert now.outcome.tolist() == ["pass"]
     settings = Settings.from_stored(store.settings())
     rules = rule_set(settings)
-    fresh = evaluate(recs, rules, bool(settings.extra.get("screen_untested_passes", False)))
+    fresh = evaluate(recs, rules, bool(settings.screen_untested_passes))
     want = fresh.overall.to_pandas().set_index("record_id").screen.astype(str)
     have = recs.set_index("record_id").screen.astype(str)
     assert have.sort_index().equals(want.sort_index())

@@ -495,3 +495,11 @@ def test_malformed_user_table_names_file_line_and_fix(
     text = f"{err.value.message} {err.value.hint}"
     assert err.value.message.startswith(f"chart.csv, line {line}:")
     assert words in text and err.value.hint
+
+
+def test_the_default_time_scale_is_the_newest_shipped_chart() -> None:
+    # the vocabulary lists versions newest first; the default follows the shipped files
+    from strata13.compile.derive.settings import DEFAULT_TIME_SCALE, Settings
+    from strata13.schemas.timescales import versions
+
+    assert DEFAULT_TIME_SCALE == versions()[0] == Settings().time_scale

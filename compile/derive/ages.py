@@ -22,14 +22,15 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.derive.settings import Settings
+from strata13.compile.derive.steps import Step
+
 from strata13.errors import DomainError
 
 if TYPE_CHECKING:
     import numpy as np
     import pyarrow as pa
 
-DEFAULT_DRAWS = 1000
-DEFAULT_SEED = 13
 CHUNK = 512  # sample positions per stored age_draws row
 METHOD = (
     "whole-section Monte Carlo draws: sequential truncated sampling of tie ages, "
@@ -37,13 +38,8 @@ METHOD = (
 )
 
 
-def _options(settings: Any) -> tuple[bool, int, int]:
-    extra = settings.extra
-    return (
-        bool(extra.get("age_extrapolation", False)),
-        int(extra.get("age_draws", DEFAULT_DRAWS)),
-        int(extra.get("age_seed", DEFAULT_SEED)),
-    )
+def _options(settings: Settings) -> tuple[bool, int, int]:
+    return bool(settings.age_extrapolation), int(settings.age_draws), int(settings.age_seed)
 
 
 def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]]:
@@ -150,7 +146,7 @@ def assign(
     conflicts = [] if conflicts is None else conflicts
     import numpy as np
     import pyarrow as pa
-    from strata13.compile.derive.engine import chain_id, set_column
+    from strata13.compile.derive.steps import add_chain, set_column
     from strata13.schemas.records import AGE_DRAWS, arrow_schema
 
     n = table.num_rows
@@ -170,13 +166,12 @@ def assign(
         s: np.ndarray,
         b: str,
         st: str,
-        steps: list[dict[str, Any]],
+        steps: list[Step],
         lo: Any = None,
         hi: Any = None,
     ) -> None:
         """Date ``rows``; the 95 % range defaults to ±1.96σ (normal)."""
-        cid, text = chain_id(steps)
-        chains[cid] = text
+        cid = add_chain(chains, steps)
         age[rows], sigma[rows], basis[rows], status[rows], chain[rows] = a, s, b, st, cid
         lo95[rows] = a - 1.96 * s if lo is None else lo
         hi95[rows] = a + 1.96 * s if hi is None else hi
@@ -220,13 +215,13 @@ def _stage_only(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> No
         except Strata13Error:
             status[rows] = f"pending: stage {name!r} is not on {scale}"
             continue
-        step = {
-            "step": "stage only",
-            "method": "uniform over the stage: midpoint, σ = span/√12",
-            "parameters": {"stage": name, "base_ma": base, "top_ma": top, "time_scale": scale},
-            "source": f"time-scale table {scale}",
-            "flags": ["dated to a stage only"],
-        }
+        step = Step(
+            "stage only",
+            "uniform over the stage: midpoint, σ = span/√12",
+            f"time-scale table {scale}",
+            {"stage": name, "base_ma": base, "top_ma": top, "time_scale": scale},
+            flags=("dated to a stage only",),
+        )
         half = 0.475 * (base - top)  # the central 95 % of a uniform spread
         put(
             rows,
@@ -263,13 +258,8 @@ def _reported(table: pa.Table, scale: str, put: Any, status: np.ndarray) -> None
         new, step = timescales.convert(ages[rows], canon, scale)
         ok = ~np.isnan(new)
         status[rows[~ok]] = f"pending: outside the boundaries {canon} and {scale} share"
-        first = {
-            "step": "reported",
-            "method": "as reported",
-            "parameters": {"time_scale": canon},
-            "source": "the authors' age",
-        }
-        steps = [first] + ([step] if canon != scale else [])
+        first = Step("reported", "as reported", "the authors' age", {"time_scale": canon})
+        steps = [first] + ([Step.from_dict(step)] if canon != scale else [])
         no_sigma = np.isnan(sig[rows])
         for mask, note in (
             (~no_sigma, "dated: reported"),
@@ -357,14 +347,14 @@ def _models(
         d = res.draws
         summary = agemodel.summarise(d)
         steps = [
-            {
-                "step": "age model",
-                "method": METHOD,
-                "parameters": agemodel.parameters(n_draws, seed, allow_extrapolation=extrapolate)
+            Step(
+                "age model",
+                METHOD,
+                "the section's age ties",
+                agemodel.parameters(n_draws, seed, allow_extrapolation=extrapolate)
                 | {"time_scale": scale},
-                "ties": [t["step"] for t in tl],
-                "source": "the section's age ties",
-            }
+                extra={"ties": [t["step"] for t in tl]},
+            )
         ]
         inside = ~np.isnan(summary.median)
         flagged = res.flags == agemodel.EXTRAPOLATED

@@ -13,7 +13,8 @@ Applied only where the authors stated their anchors and the values they assumed:
 from __future__ import annotations
 
 import numpy as np
-from strata13.compile.harmonise.steps import Step, largest_change
+from strata13.compile.derive.steps import IDENTITY, Step
+from strata13.compile.harmonise.steps import largest_change
 
 from strata13.errors import DomainError
 
@@ -48,6 +49,7 @@ def two_point(
             "intercept": intercept,
         },
         largest_change(v, out),
+        maps=(slope, intercept),
     )
 
 
@@ -68,6 +70,7 @@ def one_point(
         },
         largest_change(v, out),
         ("one-point normalisation: scale compression not corrected",),
+        maps=(1.0, accepted - assumed),
     )
 
 
@@ -80,4 +83,5 @@ def not_stated(values: np.ndarray) -> tuple[np.ndarray, Step]:
         {},
         0.0,
         ("normalisation not stated",),
+        maps=IDENTITY,
     )

@@ -9,12 +9,14 @@ CO2-to-CO2) on the same footing; no acid-fractionation step is implied.
 from __future__ import annotations
 
 import numpy as np
-from strata13.compile.harmonise.steps import Step, largest_change
+from strata13.compile.derive.settings import DEFAULT_VSMOW_CONSTANTS
+from strata13.compile.derive.steps import Step
+from strata13.compile.harmonise.steps import largest_change
 from strata13.schemas.materials import OxygenRelation, oxygen_relations
 
 from strata13.errors import OptionError
 
-DEFAULT = "IUPAC-2014"
+DEFAULT = DEFAULT_VSMOW_CONSTANTS  # the store setting's default (derive.settings)
 
 
 def relation(name: str = DEFAULT) -> OxygenRelation:
@@ -38,6 +40,7 @@ def vsmow_to_vpdb(values: np.ndarray, name: str = DEFAULT) -> tuple[np.ndarray, 
         {"a": a, "b": b, "constants": rel.name},
         largest_change(v, out),
         ("constants from memory",) if rel.confidence == "MEMORY" else (),
+        maps=(a, b),
     )
 
 
@@ -52,4 +55,5 @@ def vpdb_to_vsmow(values: np.ndarray, name: str = DEFAULT) -> tuple[np.ndarray, 
         rel.source,
         {"a": 1 / a, "b": -b / a, "constants": rel.name},
         largest_change(v, out),
+        maps=(1 / a, -b / a),
     )

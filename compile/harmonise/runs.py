@@ -12,7 +12,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from strata13.compile.harmonise.steps import Step, largest_change
+from strata13.compile.derive.steps import Step
+from strata13.compile.harmonise.steps import largest_change
 
 from strata13.errors import DomainError
 
@@ -113,5 +114,6 @@ def normalise_run(
         },
         largest_change(v, out),
         tuple(warnings),
+        maps=(slope, intercept),
     )
     return out, step, qc

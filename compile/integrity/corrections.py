@@ -170,7 +170,7 @@ def apply(
 
     import pyarrow as pa
     import pyarrow.compute as pc
-    from strata13.compile.derive.engine import set_column
+    from strata13.compile.derive.steps import set_column
 
     delta: dict[str, dict[str, tuple[float, str, float | None]]] = {}
     if corrections is None or corrections.num_rows == 0 or table.num_rows == 0:

@@ -132,7 +132,7 @@ def coverage(
     """The coverage table for the filtered records (and, with ``out``, CSV, heatmap and a
     manifest naming ``command``, the filters, the store version and the settings hash);
     returns the table and the files written (name -> sha256)."""
-    from strata13.compile.derive.engine import Settings
+    from strata13.compile.derive.settings import DEFAULT_TIME_SCALE, Settings
     from strata13.compile.export.artifact import Artifact
     from strata13.compile.synthesis.run import CurveRequest, bin_edges_for, samples_for
 
@@ -143,7 +143,7 @@ def coverage(
     older, younger = float(df["age_ma"].max()), float(df["age_ma"].min())
     if filters.interval is not None:
         younger, older = filters.interval
-    scale = s.settings.get("time_scale", "ICS2024/12")
+    scale = s.settings.get("time_scale", DEFAULT_TIME_SCALE)
     edges, _ = bin_edges_for(req, older, younger, scale)
     groups = None
     if by == "region":

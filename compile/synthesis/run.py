@@ -287,7 +287,7 @@ class CurveResult:
 
 
 def _settings_hash(settings: dict[str, Any]) -> str:
-    from strata13.compile.derive.engine import Settings
+    from strata13.compile.derive.settings import Settings
 
     return str(Settings.from_stored(settings).hash())
 
@@ -314,6 +314,7 @@ def make_curve(
     goes into the manifest."""
     import numpy as np
     import pandas as pd
+    from strata13.compile.derive.settings import DEFAULT_TIME_SCALE
     from strata13.compile.synthesis import curve as cv
     from strata13.compile.synthesis.figures import curve_figure, save_figure
 
@@ -321,7 +322,7 @@ def make_curve(
     s = samples_for(store, filters, req, as_of=as_of)
     df = s.frame
     notes = list(s.notes) + list(req.notes)
-    scale = s.settings.get("time_scale", "ICS2024/12")
+    scale = s.settings.get("time_scale", DEFAULT_TIME_SCALE)
     # the axis and the grid cover the data (inside --interval): a curve is never drawn
     # where no sample is
     older, younger = float(df["age_ma"].max()), float(df["age_ma"].min())

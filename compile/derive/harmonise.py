@@ -1,0 +1,383 @@
+"""Harmonise: each reported δ value onto ‰ VPDB where a method exists for its scale.
+
+The second stage of derive (after corrections): VPDB and PDB pass through flagged,
+δ18O on VSMOW is converted, stated anchors re-anchor, raw in-house runs are normalised run
+by run; anything else is pending with its reason. Every value gets its chain of steps.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import replace
+from typing import TYPE_CHECKING, Any
+
+from strata13.compile.derive.settings import Settings
+from strata13.compile.derive.steps import IDENTITY, Step, add_chain, chain_id, set_column
+from strata13.schemas.fields import DELTA_FIELDS
+
+from strata13.errors import DomainError
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+
+
+def _reported_step(scale: str, flags: tuple[str, ...]) -> Step:
+    """The first step of every chain: the value as the authors reported it."""
+    return Step(
+        f"reported on {scale}",
+        "as reported (no correction)",
+        "the authors' statement of scale",
+        {"scale": scale},
+        0.0,
+        flags,
+        maps=IDENTITY,
+    )
+
+
+# samples whose δ18O a normalisation to calcite standards carries through acid digestion
+# (mineralogy not stated is read as calcite, and the chain says so)
+CALCITE_LIKE = ("calcite", "low-Mg calcite", "high-Mg calcite", "unknown")
+PRECISION_PERMIL = 0.05  # typical external precision of carbonate δ13C/δ18O (common practice)
+
+
+def _reanchor(
+    d: str, scale: str, values: Any, spec: dict[str, Any], materials: Any, relation: str
+) -> tuple[Any, list[dict[str, Any]]]:
+    """Re-anchor values whose authors stated their anchors: map the values they assumed for
+    the anchor materials onto the values the store accepts (compile.harmonise.anchors)."""
+    from strata13.compile.harmonise import anchors
+    from strata13.schemas.materials import accepted_value
+
+    table, choice = materials
+    iso = "d18o" if d.startswith("d18o") else "d13c"
+    named = sorted(spec["anchors"].items())
+    accepted = [accepted_value(m, iso, table, choice, relation) for m, _ in named]
+    source = "; ".join(
+        f"{m}: {v:g} ‰ ({row.value_set}, {row.status}; {row.source})"
+        for (m, _), (v, row) in zip(named, accepted, strict=True)
+    )
+    if spec["method"] == "two-point":
+        out, step = anchors.two_point(
+            values,
+            (named[0][1], named[1][1]),
+            (accepted[0][0], accepted[1][0]),
+            (named[0][0], named[1][0]),
+            source,
+        )
+    else:
+        out, step = anchors.one_point(values, named[0][1], accepted[0][0], named[0][0], source)
+    old_rows = [row for _, row in accepted if row.status != "current"]
+    step = step.flagged(
+        *(
+            f"{row.material}: the accepted value is {row.status} ({row.value_set})"
+            for row in old_rows
+        )
+    )
+    if step.size_permil < PRECISION_PERMIL - 1e-9:  # not fooled by rounding
+        step = step.flagged(
+            f"largest change {step.size_permil:.3g} ‰ is below "
+            f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
+            "practice): the scales agree here within precision"
+        )
+    return out, [_reported_step(scale, ()), step]
+
+
+def _fix_index(table: pa.Table, fixes: dict[str, Any]) -> dict[int, Any]:
+    """Row index -> (corrected value, why, published) for one δ field's corrections."""
+    if not fixes:
+        return {}
+    ids = table.column("record_id").to_pylist()
+    return {i: fixes[r] for i, r in enumerate(ids) if r in fixes}
+
+
+def _offset_values(values: Any, spec: dict[str, Any] | None) -> Any:
+    off = (spec or {}).get("offset")
+    return values + off["value"] if off else values
+
+
+def _with_offset(steps: list[Step], spec: dict[str, Any] | None) -> list[Step]:
+    """The chain with the source's declared offset as its last step, when there is one."""
+    off = (spec or {}).get("offset")
+    if not off:
+        return steps
+    offset = Step(
+        "declared per-source offset",
+        "add a constant",
+        f"the mapping's justification: {off['why']}",
+        {"offset_permil": off["value"]},
+        abs(off["value"]),
+        maps=(1.0, float(off["value"])),
+    )
+    return [*steps, offset]
+
+
+def _run_values(
+    d: str,
+    table: pa.Table,
+    rows: Any,
+    reported: Any,
+    spec: dict[str, Any],
+    runs: pa.Table | None,
+    materials: Any,
+    relation: str,
+) -> tuple[list[tuple[list[Step], Any, Any]], list[dict[str, Any]]]:
+    """Normalise raw in-house run values, run by run, to the store's accepted values of the
+    run's anchor materials (compile.harmonise.runs); returns per-run chains and the QC."""
+    import numpy as np
+    from strata13.compile.harmonise import runs as run_math
+    from strata13.schemas.materials import accepted_value
+
+    iso = "d18o" if d.startswith("d18o") else "d13c"
+    measured = "d18o_measured" if iso == "d18o" else "d13c_measured"
+    idx = np.flatnonzero(rows)
+    src = table.column("source_id").take(idx).to_pylist()
+    run_ids = table.column("run_id").take(idx).to_pylist()
+    pos = table.column("run_position").take(idx).to_numpy(zero_copy_only=False).astype(float)
+    std = runs.to_pylist() if runs is not None else []
+    out: list[tuple[list[Step], Any, Any]] = []
+    qcs: list[dict[str, Any]] = []
+    mat_table, choice = materials
+    for key in sorted(set(zip(src, run_ids, strict=True)), key=str):
+        sel = np.array([(a, b) == key for a, b in zip(src, run_ids, strict=True)])
+        here = [r for r in std if (r["source_id"], r["run_id"]) == key and r[measured] is not None]
+        where = f"run {key[1]!r} of source {key[0]}"
+        if key[1] is None:
+            raise DomainError(
+                f"source {key[0]}: a raw value has no run_id.",
+                "Every row of an in-house run sheet needs its run.",
+            )
+
+        def meas(material: str, rows_: list[dict[str, Any]] = here) -> list[float]:
+            return [float(r[measured]) for r in rows_ if r["material"] == material]
+
+        anchors = {}
+        for m in spec["anchors"]:
+            if meas(m):
+                anchors[m] = (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
+        checks = {
+            m: (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
+            for m in spec.get("checks", [])
+            if meas(m)
+        }
+        raw = reported[rows][sel]
+        drift = None
+        if spec.get("drift"):
+            ref = [
+                (r["run_position"], float(r[measured]))
+                for r in here
+                if r["run_position"] is not None
+            ]
+            by_mat: dict[str, list[float]] = {}
+            for r in here:
+                by_mat.setdefault(r["material"], []).append(float(r[measured]))
+            offsets = [
+                float(r[measured]) - float(np.mean(by_mat[r["material"]]))
+                for r in here
+                if r["run_position"] is not None
+            ]
+            raw, drift = run_math.drift_correct(
+                raw, pos[sel], np.array([p for p, _ in ref]), np.array(offsets)
+            )
+            pp = np.array([r["run_position"] or 0.0 for r in here])
+            for m in list(anchors):
+                got = [
+                    float(r[measured]) - drift * p
+                    for r, p in zip(here, pp, strict=True)
+                    if r["material"] == m
+                ]
+                anchors[m] = (got, anchors[m][1])
+        try:
+            values, step, qc = run_math.normalise_run(
+                str(key[1]),
+                raw,
+                anchors,
+                checks,
+                spec.get("slope_tolerance", 0.05),
+                f"{where}: reference materials measured in the run",
+            )
+        except DomainError as exc:
+            raise DomainError(f"{where}, {iso}: {exc.message}", exc.hint) from None
+        params = {**step.parameters, "accepted_from": "the store's reference-material values"}
+        if drift is not None:  # the value after depends on the run position too: no map
+            params["drift_per_position"] = drift
+        step = replace(step, parameters=params, maps=None if drift is not None else step.maps)
+        if iso == "d18o":
+            step = step.flagged(
+                "acid fractionation: carried by the normalisation "
+                "to calcite standards reacted alongside (calcite samples; a "
+                "mineralogy not stated is read as calcite)"
+            )
+            mineral = table.column("mineralogy").take(idx).to_pylist()
+            other = np.array([(m or "calcite") not in CALCITE_LIKE for m in mineral]) & sel
+            if other.any():  # no shipped relation corrects dolomite against calcite standards
+                values = np.where(other[sel], np.nan, values)
+        out.append(
+            (
+                [
+                    Step(
+                        "reported on the lab's working gas (raw)",
+                        "as measured",
+                        where,
+                        {"scale": "raw"},
+                        maps=IDENTITY,
+                    ),
+                    step,
+                ],
+                sel,
+                values,
+            )
+        )
+        qcs.append(
+            {
+                "source_id": key[0],
+                "run_id": key[1],
+                "isotope": iso,
+                "slope": qc.slope,
+                "intercept": qc.intercept,
+                "n_anchors": qc.n_anchors,
+                "anchors": ", ".join(sorted(anchors)),
+                "residuals_json": json.dumps(qc.residuals, sort_keys=True),
+                "precision_1s": qc.precision_1s,
+                "drift_per_position": drift,
+                "warnings": "; ".join(qc.warnings) or None,
+            }
+        )
+    return out, qcs
+
+
+def harmonise(
+    table: pa.Table,
+    chains: dict[str, str],
+    settings: Settings,
+    strict: bool = True,
+    runs: pa.Table | None = None,
+    run_qc: list[dict[str, Any]] | None = None,
+    fixes: dict[str, dict[str, Any]] | None = None,
+) -> pa.Table:
+    """Each δ column onto ‰ VPDB where a method exists for its reported scale:
+
+    * VPDB: taken as reported (normalisation not stated: flagged, not corrected);
+    * PDB: the historical name of the same scale, taken as reported and flagged
+      (common practice);
+    * δ18O on VSMOW: the VSMOW–VPDB relation named in the settings (IUPAC by default);
+    * anything else (VPDB-LSVEC needs the authors' anchors): pending, not copied.
+    """
+    import numpy as np
+    import pyarrow as pa
+    from strata13.compile.harmonise import oxygen
+    from strata13.schemas.materials import store_table
+
+    constants = settings.vsmow_constants
+    materials = store_table(settings.stored())
+    run_qc = [] if run_qc is None else run_qc
+    fixes = fixes or {}
+    for d in DELTA_FIELDS:
+        reported = table.column(f"{d}_reported").to_numpy(zero_copy_only=False).astype(float)
+        fixed = _fix_index(table, fixes.get(d, {}))
+        for i, (value, _why, _rep) in fixed.items():
+            reported[i] = value  # derived from the corrected value; *_reported stays as published
+        scale = np.asarray(table.column(f"{d}_scale").to_numpy(zero_copy_only=False), object)
+        has = ~np.isnan(reported)
+        out = np.full(len(reported), np.nan)
+        chain = np.full(len(reported), None, dtype=object)
+        # numpy's stubs reject None as a value of where(); on object output it is the null
+        status = np.where(has, "pending", None).astype(object)  # type: ignore[call-overload]
+        norm = (
+            np.asarray(table.column(f"{d}_normalisation").to_numpy(zero_copy_only=False), object)
+            if f"{d}_normalisation" in table.column_names
+            else np.full(len(reported), None, dtype=object)
+        )
+        for sc, nm in sorted(
+            {(x, y) for x, y in zip(scale[has], norm[has], strict=True) if x is not None}, key=str
+        ):
+            rows = has & (scale == sc) & np.equal(norm, nm)
+            spec = json.loads(nm) if nm else None
+            stated = spec is not None and spec.get("method") != "not stated"
+            if sc == "raw":
+                # a raw run's mapping always gives its normalisation (the [run] block)
+                assert spec is not None
+                try:
+                    run_steps, qc = _run_values(
+                        d, table, rows, reported, spec, runs, materials, constants
+                    )
+                except DomainError as exc:
+                    if strict:
+                        raise
+                    status[rows] = f"pending: {exc.message}"
+                    continue
+                run_qc += qc
+                for r_steps, r_rows, r_vals in run_steps:  # one chain per run
+                    values_rows = np.flatnonzero(rows)[r_rows]
+                    cid = add_chain(chains, _with_offset(r_steps, spec))
+                    out[values_rows] = _offset_values(r_vals, spec)
+                    chain[values_rows] = cid
+                    status[values_rows] = "harmonised"
+                    gap = values_rows[np.isnan(np.asarray(r_vals, float))]
+                    chain[gap] = None
+                    status[gap] = (
+                        "pending: no acid-fractionation relation for this "
+                        "mineralogy against calcite standards is shipped"
+                    )
+                continue
+            if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated and spec is not None:
+                try:
+                    values, steps = _reanchor(d, sc, reported[rows], spec, materials, constants)
+                except DomainError as exc:
+                    if strict:
+                        src = table.column("source_id")[int(np.flatnonzero(rows)[0])].as_py()
+                        raise DomainError(
+                            f"source {src}: [normalisation.{d}]: {exc.message}", exc.hint
+                        ) from None
+                    status[rows] = f"pending: {exc.message}"
+                    continue
+            elif sc in ("VPDB", "PDB"):
+                flags = ("normalisation not stated",) + (
+                    ("reported as PDB; read as VPDB (common practice)",) if sc == "PDB" else ()
+                )
+                steps = [_reported_step(sc, flags)]
+                values = reported[rows]
+            elif sc == "VSMOW" and d == "d18o_carb":
+                values, step = oxygen.vsmow_to_vpdb(reported[rows], constants)
+                steps = [_reported_step(sc, ()), step]
+            elif sc == "VPDB-LSVEC":
+                status[rows] = (
+                    "pending: VPDB-LSVEC values need the authors' anchors "
+                    "([normalisation] in the mapping)"
+                )
+                continue
+            else:
+                status[rows] = f"pending: harmonisation from {sc} not available yet"
+                continue
+            cid = add_chain(chains, _with_offset(steps, spec))
+            out[rows] = _offset_values(values, spec)
+            chain[rows] = cid
+            status[rows] = "harmonised"
+        for i, (value, why, rep) in fixed.items():  # a correction opens the record's chain
+            if chain[i] is None:
+                continue
+            fix = Step(
+                "correction",
+                "the user's correction of the published value",
+                why,
+                {"published": rep, "corrected": value},
+                abs(value - rep) if rep is not None and rep == rep else 0.0,
+                ("corrected by the user",),
+                maps=(0.0, float(value)),  # the value after is the corrected one, whatever before
+            )
+            cid, text = chain_id([fix.as_dict(), *json.loads(chains[chain[i]])])
+            chains[cid] = text
+            chain[i] = cid
+        status[has & (status == "pending")] = "pending: the reported scale is not stated"
+        table = set_column(table, d, pa.array(out, type=pa.float64(), from_pandas=True))
+        table = set_column(table, f"{d}_chain", pa.array(chain, type=pa.string()))
+        table = set_column(table, f"{d}_status", pa.array(status, type=pa.string()))
+    return table
+
+
+def big_delta(table: pa.Table) -> pa.Table:
+    """Δ13C = δ13C carbonate − δ13C organic, where both are harmonised on the same record."""
+    import pyarrow.compute as pc
+
+    return set_column(
+        table, "big_delta_13c", pc.subtract(table.column("d13c_carb"), table.column("d13c_org"))
+    )

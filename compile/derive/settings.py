@@ -1,0 +1,83 @@
+"""The store's derive settings: one frozen, typed value with one content hash per setting.
+
+Every default lives here (the newest shipped chart is the default time scale). A store keeps
+its settings as one row per key (``stored``); a store written before a setting existed reads
+back with that setting's default, and keys this version does not know are kept in ``extra``
+so nothing a newer version wrote is lost.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field, fields
+from typing import Any
+
+from strata13.schemas.timescales import DEFAULT_VERSION as DEFAULT_TIME_SCALE
+
+__all__ = [
+    "DEFAULT_AGE_DRAWS",
+    "DEFAULT_AGE_SEED",
+    "DEFAULT_TIME_SCALE",
+    "DEFAULT_VSMOW_CONSTANTS",
+    "Settings",
+]
+
+DEFAULT_VSMOW_CONSTANTS = "IUPAC-2014"  # the VSMOW–VPDB relation (harmonise.oxygen)
+DEFAULT_AGE_DRAWS = 1000  # Monte Carlo draws per section age model
+DEFAULT_AGE_SEED = 13  # their seed: the same store gives the same draws
+
+
+def _digest(value: Any) -> str:
+    text = json.dumps(value, sort_keys=True, ensure_ascii=False)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+@dataclass(frozen=True)
+class Settings:
+    """The store's derive settings; each change is one new store version."""
+
+    time_scale: str = DEFAULT_TIME_SCALE
+    vsmow_constants: str = DEFAULT_VSMOW_CONSTANTS
+    age_extrapolation: bool = False  # age models extrapolate beyond their outermost ties
+    age_draws: int = DEFAULT_AGE_DRAWS
+    age_seed: int = DEFAULT_AGE_SEED
+    screen_rules: str | None = None  # canonical text of the rule set (None: shipped default)
+    screen_rules_name: str | None = None
+    screen_untested_passes: bool = False  # whether a rule that could not run counts as passed
+    materials_csv: str | None = None  # the user's reference-material file, as text
+    material_values: dict[str, Any] | None = None  # value set accepted per material/isotope
+    rotation_model_csv: str | None = None  # rotation model and plate polygons, as text
+    plate_polygons_geojson: str | None = None
+    rotation_model_name: str | None = None
+    rotation_frame: str | None = None
+    extra: dict[str, Any] = field(default_factory=dict)  # keys this version does not know
+
+    def stored(self) -> dict[str, Any]:
+        """The settings as the store's settings table keeps them (one key each; unset
+        optional settings are left out)."""
+        out = {
+            f.name: getattr(self, f.name)
+            for f in fields(self)
+            if f.name != "extra" and getattr(self, f.name) is not None
+        }
+        return {**self.extra, **out}
+
+    @classmethod
+    def from_stored(cls, values: dict[str, Any]) -> Settings:
+        """Settings from the stored rows; a missing key takes its default."""
+        known = {f.name for f in fields(cls)} - {"extra"}
+        given = {k: v for k, v in values.items() if k in known}
+        return cls(**given, extra={k: v for k, v in values.items() if k not in known})
+
+    def hashes(self) -> dict[str, str]:
+        """One content hash per setting (SHA-256 of its JSON, 16 hex digits)."""
+        return {k: _digest(v) for k, v in sorted(self.stored().items())}
+
+    def hash(self) -> str:
+        """The content hash of all settings together (of the per-setting hashes)."""
+        return _digest(self.hashes())
+
+    def but(self, **changes: Any) -> Settings:
+        """These settings with some changed (unknown names go to ``extra``)."""
+        return Settings.from_stored(self.stored() | changes)
