@@ -42,7 +42,7 @@ PRECISION_PERMIL = 0.05  # typical external precision of carbonate δ13C/δ18O (
 
 def _reanchor(
     d: str, scale: str, values: Any, spec: dict[str, Any], materials: Any, relation: str
-) -> tuple[Any, list[dict[str, Any]]]:
+) -> tuple[Any, list[Step]]:
     """Re-anchor values whose authors stated their anchors: map the values they assumed for
     the anchor materials onto the values the store accepts (compile.harmonise.anchors)."""
     from strata13.compile.harmonise import anchors
@@ -73,9 +73,10 @@ def _reanchor(
             for row in old_rows
         )
     )
-    if step.size_permil < PRECISION_PERMIL - 1e-9:  # not fooled by rounding
+    size = step.size_permil or 0.0
+    if size < PRECISION_PERMIL - 1e-9:  # not fooled by rounding
         step = step.flagged(
-            f"largest change {step.size_permil:.3g} ‰ is below "
+            f"largest change {size:.3g} ‰ is below "
             f"typical analytical precision ({PRECISION_PERMIL} ‰, common "
             "practice): the scales agree here within precision"
         )
