@@ -350,15 +350,13 @@ def check_sources(store: Store, ids: list[str]) -> list[str]:
     """Refuse --source values that name no source of the store, with a hint."""
     if not ids:
         return ids
-    import difflib
+    from strata13.suggest import did_you_mean
 
     known: list[str] = [s["source_id"] for s in sources(store)]
     for sid in ids:
         if sid not in known:
-            hit = difflib.get_close_matches(sid, known, n=1)
             raise OptionError(
-                f"--source {sid!r} is not a source of this store."
-                + (f" Did you mean {hit[0]!r}?" if hit else ""),
+                f"--source {sid!r} is not a source of this store." + did_you_mean(sid, known),
                 "See `strata13 sources`.",
             )
     return ids

@@ -120,19 +120,18 @@ def ingest(
 def _check_run_materials(store: Store, mapping: Any) -> None:
     """Every material a [run] names must be one the store knows, before the sheet is split
     into standards and samples (an unknown name would make its rows look like samples)."""
-    import difflib
-
     from strata13.schemas.materials import store_table
+
+    from strata13.suggest import did_you_mean
 
     table, _ = store_table(store.settings())
     known = sorted({m.material for m in table})
     for name in [*mapping.run["anchors"], *mapping.run["checks"]]:
         if name not in known:
-            sug = difflib.get_close_matches(name, known, n=1)
             raise DomainError(
                 f"{mapping.path.name}: [run] names reference material {name!r}, "
                 "which the store's material table does not have; nothing was "
-                "written." + (f" Did you mean {sug[0]!r}?" if sug else ""),
+                "written." + did_you_mean(name, known),
                 "Name a material `strata13 scales` lists, or add it with --materials FILE.",
             )
 

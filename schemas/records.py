@@ -285,6 +285,36 @@ TABLES: dict[str, list[tuple[str, str]]] = {
 # Tables replaced source by source on (re-)ingest.
 PER_SOURCE = ("analyses", "sources", "localities", "sections", "samples", "quarantine", "runs")
 
+# Reported vs derived, per analyses column: derive fills exactly these (from the reported
+# columns and the store's settings); every other column holds what the source reported (or
+# where it sits: sheet, row) and is never changed after ingest.
+DERIVED: frozenset[str] = frozenset(
+    {
+        *DELTA_FIELDS,
+        *(f"{d}_chain" for d in DELTA_FIELDS),
+        *(f"{d}_status" for d in DELTA_FIELDS),
+        "age_ma",
+        "age_sigma_ma",
+        "age_basis",
+        "time_scale",
+        "age_status",
+        "age_chain",
+        "age_lo95_ma",
+        "age_hi95_ma",
+        "big_delta_13c",
+        "paleolat_sigma",
+        "plate_id",
+        "paleolat",
+        "paleolon",
+        "paleo_model",
+        "paleo_frame",
+        "paleo_status",
+        "screen",
+        "row_hash",
+    }
+)
+REPORTED: tuple[str, ...] = tuple(c for c, _ in ANALYSES if c not in DERIVED)
+
 # The public `records` view: DESIGN.md's names first, then every other analyses column.
 RECORDS_PUBLIC = [
     "record_id",

@@ -49,3 +49,20 @@ def test_settings_hash_per_setting_and_keep_unknown_keys() -> None:
     assert Settings.from_stored(kept.stored()) == kept
     with pytest.raises(AttributeError):  # frozen: a change is a new value
         base.time_scale = "ICS2012"  # type: ignore[misc]
+
+
+def test_derive_changes_only_the_columns_the_schema_declares_derived(demo_sheets) -> None:
+    from strata13.compile.ages.ties import ties_table
+    from strata13.compile.check.validate import prepare
+    from strata13.compile.derive.engine import derive
+    from strata13.compile.read.mapping import load_mapping
+    from strata13.schemas.records import DERIVED, REPORTED
+
+    mapping = load_mapping(demo_sheets / "quillar_2011.toml")
+    prepared = prepare(mapping)
+    out = derive(prepared.records, Settings(), ties_table(mapping.ties)).table
+    before, after = prepared.records, out
+    assert after.column_names == before.column_names
+    changed = {c for c in before.column_names if not before.column(c).equals(after.column(c))}
+    assert changed and changed <= DERIVED  # something was derived, nothing reported moved
+    assert set(REPORTED) | DERIVED == set(before.column_names) and not set(REPORTED) & DERIVED

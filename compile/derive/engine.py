@@ -15,37 +15,15 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive.settings import DEFAULT_TIME_SCALE, Settings
-from strata13.schemas.fields import DELTA_FIELDS
+from strata13.schemas.records import DERIVED
 
 if TYPE_CHECKING:
     import pyarrow as pa
 
 __all__ = ["DEFAULT_TIME_SCALE", "DERIVED_COLUMNS", "Derived", "Settings", "derive"]
 
-# the columns derive fills (everything else of a record is as reported)
-DERIVED_COLUMNS = {
-    *DELTA_FIELDS,
-    *(f"{d}_chain" for d in DELTA_FIELDS),
-    *(f"{d}_status" for d in DELTA_FIELDS),
-    "age_ma",
-    "age_sigma_ma",
-    "age_basis",
-    "time_scale",
-    "age_status",
-    "age_chain",
-    "age_lo95_ma",
-    "age_hi95_ma",
-    "big_delta_13c",
-    "paleolat_sigma",
-    "plate_id",
-    "paleolat",
-    "paleolon",
-    "paleo_model",
-    "paleo_frame",
-    "paleo_status",
-    "screen",
-    "row_hash",
-}
+# the columns derive fills, declared with the record schema (the rest is as reported)
+DERIVED_COLUMNS = DERIVED
 
 
 @dataclass

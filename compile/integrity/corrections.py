@@ -106,13 +106,12 @@ def parse_value(field: str, text: str, where: str) -> Any:
 
 def check(c: Correction, where: str) -> Any:
     """Validate one correction's field, value and reason; returns the typed value."""
-    import difflib
+    from strata13.suggest import did_you_mean
 
     if c.field not in CORRECTABLE:
-        sug = difflib.get_close_matches(c.field, CORRECTABLE, n=1)
         raise OptionError(
             f"{where}: {c.field!r} is not a field a correction can change."
-            + (f" Did you mean {sug[0]!r}?" if sug else ""),
+            + did_you_mean(c.field, CORRECTABLE),
             f"Correctable: {', '.join(CORRECTABLE)}.",
         )
     if not c.why or len(c.why.strip()) < 5:
