@@ -23,11 +23,11 @@ import os
 import time
 from collections.abc import Iterator
 from dataclasses import dataclass
-from functools import cache
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.store.catalog import CATALOG_FILE, SqliteCatalog, attach
+from strata13.compile.store.extensions import connect
 from strata13.compile.store.relations import READ_VIEWS, bind_views
 from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
@@ -44,46 +44,6 @@ DATA = "data"
 LOCK = "writer.lock"
 LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
 __all__ = ["READ_VIEWS", "Store", "Transaction", "Version", "connect", "is_store"]
-
-
-@cache
-def _extension_files() -> dict[str, str | None]:
-    """Paths of the signed DuckLake and SQLite extension binaries shipped as wheels."""
-    out: dict[str, str | None] = {}
-    for name, module in (
-        ("ducklake", "duckdb_extension_ducklake"),
-        ("sqlite_scanner", "duckdb_extension_sqlite_scanner"),
-    ):
-        try:
-            where = getattr(__import__(module), "__file__", None)
-            hits = (
-                sorted(Path(where).parent.glob("extensions/*/*.duckdb_extension")) if where else []
-            )
-            out[name] = str(hits[-1]) if hits else None
-        except ImportError:
-            out[name] = None
-    return out
-
-
-def connect() -> duckdb.DuckDBPyConnection:
-    """An in-memory DuckDB with the DuckLake and SQLite extensions loaded."""
-    import duckdb
-
-    con = duckdb.connect(":memory:")
-    for name, path in _extension_files().items():
-        try:
-            if path:
-                con.execute(f"LOAD '{path}'")
-            else:  # no wheel for this platform: DuckDB's own signed INSTALL
-                con.execute(f"INSTALL {name}")
-                con.execute(f"LOAD {name}")
-        except duckdb.Error as exc:
-            raise StoreError(
-                f"the DuckDB extension {name} could not be loaded ({exc}).",
-                "Install duckdb-extension-ducklake and "
-                "duckdb-extension-sqlite-scanner matching your duckdb version.",
-            ) from None
-    return con
 
 
 def is_store(path: Path) -> bool:
@@ -300,7 +260,7 @@ class Store:
                 "See `strata13 history`.",
             )
         try:
-            bind_views(con, v)
+            bind_views(con, v, latest=v == latest)
         except duckdb.Error as exc:
             con.close()
             raise StoreError(

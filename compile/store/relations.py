@@ -63,27 +63,74 @@ def tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
     return names
 
 
-def bind_views(con: duckdb.DuckDBPyConnection, version: int | None) -> None:
+def _columns_now(con: duckdb.DuckDBPyConnection) -> dict[str, set[str]]:
+    """Every lake table with its columns as the connection sees them now (one query)."""
+    out: dict[str, set[str]] = {}
+    for table, column in con.execute(
+        "SELECT table_name, column_name FROM duckdb_columns() WHERE database_name = 'lake'"
+    ).fetchall():
+        out.setdefault(str(table), set()).add(str(column))
+    return out
+
+
+def _columns_at(con: duckdb.DuckDBPyConnection, version: int) -> dict[str, set[str]]:
+    """Every lake table that existed at ``version`` with its columns then (a query each)."""
+    return {
+        table: {
+            r[0]
+            for r in con.execute(
+                f"DESCRIBE SELECT * FROM lake.{table} AT (VERSION => {int(version)})"
+            ).fetchall()
+        }
+        for table in sorted(tables_at(con, version))
+    }
+
+
+def bind_views(con: duckdb.DuckDBPyConnection, version: int | None, latest: bool = False) -> None:
     """Create the temp views over ``lake`` at ``version`` (None: the live, writable state).
 
     A version written before a column existed shows it as NULL: the views always have
     today's columns, so old versions stay readable. A writer calls this after migrating,
-    when every table and column exists.
+    when every table and column exists. For the ``latest`` version the catalog's own column
+    list is read in one query; an older version is probed table by table.
     """
+    import duckdb
+
     at = "" if version is None else f" AT (VERSION => {int(version)})"
-    present = set(READ_VIEWS) if version is None else tables_at(con, version)
+    if version is not None and not latest:
+        present = _columns_at(con, version)
+    else:
+        present = _columns_now(con)
+    statements = []
     for table, view in VIEW_NAMES.items():
         wanted = _columns(table, writer=version is None)
         types = dict(TABLES[table])
-        if table not in present:  # a table added after this version: empty, typed
+        have = present.get(table)
+        if have is None:  # a table added after this version: empty, typed
             cols = ", ".join(f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted)
-            con.execute(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} WHERE false")
+            statements.append(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} WHERE false")
             continue
-        have = {r[0] for r in con.execute(f"DESCRIBE SELECT * FROM lake.{table}{at}").fetchall()}
         cols = ", ".join(
             f'"{c}"' if c in have else f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted
         )
-        con.execute(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}")
+        statements.append(
+            f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}"
+        )
+    if version is None:  # inside the writer's open transaction
+        for sql in statements:
+            con.execute(sql)
+        return
+    try:
+        con.execute("BEGIN")  # one read transaction: one catalog load for all the views
+        for sql in statements:
+            con.execute(sql)
+        con.execute("COMMIT")
+    except duckdb.Error:
+        con.execute("ROLLBACK")
+        if not latest:
+            raise
+        # a writer changed the schema after ``version`` was read: probe that version
+        bind_views(con, version, latest=False)
 
 
 def snapshot_time(con: duckdb.DuckDBPyConnection, version: int) -> str | None:
