@@ -87,7 +87,9 @@ def connect() -> duckdb.DuckDBPyConnection:
     files = extension_files()
     ids = [_identity(p) if p else None for p in files.values()]
     checked = all(i is not None and i in _verified() for i in ids)
-    config = {"allow_unsigned_extensions": "true"} if checked else {}
+    config: dict[str, str | bool | int | float | list[str]] = (
+        {"allow_unsigned_extensions": True} if checked else {}
+    )
     con = duckdb.connect(":memory:", config=config)
     for name, path in files.items():
         try:
