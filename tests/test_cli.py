@@ -128,6 +128,7 @@ def test_broken_demo_sheet_report_and_unchanged_store(
         assert expected in rules
 
 
+@pytest.mark.slow
 def test_demo_runs_and_exports(tmp_path: Path) -> None:
     res = run("demo", "--out", str(tmp_path / "d"))
     assert res.returncode == 0, res.stderr
@@ -172,6 +173,7 @@ def test_every_reader_refuses_a_missing_store_with_1(tmp_path: Path, command: st
     assert not (tmp_path / "none").exists()
 
 
+@pytest.mark.slow
 def test_ctrl_c_during_a_long_sql_query_exits_130(demo_store: Path) -> None:
     import signal
     import time

@@ -199,6 +199,7 @@ def two_sources(tmp_path: Path, prefix: str, rows: int) -> list[Path]:
     return maps
 
 
+@pytest.mark.slow
 def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: Path) -> None:
     store = api.init_store(tmp_path / "st")
     maps = two_sources(tmp_path, "conc", 50)
@@ -262,6 +263,7 @@ api.ingest(sys.argv[1], None, sys.argv[2])
 """
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("when", ["before", "after"])
 def test_kill_9_around_commit_is_all_or_nothing(tmp_path: Path, when: str) -> None:
     m = write_source(tmp_path, [(f"a{i}", i, "1.0") for i in range(20)])
@@ -332,6 +334,7 @@ JUNK = st.one_of(
 )
 
 
+@pytest.mark.slow
 @settings(
     max_examples=25, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
 )
@@ -358,6 +361,7 @@ def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(
         assert r.report.rows_read == r.committed + r.quarantined + r.report.rows_blank
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("when,said", [("before", "did not land"), ("after", "landed")])
 def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(
     tmp_path: Path, when: str, said: str
@@ -397,6 +401,7 @@ def test_a_source_is_never_replaced_by_an_empty_one(tmp_path: Path) -> None:
     assert tree_bytes(store.path) == before
 
 
+@pytest.mark.slow
 def test_two_first_ingests_into_a_new_folder_both_land(tmp_path: Path) -> None:
     maps = two_sources(tmp_path, "first", 30)
     target = tmp_path / "fresh"
