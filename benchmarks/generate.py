@@ -32,7 +32,7 @@ if TYPE_CHECKING:
     import numpy as np
     import pyarrow as pa
 
-GENERATOR_VERSION = "2"
+GENERATOR_VERSION = "3"
 HERE = Path(__file__).resolve().parent
 DATA = HERE / "_data"
 SEED = 13
@@ -129,6 +129,17 @@ def _num_text(values: np.ndarray, decimals: int) -> pa.Array:
     else:
         arr = pa.array(v, from_pandas=True)
     return arr.cast(pa.string())
+
+
+def _int_ids(index: np.ndarray, salt: int) -> pa.Array:
+    """Distinct int64 values from distinct integers (a content-hash stand-in, like the
+    record's row_hash): an odd multiplier modulo 2**64 is a bijection."""
+    import numpy as np
+    import pyarrow as pa
+
+    with np.errstate(over="ignore"):
+        x = (index.astype(np.uint64) + np.uint64(salt)) * np.uint64(0x9E3779B97F4A7C15)
+    return pa.array(x.view(np.int64), type=pa.int64())
 
 
 def _hex_ids(index: np.ndarray, width: int, salt: int) -> pa.Array:
@@ -468,7 +479,7 @@ def _store_chunk(
         "screen": const("untested"),
         "sheet": const("synthetic.csv"),
         "sheet_row": pa.array(within + 2),
-        "row_hash": _hex_ids(r, 16, 0x77),
+        "row_hash": _int_ids(r, 0x77),
     }
     arrays = [cols[f.name].cast(f.type) if f.name in cols else pa.nulls(n, f.type) for f in schema]
     return pa.Table.from_arrays(arrays, schema=schema)

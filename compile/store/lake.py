@@ -214,7 +214,6 @@ class Store:
             before: int | None = None
             try:
                 self.migrate(con)
-                bind_views(con, None)
                 yield tx
                 if tx.abandoned:
                     con.execute("ROLLBACK")

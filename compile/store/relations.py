@@ -1,8 +1,10 @@
 """One set of relation names for every reader and the writer.
 
 Modules outside the store read ``records``, ``sources``, ``age_ties`` … and never the
-catalog's own tables. A reader's views pin one snapshot; a writer's views show the open
-transaction, so code that reads before it writes needs no second spelling of its SQL.
+catalog's own tables. A reader gets temp views of these names pinned to one snapshot; a
+writer's queries name the same relations and see the open transaction (the transaction maps
+the names onto the catalog tables), so code that reads before it writes needs no second
+spelling of its SQL. The writer's ``records`` also has ``row_hash``.
 """
 
 from __future__ import annotations
@@ -43,12 +45,9 @@ def table_for(name: str) -> str:
     return TABLE_OF.get(name, name)
 
 
-def _columns(table: str, writer: bool) -> list[str]:
-    """A relation's columns; the writer's ``records`` also has the re-ingest diff's
-    ``row_hash``, which readers never see."""
-    if table != "analyses":
-        return [c for c, _ in TABLES[table]]
-    return [*RECORDS_COLUMNS, "row_hash"] if writer else RECORDS_COLUMNS
+def _columns(table: str) -> list[str]:
+    """A reader view's columns (``records`` leaves out the re-ingest diff's ``row_hash``)."""
+    return RECORDS_COLUMNS if table == "analyses" else [c for c, _ in TABLES[table]]
 
 
 def tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
@@ -86,24 +85,21 @@ def _columns_at(con: duckdb.DuckDBPyConnection, version: int) -> dict[str, set[s
     }
 
 
-def bind_views(con: duckdb.DuckDBPyConnection, version: int | None, latest: bool = False) -> None:
-    """Create the temp views over ``lake`` at ``version`` (None: the live, writable state).
+def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = False) -> None:
+    """Create a reader's temp views over ``lake``, all pinned to ``version``.
 
     A version written before a column existed shows it as NULL: the views always have
-    today's columns, so old versions stay readable. A writer calls this after migrating,
-    when every table and column exists. For the ``latest`` version the catalog's own column
-    list is read in one query; an older version is probed table by table.
+    today's columns, so old versions stay readable. For the ``latest`` version the
+    catalog's own column list is read in one query; an older version is probed table by
+    table. (A writer reads the same names without views: ``transaction``.)
     """
     import duckdb
 
-    at = "" if version is None else f" AT (VERSION => {int(version)})"
-    if version is not None and not latest:
-        present = _columns_at(con, version)
-    else:
-        present = _columns_now(con)
+    at = f" AT (VERSION => {int(version)})"
+    present = _columns_now(con) if latest else _columns_at(con, version)
     statements = []
     for table, view in VIEW_NAMES.items():
-        wanted = _columns(table, writer=version is None)
+        wanted = _columns(table)
         types = dict(TABLES[table])
         have = present.get(table)
         if have is None:  # a table added after this version: empty, typed
@@ -116,10 +112,6 @@ def bind_views(con: duckdb.DuckDBPyConnection, version: int | None, latest: bool
         statements.append(
             f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}"
         )
-    if version is None:  # inside the writer's open transaction
-        for sql in statements:
-            con.execute(sql)
-        return
     try:
         con.execute("BEGIN")  # one read transaction: one catalog load for all the views
         for sql in statements:

@@ -1,8 +1,9 @@
 """The store's unit of work: every write to a store is one ``Transaction``.
 
-``with store.transaction("ingest", source_id) as tx:`` takes the writer lock, begins,
-migrates the schema, and binds the same relation names readers use (``records``,
-``sources`` …) over the live state. The body reads with :meth:`Transaction.fetch` and
+``with store.transaction("ingest", source_id) as tx:`` takes the writer lock, begins and
+migrates the schema. The body reads the live state with :meth:`Transaction.fetch` under the
+relation names readers use (``records``, ``sources`` …; the parsed query's table names are
+mapped onto the catalog's tables, which DuckLake binds far faster than views) and
 writes with :meth:`insert`, :meth:`add_parquet`, :meth:`delete`, :meth:`replace_source`
 and :meth:`rederive`; it ends with :meth:`record` (what the commit did) or
 :meth:`abandon` (nothing changed: no new version). Leaving the block commits, writes the
@@ -21,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 
 from strata13.compile.store.catalog import quote
 from strata13.compile.store.reader import Reader
-from strata13.compile.store.relations import table_for
+from strata13.compile.store.relations import TABLE_OF, table_for
 from strata13.schemas.fields import SCHEMA_VERSION
 
 from strata13.errors import StoreError
@@ -53,6 +54,14 @@ class Transaction(Reader):
         self._summary: dict[str, Any] | None = None
         self._settings_hash = ""
         self._files: list[Path] = []  # Parquet files added in this transaction
+
+    # ------------------------------------------------------------ reading
+    def _sql(self, sql: str) -> str:
+        """``sql`` with the readers' relation names mapped onto the catalog's tables."""
+        hit = _ON_CATALOG.get(sql)
+        if hit is None:
+            hit = _ON_CATALOG[sql] = _on_catalog(self.con, sql)
+        return hit
 
     def settings(self) -> dict[str, Any]:
         """The stored settings (one key each, values decoded from JSON)."""
@@ -104,10 +113,8 @@ class Transaction(Reader):
         """
         where, params = _where(equal)
         name = table_for(table)
-        n = int(self.value(f"SELECT count(*) FROM lake.{name}{where}", params) or 0)
-        if n:
-            self.con.execute(f"DELETE FROM lake.{name}{where}", params)
-        return n
+        row = self.con.execute(f"DELETE FROM lake.{name}{where}", params).fetchone()
+        return int(row[0]) if row else 0  # DuckDB answers a DELETE with its row count
 
     def replace_source(
         self, table: str, source_ids: Sequence[str] | None, data: pa.Table | None
@@ -232,6 +239,45 @@ class Transaction(Reader):
         if not self._landed():
             for p in self._files:
                 p.unlink(missing_ok=True)
+
+
+_ON_CATALOG: dict[str, str] = {}  # query text -> the same query on the catalog's tables
+
+
+def _on_catalog(con: duckdb.DuckDBPyConnection, sql: str) -> str:
+    """Rename the base tables a query reads from reader names to ``lake.<table>``.
+
+    The query is parsed by DuckDB (``json_serialize_sql``) and written back from the tree
+    (``json_deserialize_sql``), so only real table references change, never text inside
+    strings or column names. A query DuckDB cannot parse is returned as it is (running it
+    gives the user DuckDB's own error).
+    """
+    tree = json.loads(con.execute("SELECT json_serialize_sql(?)", [sql]).fetchone()[0])
+    if tree.get("error"):
+        return sql
+    changed = False
+
+    def walk(node: Any) -> None:
+        nonlocal changed
+        if isinstance(node, dict):
+            if (
+                node.get("type") == "BASE_TABLE"
+                and not node.get("catalog_name")
+                and not node.get("schema_name")
+                and node.get("table_name") in TABLE_OF
+            ):
+                node["catalog_name"], node["table_name"] = "lake", TABLE_OF[node["table_name"]]
+                changed = True
+            for value in node.values():
+                walk(value)
+        elif isinstance(node, list):
+            for value in node:
+                walk(value)
+
+    walk(tree)
+    if not changed:
+        return sql
+    return str(con.execute("SELECT json_deserialize_sql(?)", [json.dumps(tree)]).fetchone()[0])
 
 
 def _where(equal: dict[str, Any]) -> tuple[str, list[Any]]:
