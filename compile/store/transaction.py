@@ -252,7 +252,8 @@ def _on_catalog(con: duckdb.DuckDBPyConnection, sql: str) -> str:
     strings or column names. A query DuckDB cannot parse is returned as it is (running it
     gives the user DuckDB's own error).
     """
-    tree = json.loads(con.execute("SELECT json_serialize_sql(?)", [sql]).fetchone()[0])
+    parsed = con.execute("SELECT json_serialize_sql(?)", [sql]).fetchone()
+    tree = json.loads(parsed[0]) if parsed else {"error": True}
     if tree.get("error"):
         return sql
     changed = False
@@ -277,7 +278,8 @@ def _on_catalog(con: duckdb.DuckDBPyConnection, sql: str) -> str:
     walk(tree)
     if not changed:
         return sql
-    return str(con.execute("SELECT json_deserialize_sql(?)", [json.dumps(tree)]).fetchone()[0])
+    written = con.execute("SELECT json_deserialize_sql(?)", [json.dumps(tree)]).fetchone()
+    return str(written[0]) if written else sql
 
 
 def _where(equal: dict[str, Any]) -> tuple[str, list[Any]]:
