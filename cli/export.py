@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 from typing import Annotated
 
 import typer
 from strata13.cli import render
 from strata13.cli.common import StoreOpt, command_line
-from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
+from strata13.cli.filters import NO_FILTERS, SYNTHESIS_SCREENED, FilterArgs, filter_options
 from strata13.cli.synthesis import (
     BinOpt,
     BootsOpt,
@@ -40,6 +41,14 @@ def export(
             "OUT/curve with the curve options below; the manifest records them.",
         ),
     ] = False,
+    curve_screened: Annotated[
+        str,
+        typer.Option(
+            "--curve-screened",
+            help="Screen states the --with-curve curve keeps (like a curve's --screened; "
+            "the records exported follow --screened).",
+        ),
+    ] = SYNTHESIS_SCREENED,
     isotope: IsotopeOpt = "carb",
     by: ByOpt = None,
     bin_myr: BinOpt = None,
@@ -74,10 +83,15 @@ def export(
             allow_mixed,
             robustness,
         )
-        options |= {"with_curve": True, **given}
+        options |= {"with_curve": True, "curve_screened": curve_screened, **given}
     version = as_of if as_of is not None else s.latest_version()
     command = command_line("export", s.path, options, pinned=("--as-of", str(version)))
-    res = api.export(s, out, wanted, as_of, curve=request, command=command)
+    curve_filters = replace(wanted, screened=curve_screened) if with_curve else None
+    if curve_filters is not None:
+        api.screen_states(curve_screened)  # refuses an unknown state with a hint
+    res = api.export(
+        s, out, wanted, as_of, curve=request, command=command, curve_filters=curve_filters
+    )
     render.message(f"exported {res.records} records of version {res.version} to {res.out}")
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")

@@ -57,7 +57,13 @@ ComponentOpt = Annotated[
 SourceOpt = Annotated[
     list[str] | None, typer.Option("--source", help="Source id; repeatable.", show_default=False)
 ]
-ScreenedOpt = Annotated[str, typer.Option("--screened", help="pass | fail | untested | all.")]
+ScreenedOpt = Annotated[
+    str,
+    typer.Option(
+        "--screened",
+        help="Screen states to keep: pass, warn, fail, untested (comma list) or all.",
+    ),
+]
 PaleolatOpt = Annotated[
     str | None,
     typer.Option(
@@ -100,7 +106,7 @@ class FilterArgs:
             "lithology": list(self.lithology),
             "component": list(self.component),
             "source": list(self.source),
-            "screened": self.screened if self.screened != "all" else None,
+            "screened": self.screened,
             "keep_duplicates": self.keep_duplicates,
             "paleolat": self.paleolat,
         }
@@ -118,11 +124,7 @@ class FilterArgs:
                 f"--frame {self.frame!r} is not present or paleo.",
                 "Use --frame present (today's coordinates) or --frame paleo.",
             )
-        if self.screened not in api.SCREENED:
-            raise OptionError(
-                f"--screened {self.screened!r} is not one of {', '.join(api.SCREENED)}.",
-                "Example: --screened pass (see `strata13 screen --summary`).",
-            )
+        api.screen_states(self.screened)  # refuses an unknown state with a hint
         band = api.parse_paleolat(self.paleolat) if self.paleolat else None
         if band is not None or self.frame == "paleo":
             frame_kind = store.settings().get("rotation_frame")
@@ -156,6 +158,9 @@ class FilterArgs:
 
 
 NO_FILTERS = FilterArgs()
+# syntheses keep failed and untested records out unless asked (the library's own default,
+# repeated here as a literal so --help needs no import of the library)
+SYNTHESIS_SCREENED = "pass,warn"
 
 # the options in the order --help lists them, each with its declaration and default
 _OPTIONS: list[tuple[str, Any, Any]] = [
@@ -173,8 +178,15 @@ _OPTIONS: list[tuple[str, Any, Any]] = [
 assert [n for n, _, _ in _OPTIONS] == [f.name for f in fields(FilterArgs)]
 
 
-def filter_options(func: Callable[..., None]) -> Callable[..., None]:
-    """Give a command the FILTERS options in place of its ``filters`` parameter."""
+def filter_options(func: Callable[..., None] | None = None, *, screened: str = "all") -> Any:
+    """Give a command the FILTERS options in place of its ``filters`` parameter.
+
+    ``@filter_options`` keeps every record by default; a synthesis declares
+    ``@filter_options(screened=api.SYNTHESIS_SCREENED)`` so failed and untested records stay
+    out unless the user asks for them.
+    """
+    if func is None:
+        return functools.partial(filter_options, screened=screened)
     sig = inspect.signature(func)
     hints = typing.get_type_hints(func, include_extras=True)  # the Annotated declarations
     params = [
@@ -184,9 +196,10 @@ def filter_options(func: Callable[..., None]) -> Callable[..., None]:
     if "filters" not in names:
         raise TypeError(f"{func.__name__} has no 'filters' parameter for the FILTERS options")
     at = names.index("filters")
+    defaults = {n: d for n, _, d in _OPTIONS} | {"screened": screened}
     added = [
-        inspect.Parameter(n, inspect.Parameter.KEYWORD_ONLY, default=d, annotation=a)
-        for n, a, d in _OPTIONS
+        inspect.Parameter(n, inspect.Parameter.KEYWORD_ONLY, default=defaults[n], annotation=a)
+        for n, a, _ in _OPTIONS
     ]
     rest = [p.replace(kind=inspect.Parameter.KEYWORD_ONLY) for p in params[:at] + params[at + 1 :]]
     new_params = rest[:at] + added + rest[at:]

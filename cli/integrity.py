@@ -14,7 +14,13 @@ from strata13.cli.common import (
     check_format,
     command_line,
 )
-from strata13.cli.filters import NO_FILTERS, FilterArgs, SourceOpt, filter_options
+from strata13.cli.filters import (
+    NO_FILTERS,
+    SYNTHESIS_SCREENED,
+    FilterArgs,
+    SourceOpt,
+    filter_options,
+)
 
 PAIR_COLUMNS = [
     "record_a",
@@ -82,7 +88,7 @@ def overlaps(
         )
 
 
-@filter_options
+@filter_options(screened=SYNTHESIS_SCREENED)
 def coverage(
     filters: FilterArgs = NO_FILTERS,
     by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")] = "region",
@@ -117,7 +123,9 @@ def coverage(
     command = None
     if out is not None:
         command = command_line("coverage", s.path, filters.given() | {"by": by, "bin_myr": bin_myr})
-    table, files = api.coverage(s, filters.build(s), by, bin_myr, out, command=command)
+    table, files, notes = api.coverage(s, filters.build(s), by, bin_myr, out, command=command)
+    for note in notes:
+        render.note(note)
     render.table(list(table.columns), table.itertuples(index=False, name=None), fmt, None)
     empty = int((table["n_samples"] == 0).sum())
     render.note(f"{len(table)} cells, {empty} empty")

@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING, Annotated
 import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, StoreOpt, check_format, command_line
-from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
+from strata13.cli.filters import NO_FILTERS, SYNTHESIS_SCREENED, FilterArgs, filter_options
 
 if TYPE_CHECKING:
     from strata13.compile.api import CurveRequest
@@ -104,7 +104,7 @@ def curve_request(
     return req, given
 
 
-@filter_options
+@filter_options(screened=SYNTHESIS_SCREENED)
 def curve(
     out: Annotated[Path, typer.Option("--out", help="Folder for the CSVs, figure and manifest.")],
     filters: FilterArgs = NO_FILTERS,
@@ -164,7 +164,7 @@ def curve(
         render.note(f"  {name}  sha256 {sha[:16]}…")
 
 
-@filter_options
+@filter_options(screened=SYNTHESIS_SCREENED)
 def excursion(
     filters: FilterArgs = NO_FILTERS,
     by: ByOpt = None,
@@ -235,6 +235,8 @@ def excursion(
         out=out,
         command=command_line("excursion", s.path, options) if out is not None else None,
     )
+    for note in res.notes:
+        render.note(note)
     per = res.per_section
     render.table(
         list(per.columns),

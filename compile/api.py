@@ -26,10 +26,12 @@ from strata13.compile.integrity.corrections import Correction
 from strata13.compile.interrupts import pressed as _pressed
 from strata13.compile.query.filters import (
     SCREENED,
+    SYNTHESIS_SCREENED,
     Filters,
     check_vocab,
     parse_interval,
     parse_paleolat,
+    screen_states,
 )
 from strata13.compile.store.lake import Store, Version
 from strata13.compile.store.lake import is_store as _is_store
@@ -55,6 +57,7 @@ if TYPE_CHECKING:
 __all__ = [
     "DEFAULT_TIME_SCALE",
     "SCREENED",
+    "SYNTHESIS_SCREENED",
     "Correction",
     "CurveRequest",
     "CurveResult",
@@ -107,6 +110,7 @@ __all__ = [
     "screen",
     "screen_plots",
     "screen_report",
+    "screen_states",
     "sources",
     "sql",
     "stages",
@@ -388,10 +392,13 @@ def export(
     as_of: int | None = None,
     curve: CurveRequest | None = None,
     command: str | None = None,
+    curve_filters: Filters | None = None,
 ) -> ExportResult:
     """The filtered records of one version with bibliography and manifest; with ``curve``
     (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
     manifest records every curve parameter and file, so the same command reproduces them.
+    The curve reads ``curve_filters`` (default: ``filters`` with the synthesis screen
+    default, ``SYNTHESIS_SCREENED``: failed and untested records stay out of the curve).
     ``command`` (the command line as given, pinned to the version) goes into the manifest's
     ``reproduce``."""
     from strata13.compile.export.artifact import Artifact
@@ -403,9 +410,13 @@ def export(
         from strata13.compile.synthesis.run import make_curve
 
         version = as_of if as_of is not None else store.latest_version()
+        if curve_filters is None:
+            from dataclasses import replace
+
+            curve_filters = replace(filters or Filters(), screened=SYNTHESIS_SCREENED)
         cres = make_curve(
             store,
-            filters or Filters(),
+            curve_filters,
             curve,
             art.sub("curve", "curve_manifest.json"),
             as_of=version,
@@ -690,13 +701,13 @@ def coverage(
     bin_myr: float | None = None,
     out: str | Path | None = None,
     command: str | None = None,
-) -> tuple[pd.DataFrame, dict[str, str]]:
-    """Samples and sections per time bin × group × component (zeros kept), and the files
-    written (name -> sha256); with ``out`` a CSV, a heatmap and a manifest naming
-    ``command``."""
+) -> tuple[pd.DataFrame, dict[str, str], list[str]]:
+    """Samples and sections per time bin × group × component (zeros kept), the files
+    written (name -> sha256) and the notes (what the filters left out, with counts); with
+    ``out`` a CSV, a heatmap and a manifest naming ``command``."""
     from strata13.compile.integrity.coverage import coverage as _coverage
 
-    result: tuple[pd.DataFrame, dict[str, str]] = _coverage(
+    result: tuple[pd.DataFrame, dict[str, str], list[str]] = _coverage(
         store, filters, by, bin_myr, Path(out) if out is not None else None, command=command
     )
     return result

@@ -212,7 +212,11 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     )
     excursion = api.excursion(
         store,
-        Filters(interval=(iv.younger_ma, iv.older_ma), interval_info=iv.describe()),
+        Filters(
+            interval=(iv.younger_ma, iv.older_ma),
+            interval_info=iv.describe(),
+            screened=api.SYNTHESIS_SCREENED,
+        ),
         by="region",
         direction="negative",
         out=figures / "excursion",
@@ -325,7 +329,9 @@ def _integrity(store: Any, out: Path, figures: Path) -> Iterator[tuple[str, Any]
             f"{all_n} records stored, {once} counted (duplicates once; nothing deleted)"
         ),
     )
-    table, _files = api.coverage(store, Filters(), "region", 0.5, figures / "coverage")
+    table, _files, _notes = api.coverage(
+        store, Filters(screened=api.SYNTHESIS_SCREENED), "region", 0.5, figures / "coverage"
+    )
     empty = int((table["n_samples"] == 0).sum())
     yield (
         "say",

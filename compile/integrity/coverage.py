@@ -128,10 +128,11 @@ def coverage(
     bin_myr: float | None = None,
     out: Path | None = None,
     command: str | None = None,
-) -> tuple[pd.DataFrame, dict[str, str]]:
+) -> tuple[pd.DataFrame, dict[str, str], list[str]]:
     """The coverage table for the filtered records (and, with ``out``, CSV, heatmap and a
     manifest naming ``command``, the filters, the store version and the settings hash);
-    returns the table and the files written (name -> sha256)."""
+    returns the table, the files written (name -> sha256) and the notes (what the filters
+    left out, with counts)."""
     from strata13.compile.derive.settings import DEFAULT_TIME_SCALE, Settings
     from strata13.compile.export.artifact import Artifact
     from strata13.compile.synthesis.run import CurveRequest, bin_edges_for, samples_for
@@ -180,7 +181,9 @@ def coverage(
                 "parameters": {"by": by, "bin_myr": bin_myr},
                 "filters": filters.describe(),
                 "samples": int(len(df)),
+                "screen_left_out": s.screen_left_out,
+                "notes": list(s.notes),
             }
         )
         files = dict(art.files)
-    return table, files
+    return table, files, list(s.notes)

@@ -19,7 +19,11 @@ from strata13.errors import OptionError
 if TYPE_CHECKING:
     import pyarrow as pa
 
-SCREENED = ("pass", "fail", "untested", "all")
+SCREENED = ("pass", "warn", "fail", "untested", "all")  # "warn" is stored once screens grade it
+# what syntheses (curve, excursion, coverage) use unless told otherwise: records that
+# failed a screen or were never tested stay out of a synthesis by default (common practice
+# is to publish curves from screened data; the user's judgement decides, --screened all)
+SYNTHESIS_SCREENED = "pass,warn"
 _RANGE = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*-\s*(\d+(?:\.\d+)?)\s*$")
 
 
@@ -77,9 +81,10 @@ class Filters:
             if values:
                 parts.append(f"{column} IN ({', '.join('?' for _ in values)})")
                 params += list(values)
-        if self.screened != "all":
-            parts.append("screen = ?")
-            params.append(self.screened)
+        states = screen_states(self.screened)
+        if states is not None:
+            parts.append(f"screen IN ({', '.join('?' for _ in states)})")
+            params += list(states)
         if not self.keep_duplicates:  # counted once: the dropped side of confirmed pairs
             parts.append(
                 "record_id NOT IN (SELECT drop_record_id FROM duplicates WHERE "
@@ -101,6 +106,36 @@ class Filters:
             "keep_duplicates": self.keep_duplicates,
             "paleolat": list(self.paleolat) if self.paleolat else None,
         }
+
+
+def screen_states(text: str) -> tuple[str, ...] | None:
+    """The screen states a ``--screened`` value keeps ("pass,warn" -> ("pass", "warn"));
+    None for all. Refuses a state that is not one of SCREENED."""
+    states = tuple(dict.fromkeys(t.strip() for t in str(text).split(",") if t.strip()))
+    bad = [t for t in states if t not in SCREENED]
+    if bad or not states:
+        raise OptionError(
+            f"--screened {text!r} is not one of {', '.join(SCREENED)} (or a comma list).",
+            "Example: --screened pass,warn (see `strata13 screen --summary`).",
+        )
+    return None if "all" in states else states
+
+
+def screen_left_out(table: pa.Table, filters: Filters) -> tuple[pa.Table, dict[str, int]]:
+    """Records of ``table`` (matched with every filter but the screen) that the screen
+    filter keeps, and how many of each screen state it leaves out."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    states = screen_states(filters.screened)
+    if states is None or not table.num_rows:
+        return table, {}
+    screen = pc.fill_null(table.column("screen"), "untested")
+    keep = pc.is_in(screen, value_set=pa.array(states, pa.string()))
+    out: dict[str, int] = {}
+    for state in screen.filter(pc.invert(keep)).to_pylist():
+        out[state] = out.get(state, 0) + 1
+    return table.filter(keep), dict(sorted(out.items()))
 
 
 def parse_paleolat(text: str) -> tuple[float, float]:

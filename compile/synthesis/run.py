@@ -14,7 +14,7 @@ reproduces the same files.
 from __future__ import annotations
 
 import json
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -24,6 +24,7 @@ from strata13.errors import DomainError, OptionError
 
 if TYPE_CHECKING:
     import pandas as pd
+    import pyarrow as pa
     from strata13.compile.query.filters import Filters
     from strata13.compile.store.lake import Store
 
@@ -98,6 +99,7 @@ class Samples:
     value_label: str
     merged: bool
     notes: list[str]
+    screen_left_out: dict[str, int] = field(default_factory=dict)  # state -> records
 
 
 def _region_names(store: Store, lon: Any, lat: Any) -> Any:
@@ -130,23 +132,30 @@ def samples_for(
     """The filtered records, one value per sample, each with its group label."""
     import numpy as np
     import pandas as pd
-    from strata13.compile.query.filters import run
+    from strata13.compile.query.filters import run, screen_left_out
     from strata13.compile.synthesis.curve import average_replicates
     from strata13.compile.synthesis.figures import CARB_LABEL, ORG_LABEL
 
     con, version = store.reader(as_of)
     try:
         settings = store.read_settings(con, "settings")
-        table = run(con, filters)
+        matched = run(con, replace(filters, screened="all"))
     finally:
         con.close()
+    table, left = screen_left_out(matched, filters)
+    notes = [_screen_note(matched.num_rows, table.num_rows, left, filters.screened, matched)]
     df = table.to_pandas()
     if df.empty:
+        if left:
+            raise DomainError(
+                f"no record of the {matched.num_rows} matching ones passes --screened "
+                f"{filters.screened} ({_counts(left)} left out).",
+                "Add --screened all to include them, or see `strata13 screen --summary`.",
+            )
         raise DomainError(
             "no records match these filters; there is nothing to draw.",
             "Widen --interval or drop a filter; `strata13 query` shows what matches.",
         )
-    notes: list[str] = []
     frames = []
     kinds = ["carb", "org"] if req.allow_mixed else [req.isotope]
     for kind in kinds:
@@ -219,7 +228,33 @@ def samples_for(
         if merged
         else (CARB_LABEL if req.isotope == "carb" else ORG_LABEL)
     )
-    return Samples(samples, version, settings, value_label, merged, notes)
+    return Samples(samples, version, settings, value_label, merged, notes, left)
+
+
+def _counts(left: dict[str, int]) -> str:
+    return ", ".join(f"{n} {state}" for state, n in left.items())
+
+
+def _screen_note(
+    matched: int, used: int, left: dict[str, int], screened: str, table: pa.Table
+) -> str:
+    """What the screen filter did, with counts: a default that leaves data out says so."""
+    if left:
+        return (
+            f"{used} of {matched} records used; {_counts(left)} left out by --screened "
+            f"{screened}; --screened all to include"
+        )
+    if screened == "all" and matched:
+        import pyarrow.compute as pc
+
+        screen = pc.fill_null(table.column("screen"), "untested")
+        n = {s: int(pc.sum(pc.equal(screen, s)).as_py() or 0) for s in ("fail", "untested")}
+        if any(n.values()):
+            return (
+                f"--screened all: {n['fail']} fail and {n['untested']} untested records "
+                f"included among {matched}"
+            )
+    return f"{used} of {matched} records used (--screened {screened})"
 
 
 def bin_edges_for(
@@ -444,6 +479,7 @@ def make_curve(
             "untested_passes": s.settings.get("screen_untested_passes"),
         },
         "samples": int(len(df)),
+        "screen_left_out": s.screen_left_out,
         "groups": groups,
         "notes": notes,
     }
@@ -482,6 +518,7 @@ class ExcursionResult:
     summary: pd.DataFrame
     files: dict[str, str]
     version: int
+    notes: list[str] = field(default_factory=list)  # what the filters left out, with counts
 
 
 def make_excursion(
@@ -551,8 +588,9 @@ def make_excursion(
                 },
                 "filters": filters.describe(),
                 "samples": int(len(df)),
+                "screen_left_out": s.screen_left_out,
                 "notes": list(s.notes),
             }
         )
         files = dict(art.files)
-    return ExcursionResult(per, summ, files, s.version)
+    return ExcursionResult(per, summ, files, s.version, list(s.notes))
