@@ -243,14 +243,16 @@ def init_store(
     from strata13.compile.query.regions import load_regions_file
     from strata13.schemas.vocabularies import vocabulary
 
+    from strata13.schemas.timescales import suggest_chart, versions
+
     voc = vocabulary("time_scale")
     ts = voc.resolve(time_scale)
     if ts is None:
-        sug = voc.suggest(time_scale)
+        sug = suggest_chart(time_scale)
         raise OptionError(
             f"--time-scale {time_scale!r} is not a shipped time scale."
             + (f" Did you mean {sug!r}?" if sug else ""),
-            f"Time scales: {', '.join(voc.terms)}.",
+            f"Shipped chart tables: {', '.join(versions())}.",
         )
 
     named = load_regions_file(Path(regions)) if regions else []

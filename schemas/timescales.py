@@ -161,6 +161,23 @@ def versions() -> list[str]:
     return [t for t in vocabulary("time_scale").terms if _file_for(t).is_file()]
 
 
+def _family(text: str) -> str | None:
+    """A chart name's family ("ICS", "GTS" …) from its leading letters; None when it has
+    none ("2020", "v2020"), which any shipped chart may match."""
+    m = re.match(r"\s*([A-Za-z]+)", str(text))
+    letters = m.group(1).upper() if m else ""
+    return None if letters in ("", "V") else letters
+
+
+def suggest_chart(text: str) -> str | None:
+    """The shipped chart most like ``text``, never across families: a GTS book chart is not
+    an ICS chart (boundary ages differ between them), so a GTS name gets no ICS suggestion."""
+    family = _family(text)
+    shipped = [v for v in versions() if family is None or _family(v) == family]
+    hit = closest(str(text).strip().upper().replace(" ", ""), shipped, n=1, cutoff=0.6)
+    return hit[0] if hit else None
+
+
 def canonical_version(text: str) -> str:
     """The vocabulary's name for a version, from common spellings ("ics 2024-12", "v2020")."""
     voc = vocabulary("time_scale")
@@ -176,8 +193,7 @@ def canonical_version(text: str) -> str:
         if hit:
             return hit
     shipped = versions()
-    close = closest(raw.upper().replace(" ", ""), shipped, n=1, cutoff=0.6)
-    sug = close[0] if close else voc.suggest(raw)
+    sug = suggest_chart(raw)
     raise OptionError(
         f"Time scale {raw!r} is not one of the shipped chart versions.",
         (f"Did you mean {sug}? " if sug else "")

@@ -503,3 +503,27 @@ def test_the_default_time_scale_is_the_newest_shipped_chart() -> None:
     from strata13.schemas.timescales import versions
 
     assert DEFAULT_TIME_SCALE == versions()[0] == Settings().time_scale
+
+
+@pytest.mark.parametrize("name", ["GTS2020", "GTS2012", "gts 2016"])
+def test_a_gts_name_is_refused_with_the_shipped_tables_and_no_ics_guess(
+    tmp_path: Path, name: str
+) -> None:
+    from strata13.compile import api
+    from strata13.schemas.timescales import suggest_chart, versions
+
+    from strata13.errors import OptionError
+
+    assert suggest_chart(name) is None
+    with pytest.raises(OptionError) as err:
+        api.init_store(tmp_path / "st", time_scale=name)
+    assert "Did you mean" not in err.value.message
+    assert all(v in err.value.hint for v in versions())
+    assert not (tmp_path / "st").exists()
+
+
+def test_an_ics_typo_still_gets_an_ics_suggestion() -> None:
+    from strata13.schemas.timescales import suggest_chart
+
+    assert suggest_chart("ICS2021") in {"ICS2020", "ICS2023/09", "ICS2024/12"}
+    assert suggest_chart("ICS2024/13") == "ICS2024/12"

@@ -131,7 +131,9 @@ def parse_tie(
     chart_text = str(spec.get("chart") or default_chart or "").strip()
     chart = vocabulary("time_scale").resolve(chart_text) if chart_text else None
     if chart_text and chart is None:
-        sug = vocabulary("time_scale").suggest(chart_text)
+        from strata13.schemas.timescales import suggest_chart
+
+        sug = suggest_chart(chart_text)
         raise ConfigError(
             f"{path.name}: {where} chart = {chart_text!r} is not a known chart "
             "version." + (f" Did you mean {sug!r}?" if sug else ""),
