@@ -9,7 +9,19 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
 
-STAGE_HEADERS = ["name", "rank", "parent", "base_ma", "top_ma", "±", "level", "1σ", "~", "note"]
+STAGE_HEADERS = [
+    "name",
+    "rank",
+    "parent",
+    "base_ma",
+    "top_ma",
+    "±",
+    "level",
+    "1σ",
+    "1σ from",
+    "~",
+    "note",
+]
 TIE_COLUMNS = [
     "position_m",
     "basis",
@@ -88,12 +100,23 @@ def redate(
             "--draws", help="Store setting: age-model draws per section.", show_default=False
         ),
     ] = None,
+    blank_sigma: Annotated[
+        str | None,
+        typer.Option(
+            "--blank-boundary-sigma",
+            help="Store setting: 1σ of a chart boundary whose error the chart leaves blank: "
+            "borrow (from the nearest chart that states one; default), refuse, or a σ in Myr.",
+            show_default=False,
+        ),
+    ] = None,
     store: StoreOpt = None,
 ) -> None:
     """Put every age on another chart (or change the age-model settings) in one commit."""
     from strata13.compile import api
 
-    res = api.redate(api.open_store(api.store_path(store)), time_scale, extrapolation, draws)
+    res = api.redate(
+        api.open_store(api.store_path(store)), time_scale, extrapolation, draws, blank_sigma
+    )
     if res.version is None:
         render.message(
             f"0 changed: {res.records} records already match these settings; no new version."

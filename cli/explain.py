@@ -43,6 +43,15 @@ def explain(
         f"  age      {_num(r['age_ma'])} Ma ({r['age_status'] or '—'})",
         f"  paleo    {r['paleo_status'] or '—'};  screen {r['screen']}",
     ]
+    for k, step in enumerate(info["age_steps"], 1):
+        lines.append(f"     {k}. {step['step']}: {step['method']} (source: {step['source']})")
+        for tie in step.get("ties", []):
+            sigma = tie.get("sigma_ma")
+            lines.append(
+                f"        {tie['tie']}: {_num(tie.get('age_ma'))} Ma"
+                + (f" ± {_num(sigma)} (1σ)" if sigma is not None else "")
+                + (f"; {tie['sigma_from']}" if tie.get("sigma_from") else "")
+            )
     for name, iso in info["isotopes"].items():
         if iso["reported"] is None:
             continue

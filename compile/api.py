@@ -241,9 +241,8 @@ def init_store(
     """Create a store with its settings (time scale, screening rules, whether age models
     extrapolate beyond their ties) and optional named regions."""
     from strata13.compile.query.regions import load_regions_file
-    from strata13.schemas.vocabularies import vocabulary
-
     from strata13.schemas.timescales import suggest_chart, versions
+    from strata13.schemas.vocabularies import vocabulary
 
     voc = vocabulary("time_scale")
     ts = voc.resolve(time_scale)
@@ -541,9 +540,12 @@ def redate(
     time_scale: str | None = None,
     extrapolation: bool | None = None,
     draws: int | None = None,
+    blank_boundary_sigma: str | None = None,
 ) -> RecomputeResult:
     """Change the store's chart or age-model settings and re-derive every age (one commit,
-    or none when nothing changes); returns a RecomputeResult."""
+    or none when nothing changes); returns a RecomputeResult. ``blank_boundary_sigma``:
+    what a chart boundary with a blank error gets as 1σ ("borrow" from the nearest chart
+    that states one, "refuse", or a σ in Myr)."""
     from strata13.compile.derive.recompute import recompute
     from strata13.schemas import timescales
 
@@ -559,7 +561,26 @@ def redate(
                 "1000 draws give stable 95 % ranges (common practice).",
             )
         change["age_draws"] = int(draws)
+    if blank_boundary_sigma is not None:
+        change["blank_boundary_sigma"] = _blank_sigma_policy(blank_boundary_sigma)
     return recompute(store, change, "redate")
+
+
+def _blank_sigma_policy(text: str) -> str:
+    """Check a blank-boundary-σ policy: borrow, refuse, or a positive σ in Myr."""
+    value = str(text).strip().lower()
+    if value in ("borrow", "refuse"):
+        return value
+    try:
+        sigma = float(value)
+    except ValueError:
+        sigma = float("nan")
+    if not sigma > 0:
+        raise OptionError(
+            f"--blank-boundary-sigma {text!r} is not borrow, refuse or a σ above 0 Myr.",
+            "Example: --blank-boundary-sigma borrow (the nearest chart that states one).",
+        )
+    return f"{sigma:g}"
 
 
 def agemodel(store: Store, section: str) -> SectionModel:
@@ -803,6 +824,13 @@ def explain(store: Store, record: str) -> dict[str, Any]:
                 "chain_id": cid,
                 "steps": steps,
             }
+        age_text = (
+            con.execute(
+                "SELECT steps_json FROM chains WHERE chain_id = ?", [row["age_chain"]]
+            ).fetchone()
+            if row.get("age_chain")
+            else None
+        )
         source = con.execute(
             "SELECT citation, file_name FROM sources WHERE source_id = ?", [row["source_id"]]
         ).fetchone()
@@ -812,6 +840,7 @@ def explain(store: Store, record: str) -> dict[str, Any]:
         "version": version,
         "record": row,
         "isotopes": chains,
+        "age_steps": json.loads(age_text[0]) if age_text else [],
         "citation": source[0] if source else None,
         "file": source[1] if source else None,
     }

@@ -161,6 +161,36 @@ def versions() -> list[str]:
     return [t for t in vocabulary("time_scale").terms if _file_for(t).is_file()]
 
 
+@dataclass(frozen=True)
+class BoundarySigma:
+    """A boundary's 1σ on a chart, and where it comes from when the chart states none."""
+
+    sigma_ma: float | None  # None: no shipped chart states an error for this boundary
+    borrowed_from: str | None  # the chart whose stated error is used; None: the chart's own
+
+
+def boundary_sigma(version: str, key: str) -> BoundarySigma:
+    """The 1σ of boundary ``key`` on chart ``version``. A blank error on the chart is not
+    zero: it is taken from the nearest shipped chart (in the vocabulary's order, newest
+    first) that states one for the same boundary, and the result says which."""
+    scale = load(version)
+    own = scale.by_key(key)
+    if own.sigma_ma is not None:
+        return BoundarySigma(own.sigma_ma, None)
+    shipped = versions()
+    here = shipped.index(scale.version) if scale.version in shipped else 0
+    for other in sorted(shipped, key=lambda v: (abs(shipped.index(v) - here), shipped.index(v))):
+        if other == scale.version:
+            continue
+        try:
+            unit = load(other).by_key(own.boundary_key)
+        except OptionError:
+            continue
+        if unit.sigma_ma is not None:
+            return BoundarySigma(unit.sigma_ma, other)
+    return BoundarySigma(None, None)
+
+
 def _family(text: str) -> str | None:
     """A chart name's family ("ICS", "GTS" …) from its leading letters; None when it has
     none ("2020", "v2020"), which any shipped chart may match."""

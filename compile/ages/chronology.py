@@ -27,6 +27,7 @@ STAGE_COLUMNS = [
     "uncertainty_ma",
     "confidence",
     "sigma_ma",
+    "sigma_from",  # "stated", or the chart a blank error is borrowed from
     "approximate",
     "note",
 ]
@@ -56,7 +57,16 @@ def stages(scale: Any, interval: str | None = None) -> tuple[list[dict[str, Any]
         notes += list(iv.notes)
         units = [u for u in units if u.base_ma > iv.younger_ma and u.top_ma < iv.older_ma]
         notes.append(f"{iv.description}: {len(units)} units of {scale.version} overlap it")
-    rows = [{c: getattr(u, c) for c in STAGE_COLUMNS} for u in units]
+    rows = []
+    for u in units:
+        row = {c: getattr(u, c) for c in STAGE_COLUMNS if c != "sigma_from"}
+        row["sigma_from"] = "stated" if u.sigma_ma is not None else "not stated"
+        if u.sigma_ma is None and scale.version in timescales.versions():
+            got = timescales.boundary_sigma(scale.version, u.boundary_key)
+            if got.borrowed_from is not None:
+                row["sigma_ma"] = got.sigma_ma
+                row["sigma_from"] = f"borrowed from {got.borrowed_from}"
+        rows.append({c: row[c] for c in STAGE_COLUMNS})
     return rows, notes
 
 
@@ -190,7 +200,10 @@ def section_model(store: Store, name: str) -> SectionModel:
     finally:
         con.close()
     assert kind is not None  # an aggregate without GROUP BY returns one row
-    placed = ties_on_scale(ties, scale) if ties else []
+    from strata13.compile.derive.settings import Settings
+
+    policy = Settings.from_stored(store.settings()).blank_boundary_sigma
+    placed = ties_on_scale(ties, scale, policy) if ties else []
     positions: list[float] = []
     blocks = []
     for pos_json, n_draws, blob in chunks:

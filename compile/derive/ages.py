@@ -42,11 +42,15 @@ def _options(settings: Settings) -> tuple[bool, int, int]:
     return bool(settings.age_extrapolation), int(settings.age_draws), int(settings.age_seed)
 
 
-def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]]:
+def ties_on_scale(
+    ties: list[dict[str, Any]], scale: str, policy: str = "borrow"
+) -> list[dict[str, Any]]:
     """Each tie's age and 1σ on ``scale``, with the step that put it there.
 
     Adds ``age``, ``sigma``, ``shared_key`` and ``step`` to a copy of each tie. Raises
     DomainError for a tie that cannot be placed (a boundary the chart does not have).
+    ``policy`` says what a chart boundary whose error the chart leaves blank gets
+    (``Settings.blank_boundary_sigma``).
     """
     import numpy as np
     from strata13.schemas import timescales
@@ -69,7 +73,8 @@ def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]
                     f"{scale} ({getattr(exc, 'message', exc)}).",
                     "Name a stage, series or period of the tie's chart.",
                 ) from None
-            t["age"], t["sigma"] = target.base_ma, target.sigma_ma or 0.0
+            t["age"] = target.base_ma
+            t["sigma"], sigma_note = _boundary_sigma(scale, target, where, policy)
             t["shared_key"] = f"{scale}:{target.boundary_key}"
             t["step"] = {
                 "tie": where,
@@ -77,6 +82,7 @@ def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]
                 "from": chart,
                 "to": scale,
                 "age_ma": t["age"],
+                **({"sigma_from": sigma_note} if sigma_note else {}),
             }
         elif basis in ("biozone boundary", "correlation"):
             new, _ = timescales.convert(np.array([t["age_ma"]]), t["chart"], scale)
@@ -116,10 +122,36 @@ def ties_on_scale(ties: list[dict[str, Any]], scale: str) -> list[dict[str, Any]
         else:  # radiometric
             t["age"], t["sigma"], t["shared_key"] = t["age_ma"], t["age_sigma_ma"] or 0.0, None
             t["step"] = {"tie": where, "method": "radiometric: keeps its age", "age_ma": t["age"]}
+        t["step"]["sigma_ma"] = t["sigma"]  # every tie's 1σ on the store's chart, in its chain
         if t.get("tie_id"):
             placed[t["tie_id"]] = t["age"]
         out.append(t)
     return out
+
+
+def _boundary_sigma(scale: str, target: Any, where: str, policy: str) -> tuple[float, str]:
+    """A chart-boundary tie's 1σ and, when the chart leaves the error blank, where it came
+    from. A blank is never zero: by ``policy`` it is borrowed from the nearest chart that
+    states one ("borrow", the default), a stated σ in Myr (a number), or refused ("refuse")."""
+    from strata13.schemas import timescales
+
+    if target.sigma_ma is not None:
+        return float(target.sigma_ma), ""
+    blank = f"{scale} states no error for the base of {target.name}"
+    if policy == "refuse":
+        raise DomainError(
+            f"{where}: {blank}; the store refuses blank boundary errors.",
+            "Choose another policy: strata13 redate --blank-boundary-sigma borrow (or a σ in Myr).",
+        )
+    if policy != "borrow":
+        return float(policy), f"{blank}: the store's stated σ {float(policy):g} Myr"
+    got = timescales.boundary_sigma(scale, target.boundary_key)
+    if got.sigma_ma is None:
+        raise DomainError(
+            f"{where}: {blank}, and no shipped chart states one for that boundary.",
+            "Give the store a stated σ for blank boundary errors (a number in Myr).",
+        )
+    return float(got.sigma_ma), f"{blank}: borrowed from {got.borrowed_from}"
 
 
 def _tie_name(t: dict[str, Any]) -> str:
@@ -301,7 +333,10 @@ def _models(
     for t in ties.to_pylist():
         by_section.setdefault((t["source_id"], t["section_id"]), []).append(t)
     wanted = {(s, c) for s, c in zip(src, sec, strict=True)}
-    placed = {k: ties_on_scale(v, scale) for k, v in sorted(by_section.items()) if k in wanted}
+    policy = settings.blank_boundary_sigma
+    placed = {
+        k: ties_on_scale(v, scale, policy) for k, v in sorted(by_section.items()) if k in wanted
+    }
     keys = sorted({t["shared_key"] for v in placed.values() for t in v if t["shared_key"]})
     shared = agemodel.shared_offsets(keys, n_draws, seed)
     draws_rows: list[dict[str, Any]] = []

@@ -42,6 +42,9 @@ class Settings:
     age_extrapolation: bool = False  # age models extrapolate beyond their outermost ties
     age_draws: int = DEFAULT_AGE_DRAWS
     age_seed: int = DEFAULT_AGE_SEED
+    # what a chart boundary whose error the chart leaves blank gets as 1σ: "borrow" (from
+    # the nearest shipped chart that states one), "refuse", or a stated σ in Myr as text
+    blank_boundary_sigma: str = "borrow"
     screen_rules: str | None = None  # canonical text of the rule set (None: shipped default)
     screen_rules_name: str | None = None
     screen_untested_passes: bool = False  # whether a rule that could not run counts as passed
