@@ -162,7 +162,8 @@ def agemodel(
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
     if plot is not None:
         api.output_file(plot, option="--plot", stores=[path])
-    m = api.agemodel(api.open_store(path), section)
+    s = api.open_store(path)
+    m = api.agemodel(s, section)
     rows = [
         [
             t["position_m"],
@@ -195,7 +196,7 @@ def agemodel(
     else:
         render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
     if plot is not None:
-        render.message(f"wrote {api.plot_agemodel(m, plot)}")
+        render.message(f"wrote {api.plot_agemodel(m, plot, api.figure_note(s))}")
 
 
 def replace_rotations(

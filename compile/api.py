@@ -79,6 +79,7 @@ __all__ = [
     "excursion",
     "explain",
     "export",
+    "figure_note",
     "history",
     "ingest",
     "init_store",
@@ -632,7 +633,9 @@ def screen_plots(
     folder = Path(out)
     output_dir(folder, option="--plot", stores=[store.path])
     folder.mkdir(parents=True, exist_ok=True)
-    files: list[Path] = cross_plots(records, screening.results, screening.groups, folder)
+    files: list[Path] = cross_plots(
+        records, screening.results, screening.groups, folder, figure_note(store)
+    )
     return files
 
 
@@ -736,12 +739,20 @@ def coverage(
     return result
 
 
-def plot_agemodel(model: SectionModel, path: str | Path) -> Path:
-    """Write a section model's age–position figure (PNG)."""
+def plot_agemodel(model: SectionModel, path: str | Path, note: str | None = None) -> Path:
+    """Write a section model's age–position figure (PNG); ``note`` (see ``figure_note``)
+    goes in small type in its corner."""
     from strata13.compile.ages.chronology import plot_model
 
-    written: Path = plot_model(model, Path(path))
+    written: Path = plot_model(model, Path(path), note)
     return written
+
+
+def figure_note(store: Store) -> str | None:
+    """The note the store's figures carry: that the data are invented, for a demo store."""
+    from strata13.compile.synthesis.run import data_note
+
+    return data_note(store)
 
 
 def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:

@@ -166,7 +166,7 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     figures = out / "figures"
     figures.mkdir(exist_ok=True)
     model = api.agemodel(store, "quillar-ridge")
-    path = api.plot_agemodel(model, figures / "agemodel_quillar-ridge.png")
+    path = api.plot_agemodel(model, figures / "agemodel_quillar-ridge.png", api.figure_note(store))
     yield (
         "say",
         (

@@ -253,8 +253,9 @@ def _model_tie(t: dict[str, Any]) -> Any:
     )
 
 
-def plot_model(model: SectionModel, path: Path) -> Path:
-    """The section's age–position figure (ties, median, 95 % band) as PNG."""
+def plot_model(model: SectionModel, path: Path, note: str | None = None) -> Path:
+    """The section's age–position figure (ties, median, 95 % band) as PNG; ``note`` in
+    small type in its corner (that demo data are invented)."""
     import numpy as np
     from strata13.compile.ages import agemodel
     from strata13.compile.ages.plot import plot_section
@@ -270,4 +271,4 @@ def plot_model(model: SectionModel, path: Path) -> Path:
         f"{model.section_id} ({model.source_id})\nage model on {model.time_scale}, "
         f"{model.draws.shape[0]} draws"
     )
-    return plot_section(ties, model.positions, summary, model.position_kind, title, path)
+    return plot_section(ties, model.positions, summary, model.position_kind, title, path, note=note)

@@ -36,11 +36,16 @@ def plot_section(
     path: str | Path,
     size: tuple[float, float] = (6.0, 7.0),
     flags: np.ndarray | None = None,
+    note: str | None = None,
 ) -> Path:
     """Write the section's age-model figure as PNG to ``path`` (inches ``size``); return it.
 
-    ``flags`` (from ``draw_section``) draws extrapolated stretches of the median dotted."""
+    ``flags`` (from ``draw_section``) draws extrapolated stretches of the median dotted;
+    ``note`` goes in small type in the top right corner (that demo data are invented)."""
+    from strata13.compile.synthesis.figures import mark
+
     fig = figure(ties, positions, summary, position_kind, title, size, flags)
+    mark(fig, note, top=True)  # the legend sits below the axes
     out = Path(path)
     fig.savefig(out, format="png", dpi=DPI, metadata={"Software": None})
     return out

@@ -58,7 +58,9 @@ def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None) -
     return out[["age_old", "age_young", "group", "component", "n_samples", "n_sections"]]
 
 
-def heatmap(table: pd.DataFrame, path_png: Path, path_svg: Path, title: str) -> None:
+def heatmap(
+    table: pd.DataFrame, path_png: Path, path_svg: Path, title: str, note: str | None = None
+) -> None:
     """Sections per cell (rows: group · component; columns: bins, older to the left), the
     count written in every cell and empty cells hatched."""
     import numpy as np
@@ -110,7 +112,7 @@ def heatmap(table: pd.DataFrame, path_png: Path, path_svg: Path, title: str) -> 
     cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
     cb.set_label("sections (samples in brackets); hatched: no data", fontsize=8)
     fig.tight_layout()
-    save_figure(fig, path_png, path_svg)
+    save_figure(fig, path_png, path_svg, note)
 
 
 def _hatch(x: int, y: int) -> Any:
@@ -135,7 +137,12 @@ def coverage(
     left out, with counts)."""
     from strata13.compile.derive.settings import DEFAULT_TIME_SCALE, Settings
     from strata13.compile.export.artifact import Artifact
-    from strata13.compile.synthesis.run import CurveRequest, bin_edges_for, samples_for
+    from strata13.compile.synthesis.run import (
+        CurveRequest,
+        bin_edges_for,
+        data_note,
+        samples_for,
+    )
 
     req = CurveRequest(by=by, bin_myr=bin_myr)
     req.check()
@@ -167,6 +174,7 @@ def coverage(
             art.path("coverage.png"),
             art.path("coverage.svg"),
             f"Coverage by {by} and component — {len(df)} samples, store version {s.version}",
+            data_note(store),
         )
         art.add("coverage.png")
         art.add("coverage.svg")

@@ -58,12 +58,18 @@ def _marks(rid: pa.Array, results: pa.Table) -> np.ndarray:
 
 
 def cross_plots(
-    records: Any, results: pa.Table, group_stats: pa.Table, out_dir: str | Path
+    records: Any,
+    results: pa.Table,
+    group_stats: pa.Table,
+    out_dir: str | Path,
+    note: str | None = None,
 ) -> list[Path]:
-    """Write one cross-plot per (source, section) to ``out_dir``; returns the files."""
+    """Write one cross-plot per (source, section) to ``out_dir``; returns the files.
+    ``note`` goes in small type in each figure's corner (that demo data are invented)."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     from strata13.compile.screening.evaluate import _as_table, _Columns
+    from strata13.compile.synthesis.figures import mark as note_on
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -113,6 +119,7 @@ def cross_plots(
         ax.legend(loc="best", fontsize=8, framealpha=0.85)
         ax.grid(True, alpha=0.3)
         fig.tight_layout()
+        note_on(fig, note)
         path = out / safe_name(s, t)
         fig.savefig(path, format="png")
         written.append(path)

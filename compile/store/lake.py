@@ -164,6 +164,16 @@ class Store:
             raise
         return cls(path)
 
+    @property
+    def made_by(self) -> str | None:
+        """What created this store ("init", "ingest", "demo"), from its marker."""
+        try:
+            marker = json.loads((self.path / MARKER).read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            return None
+        made = marker.get("made_by") if isinstance(marker, dict) else None
+        return str(made) if made else None
+
     # ------------------------------------------------------------ connections
     @contextlib.contextmanager
     def writer(self) -> Iterator[duckdb.DuckDBPyConnection]:

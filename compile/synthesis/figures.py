@@ -391,13 +391,31 @@ def excursion_figure(
     return fig
 
 
+# printed on every figure drawn from a store the demo made
+INVENTED_NOTE = "Invented data (strata13 demo)"
+
+
+def mark(fig: Figure, note: str | None, top: bool = False) -> None:
+    """Write ``note`` in small type in the figure's bottom right corner (``top``: the top
+    right corner, for figures whose legend sits below the axes); nothing for None."""
+    if note:
+        y, va = (0.996, "top") if top else (0.004, "bottom")
+        fig.text(0.995, y, note, ha="right", va=va, fontsize="x-small", color="0.3")
+
+
 def save_figure(
-    fig: Figure, path_png: str | Path | None, path_svg: str | Path | None
+    fig: Figure,
+    path_png: str | Path | None,
+    path_svg: str | Path | None,
+    note: str | None = None,
 ) -> tuple[Path | None, Path | None]:
     """Write ``fig`` as PNG (``DPI``, no software tag: PNG from Agg carries no date) and as
     SVG (hash salt ``SVG_SALT``, creator ``SVG_CREATOR``, no date), either may be None.
+    ``note`` goes in small type in the bottom right corner (``INVENTED_NOTE`` for demo data).
     The same figure inputs give the same bytes. Returns the two paths."""
     import matplotlib
+
+    mark(fig, note)
 
     png = None if path_png is None else Path(path_png)
     svg = None if path_svg is None else Path(path_svg)

@@ -231,6 +231,14 @@ def samples_for(
     return Samples(samples, version, settings, value_label, merged, notes, left)
 
 
+def data_note(store: Store) -> str | None:
+    """The note every figure of this store carries: that the data are invented, for a store
+    the demo made; none otherwise."""
+    from strata13.compile.synthesis.figures import INVENTED_NOTE
+
+    return INVENTED_NOTE if store.made_by == "demo" else None
+
+
 def _counts(left: dict[str, int]) -> str:
     return ", ".join(f"{n} {state}" for state, n in left.items())
 
@@ -461,7 +469,7 @@ def make_curve(
         value_label=s.value_label,
         merged=s.merged,
     )
-    save_figure(fig, art.path("curve.png"), art.path("curve.svg"))
+    save_figure(fig, art.path("curve.png"), art.path("curve.svg"), data_note(store))
     art.add("curve.png")
     art.add("curve.svg")
     manifest: dict[str, Any] = {
@@ -567,7 +575,7 @@ def make_excursion(
                 value_label=s.value_label,
                 title="δ13C aligned on the excursion onset",
             )
-            save_figure(fig, art.path("excursion.png"), art.path("excursion.svg"))
+            save_figure(fig, art.path("excursion.png"), art.path("excursion.svg"), data_note(store))
             art.add("excursion.png")
             art.add("excursion.svg")
         except DomainError as exc:
