@@ -22,6 +22,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.derive.engine import Given, Recorded
 from strata13.compile.derive.settings import Settings
 from strata13.compile.derive.steps import Step
 
@@ -157,6 +158,14 @@ def _boundary_sigma(scale: str, target: Any, where: str, policy: str) -> tuple[f
 def _tie_name(t: dict[str, Any]) -> str:
     name = t.get("tie_id") or t.get("boundary") or t["basis"]
     return f"tie {name!r} of section {t['source_id']}/{t['section_id']} at {t['position_m']:g} m"
+
+
+def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, Recorded]:
+    """Ages for every record (age models, reported and stage-only ages) with their chains;
+    the age-model draws and the sections whose ties contradict go in the record."""
+    out = Recorded()
+    table, out.draws = assign(table, given.ties, settings, out.chains, given.strict, out.conflicts)
+    return table, out
 
 
 def assign(

@@ -11,6 +11,7 @@ available yet is *pending* (with the reason in its status column), never copied 
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -20,10 +21,52 @@ from strata13.schemas.records import DERIVED
 if TYPE_CHECKING:
     import pyarrow as pa
 
-__all__ = ["DEFAULT_TIME_SCALE", "DERIVED_COLUMNS", "Derived", "Settings", "derive"]
+__all__ = [
+    "DEFAULT_TIME_SCALE",
+    "DERIVED_COLUMNS",
+    "Derived",
+    "Given",
+    "Recorded",
+    "Settings",
+    "Stage",
+    "derive",
+]
 
 # the columns derive fills, declared with the record schema (the rest is as reported)
 DERIVED_COLUMNS = DERIVED
+
+
+@dataclass(frozen=True)
+class Given:
+    """What the stages read besides the records and the settings."""
+
+    ties: pa.Table | None = None  # age_ties rows (others than a section's are ignored)
+    runs: pa.Table | None = None  # reference-material measurements of in-house runs
+    corrections: pa.Table | None = None  # the store's corrections
+    strict: bool = True  # ingest: contradictory ties refuse; recompute: listed in conflicts
+
+
+@dataclass
+class Recorded:
+    """What a stage recorded besides its table: the chains of steps it wrote and the side
+    tables it made."""
+
+    chains: dict[str, str] = field(default_factory=dict)  # chain id -> steps JSON
+    run_qc: list[dict[str, Any]] = field(default_factory=list)
+    draws: pa.Table | None = None
+    screens: pa.Table | None = None
+    conflicts: list[str] = field(default_factory=list)
+
+    def add(self, other: Recorded) -> None:
+        """Take in a later stage's record."""
+        self.chains.update(other.chains)
+        self.run_qc += other.run_qc
+        self.conflicts += other.conflicts
+        self.draws = other.draws if other.draws is not None else self.draws
+        self.screens = other.screens if other.screens is not None else self.screens
+
+
+Stage = Callable[["pa.Table", Settings, Given], tuple["pa.Table", Recorded]]
 
 
 @dataclass
@@ -55,23 +98,26 @@ def derive(
     """
     import pyarrow as pa
     from strata13.compile.derive import ages, harmonise, paleo, screens
-    from strata13.compile.integrity.corrections import apply
+    from strata13.compile.derive import corrections as fixes
     from strata13.schemas.records import RUN_QC, arrow_schema
 
-    chains: dict[str, str] = {}
-    conflicts: list[str] = []
-    qc: list[dict[str, Any]] = []
-    records, fixes = apply(records, corrections)
-    table = harmonise.harmonise(records, chains, settings, strict, runs, qc, fixes)
-    table = harmonise.big_delta(table)
-    table, draws = ages.assign(table, ties, settings, chains, strict, conflicts)
-    table = paleo.place(table, settings)
-    table, results = screens.screen(table, settings)
+    given = Given(ties, runs, corrections, strict)
+    stages: tuple[Stage, ...] = (
+        fixes.stage,
+        harmonise.stage,
+        ages.stage,
+        paleo.stage,
+        screens.stage,
+    )
+    table, recorded = records, Recorded()
+    for stage in stages:  # the data's way: each stage reads the table the last one left
+        table, got = stage(table, settings, given)
+        recorded.add(got)
     return Derived(
         table,
-        chains,
-        draws,
-        results,
-        conflicts,
-        pa.Table.from_pylist(qc, schema=arrow_schema(RUN_QC)),
+        recorded.chains,
+        recorded.draws,
+        recorded.screens,
+        recorded.conflicts,
+        pa.Table.from_pylist(recorded.run_qc, schema=arrow_schema(RUN_QC)),
     )

@@ -11,6 +11,7 @@ import json
 from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.derive.engine import Given, Recorded
 from strata13.compile.derive.settings import Settings
 from strata13.compile.derive.steps import IDENTITY, Step, add_chain, chain_id, set_column
 from strata13.schemas.fields import DELTA_FIELDS
@@ -244,6 +245,16 @@ def _run_values(
             }
         )
     return out, qcs
+
+
+def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, Recorded]:
+    """Every δ onto ‰ VPDB with its chain (corrected δ values first), then Δ13C."""
+    from strata13.compile.integrity.corrections import delta_fixes
+
+    out = Recorded()
+    fixes = delta_fixes(table, given.corrections)
+    table = harmonise(table, out.chains, settings, given.strict, given.runs, out.run_qc, fixes)
+    return big_delta(table), out
 
 
 def harmonise(

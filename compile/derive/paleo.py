@@ -6,6 +6,7 @@ import functools
 import json
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.derive.engine import Given, Recorded
 from strata13.compile.derive.settings import Settings
 from strata13.compile.derive.steps import set_column
 
@@ -22,6 +23,11 @@ def _paleo_model(model_text: str, polygons_text: str) -> tuple[Any, Any]:
         rotations.parse_model(model_text, "the store's rotation model"),
         plates.parse_polygons(json.loads(polygons_text), "the store's plate polygons"),
     )
+
+
+def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, Recorded]:
+    """Paleo-positions of every dated record (this stage records no chains)."""
+    return place(table, settings), Recorded()
 
 
 def place(table: pa.Table, settings: Settings) -> pa.Table:

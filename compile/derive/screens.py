@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
+from strata13.compile.derive.engine import Given, Recorded
 from strata13.compile.derive.settings import Settings
 from strata13.compile.derive.steps import set_column
 
@@ -19,6 +20,12 @@ def rule_set(settings: Settings) -> Any:
 
     text = settings.screen_rules
     return parse_canonical(text) if text else load_rules(None)
+
+
+def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, Recorded]:
+    """The screen column and the long results of every rule (kept as ``screens``)."""
+    table, results = screen(table, settings)
+    return table, Recorded(screens=results)
 
 
 def screen(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:

@@ -160,34 +160,38 @@ def correction_id(record_id: str, field: str) -> str:
     return hashlib.sha256(f"{record_id}\x1f{field}".encode()).hexdigest()[:16]
 
 
-def apply(
-    table: pa.Table, corrections: pa.Table | None
-) -> tuple[pa.Table, dict[str, dict[str, tuple[float, str, float | None]]]]:
-    """Corrections of non-δ fields written into ``table``; δ corrections returned as
-    {δ field: {record_id: (value, why, reported)}} for the harmonisation step."""
-    import json
-
-    import pyarrow as pa
+def _hits(table: pa.Table, corrections: pa.Table | None) -> list[tuple[int, dict[str, Any]]]:
+    """(row index in ``table``, correction) for every correction of a record ``table`` has."""
     import pyarrow.compute as pc
-    from strata13.compile.derive.steps import set_column
 
-    delta: dict[str, dict[str, tuple[float, str, float | None]]] = {}
     if corrections is None or corrections.num_rows == 0 or table.num_rows == 0:
-        return table, delta
+        return []
     ids = table.column("record_id")
     hits = corrections.filter(pc.is_in(corrections.column("record_id"), value_set=ids))
     if hits.num_rows == 0:
-        return table, delta
+        return []
     index = {r: i for i, r in enumerate(ids.to_pylist())}
+    return [(index[c["record_id"]], c) for c in hits.to_pylist()]
+
+
+def apply(table: pa.Table, corrections: pa.Table | None) -> pa.Table:
+    """Corrections of non-δ fields written into ``table``, and ``corrected_fields`` set on
+    every corrected record (δ fields too: their values are corrected by harmonisation from
+    ``delta_fixes``, so ``*_reported`` keeps the published value)."""
+    import json
+
+    import pyarrow as pa
+    from strata13.compile.derive.steps import set_column
+
+    hits = _hits(table, corrections)
+    if not hits:
+        return table
     marks: dict[int, list[str]] = {}
-    for c in hits.to_pylist():
-        i = index[c["record_id"]]
+    for i, c in hits:
         f = c["field"]
         value = parse_value(f, c["value_text"], f"correction of {c['record_id']} {f}")
         marks.setdefault(i, []).append(f)
         if f in DELTA_FIELDS:
-            rep = table.column(f"{f}_reported")[i].as_py()
-            delta.setdefault(f, {})[c["record_id"]] = (float(value), c["why"], rep)
             continue
         col = stored_column(f)
         arr: list[Any] = table.column(col).to_pylist()
@@ -196,7 +200,22 @@ def apply(
     flags: list[str | None] = [None] * table.num_rows
     for i, fields in marks.items():
         flags[i] = json.dumps(sorted(fields))
-    return set_column(table, "corrected_fields", pa.array(flags, pa.string())), delta
+    return set_column(table, "corrected_fields", pa.array(flags, pa.string()))
+
+
+def delta_fixes(
+    table: pa.Table, corrections: pa.Table | None
+) -> dict[str, dict[str, tuple[float, str, float | None]]]:
+    """The δ corrections for harmonisation: {δ field: {record_id: (value, why, reported)}}."""
+    delta: dict[str, dict[str, tuple[float, str, float | None]]] = {}
+    for i, c in _hits(table, corrections):
+        f = c["field"]
+        if f not in DELTA_FIELDS:
+            continue
+        value = parse_value(f, c["value_text"], f"correction of {c['record_id']} {f}")
+        rep = table.column(f"{f}_reported")[i].as_py()
+        delta.setdefault(f, {})[c["record_id"]] = (float(value), c["why"], rep)
+    return delta
 
 
 @dataclass
