@@ -1,12 +1,13 @@
 """The one derive pipeline: reported records + store settings -> every derived column.
 
-The stages read as the data's way, one module each: corrections (the user's fixes on top
-of the published values, ``integrity.corrections.apply``) -> ``harmonise`` (δ onto VPDB)
--> ``ages`` (age models from ties, converted reported ages, stage-only ages) -> ``paleo``
-(rotation model) -> ``screens`` (rules of thumb). Ingest runs it and every recompute
-command re-runs it with new settings. Reported columns are never touched. Each step that
-changes a value is a ``steps.Step`` in the value's chain; a value whose step is not
-available yet is *pending* (with the reason in its status column), never copied across.
+The stages read as the data's way, one module each: ``corrections`` (the user's fixes on
+top of the published values) -> ``harmonise`` (δ onto VPDB) -> ``ages`` (age models from
+ties, converted reported ages, stage-only ages) -> ``paleo`` (rotation model) ->
+``screens`` (rules of thumb), each ``stage(table, settings, given) -> (table, Recorded)``.
+Ingest runs it and every recompute command re-runs it with new settings. Reported columns
+are never touched. Each step that changes a value is a ``steps.Step`` in the value's
+chain; a value whose step is not available yet is *pending* (with the reason in its status
+column), never copied across.
 """
 
 from __future__ import annotations
