@@ -239,6 +239,35 @@ def data_note(store: Store) -> str | None:
     return INVENTED_NOTE if store.made_by == "demo" else None
 
 
+# a local line through fewer samples than this follows single samples rather than the trend
+# (common practice for LOESS; a rule of thumb, not a published threshold)
+MIN_STABLE_WINDOW = 10
+
+
+def _fit_notes(group: str, n: int, req: CurveRequest, curve: pd.DataFrame) -> list[str]:
+    """Say when a group's LOESS window is too small for a stable line, and where and why its
+    band is hidden (both are silent in the figure otherwise)."""
+    import math
+
+    notes = []
+    k = int(math.floor(req.span * n + 1e-10))
+    if k < MIN_STABLE_WINDOW:
+        notes.append(
+            f"group {group!r}: span {req.span:g} covers {k} of {n} samples; a line through "
+            f"fewer than {MIN_STABLE_WINDOW} follows single samples (common practice), so "
+            "widen --span or add samples"
+        )
+    hidden = int((~curve["band_shown"].astype(bool)).sum())
+    if hidden and req.boots:
+        notes.append(
+            f"group {group!r}: band hidden at {hidden} of {len(curve)} grid ages, where "
+            f"fewer than --min-sections {req.min_sections} sections contribute"
+        )
+    elif req.boots == 0:
+        notes.append(f"group {group!r}: no band (--boots 0)")
+    return notes
+
+
 def _counts(left: dict[str, int]) -> str:
     return ", ".join(f"{n} {state}" for state, n in left.items())
 
@@ -420,6 +449,7 @@ def make_curve(
             continue
         c.insert(0, "group", g)
         curves.append(c)
+        notes += _fit_notes(g, len(part), req, c)
         if req.robustness:
             for leave in ("source", "section"):
                 if (
