@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-from dataclasses import replace
 from pathlib import Path
 from typing import Annotated
 
@@ -86,11 +85,8 @@ def export(
         options |= {"with_curve": True, "curve_screened": curve_screened, **given}
     version = as_of if as_of is not None else s.latest_version()
     command = command_line("export", s.path, options, pinned=("--as-of", str(version)))
-    curve_filters = replace(wanted, screened=curve_screened) if with_curve else None
-    if curve_filters is not None:
-        api.screen_states(curve_screened)  # refuses an unknown state with a hint
     res = api.export(
-        s, out, wanted, as_of, curve=request, command=command, curve_filters=curve_filters
+        s, out, wanted, as_of, curve=request, command=command, curve_screened=curve_screened
     )
     render.message(f"exported {res.records} records of version {res.version} to {res.out}")
     for name, sha in sorted(res.files.items()):

@@ -182,7 +182,7 @@ def filter_options(func: Callable[..., None] | None = None, *, screened: str = "
     """Give a command the FILTERS options in place of its ``filters`` parameter.
 
     ``@filter_options`` keeps every record by default; a synthesis declares
-    ``@filter_options(screened=api.SYNTHESIS_SCREENED)`` so failed and untested records stay
+    ``@filter_options(screened=SYNTHESIS_SCREENED)`` so failed and untested records stay
     out unless the user asks for them.
     """
     if func is None:

@@ -394,13 +394,13 @@ def export(
     as_of: int | None = None,
     curve: CurveRequest | None = None,
     command: str | None = None,
-    curve_filters: Filters | None = None,
+    curve_screened: str = SYNTHESIS_SCREENED,
 ) -> ExportResult:
     """The filtered records of one version with bibliography and manifest; with ``curve``
     (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
     manifest records every curve parameter and file, so the same command reproduces them.
-    The curve reads ``curve_filters`` (default: ``filters`` with the synthesis screen
-    default, ``SYNTHESIS_SCREENED``: failed and untested records stay out of the curve).
+    The curve reads ``filters`` with ``curve_screened`` for its screen states (default
+    ``SYNTHESIS_SCREENED``: failed and untested records stay out of the curve).
     ``command`` (the command line as given, pinned to the version) goes into the manifest's
     ``reproduce``."""
     from strata13.compile.export.artifact import Artifact
@@ -412,10 +412,10 @@ def export(
         from strata13.compile.synthesis.run import make_curve
 
         version = as_of if as_of is not None else store.latest_version()
-        if curve_filters is None:
-            from dataclasses import replace
+        from dataclasses import replace
 
-            curve_filters = replace(filters or Filters(), screened=SYNTHESIS_SCREENED)
+        screen_states(curve_screened, "--curve-screened")  # refuses an unknown state
+        curve_filters = replace(filters or Filters(), screened=curve_screened)
         cres = make_curve(
             store,
             curve_filters,
@@ -563,25 +563,10 @@ def redate(
             )
         change["age_draws"] = int(draws)
     if blank_boundary_sigma is not None:
-        change["blank_boundary_sigma"] = _blank_sigma_policy(blank_boundary_sigma)
+        from strata13.compile.derive.settings import blank_sigma_policy
+
+        change["blank_boundary_sigma"] = blank_sigma_policy(blank_boundary_sigma)
     return recompute(store, change, "redate")
-
-
-def _blank_sigma_policy(text: str) -> str:
-    """Check a blank-boundary-σ policy: borrow, refuse, or a positive σ in Myr."""
-    value = str(text).strip().lower()
-    if value in ("borrow", "refuse"):
-        return value
-    try:
-        sigma = float(value)
-    except ValueError:
-        sigma = float("nan")
-    if not sigma > 0:
-        raise OptionError(
-            f"--blank-boundary-sigma {text!r} is not borrow, refuse or a σ above 0 Myr.",
-            "Example: --blank-boundary-sigma borrow (the nearest chart that states one).",
-        )
-    return f"{sigma:g}"
 
 
 def agemodel(store: Store, section: str) -> SectionModel:

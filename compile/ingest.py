@@ -410,7 +410,7 @@ def _write(
     sid = m.source_id
     for table in PER_SOURCE:
         tx.delete(table, source_id=sid)
-    version = tx.latest_version() + 1
+    version = tx.next_version()
     src = m.source
     sources = pa.Table.from_pylist(
         [

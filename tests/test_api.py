@@ -83,10 +83,14 @@ def test_signatures_resolve() -> None:
         "Tolerances": Tolerances,
         "Unpack": Unpack,
     }
+    checked = []
     for name in api.__all__:
         value = getattr(api, name)
         if inspect.isfunction(value) and value.__module__ == api.__name__:
-            typing.get_type_hints(value, localns=local)
+            hints = typing.get_type_hints(value, localns=local)  # raises on an unknown name
+            assert "return" in hints, f"{name} has no return annotation"
+            checked.append(name)
+    assert len(checked) > 30  # the public functions were all looked at
 
 
 def test_the_cli_imports_only_the_api_of_the_library() -> None:

@@ -85,3 +85,14 @@ def test_screened_values_are_checked() -> None:
 
 def test_the_command_line_default_is_the_librarys() -> None:
     assert CLI_DEFAULT == api.SYNTHESIS_SCREENED
+
+
+def test_a_bad_curve_screen_state_is_refused_by_its_own_option_name(
+    demo_store: Path, tmp_path: Path
+) -> None:
+    r = run(
+        "export", "--out", tmp_path / "x", "--with-curve", "--curve-screened", "nope",
+        "--store", demo_store,
+    )  # fmt: skip
+    assert r.code == 2 and "--curve-screened 'nope' is not one of" in r.err
+    assert not (tmp_path / "x").exists()

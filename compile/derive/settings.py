@@ -15,12 +15,15 @@ from typing import Any
 
 from strata13.schemas.timescales import DEFAULT_VERSION as DEFAULT_TIME_SCALE
 
+from strata13.errors import OptionError
+
 __all__ = [
     "DEFAULT_AGE_DRAWS",
     "DEFAULT_AGE_SEED",
     "DEFAULT_TIME_SCALE",
     "DEFAULT_VSMOW_CONSTANTS",
     "Settings",
+    "blank_sigma_policy",
 ]
 
 DEFAULT_VSMOW_CONSTANTS = "IUPAC-2014"  # the VSMOW–VPDB relation (harmonise.oxygen)
@@ -84,3 +87,21 @@ class Settings:
     def but(self, **changes: Any) -> Settings:
         """These settings with some changed (unknown names go to ``extra``)."""
         return Settings.from_stored(self.stored() | changes)
+
+
+def blank_sigma_policy(text: str) -> str:
+    """The ``blank_boundary_sigma`` setting checked: borrow, refuse, or a σ above 0 Myr
+    (written as text, like the stored setting)."""
+    value = str(text).strip().lower()
+    if value in ("borrow", "refuse"):
+        return value
+    try:
+        sigma = float(value)
+    except ValueError:
+        sigma = float("nan")
+    if not sigma > 0:
+        raise OptionError(
+            f"--blank-boundary-sigma {text!r} is not borrow, refuse or a σ above 0 Myr.",
+            "Example: --blank-boundary-sigma borrow (the nearest chart that states one).",
+        )
+    return f"{sigma:g}"

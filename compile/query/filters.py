@@ -108,15 +108,15 @@ class Filters:
         }
 
 
-def screen_states(text: str) -> tuple[str, ...] | None:
+def screen_states(text: str, option: str = "--screened") -> tuple[str, ...] | None:
     """The screen states a ``--screened`` value keeps ("pass,warn" -> ("pass", "warn"));
     None for all. Refuses a state that is not one of SCREENED."""
     states = tuple(dict.fromkeys(t.strip() for t in str(text).split(",") if t.strip()))
     bad = [t for t in states if t not in SCREENED]
     if bad or not states:
         raise OptionError(
-            f"--screened {text!r} is not one of {', '.join(SCREENED)} (or a comma list).",
-            "Example: --screened pass,warn (see `strata13 screen --summary`).",
+            f"{option} {text!r} is not one of {', '.join(SCREENED)} (or a comma list).",
+            f"Example: {option} pass,warn (see `strata13 screen --summary`).",
         )
     return None if "all" in states else states
 

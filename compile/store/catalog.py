@@ -29,19 +29,15 @@ class Catalog(Protocol):
 
     def exists(self) -> bool:
         """Whether the catalog is there to be opened."""
-        ...
 
     def target(self) -> str:
         """The ``ducklake:…`` address DuckDB's ATTACH takes."""
-        ...
 
     def writer_options(self) -> list[str]:
         """ATTACH options a writer needs beyond the data path (journal, timeouts)."""
-        ...
 
     def describe(self) -> str:
         """The catalog for messages: a path or a server address without secrets."""
-        ...
 
 
 @dataclass(frozen=True)

@@ -28,7 +28,7 @@ from typing import TYPE_CHECKING, Any
 
 from strata13.compile.store.catalog import CATALOG_FILE, SqliteCatalog, attach
 from strata13.compile.store.extensions import connect
-from strata13.compile.store.relations import READ_VIEWS, bind_views
+from strata13.compile.store.relations import bind_views
 from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
 from strata13.schemas.records import TABLES
@@ -43,7 +43,7 @@ CATALOG = CATALOG_FILE
 DATA = "data"
 LOCK = "writer.lock"
 LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
-__all__ = ["READ_VIEWS", "Store", "Transaction", "Version", "connect", "is_store"]
+__all__ = ["Store", "Transaction", "Version", "connect", "is_store"]
 
 
 def is_store(path: Path) -> bool:

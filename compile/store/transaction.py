@@ -68,8 +68,12 @@ class Transaction(Reader):
         return {k: json.loads(v) for k, v in self.rows("SELECT key, value_json FROM settings")}
 
     def latest_version(self) -> int:
-        """The newest committed version (this transaction's own will be one more)."""
+        """The newest committed version."""
         return int(self.value("SELECT max(snapshot_id) FROM lake.snapshots()"))
+
+    def next_version(self) -> int:
+        """The version this transaction's commit gets (the writer lock makes it safe)."""
+        return self.latest_version() + 1
 
     # ------------------------------------------------------------ writing
     def insert(self, table: str, data: pa.Table) -> None:
@@ -191,7 +195,7 @@ class Transaction(Reader):
                 f"the {self.command} transaction ended without saying what it did.",
                 "This is a bug in strata13; the store is unchanged.",
             )
-        version = self.latest_version() + 1  # the writer lock makes this prediction safe
+        version = self.next_version()
         self.con.execute(
             "INSERT INTO lake.commits VALUES (?, ?, ?, ?, ?, ?, ?)",
             [

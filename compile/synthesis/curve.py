@@ -123,13 +123,13 @@ def _check_grid(grid: Any) -> np.ndarray:
     return g
 
 
-def _window_size(n: int, span: float) -> int:
+def window_size(n: int, span: float) -> int:
     """k = ⌊span·n⌋ (with a 1e-10 guard so that 0.3·10 is 3, not 2)."""
     return int(math.floor(span * n + 1e-10))
 
 
 def _need_window(n: int, span: float) -> int:
-    k = _window_size(n, span)
+    k = window_size(n, span)
     if k < MIN_WINDOW:
         raise DomainError(
             f"a span of {span:g} covers {k} of {n} samples, but a local line "
@@ -450,7 +450,7 @@ def _fit(
     if strict:
         k = _need_window(n, span)
     else:
-        k = _window_size(n, span)
+        k = window_size(n, span)
         if k < MIN_WINDOW:
             return np.full(grid.size, np.nan), (
                 np.zeros(grid.size, dtype=np.int64) if sec is not None else None

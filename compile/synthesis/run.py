@@ -247,10 +247,10 @@ MIN_STABLE_WINDOW = 10
 def _fit_notes(group: str, n: int, req: CurveRequest, curve: pd.DataFrame) -> list[str]:
     """Say when a group's LOESS window is too small for a stable line, and where and why its
     band is hidden (both are silent in the figure otherwise)."""
-    import math
+    from strata13.compile.synthesis.curve import window_size
 
     notes = []
-    k = int(math.floor(req.span * n + 1e-10))
+    k = window_size(n, req.span)
     if k < MIN_STABLE_WINDOW:
         notes.append(
             f"group {group!r}: span {req.span:g} covers {k} of {n} samples; a line through "
