@@ -110,6 +110,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("corrected_fields", TEXT),  # JSON list of the fields a stored correction changed
     ("plate_override", INT),  # the mapping's plate for the record's locality (displaced terranes)
     ("paleolat_sigma", REAL),  # 1σ of paleolatitude from the model's pole uncertainties
+    ("screen_reason", TEXT),  # why the record has its screen state (rules named)
 ]
 
 SOURCES = [
@@ -310,6 +311,7 @@ DERIVED: frozenset[str] = frozenset(
         "paleo_frame",
         "paleo_status",
         "screen",
+        "screen_reason",
         "row_hash",
     }
 )

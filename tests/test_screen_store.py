@@ -137,7 +137,7 @@ def test_demo_dolomitised_rows_fail_nd_rows_untested_covarying_core_warns(demo_s
         "d18o_carb, screen",
     ).set_index("record_id")
     out = outcome_table(demo_store).loc[rec.index]
-    assert set(rec["screen"]) == {"pass", "fail", "untested"}
+    assert set(rec["screen"]) == {"pass", "warn", "fail", "untested"}
 
     # The dolomitised interval: Mossaret Cut rows with Mn 2400–2850 ppm are exactly the fails.
     mos = rec[rec["section_id"] == "Mossaret Cut"]
@@ -184,12 +184,12 @@ def test_demo_dolomitised_rows_fail_nd_rows_untested_covarying_core_warns(demo_s
         r = pearsonr(g["d18o_carb"], g["d13c_carb"]).statistic
         assert (r >= 0.7) == (section == "YC-2"), (section, r)
 
-    # Warnings never fail a record: YC-2 (warn, nothing failing) passes, and so does every
-    # record whose worst outcome is a warning.
-    assert (rec.loc[yc2, "screen"] == "pass").all()
+    # Warnings never fail a record: YC-2 (warn, nothing failing) is stored as warn, and so
+    # is every record whose worst outcome is a warning (its evidence is tested).
+    assert (rec.loc[yc2, "screen"] == "warn").all()
     warned = out.index[(out == "warn").any(axis=1) & ~(out == "fail").any(axis=1)]
     assert len(warned) > 20
-    assert (rec.loc[warned, "screen"] == "pass").all()
+    assert (rec.loc[warned, "screen"] == "warn").all()
 
 
 # --- 2. the long results ---------------------------------------------------------------
@@ -205,18 +205,26 @@ def test_screen_results_one_row_per_record_and_rule_and_overall_follows(demo_sto
     assert set(res["rule"]) == {r.name for r in rules.rules}
     assert set(res["record_id"]) == set(rec.index)
     assert set(res["outcome"]) <= OUTCOMES
-    # The overall column re-derived from the long form: any fail -> fail; else any pass or
-    # warn -> pass; else untested (untested and not-applicable are never a pass).
-    g = res.groupby("record_id")["outcome"]
-    expected = pd.Series(
-        np.where(
-            g.apply(lambda o: (o == "fail").any()),
-            "fail",
-            np.where(g.apply(lambda o: o.isin(["pass", "warn"]).any()), "pass", "untested"),
-        ),
-        index=g.apply(len).index,
-    )
+    # The overall column re-derived from the long form and the rule set's [[evidence]]:
+    # any fail -> fail; else the evidence for the component not tested -> untested; else
+    # any warn -> warn; else pass (untested and not-applicable are never a pass).
+    comp = records(demo_store, "record_id, component").set_index("record_id")["component"]
+    wide = res.pivot(index="record_id", columns="rule", values="outcome")
+    decided = wide.isin(["pass", "warn", "fail"])
+
+    def expected_state(rid: str) -> str:
+        row, ok = wide.loc[rid], decided.loc[rid]
+        if (row == "fail").any():
+            return "fail"
+        entry = next((e for e in rules.evidence if comp[rid] in e.components), None)
+        met = all(ok[list(g)].any() for g in entry.requires) if entry else ok.any()
+        if not met:
+            return "untested"
+        return "warn" if (row == "warn").any() else "pass"
+
+    expected = pd.Series({rid: expected_state(rid) for rid in wide.index})
     assert (rec.sort_index() == expected.sort_index()).all()
+    assert set(expected) == {"pass", "warn", "fail", "untested"}
 
 
 # --- 3. re-screening through the recompute engine --------------------------------------

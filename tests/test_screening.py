@@ -315,9 +315,9 @@ def test_overall_policy() -> None:
         age_ma=[183.0, 183.0, 183.0, 183.0, 183.0],
     )
     _, overall, _ = evaluate(t, rs)
-    # passes both; fails a fail rule; breaks only a warn rule (kept, not failed);
+    # passes both; fails a fail rule; breaks only a warn rule (stored as warn, not pass);
     # one tested pass beside one untested; nothing tested
-    assert overall.column("screen").to_pylist() == ["pass", "fail", "pass", "pass", "untested"]
+    assert overall.column("screen").to_pylist() == ["pass", "fail", "warn", "pass", "untested"]
     assert overall.column("record_id").to_pylist() == t.column("record_id").to_pylist()
     res, _, _ = evaluate(t, rs)
     assert res.to_pylist()[7]["outcome"] == "warn"  # sr rule, record r2
@@ -455,8 +455,8 @@ def test_small_groups_are_untested_and_strong_covariance_warns() -> None:
     got = res.column("outcome").to_pylist()
     assert got[:12] == ["warn"] * 12 and got[12:] == ["untested"] * 5
     assert "fewer than min_n = 10" in res.column("detail").to_pylist()[12]
-    # a warning is kept in the results but does not fail the record
-    assert overall.column("screen").to_pylist()[:12] == ["pass"] * 12
+    # a warning is kept in the results and stored as warn, not fail
+    assert overall.column("screen").to_pylist()[:12] == ["warn"] * 12
 
 
 def test_groups_by_source_section_and_unit() -> None:

@@ -29,7 +29,8 @@ def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, 
 
 
 def screen(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
-    """The screen column (pass / fail / untested) and the long results of every rule.
+    """The screen and screen_reason columns (pass / warn / fail / untested, and why) and
+    the long results of every rule.
 
     Runs on harmonised δ values and ages, so it comes last; it reads, never changes, any
     other column. Whether an untested rule counts as passed is the store's setting.
@@ -43,9 +44,10 @@ def screen(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
     rules = rule_set(settings)
     untested_passes = bool(settings.screen_untested_passes)
     if table.num_rows == 0 or not rules.rules:
-        return set_column(
-            table, "screen", pa.array(["untested"] * table.num_rows, pa.string())
-        ), arrow_schema(SCREEN_RESULTS).empty_table()
+        why = "untested: the store has no screening rules" if not rules.rules else ""
+        table = set_column(table, "screen", pa.array(["untested"] * table.num_rows, pa.string()))
+        table = set_column(table, "screen_reason", pa.array([why] * table.num_rows, pa.string()))
+        return table, arrow_schema(SCREEN_RESULTS).empty_table()
     # whole sections per chunk (covariance rules look at a section at once), so a large
     # ingest or recompute screens a bounded slice of the records at a time
     key = pc.binary_join_element_wise(
@@ -60,13 +62,15 @@ def screen(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
             cuts.append(int(b))
     cuts.append(len(order))
     screen = np.empty(table.num_rows, dtype=object)
+    reason = np.empty(table.num_rows, dtype=object)
     parts = []
     for lo, hi in zip(cuts[:-1], cuts[1:], strict=True):
         rows = order[lo:hi] if len(cuts) > 2 else None
         chunk = table if rows is None else table.take(pa.array(rows))
         res = evaluate(chunk, rules, untested_passes, all_details=False)
-        overall = res.overall.column("screen").to_numpy(zero_copy_only=False)
-        screen[slice(None) if rows is None else rows] = overall
+        where = slice(None) if rows is None else rows
+        screen[where] = res.overall.column("screen").to_numpy(zero_copy_only=False)
+        reason[where] = res.overall.column("reason").to_numpy(zero_copy_only=False)
         k = res.results.num_rows // chunk.num_rows
         # the same source_id chunks once per rule: no copy (results are rule by rule)
         src = pa.chunked_array(
@@ -75,4 +79,5 @@ def screen(table: pa.Table, settings: Settings) -> tuple[pa.Table, pa.Table]:
         parts.append(res.results.append_column("source_id", src))
         del chunk, res
     out = set_column(table, "screen", pa.array(screen, pa.string()))
+    out = set_column(out, "screen_reason", pa.array(reason, pa.string()))
     return out, pa.concat_tables(parts, promote_options="permissive")

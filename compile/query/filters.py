@@ -19,7 +19,7 @@ from strata13.errors import OptionError
 if TYPE_CHECKING:
     import pyarrow as pa
 
-SCREENED = ("pass", "warn", "fail", "untested", "all")  # "warn" is stored once screens grade it
+SCREENED = ("pass", "warn", "fail", "untested", "all")  # the stored states, and all
 # what syntheses (curve, excursion, coverage) use unless told otherwise: records that
 # failed a screen or were never tested stay out of a synthesis by default (common practice
 # is to publish curves from screened data; the user's judgement decides, --screened all)

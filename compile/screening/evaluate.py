@@ -15,11 +15,12 @@ Censored values are bounds: ``<x`` means at most x, ``>x`` at least x, ``bdl`` a
 detection limit (and undecidable when none is recorded); a comparison the bound decides is
 decided, otherwise the outcome is untested.
 
-Overall status per record: ``fail`` if any rule of severity fail failed; else ``pass`` if at
-least one applicable rule was tested (warnings are kept in the results and do not fail);
-else ``untested``. With ``untested_passes=True`` an applicable but untested rule counts as
-passed (records with no applicable rule stay untested). These are rules of thumb: the
-user's judgement and their lab's practice decide what a flag means.
+Overall state per record (``screening/overall.py``): ``fail`` if any rule of severity fail
+failed; else ``untested`` unless the rule set's minimum evidence for the record's component
+was tested (without ``[[evidence]]``: one applicable rule); else ``warn`` if a warn rule was
+broken; else ``pass`` — with a reason naming the rules (or the missing ones). With
+``untested_passes=True`` an applicable but untested rule counts as a tested pass. These are
+rules of thumb: the user's judgement and their lab's practice decide what a flag means.
 
 Each rule is screened by its kind's evaluator (``screen_*`` here, bound in ``kinds.KINDS``),
 which gives an outcome code per record; scope then overrides it. Everything is vectorised
@@ -32,6 +33,8 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any, NamedTuple
 
 import numpy as np
+from strata13.compile.screening.overall import STATES
+from strata13.compile.screening.overall import overall as record_states
 from strata13.compile.screening.rules import (
     NUMERIC_FIELDS,
     AllowedValues,
@@ -49,7 +52,7 @@ if TYPE_CHECKING:
 
 OUTCOMES = ("pass", "fail", "warn", "untested", "not applicable")
 PASS, FAIL, WARN, UNTESTED, NA = range(5)
-OVERALL = ("pass", "fail", "untested")
+OVERALL = STATES  # pass, warn, fail, untested (screening/overall.py)
 PASS_WORDS = {"below": "below", "at_most": "at most", "above": "above", "at_least": "at least"}
 
 
@@ -57,7 +60,7 @@ class Screening(NamedTuple):
     """What ``evaluate`` returns (a tuple: ``results, overall, groups = evaluate(…)``)."""
 
     results: pa.Table  # record_id, rule, outcome, detail — one row per (rule, record)
-    overall: pa.Table  # record_id, screen — one row per record, in input order
+    overall: pa.Table  # record_id, screen, reason — one row per record, in input order
     groups: pa.Table  # covariance statistics, one row per group (or window)
 
 
@@ -788,17 +791,14 @@ def evaluate(
     results = pa.Table.from_batches(batches, schema)
 
     m = np.stack(codes) if k else np.empty((0, n), np.int8)
-    failed = (m == FAIL).any(axis=0)
-    tested = ((m == PASS) | (m == WARN)).any(axis=0)
-    if untested_passes:
-        tested |= (m == UNTESTED).any(axis=0)
-    status = np.where(failed, 1, np.where(tested, 0, 2)).astype(np.int8)
+    status, reason = record_states(m, rules, cols.text("component"), untested_passes)
     overall = pa.table(
         {
             "record_id": rid,
             "screen": pa.DictionaryArray.from_arrays(pa.array(status), pa.array(OVERALL)).cast(
                 pa.string()
             ),
+            "reason": reason.cast(pa.string()) if all_details else reason,
         }
     )
     groups = (

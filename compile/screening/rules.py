@@ -15,6 +15,12 @@ spec class below, its parser here and its evaluator in ``evaluate``):
   ``p < alpha``; groups under ``min_n`` records are untested;
 * ``allowed-values`` — a categorical column with ``allowed`` or ``excluded`` values.
 
+A rule set may declare its **minimum evidence** in ``[[evidence]]`` entries: for the
+components an entry names (one entry may name none: every other component), each item of
+``requires`` is a rule name or a list of rule names of which at least one must be tested
+(pass, warn or fail) before a record can pass or warn; otherwise it is untested with the
+missing rules named. Without an entry a record needs one applicable rule tested.
+
 ``pass_if`` names say what happens exactly at the limit: ``below`` (< passes, equal fails),
 ``at_most`` (≤ passes), ``above`` (> passes, equal fails), ``at_least`` (≥ passes).
 
@@ -55,7 +61,8 @@ GROUP_BY = ("section", "section-unit", "window")
 ATOMIC_MASS = {"Mn": 54.938, "Sr": 87.62, "Fe": 55.845, "Ca": 40.078, "Mg": 24.305}
 ATOMIC_MASS_SOURCE = "IUPAC standard atomic weights (abridged), from memory"
 
-TOP_KEYS = {"ruleset", "rule"}
+TOP_KEYS = {"ruleset", "rule", "evidence"}
+EVIDENCE_KEYS = {"component", "requires", "description", "citation"}
 HEADER_KEYS = {"name", "version", "description"}
 COMMON_KEYS = {"name", "kind", "description", "citation", "confidence", "severity", "scope"}
 SCOPE_KEYS = {"age_min_ma", "age_max_ma", "component", "mineralogy", "setting"}
@@ -265,6 +272,35 @@ class Rule:
 
 
 @dataclass(frozen=True)
+class Evidence:
+    """The minimum evidence for some components: every group needs one rule tested.
+
+    ``components`` empty means every component no other entry names (and records with no
+    component). ``requires`` holds groups of rule names; a group is met when at least one
+    of its rules was tested (pass, warn or fail) for the record.
+    """
+
+    components: tuple[str, ...]
+    requires: tuple[tuple[str, ...], ...]
+    description: str = ""
+    citation: str = ""
+
+    def canonical(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"requires": [list(g) for g in self.requires]}
+        if self.components:
+            out["component"] = list(self.components)
+        if self.description:
+            out["description"] = self.description
+        if self.citation:
+            out["citation"] = self.citation
+        return out
+
+    def label(self) -> str:
+        """What the entry asks, in words: "mn-sr-mass or d18o-floor, and d13c-d18o-covariance"."""
+        return ", and ".join(" or ".join(g) for g in self.requires)
+
+
+@dataclass(frozen=True)
 class RuleSet:
     """A checked rule file. ``sha256`` and ``canonical_text`` do not depend on comments,
     spacing or key order, so the store and the export manifest can key on them."""
@@ -274,9 +310,10 @@ class RuleSet:
     description: str
     rules: tuple[Rule, ...]
     origin: str = field(default="", compare=False)
+    evidence: tuple[Evidence, ...] = ()
 
     def canonical(self) -> dict[str, Any]:
-        return {
+        out: dict[str, Any] = {
             "ruleset": {
                 "name": self.name,
                 "version": self.version,
@@ -284,6 +321,21 @@ class RuleSet:
             },
             "rule": [r.canonical() for r in sorted(self.rules, key=lambda r: r.name)],
         }
+        if self.evidence:  # absent, not empty: a rule set without it keeps its hash
+            out["evidence"] = [
+                e.canonical() for e in sorted(self.evidence, key=lambda e: e.components)
+            ]
+        return out
+
+    def evidence_for(self, component: str | None) -> Evidence | None:
+        """The entry that covers ``component`` (named first, then the catch-all), or None."""
+        for e in self.evidence:
+            if component is not None and component in e.components:
+                return e
+        for e in self.evidence:
+            if not e.components:
+                return e
+        return None
 
     def canonical_text(self) -> str:
         """Canonical JSON: sorted keys, no spaces, UTF-8 text; ``parse_canonical`` reads it."""
@@ -386,11 +438,11 @@ def _rule_at_line(text: str, line: int) -> str | None:
 class _Ctx:
     """Who is speaking in a message: the file and the rule."""
 
-    def __init__(self, origin: str, rule: str) -> None:
-        self.origin, self.rule = origin, rule
+    def __init__(self, origin: str, rule: str, block: str = "rule") -> None:
+        self.origin, self.rule, self.block = origin, rule, block
 
     def fail(self, what: str, hint: str) -> ConfigError:
-        return ConfigError(f"{self.origin}: rule {self.rule}: {what}", hint)
+        return ConfigError(f"{self.origin}: {self.block} {self.rule}: {what}", hint)
 
     def text(self, block: dict[str, Any], key: str, required: bool = True) -> str:
         value = block.get(key)
@@ -482,9 +534,85 @@ def _build(doc: Any, origin: str) -> RuleSet:
             )
         seen.add(rule.name)
         rules.append(rule)
+    evidence = _evidence(doc.get("evidence", []), {r.name for r in rules}, origin)
     return RuleSet(
-        header["name"].strip(), header["version"].strip(), description.strip(), tuple(rules), origin
+        header["name"].strip(),
+        header["version"].strip(),
+        description.strip(),
+        tuple(rules),
+        origin,
+        evidence,
     )
+
+
+def _evidence(entries: Any, names: set[str], origin: str) -> tuple[Evidence, ...]:
+    """[[evidence]] entries, checked: known rules, each component in one entry at most."""
+    if not isinstance(entries, list):
+        raise ConfigError(
+            f"{origin}: evidence must be [[evidence]] entries.",
+            "Write each as [[evidence]] with component = [...] and requires = [...].",
+        )
+    out: list[Evidence] = []
+    claimed: dict[str, int] = {}
+    catch_all: int | None = None
+    for i, entry in enumerate(entries, start=1):
+        ctx = _Ctx(origin, f"#{i}", "[[evidence]]")
+        where = f"{origin}: [[evidence]] #{i}"
+        if not isinstance(entry, dict):
+            raise ConfigError(f"{where} is not a table.", "Write it as an [[evidence]] block.")
+        for key in entry:
+            if key not in EVIDENCE_KEYS:
+                raise ConfigError(
+                    f"{where}: unknown key {key!r}." + did_you_mean(key, EVIDENCE_KEYS),
+                    f"Keys of [[evidence]]: {', '.join(sorted(EVIDENCE_KEYS))}.",
+                )
+        components = _terms(entry.get("component"), "component", "component", ctx)
+        groups = _requires(entry.get("requires"), names, where)
+        for c in components:
+            if c in claimed:
+                raise ConfigError(
+                    f"{where}: component {c!r} is already in [[evidence]] #{claimed[c]}.",
+                    "Name each component in one [[evidence]] entry.",
+                )
+            claimed[c] = i
+        if not components:
+            if catch_all is not None:
+                raise ConfigError(
+                    f"{where}: [[evidence]] #{catch_all} already covers every other component.",
+                    "Give one of them a component list.",
+                )
+            catch_all = i
+        text = {k: entry.get(k, "") for k in ("description", "citation")}
+        for k, v in text.items():
+            if not isinstance(v, str):
+                raise ConfigError(f"{where}: {k} must be text.", f'Write {k} = "…".')
+        out.append(
+            Evidence(components, groups, text["description"].strip(), text["citation"].strip())
+        )
+    return tuple(out)
+
+
+def _requires(value: Any, names: set[str], where: str) -> tuple[tuple[str, ...], ...]:
+    """``requires``: rule names, or lists of rule names of which one is enough."""
+    hint = 'Example: requires = [["mn-sr-mass", "d18o-floor"], "d13c-d18o-covariance"]'
+    if not isinstance(value, list) or not value:
+        raise ConfigError(f"{where}: requires must be a non-empty list.", hint)
+    groups: list[tuple[str, ...]] = []
+    for item in value:
+        group = [item] if isinstance(item, str) else item
+        if not isinstance(group, list) or not group or not all(isinstance(g, str) for g in group):
+            raise ConfigError(
+                f"{where}: requires item {item!r} is not a rule name or a list of them.", hint
+            )
+        for g in group:
+            if g not in names:
+                raise ConfigError(
+                    f"{where}: requires names rule {g!r}, which the rule set does not have."
+                    + did_you_mean(g, names),
+                    f"Rules: {', '.join(sorted(names))}.",
+                )
+        groups.append(tuple(dict.fromkeys(group)))
+    return tuple(groups)
 
 
 def _rule(entry: Any, index: int, origin: str) -> Rule:
