@@ -84,7 +84,11 @@ def stages(
 def redate(
     time_scale: Annotated[
         str | None,
-        typer.Option("--time-scale", help="The store's new chart version.", show_default=False),
+        typer.Option(
+            "--time-scale",
+            help="The store's new chart: a shipped version, or a chart table of your own (CSV).",
+            show_default=False,
+        ),
     ] = None,
     extrapolation: Annotated[
         bool | None,

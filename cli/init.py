@@ -16,7 +16,8 @@ def init(
         str | None,
         typer.Option(
             "--time-scale",
-            help="Time scale of the store's ages (default: the newest shipped chart).",
+            help="Time scale of the store's ages: a shipped chart, or a chart table of your "
+            "own (CSV; default: the newest shipped chart).",
             show_default=False,
         ),
     ] = None,

@@ -229,6 +229,29 @@ def replace_rotations(store: Store, model: str | Path, polygons: str | Path) -> 
     return recompute(store, rotations_settings(model, polygons), "replace-rotations")
 
 
+def time_scale_settings(time_scale: str | Path) -> dict[str, Any]:
+    """The settings for a store's chart: a shipped chart by name, or a user's chart table
+    (a CSV file in the shipped format, kept whole in the settings and named by its hash)."""
+    from strata13.compile.read.inputs import read_text
+    from strata13.schemas.timescales import suggest_chart, use_table, versions
+    from strata13.schemas.vocabularies import vocabulary
+
+    text = str(time_scale)
+    if text.lower().endswith(".csv") or Path(text).is_file():
+        table = read_text(Path(text), "time-scale table", "Give a CSV in the shipped format.")
+        return {"time_scale": use_table(table, Path(text).name).version, "time_scale_table": table}
+    ts = vocabulary("time_scale").resolve(text)
+    if ts is None or ts not in versions():
+        sug = suggest_chart(text)
+        raise OptionError(
+            f"--time-scale {text!r} is not a shipped time scale."
+            + (f" Did you mean {sug!r}?" if sug else ""),
+            f"Shipped chart tables: {', '.join(versions())}; or give a chart table of your "
+            "own (a CSV in the shipped format, see README 'Time scales').",
+        )
+    return {"time_scale": ts, "time_scale_table": None}
+
+
 def init_store(
     path: str | Path,
     time_scale: str = DEFAULT_TIME_SCALE,
@@ -242,23 +265,11 @@ def init_store(
     """Create a store with its settings (time scale, screening rules, whether age models
     extrapolate beyond their ties) and optional named regions."""
     from strata13.compile.query.regions import load_regions_file
-    from strata13.schemas.timescales import suggest_chart, versions
-    from strata13.schemas.vocabularies import vocabulary
-
-    voc = vocabulary("time_scale")
-    ts = voc.resolve(time_scale)
-    if ts is None:
-        sug = suggest_chart(time_scale)
-        raise OptionError(
-            f"--time-scale {time_scale!r} is not a shipped time scale."
-            + (f" Did you mean {sug!r}?" if sug else ""),
-            f"Shipped chart tables: {', '.join(versions())}.",
-        )
 
     named = load_regions_file(Path(regions)) if regions else []
     settings = Settings.from_stored(
         {
-            "time_scale": ts,
+            **time_scale_settings(time_scale),
             "age_extrapolation": bool(age_extrapolation),
             **rules_settings(rules, untested_passes=False),
             **materials_settings(materials),
@@ -548,11 +559,10 @@ def redate(
     what a chart boundary with a blank error gets as 1σ ("borrow" from the nearest chart
     that states one, "refuse", or a σ in Myr)."""
     from strata13.compile.derive.recompute import recompute
-    from strata13.schemas import timescales
 
     change: dict[str, Any] = {}
     if time_scale is not None:
-        change["time_scale"] = timescales.load(time_scale).version
+        change.update(time_scale_settings(time_scale))
     if extrapolation is not None:
         change["age_extrapolation"] = bool(extrapolation)
     if draws is not None:

@@ -232,8 +232,52 @@ def canonical_version(text: str) -> str:
     )
 
 
+# A user's chart kept in a store: its name is "<the table's version>@<12 hex digits of the
+# SHA-256 of its text>", so two tables never share a name; registered when the store's
+# settings are read (use_table), then loaded by that name like a shipped chart.
+_USER_TABLES: dict[str, TimeScale] = {}
+USER_MARK = "@"
+
+
+def use_table(text: str, origin: str = "time-scale table") -> TimeScale:
+    """A user's chart table (CSV text in the shipped format), checked and made loadable by
+    its store name. A table naming itself after a shipped chart is refused: its ages would
+    be taken for that chart's."""
+    import hashlib
+
+    digest = hashlib.sha256(text.encode("utf-8")).hexdigest()[:12]
+    for name, scale in _USER_TABLES.items():
+        if name.endswith(USER_MARK + digest):
+            return scale
+    parsed = _parse(text.removeprefix("\ufeff"), Path(origin))
+    own = parsed.version.strip()
+    if vocabulary("time_scale").resolve(own):
+        raise ConfigError(
+            f"{Path(origin).name} names itself {own!r}, the name of a chart strata13 knows.",
+            "Use the shipped chart by its name, or give your table a name of its own in its "
+            "'# version:' line (e.g. '# version: basin-chart-2026').",
+        )
+    if USER_MARK in own:
+        raise ConfigError(
+            f"{Path(origin).name}: the version name {own!r} contains {USER_MARK!r}.",
+            f"Write the '# version:' line without {USER_MARK!r}.",
+        )
+    key = f"{own}{USER_MARK}{digest}"
+    scale = TimeScale(key, parsed.source, parsed.path, parsed.units, parsed.header)
+    _USER_TABLES[key] = scale
+    return scale
+
+
 def load(version: str = DEFAULT_VERSION) -> TimeScale:
-    """The shipped table of a chart version (any common spelling of its name)."""
+    """The shipped table of a chart version (any common spelling of its name), or a user's
+    table registered by ``use_table`` (by its store name)."""
+    if str(version) in _USER_TABLES:
+        return _USER_TABLES[str(version)]
+    if USER_MARK in str(version):
+        raise OptionError(
+            f"Time scale {version!r} is a user's chart table that is not loaded here.",
+            "Open the store that holds it (its settings carry the table), or pass the CSV.",
+        )
     canon = canonical_version(version)
     if not _file_for(canon).is_file():
         raise OptionError(
@@ -301,6 +345,10 @@ def _read(path: Path) -> TimeScale:
         raise InputFileError(
             f"Time-scale table {path} cannot be read ({exc}).", "Save it as UTF-8 CSV."
         ) from None
+    return _parse(text, path)
+
+
+def _parse(text: str, path: Path) -> TimeScale:
     meta: dict[str, str] = {}
     header: list[str] = []
     body: list[tuple[int, str]] = []

@@ -55,7 +55,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
     """Apply ``change`` to the store's settings and re-derive every record (one commit)."""
     with store.transaction(command) as tx:
         before = tx.settings()
-        after = before | change
+        after = {k: v for k, v in (before | change).items() if v is not None}  # None: unset
         settings = Settings.from_stored(after)
         table = tx.fetch("SELECT * FROM records ORDER BY record_id")
         ties = tx.fetch("SELECT * FROM age_ties")
@@ -98,7 +98,13 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             k: v
             for k, v in change.items()  # long texts: their names and hashes stand in
             if k
-            not in ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
+            not in (
+                "screen_rules",
+                "rotation_model_csv",
+                "plate_polygons_geojson",
+                "materials_csv",
+                "time_scale_table",
+            )
         }
         summary = {
             "records": table.num_rows,

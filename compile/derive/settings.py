@@ -41,6 +41,9 @@ class Settings:
     """The store's derive settings; each change is one new store version."""
 
     time_scale: str = DEFAULT_TIME_SCALE
+    # a user's chart table (CSV text in the shipped format); time_scale is then its store
+    # name "<version>@<12 hex of its SHA-256>" (schemas/timescales.py::use_table)
+    time_scale_table: str | None = None
     vsmow_constants: str = DEFAULT_VSMOW_CONSTANTS
     age_extrapolation: bool = False  # age models extrapolate beyond their outermost ties
     age_draws: int = DEFAULT_AGE_DRAWS
@@ -58,6 +61,12 @@ class Settings:
     rotation_model_name: str | None = None
     rotation_frame: str | None = None
     extra: dict[str, Any] = field(default_factory=dict)  # keys this version does not know
+
+    def __post_init__(self) -> None:
+        if self.time_scale_table:  # the store's own chart: loadable by its name from here on
+            from strata13.schemas.timescales import use_table
+
+            use_table(self.time_scale_table, "the store's chart table")
 
     def stored(self) -> dict[str, Any]:
         """The settings as the store's settings table keeps them (one key each; unset

@@ -328,7 +328,12 @@ class Store:
     ) -> dict[str, Any]:
         """The settings table as a dict (one key each, values decoded from JSON)."""
         rows = con.execute(f"SELECT key, value_json FROM {relation}").fetchall()
-        return {k: json.loads(v) for k, v in rows}
+        out = {k: json.loads(v) for k, v in rows}
+        if out.get("time_scale_table"):  # a user's chart: its name loads from here on
+            from strata13.schemas.timescales import use_table
+
+            use_table(out["time_scale_table"], "the store's chart table")
+        return out
 
     def settings(self, version: int | None = None) -> dict[str, Any]:
         con, _ = self.reader(version)
