@@ -633,8 +633,12 @@ def test_coverage_counts_equal_a_pandas_groupby(
         component=("component", "first"),
     )
     samp["group"] = region_of(samp)
-    edges = np.round(older - 0.5 * np.arange(int(round((older - younger) / 0.5)) + 1), 9)
-    assert edges[-1] == pytest.approx(younger)
+    # round bins: the interval's ends and every multiple of 0.5 Myr between them
+    inner = [k * 0.5 for k in range(int(younger / 0.5) - 1, int(older / 0.5) + 2)]
+    edges = np.array(
+        [older, *sorted((e for e in inner if younger < e < older), reverse=True), younger]
+    )
+    assert edges[1] == 184.0 and edges[-2] == 175.0
     samp["bin"] = bin_index(samp.age_ma.to_numpy(), edges)
     assert (samp.bin >= 0).all()
     samp["section"] = samp.source_id + "/" + samp.section_id
@@ -657,7 +661,8 @@ def test_coverage_counts_equal_a_pandas_groupby(
     assert len(got) == (len(edges) - 1) * len(regions) * len(comps)
     assert not got.duplicated(["age_old", "group", "component"]).any()
     assert sorted(set(got.age_old)) == pytest.approx(sorted(edges[:-1]))
-    assert (np.abs(got.age_old - got.age_young - 0.5) < 1e-6).all()
+    width = dict(zip(edges[:-1], edges[:-1] - edges[1:], strict=True))
+    assert np.allclose(got.age_old - got.age_young, got.age_old.map(width), atol=1e-6)
     got["bin"] = [int(np.argmin(np.abs(edges[:-1] - a))) for a in got.age_old]
     got = got.set_index(["bin", "group", "component"])
     full = want.reindex(got.index, fill_value=0)

@@ -149,10 +149,8 @@ def coverage(
     s = samples_for(store, filters, req)
     df = s.frame
     older, younger = float(df["age_ma"].max()), float(df["age_ma"].min())
-    if filters.interval is not None:
-        younger, older = filters.interval
     scale = s.settings.get("time_scale", DEFAULT_TIME_SCALE)
-    edges, _ = bin_edges_for(req, older, younger, scale)
+    edges, _ = bin_edges_for(req, older, younger, scale, filters.interval)
     groups = None
     if by == "region":
         con, _ = store.reader(s.version)

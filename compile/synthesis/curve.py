@@ -128,6 +128,24 @@ def window_size(n: int, span: float) -> int:
     return int(math.floor(span * n + 1e-10))
 
 
+def window_reach(ages: Any, grid: Any, span: float) -> np.ndarray:
+    """How far (Myr) each grid age's LOESS window reaches: the distance to the k-th nearest
+    sample age, k = ⌊span·n⌋ — the tricube bandwidth of that local fit (Cleveland 1979).
+    NaN where the window is empty. Chunked over the grid, so memory stays ~8 MB."""
+    a = np.asarray(ages, dtype=float)
+    a = a[np.isfinite(a)]
+    g = np.asarray(grid, dtype=float).ravel()
+    k = window_size(a.size, span)
+    out = np.full(g.size, np.nan)
+    if k < 1 or not a.size:
+        return out
+    step = max(1, 1_000_000 // a.size)
+    for lo in range(0, g.size, step):
+        d = np.abs(a[None, :] - g[lo : lo + step, None])
+        out[lo : lo + step] = np.partition(d, k - 1, axis=1)[:, k - 1]
+    return out
+
+
 def _need_window(n: int, span: float) -> int:
     k = window_size(n, span)
     if k < MIN_WINDOW:

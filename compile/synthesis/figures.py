@@ -270,7 +270,11 @@ def curve_figure(
     bottom.set_xlabel(AGE_LABEL)
     notes = ([MERGED_NOTE] if merged else []) + ([note] if note else [])
     if notes:
-        ax.set_title("\n".join(notes), fontsize="small", style="italic", loc="left")
+        import textwrap
+
+        width = max(40, int(11 * size[0]))  # characters that fit above the plot, about
+        lines = [w for n in notes for w in textwrap.wrap(n, width)]
+        ax.set_title("\n".join(lines), fontsize="small", style="italic", loc="left")
     if title:
         fig.suptitle(title)
     fig.legend(

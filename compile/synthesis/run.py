@@ -14,6 +14,7 @@ reproduces the same files.
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -244,28 +245,64 @@ def data_note(store: Store) -> str | None:
 MIN_STABLE_WINDOW = 10
 
 
-def _fit_notes(group: str, n: int, req: CurveRequest, curve: pd.DataFrame) -> list[str]:
-    """Say when a group's LOESS window is too small for a stable line, and where and why its
-    band is hidden (both are silent in the figure otherwise)."""
-    from strata13.compile.synthesis.curve import window_size
+def _fit_notes(group: str, ages: Any, req: CurveRequest, curve: pd.DataFrame) -> list[str]:
+    """State a group's LOESS span in samples and in Myr, say when its window is too small
+    for a stable line, and where and why its band is hidden."""
+    import numpy as np
+    from strata13.compile.synthesis.curve import window_reach, window_size
 
-    notes = []
+    ages = np.asarray(ages, dtype=float)
+    n = int(np.isfinite(ages).sum())
     k = window_size(n, req.span)
+    notes = []
+    if "age" in curve.columns and len(curve):
+        reach = window_reach(ages, curve["age"].to_numpy(float), req.span)
+        if np.isfinite(reach).any():
+            notes.append(
+                f"group {group!r}: span {req.span:g} = windows of {k} of {n} samples, reaching "
+                f"± {np.nanmedian(reach):.3g} Myr (median; {np.nanmin(reach):.3g}–"
+                f"{np.nanmax(reach):.3g} Myr along the curve)"
+            )
     if k < MIN_STABLE_WINDOW:
         notes.append(
             f"group {group!r}: span {req.span:g} covers {k} of {n} samples; a line through "
             f"fewer than {MIN_STABLE_WINDOW} follows single samples (common practice), so "
             "widen --span or add samples"
         )
-    hidden = int((~curve["band_shown"].astype(bool)).sum())
+    notes += _band_notes(group, req, curve)
+    return notes
+
+
+def _band_notes(group: str, req: CurveRequest, curve: pd.DataFrame) -> list[str]:
+    """Where and why a group's band is hidden."""
+    hidden = _hidden(curve)
     if hidden and req.boots:
-        notes.append(
+        return [
             f"group {group!r}: band hidden at {hidden} of {len(curve)} grid ages, where "
             f"fewer than --min-sections {req.min_sections} sections contribute"
-        )
-    elif req.boots == 0:
-        notes.append(f"group {group!r}: no band (--boots 0)")
-    return notes
+        ]
+    if req.boots == 0:
+        return [f"group {group!r}: no band (--boots 0)"]
+    return []
+
+
+def _hidden(curve: pd.DataFrame) -> int:
+    return int((~curve["band_shown"].astype(bool)).sum())
+
+
+def _figure_band_note(req: CurveRequest, curves: list[pd.DataFrame]) -> str:
+    """The figure's line on the band: where it is hidden and why, or that there is none."""
+    if req.boots == 0:
+        return "no bootstrap band (--boots 0)"
+    where = [
+        f"{c['group'].iloc[0]} "
+        + ("throughout" if _hidden(c) == len(c) else f"at {_hidden(c)} of {len(c)} ages")
+        for c in curves
+        if _hidden(c)
+    ]
+    if not where:
+        return ""
+    return f"Band hidden where < {req.min_sections} sections contribute: {'; '.join(where)}"
 
 
 def _counts(left: dict[str, int]) -> str:
@@ -295,26 +332,49 @@ def _screen_note(
 
 
 def bin_edges_for(
-    req: CurveRequest, older: float, younger: float, scale: str
+    req: CurveRequest,
+    older: float,
+    younger: float,
+    scale: str,
+    interval: tuple[float, float] | None = None,
 ) -> tuple[Any, list[tuple[str, float, float]]]:
-    """Bin edges (a width, or the stage boundaries) and the stages for the figure."""
+    """Bin edges (Ma, old → young) and the stages for the figure: the one rule that curve,
+    coverage and the export's curve share, so one request gives one set of bins.
+
+    Edges are round on the store's chart: multiples of ``--bin-myr`` (k × width, exactly),
+    or the chart's stage boundaries. With an ``interval`` (younger, older Ma) the bins run
+    between its ends (the first and last bin end there); without one they cover the data
+    (``older`` … ``younger``) from the enclosing multiple or stage boundary outward.
+    """
     import numpy as np
-    from strata13.compile.synthesis.curve import bin_edges
     from strata13.schemas import timescales
 
-    stages = [
-        (u.name, u.base_ma, u.top_ma)
-        for u in timescales.load(scale).units_of("stage")
-        if u.base_ma > younger and u.top_ma < older
-    ]
+    old, young = (interval[1], interval[0]) if interval is not None else (older, younger)
+    units = timescales.load(scale).units_of("stage")
     if req.bin_myr is not None:
-        return bin_edges(older, younger, req.bin_myr), stages
-    edges = sorted(
-        {older, younger}
-        | {b for _, b, t in stages if younger < b < older}
-        | {t for _, b, t in stages if younger < t < older},
-        reverse=True,
-    )
+        w = req.bin_myr
+        hi_k, lo_k = math.ceil(old / w - 1e-9), math.floor(young / w + 1e-9)
+        inner = [round(k * w, 9) for k in range(hi_k, lo_k - 1, -1)]
+        if interval is not None:
+            inner = [e for e in inner if young < e < old]
+            edges = [old, *inner, young]
+        else:
+            edges = inner
+    else:
+        bounds = sorted({u.base_ma for u in units} | {u.top_ma for u in units}, reverse=True)
+        if interval is not None:
+            edges = [old, *(b for b in bounds if young < b < old), young]
+        else:
+            above = [b for b in bounds if b >= old]
+            below = [b for b in bounds if b <= young]
+            edges = (
+                [above[-1] if above else old]
+                + [b for b in bounds if young < b < old]
+                + [below[0] if below else young]
+            )
+    edges = sorted(set(edges), reverse=True)
+    lo, hi = min(edges), max(edges)
+    stages = [(u.name, u.base_ma, u.top_ma) for u in units if u.base_ma > lo and u.top_ma < hi]
     return np.array(edges, dtype=float), stages
 
 
@@ -416,7 +476,7 @@ def make_curve(
             f"samples ({older:g}–{younger:g} Ma, {older - younger:.3g} Myr).",
             "Give a narrower bin; bins cover the samples' ages.",
         )
-    edges, stages = bin_edges_for(req, older, younger, scale)
+    edges, stages = bin_edges_for(req, older, younger, scale, filters.interval)
     full_grid = np.linspace(older, younger, GRID_POINTS)
     draws = None
     if req.age_draws:
@@ -449,7 +509,7 @@ def make_curve(
             continue
         c.insert(0, "group", g)
         curves.append(c)
-        notes += _fit_notes(g, len(part), req, c)
+        notes += _fit_notes(g, part["age_ma"], req, c)
         if req.robustness:
             for leave in ("source", "section"):
                 if (
@@ -498,6 +558,7 @@ def make_curve(
         size=req.size,
         value_label=s.value_label,
         merged=s.merged,
+        note=_figure_band_note(req, curves),  # a hidden band says why on the figure too
     )
     save_figure(fig, art.path("curve.png"), art.path("curve.svg"), data_note(store))
     art.add("curve.png")
