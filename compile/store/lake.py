@@ -159,9 +159,21 @@ class Store:
                     f"{path} was created by another process meanwhile.",
                     "Run the command again; it will use that store.",
                 ) from None
-        except BaseException:
+        except BaseException as exc:
+            from strata13.compile import interrupts
+
+            renamed = not tmp.exists() and is_store(path)  # the rename was ours and done
             shutil.rmtree(tmp, ignore_errors=True)
+            interrupts.forget(tmp.resolve())
+            if renamed:
+                interrupts.landed(path.resolve(), 1)
+            if interrupts.is_interrupt(exc):
+                raise Interrupted(interrupts.verdict(), renamed) from None
             raise
+        from strata13.compile import interrupts
+
+        interrupts.forget(tmp.resolve())
+        interrupts.landed(path.resolve(), 1)
         return cls(path)
 
     @property
@@ -221,7 +233,7 @@ class Store:
         with self.writer() as con:
             con.execute("BEGIN")
             tx = Transaction(con, self.path / DATA, command, detail)
-            before: int | None = None
+            started = tx.latest_version()  # under the lock: only this writer can move it
             try:
                 self.migrate(con)
                 yield tx
@@ -229,30 +241,32 @@ class Store:
                     con.execute("ROLLBACK")
                     return
                 interrupts.check()  # a Ctrl-C a library swallowed still stops the commit
-                before = tx.latest_version()
                 version = tx._write_commit_row()
                 con.execute("COMMIT")
+                interrupts.landed(self.path, version)
                 tx.version = version
-            except KeyboardInterrupt:
+            except BaseException as exc:
                 with contextlib.suppress(Exception):
                     con.execute("ROLLBACK")
-                landed = before is not None and self.latest_version() > before
-                if not landed:
+                if not interrupts.is_interrupt(exc):
                     tx._discard_files()
-                raise Interrupted(
-                    "interrupted: "
-                    + (
-                        "the commit landed"
-                        if landed
-                        else "the commit did not land; the store is unchanged"
-                    ),
-                    landed,
-                ) from None
-            except BaseException:
-                with contextlib.suppress(Exception):
-                    con.execute("ROLLBACK")
-                tx._discard_files()
-                raise
+                    raise
+                raise self._interrupted(tx, started) from None
+
+    def _interrupted(self, tx: Transaction, started: int) -> Interrupted:
+        """The truth after Ctrl-C in a transaction: compare the latest version (the lock is
+        still held) with the one the transaction started from."""
+        from strata13.compile import interrupts
+
+        try:
+            now = self.latest_version()
+        except BaseException:  # the catalog cannot be asked: say what the files say
+            now = started + (1 if tx._files and tx._landed() else 0)
+        if now > started:
+            interrupts.landed(self.path, now)
+            return Interrupted(f"interrupted: the commit landed as version {now}", True)
+        tx._discard_files()
+        return Interrupted("interrupted: nothing was written", False)
 
     def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
         """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
