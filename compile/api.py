@@ -887,8 +887,11 @@ def run_demo(out: str | Path) -> Iterator[tuple[str, Any]]:
 
 
 def interrupt() -> None:
-    """Mark that the user pressed Ctrl-C (long loops of the library stop at their next step)."""
-    _pressed.set()
+    """Mark that the user pressed Ctrl-C: long loops of the library stop at their next step
+    and running DuckDB statements are interrupted."""
+    from strata13.compile.interrupts import stop
+
+    stop()
 
 
 def interrupted() -> bool:

@@ -10,10 +10,14 @@ the last words say truthfully whether a version landed (:func:`verdict`).
 
 from __future__ import annotations
 
+import contextlib
 import threading
+import weakref
 from pathlib import Path
+from typing import Any
 
 pressed = threading.Event()
+_open: weakref.WeakSet[Any] = weakref.WeakSet()  # DuckDB connections a Ctrl-C should stop
 committed: dict[str, int] = {}  # store folder -> the newest version this process committed
 
 
@@ -21,6 +25,21 @@ def check() -> None:
     """Raise KeyboardInterrupt if Ctrl-C was pressed since the command started."""
     if pressed.is_set():
         raise KeyboardInterrupt
+
+
+def watch(con: Any) -> Any:
+    """Register a DuckDB connection so that :func:`stop` can interrupt what it runs."""
+    _open.add(con)
+    return con
+
+
+def stop() -> None:
+    """Ctrl-C: note it and interrupt every statement DuckDB is running for this process
+    (DuckDB does not always stop a statement on a signal by itself)."""
+    pressed.set()
+    for con in list(_open):
+        with contextlib.suppress(Exception):  # a closed connection has nothing to stop
+            con.interrupt()
 
 
 def is_interrupt(exc: BaseException) -> bool:
