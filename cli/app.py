@@ -9,6 +9,7 @@ from typing import Annotated, Any
 import typer
 from strata13.cli import (
     chrono,
+    compact,
     demo,
     explain,
     export,
@@ -74,6 +75,7 @@ app.command("correct", context_settings={"ignore_unknown_options": True})(integr
 app.command("corrections")(integrity.corrections)
 app.command("overlaps")(integrity.overlaps)
 app.command("coverage")(integrity.coverage)
+app.command("compact")(compact.compact)
 
 
 def main(argv: list[str] | None = None) -> None:

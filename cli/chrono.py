@@ -132,12 +132,15 @@ def redate(
         + (f" ({before} → {after})" if before != after else "")
         + "."
     )
+    from strata13.compile.derive.recompute import UNITS
+
     for col, n in sorted(res.changed.items()):
         if res.max_change[col] > 0:
+            unit = UNITS.get(col, "")
             render.message(
                 f"  {col}: {n} values changed; largest change "
-                f"{res.max_change[col]:.4g} Myr, median "
-                f"{res.median_change[col]:.4g} Myr"
+                f"{res.max_change[col]:.4g}{unit}, median "
+                f"{res.median_change[col]:.4g}{unit}"
             )
         else:
             render.message(f"  {col}: {n} values newly set or cleared (none moved)")

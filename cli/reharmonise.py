@@ -40,10 +40,13 @@ def reharmonise(
         )
         return
     render.message(f"reharmonised {res.records} records as version {res.version}.")
+    from strata13.compile.derive.recompute import UNITS
+
     for col, n in sorted(res.changed.items()):
+        unit = UNITS.get(col, "")
         render.message(
             f"  {col}: {n} values changed; largest change "
-            f"{res.max_change[col]:.4g} ‰, median {res.median_change[col]:.4g} ‰"
+            f"{res.max_change[col]:.4g}{unit}, median {res.median_change[col]:.4g}{unit}"
         )
     if not res.changed:
         render.message("  no value changed (settings and statuses were updated).")

@@ -52,6 +52,7 @@ if TYPE_CHECKING:
     from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.screening.evaluate import Screening
+    from strata13.compile.store.files import Orphans
     from strata13.schemas.timescales import TimeScale
 
 __all__ = [
@@ -71,6 +72,7 @@ __all__ = [
     "agemodel",
     "check_sources",
     "check_vocab",
+    "compact",
     "confirm_overlaps",
     "correct",
     "corrections",
@@ -504,6 +506,13 @@ def sql(
         con.close()
 
 
+def compact(store: Store, dry_run: bool = False) -> Orphans:
+    """Remove (or with ``dry_run`` only list) the data files no version of the store
+    references; every version stays readable and no version is made."""
+    found: Orphans = store.compact(dry_run)
+    return found
+
+
 def sources(store: Store) -> list[dict[str, Any]]:
     """The store's sources, one dict each (id, kind, year, records, quarantined rows,
     version ingested, file name, citation), ordered by id."""
@@ -678,9 +687,23 @@ def excursion(
     command: str | None = None,
 ) -> ExcursionResult:
     """Per-section excursion metrics in the filtered interval (tables, a figure and a
-    manifest naming ``command`` in ``out`` when given)."""
+    manifest naming ``command`` in ``out`` when given). A fraction outside (0, 1) or an
+    unknown direction is a wrong instruction (OptionError, exit 2)."""
+    import math
+
+    from strata13.compile.synthesis.excursion import DIRECTIONS
     from strata13.compile.synthesis.run import make_excursion
 
+    if direction not in DIRECTIONS:
+        raise OptionError(
+            f"--direction {direction!r} is not one of {', '.join(DIRECTIONS)}.",
+            "Use auto (the sign of the larger departure), negative or positive.",
+        )
+    if not (math.isfinite(fraction) and 0.0 < fraction < 1.0):
+        raise OptionError(
+            f"--fraction {fraction:g} is not between 0 and 1 (exclusive).",
+            "Give a fraction of the magnitude such as 0.1 (10 %).",
+        )
     return make_excursion(
         store,
         filters,

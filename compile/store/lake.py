@@ -28,6 +28,7 @@ from typing import TYPE_CHECKING, Any
 
 from strata13.compile.store.catalog import CATALOG_FILE, SqliteCatalog, attach
 from strata13.compile.store.extensions import connect
+from strata13.compile.store.files import Orphans
 from strata13.compile.store.relations import bind_views
 from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
@@ -268,6 +269,24 @@ class Store:
         tx._discard_files()
         return Interrupted("interrupted: nothing was written", False)
 
+    def compact(self, dry_run: bool = False) -> Orphans:
+        """Remove the Parquet files in the data folder that no version references (left by
+        writers killed between writing a file and committing). Every version stays
+        readable: only files the catalog never listed go. Runs under the writer lock, so
+        the files of a transaction still in flight are never among them; makes no version.
+        """
+        from strata13.compile.store.files import orphans
+
+        data = (self.path / DATA).resolve()
+        with self.writer() as con:
+            found = orphans(con)
+            mine = [p for p in found.files if p.resolve().is_relative_to(data)]
+            size = _size(mine)
+            if not dry_run:
+                for p in mine:
+                    p.unlink(missing_ok=True)
+        return Orphans(mine, size)
+
     def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
         """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
         import duckdb
@@ -373,6 +392,16 @@ class Store:
             Version(int(v), str(snaps.get(v, ""))[:19], c, d, json.loads(s or "{}"))
             for v, c, d, s in rows
         ]
+
+
+def _size(files: list[Path]) -> int:
+    total = 0
+    for p in files:
+        try:
+            total += p.stat().st_size
+        except OSError:
+            continue
+    return total
 
 
 def _row_table(table: str, row: dict[str, Any]) -> Any:
