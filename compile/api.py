@@ -252,6 +252,27 @@ def time_scale_settings(time_scale: str | Path) -> dict[str, Any]:
     return {"time_scale": ts, "time_scale_table": None}
 
 
+def propose_map(
+    sheet: str | Path, sheet_name: str | None = None, out: str | Path | None = None
+) -> Any:
+    """A drafted mapping for ``sheet`` (``read.propose.Proposal``: text, matches, what to
+    fill in); with ``out`` it is written there, never over an existing file or the sheet."""
+    from strata13.compile.read.propose import propose
+
+    proposal = propose(Path(sheet), sheet_name)
+    if out is not None:
+        target = Path(out)
+        if target.exists():
+            raise OptionError(
+                f"--out {target} exists; a drafted mapping never replaces a file.",
+                "Give a new file name, or delete the old one first.",
+            )
+        if target.suffix.lower() != ".toml":
+            raise OptionError(f"--out {target} is not a .toml file.", "Name it MAP.toml.")
+        target.write_text(proposal.text, encoding="utf-8")
+    return proposal
+
+
 def init_store(
     path: str | Path,
     time_scale: str = DEFAULT_TIME_SCALE,

@@ -31,6 +31,7 @@ from strata13.schemas.vocabularies import vocabulary
 from strata13.errors import ConfigError, InputFileError
 from strata13.suggest import did_you_mean
 
+PLACEHOLDER = "FILL IN"  # what `propose-map` writes where only the user knows the value
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {
     "source",
@@ -325,7 +326,33 @@ def _read_document(path: Path) -> _Loading:
             f"{path.name} is not valid TOML ({exc}).",
             "Check quotes and brackets on the line named.",
         ) from None
+    _refuse_placeholders(doc, path)
     return _Loading(path, raw, doc)
+
+
+def _refuse_placeholders(doc: dict[str, Any], path: Path) -> None:
+    """A drafted mapping (`propose-map`) marks what only the user knows "FILL IN: …";
+    every such value is named at once until it is replaced."""
+    found: list[str] = []
+
+    def walk(value: Any, where: str) -> None:
+        if isinstance(value, str) and value.strip().startswith(PLACEHOLDER):
+            found.append(f"{where} ({value.strip()[len(PLACEHOLDER) :].strip(' :')})")
+        elif isinstance(value, dict):
+            for k, v in value.items():
+                walk(v, f"{where} {k}" if where.startswith("[") else f"[{k}]")
+        elif isinstance(value, list):
+            for i, v in enumerate(value, 1):
+                walk(v, f"{where} #{i}" if isinstance(v, dict) else where)
+
+    walk(doc, "")
+    if found:
+        raise ConfigError(
+            f"{path.name} has {len(found)} value{'s' * (len(found) > 1)} to fill in: "
+            + "; ".join(found)
+            + ".",
+            f"Replace each {PLACEHOLDER!r} value with what the paper or the lab says.",
+        )
 
 
 def _check_blocks(st: _Loading) -> None:
