@@ -92,9 +92,14 @@ def ingest(
             f"changed{moved}."
         )
     if result.ties or result.redated:
+        would = " would be" if result.dry_run else ""
         render.message(
-            f"age ties: {result.ties} from this source"
-            + (f"; {result.redated} records of other sources re-dated" if result.redated else "")
+            f"age ties: {result.ties} {'found in' if result.dry_run else 'from'} this source"
+            + (
+                f"; {result.redated} records of other sources{would} re-dated"
+                if result.redated
+                else ""
+            )
         )
     if result.report.rows_read:
         render.message(api.reconcile(result))

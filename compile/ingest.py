@@ -172,7 +172,8 @@ def _land(
     mapping = prepared.mapping
     new_ties = ties_table(mapping.ties)
     if dry_run:
-        derived = _dry_run(store, prepared, new_ties)
+        derived, result.redated = _dry_run(store, prepared, new_ties)
+        result.ties = new_ties.num_rows
         result.standards = prepared.runs.num_rows if prepared.runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
         result.pending = _pending_counts(derived.table)
@@ -288,25 +289,35 @@ def _all_ties(reads: Transaction | Reader, source_id: str, new_ties: pa.Table) -
     return pa.concat_tables([others.select(new_ties.column_names).cast(new_ties.schema), new_ties])
 
 
-def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
-    """Derive as an ingest would, against the store's ties (if the store exists)."""
+def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> tuple[Any, int]:
+    """Derive as an ingest would, against the store's ties (if the store exists); also the
+    number of stored records of other sources whose ages the new ties would change."""
     from strata13.compile.store.lake import is_store
 
     settings = settings_from_store(store)
     if not is_store(store.path):
         _check_tie_targets(None, prepared, new_ties)
-        return derive(prepared.records, settings, new_ties, runs=prepared.runs)
+        return derive(prepared.records, settings, new_ties, runs=prepared.runs), 0
+    sid = prepared.mapping.source_id
     con, _ = store.reader()
     try:
         reads = Reader(con)
-        ties = _all_ties(reads, prepared.mapping.source_id, new_ties)
+        ties = _all_ties(reads, sid, new_ties)
         _check_tie_targets(reads, prepared, new_ties)
-        fixes = reads.fetch(
-            "SELECT * FROM corrections WHERE source_id = ?", [prepared.mapping.source_id]
-        )
+        fixes = reads.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
+        old_ties = reads.fetch("SELECT source_id FROM age_ties WHERE tie_source_id = ?", [sid])
+        targets = {
+            t
+            for t in old_ties.column("source_id").to_pylist()
+            + new_ties.column("source_id").to_pylist()
+            if t and t != sid
+        }
+        others = derive_stored(reads, sorted(targets), settings, ties)
+        redated = sum(_age_changes(r, d.table) for r, d in others.values())
     finally:
         con.close()
-    return derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
+    derived = derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
+    return derived, redated
 
 
 def _check_tie_targets(

@@ -804,7 +804,7 @@ def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any
         block = doc["ties_table"]
         if not isinstance(block, dict):
             raise ConfigError(f'{path.name}: [ties_table] must be a table with file = "…".', "")
-        _unknown_keys("[ties_table]", block, {"file"}, path)
+        _unknown_keys("[ties_table]", block, {"file", "columns"}, path)
         if "file" not in block:
             raise ConfigError(
                 f'{path.name}: [ties_table] needs file = "…".',
@@ -812,10 +812,12 @@ def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any
             )
         table_file = safe_path(path.parent, block["file"], "[ties_table] file", path)
     chart = (doc.get("constants") or {}).get("age_time_scale")
+    columns = (doc.get("ties_table") or {}).get("columns")
     return read_ties(
         path,
         doc.get("ties", []),
         table_file,
         source_id,
         str(chart) if isinstance(chart, str) else None,
+        columns,
     )
