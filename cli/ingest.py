@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections import Counter
 from pathlib import Path
 from typing import Annotated
 
@@ -69,10 +70,12 @@ def ingest(
     shown = [i for i in result.report.issues if i.severity != "info"]
     if shown:
         render.report(result.report, limit_info=True)
-    n_info = len(result.report.issues) - len(shown)
-    if n_info:
+    kinds = Counter(i.rule for i in result.report.issues if i.severity == "info")
+    if kinds:
+        n_info = sum(kinds.values())
+        what = ", ".join(f"{rule} {n}" for rule, n in sorted(kinds.items()))
         render.note(
-            f"{n_info} cleaning notes (decimal commas, minus signs, units …)"
+            f"{n_info} note{'s' * (n_info != 1)} on reading the sheet ({what})"
             + ("; see the --report file" if report else "; add --report PATH to see them")
         )
     if result.dry_run:

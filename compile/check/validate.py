@@ -116,7 +116,7 @@ def _match_columns(
     missing = []
     for c in spec.columns:
         key = norm_header(c.header)
-        hits = [(j, None) for j in exact.get(key, [])] or bare.get(
+        hits = [(j, strip_unit(raw.headers[j])[1]) for j in exact.get(key, [])] or bare.get(
             norm_header(strip_unit(c.header)[0]), []
         )
         if len(hits) > 1:
@@ -717,6 +717,9 @@ def _analyses_columns(st: _Preparing) -> dict[str, Any]:
             st.cols.get(name), (pa.Array, pa.ChunkedArray)
         ):
             out[name] = st.sec if name == "section_id" else st.loc
+        elif name == "locality_name" and name not in st.cols and st.locality_blocks:
+            names = {k: b.get("name") for k, b in st.locality_blocks.items()}  # the block's
+            out[name] = np.array([names.get(str(x)) if x else None for x in st.loc], object)
         elif name in st.cols:
             v = st.cols[name]
             out[name] = (

@@ -151,6 +151,12 @@ def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) ->
             f"{path.name}: {where} sheet must be a name or a number.",
             'Example: sheet = "Table S1" or sheet = 2',
         )
+    if sheet is not None and spec.file.suffix.lower() in (".csv", ".tsv", ".txt"):
+        raise ConfigError(
+            f"{path.name}: {where} sheet = {sheet!r} does not apply to {spec.file.name}, "
+            "a text file with one table.",
+            "Remove sheet, or name the workbook (xlsx, ods) that holds that sheet.",
+        )
     spec.sheet = sheet
     hr = block.get("header_row")
     if hr is not None and (not isinstance(hr, int) or isinstance(hr, bool) or hr < 1):

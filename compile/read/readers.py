@@ -148,7 +148,8 @@ def _read_spreadsheet(
     elif isinstance(sheet, int):
         if not 1 <= sheet <= len(names):
             raise ConfigError(
-                f"{path.name} has {len(names)} sheets; sheet {sheet} does not exist.",
+                f"{path.name} has {len(names)} sheet{'s' * (len(names) != 1)}; "
+                f"sheet {sheet} does not exist.",
                 f"Sheets: {', '.join(names)}.",
             )
         name = names[sheet - 1]
