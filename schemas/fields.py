@@ -203,6 +203,7 @@ FIELDS: tuple[Field, ...] = (
         "‰",
         (0.0, 5.0),
         "analytical precision",
+        column="d13c_carb_precision_reported",
     ),
     Field(
         "d18o_carb_precision",
@@ -212,6 +213,7 @@ FIELDS: tuple[Field, ...] = (
         "‰",
         (0.0, 5.0),
         "analytical precision",
+        column="d18o_carb_precision_reported",
     ),
     Field(
         "d13c_org_precision",
@@ -221,6 +223,7 @@ FIELDS: tuple[Field, ...] = (
         "‰",
         (0.0, 5.0),
         "analytical precision",
+        column="d13c_org_precision_reported",
     ),
     # screening inputs
     Field(
