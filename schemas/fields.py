@@ -353,6 +353,13 @@ FIELDS: tuple[Field, ...] = (
 
 BY_NAME: dict[str, Field] = {f.name: f for f in FIELDS}
 
+# The rows of an in-house run that measure a reference material are exempt from the sample
+# ranges above (LSVEC, IAEA-CO-9 and USGS44 lie near −42 … −47 ‰ δ13C); they keep this
+# wide sanity bound on their raw δ values instead, which still catches unit slips
+# (common practice).
+REFERENCE_RANGE = (-100.0, 100.0)
+REFERENCE_RANGE_NAME = "reference-material δ range"
+
 # Per-sheet keys that are not columns of their own: the scale of each δ column and the
 # basis of each concentration column, settable as constants or per column.
 SCALE_KEYS = {f"{d}_scale": d for d in DELTA_FIELDS}

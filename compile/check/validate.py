@@ -778,6 +778,17 @@ def _position_kinds(st: _Preparing) -> Any:
     return pd.Series(st.sec, dtype=object).map(kinds).to_numpy()
 
 
+def _standard_rows(st: _Preparing) -> np.ndarray | None:
+    """The rows of an in-house run whose sample id names one of its reference materials."""
+    import numpy as np
+
+    run = st.mapping.run
+    if run is None:
+        return None
+    names = {m.lower() for m in [*run["anchors"], *run["checks"]]}
+    return np.array([str(s).strip().lower() in names for s in st.sample], dtype=bool)
+
+
 def _check_frame(st: _Preparing) -> None:
     """The pandera schema, superposition and plausibility, on the assembled table."""
     raw = st.raw
@@ -789,7 +800,7 @@ def _check_frame(st: _Preparing) -> None:
         j = col_index.get(letter)
         return raw.column(j)[i].as_py() if j is not None else None
 
-    schema_check(st.frame, st.rows, st.letters, raw_text)
+    schema_check(st.frame, st.rows, st.letters, raw_text, _standard_rows(st))
     superposition(st.frame, st.rows, st.letters)
     plausibility(st.frame, raw, st.report, st.letters)
 
