@@ -355,9 +355,8 @@ def _one_run(
     )
     params = {
         **step.parameters,
-        "accepted": {
-            m: {k: a[k] for k in ("value_vpdb", "value_set", "chosen_by")}
-            for m, a in accepted.items()
+        "accepted": {  # in full (scale, source, who chose) in run_qc.accepted_json
+            m: f"{a['value_vpdb']:+.3f} ‰ VPDB ({a['value_set']})" for m, a in accepted.items()
         },
         "precision_1s": qc.precision_1s,
         "precision_rule": "pooled within-material SD of the run's replicated reference "
