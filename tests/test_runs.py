@@ -168,6 +168,26 @@ def test_a_check_whose_uncertainty_is_unknown_is_untested_not_passed() -> None:
     assert "no replicated reference material" in qc.checks[0].basis
 
 
+def test_the_check_tolerance_setting_is_checked_and_hashed_on_its_own() -> None:
+    from strata13.compile.derive.settings import (
+        Settings,
+        check_tolerance_permil,
+        check_tolerance_policy,
+    )
+
+    from strata13.errors import OptionError
+
+    base = Settings()
+    assert base.check_tolerance == "from-uncertainty" and check_tolerance_permil(base) is None
+    other = base.but(check_tolerance=check_tolerance_policy("0.20"))
+    assert check_tolerance_permil(other) == 0.2
+    changed = {k for k, h in base.hashes().items() if other.hashes()[k] != h}
+    assert changed == {"check_tolerance"} and base.hash() != other.hash()
+    for bad in ("0", "-0.1", "wide", "6"):
+        with pytest.raises(OptionError):
+            check_tolerance_policy(bad)
+
+
 # --- sheets for the store tests ------------------------------------------------------------
 
 MAPPING = """
@@ -620,3 +640,26 @@ def test_a_dolostone_without_mineralogy_stays_pending_in_d18o_only(
     assert rec.loc["CE-2", "d18o_carb"] == pytest.approx(-3.1, abs=1e-9)  # stated calcite
     assert rec.loc["CE-3", "d18o_carb"] == pytest.approx(-3.2, abs=1e-9)  # a limestone
     assert "dolomite against calcite standards" in rec.loc["CE-4", "d18o_carb_status"]
+
+
+def test_drift_without_run_positions_refuses_for_a_standard_and_pends_a_sample(
+    store: Path, tmp_path: Path
+) -> None:
+    block = 'anchors = ["IAEA-603", "NBS-18"]\nchecks = ["IAEA-CO-8"]\ndrift = true'
+    std = drifted(standard_rows("N1", 0, 1.0, 0.0), 0.001)
+    samples = [["N1", 7, "CE-1", 1.0, 1.0, -3.0], ["N1", None, "CE-2", 2.0, 1.1, -3.1]]
+    r = api.ingest(
+        api.open_store(store),
+        None,
+        run_sheet(tmp_path / "a", "brannock-n1", [*std, *samples], block),
+    )
+    assert r.pending.get("d13c_carb") == 1 and r.pending.get("d18o_carb") == 1
+    rec = rows_of(store, "records", "brannock-n1").set_index("sample_id")
+    assert rec.loc["CE-2", "d13c_carb_status"].startswith("pending: drift correction needs")
+    assert rec.loc["CE-1", "d13c_carb_status"] == "harmonised"
+    std[1][1] = None  # NBS-18 without its position: the drift cannot be fitted honestly
+    before = tree_bytes(store)
+    m = run_sheet(tmp_path / "b", "brannock-n2", [*std, samples[0]], block)
+    res = run("ingest", "--map", str(m), "--store", str(store))
+    assert res.returncode == 1 and "run position of every standard" in res.stderr
+    assert "'N1'" in res.stderr and tree_bytes(store) == before
