@@ -663,3 +663,21 @@ def test_drift_without_run_positions_refuses_for_a_standard_and_pends_a_sample(
     res = run("ingest", "--map", str(m), "--store", str(store))
     assert res.returncode == 1 and "run position of every standard" in res.stderr
     assert "'N1'" in res.stderr and tree_bytes(store) == before
+
+
+def test_an_anchor_without_a_value_of_the_isotope_is_refused_naming_the_source(
+    store: Path, tmp_path: Path
+) -> None:
+    # USGS44 has a δ13C value only (Qi et al. 2021): it cannot anchor a δ18O column
+    block = 'anchors = ["IAEA-603", "USGS44"]'
+    rows = [
+        ["U1", 1, "IAEA-603", None, 2.46, -2.37],
+        ["U1", 2, "USGS44", None, -42.08, -20.0],
+        ["U1", 3, "CE-1", 1.0, 1.0, -3.0],
+    ]
+    before = tree_bytes(store)
+    m = run_sheet(tmp_path, "brannock-u1", rows, block)
+    res = run("ingest", "--map", str(m), "--store", str(store))
+    assert res.returncode == 1, res.stderr
+    assert "source brannock-u1, [run] d18o" in res.stderr and "'USGS44'" in res.stderr
+    assert tree_bytes(store) == before

@@ -223,7 +223,10 @@ def _run_values(
     std = runs.to_pylist() if runs is not None else []
     out: list[_RunOut] = []
     qcs: list[dict[str, Any]] = []
-    accepted = _run_accepted(spec, iso, materials, relation)
+    try:
+        accepted = _run_accepted(spec, iso, materials, relation)
+    except DomainError as exc:
+        raise DomainError(f"source {src[0]}, [run] {iso}: {exc.message}", exc.hint) from None
     for key in sorted(set(zip(src, run_ids, strict=True)), key=str):
         sel = np.array([(a, b) == key for a, b in zip(src, run_ids, strict=True)])
         here = [r for r in std if (r["source_id"], r["run_id"]) == key and r[measured] is not None]
