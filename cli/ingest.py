@@ -111,15 +111,26 @@ def ingest(
             f"{result.orphaned} stored correction(s) name records this sheet no longer "
             "has; see `strata13 corrections`"
         )
+    for line in api.accepted_lines(result.run_qc):
+        render.note(line)
     for q in result.run_qc:
-        warn = f"; WARNING {q['warnings']}" if q["warnings"] else ""
         prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"
         res = ", ".join(f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items())
+        drift = ""
+        if q["drift_per_position"] is not None:
+            sd = q["drift_sigma"]
+            drift = f"; drift {q['drift_per_position']:+.3g} ‰ per position" + (
+                f" ± {sd:.2g} (1σ)" if sd is not None else " (1σ unknown)"
+            )
         render.message(
             f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
             f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
-            f"{res or '—'}; precision 1σ {prec}{warn}"
+            f"{res or '—'} ({q['check_status'] or 'no check'}); precision 1σ {prec}{drift}"
         )
+        if q["check_status"] in ("warn", "untested"):
+            render.note(f"checks of run {q['run_id']} {q['isotope']}: {q['check_detail']}")
+    for w in result.warnings:
+        render.warning(w)
     if result.pending:
         render.note(
             "pending (kept as reported, not yet harmonised or dated): "

@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING, Any
 from strata13.compile.derive.engine import DEFAULT_TIME_SCALE, Settings
 from strata13.compile.export.outputs import output_dir, output_file
 from strata13.compile.export.package import ExportResult, neutralise
-from strata13.compile.ingest import IngestResult, reconcile
+from strata13.compile.ingest import IngestResult, accepted_lines, reconcile
 from strata13.compile.integrity.corrections import Correction
 from strata13.compile.interrupts import pressed as _pressed
 from strata13.compile.query.filters import (
@@ -68,6 +68,7 @@ __all__ = [
     "Settings",
     "Store",
     "Version",
+    "accepted_lines",
     "agemodel",
     "check_sources",
     "check_vocab",
@@ -107,6 +108,7 @@ __all__ = [
     "rotations_settings",
     "rules_settings",
     "run_demo",
+    "scale_disagreements",
     "scales",
     "screen",
     "screen_plots",
@@ -532,11 +534,17 @@ def history(store: Store) -> list[Version]:
 
 
 def reharmonise(
-    store: Store, vsmow_constants: str | None = None, materials: str | Path | None = None
+    store: Store,
+    vsmow_constants: str | None = None,
+    materials: str | Path | None = None,
+    check_tolerance: str | None = None,
 ) -> RecomputeResult:
     """Re-derive every record with new harmonisation settings (one commit, or none when
-    nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
+    nothing changes); returns a RecomputeResult with counts and sizes of the changes.
+    ``check_tolerance``: how far an in-house run's check material may lie from its accepted
+    value ("from-uncertainty", the default rule, or a tolerance in ‰)."""
     from strata13.compile.derive.recompute import recompute
+    from strata13.compile.derive.settings import check_tolerance_policy
     from strata13.compile.harmonise.oxygen import relation
 
     change: dict[str, Any] = {}
@@ -544,6 +552,8 @@ def reharmonise(
         change["vsmow_constants"] = relation(vsmow_constants).name
     if materials is not None:
         change |= materials_settings(materials)
+    if check_tolerance is not None:
+        change["check_tolerance"] = check_tolerance_policy(check_tolerance)
     return recompute(store, change, "reharmonise")
 
 
@@ -800,6 +810,28 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
         "materials": [{**asdict(m), "in_store": mark(m)} for m in table],
         "relations": relations,
     }
+
+
+def scale_disagreements(store: Store | None = None) -> list[dict[str, Any]]:
+    """Reference materials whose published value sets disagree, per isotope: every value
+    on VPDB (δ18O on VSMOW converted with the store's relation, IUPAC without a store), its
+    1σ, and its difference from the value the store accepts (without a store: the default
+    choice, ``schemas.materials.default_choice``)."""
+    from strata13.compile.derive.settings import DEFAULT_VSMOW_CONSTANTS
+    from strata13.schemas.materials import (
+        default_choice,
+        disagreements,
+        shipped_materials,
+        store_table,
+    )
+
+    if store is None:
+        table = list(shipped_materials())
+        return disagreements(table, default_choice(table), DEFAULT_VSMOW_CONSTANTS)
+    settings = store.settings()
+    table, choice = store_table(settings)
+    relation = settings.get("vsmow_constants") or DEFAULT_VSMOW_CONSTANTS
+    return disagreements(table, choice, relation)
 
 
 def explain(store: Store, record: str) -> dict[str, Any]:

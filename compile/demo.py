@@ -78,6 +78,8 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                 + (f" (pending: {pend})" if pend else "")
             ),
         )
+        for line in api.accepted_lines(r.run_qc):
+            yield "note", f"  {line}"
         for q in r.run_qc:
             yield (
                 "say",
@@ -88,8 +90,12 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                     + ", ".join(
                         f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items()
                     )
+                    + f" ({q['check_status']}); precision 1σ "
+                    + (f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—")
                 ),
             )
+        for w in r.warnings:
+            yield "say", f"  warning: {w}"
     r = api.ingest(store, None, sheets / TIES)
     yield (
         "say",

@@ -51,6 +51,8 @@ class IngestResult:
     ties: int = 0  # age ties this source gives
     standards: int = 0  # reference-material rows of in-house runs (kept in the runs table)
     run_qc: list[dict[str, Any]] = field(default_factory=list)  # per run and isotope
+    # loud run QC findings (a check beyond its tolerance, a slope far from 1), one sentence each
+    warnings: list[str] = field(default_factory=list)
     redated: int = 0  # records of other sources whose age changed with this source's ties
     orphaned: int = 0  # stored corrections whose record this ingest no longer has
 
@@ -126,13 +128,41 @@ def _check_run_materials(store: Store, mapping: Any) -> None:
 
     table, _ = store_table(store.settings())
     known = sorted({m.material for m in table})
-    for name in [*mapping.run["anchors"], *mapping.run["checks"]]:
+    names = [*mapping.run["anchors"], *mapping.run["checks"]]
+    for name in names:
         if name not in known:
             raise DomainError(
                 f"{mapping.path.name}: [run] names reference material {name!r}, "
                 "which the store's material table does not have; nothing was "
                 "written." + did_you_mean(name, known),
                 "Name a material `strata13 scales` lists, or add it with --materials FILE.",
+            )
+    _check_run_value_sets(mapping, table, names)
+
+
+def _check_run_value_sets(mapping: Any, table: Any, names: list[str]) -> None:
+    """A value set the [run] names must exist: for its material, or (one name for all) for
+    at least one of the run's materials."""
+    from strata13.schemas.materials import value_sets
+
+    from strata13.suggest import did_you_mean
+
+    named = mapping.run.get("value_set")
+    if named is None:
+        return
+    pairs = named.items() if isinstance(named, dict) else [(None, named)]
+    for mat, wanted in pairs:
+        have = (
+            value_sets(table, mat)
+            if mat
+            else sorted({v for n in names for v in value_sets(table, n)})
+        )
+        if wanted not in have:
+            raise DomainError(
+                f"{mapping.path.name}: [run] value_set {wanted!r} is not a value set of "
+                f"{mat or 'any of the run materials'} in the store's material table; nothing "
+                "was written." + did_you_mean(wanted, have),
+                f"Value sets there: {', '.join(have)} (see `strata13 scales`).",
             )
 
 
@@ -176,6 +206,7 @@ def _land(
         result.ties = new_ties.num_rows
         result.standards = prepared.runs.num_rows if prepared.runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
+        result.warnings = run_warnings(result.run_qc)
         result.pending = _pending_counts(derived.table)
         result.committed = derived.table.num_rows
         return result
@@ -198,6 +229,7 @@ def _land(
         result.orphaned = _orphans(fixes, records)
         result.standards = runs.num_rows if runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
+        result.warnings = run_warnings(result.run_qc)
         # sources whose sections this source's ties date (now or before) are re-dated too
         targets = {
             t
@@ -491,3 +523,37 @@ def reconcile(result: IngestResult) -> str:
         f"read {r.rows_read} rows = {result.committed} committed{std} + "
         f"{result.quarantined} quarantined + {r.rows_blank} blank"
     )
+
+
+def run_warnings(run_qc: list[dict[str, Any]]) -> list[str]:
+    """One sentence per loud run QC finding: a check material beyond its tolerance, a
+    normalisation slope far from 1 (the run_qc rows' ``warnings``)."""
+    return [
+        f"run {q['run_id']} {q['isotope']} ({q['source_id']}): {w}"
+        for q in run_qc
+        if q.get("warnings")
+        for w in str(q["warnings"]).split("; ")
+    ]
+
+
+def accepted_lines(run_qc: list[dict[str, Any]]) -> list[str]:
+    """The accepted reference-material values a source's runs were normalised to, one line
+    per isotope and material: value on VPDB, value set and status, the published value
+    and scale (and the relation that converted it), who chose the value set, the source."""
+    import json
+
+    seen: dict[tuple[str, str, str], str] = {}
+    for q in run_qc:
+        for mat, a in sorted(json.loads(q.get("accepted_json") or "{}").items()):
+            via = (
+                f" = {a['published']:+g} ‰ {a['published_scale']} via {a['converted_with']}"
+                if a.get("converted_with")
+                else ""
+            )
+            seen.setdefault(
+                (q["source_id"], q["isotope"], mat),
+                f"accepted {q['isotope']} {mat} ({a['role']}): {a['value_vpdb']:+.3f} ‰ VPDB"
+                f"{via} — {a['value_set']}, {a['status']}; {a['chosen_by']}; source: "
+                f"{a['source']}",
+            )
+    return list(seen.values())

@@ -111,6 +111,9 @@ ANALYSES: list[tuple[str, str]] = [
     ("plate_override", INT),  # the mapping's plate for the record's locality (displaced terranes)
     ("paleolat_sigma", REAL),  # 1σ of paleolatitude from the model's pole uncertainties
     ("screen_reason", TEXT),  # why the record has its screen state (rules named)
+    # analytical precision (1σ) as the sheet states it; ``{d}_precision`` is derived from it
+    # (or, for an in-house run, from the run's replicate standards when the sheet gives none)
+    *((f"{d}_precision_reported", REAL) for d in DELTA_FIELDS),
 ]
 
 SOURCES = [
@@ -206,6 +209,10 @@ RUN_QC = [
     ("precision_1s", REAL),
     ("drift_per_position", REAL),
     ("warnings", TEXT),
+    ("drift_sigma", REAL),  # 1σ of drift_per_position
+    ("check_status", TEXT),  # pass | warn | untested (the worst of the run's checks)
+    ("check_detail", TEXT),  # each check: offset, tolerance and how it was set
+    ("accepted_json", TEXT),  # the accepted values used: material, value set, source
 ]
 # source_id/section_id: the section a tie dates; tie_source_id: the source that gave the tie
 # (a tie source of its own survives re-ingests of the data it dates). age_sigma_ma is 1σ.
@@ -294,6 +301,7 @@ DERIVED: frozenset[str] = frozenset(
         *DELTA_FIELDS,
         *(f"{d}_chain" for d in DELTA_FIELDS),
         *(f"{d}_status" for d in DELTA_FIELDS),
+        *(f"{d}_precision" for d in DELTA_FIELDS),
         "age_ma",
         "age_sigma_ma",
         "age_basis",

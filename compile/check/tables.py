@@ -16,16 +16,26 @@ if TYPE_CHECKING:
     import pyarrow as pa
 
 
-def record_id(source: str, section: str, sample: str, replicate: int) -> str:
-    """Stable id: a hash of (source, section, sample, replicate)."""
+def record_id(source: str, section: str, sample: str, replicate: int | str) -> str:
+    """Stable id: a hash of (source, section, sample, replicate); an in-house run's
+    analysis gives its run key (:func:`run_key`) for the replicate."""
     key = "\x1f".join([source, section, sample, str(replicate)])
     return hashlib.sha256(key.encode("utf-8")).hexdigest()[:20]
 
 
-def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Array, Any]:
+def run_key(run_id: Any, position: float | None) -> str:
+    """The replicate part of an in-house run analysis's record id: its run and position."""
+    pos = "" if position is None or position != position else f"{float(position):.10g}"
+    return f"run {run_id} position {pos}"
+
+
+def record_ids(
+    sid: str, sec: Any, sample: Any, replicate: Any, keys: Any = None
+) -> tuple[pa.Array, Any]:
     """``record_id`` of every row (DuckDB's sha256 over the same key text as
     :func:`record_id`) and, for a repeated id, the row index of its first occurrence
-    (−1 otherwise)."""
+    (−1 otherwise). ``keys``: text standing for the replicate number in the hash where not
+    None (an in-house run's analyses are keyed by run and position)."""
     import duckdb
     import numpy as np
     import pyarrow as pa
@@ -37,6 +47,7 @@ def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arra
             "sec": strings(sec),
             "sample": strings(sample),
             "rep": pa.array(np.asarray(replicate, dtype=np.int64)),
+            "key": strings(keys) if keys is not None else pa.nulls(n, pa.string()),
             "i": pa.array(np.arange(n, dtype=np.int64)),
         }
     )
@@ -46,7 +57,8 @@ def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arra
         ids = (
             con.execute(
                 "SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
-                "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
+                "substr(sha256(concat_ws(chr(31), ?, sec, sample, "
+                "coalesce(key, CAST(rep AS VARCHAR)))), 1, 20) "
                 "END AS id FROM k ORDER BY i",
                 [sid],
             )

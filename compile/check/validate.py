@@ -231,6 +231,7 @@ class _Preparing:
     sample: np.ndarray = field(init=False)
     sample_cell: tuple[str, str] = field(init=False)  # (letter, header) of sample_id
     replicate: np.ndarray = field(init=False)
+    replicate_keys: np.ndarray | None = None  # an in-house run's: run and position (record id)
     ids: pa.Array = field(init=False)  # record id of each row
     frame: pa.Table = field(init=False)  # every row, analyses columns
     records: pa.Table = field(init=False)  # the valid rows, completed and hashed
@@ -599,6 +600,29 @@ def _read_replicates(st: _Preparing) -> None:
 
     rep = pd.to_numeric(pd.Series(st.column("replicate")), errors="coerce").to_numpy(dtype=float)
     st.replicate = np.where(np.isnan(rep), 1, np.nan_to_num(rep)).astype(np.int64)
+    if st.mapping.run is not None and "replicate" not in st.cols:
+        _run_replicates(st)
+
+
+def _run_replicates(st: _Preparing) -> None:
+    """An in-house run sheet without a replicate column: a sample measured again (in
+    another run or at another position) is another analysis of that sample, not a
+    duplicate. Its replicate number counts the sample's analyses in order of run and run
+    position; its record id is keyed by run and position instead of that number, so an
+    analysis keeps its id (and a stored correction stays with it) when runs are added."""
+    import numpy as np
+    import pandas as pd
+    from strata13.compile.check.tables import run_key
+
+    run = [None if r is None else str(r) for r in st.column("run_id")]
+    pos = pd.to_numeric(pd.Series(st.column("run_position")), errors="coerce").to_numpy(dtype=float)
+    st.replicate_keys = np.array([run_key(r, p) for r, p in zip(run, pos, strict=True)])
+    frame = pd.DataFrame(
+        {"sec": st.sec, "sample": st.sample, "run": [r or "" for r in run], "pos": pos}
+    )
+    ordered = frame.sort_values(["run", "pos"], kind="stable", na_position="last")
+    number = ordered.groupby(["sec", "sample"], dropna=False, sort=False).cumcount() + 1
+    st.replicate = number.reindex(frame.index).to_numpy(dtype=np.int64)
 
 
 def _check_delta_scales(st: _Preparing) -> None:
@@ -663,6 +687,7 @@ def _check_duplicate_records(st: _Preparing) -> None:
         st.arrow_or("section_id", st.sec),
         st.arrow_or("sample_id", st.sample),
         st.replicate,
+        st.replicate_keys,
     )
     run = st.mapping.run
     standards = (
@@ -679,8 +704,14 @@ def _check_duplicate_records(st: _Preparing) -> None:
             header,
             st.sample[i],
             "duplicate record",
-            f"section {st.sec[i]}, sample {st.sample[i]}, replicate {st.replicate[i]} is "
-            f"already in row {first_row}; give replicates a replicate number",
+            (
+                f"section {st.sec[i]}, sample {st.sample[i]} at {st.replicate_keys[i]} is "
+                f"already in row {first_row}; check the run and run_position"
+                if st.replicate_keys is not None
+                else f"section {st.sec[i]}, sample {st.sample[i]}, replicate "
+                f"{st.replicate[i]} is already in row {first_row}; give replicates a "
+                "replicate number"
+            ),
         )
 
 
@@ -750,6 +781,17 @@ def _position_kinds(st: _Preparing) -> Any:
     return pd.Series(st.sec, dtype=object).map(kinds).to_numpy()
 
 
+def _standard_rows(st: _Preparing) -> np.ndarray | None:
+    """The rows of an in-house run whose sample id names one of its reference materials."""
+    import numpy as np
+
+    run = st.mapping.run
+    if run is None:
+        return None
+    names = {m.lower() for m in [*run["anchors"], *run["checks"]]}
+    return np.array([str(s).strip().lower() in names for s in st.sample], dtype=bool)
+
+
 def _check_frame(st: _Preparing) -> None:
     """The pandera schema, superposition and plausibility, on the assembled table."""
     raw = st.raw
@@ -761,7 +803,7 @@ def _check_frame(st: _Preparing) -> None:
         j = col_index.get(letter)
         return raw.column(j)[i].as_py() if j is not None else None
 
-    schema_check(st.frame, st.rows, st.letters, raw_text)
+    schema_check(st.frame, st.rows, st.letters, raw_text, _standard_rows(st))
     superposition(st.frame, st.rows, st.letters)
     plausibility(st.frame, raw, st.report, st.letters)
 

@@ -24,6 +24,7 @@ __all__ = [
     "DEFAULT_VSMOW_CONSTANTS",
     "Settings",
     "blank_sigma_policy",
+    "check_tolerance_policy",
 ]
 
 DEFAULT_VSMOW_CONSTANTS = "IUPAC-2014"  # the VSMOW–VPDB relation (harmonise.oxygen)
@@ -51,6 +52,10 @@ class Settings:
     # what a chart boundary whose error the chart leaves blank gets as 1σ: "borrow" (from
     # the nearest shipped chart that states one), "refuse", or a stated σ in Myr as text
     blank_boundary_sigma: str = "borrow"
+    # how far a run's check material may lie from its accepted value before the run is
+    # marked warn: "from-uncertainty" (3 × √(σ_material² + σ_run²), common practice;
+    # harmonise.runs.CHECK_RULE) or a tolerance in ‰ as text
+    check_tolerance: str = "from-uncertainty"
     screen_rules: str | None = None  # canonical text of the rule set (None: shipped default)
     screen_rules_name: str | None = None
     screen_untested_passes: bool = False  # whether a rule that could not run counts as passed
@@ -114,3 +119,28 @@ def blank_sigma_policy(text: str) -> str:
             "Example: --blank-boundary-sigma borrow (the nearest chart that states one).",
         )
     return f"{sigma:g}"
+
+
+def check_tolerance_policy(text: str) -> str:
+    """The ``check_tolerance`` setting checked: from-uncertainty, or a tolerance above 0 ‰
+    (written as text, like the stored setting)."""
+    value = str(text).strip().lower()
+    if value == "from-uncertainty":
+        return value
+    try:
+        tol = float(value)
+    except ValueError:
+        tol = float("nan")
+    if not 0 < tol <= 5:
+        raise OptionError(
+            f"--check-tolerance {text!r} is not from-uncertainty or a tolerance in (0, 5] ‰.",
+            "Example: --check-tolerance 0.1 (‰), or from-uncertainty for 3 × the combined "
+            "1σ of the material and the run (common practice).",
+        )
+    return f"{tol:g}"
+
+
+def check_tolerance_permil(settings: Settings) -> float | None:
+    """The store's check tolerance in ‰, or None for the from-uncertainty rule."""
+    value = check_tolerance_policy(settings.check_tolerance)
+    return None if value == "from-uncertainty" else float(value)

@@ -671,7 +671,7 @@ def _apply_offsets(st: _Loading) -> None:
         st.normalisation.setdefault(fld, {"method": "not stated", "anchors": {}})["offset"] = off
 
 
-RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "note"}
+RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "value_set", "note"}
 
 
 def _run(block: Any, path: Path) -> dict[str, Any] | None:
@@ -710,12 +710,42 @@ def _run(block: Any, path: Path) -> dict[str, Any] | None:
     drift = block.get("drift", False)
     if not isinstance(drift, bool):
         raise ConfigError(f"{path.name}: [run] drift must be true or false.", "")
-    return {
+    out = {
         "anchors": [str(a) for a in anchors],
         "checks": [str(c) for c in checks],
         "drift": drift,
         "slope_tolerance": float(tol),
     }
+    if "value_set" in block:
+        out["value_set"] = _run_value_set(block["value_set"], [*anchors, *checks], path)
+    return out
+
+
+def _run_value_set(given: Any, materials: list[str], path: Path) -> str | dict[str, str]:
+    """``[run] value_set``: the published value set the run's materials are normalised to,
+    one name for all (``"IAEA sheet"``) or one per material (``{ "NBS-18" = "IAEA sheet" }``);
+    the names are checked against the store's table at ingest."""
+    hint = 'Example: value_set = "IAEA sheet", or value_set = { "NBS-18" = "IAEA sheet" }'
+    if isinstance(given, str) and given.strip():
+        return given.strip()
+    if (
+        isinstance(given, dict)
+        and given
+        and all(isinstance(v, str) and v.strip() for v in given.values())
+    ):
+        for mat in given:
+            if mat not in materials:
+                raise ConfigError(
+                    f"{path.name}: [run] value_set names {mat!r}, which is not one of the "
+                    "run's anchors or checks." + did_you_mean(mat, materials),
+                    hint,
+                )
+        return {str(k): str(v).strip() for k, v in given.items()}
+    raise ConfigError(
+        f"{path.name}: [run] value_set must be a value-set name or a table of material = "
+        "value-set name.",
+        hint,
+    )
 
 
 def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:

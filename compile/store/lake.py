@@ -319,6 +319,8 @@ class Store:
                 if col not in have:
                     con.execute(f'ALTER TABLE lake.{name} ADD COLUMN "{col}" {sqltype}')
                     added.append(f"{name}.{col}")
+            if name == "analyses":
+                _keep_reported_precision(con, have)
         return added
 
     # ------------------------------------------------------------ reading helpers
@@ -367,3 +369,15 @@ def _row_table(table: str, row: dict[str, Any]) -> Any:
     from strata13.schemas.records import arrow_schema
 
     return pa.Table.from_pylist([row], schema=arrow_schema(TABLES[table]))
+
+
+def _keep_reported_precision(con: duckdb.DuckDBPyConnection, had: dict[str, str]) -> None:
+    """Stores written before the reported/derived split of analytical precision kept the
+    sheet's precision in ``{d}_precision``; the migration that adds
+    ``{d}_precision_reported`` copies it there, so re-deriving keeps what the sheet said."""
+    from strata13.schemas.fields import DELTA_FIELDS
+
+    for d in DELTA_FIELDS:
+        old, new = f"{d}_precision", f"{d}_precision_reported"
+        if old in had and new not in had:
+            con.execute(f'UPDATE lake.analyses SET "{new}" = "{old}" WHERE "{old}" IS NOT NULL')
