@@ -51,6 +51,7 @@ if TYPE_CHECKING:
     from strata13.compile.integrity.overlaps import Tolerances
     from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
+    from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
     from strata13.schemas.timescales import TimeScale
 
@@ -97,6 +98,7 @@ __all__ = [
     "parse_interval",
     "parse_paleolat",
     "plot_agemodel",
+    "propose_map",
     "query",
     "query_arrow",
     "read_corrections",
@@ -118,6 +120,7 @@ __all__ = [
     "sql",
     "stages",
     "store_path",
+    "time_scale_settings",
 ]
 
 
@@ -256,7 +259,7 @@ def time_scale_settings(time_scale: str | Path) -> dict[str, Any]:
 
 def propose_map(
     sheet: str | Path, sheet_name: str | None = None, out: str | Path | None = None
-) -> Any:
+) -> Proposal:
     """A drafted mapping for ``sheet`` (``read.propose.Proposal``: text, matches, what to
     fill in); with ``out`` it is written there, never over an existing file or the sheet."""
     from strata13.compile.read.propose import propose

@@ -372,7 +372,8 @@ def _number_column(st: _Preparing, c: ColumnMap, j: int, header_unit: str | None
         _check_whole_numbers(st, values, j)
     st.cols[f.stored] = values
     if f.kind == "conc":
-        _concentration_columns(st, c, parsed.qualifier)
+        factor = UNITS[f.unit_kind][unit] if f.unit_kind and unit else 1.0
+        _concentration_columns(st, c, parsed.qualifier, factor)
     elif parsed.qualifier.null_count < len(parsed.qualifier):
         _refuse_censored(st, c, j, parsed.qualifier)
     if f.kind == "delta" and c.scale:
@@ -424,17 +425,27 @@ def _check_whole_numbers(st: _Preparing, values: Any, j: int) -> None:
         )
 
 
-def _concentration_columns(st: _Preparing, c: ColumnMap, qualifier: Any) -> None:
-    """A concentration keeps its qualifier ('<x', 'bdl'), detection limit and basis beside it."""
+def _concentration_columns(st: _Preparing, c: ColumnMap, qualifier: Any, factor: float) -> None:
+    """A concentration keeps its qualifier, detection limit and basis beside it. A censored
+    value is stored one way whatever its spelling: "<5" and "bdl" with a stated detection
+    limit of 5 both become value 5, qualifier "<", detection limit 5 (in the stored unit);
+    "bdl" with no limit stated stays "bdl" with no value (its bound is unknown)."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    st.cols[f"{c.field}_qualifier"] = qualifier
+    f = BY_NAME[c.field]
+    values = st.cols[f.stored]
     if c.detection_limit is not None:
         is_bdl = pc.fill_null(pc.equal(qualifier, "bdl"), False)
-        st.cols[f"{c.field}_dl"] = pc.if_else(
-            is_bdl, pa.scalar(c.detection_limit), pa.scalar(None, pa.float64())
-        )
+        limit = pa.scalar(c.detection_limit * factor, pa.float64())
+        values = pc.if_else(is_bdl, limit, pc.cast(values, pa.float64()))
+        qualifier = pc.if_else(is_bdl, pa.scalar("<"), qualifier)
+        st.cols[f.stored] = values
+    below = pc.fill_null(pc.equal(qualifier, "<"), False)
+    st.cols[f"{c.field}_qualifier"] = qualifier
+    st.cols[f"{c.field}_dl"] = pc.if_else(
+        below, pc.cast(values, pa.float64()), pa.scalar(None, pa.float64())
+    )
     if c.basis:
         st.cols[f"{c.field}_basis"] = c.basis
 
