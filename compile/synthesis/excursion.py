@@ -132,51 +132,10 @@ def metrics(
     shortfalls of the data come back as flags (module docstring)."""
     _check_request(fraction, direction)
     window = _window(baseline_window)
-    if len(section_df) == 0:
-        raise DomainError(
-            "The interval holds no samples of this section.",
-            "Widen the interval or check the section and filters.",
-        )
-    vcol = _value_column(section_df, value_col)
-    for col in ("position_m", "age_ma"):
-        if col not in section_df.columns:
-            raise DomainError(
-                f"The samples have no {col!r} column.",
-                "Pass records with position_m and age_ma (NaN allowed).",
-            )
-    flags: list[str] = []
-    kind = position_kind
-    if kind is None:
-        kinds = (
-            set(section_df["position_kind"].dropna().astype(str))
-            if "position_kind" in section_df.columns
-            else set()
-        )
-        if len(kinds) > 1:
-            return _empty(len(section_df), ["mixed_position_kinds"], "")
-        kind = kinds.pop() if kinds else "height"
-    if kind not in ("height", "depth"):
-        raise DomainError(
-            f"Position kind {kind!r} is neither 'height' nor 'depth'.",
-            "Give the section's position kind: height or depth.",
-        )
-
-    pos = pd.to_numeric(section_df["position_m"], errors="coerce").to_numpy(float)
-    age = pd.to_numeric(section_df["age_ma"], errors="coerce").to_numpy(float)
-    val = pd.to_numeric(section_df[vcol], errors="coerce").to_numpy(float)
-    has_pos = bool(np.isfinite(pos).any())
-    keep = np.isfinite(val) & (np.isfinite(pos) if has_pos else np.isfinite(age))
-    if not has_pos:
-        flags.append("no_positions")
-    if not keep.all():
-        flags.append("missing_dropped")
-    pos, age, val = pos[keep], age[keep], val[keep]
-    if has_pos:  # oldest first: heights ascending, depths descending; ties by age, oldest first
-        key = pos if kind == "height" else -pos
-        order = np.lexsort((-np.nan_to_num(age, nan=-np.inf), key))
-    else:
-        order = np.argsort(-age, kind="stable")
-    pos, age, val = pos[order], age[order], val[order]
+    prep = prepare(section_df, position_kind, value_col)
+    if isinstance(prep, Metrics):
+        return prep
+    pos, age, val, has_pos, flags = prep.pos, prep.age, prep.val, prep.has_pos, list(prep.flags)
     n = int(val.size)
     spacing = float(np.median(np.abs(np.diff(pos)))) if has_pos and n >= 2 else NAN
     if n < MIN_BASELINE + 1:
@@ -251,6 +210,75 @@ def metrics(
         recovery_position_m=recovery[0] if has_pos else NAN,
         recovery_age_ma=recovery[1],
         flags="; ".join(flags),
+    )
+
+
+class Prepared(NamedTuple):
+    """One section's usable samples in stratigraphic order (oldest first): positions (NaN
+    without any), ages and values; ``rows`` are their row numbers in the frame given."""
+
+    pos: np.ndarray
+    age: np.ndarray
+    val: np.ndarray
+    rows: np.ndarray
+    has_pos: bool
+    kind: str
+    flags: tuple[str, ...]
+
+
+def prepare(
+    section_df: pd.DataFrame, position_kind: str | None = None, value_col: str | None = None
+) -> Prepared | Metrics:
+    """The samples ``metrics`` measures, in the order it measures them (module docstring:
+    stratigraphic order, what is left out); a Metrics of NaN when the position kinds are
+    mixed. Raises DomainError for an empty frame, a missing column or an unknown kind."""
+    if len(section_df) == 0:
+        raise DomainError(
+            "The interval holds no samples of this section.",
+            "Widen the interval or check the section and filters.",
+        )
+    vcol = _value_column(section_df, value_col)
+    for col in ("position_m", "age_ma"):
+        if col not in section_df.columns:
+            raise DomainError(
+                f"The samples have no {col!r} column.",
+                "Pass records with position_m and age_ma (NaN allowed).",
+            )
+    flags: list[str] = []
+    kind = position_kind
+    if kind is None:
+        kinds = (
+            set(section_df["position_kind"].dropna().astype(str))
+            if "position_kind" in section_df.columns
+            else set()
+        )
+        if len(kinds) > 1:
+            return _empty(len(section_df), ["mixed_position_kinds"], "")
+        kind = kinds.pop() if kinds else "height"
+    if kind not in ("height", "depth"):
+        raise DomainError(
+            f"Position kind {kind!r} is neither 'height' nor 'depth'.",
+            "Give the section's position kind: height or depth.",
+        )
+
+    pos = pd.to_numeric(section_df["position_m"], errors="coerce").to_numpy(float)
+    age = pd.to_numeric(section_df["age_ma"], errors="coerce").to_numpy(float)
+    val = pd.to_numeric(section_df[vcol], errors="coerce").to_numpy(float)
+    has_pos = bool(np.isfinite(pos).any())
+    keep = np.isfinite(val) & (np.isfinite(pos) if has_pos else np.isfinite(age))
+    if not has_pos:
+        flags.append("no_positions")
+    if not keep.all():
+        flags.append("missing_dropped")
+    rows = np.flatnonzero(keep)
+    pos, age, val = pos[keep], age[keep], val[keep]
+    if has_pos:  # oldest first: heights ascending, depths descending; ties by age, oldest first
+        key = pos if kind == "height" else -pos
+        order = np.lexsort((-np.nan_to_num(age, nan=-np.inf), key))
+    else:
+        order = np.argsort(-age, kind="stable")
+    return Prepared(
+        pos[order], age[order], val[order], rows[order], has_pos, kind, tuple(flags)
     )
 
 
