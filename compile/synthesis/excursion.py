@@ -25,7 +25,10 @@ setting at a time: the caller's filter or ``group_col`` keeps them apart):
   fraction of the way at which the departure, linear between them, equals the threshold;
   position and age use that same fraction. (Linear, because it assumes nothing about the
   record between samples beyond continuity; its error is second order in the spacing.)
+* **Duration** = onset age − recovery age (Myr), NaN unless both are found.
 * **Spacing**: median of the gaps between consecutive positions (m).
+* **Uncertainty** (every metric's 1σ and 95 % range over age draws and a resampling of the
+  samples) is ``excursion_draws``'s; it measures each draw with these same definitions.
 
 Bad input — which raises and which flags:
 
@@ -75,11 +78,12 @@ PER_SECTION_COLUMNS = (
     "onset_age_ma",
     "recovery_position_m",
     "recovery_age_ma",
+    "duration_myr",
     "n_samples",
     "median_spacing_m",
     "flags",
 )
-SUMMARY_STATS = ("magnitude", "peak_age_ma", "onset_age_ma")
+SUMMARY_STATS = ("magnitude", "peak_age_ma", "onset_age_ma", "recovery_age_ma", "duration_myr")
 
 
 class Window(NamedTuple):
@@ -105,6 +109,7 @@ class Metrics:
     onset_age_ma: float
     recovery_position_m: float
     recovery_age_ma: float
+    duration_myr: float  # onset age − recovery age
     n_samples: int
     median_spacing_m: float
     flags: str
@@ -142,17 +147,14 @@ def metrics(
         return _empty(n, [*flags, "too_few_samples"], "", spacing)
 
     # -- baseline window
+    inside = baseline_members(prep, window)
     if window is None:
-        k = max(MIN_BASELINE, math.ceil(BASELINE_FRACTION * n))
-        inside = np.zeros(n, bool)
-        inside[:k] = True
+        k = int(inside.sum())
         described = f"oldest {k} of {n} samples"
         if has_pos:
             described += f" ({_fmt(pos[0])}–{_fmt(pos[k - 1])} m)"
     else:
         lo, hi = sorted((float(window.lo), float(window.hi)))
-        coord = age if window.unit == "ma" else pos
-        inside = np.isfinite(coord) & (coord >= lo) & (coord <= hi)
         described = (
             f"{_fmt(hi)}–{_fmt(lo)} Ma" if window.unit == "ma" else f"{_fmt(lo)}–{_fmt(hi)} m"
         )
@@ -209,6 +211,7 @@ def metrics(
         onset_age_ma=onset[1],
         recovery_position_m=recovery[0] if has_pos else NAN,
         recovery_age_ma=recovery[1],
+        duration_myr=onset[1] - recovery[1],
         flags="; ".join(flags),
     )
 
@@ -277,9 +280,22 @@ def prepare(
         order = np.lexsort((-np.nan_to_num(age, nan=-np.inf), key))
     else:
         order = np.argsort(-age, kind="stable")
-    return Prepared(
-        pos[order], age[order], val[order], rows[order], has_pos, kind, tuple(flags)
-    )
+    return Prepared(pos[order], age[order], val[order], rows[order], has_pos, kind, tuple(flags))
+
+
+def baseline_members(prep: Prepared, window: Window | None) -> np.ndarray:
+    """Which of a section's prepared samples form its baseline window: the oldest
+    max(``MIN_BASELINE``, ⌈``BASELINE_FRACTION``·n⌉), or those inside an explicit window
+    (bounds inclusive, on the ages or the positions)."""
+    n = int(prep.val.size)
+    if window is None:
+        inside = np.zeros(n, bool)
+        inside[: max(MIN_BASELINE, math.ceil(BASELINE_FRACTION * n))] = True
+        return inside
+    lo, hi = sorted((float(window.lo), float(window.hi)))
+    coord = prep.age if window.unit == "ma" else prep.pos
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(coord) & (coord >= lo) & (coord <= hi)
 
 
 def per_section(
@@ -334,12 +350,12 @@ def per_section(
 
 def summary(per_section: pd.DataFrame, group_col: str | None = "group") -> pd.DataFrame:
     """Mean, SD (n − 1 in the denominator; NaN below two values) and n of the magnitude,
-    peak age and onset age: one row across all sections (``scope`` "all", ``group`` None),
-    then one per value of ``group_col`` (``scope`` "group"), sorted. Rows with NaN in a
-    quantity do not count towards its n.
+    peak, onset and recovery ages and the duration: one row across all sections (``scope``
+    "all", ``group`` None), then one per value of ``group_col`` (``scope`` "group"), sorted.
+    Rows with NaN in a quantity do not count towards its n.
 
     Columns: scope, group, n_sections, then ``<q>_mean``, ``<q>_sd``, ``<q>_n`` for q in
-    magnitude, peak_age_ma, onset_age_ma."""
+    ``SUMMARY_STATS``. ``excursion_draws.summary`` adds their uncertainty."""
     missing = [c for c in SUMMARY_STATS if c not in per_section.columns]
     if missing:
         raise DomainError(
@@ -386,7 +402,7 @@ def _cross(
 
 def _empty(n: int, flags: list[str], window: str, spacing: float = NAN) -> Metrics:
     return Metrics(
-        NAN, window, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, n, spacing, "; ".join(flags)
+        NAN, window, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, n, spacing, "; ".join(flags)
     )
 
 
