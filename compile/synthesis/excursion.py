@@ -251,7 +251,7 @@ def prepare(
     kind = position_kind
     if kind is None:
         kinds = (
-            set(section_df["position_kind"].dropna().astype(str))
+            {str(k) for k in pd.unique(section_df["position_kind"].to_numpy()) if not pd.isna(k)}
             if "position_kind" in section_df.columns
             else set()
         )
@@ -264,9 +264,7 @@ def prepare(
             "Give the section's position kind: height or depth.",
         )
 
-    pos = pd.to_numeric(section_df["position_m"], errors="coerce").to_numpy(float)
-    age = pd.to_numeric(section_df["age_ma"], errors="coerce").to_numpy(float)
-    val = pd.to_numeric(section_df[vcol], errors="coerce").to_numpy(float)
+    pos, age, val = (_floats(section_df[c]) for c in ("position_m", "age_ma", vcol))
     has_pos = bool(np.isfinite(pos).any())
     keep = np.isfinite(val) & (np.isfinite(pos) if has_pos else np.isfinite(age))
     if not has_pos:
@@ -453,6 +451,13 @@ def _value_column(df: pd.DataFrame, value_col: str | None) -> str:
         "The samples have neither a 'value' nor a 'd13c_carb' column.",
         "Name the column holding the δ13C values with value_col.",
     )
+
+
+def _floats(col: pd.Series) -> np.ndarray:
+    """A column as float64, text that is no number as NaN (numeric columns at once)."""
+    if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
+        return col.to_numpy(dtype=float, na_value=np.nan)
+    return pd.to_numeric(col, errors="coerce").to_numpy(float)
 
 
 def _fmt(x: float) -> str:

@@ -346,11 +346,18 @@ def spread(x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarra
     their 1σ (n − 1 in the denominator; NaN below two), and their 2.5 and 97.5 percentiles
     (numpy's default linear interpolation between order statistics; NaN without any)."""
     x = np.atleast_2d(np.asarray(x, dtype=float))
+    if x.shape[1] == 0:  # no draws: nothing found
+        blank = np.full(x.shape[0], np.nan)
+        return np.zeros(x.shape[0], dtype=np.int64), blank, blank.copy(), blank.copy()
     ok = np.isfinite(x)
     n = ok.sum(axis=1)
+    # two passes over values shifted by each row's first value found, so a constant row
+    # has a σ of exactly 0
+    first = np.where(ok.any(axis=1), x[np.arange(x.shape[0]), np.argmax(ok, axis=1)], 0.0)
+    y = np.where(ok, x - first[:, None], 0.0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(ok, x, 0.0).sum(axis=1) / n
-        dev = np.where(ok, x - mean[:, None], 0.0)
+        mean = y.sum(axis=1) / n
+        dev = np.where(ok, y - mean[:, None], 0.0)
         sd = np.where(n >= 2, np.sqrt((dev**2).sum(axis=1) / (n - 1)), np.nan)
     s = np.sort(np.where(ok, x, np.inf), axis=1)
     rows = np.arange(x.shape[0])
