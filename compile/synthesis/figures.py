@@ -492,7 +492,14 @@ def _age_panel(ax: Axes, rows: list[dict[str, Any]]) -> None:
             colour, marker, _ = EXCURSION_STYLE[m]
             yy = y + offsets[m]
             if np.isfinite(lo) and np.isfinite(hi):
-                ax.plot([lo, hi], [yy, yy], color=colour, linewidth=1.6, solid_capstyle="butt")
+                ax.plot(
+                    [lo, hi],
+                    [yy, yy],
+                    color=colour,
+                    linewidth=1.6,
+                    solid_capstyle="butt",
+                    gid=f"{m} age 95 % range",
+                )
             if np.isfinite(centre):
                 ax.plot(
                     [centre],
