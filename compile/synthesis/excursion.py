@@ -293,7 +293,8 @@ def baseline_members(prep: Prepared, window: Window | None) -> np.ndarray:
     lo, hi = sorted((float(window.lo), float(window.hi)))
     coord = prep.age if window.unit == "ma" else prep.pos
     with np.errstate(invalid="ignore"):
-        return np.isfinite(coord) & (coord >= lo) & (coord <= hi)
+        within: np.ndarray = np.isfinite(coord) & (coord >= lo) & (coord <= hi)
+    return within
 
 
 def per_section(
@@ -456,8 +457,10 @@ def _value_column(df: pd.DataFrame, value_col: str | None) -> str:
 def _floats(col: pd.Series) -> np.ndarray:
     """A column as float64, text that is no number as NaN (numeric columns at once)."""
     if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
-        return col.to_numpy(dtype=float, na_value=np.nan)
-    return pd.to_numeric(col, errors="coerce").to_numpy(float)
+        out: np.ndarray = col.to_numpy(dtype=float, na_value=np.nan)
+    else:
+        out = pd.to_numeric(col, errors="coerce").to_numpy(float)
+    return out
 
 
 def _fmt(x: float) -> str:

@@ -439,7 +439,9 @@ def excursion_figure(
     ]
     legend = fig.legend(handles=handles, loc="outside right upper", fontsize="small", frameon=False)
     if ranges_note:
-        legend.set_title(ranges_note, prop={"size": "x-small"})
+        from matplotlib.font_manager import FontProperties
+
+        legend.set_title(ranges_note, prop=FontProperties(size="x-small"))
     return fig
 
 
