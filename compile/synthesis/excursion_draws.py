@@ -33,10 +33,13 @@ of the draws (n − 1 in the denominator), their 2.5 and 97.5 percentiles (numpy
 interpolation), and for onset, peak, recovery and duration the number of draws in which the
 metric was found (a draw without a recovery is counted, never dropped silently). A metric
 whose central value is undefined keeps NaN for its spread; its count still says in how many
-draws it was found. Limits (common practice, said here because a reader might assume
-otherwise): a bootstrap cannot draw a sample more extreme than the most extreme one measured,
-so the peak value and magnitude spread is one-sided and the central magnitude may sit at the
-edge of its 95 % range; a section of a handful of samples gives a rough spread.
+draws it was found. Limits: a bootstrap cannot draw a sample more extreme than the most
+extreme one measured (common practice), so the peak value and magnitude spread is one-sided
+and the central magnitude may sit at the edge of its 95 % range; and resampling thins the
+record, which moves interpolated crossings outward, so where samples are sparse across the
+excursion the percentile range is off-centre and holds the truth less often than 95 % while
+the σ is larger than the true spread (measured in a simulation: DEVELOPERS.md, "Excursion
+uncertainty"). The age part alone is calibrated when the age draws are.
 
 The group summary (``summary``) adds to ``excursion.summary`` the uncertainty of each group
 mean: in draw k the mean over the sections whose metric was found in draw k (of those with
@@ -44,8 +47,8 @@ a central value), then the 1σ and the 2.5/97.5 percentiles of those per-draw me
 number of draws in which a mean could be formed, and the mean number of sections it held.
 
 Vectorised over draws: a section's draws are measured with numpy on (draws × samples)
-arrays, ``BLOCK`` draws at a time (ages of every sample are built for a block of draws at
-once, so memory is ``BLOCK`` × samples).
+arrays, whole blocks of draws at a time (the ages of every sample are built for as many
+blocks as ``CHUNK_ELEMENTS`` ages allow, so memory stays bounded whatever the draws).
 """
 
 from __future__ import annotations
