@@ -214,7 +214,8 @@ def excursion(
         Path | None,
         typer.Option(
             "--out",
-            help="Folder for the tables and the figure aligned on onset.",
+            help="Folder for the tables (CSV and Parquet), their column list, the figure "
+            "aligned on onset with the ranges, and a manifest.",
             show_default=False,
         ),
     ] = None,
