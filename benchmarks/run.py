@@ -610,8 +610,7 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument(
         "--cases",
         default="ingest,query,help,agemodel,curve,excursion,paleo",
-        help="comma list of ingest, query, help, agemodel, curve, excursion, paleo "
-        "(default: all)",
+        help="comma list of ingest, query, help, agemodel, curve, excursion, paleo (default: all)",
     )
     p.add_argument("--rows", type=int, help="ingest sheet rows (overrides the size)")
     p.add_argument("--records", type=int, help="query store records (overrides the size)")
