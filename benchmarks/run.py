@@ -19,6 +19,8 @@ it. Cases:
 * agemodel — ``agemodel.draw_section`` for 1000 draws of 100 000 samples in 200 sections
   against as many ``numpy.interp`` calls on fixed knots (see ``agemodel.py``). Targets:
   ratio ≤ 3; traced peak memory ≤ 10 % of all draws at once.
+* excursion — the excursion metrics' uncertainty over 500 draws of 100 sections against the
+  scalar metrics once per section and draw (see ``excursion.py``). Target: ratio ≤ 0.1.
 
 Inputs come from ``generate.py`` (cached under ``_data/``); scratch stores go to ``_work/``.
 """
@@ -568,6 +570,7 @@ def case_help(repeat: int) -> Outcome:
 LIBRARY_CASES = {
     "agemodel": ("agemodel", 100, 1000),
     "curve": ("curve", 50, 200),
+    "excursion": ("excursion", 100, 500),
     "paleo": ("paleo", 100_000, 1_000_000),
 }
 
@@ -606,8 +609,8 @@ def main(argv: list[str] | None = None) -> int:
     )
     p.add_argument(
         "--cases",
-        default="ingest,query,help,agemodel,curve,paleo",
-        help="comma list of ingest, query, help, agemodel, curve, paleo (default: all)",
+        default="ingest,query,help,agemodel,curve,excursion,paleo",
+        help="comma list of ingest, query, help, agemodel, curve, excursion, paleo (default: all)",
     )
     p.add_argument("--rows", type=int, help="ingest sheet rows (overrides the size)")
     p.add_argument("--records", type=int, help="query store records (overrides the size)")
@@ -616,7 +619,7 @@ def main(argv: list[str] | None = None) -> int:
         type=int,
         default=0,
         help="timed runs per case (default: ingest 1, query 3, help 5, "
-        "agemodel, curve and paleo 3)",
+        "agemodel, curve, excursion and paleo 3)",
     )
     p.add_argument(
         "--profile",

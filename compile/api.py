@@ -691,11 +691,16 @@ def excursion(
     baseline: tuple[float, float, str] | None = None,
     fraction: float = 0.10,
     direction: str = "auto",
+    draws: int | None = None,
+    seed: int = 0,
+    bootstrap: bool = True,
     out: str | Path | None = None,
     command: str | None = None,
 ) -> ExcursionResult:
-    """Per-section excursion metrics in the filtered interval (tables, a figure and a
-    manifest naming ``command`` in ``out`` when given)."""
+    """Per-section excursion metrics in the filtered interval with 1σ and 95 % ranges over
+    ``draws`` draws (age draws and, with ``bootstrap``, resampled samples; None: the default
+    500, 0: none), seeded by ``seed``; tables, a figure and a manifest naming ``command`` in
+    ``out`` when given."""
     from strata13.compile.synthesis.run import make_excursion
 
     return make_excursion(
@@ -705,6 +710,9 @@ def excursion(
         baseline=baseline,
         fraction=fraction,
         direction=direction,
+        draws=draws,
+        seed=seed,
+        bootstrap=bootstrap,
         out=Path(out) if out is not None else None,
         command=command,
     )

@@ -230,14 +230,24 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     yield (
         "say",
         (
-            "excursion per section (Toarcian, negative; full table and the figure "
-            f"aligned on onset in {figures / 'excursion'}):"
+            f"excursion per section (Toarcian, negative; 1σ over {excursion.draws} draws of "
+            "ages and resampled samples; full table and the figure aligned on onset in "
+            f"{figures / 'excursion'}):"
         ),
     )
     yield (
         "table",
         (
-            ["section_id", "group", "baseline", "peak_age_ma", "magnitude", "onset_age_ma"],
+            [
+                "section_id",
+                "group",
+                "baseline",
+                "peak_age_ma",
+                "magnitude",
+                "magnitude_sigma_permil",
+                "onset_age_ma",
+                "onset_age_sigma_myr",
+            ],
             [
                 (
                     r.section_id,
@@ -245,7 +255,9 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                     round(r.baseline, 2),
                     round(r.peak_age_ma, 2),
                     round(r.magnitude, 2),
+                    round(r.magnitude_sigma_permil, 2),
                     round(r.onset_age_ma, 2),
+                    round(r.onset_age_sigma_myr, 2),
                 )
                 for r in excursion.per_section.itertuples()
             ],
