@@ -114,6 +114,7 @@ ANALYSES: list[tuple[str, str]] = [
     # analytical precision (1σ) as the sheet states it; ``{d}_precision`` is derived from it
     # (or, for an in-house run, from the run's replicate standards when the sheet gives none)
     *((f"{d}_precision_reported", REAL) for d in DELTA_FIELDS),
+    ("file_name", TEXT),  # the file the record was read from (a source may hold several)
 ]
 
 SOURCES = [
@@ -171,6 +172,7 @@ QUARANTINE = [
     ("cells_json", TEXT),
     ("reasons", TEXT),
     ("ingested_version", BIGINT),
+    ("file_name", TEXT),
 ]
 SETTINGS = [("key", TEXT), ("value_json", TEXT), ("hash", TEXT)]
 COMMITS = [

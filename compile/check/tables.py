@@ -155,6 +155,11 @@ def complete(table: pa.Table) -> pa.Table:
     return pa.Table.from_arrays(cols, schema=schema)
 
 
+# where a record sits (file, sheet, row): provenance, not content, so a moved row is the
+# same record with new provenance
+WHERE_FROM = ("file_name", "sheet", "sheet_row")
+
+
 def row_hashes(table: pa.Table) -> pa.Array:
     """A content hash per record over its reported columns, for re-ingest diffs.
 
@@ -174,7 +179,7 @@ def row_hashes(table: pa.Table) -> pa.Array:
     h = np.zeros(n, dtype=np.uint64)
     for name in table.column_names:
         col = table.column(name)
-        if name in DERIVED_COLUMNS or name in ("sheet", "sheet_row") or col.null_count == n:
+        if name in DERIVED_COLUMNS or name in WHERE_FROM or col.null_count == n:
             continue
         k = hash_array(np.array([name], dtype=object))[0] | np.uint64(1)
         if pa.types.is_string(col.type):  # hash each distinct text once, spread by index

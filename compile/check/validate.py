@@ -740,6 +740,7 @@ def _assemble_frame(st: _Preparing) -> None:
     out["replicate"] = st.replicate
     out["sheet"] = const(st.raw.sheet, n, "VARCHAR")
     out["sheet_row"] = st.raw.row_numbers
+    out["file_name"] = const(st.spec.file.name, st.n, "VARCHAR")
     if "position_kind" not in st.cols:
         out["position_kind"] = _position_kinds(st)
     types = dict(ANALYSES)
@@ -831,6 +832,7 @@ def _quarantine_bad_rows(st: _Preparing) -> None:
         st.quarantine.append(
             {
                 "sheet": raw.sheet,
+                "file_name": st.spec.file.name,
                 "sheet_row": int(raw.row_numbers[i]),
                 "cells_json": json.dumps(cells, ensure_ascii=False),
                 "reasons": "; ".join(rows.reasons.get(int(i), [])),
@@ -842,6 +844,7 @@ def _quarantine_bad_rows(st: _Preparing) -> None:
             st.quarantine.append(
                 {
                     "sheet": raw.sheet,
+                    "file_name": st.spec.file.name,
                     "sheet_row": int(digits) if digits else None,
                     "cells_json": json.dumps({"line": issue.value}, ensure_ascii=False),
                     "reasons": f"{issue.cell}: row shape",
