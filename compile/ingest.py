@@ -192,7 +192,14 @@ def _land(
         _check_tie_targets(tx, prepared, new_ties)
         runs = prepared.runs
         fixes = tx.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
-        derived = derive(prepared.records, settings, ties, runs=runs, corrections=fixes)
+        derived = derive(
+            prepared.records,
+            settings,
+            ties,
+            runs=runs,
+            corrections=fixes,
+            sections=prepared.sections,
+        )
         records = derived.table
         result.orphaned = _orphans(fixes, records)
         result.standards = runs.num_rows if runs is not None else 0
@@ -225,6 +232,7 @@ def _land(
             and old[0][-1] == len(prepared.quarantine)
             and _same_rows(old_ties, new_ties)
             and _same_runs(tx, sid, prepared.runs)
+            and _same_sections(tx, sid, prepared.sections)
             and not (result.added or result.removed or result.changed or result.moved)
         ):
             result.unchanged = True
@@ -295,7 +303,9 @@ def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
     settings = settings_from_store(store)
     if not is_store(store.path):
         _check_tie_targets(None, prepared, new_ties)
-        return derive(prepared.records, settings, new_ties, runs=prepared.runs)
+        return derive(
+            prepared.records, settings, new_ties, runs=prepared.runs, sections=prepared.sections
+        )
     con, _ = store.reader()
     try:
         reads = Reader(con)
@@ -306,7 +316,14 @@ def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
         )
     finally:
         con.close()
-    return derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
+    return derive(
+        prepared.records,
+        settings,
+        ties,
+        runs=prepared.runs,
+        corrections=fixes,
+        sections=prepared.sections,
+    )
 
 
 def _check_tie_targets(
@@ -368,6 +385,13 @@ def _same_runs(tx: Transaction, source_id: str, runs: pa.Table | None) -> bool:
     if runs is None:
         return bool(old.num_rows == 0)
     return bool(_same_rows(old.select(runs.column_names), runs))
+
+
+def _same_sections(tx: Transaction, source_id: str, sections: pa.Table) -> bool:
+    """Whether the source's stored sections (datum, names, accumulation prior …) equal the
+    incoming ones: a changed prior re-dates the source even when no record changed."""
+    old = tx.fetch("SELECT * FROM sections WHERE source_id = ?", [source_id])
+    return bool(_same_rows(old.select(sections.column_names), sections))
 
 
 def _age_changes(before: pa.Table, after: pa.Table) -> int:
