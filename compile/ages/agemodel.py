@@ -310,18 +310,18 @@ def _check_superposition(ordered: list[Tie], level: np.ndarray, position_kind: s
     ``SUPERPOSITION_SIGMAS`` σ of their age difference; the worst pair beyond it refuses."""
     age = np.array([t.age_ma for t in ordered], dtype=float)
     sig = np.array([t.age_sigma_ma for t in ordered], dtype=float)
-    i, j = np.triu_indices(len(ordered), 1)  # i above j (or at its level)
-    allowed = SUPERPOSITION_SIGMAS * np.hypot(sig[i], sig[j])
-    excess = np.where(level[i] < level[j], age[i] - age[j] - allowed, -np.inf)
-    k = int(np.argmax(excess))
-    if excess[k] <= 0:
+    # every pair at once: row i above column j
+    allowed = SUPERPOSITION_SIGMAS * np.hypot(sig[:, None], sig[None, :])
+    excess = np.where(level[:, None] < level[None, :], age[:, None] - age - allowed, -np.inf)
+    i, j = np.unravel_index(int(np.argmax(excess)), excess.shape)
+    if excess[i, j] <= 0:
         return
-    upper, lower = ordered[i[k]], ordered[j[k]]
+    upper, lower = ordered[i], ordered[j]
     raise DomainError(
         f"superposition is violated beyond the ties' errors: {upper.describe(position_kind)}"
         f" lies above {lower.describe(position_kind)} but is older by "
         f"{upper.age_ma - lower.age_ma:.4g} Myr, more than {SUPERPOSITION_SIGMAS:g}σ of "
-        f"the difference ({allowed[k]:.4g} Myr).",
+        f"the difference ({allowed[i, j]:.4g} Myr).",
         "Check the two ties' positions, the section's position kind "
         "(height or depth), their ages and their errors.",
     )
