@@ -292,6 +292,12 @@ def test_reproducible_with_a_seed_and_independent_of_chunking() -> None:
     c = draw_section(pos, _two_ties(), "depth", 300, 10)
     assert np.array_equal(a.draws, b.draws)
     assert not np.array_equal(a.draws, c.draws)
+    # segments of shapes other than 1 (a 0.5 m rest, a prior of shape 2) use another stream
+    ties = [*_two_ties(), Tie(100.5, 190.2, 0.1, "radiometric")]
+    prior = Accumulation(2.0, 1.0)
+    d = draw_section(pos, ties, "depth", 300, 9, prior=prior)
+    e = draw_section(pos, ties, "depth", 300, 9, prior=prior, chunk_draws=13)
+    assert np.array_equal(d.draws, e.draws)
 
 
 def test_height_and_depth_are_mirror_images() -> None:

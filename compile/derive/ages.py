@@ -274,10 +274,10 @@ def assign(
         )
         # numpy's stubs reject None in not_equal(); on objects it compares each with None
         dated = rows[np.not_equal(basis[rows], None)]  # type: ignore[call-overload]
-        for cid in sorted({str(c) for c in chain[dated]}):
-            pick = dated[chain[dated] == cid]
+        for cid, was in sorted({(str(chain[i]), str(status[i])) for i in dated}):
+            pick = dated[(chain[dated] == cid) & (status[dated] == was)]
             steps = [Step.from_dict(d) for d in json.loads(chains[cid])] + [step]
-            note = f"{status[pick[0]]}; no age model: {reason}"
+            note = f"{was}; no age model: {reason}"
             b = str(basis[pick[0]])
             put(pick, age[pick], sigma[pick], b, note, steps, lo95[pick], hi95[pick])
         rest = np.setdiff1d(rows, dated)
