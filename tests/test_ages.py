@@ -789,6 +789,34 @@ def test_a_section_that_loses_its_model_keeps_the_sigma_it_can_state(
     assert {r["age_basis"] for r in records(store)} == {"age model"}
 
 
+def test_a_tie_the_chart_cannot_place_leaves_its_section_without_a_model(tmp_path: Path) -> None:
+    # derive as a recompute does (strict=False): the section keeps its other ages and says
+    # why; as an ingest does (strict), the tie is refused naming it
+    from strata13.compile.ages.ties import ties_table
+    from strata13.compile.check.validate import prepare
+    from strata13.compile.derive.engine import derive
+    from strata13.compile.derive.settings import Settings
+    from strata13.compile.read.mapping import load_mapping
+
+    rows = [["x-1", 1.0, 1.0, "Toarcian"], ["x-2", 2.0, 1.1, ""]]
+    odd = {"section": "tarnwick-gully", "position": 3.0, "basis": "chart boundary"}
+    odd |= {"boundary": "Orvannian", "chart": "ICS2024/12", "id": "odd-base"}
+    m = write_section(
+        tmp_path / "x", rows, [radiometric(0.0, 184.0), odd], columns={"Stage": '"stage"'}
+    )
+    mapping = load_mapping(m)
+    prepared = prepare(mapping)
+    ties = ties_table(mapping.ties)
+    got = derive(prepared.records, Settings(), ties, strict=False, sections=prepared.sections)
+    assert len(got.conflicts) == 1 and "Orvannian" in got.conflicts[0]
+    by_pos = {r["position_m"]: r for r in got.table.to_pylist()}
+    assert by_pos[1.0]["age_basis"] == "stage only"
+    assert "cannot be placed" in by_pos[1.0]["age_status"]
+    assert by_pos[2.0]["age_status"].startswith("pending: no age model: a tie of the section")
+    with pytest.raises(DomainError, match="odd-base"):
+        derive(prepared.records, Settings(), ties, sections=prepared.sections)
+
+
 def test_a_section_with_one_tie_says_so(tmp_path: Path) -> None:
     rows = [["one-1", 1.0, 1.0, "Toarcian"], ["one-2", 2.0, 1.1, ""]]
     m = write_section(

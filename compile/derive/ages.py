@@ -39,6 +39,7 @@ if TYPE_CHECKING:
     import pyarrow as pa
 
 CHUNK = 512  # sample positions per stored age_draws row
+PENDING = "pending: no reported age, stage or age model"  # a record's status until dated
 METHOD = (
     "whole-section Monte Carlo draws: sequential truncated sampling of tie ages, "
     "gamma-process accumulation between ties (after Haslett & Parnell 2008), a "
@@ -239,7 +240,7 @@ def assign(
     age = np.full(n, np.nan)
     sigma = np.full(n, np.nan)
     basis = np.full(n, None, dtype=object)
-    status = np.full(n, "pending: no reported age, stage or age model", dtype=object)
+    status = np.full(n, PENDING, dtype=object)
     chain = np.full(n, None, dtype=object)
 
     lo95 = np.full(n, np.nan)
@@ -281,7 +282,10 @@ def assign(
             b = str(basis[pick[0]])
             put(pick, age[pick], sigma[pick], b, note, steps, lo95[pick], hi95[pick])
         rest = np.setdiff1d(rows, dated)
-        status[rest] = f"pending: no age model: {reason}"
+        plain = rest[status[rest] == PENDING]
+        status[plain] = f"pending: no age model: {reason}"
+        other = np.setdiff1d(rest, plain)  # pending for a reason of their own: both said
+        status[other] = [f"{st}; no age model: {reason}" for st in status[other]]
 
     _stage_only(table, scale, put, status)
     _reported(table, scale, put, status)
