@@ -52,90 +52,124 @@ def _options(settings: Settings) -> tuple[bool, int, int]:
 
 
 def ties_on_scale(
-    ties: list[dict[str, Any]], scale: str, policy: str = "borrow"
+    ties: list[dict[str, Any]],
+    scale: str,
+    policy: str = "borrow",
+    unplaced: list[str] | None = None,
 ) -> list[dict[str, Any]]:
     """Each tie's age and 1σ on ``scale``, with the step that put it there.
 
-    Adds ``age``, ``sigma``, ``shared_key`` and ``step`` to a copy of each tie. Raises
-    DomainError for a tie that cannot be placed (a boundary the chart does not have).
-    ``policy`` says what a chart boundary whose error the chart leaves blank gets
-    (``Settings.blank_boundary_sigma``).
+    Adds ``age``, ``sigma``, ``shared_key`` and ``step`` to a copy of each tie. A tie that
+    cannot be placed (a boundary the chart does not have, an age outside the boundaries
+    both charts share) raises DomainError, or, when ``unplaced`` is a list, is left out
+    and its message appended there. ``policy`` says what a chart boundary whose error the
+    chart leaves blank gets (``Settings.blank_boundary_sigma``); its refusal always raises.
     """
-    import numpy as np
-    from strata13.schemas import timescales
-
     out = []
     by_id = {t["tie_id"]: t for t in ties if t.get("tie_id")}
     placed: dict[str, float] = {}
     for t in sorted(ties, key=lambda t: t["basis"] == "astrochronologic"):
-        t = dict(t)
-        where = _tie_name(t)
-        basis = t["basis"]
-        if basis == "chart boundary":
-            chart = t["chart"] or scale
-            try:
-                unit = timescales.load(chart).unit(t["boundary"])
-                target = timescales.load(scale).by_key(unit.boundary_key)
-            except Exception as exc:  # the chart lacks the boundary: refuse, naming the tie
-                raise DomainError(
+        try:
+            out.append(_place(dict(t), scale, policy, by_id, placed))
+        except _Unplaced as exc:
+            if unplaced is None:
+                raise exc.error from None
+            unplaced.append(exc.error.message)
+    return out
+
+
+class _Unplaced(Exception):
+    """A tie the chart cannot place (carries the DomainError to raise)."""
+
+    def __init__(self, error: DomainError) -> None:
+        super().__init__(error.message)
+        self.error = error
+
+
+def _place(
+    t: dict[str, Any], scale: str, policy: str, by_id: dict[str, Any], placed: dict[str, float]
+) -> dict[str, Any]:
+    """One tie on ``scale`` (see ties_on_scale)."""
+    import numpy as np
+    from strata13.schemas import timescales
+
+    where = _tie_name(t)
+    basis = t["basis"]
+    if basis == "chart boundary":
+        chart = t["chart"] or scale
+        try:
+            unit = timescales.load(chart).unit(t["boundary"])
+            target = timescales.load(scale).by_key(unit.boundary_key)
+        except Exception as exc:  # the chart lacks the boundary: refuse, naming the tie
+            raise _Unplaced(
+                DomainError(
                     f"{where}: the boundary {t['boundary']!r} cannot be placed on "
                     f"{scale} ({getattr(exc, 'message', exc)}).",
                     "Name a stage, series or period of the tie's chart.",
-                ) from None
-            t["age"] = target.base_ma
-            t["sigma"], sigma_note = _boundary_sigma(scale, target, where, policy)
-            t["shared_key"] = f"{scale}:{target.boundary_key}"
-            t["step"] = {
-                "tie": where,
-                "method": "chart boundary: the boundary's base on the store's chart",
-                "from": chart,
-                "to": scale,
-                "age_ma": t["age"],
-                **({"sigma_from": sigma_note} if sigma_note else {}),
-            }
-        elif basis in ("biozone boundary", "correlation"):
-            new, _ = timescales.convert(np.array([t["age_ma"]]), t["chart"], scale)
-            if np.isnan(new[0]):
-                raise DomainError(
+                )
+            ) from None
+        t["age"] = target.base_ma
+        t["sigma"], sigma_note = _boundary_sigma(scale, target, where, policy)
+        t["shared_key"] = f"{scale}:{target.boundary_key}"
+        t["step"] = {
+            "tie": where,
+            "method": "chart boundary: the boundary's base on the store's chart",
+            "from": chart,
+            "to": scale,
+            "age_ma": t["age"],
+            **({"sigma_from": sigma_note} if sigma_note else {}),
+        }
+    elif basis in ("biozone boundary", "correlation"):
+        new, _ = timescales.convert(np.array([t["age_ma"]]), t["chart"], scale)
+        if np.isnan(new[0]):
+            raise _Unplaced(
+                DomainError(
                     f"{where}: {t['age_ma']} Ma on {t['chart']} lies outside the "
                     f"boundaries {t['chart']} and {scale} share.",
                     "Check the tie's age and chart.",
                 )
-            t["age"], t["sigma"] = float(new[0]), t["age_sigma_ma"] or 0.0
-            t["shared_key"] = (
-                f"biozone:{t['boundary'].strip().lower()}" if basis == "biozone boundary" else None
             )
-            t["step"] = {
-                "tie": where,
-                "method": f"{basis}: moves with its chart",
-                "from": t["chart"],
-                "to": scale,
-                "age_ma": t["age"],
-            }
-        elif basis == "astrochronologic":
-            anchor = by_id.get(t["anchor"])
-            if anchor is None or anchor["tie_id"] not in placed:
-                raise DomainError(
-                    f"{where}: its anchor {t['anchor']!r} is not a tie of the same section.",
-                    "Anchor it on a tie of its own section.",
+        t["age"], t["sigma"] = float(new[0]), t["age_sigma_ma"] or 0.0
+        t["shared_key"] = (
+            f"biozone:{t['boundary'].strip().lower()}" if basis == "biozone boundary" else None
+        )
+        t["step"] = {
+            "tie": where,
+            "method": f"{basis}: moves with its chart",
+            "from": t["chart"],
+            "to": scale,
+            "age_ma": t["age"],
+        }
+    elif basis == "astrochronologic":
+        anchor = by_id.get(t["anchor"])
+        if anchor is None:
+            raise DomainError(
+                f"{where}: its anchor {t['anchor']!r} is not a tie of the same section.",
+                "Anchor it on a tie of its own section.",
+            )
+        if anchor["tie_id"] not in placed:  # the anchor itself could not be placed
+            raise _Unplaced(
+                DomainError(
+                    f"{where}: its anchor {t['anchor']!r} cannot be placed on {scale}.",
+                    "Check the anchor tie's boundary and chart.",
                 )
-            t["age"] = placed[anchor["tie_id"]] + (t["age_ma"] - anchor["age_ma"])
-            t["sigma"] = t["age_sigma_ma"] or 0.0
-            t["shared_key"] = None
-            t["step"] = {
-                "tie": where,
-                "method": f"astrochronologic: keeps its duration from anchor {anchor['tie_id']}",
-                "to": scale,
-                "age_ma": t["age"],
-            }
-        else:  # radiometric
-            t["age"], t["sigma"], t["shared_key"] = t["age_ma"], t["age_sigma_ma"] or 0.0, None
-            t["step"] = {"tie": where, "method": "radiometric: keeps its age", "age_ma": t["age"]}
-        t["step"]["sigma_ma"] = t["sigma"]  # every tie's 1σ on the store's chart, in its chain
-        if t.get("tie_id"):
-            placed[t["tie_id"]] = t["age"]
-        out.append(t)
-    return out
+            )
+        t["age"] = placed[anchor["tie_id"]] + (t["age_ma"] - anchor["age_ma"])
+        t["sigma"] = t["age_sigma_ma"] or 0.0
+        t["shared_key"] = None
+        t["step"] = {
+            "tie": where,
+            "method": f"astrochronologic: keeps its duration from anchor {anchor['tie_id']}",
+            "to": scale,
+            "age_ma": t["age"],
+        }
+    else:  # radiometric
+        t["age"], t["sigma"], t["shared_key"] = t["age_ma"], t["age_sigma_ma"] or 0.0, None
+        t["step"] = {"tie": where, "method": "radiometric: keeps its age", "age_ma": t["age"]}
+    t["step"]["sigma_ma"] = t["sigma"]  # every tie's 1σ on the store's chart, in its chain
+    if t.get("tie_id"):
+        placed[t["tie_id"]] = t["age"]
+    return t
 
 
 def _boundary_sigma(scale: str, target: Any, where: str, policy: str) -> tuple[float, str]:
@@ -470,14 +504,13 @@ def _models(
     for k, v in sorted(by_section.items()):
         if k not in wanted:
             continue
-        try:
-            placed[k] = ties_on_scale(v, scale, policy)
-        except DomainError as exc:
-            if strict:  # ties being ingested: refuse them
-                raise
+        unplaced: list[str] | None = None if strict else []  # ingest: refuse them
+        placed[k] = ties_on_scale(v, scale, policy, unplaced)
+        if unplaced:  # a recompute onto a chart that cannot place a tie: no model
+            del placed[k]
             rows = np.flatnonzero((src == k[0]) & (sec == k[1]))
-            lost(rows, f"a tie of the section cannot be placed on {scale}", exc.message)
-            conflicts.append(f"{k[0]}/{k[1]}: {exc.message}")
+            lost(rows, f"a tie of the section cannot be placed on {scale}", unplaced[0])
+            conflicts.append(f"{k[0]}/{k[1]}: {unplaced[0]}")
     keys = sorted({t["shared_key"] for v in placed.values() for t in v if t["shared_key"]})
     shared = agemodel.shared_offsets(keys, n_draws, seed)
     draws_rows: list[dict[str, Any]] = []
