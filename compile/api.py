@@ -587,11 +587,16 @@ def redate(
     extrapolation: bool | None = None,
     draws: int | None = None,
     blank_boundary_sigma: str | None = None,
+    accumulation_shape: float | None = None,
+    accumulation_segment_m: float | None = None,
 ) -> RecomputeResult:
     """Change the store's chart or age-model settings and re-derive every age (one commit,
     or none when nothing changes); returns a RecomputeResult. ``blank_boundary_sigma``:
     what a chart boundary with a blank error gets as 1σ ("borrow" from the nearest chart
-    that states one, "refuse", or a σ in Myr)."""
+    that states one, "refuse", or a σ in Myr). ``accumulation_shape`` and
+    ``accumulation_segment_m``: the store's accumulation prior between ties (the time one
+    segment of that many metres took is Gamma(shape)); a section's own prior in its mapping
+    block still wins."""
     from strata13.compile.derive.recompute import recompute
 
     change: dict[str, Any] = {}
@@ -610,6 +615,19 @@ def redate(
         from strata13.compile.derive.settings import blank_sigma_policy
 
         change["blank_boundary_sigma"] = blank_sigma_policy(blank_boundary_sigma)
+    for key, value, option, setting in (
+        ("shape", accumulation_shape, "--accumulation-shape", "age_accumulation_shape"),
+        (
+            "segment_m",
+            accumulation_segment_m,
+            "--accumulation-segment",
+            "age_accumulation_segment_m",
+        ),
+    ):
+        if value is not None:
+            from strata13.compile.ages.agemodel import prior_value
+
+            change[setting] = prior_value(key, value, option, OptionError)
     return recompute(store, change, "redate")
 
 

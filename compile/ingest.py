@@ -347,7 +347,14 @@ def _land(
             prepared = with_other_files(tx, prepared)
         runs = prepared.runs
         fixes = tx.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
-        derived = derive(prepared.records, settings, ties, runs=runs, corrections=fixes)
+        derived = derive(
+            prepared.records,
+            settings,
+            ties,
+            runs=runs,
+            corrections=fixes,
+            sections=prepared.sections,
+        )
         records = derived.table
         result.orphaned = _orphans(fixes, records)
         result.standards = runs.num_rows if runs is not None else 0
@@ -381,6 +388,7 @@ def _land(
             and old[0][-1] == len(prepared.quarantine)
             and _same_rows(old_ties, new_ties)
             and _same_runs(tx, sid, prepared.runs)
+            and _same_sections(tx, sid, prepared.sections)
             and not (result.added or result.removed or result.changed or result.moved)
         ):
             result.unchanged = True
@@ -454,7 +462,10 @@ def _dry_run(
     settings = settings_from_store(store)
     if not is_store(store.path):
         _check_tie_targets(None, prepared, new_ties)
-        return derive(prepared.records, settings, new_ties, runs=prepared.runs), 0
+        derived = derive(
+            prepared.records, settings, new_ties, runs=prepared.runs, sections=prepared.sections
+        )
+        return derived, 0
     sid = prepared.mapping.source_id
     con, _ = store.reader()
     try:
@@ -475,7 +486,14 @@ def _dry_run(
         redated = sum(_age_changes(r, d.table) for r, d in others.values())
     finally:
         con.close()
-    derived = derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
+    derived = derive(
+        prepared.records,
+        settings,
+        ties,
+        runs=prepared.runs,
+        corrections=fixes,
+        sections=prepared.sections,
+    )
     return derived, redated
 
 
@@ -538,6 +556,13 @@ def _same_runs(tx: Transaction, source_id: str, runs: pa.Table | None) -> bool:
     if runs is None:
         return bool(old.num_rows == 0)
     return bool(_same_rows(old.select(runs.column_names), runs))
+
+
+def _same_sections(tx: Transaction, source_id: str, sections: pa.Table) -> bool:
+    """Whether the source's stored sections (datum, names, accumulation prior …) equal the
+    incoming ones: a changed prior re-dates the source even when no record changed."""
+    old = tx.fetch("SELECT * FROM sections WHERE source_id = ?", [source_id])
+    return bool(_same_rows(old.select(sections.column_names), sections))
 
 
 def _age_changes(before: pa.Table, after: pa.Table) -> int:

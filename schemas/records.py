@@ -155,6 +155,10 @@ SECTIONS = [
     ("offset_from", TEXT),
     ("offset_source", TEXT),
     ("note", TEXT),
+    # the section's own accumulation prior for its age model ([[sections]] accumulation);
+    # empty: the store's setting
+    ("accumulation_shape", REAL),
+    ("accumulation_segment_m", REAL),
 ]
 SAMPLES = [
     ("source_id", TEXT),

@@ -240,6 +240,8 @@ def sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: A
                 "offset_from": b.get("offset_from"),
                 "offset_source": b.get("offset_source"),
                 "note": b.get("note"),
+                "accumulation_shape": (b.get("accumulation") or {}).get("shape"),
+                "accumulation_segment_m": (b.get("accumulation") or {}).get("segment_m"),
             }
         )
     return pa.Table.from_pylist(rows, schema=arrow_schema(SECTIONS))

@@ -82,7 +82,10 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         ties = tx.fetch("SELECT * FROM age_ties")
         runs = tx.fetch("SELECT * FROM runs")
         fixes = tx.fetch("SELECT * FROM corrections")
-        derived = derive(table, settings, ties, strict=False, runs=runs, corrections=fixes)
+        secs = tx.fetch("SELECT * FROM sections")
+        derived = derive(
+            table, settings, ties, strict=False, runs=runs, corrections=fixes, sections=secs
+        )
         result = RecomputeResult(
             command,
             None,

@@ -18,6 +18,8 @@ from strata13.schemas.timescales import DEFAULT_VERSION as DEFAULT_TIME_SCALE
 from strata13.errors import OptionError
 
 __all__ = [
+    "DEFAULT_ACCUMULATION_SEGMENT_M",
+    "DEFAULT_ACCUMULATION_SHAPE",
     "DEFAULT_AGE_DRAWS",
     "DEFAULT_AGE_SEED",
     "DEFAULT_TIME_SCALE",
@@ -30,6 +32,13 @@ __all__ = [
 DEFAULT_VSMOW_CONSTANTS = "IUPAC-2014"  # the VSMOW–VPDB relation (harmonise.oxygen)
 DEFAULT_AGE_DRAWS = 1000  # Monte Carlo draws per section age model
 DEFAULT_AGE_SEED = 13  # their seed: the same store gives the same draws
+# The accumulation prior of age models between ties (compile/ages/agemodel.py): the time one
+# segment of DEFAULT_ACCUMULATION_SEGMENT_M metres took is Gamma(DEFAULT_ACCUMULATION_SHAPE)
+# before the ties are known. Shape 1 per 1 m: exponential, coefficient of variation 1 per
+# metre — a weak prior of the order gamma-process age–depth models commonly use (from
+# memory), not a published value for any section. A section's mapping block may override it.
+DEFAULT_ACCUMULATION_SHAPE = 1.0
+DEFAULT_ACCUMULATION_SEGMENT_M = 1.0
 
 
 def _digest(value: Any) -> str:
@@ -49,6 +58,8 @@ class Settings:
     age_extrapolation: bool = False  # age models extrapolate beyond their outermost ties
     age_draws: int = DEFAULT_AGE_DRAWS
     age_seed: int = DEFAULT_AGE_SEED
+    age_accumulation_shape: float = DEFAULT_ACCUMULATION_SHAPE  # gamma shape per segment
+    age_accumulation_segment_m: float = DEFAULT_ACCUMULATION_SEGMENT_M  # segment length (m)
     # what a chart boundary whose error the chart leaves blank gets as 1σ: "borrow" (from
     # the nearest shipped chart that states one), "refuse", or a stated σ in Myr as text
     blank_boundary_sigma: str = "borrow"

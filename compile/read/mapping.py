@@ -60,7 +60,9 @@ SECTION_KEYS = {
     "offset_from",
     "offset_source",
     "note",
+    "accumulation",
 }
+ACCUMULATION_KEYS = {"shape", "segment_m"}  # a section's own accumulation prior
 LOCALITY_KEYS = {"id", "name", "lat", "lon", "precision_km", "aliases", "note", "plate"}
 
 
@@ -541,6 +543,7 @@ def _check_sections_and_localities(st: _Loading) -> None:
     _check_block_ids("localities", localities, LOCALITY_KEYS, path)
     _check_plates(localities, path)
     _resolve_section_terms(sections, path)
+    _check_accumulation(sections, path)
     st.sections, st.localities = sections, localities
 
 
@@ -592,6 +595,27 @@ def _resolve_section_terms(sections: list[dict[str, Any]], path: Path) -> None:
                         f"Known: {', '.join(vocabulary(vocab).terms)}.",
                     )
                 s[key] = term
+
+
+def _check_accumulation(sections: list[dict[str, Any]], path: Path) -> None:
+    """A section's ``accumulation = { shape = …, segment_m = … }``: its own prior for the
+    age model (either key alone keeps the store's value of the other)."""
+    from strata13.compile.ages.agemodel import prior_value
+
+    for s in sections:
+        if "accumulation" not in s:
+            continue
+        block = s["accumulation"]
+        where = f"section {s['id']!r} accumulation"
+        if not isinstance(block, dict) or not block:
+            raise ConfigError(
+                f"{path.name}: {where} = {block!r} is not a table of shape and segment_m.",
+                "Write accumulation = { shape = 1.0, segment_m = 1.0 } (either key may go).",
+            )
+        _unknown_keys(where, block, ACCUMULATION_KEYS, path)
+        s["accumulation"] = {
+            k: prior_value(k, v, f"{path.name}: {where} {k}", ConfigError) for k, v in block.items()
+        }
 
 
 def _check_rows_have_a_section(st: _Loading) -> None:
