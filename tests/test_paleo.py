@@ -154,6 +154,25 @@ angle_deg = 3
         load_model(tmp_path / "nope.toml")
 
 
+def test_the_readme_example_and_the_demo_model_read() -> None:
+    # The README documents the format with an example document: it must read as described.
+    import re
+
+    from strata13.compile.demo import demo_folder
+
+    readme = (Path(__file__).parents[1] / "README.md").read_text(encoding="utf-8")
+    (block,) = [b for b in re.findall(r"```toml\n(.*?)```", readme, re.S) if "[model]" in b]
+    m = parse_model(block, "README")
+    terrane = m.plates["skellan-terrane"]
+    assert [s.partner for s in terrane.spans] == ["brevandel-block", "paleomagnetic"]
+    assert terrane.spans[1].ages.tolist() == [120.0, 200.0] and terrane.oldest_ma == 200
+    demo = load_model(demo_folder() / "rotations.toml")
+    assert demo.names == ("brevandel-block", "calderin-block")
+    polys = plates.load_polygons(demo_folder() / "plates.geojson")
+    plates.check_against_model(polys, demo.names, "plates.geojson")
+    assert polys.names == demo.names
+
+
 def test_the_retired_csv_layout_is_refused_with_one_sentence() -> None:
     csv_text = "# model: x\n# frame: paleomagnetic\nplate_id,age_ma\n1,0\n"
     for text, name in ((csv_text, "m.txt"), (MODEL, "m.csv")):
@@ -556,7 +575,7 @@ def test_the_header_is_checked() -> None:
         parse_model('[model]\nname = "x"\nframe = "magnetic"\n' + body, "m.toml")
     assert "model: citation is missing" in err.value.message
     assert "frame 'magnetic' is not one of paleomagnetic, mantle, other" in err.value.message
-    with pytest.raises(ConfigError, match=r"\[model\]: is missing"):
+    with pytest.raises(ConfigError, match=r"the \[model\] table is missing"):
         parse_model(body, "m.toml")
     with pytest.raises(ConfigError, match="has no plates"):
         parse_model(HEAD, "m.toml")

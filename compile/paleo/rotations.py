@@ -250,6 +250,7 @@ class _Problems:
         self.items: list[str] = []
 
     def add(self, where: str, what: str) -> None:
+        what = what.rstrip(".")
         self.items.append(f"{where}: {what}" if where else what)
 
     def unknown_keys(self, where: str, table: Mapping[str, Any], keys: Sequence[str]) -> None:
@@ -265,7 +266,8 @@ class _Problems:
             n = len(self.items)
             raise ConfigError(
                 f"the rotation model {self.name} has {n} problem{'s' if n > 1 else ''}: "
-                + "; ".join(self.items),
+                + "; ".join(self.items)
+                + ".",
                 "Fix each named entry (positions count from 1). " + FORMAT_HINT,
             )
 
@@ -412,8 +414,8 @@ def _check_partners(spans: Mapping[str, list[_RawSpan]], frame: str, out: _Probl
     for slug, plate_spans in spans.items():
         for span in plate_spans:
             p = span.partner
-            if not p or p == frame or p in spans and p != slug:
-                continue
+            if not p or p == frame or p in spans and p != slug or p in FRAMES and not frame:
+                continue  # (a frame word is checked once the model's frame is known)
             if p == slug:
                 out.add(span.where, "a plate cannot move against itself.")
             elif p in FRAMES:
@@ -455,16 +457,18 @@ def parse_model(text: str, name: str = "rotation model") -> RotationModel:
     out = _Problems(name)
     out.unknown_keys("", doc, ("model", "plate"))
     header = doc.get("model")
+    model_name = citation = description = frame = ""
     if not isinstance(header, dict):
-        out.add("[model]", "is missing (name, frame and citation of the model).")
-        header = {}
-    out.unknown_keys("model", header, MODEL_KEYS)
-    model_name = _text(header, "name", "model", out, need=True)
-    citation = _text(header, "citation", "model", out, need=True)
-    description = _text(header, "description", "model", out, need=False)
-    frame = _text(header, "frame", "model", out, need=True).lower()
-    if frame and frame not in FRAMES:
-        out.add("model", f"frame {frame!r} is not one of {', '.join(FRAMES)}.")
+        out.add("", "the [model] table is missing (its name, frame and citation)")
+    else:
+        out.unknown_keys("model", header, MODEL_KEYS)
+        model_name = _text(header, "name", "model", out, need=True)
+        citation = _text(header, "citation", "model", out, need=True)
+        description = _text(header, "description", "model", out, need=False)
+        frame = _text(header, "frame", "model", out, need=True).lower()
+        if frame and frame not in FRAMES:
+            out.add("model", f"frame {frame!r} is not one of {', '.join(FRAMES)}")
+            frame = ""
     plates_doc = doc.get("plate")
     if not isinstance(plates_doc, dict) or not plates_doc:
         out.add("", "the model has no plates (add a [plate.<name>] table).")
