@@ -234,7 +234,7 @@ def agemodel(
 
 
 def replace_rotations(
-    model: Annotated[Path, typer.Argument(help="Rotation model (CSV).")],
+    model: Annotated[Path, typer.Argument(help="Rotation model (TOML, README 'Paleogeography').")],
     polygons: Annotated[Path, typer.Argument(help="Plate polygons (GeoJSON).")],
     store: StoreOpt = None,
 ) -> None:

@@ -17,8 +17,9 @@ ByOpt = Annotated[
     str | None,
     typer.Option(
         "--by",
-        help="Group by region | paleolat-band | source | setting | component (default: "
-        "component and setting).",
+        help="Group by region | paleolat-band[:DEG] | source | setting | component (default: "
+        "component and setting). paleolat-band:15 makes bands of 15° (a divisor of 180; "
+        "default 30).",
         show_default=False,
     ),
 ]

@@ -201,8 +201,10 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
 
 
 def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any]:
-    """Store settings for a rotation model and its plate polygons (both checked now; their
-    text is kept in the store, so the store reproduces its paleo-positions alone)."""
+    """Store settings for a rotation model and its plate polygons (both checked now, and
+    every plate the polygons name must be in the model; their text is kept in the store,
+    so the store reproduces its paleo-positions alone). A retired CSV model goes."""
+    from strata13.compile.derive.paleo import RETIRED_MODEL_KEY
     from strata13.compile.paleo import plates, rotations
     from strata13.compile.read.inputs import read_text
 
@@ -217,12 +219,14 @@ def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any
         raise ConfigError(
             f"{Path(polygons).name} is not valid JSON ({exc}).", "Check the GeoJSON file."
         ) from None
-    plates.parse_polygons(doc, Path(polygons).name)
+    polys = plates.parse_polygons(doc, Path(polygons).name)
+    plates.check_against_model(polys, m.names, Path(polygons).name)
     return {
-        "rotation_model_csv": texts[0],
+        "rotation_model_toml": texts[0],
         "plate_polygons_geojson": texts[1],
         "rotation_model_name": m.name,
         "rotation_frame": m.frame,
+        RETIRED_MODEL_KEY: None,
     }
 
 
@@ -479,7 +483,13 @@ def _export_records(
     con, version = store.reader(as_of)
     try:
         stored = store.settings(version)
-        long = ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
+        long = (
+            "screen_rules",
+            "rotation_model_toml",
+            "rotation_model_csv",  # a store's retired model, until replaced
+            "plate_polygons_geojson",
+            "materials_csv",
+        )
         result: ExportResult = _export.export(
             con,
             version,

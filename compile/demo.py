@@ -63,7 +63,7 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
         store_dir,
         regions=data / "regions.geojson",
         made_by="demo",
-        rotations=(data / "rotations.csv", data / "plates.geojson"),
+        rotations=(data / "rotations.toml", data / "plates.geojson"),
     )
     yield "say", f"store: {store.path}   (try: strata13 sources --store {store.path})"
     for sheet, mapping in SHEETS:

@@ -82,7 +82,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("age_basis", TEXT),
     ("time_scale", TEXT),
     ("age_status", TEXT),
-    ("plate_id", INT),
+    ("plate_id", TEXT),  # the plate's name in the rotation model (INTEGER before names)
     ("paleolat", REAL),
     ("paleolon", REAL),
     ("paleo_model", TEXT),
@@ -108,7 +108,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("run_position", REAL),
     ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
     ("corrected_fields", TEXT),  # JSON list of the fields a stored correction changed
-    ("plate_override", INT),  # the mapping's plate for the record's locality (displaced terranes)
+    ("plate_override", TEXT),  # the mapping's plate (a name) for the locality (displaced terranes)
     ("paleolat_sigma", REAL),  # 1σ of paleolatitude from the model's pole uncertainties
     ("screen_reason", TEXT),  # why the record has its screen state (rules named)
     # analytical precision (1σ) as the sheet states it; ``{d}_precision`` is derived from it
@@ -116,6 +116,14 @@ ANALYSES: list[tuple[str, str]] = [
     *((f"{d}_precision_reported", REAL) for d in DELTA_FIELDS),
     ("file_name", TEXT),  # the file the record was read from (a source may hold several)
 ]
+
+# Columns whose stored type changed: (table, column) -> the type they had before. A store
+# written before keeps reading (its views cast them to today's type) and the first write
+# converts them in place (``Store.migrate``): the old plate numbers become text.
+RETYPED: dict[tuple[str, str], str] = {
+    ("analyses", "plate_id"): INT,
+    ("analyses", "plate_override"): INT,
+}
 
 SOURCES = [
     ("source_id", TEXT),

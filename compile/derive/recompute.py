@@ -125,6 +125,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             if k
             not in (
                 "screen_rules",
+                "rotation_model_toml",
                 "rotation_model_csv",
                 "plate_polygons_geojson",
                 "materials_csv",

@@ -3,7 +3,8 @@
 Every default lives here (the newest shipped chart is the default time scale). A store keeps
 its settings as one row per key (``stored``); a store written before a setting existed reads
 back with that setting's default, and keys this version does not know are kept in ``extra``
-so nothing a newer version wrote is lost.
+so nothing a newer version wrote is lost. A setting given as None is unset (a retired key
+such as ``rotation_model_csv`` goes when a recompute replaces what it held).
 """
 
 from __future__ import annotations
@@ -72,7 +73,8 @@ class Settings:
     screen_untested_passes: bool = False  # whether a rule that could not run counts as passed
     materials_csv: str | None = None  # the user's reference-material file, as text
     material_values: dict[str, Any] | None = None  # value set accepted per material/isotope
-    rotation_model_csv: str | None = None  # rotation model and plate polygons, as text
+    # the rotation model (the TOML document, paleo/rotations.py) and plate polygons, as text
+    rotation_model_toml: str | None = None
     plate_polygons_geojson: str | None = None
     rotation_model_name: str | None = None
     rotation_frame: str | None = None
@@ -99,7 +101,8 @@ class Settings:
         """Settings from the stored rows; a missing key takes its default."""
         known = {f.name for f in fields(cls)} - {"extra"}
         given = {k: v for k, v in values.items() if k in known}
-        return cls(**given, extra={k: v for k, v in values.items() if k not in known})
+        rest = {k: v for k, v in values.items() if k not in known and v is not None}
+        return cls(**given, extra=rest)
 
     def hashes(self) -> dict[str, str]:
         """One content hash per setting (SHA-256 of its JSON, 16 hex digits)."""

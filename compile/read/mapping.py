@@ -568,16 +568,17 @@ def _check_block_ids(kind: str, blocks: list[Any], keys: set[str], path: Path) -
 
 
 def _check_plates(localities: list[dict[str, Any]], path: Path) -> None:
-    """A locality's plate override is a plate id of the rotation model, a whole number."""
+    """A locality's plate override names a plate of the rotation model (a slug)."""
+    from strata13.compile.paleo.names import plate_name_problem
+
     for loc_block in localities:
         plate = loc_block.get("plate")
-        if plate is not None and (
-            not isinstance(plate, int) or isinstance(plate, bool) or plate < 1
-        ):
+        why = None if plate is None else plate_name_problem(plate)
+        if why:
             raise ConfigError(
-                f"{path.name}: locality {loc_block['id']!r} plate = {plate!r} is not a plate id.",
-                "Give the plate id (a whole number ≥ 1) of "
-                "the rotation model this locality rides on.",
+                f"{path.name}: locality {loc_block['id']!r} plate = {why}.",
+                "Give the name of the rotation model's plate this locality rides on, e.g. "
+                'plate = "calderin-block".',
             )
 
 

@@ -31,7 +31,7 @@ from strata13.compile.store.extensions import connect
 from strata13.compile.store.relations import bind_views
 from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
-from strata13.schemas.records import TABLES
+from strata13.schemas.records import RETYPED, TABLES
 
 from strata13.errors import Interrupted, NotAStoreError, StoreError
 
@@ -292,8 +292,9 @@ class Store:
             con.close()
 
     def migrate(self, con: duckdb.DuckDBPyConnection) -> list[str]:
-        """Add the columns today's schema has and the store's tables lack (inside the
-        caller's transaction, under the writer lock). Returns what was added."""
+        """Add the columns today's schema has and the store's tables lack, and convert the
+        columns whose type changed (``records.RETYPED``: the values cast to today's type),
+        inside the caller's transaction, under the writer lock. Returns what was changed."""
         added = []
         existing = {
             r[0]
@@ -309,7 +310,10 @@ class Store:
                 continue
             have = {r[0]: r[1] for r in con.execute(f"DESCRIBE lake.{name}").fetchall()}
             for col, sqltype in columns:
-                if col in have and have[col] != sqltype:
+                if col in have and have[col] == RETYPED.get((name, col)) != sqltype:
+                    _retype(con, name, col, sqltype)
+                    added.append(f"{name}.{col} ({have[col]} → {sqltype})")
+                elif col in have and have[col] != sqltype:
                     raise StoreError(
                         f"{self.path}: column {name}.{col} is {have[col]} but this "
                         f"strata13 writes {sqltype}.",
@@ -361,6 +365,17 @@ class Store:
             Version(int(v), str(snaps.get(v, ""))[:19], c, d, json.loads(s or "{}"))
             for v, c, d, s in rows
         ]
+
+
+def _retype(con: duckdb.DuckDBPyConnection, table: str, col: str, sqltype: str) -> None:
+    """Give ``col`` its new type, every value cast (DuckLake alters only to wider types, so
+    the column is renamed, recreated, filled and the old one dropped; earlier versions keep
+    their own)."""
+    old = f"{col}__before_retype"
+    con.execute(f'ALTER TABLE lake.{table} RENAME COLUMN "{col}" TO "{old}"')
+    con.execute(f'ALTER TABLE lake.{table} ADD COLUMN "{col}" {sqltype}')
+    con.execute(f'UPDATE lake.{table} SET "{col}" = CAST("{old}" AS {sqltype})')
+    con.execute(f'ALTER TABLE lake.{table} DROP COLUMN "{old}"')
 
 
 def _row_table(table: str, row: dict[str, Any]) -> Any:

@@ -30,8 +30,48 @@ if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
 
 BY = ("region", "paleolat-band", "source", "setting", "component")
+BAND = "paleolat-band"  # takes a width: --by paleolat-band:15
+DEFAULT_BAND_DEG = 30.0
 ISOTOPES = {"carb": "d13c_carb", "org": "d13c_org"}
 GRID_POINTS = 241
+
+
+def band_width(by: str | None) -> float | None:
+    """The band width (degrees) of ``--by paleolat-band[:DEG]``, None for another grouping.
+
+    A width divides 180 (5, 10, 15, 30, 45, 7.5 …), so the bands tile the globe from pole to
+    pole with the equator on an edge."""
+    if by is None or by.split(":", 1)[0] != BAND:
+        if by is not None and ":" in by:
+            raise OptionError(
+                f"--by {by!r}: only {BAND} takes a value after ':'.", "Example: --by region"
+            )
+        return None
+    _, sep, text = by.partition(":")
+    if not sep:
+        return DEFAULT_BAND_DEG
+    try:
+        width = float(text)
+    except ValueError:
+        width = math.nan
+    parts = 180.0 / width if width > 0 else math.nan
+    if not (0 < width <= 180 and abs(parts - round(parts)) < 1e-9):
+        raise OptionError(
+            f"--by {by!r}: the band width {text!r} is not a number of degrees that divides 180.",
+            f"Example: --by {BAND}:15 (bands of 15°; the default is {DEFAULT_BAND_DEG:g}°).",
+        )
+    return width
+
+
+def band_labels(paleolat: pd.Series, width: float) -> pd.Series:
+    """Each paleolatitude's band, e.g. '+30° to +60°' (90°N falls in the top band)."""
+    import numpy as np
+    import pandas as pd
+
+    low = np.minimum(np.floor(paleolat / width) * width, 90.0 - width)
+    return low.map(
+        lambda b: "no paleolatitude" if pd.isna(b) else f"{b + 0.0:+g}° to {b + width:+g}°"
+    )
 
 
 @dataclass
@@ -58,10 +98,11 @@ class CurveRequest:
                 f"--isotope {self.isotope!r} is not carb or org.",
                 "Curves are of carbonate (carb) or organic (org) δ13C.",
             )
-        if self.by is not None and self.by not in BY:
+        if self.by is not None and self.by.split(":", 1)[0] not in BY:
             raise OptionError(
                 f"--by {self.by!r} is not one of {', '.join(BY)}.", "Example: --by region"
             )
+        band_width(self.by)
         if self.bin_myr is not None and not self.bin_myr > 0:
             raise OptionError(
                 f"--bin-myr {self.bin_myr:g} must be above 0.", "Example: --bin-myr 0.5"
@@ -131,7 +172,6 @@ def samples_for(
     store: Store, filters: Filters, req: CurveRequest, *, as_of: int | None = None
 ) -> Samples:
     """The filtered records, one value per sample, each with its group label."""
-    import numpy as np
     import pandas as pd
     from strata13.compile.query.filters import run, screen_left_out
     from strata13.compile.synthesis.curve import average_replicates
@@ -187,16 +227,13 @@ def samples_for(
         )
     elif req.by == "region":
         label = pd.Series(_region_names(store, data["lon"], data["lat"]), index=data.index)
-    elif req.by == "paleolat-band":
+    elif (width := band_width(req.by)) is not None:
         if data["paleolat"].isna().all():
             raise DomainError(
                 "no matching record has a paleolatitude (the store has no rotation model yet).",
                 "Group --by region, source, setting or component instead.",
             )
-        band = np.floor(data["paleolat"] / 30.0) * 30.0
-        label = band.map(
-            lambda b: "no paleolatitude" if pd.isna(b) else f"{b:+.0f}° to {b + 30:+.0f}°"
-        )
+        label = band_labels(data["paleolat"], width)
     else:
         label = data[{"source": "source_id"}.get(req.by, req.by)].fillna(f"{req.by} not stated")
     if not merged and req.by is not None and req.by != "component":
