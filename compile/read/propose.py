@@ -442,15 +442,21 @@ def _write(
     sections = _distinct(by_field["section_id"].values)[:200] if "section_id" in by_field else []
     out += _sections(sections, by_field, fill)
     if any(m.scale == "raw" for m in matches):
+        from strata13.schemas.materials import shipped_materials
+
+        known = {v.material for v in shipped_materials()}
+        ids = by_field["sample_id"].values if "sample_id" in by_field else []
+        found = [v for v in _distinct(ids) if v in known]
         out += [
             "",
             "# an in-house run: the reference materials measured in it",
             "[run]",
-            f"anchors = [{_fill('two reference materials the run is normalised to')}]",
-            '# checks = ["…"]                  # materials measured as unknowns',
+            *(["# reference materials among the sample ids: " + ", ".join(found)] if found else []),
+            f"anchors = [{_fill('the reference materials the run is normalised to')}]",
+            f"checks = [{_fill('the materials measured as unknowns, or leave the list empty')}]",
             "drift = false",
         ]
-        fill.append("[run] anchors")
+        fill += ["[run] anchors", "[run] checks"]
     if notes_above:
         out += ["", "# text above the header: " + notes_above[:300]]
     return Proposal("\n".join(out) + "\n", header_row, matches, fill, sections)
