@@ -92,6 +92,7 @@ __all__ = [
     "materials_settings",
     "neutralise",
     "open_store",
+    "per_sample",
     "output_dir",
     "output_file",
     "overlaps",
@@ -421,6 +422,14 @@ def query_arrow(store: Store, filters: Filters | None = None, as_of: int | None 
         raise _store_read_error(exc, store) from None
     finally:
         con.close()
+
+
+def per_sample(records: pa.Table) -> pa.Table:
+    """Records averaged to one row per sample: the mean of each δ value and age with the
+    number of analyses and their SD (``query.samples.per_sample``)."""
+    from strata13.compile.query.samples import per_sample as _per_sample
+
+    return _per_sample(records)
 
 
 def query(store: Store, filters: Filters | None = None, as_of: int | None = None) -> pd.DataFrame:
