@@ -216,6 +216,25 @@ def test_a_run_file_gets_a_run_block_to_fill(tmp_path: Path) -> None:
     assert doc["source"]["kind"] == "in-house" and "run" in doc
     assert {"[run] anchors", "[run] checks", "[constants] run_id"} <= set(p.placeholders)
     assert "# reference materials among the sample ids: IAEA-603, NBS-18" in p.text
+    values = BASICS | {
+        "component": '"micrite"',
+        "section_id": '"run-section"',
+        "run_id": '"R9"',
+        "anchors": '["IAEA-603", "NBS-18"]',
+        "checks": "[]",
+    }
+    (tmp_path / "run.toml").write_text(fill(p.text, values), encoding="utf-8")
+    api.ingest(tmp_path / "store", None, tmp_path / "run.toml")
+    rows = api.sql(
+        api.open_store(tmp_path / "store"),
+        "SELECT sample_id, d13c_carb FROM records ORDER BY 1",
+    ).rows
+    # two-point normalisation through the anchors' accepted δ13C (IAEA-603 2.460, IAEA 2020;
+    # NBS-18 −5.014, IAEA sheet): slope (2.460 + 5.014) / (2.10 + 5.40), closed form
+    slope = (2.460 + 5.014) / (2.10 + 5.40)
+    want = {"S-01": 2.460 + slope * (1.20 - 2.10), "S-02": 2.460 + slope * (1.35 - 2.10)}
+    assert [r[0] for r in rows] == ["S-01", "S-02"]
+    assert all(abs(v - want[s]) < 1e-9 for s, v in rows)
 
 
 GENERIC = BASICS | {
