@@ -89,7 +89,7 @@ def test_curve_figure_size_and_png_pixels(tmp_path: Path) -> None:
     assert imread(png).shape[:2] == (round(4.5 * DPI), round(7.0 * DPI))
     ax = fig.axes[0]
     assert ax.get_xlim()[0] > ax.get_xlim()[1]  # older on the left (OLDER_ON_LEFT)
-    assert ax.get_ylabel() == "δ13C carb (‰ VPDB)"
+    assert ax.get_ylabel() == "δ¹³C carb (‰ VPDB)"
     assert fig.axes[1].get_xlabel() == "Age (Ma)"  # on the stage strip under the plot
 
 
@@ -118,7 +118,7 @@ def test_one_group_and_band_hidden_everywhere() -> None:
     labels = [t.get_text() for t in legend.get_texts()]
     assert labels == ["Only (n = 60)"]
     assert not [c for c in fig.axes[0].collections if "Between" in type(c).__name__]
-    assert fig.axes[0].get_ylabel() == "δ13C org (‰ VPDB)"
+    assert fig.axes[0].get_ylabel() == "δ¹³C org (‰ VPDB)"
 
 
 def test_legend_overlaps_no_axes_and_notes() -> None:

@@ -17,8 +17,8 @@ import numpy as np
 if TYPE_CHECKING:
     import pyarrow as pa
 
-X_LABEL = "δ18O carb (‰ VPDB)"
-Y_LABEL = "δ13C carb (‰ VPDB)"
+X_LABEL = "δ¹⁸O carb (‰ VPDB)"  # mass numbers as superscripts, as a journal prints them
+Y_LABEL = "δ¹³C carb (‰ VPDB)"
 # marker, face colour, edge colour, label — failed and warned stand out from the rest
 STYLES = {
     "pass": ("o", "#4a7fb0", "#2b5a85", "passed"),

@@ -77,8 +77,10 @@ def curve_figure(
     value_label: str = CARB_LABEL,
     merged: bool = False,
     note: str = "",
+    band_label: str = "curve band (lo–hi)",
 ) -> Figure:
-    """δ13C against age: points by group, the LOESS curve of each group and its band.
+    """δ13C against age: points by group, the LOESS curve of each group and its band
+    (``band_label`` says what the band is in the legend).
 
     Inputs (pandas DataFrames):
 
@@ -220,7 +222,7 @@ def curve_figure(
         if len(c):
             ax.plot(c["age_ma"], c["fit"], color=colour, linewidth=2.0, zorder=4, path_effects=halo)
     if band_drawn:
-        handles.append(Patch(color="0.5", alpha=0.3, linewidth=0, label="curve band (lo–hi)"))
+        handles.append(Patch(color="0.5", alpha=0.3, linewidth=0, label=band_label))
     if bin_table is not None and len(bin_table):
         for g, part in sorted(
             bin_table.dropna(subset=["age_ma", "value"]).groupby("group", sort=False, dropna=False),
@@ -263,7 +265,7 @@ def curve_figure(
         )
 
     ax.set_xlim((old, young) if OLDER_ON_LEFT else (young, old))
-    ax.set_ylabel(value_label)
+    ax.set_ylabel(pretty(value_label))
     ax.grid(True, color="0.88", linewidth=0.5)
     ax.set_axisbelow(True)
     bottom = strip if strip is not None else ax

@@ -596,6 +596,8 @@ def make_curve(
         value_label=s.value_label,
         merged=s.merged,
         note=_figure_band_note(req, curves),  # a hidden band says why on the figure too
+        band_label=f"{cv.BAND[1] - cv.BAND[0]:g} % section bootstrap"
+        + (" with age draws" if req.age_draws else ""),
     )
     save_figure(fig, art.path("curve.png"), art.path("curve.svg"), data_note(store))
     art.add("curve.png")
