@@ -90,15 +90,23 @@ def sql(
         float, typer.Option("--timeout", help="Seconds before the query is stopped.")
     ] = 30.0,
     max_rows: Annotated[int, typer.Option("--max-rows", help="Row cap.")] = 100_000,
+    max_mb: Annotated[
+        float, typer.Option("--max-mb", help="Cap on the answer's size in MiB (Arrow bytes).")
+    ] = 64.0,
     store: StoreOpt = None,
 ) -> None:
     """Read-only SQL over the views records, sources, localities, sections, samples, …"""
     from strata13.compile import api
 
     check_format(fmt, out, api.store_path(store))
-    res = api.sql(api.open_store(api.store_path(store)), statement, timeout, max_rows)
+    res = api.sql(api.open_store(api.store_path(store)), statement, timeout, max_rows, max_mb)
     render.table(res.columns, res.rows, fmt, out)
-    if res.truncated:
+    if res.cut_by == "rows":
         render.message(f"only the first {max_rows} rows are shown (--max-rows).")
+    elif res.cut_by == "bytes":
+        render.message(
+            f"only the first {len(res.rows)} rows are shown: the answer reached "
+            f"{max_mb:g} MiB (--max-mb)."
+        )
     elif not res.rows:
         render.message("no rows.")

@@ -517,16 +517,25 @@ def _export_records(
         con.close()
 
 
-def sql(store: Store, statement: str, timeout_s: float = 30.0, row_cap: int = 100_000) -> SqlResult:
+def sql(
+    store: Store,
+    statement: str,
+    timeout_s: float = 30.0,
+    row_cap: int = 100_000,
+    max_mb: float = 64.0,
+) -> SqlResult:
     """One read-only SQL statement over the store's views, stopped after ``timeout_s``
-    seconds and capped at ``row_cap`` rows."""
-    from strata13.compile.query.sqlguard import run_sql
+    seconds and cut at ``row_cap`` rows or ``max_mb`` MiB of answer, whichever comes first.
+    The connection may read exactly the Parquet files of the version it shows."""
+    from strata13.compile.query.sqlguard import check_limits, run_sql
+    from strata13.compile.store.files import version_files
+    from strata13.compile.store.lake import DATA
 
-    con, _ = store.reader()
+    check_limits(timeout_s, row_cap, max_mb)
+    con, version = store.reader()
     try:
-        result: SqlResult = run_sql(
-            con, statement, timeout_s, row_cap, str(store.path / "data") + "/"
-        )
+        files = version_files(con, store.path / DATA, version)
+        result: SqlResult = run_sql(con, statement, timeout_s, row_cap, files, max_mb)
         return result
     finally:
         con.close()
