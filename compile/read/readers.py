@@ -4,10 +4,12 @@ Every cell comes out as text (``None`` when empty) so that cleaning can report e
 what the sheet said. Each data row keeps its row number in the spreadsheet's own
 numbering and each column its letter, so a report can say ``D17``.
 
-xlsx/ods go through python-calamine with ``skip_empty_area=False`` (an empty column A does
-not shift the letters); merged ranges are filled from their top-left cell and reported;
-xlsx formulas without a cached value are found with openpyxl (calamine shows them as
-empty) and reported. CSV/TSV: UTF-8 (with or without BOM), then cp1252, then Latin-1;
+xlsx/ods are first surveyed from their own XML (``survey``: the used area, damage, formulas
+without a cached value) so that a stray far cell is refused before a grid is built; then
+python-calamine reads only the used area, and letters and row numbers keep the sheet's own
+coordinates (an empty column A does not shift them); merged ranges are filled from their
+top-left cell and reported; formulas without a cached value (calamine shows them as
+empty) are reported. CSV/TSV: UTF-8 (with or without BOM), then cp1252, then Latin-1;
 the delimiter is detected; pyarrow parses the body so a million rows stay columnar.
 """
 
@@ -18,7 +20,6 @@ import datetime as dt
 import io
 import re
 import unicodedata
-import zipfile
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -134,50 +135,54 @@ def _read_spreadsheet(
     path: Path, sheet: str | int | None, header_row: int | None, expected: list[str]
 ) -> RawTable:
     import python_calamine as pcal
+    from strata13.compile.read.survey import precheck, survey
 
+    known = precheck(path)  # a bounded, undamaged archive before the reader opens it
     try:
         wb = pcal.CalamineWorkbook.from_path(str(path))
+        names = list(wb.sheet_names)
     except Exception as exc:  # calamine raises several types for a broken file
         raise InputFileError(
-            f"{path.name} could not be opened as a spreadsheet ({exc}).",
+            f"{path.name} could not be read as a spreadsheet: {_calamine_reason(exc)}.",
             "Check that the file is a real .xlsx/.ods and not password protected or truncated.",
         ) from None
-    names = wb.sheet_names
-    if sheet is None:
-        name = names[0]
-    elif isinstance(sheet, int):
-        if not 1 <= sheet <= len(names):
-            raise ConfigError(
-                f"{path.name} has {len(names)} sheet{'s' * (len(names) != 1)}; "
-                f"sheet {sheet} does not exist.",
-                f"Sheets: {', '.join(names)}.",
-            )
-        name = names[sheet - 1]
-    else:
-        loose = [n for n in names if norm_header(n) == norm_header(sheet)]
-        if sheet in names:  # the exact name wins
-            name = sheet
-        elif len(loose) == 1:
-            name = loose[0]
-        else:
-            raise ConfigError(
-                f"{path.name} has no sheet named {sheet!r}"
-                + (" (several match loosely)." if loose else "."),
-                "Sheets: " + ", ".join(repr(n) for n in names) + ".",
-            )
-    ws = wb.get_sheet_by_name(name)
-    grid = [list(r) for r in ws.to_python(skip_empty_area=False)]
+    if not names:
+        raise InputFileError(
+            f"{path.name} could not be read as a spreadsheet: it has no sheets.",
+            "Open it in a spreadsheet program and save it again.",
+        )
+    name = _sheet_name(path, names, sheet)
+    found = survey(path, name, known)  # refuses a used area too large to build, first
+    try:
+        ws = wb.get_sheet_by_name(name)
+        grid = [list(r) for r in ws.to_python(skip_empty_area=True)]
+        r_off, c_off = (int(x) for x in (getattr(ws, "start", None) or (0, 0)))
+        merged = getattr(ws, "merged_cell_ranges", None) or []
+    except Exception as exc:  # WorksheetNotFound, XmlError, a damaged cell …
+        from strata13.compile.read.survey import damaged_cell
+
+        bad = damaged_cell(path, name) if "float" in str(exc).lower() else None
+        why = (
+            f"cell {bad[0]} of sheet {name!r} is stored as a number but holds {bad[1]!r}"
+            if bad
+            else f"sheet {name!r}: {_calamine_reason(exc)}"
+        )
+        raise InputFileError(
+            f"{path.name} could not be read as a spreadsheet: {why}.",
+            "Open it in a spreadsheet program and save it again as .xlsx or .ods.",
+        ) from None
     issues: list[Issue] = []
     width = max((len(r) for r in grid), default=0)
     for row in grid:
         row.extend([""] * (width - len(row)))
-    # merged ranges: fill from the top-left cell and say so
-    for (r0, c0), (r1, c1) in getattr(ws, "merged_cell_ranges", None) or []:
-        if r0 >= len(grid):
+    # merged ranges (sheet coordinates): fill from the top-left cell and say so
+    for (r0, c0), (r1, c1) in merged:
+        top_r, top_c = r0 - r_off, c0 - c_off
+        if not (0 <= top_r < len(grid) and 0 <= top_c < width):
             continue
-        top = grid[r0][c0]
-        for rr in range(r0, min(r1, len(grid) - 1) + 1):
-            for cc in range(c0, min(c1, width - 1) + 1):
+        top = grid[top_r][top_c]
+        for rr in range(top_r, min(r1 - r_off, len(grid) - 1) + 1):
+            for cc in range(top_c, min(c1 - c_off, width - 1) + 1):
                 grid[rr][cc] = top
         ref = f"{col_letter(c0)}{r0 + 1}:{col_letter(c1)}{r1 + 1}"
         issues.append(
@@ -191,58 +196,64 @@ def _read_spreadsheet(
                 f"merged range {ref} filled from its top-left cell",
             )
         )
-    if path.suffix.lower() in {".xlsx", ".xlsm"}:
-        for r, c, formula in _formulas_without_value(path, name, grid):
-            issues.append(
-                Issue(
-                    "error",
-                    name,
-                    f"{col_letter(c)}{r + 1}",
-                    "",
-                    formula,
-                    "formula without cached value",
-                    "the cell holds a formula the file has no computed value for; "
-                    "open and save it in a spreadsheet program, or type the value",
-                )
+    for r, c, formula in found.formulas:
+        rr, cc = r - r_off, c - c_off
+        if 0 <= rr < len(grid) and 0 <= cc < width and grid[rr][cc] not in ("", None):
+            continue  # the reader found a value after all
+        issues.append(
+            Issue(
+                "error",
+                name,
+                f"{col_letter(c)}{r + 1}",
+                "",
+                formula,
+                "formula without cached value",
+                "the cell holds a formula the file has no computed value for; "
+                "open and save it in a spreadsheet program, or type the value",
             )
+        )
     text_grid = [[_cell_text(v) for v in row] for row in grid]
-    return _table_from_grid(path.name, name, text_grid, header_row, expected, issues)
+    return _table_from_grid(
+        path.name, name, text_grid, header_row, expected, issues, r_off + 1, c_off
+    )
 
 
-def _formulas_without_value(
-    path: Path, sheet: str, grid: list[list[Any]]
-) -> list[tuple[int, int, str]]:
-    """Cells holding a formula that calamine read as empty (no cached value)."""
-    try:
-        with zipfile.ZipFile(path) as zf:
-            has_formula = any(
-                b"<f" in zf.read(n)
-                for n in zf.namelist()
-                if n.startswith("xl/worksheets/") and n.endswith(".xml")
+def _calamine_reason(exc: BaseException) -> str:
+    """A reader's error as a short clause (what the error kind means, then its words)."""
+    text = " ".join(str(exc).split())[:200].rstrip(".")
+    meaning = {
+        "WorksheetNotFound": "its worksheet part is missing",
+        "XmlError": "its XML is empty or broken",
+        "ZipError": "it is not a valid zip archive",
+        "PasswordError": "it is password protected",
+    }.get(type(exc).__name__)
+    if meaning:
+        return f"{meaning} ({text})" if text else meaning
+    return text or type(exc).__name__
+
+
+def _sheet_name(path: Path, names: list[str], sheet: str | int | None) -> str:
+    """The sheet the mapping names (a name, loosely matched, or a 1-based number)."""
+    if sheet is None:
+        return names[0]
+    if isinstance(sheet, int):
+        if not 1 <= sheet <= len(names):
+            raise ConfigError(
+                f"{path.name} has {len(names)} sheet{'s' * (len(names) != 1)}; "
+                f"sheet {sheet} does not exist.",
+                f"Sheets: {', '.join(names)}.",
             )
-    except (zipfile.BadZipFile, KeyError, OSError):
-        return []
-    if not has_formula:
-        return []
-    import openpyxl
-
-    out = []
-    wb = openpyxl.load_workbook(path, read_only=True, data_only=False)
-    try:
-        ws = wb[sheet]
-        for r, row in enumerate(ws.iter_rows(values_only=True)):
-            for c, v in enumerate(row):
-                if (
-                    isinstance(v, str)
-                    and v.startswith("=")
-                    and r < len(grid)
-                    and c < len(grid[r])
-                    and grid[r][c] in ("", None)
-                ):
-                    out.append((r, c, v))
-    finally:
-        wb.close()
-    return out
+        return names[sheet - 1]
+    loose = [n for n in names if norm_header(n) == norm_header(sheet)]
+    if sheet in names:  # the exact name wins
+        return sheet
+    if len(loose) == 1:
+        return loose[0]
+    raise ConfigError(
+        f"{path.name} has no sheet named {sheet!r}"
+        + (" (several match loosely)." if loose else "."),
+        "Sheets: " + ", ".join(repr(n) for n in names) + ".",
+    )
 
 
 def _find_header(rows: list[list[str | None]], expected: list[str], limit: int = 60) -> int:
@@ -269,17 +280,21 @@ def _table_from_grid(
     expected: list[str],
     issues: list[Issue],
     row_offset: int = 1,
+    col_offset: int = 0,
 ) -> RawTable:
+    """The table under the header; ``row_offset`` is the sheet row of ``grid[0]`` and
+    ``col_offset`` the 0-based sheet column of its first column."""
     import numpy as np
     import pyarrow as pa
 
     if not grid:
         raise InputFileError(f"{file} ({sheet}) is empty.", "Check the sheet name and file.")
     if header_row is not None:
-        if not 1 <= header_row <= len(grid):
+        last = row_offset + len(grid) - 1
+        if not row_offset <= header_row <= last:
             raise ConfigError(
-                f"header_row = {header_row} is outside {file} ({sheet}), which has "
-                f"{len(grid)} rows.",
+                f"header_row = {header_row} is outside {file} ({sheet}), whose cells "
+                f"in use are on rows {row_offset} to {last}.",
                 "Give the spreadsheet row of the header.",
             )
         h = header_row - row_offset
@@ -292,7 +307,7 @@ def _table_from_grid(
                 Issue(
                     "info",
                     sheet,
-                    f"{_first_col(grid[i])}{i + row_offset}",
+                    f"{_first_col(grid[i], col_offset)}{i + row_offset}",
                     "",
                     text,
                     "title row",
@@ -312,7 +327,7 @@ def _table_from_grid(
     while end:
         filled = [c for c in rows[end - 1] if c]
         if len(filled) == 1 and (FOOTNOTE_START.match(filled[0]) or not _numberish(filled[0])):
-            ref = f"{_first_col(body[end - 1])}{numbers[end - 1]}"
+            ref = f"{_first_col(body[end - 1], col_offset)}{numbers[end - 1]}"
             issues.append(
                 Issue(
                     "info", sheet, ref, "", filled[0], "footnote row", "row below the data skipped"
@@ -331,7 +346,7 @@ def _table_from_grid(
             kept_numbers.append(n)
         else:
             blank += 1
-    by_letter = {col_letter(j): headers_raw[j] for j in keep}
+    by_letter = {col_letter(j + col_offset): headers_raw[j] for j in keep}
     for k, issue in enumerate(issues):  # name the column of cell findings made before the header
         letter = "".join(ch for ch in issue.cell if ch.isalpha())
         if not issue.column and letter in by_letter and issue.rule != "title row":
@@ -353,7 +368,7 @@ def _table_from_grid(
         sheet,
         h + row_offset,
         headers,
-        [col_letter(j) for j in keep],
+        [col_letter(j + col_offset) for j in keep],
         table,
         np.asarray(kept_numbers, dtype=np.int64),
         blank,
@@ -361,12 +376,12 @@ def _table_from_grid(
     )
 
 
-def _first_col(row: list[str | None]) -> str:
+def _first_col(row: list[str | None], col_offset: int = 0) -> str:
     """Letter of the first filled cell of a full-width grid row."""
     for j, v in enumerate(row):
         if v:
-            return col_letter(j)
-    return "A"
+            return col_letter(j + col_offset)
+    return col_letter(col_offset)
 
 
 def _numberish(text: str) -> bool:
@@ -450,6 +465,7 @@ def _read_text(
     elif data.startswith(b"\xef\xbb\xbf"):
         data = data[3:]
     del text  # work on the UTF-8 bytes from here: no Python object per line
+    data, cr_lines = _bare_carriage_returns(data, issues, sheet)
     head_text = data[: 1 << 16].decode("utf-8", errors="replace")
     if delimiter == "auto":
         delim = "\t" if path.suffix.lower() == ".tsv" else sniff_delimiter(head_text)
@@ -460,6 +476,17 @@ def _read_text(
     h = header_row - 1 if header_row is not None else _find_header(head_rows, expected)
     buf = np.frombuffer(data, dtype=np.uint8)
     newlines = np.flatnonzero(buf == 10)
+    quote_lines = _unclosed_quotes(data, buf, newlines, delim, h + 2)
+    quote_texts = {}
+    if quote_lines:  # each such row becomes empty cells for the parser, then is left out
+        lines = data.split(b"\n")
+        width = len(head[h]) if h < len(head) else 1
+        for n in quote_lines:
+            quote_texts[n] = lines[n - 1][:80].decode("utf-8", errors="replace")
+            lines[n - 1] = delim.encode() * max(width - 1, 1)
+        data = b"\n".join(lines)
+        buf = np.frombuffer(data, dtype=np.uint8)
+        newlines = np.flatnonzero(buf == 10)
     starts = np.concatenate([[0], newlines + 1])
     ends = np.concatenate([newlines, [len(data)]])
     if ends[-1] == starts[-1]:  # the file ends with a newline: no last line
@@ -588,9 +615,88 @@ def _read_text(
         int(len(stripped) - stripped.sum()),
         issues=issues,
     )
-    raw.rejected_rows = sum(1 for i in issues if i.rule == "row shape")
+    if cr_lines:
+        _drop_lines(raw, _line_texts(data, cr_lines), "carriage return", CR_HINT)
+    if quote_lines:
+        _drop_lines(raw, quote_texts, "unclosed quote", QUOTE_HINT)
+    raw.rejected_rows = sum(1 for i in issues if i.rule in REJECTING_RULES)
     _drop_blank_and_footnotes(raw)
     return raw
+
+
+def _bare_carriage_returns(data: bytes, issues: list[Issue], sheet: str) -> tuple[bytes, list[int]]:
+    """Carriage returns without a line feed: a file with no line feed at all uses them as
+    line breaks (classic Mac); elsewhere each one is a space for the parser and its line is
+    returned (1-based) to be reported and left out, never split into two rows."""
+    import numpy as np
+
+    buf = np.frombuffer(data, dtype=np.uint8)
+    cr = np.flatnonzero(buf == 13)
+    if not cr.size:
+        return data, []
+    after = np.append(buf, 0)[cr + 1]
+    bare = cr[after != 10]
+    if not bare.size:
+        return data, []
+    newlines = np.flatnonzero(buf == 10)
+    if not newlines.size:
+        issues.append(
+            Issue("info", sheet, "", "", "CR", "line endings", "lines end in CR only; read as such")
+        )
+        return data.replace(b"\r", b"\n"), []
+    fixed = buf.copy()
+    fixed[bare] = 32
+    lines = sorted({int(i) + 1 for i in np.searchsorted(newlines, bare)})
+    return fixed.tobytes(), lines
+
+
+CR_HINT = (
+    "a carriage return without a line feed sits inside this row (a cell pasted with a "
+    "line break?); remove it, or quote the cell"
+)
+QUOTE_HINT = 'a cell of this row opens a quote (") and never closes it; close or remove it'
+REJECTING_RULES = ("row shape", "carriage return", "unclosed quote")
+
+
+def _unclosed_quotes(data: bytes, buf: Any, newlines: Any, delim: str, first: int) -> list[int]:
+    """Lines (1-based, from ``first``) where a quoted cell is never closed: lines with an
+    odd number of quote marks, confirmed by the csv module's strict reading of the line."""
+    import numpy as np
+
+    quotes = np.flatnonzero(buf == 34)
+    if not quotes.size:
+        return []
+    per_line = np.bincount(np.searchsorted(newlines, quotes))
+    odd = np.flatnonzero(per_line % 2 == 1) + 1
+    starts = np.concatenate([[0], newlines + 1])
+    out = []
+    for line in odd[odd >= first][:10_000]:
+        end = int(newlines[line - 1]) if line - 1 < len(newlines) else len(data)
+        text = data[int(starts[line - 1]) : end].decode("utf-8", errors="replace").rstrip("\r")
+        try:
+            list(csv.reader([text], delimiter=delim, strict=True))
+        except csv.Error as exc:
+            if "end of data" in str(exc):
+                out.append(int(line))
+    return out
+
+
+def _line_texts(data: bytes, lines: list[int]) -> dict[int, str]:
+    text = data.split(b"\n")
+    return {n: text[n - 1][:80].decode("utf-8", errors="replace") for n in lines if n <= len(text)}
+
+
+def _drop_lines(raw: RawTable, texts: dict[int, str], rule: str, hint: str) -> None:
+    """Report and leave out the data rows on the lines of ``texts`` (one error each)."""
+    import numpy as np
+    import pyarrow as pa
+
+    for line, text in sorted(texts.items()):
+        raw.issues.append(Issue("error", raw.sheet, f"A{line}", "", text, rule, hint))
+    keep = ~np.isin(raw.row_numbers, np.asarray(sorted(texts), dtype=np.int64))
+    if not keep.all():
+        raw.table = raw.table.filter(pa.array(keep))
+        raw.row_numbers = raw.row_numbers[keep]
 
 
 def _find_line(body_line: Any, nonempty: Any, text: str, taken: list[int]) -> int | None:
