@@ -208,8 +208,11 @@ def match_header(text: str, letter: str = "") -> Match:
 # --------------------------------------------------------------------------- the grid
 
 
-def read_grid(path: Path, sheet: str | int | None = None) -> tuple[str, list[list[str | None]]]:
-    """The sheet's name and its cells as text (first rows only), for header finding."""
+def read_grid(
+    path: Path, sheet: str | int | None = None
+) -> tuple[str, list[list[str | None]], int, int]:
+    """The sheet's name, its cells as text (first rows only) and where they start (0-based
+    row and column of the sheet), for header finding."""
     from strata13.compile.read.readers import decode_bytes, sniff_delimiter
 
     suffix = path.suffix.lower()
@@ -218,34 +221,15 @@ def read_grid(path: Path, sheet: str | int | None = None) -> tuple[str, list[lis
     limit = HEADER_SEARCH_ROWS + SAMPLE_ROWS
     if suffix in TEXT_SUFFIXES:
         text, _ = decode_bytes(path.read_bytes())
-        lines = [ln for ln in text.splitlines() if not ln.lstrip().startswith("#")][:limit]
+        lines = text.splitlines()[:limit]  # every line, so row numbers are the file's
         delim = "\t" if suffix == ".tsv" else sniff_delimiter("\n".join(lines[:50]))
         rows = [[c.strip() or None for c in r] for r in csv.reader(lines, delimiter=delim)]
-        return path.name, rows
+        return path.name, rows, 0, 0
     if suffix in SPREADSHEET_SUFFIXES:
-        from python_calamine import CalamineWorkbook
-        from strata13.compile.read.readers import _cell_text
+        from strata13.compile.read.readers import sheet_cells
 
-        try:
-            book = CalamineWorkbook.from_path(str(path))
-        except Exception as exc:  # calamine raises its own error types
-            raise InputFileError(
-                f"{path.name} could not be read as a spreadsheet ({exc}).",
-                "Open and re-save it, or export the table as CSV.",
-            ) from None
-        names = book.sheet_names
-        if sheet is None:
-            name = names[0]
-        elif isinstance(sheet, int) or str(sheet).isdigit():
-            name = names[int(sheet) - 1]
-        elif sheet in names:
-            name = str(sheet)
-        else:
-            raise InputFileError(
-                f"{path.name} has no sheet {sheet!r}.", f"Sheets: {', '.join(names)}."
-            )
-        grid = book.get_sheet_by_name(name).to_python(skip_empty_area=False, nrows=limit)
-        return name, [[_cell_text(v) for v in row] for row in grid]
+        cells = sheet_cells(path, sheet)  # surveyed first: a huge or damaged file is refused
+        return cells.sheet, cells.grid[:limit], cells.row_offset, cells.col_offset
     raise InputFileError(
         f"{path.name} is not a sheet strata13 reads ({suffix or 'no suffix'}).",
         "Use .xlsx, .ods, .csv or .tsv.",
@@ -276,7 +260,7 @@ def _numberish(text: str) -> bool:
 
 def propose(path: Path, sheet: str | int | None = None) -> Proposal:
     """A complete, commented mapping for ``path`` (placeholders where the sheet is silent)."""
-    sheet_name, grid = read_grid(path, sheet)
+    sheet_name, grid, row_off, col_off = read_grid(path, sheet)
     if not any(any(r) for r in grid):
         raise InputFileError(f"{path.name} ({sheet_name}) holds no cells.", "Check the sheet.")
     h = find_header(grid)
@@ -287,7 +271,7 @@ def propose(path: Path, sheet: str | int | None = None) -> Proposal:
     for j, cell in enumerate(header):
         if not cell:
             continue
-        m = match_header(cell, col_letter(j))
+        m = match_header(cell, col_letter(j + col_off))
         m.values = _distinct([r[j] if j < len(r) else None for r in body])
         matches.append(m)
     _use_notes(matches, notes_above)
@@ -295,7 +279,7 @@ def propose(path: Path, sheet: str | int | None = None) -> Proposal:
     decimal = _decimal(matches)
     for m in matches:
         _look_at_cells(m)
-    return _write(path, sheet_name, sheet, h + 1, matches, decimal, notes_above)
+    return _write(path, sheet_name, sheet, h + 1 + row_off, matches, decimal, notes_above)
 
 
 def _distinct(cells: Sequence[str | None]) -> list[str]:
