@@ -157,8 +157,16 @@ def is_store(path: str | Path) -> bool:
 
 
 def store_path(given: str | Path | None) -> Path:
-    """--store, else STRATA13_STORE, else ./compilation."""
-    return Path(given or os.environ.get("STRATA13_STORE") or "compilation")
+    """--store, else STRATA13_STORE, else ./compilation (a name the system can take)."""
+    from strata13.compile.read.inputs import usable_name
+
+    from strata13.errors import InputFileError
+
+    path = Path(given or os.environ.get("STRATA13_STORE") or "compilation")
+    try:
+        return usable_name(path, "store folder", "")
+    except InputFileError as exc:
+        raise OptionError(exc.message, "Name the store with a shorter, plain --store.") from None
 
 
 def open_store(path: str | Path) -> Store:

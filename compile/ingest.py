@@ -25,7 +25,6 @@ from strata13.schemas.fields import SCHEMA_VERSION
 
 from strata13.errors import (
     DomainError,
-    InputFileError,
     OptionError,
     ValidationFailed,
 )
@@ -80,11 +79,10 @@ def ingest(
         return _ingest_ties_only(store, sheet, mapping, dry_run, step, create)
     if mapping.run is not None:
         _check_run_materials(store, mapping)
-    if sheet is not None and not sheet.is_file():
-        raise InputFileError(
-            f"{sheet} " + ("is a folder, not a sheet." if sheet.is_dir() else "does not exist."),
-            "Check the path of the sheet.",
-        )
+    if sheet is not None:  # a missing file, a folder, a pipe, a loop, a name too long …
+        from strata13.compile.read.inputs import check_file
+
+        check_file(sheet, "sheet", "Check the path of the sheet.")
     table = mapping.table
     another_file = sheet is not None and sheet.resolve() != table.file
     if sheet is not None and another_file:

@@ -17,11 +17,45 @@ def _inside(path: Path, folder: Path) -> bool:
     return path == folder or path.is_relative_to(folder)
 
 
+def _resolved(path: Path, option: str) -> Path:
+    """``path`` resolved, or OptionError for a name the system cannot take or follow."""
+    from strata13.compile.read.inputs import usable_name
+
+    from strata13.errors import InputFileError
+
+    try:
+        usable_name(path, option, "")
+        return path.resolve()
+    except InputFileError as exc:
+        raise OptionError(exc.message, "Choose a shorter, plain file name.") from None
+    except (OSError, RuntimeError, ValueError) as exc:  # a symlink loop on the way
+        raise OptionError(
+            f"{option} {path} cannot be followed ({exc}).", "Write somewhere else."
+        ) from None
+
+
+def _not_special(p: Path, path: Path, option: str) -> None:
+    """An existing target must be a regular file (writing to a named pipe waits forever)."""
+    import os
+    import stat
+
+    try:
+        mode = os.stat(p).st_mode
+    except OSError:
+        return
+    if not stat.S_ISREG(mode) and not stat.S_ISDIR(mode) and str(p) != os.devnull:
+        raise OptionError(
+            f"{option} {path} is not a regular file (a named pipe or a device).",
+            "Write to a new file, or to stdout and pipe it.",
+        )
+
+
 def output_file(
     path: Path, *, option: str, protect: Iterable[Path] = (), stores: Iterable[Path] = ()
 ) -> Path:
     """Check a file to be written; return it resolved."""
-    p = path.resolve()
+    p = _resolved(path, option)
+    _not_special(p, path, option)
     if p.is_dir():
         raise OptionError(
             f"{option} {path} is a folder; a file name is needed.",
@@ -49,7 +83,7 @@ def output_file(
 
 def output_dir(path: Path, *, option: str, stores: Iterable[Path] = ()) -> Path:
     """Check a folder to be written into (created if missing); return it resolved."""
-    p = path.resolve()
+    p = _resolved(path, option)
     if p.exists() and not p.is_dir():
         raise OptionError(
             f"{option} {path} is a file; a folder is needed.", "Name a new or existing folder."

@@ -169,11 +169,11 @@ def from_geojson(doc: Any, name: str, where: str) -> Region:
 
 def load_regions_file(path: Path) -> list[tuple[str, str]]:
     """(name, geometry JSON) for each named feature of a regions GeoJSON file."""
-    if not path.is_file():
-        raise ConfigError(f"regions file {path} does not exist.", "Check --regions.")
+    from strata13.compile.read.inputs import read_text
+
     try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+        doc = json.loads(read_text(path, "regions file", "Check --regions."))
+    except json.JSONDecodeError as exc:
         raise ConfigError(
             f"{path.name} is not valid GeoJSON ({exc}).", "Check the file with a GeoJSON validator."
         ) from None
@@ -212,15 +212,14 @@ def resolve_region(spec: str, named: dict[str, str]) -> Region:
         name = by_case[spec.casefold()]
         return from_geojson(json.loads(named[name]), name, f"region {name!r}")
     path = Path(spec)
-    if path.suffix.lower() in (".json", ".geojson") or path.exists():
-        if not path.is_file():
-            raise ConfigError(
-                f"region file {spec} " + ("is a folder." if path.is_dir() else "does not exist."),
-                "Check --region.",
-            )
+    from strata13.compile.read.inputs import exists
+
+    if path.suffix.lower() in (".json", ".geojson") or exists(path):
+        from strata13.compile.read.inputs import read_text
+
         try:
-            doc = json.loads(path.read_text(encoding="utf-8"))
-        except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+            doc = json.loads(read_text(path, "region file", "Check --region."))
+        except json.JSONDecodeError as exc:
             raise ConfigError(
                 f"{path.name} is not valid GeoJSON ({exc}).",
                 "Check the file with a GeoJSON validator.",

@@ -28,7 +28,7 @@ from strata13.schemas.fields import (
 )
 from strata13.schemas.vocabularies import vocabulary
 
-from strata13.errors import ConfigError, InputFileError
+from strata13.errors import ConfigError
 from strata13.suggest import did_you_mean
 
 PLACEHOLDER = "FILL IN"  # what `propose-map` writes where only the user knows the value
@@ -129,7 +129,13 @@ def safe_path(base: Path, relative: str, what: str, mapping: Path) -> Path:
             f"{mapping.name}: {what} = {relative!r} is an absolute path.",
             "Paths in a mapping file are relative to its folder.",
         )
-    resolved = (base / p).resolve()
+    try:
+        resolved = (base / p).resolve()
+    except (OSError, RuntimeError, ValueError) as exc:  # a symlink loop, a NUL, a long name
+        raise ConfigError(
+            f"{mapping.name}: {what} = {relative[:80]!r} cannot be followed ({exc}).",
+            "Give the plain name of a file in the mapping file's folder.",
+        ) from None
     if not resolved.is_relative_to(base.resolve()):
         raise ConfigError(
             f"{mapping.name}: {what} = {relative!r} leaves the mapping file's folder.",
@@ -322,11 +328,9 @@ def load_mapping(path: Path) -> Mapping:
 
 def _read_document(path: Path) -> _Loading:
     """The file's bytes and its TOML, so that every later stage reads a parsed document."""
-    if path.is_dir():
-        raise InputFileError(f"mapping file {path} is a folder.", "Name the .toml file.")
-    if not path.exists():
-        raise InputFileError(f"mapping file {path} does not exist.", "Check --map.")
-    raw = path.read_bytes()
+    from strata13.compile.read.inputs import read_bytes
+
+    raw = read_bytes(path, "mapping file", "Check --map (a .toml file).")
     try:
         doc = tomllib.loads(raw.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:

@@ -33,6 +33,7 @@ if TYPE_CHECKING:
     import numpy as np
     import pyarrow as pa
 
+SHEET_HINT = "Check the path (relative paths in a mapping file start at its folder)."
 SPREADSHEET_SUFFIXES = {".xlsx", ".xlsm", ".ods"}
 TEXT_SUFFIXES = {".csv", ".tsv", ".txt"}
 FOOTNOTE_START = re.compile(
@@ -95,13 +96,9 @@ def read_table(
     encoding: str = "auto",
 ) -> RawTable:
     """Read one table from a spreadsheet or text file; see the module docstring."""
-    if not path.exists():
-        raise InputFileError(
-            f"{path} does not exist.",
-            "Check the path (relative paths in a mapping file start at the mapping file's folder).",
-        )
-    if path.is_dir():
-        raise InputFileError(f"{path} is a folder, not a spreadsheet.", "Name a file.")
+    from strata13.compile.read.inputs import check_file
+
+    check_file(path, "sheet", SHEET_HINT)  # a missing file, a folder, a pipe, a loop …
     suffix = path.suffix.lower()
     expected = [norm_header(h) for h in expected_headers]
     if suffix in SPREADSHEET_SUFFIXES:
@@ -465,8 +462,9 @@ def _read_text(
     import numpy as np
     import pyarrow as pa
     import pyarrow.csv as pcsv
+    from strata13.compile.read.inputs import read_bytes
 
-    data = path.read_bytes()
+    data = read_bytes(path, "sheet", SHEET_HINT)
     if not data.strip():
         raise InputFileError(f"{path.name} is empty.", "Check that the right file was named.")
     if data.startswith((b"\xff\xfe", b"\xfe\xff")) and encoding == "auto":
