@@ -58,6 +58,8 @@ def test_header_words_give_key_unit_and_scale() -> None:
     assert header_parts("CaCO3 (wt %)")[0] == "caco3"
     depth = match_header("depth mbsf")
     assert (depth.field, depth.unit, depth.position_kind) == ("position", "m", "depth")
+    cm = match_header("Core depth (cm)")
+    assert (cm.field, cm.unit, cm.position_kind) == ("position", "cm", "depth")
     assert match_header("Lith.").field == "lithology"
     assert match_header("13C carb").field == "d13c_carb"
     assert match_header("Sample ID").field == "sample_id"
