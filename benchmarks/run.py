@@ -17,8 +17,11 @@ it. Cases:
 * help    — ``strata13 --help`` as a subprocess against ``python -c pass``. Target: ours
   ≤ 0.5 s absolute.
 * agemodel — ``agemodel.draw_section`` for 1000 draws of 100 000 samples in 200 sections
-  against as many ``numpy.interp`` calls on fixed knots (see ``agemodel.py``). Targets:
-  ratio ≤ 3; traced peak memory ≤ 10 % of all draws at once.
+  (quick: 20 000 samples in 40 sections, the same draws) against as many ``numpy.interp``
+  calls on fixed knots (see ``agemodel.py``). Targets: ratio ≤ 3; traced peak memory ≤ 10 %
+  of all draws at once.
+* excursion — the excursion metrics' uncertainty over 500 draws of 100 sections against the
+  scalar metrics once per section and draw (see ``excursion.py``). Target: ratio ≤ 0.1.
 
 Inputs come from ``generate.py`` (cached under ``_data/``); scratch stores go to ``_work/``.
 """
@@ -564,10 +567,12 @@ def case_help(repeat: int) -> Outcome:
 # ------------------------------------------------------------- library cases
 
 # case -> (sibling module, its size in a quick run, in a full run): each module has
-# measure(size, repeat=…), rows(result) and notes(result), and runs on its own too
+# measure(size, repeat=…), rows(result) and notes(result), and runs on its own too. The
+# age model's quick run keeps the full run's draws (see agemodel.py: QUICK).
 LIBRARY_CASES = {
-    "agemodel": ("agemodel", 100, 1000),
+    "agemodel": ("agemodel", "quick", 1000),
     "curve": ("curve", 50, 200),
+    "excursion": ("excursion", 100, 500),
     "paleo": ("paleo", 100_000, 1_000_000),
 }
 
@@ -606,8 +611,8 @@ def main(argv: list[str] | None = None) -> int:
     )
     p.add_argument(
         "--cases",
-        default="ingest,query,help,agemodel,curve,paleo",
-        help="comma list of ingest, query, help, agemodel, curve, paleo (default: all)",
+        default="ingest,query,help,agemodel,curve,excursion,paleo",
+        help="comma list of ingest, query, help, agemodel, curve, excursion, paleo (default: all)",
     )
     p.add_argument("--rows", type=int, help="ingest sheet rows (overrides the size)")
     p.add_argument("--records", type=int, help="query store records (overrides the size)")
@@ -616,7 +621,7 @@ def main(argv: list[str] | None = None) -> int:
         type=int,
         default=0,
         help="timed runs per case (default: ingest 1, query 3, help 5, "
-        "agemodel, curve and paleo 3)",
+        "agemodel, curve, excursion and paleo 3)",
     )
     p.add_argument(
         "--profile",

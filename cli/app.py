@@ -17,6 +17,7 @@ from strata13.cli import (
     init,
     integrity,
     listing,
+    propose,
     query,
     reharmonise,
     scales,
@@ -56,6 +57,7 @@ def _root(
 app.command("demo")(demo.demo)
 app.command("init")(init.init)
 app.command("ingest")(ingest.ingest)
+app.command("propose-map")(propose.propose_map)
 app.command("sources")(listing.sources)
 app.command("history")(listing.history)
 app.command("query")(query.query)

@@ -113,13 +113,36 @@ def redate(
             show_default=False,
         ),
     ] = None,
+    shape: Annotated[
+        float | None,
+        typer.Option(
+            "--accumulation-shape",
+            help="Store setting: gamma shape of the time one accumulation segment took "
+            "(1: exponential, the default; larger: steadier accumulation between ties).",
+            show_default=False,
+        ),
+    ] = None,
+    segment: Annotated[
+        float | None,
+        typer.Option(
+            "--accumulation-segment",
+            help="Store setting: the segment length in metres the shape refers to (default 1 m).",
+            show_default=False,
+        ),
+    ] = None,
     store: StoreOpt = None,
 ) -> None:
     """Put every age on another chart (or change the age-model settings) in one commit."""
     from strata13.compile import api
 
     res = api.redate(
-        api.open_store(api.store_path(store)), time_scale, extrapolation, draws, blank_sigma
+        api.open_store(api.store_path(store)),
+        time_scale,
+        extrapolation,
+        draws,
+        blank_sigma,
+        shape,
+        segment,
     )
     if res.version is None:
         render.message(
@@ -132,6 +155,13 @@ def redate(
         + (f" ({before} → {after})" if before != after else "")
         + "."
     )
+    for key, label in (
+        ("age_accumulation_shape", "accumulation shape"),
+        ("age_accumulation_segment_m", "accumulation segment (m)"),
+    ):
+        old, new = res.settings_before.get(key), res.settings_after.get(key)
+        if new is not None and old != new:
+            render.message(f"  {label}: {'default' if old is None else f'{old:g}'} → {new:g}")
     from strata13.compile.derive.recompute import UNITS
 
     for col, n in sorted(res.changed.items()):
@@ -197,8 +227,8 @@ def agemodel(
     basis = ", ".join(f"{k} {v}" for k, v in sorted(m.basis_counts.items()))
     if m.draws.size:
         render.note(
-            f"age model: {m.draws.shape[0]} draws at {len(m.positions)} positions; "
-            f"{m.records} records ({basis})"
+            f"age model: {m.draws.shape[0]} draws at {len(m.positions)} positions, "
+            f"accumulation prior {m.prior_text}; {m.records} records ({basis})"
         )
     else:
         render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
@@ -207,7 +237,7 @@ def agemodel(
 
 
 def replace_rotations(
-    model: Annotated[Path, typer.Argument(help="Rotation model (CSV).")],
+    model: Annotated[Path, typer.Argument(help="Rotation model (TOML, README 'Paleogeography').")],
     polygons: Annotated[Path, typer.Argument(help="Plate polygons (GeoJSON).")],
     store: StoreOpt = None,
 ) -> None:

@@ -36,7 +36,10 @@ def explain(
     lines = [
         f"record {r['record_id']} (store version {info['version']})",
         f"  source   {r['source_id']}: {info['citation']}",
-        f"  where    {info['file']}, sheet {r['sheet']}, row {r['sheet_row']}",
+        f"  where    {info['file']}"
+        + (f", sheet {r['sheet']}" if r["sheet"] and r["sheet"] != info["file"] else "")
+        + f", {'line' if str(info['file']).lower().endswith(('.csv', '.tsv')) else 'row'} "
+        + f"{r['sheet_row']}",
         f"  sample   section {r['section_id']}, sample {r['sample_id']}, replicate "
         f"{r['replicate']}, position {_num(r['position_m'])} m ({r['position_kind'] or '—'})",
         f"  material {r['lithology'] or '—'} / {r['component'] or '—'} / {r['mineralogy'] or '—'}",

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections import Counter
 from pathlib import Path
 from typing import Annotated
 
@@ -69,10 +70,12 @@ def ingest(
     shown = [i for i in result.report.issues if i.severity != "info"]
     if shown:
         render.report(result.report, limit_info=True)
-    n_info = len(result.report.issues) - len(shown)
-    if n_info:
+    kinds = Counter(i.rule for i in result.report.issues if i.severity == "info")
+    if kinds:
+        n_info = sum(kinds.values())
+        what = ", ".join(f"{rule} {n}" for rule, n in sorted(kinds.items()))
         render.note(
-            f"{n_info} cleaning notes (decimal commas, minus signs, units …)"
+            f"{n_info} note{'s' * (n_info != 1)} on reading the sheet ({what})"
             + ("; see the --report file" if report else "; add --report PATH to see them")
         )
     if result.dry_run:
@@ -92,9 +95,14 @@ def ingest(
             f"changed{moved}."
         )
     if result.ties or result.redated:
+        would = " would be" if result.dry_run else ""
         render.message(
-            f"age ties: {result.ties} from this source"
-            + (f"; {result.redated} records of other sources re-dated" if result.redated else "")
+            f"age ties: {result.ties} {'found in' if result.dry_run else 'from'} this source"
+            + (
+                f"; {result.redated} records of other sources{would} re-dated"
+                if result.redated
+                else ""
+            )
         )
     if result.report.rows_read:
         render.message(api.reconcile(result))
@@ -103,15 +111,26 @@ def ingest(
             f"{result.orphaned} stored correction(s) name records this sheet no longer "
             "has; see `strata13 corrections`"
         )
+    for line in api.accepted_lines(result.run_qc):
+        render.note(line)
     for q in result.run_qc:
-        warn = f"; WARNING {q['warnings']}" if q["warnings"] else ""
         prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"
         res = ", ".join(f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items())
+        drift = ""
+        if q["drift_per_position"] is not None:
+            sd = q["drift_sigma"]
+            drift = f"; drift {q['drift_per_position']:+.3g} ‰ per position" + (
+                f" ± {sd:.2g} (1σ)" if sd is not None else " (1σ unknown)"
+            )
         render.message(
             f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
             f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
-            f"{res or '—'}; precision 1σ {prec}{warn}"
+            f"{res or '—'} ({q['check_status'] or 'no check'}); precision 1σ {prec}{drift}"
         )
+        if q["check_status"] in ("warn", "untested"):
+            render.note(f"checks of run {q['run_id']} {q['isotope']}: {q['check_detail']}")
+    for w in result.warnings:
+        render.warning(w)
     if result.pending:
         render.note(
             "pending (kept as reported, not yet harmonised or dated): "

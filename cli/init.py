@@ -48,7 +48,7 @@ def init(
         tuple[Path, Path] | None,
         typer.Option(
             "--rotations",
-            help="Rotation model (CSV) and plate polygons (GeoJSON): --rotations MODEL POLYGONS.",
+            help="Rotation model (TOML) and plate polygons (GeoJSON): --rotations MODEL POLYGONS.",
             show_default=False,
         ),
     ] = None,

@@ -91,7 +91,14 @@ def overlaps(
 @filter_options(screened=SYNTHESIS_SCREENED)
 def coverage(
     filters: FilterArgs = NO_FILTERS,
-    by: Annotated[str, typer.Option("--by", help="region | paleolat-band.")] = "region",
+    by: Annotated[
+        str,
+        typer.Option(
+            "--by",
+            help="region | paleolat-band[:DEG] (bands of DEG degrees, a divisor of 180; "
+            "default 30).",
+        ),
+    ] = "region",
     bin_myr: Annotated[
         float | None,
         typer.Option(
@@ -113,8 +120,10 @@ def coverage(
 
     from strata13.errors import OptionError
 
-    if by not in ("region", "paleolat-band"):
-        raise OptionError(f"--by {by!r} is not region or paleolat-band.", "Example: --by region")
+    if by.split(":", 1)[0] not in ("region", "paleolat-band"):
+        raise OptionError(
+            f"--by {by!r} is not region or paleolat-band[:DEG].", "Example: --by paleolat-band:15"
+        )
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))
     if out is not None:

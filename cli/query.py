@@ -26,6 +26,19 @@ BRIEF = [
     "d18o_carb",
     "screen",
 ]
+BRIEF_SAMPLES = [
+    "source_id",
+    "section_id",
+    "sample_id",
+    "n_analyses",
+    "position_m",
+    "age_ma",
+    "d13c_carb",
+    "d13c_carb_sd",
+    "d18o_carb",
+    "d18o_carb_sd",
+    "screen",
+]
 
 
 @filter_options
@@ -37,6 +50,13 @@ def query(
         bool,
         typer.Option("--all-columns", help="Every column of the records view in table output."),
     ] = False,
+    per_sample: Annotated[
+        bool,
+        typer.Option(
+            "--per-sample",
+            help="One row per sample: the mean of its analyses with their number and SD.",
+        ),
+    ] = False,
     store: StoreOpt = None,
 ) -> None:
     """Records for a time bin, a region, materials and sources."""
@@ -46,13 +66,20 @@ def query(
     s = api.open_store(api.store_path(store))
     chosen = filters.build(s)
     tbl = api.query_arrow(s, chosen)
+    n_records = tbl.num_rows
+    if per_sample:
+        tbl = api.per_sample(tbl)
     if fmt == "table" and not all_columns:
-        tbl = tbl.select(BRIEF)
+        tbl = tbl.select(BRIEF_SAMPLES if per_sample else BRIEF)
     if tbl.num_rows == 0:
         render.message("no records match.")
     render.arrow_out(tbl, fmt, out)
     if tbl.num_rows:
-        render.note(render.plural(tbl.num_rows, "record"))
+        render.note(
+            f"{render.plural(tbl.num_rows, 'sample')} from {render.plural(n_records, 'record')}"
+            if per_sample
+            else render.plural(tbl.num_rows, "record")
+        )
 
 
 def sql(

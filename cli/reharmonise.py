@@ -28,12 +28,24 @@ def reharmonise(
             show_default=False,
         ),
     ] = None,
+    check_tolerance: Annotated[
+        str | None,
+        typer.Option(
+            "--check-tolerance",
+            help="How far an in-house run's check material may lie from its accepted value "
+            "before the run is marked warn: a tolerance in ‰, or from-uncertainty (3 × the "
+            "material's 1σ combined with the run's precision; the default).",
+            show_default=False,
+        ),
+    ] = None,
     store: StoreOpt = None,
 ) -> None:
     """Recompute every harmonised value with the store's (changed) settings, in one commit."""
     from strata13.compile import api
 
-    res = api.reharmonise(api.open_store(api.store_path(store)), vsmow_constants, materials)
+    res = api.reharmonise(
+        api.open_store(api.store_path(store)), vsmow_constants, materials, check_tolerance
+    )
     if res.version is None:
         render.message(
             f"0 changed: {res.records} records already match these settings; no new version."
@@ -48,5 +60,7 @@ def reharmonise(
             f"  {col}: {n} values changed; largest change "
             f"{res.max_change[col]:.4g}{unit}, median {res.median_change[col]:.4g}{unit}"
         )
+    for line in res.checks_changed:
+        render.message(f"  check status of {line}")
     if not res.changed:
         render.message("  no value changed (settings and statuses were updated).")

@@ -34,6 +34,11 @@ def note(text: str) -> None:
     _console().print(f"[dim]{_escape(text)}[/dim]")
 
 
+def warning(text: str) -> None:
+    """A finding the user must not miss, on stderr: ``warning:`` in bold yellow."""
+    _console().print(f"[bold yellow]warning:[/bold yellow] {_escape(text)}")
+
+
 def _escape(text: str) -> str:
     from rich.markup import escape
 

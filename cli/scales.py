@@ -31,6 +31,21 @@ MATERIAL_COLUMNS = [
     "confidence",
     "source",
 ]
+DISAGREE_COLUMNS = [
+    "material",
+    "isotope",
+    "value_set",
+    "status",
+    "published",
+    "published_scale",
+    "value",
+    "scale",
+    "sigma_1s",
+    "minus_accepted",
+    "accepted",
+    "note",
+    "source",
+]
 RELATION_COLUMNS = [
     "name",
     "form",
@@ -43,13 +58,41 @@ RELATION_COLUMNS = [
 ]
 
 
-def scales(store: StoreOnly = None, fmt: FormatOpt = "table", out: OutOpt = None) -> None:
+def scales(
+    store: StoreOnly = None,
+    fmt: FormatOpt = "table",
+    out: OutOpt = None,
+    disagree: Annotated[
+        bool,
+        typer.Option(
+            "--disagree",
+            help="Only the materials whose published value sets disagree: each value as "
+            "the store would use it and its difference from the value the store (or the "
+            "default choice) accepts.",
+        ),
+    ] = False,
+) -> None:
     """List reference materials (values as published, uncertainty and its kind, scale,
     years in use, source) and the VSMOW–VPDB relations; works without a store."""
     from strata13.compile import api
 
     check_format(fmt, out, store)
     s = api.open_store(store) if store is not None else None
+    if disagree:
+        rows = api.scale_disagreements(s)
+        render.table(
+            DISAGREE_COLUMNS,
+            [[r[c] for c in DISAGREE_COLUMNS] for r in rows],
+            fmt,
+            out,
+            title="reference-material values that disagree (‰)",
+        )
+        render.note(
+            "minus_accepted: this value − the accepted one ("
+            + ("the store's settings" if s is not None else "the default choice")
+            + "); a run's [run] value_set picks another (see README, In-house runs)"
+        )
+        return
     info = api.scales(s)
     render.table(
         RELATION_COLUMNS,

@@ -17,8 +17,9 @@ ByOpt = Annotated[
     str | None,
     typer.Option(
         "--by",
-        help="Group by region | paleolat-band | source | setting | component (default: "
-        "component and setting).",
+        help="Group by region | paleolat-band[:DEG] | source | setting | component (default: "
+        "component and setting). paleolat-band:15 makes bands of 15° (a divisor of 180; "
+        "default 30).",
         show_default=False,
     ),
 ]
@@ -48,6 +49,25 @@ MixedOpt = Annotated[
     typer.Option(
         "--allow-mixed",
         help="Merge carbonate and organic δ13C into one curve (the figure says so).",
+    ),
+]
+# the excursion's draws; compile/synthesis/excursion_draws.py::DEFAULT_DRAWS is the default
+# (repeated here so --help imports no numpy; a test keeps the two equal)
+EXCURSION_DRAWS = 500
+ExcursionDrawsOpt = Annotated[
+    int,
+    typer.Option(
+        "--draws",
+        help="Draws for the 1σ and 95 % ranges: each draws every sample's age (age-model "
+        "draws, reported σ, stage span) and resamples each section's samples (0: none).",
+    ),
+]
+BootstrapOpt = Annotated[
+    bool,
+    typer.Option(
+        "--bootstrap/--no-bootstrap",
+        help="Resample each section's samples with replacement (kept in stratigraphic order) "
+        "in every draw; --no-bootstrap varies the ages only.",
     ),
 ]
 RobustOpt = Annotated[
@@ -187,19 +207,24 @@ def excursion(
     direction: Annotated[
         str, typer.Option("--direction", help="auto | negative | positive.")
     ] = "auto",
+    draws: ExcursionDrawsOpt = EXCURSION_DRAWS,
+    seed: SeedOpt = 0,
+    bootstrap: BootstrapOpt = True,
     fmt: FormatOpt = "table",
     out: Annotated[
         Path | None,
         typer.Option(
             "--out",
-            help="Folder for the tables and the figure aligned on onset.",
+            help="Folder for the tables (CSV and Parquet), their column list, the figure "
+            "aligned on onset with the ranges, and a manifest.",
             show_default=False,
         ),
     ] = None,
     store: StoreOpt = None,
 ) -> None:
-    """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset and
-    recovery, sample count and spacing; a summary across sections and groups."""
+    """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset,
+    recovery and duration with 1σ and 95 % ranges over seeded draws, sample count and
+    spacing; a summary across sections and groups with the uncertainty of each mean."""
     from strata13.compile import api
 
     from strata13.errors import OptionError
@@ -224,6 +249,9 @@ def excursion(
         "baseline": baseline,
         "fraction": fraction,
         "direction": direction,
+        "draws": draws,
+        "seed": seed,
+        "no_bootstrap": not bootstrap,  # the default is on: only its absence is written
     }
     res = api.excursion(
         s,
@@ -232,6 +260,9 @@ def excursion(
         baseline=window,
         fraction=fraction,
         direction=direction,
+        draws=draws,
+        seed=seed,
+        bootstrap=bootstrap,
         out=out,
         command=command_line("excursion", s.path, options) if out is not None else None,
     )

@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING, Any
 from strata13.compile.derive.engine import DEFAULT_TIME_SCALE, Settings
 from strata13.compile.export.outputs import output_dir, output_file
 from strata13.compile.export.package import ExportResult, neutralise
-from strata13.compile.ingest import IngestResult, reconcile
+from strata13.compile.ingest import IngestResult, accepted_lines, reconcile
 from strata13.compile.integrity.corrections import Correction
 from strata13.compile.interrupts import pressed as _pressed
 from strata13.compile.query.filters import (
@@ -51,6 +51,7 @@ if TYPE_CHECKING:
     from strata13.compile.integrity.overlaps import Tolerances
     from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
+    from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
     from strata13.compile.store.files import Orphans
     from strata13.schemas.timescales import TimeScale
@@ -69,6 +70,7 @@ __all__ = [
     "Settings",
     "Store",
     "Version",
+    "accepted_lines",
     "agemodel",
     "check_sources",
     "check_vocab",
@@ -92,12 +94,14 @@ __all__ = [
     "materials_settings",
     "neutralise",
     "open_store",
+    "per_sample",
     "output_dir",
     "output_file",
     "overlaps",
     "parse_interval",
     "parse_paleolat",
     "plot_agemodel",
+    "propose_map",
     "query",
     "query_arrow",
     "read_corrections",
@@ -109,6 +113,7 @@ __all__ = [
     "rotations_settings",
     "rules_settings",
     "run_demo",
+    "scale_disagreements",
     "scales",
     "screen",
     "screen_plots",
@@ -118,6 +123,7 @@ __all__ = [
     "sql",
     "stages",
     "store_path",
+    "time_scale_settings",
 ]
 
 
@@ -206,8 +212,10 @@ def materials_settings(materials: str | Path | None) -> dict[str, Any]:
 
 
 def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any]:
-    """Store settings for a rotation model and its plate polygons (both checked now; their
-    text is kept in the store, so the store reproduces its paleo-positions alone)."""
+    """Store settings for a rotation model and its plate polygons (both checked now, and
+    every plate the polygons name must be in the model; their text is kept in the store,
+    so the store reproduces its paleo-positions alone). A retired CSV model goes."""
+    from strata13.compile.derive.paleo import RETIRED_MODEL_KEY
     from strata13.compile.paleo import plates, rotations
     from strata13.compile.read.inputs import read_text
 
@@ -222,12 +230,14 @@ def rotations_settings(model: str | Path, polygons: str | Path) -> dict[str, Any
         raise ConfigError(
             f"{Path(polygons).name} is not valid JSON ({exc}).", "Check the GeoJSON file."
         ) from None
-    plates.parse_polygons(doc, Path(polygons).name)
+    polys = plates.parse_polygons(doc, Path(polygons).name)
+    plates.check_against_model(polys, m.names, Path(polygons).name)
     return {
-        "rotation_model_csv": texts[0],
+        "rotation_model_toml": texts[0],
         "plate_polygons_geojson": texts[1],
         "rotation_model_name": m.name,
         "rotation_frame": m.frame,
+        RETIRED_MODEL_KEY: None,
     }
 
 
@@ -260,6 +270,27 @@ def time_scale_settings(time_scale: str | Path) -> dict[str, Any]:
             "own (a CSV in the shipped format, see README 'Time scales').",
         )
     return {"time_scale": ts, "time_scale_table": None}
+
+
+def propose_map(
+    sheet: str | Path, sheet_name: str | None = None, out: str | Path | None = None
+) -> Proposal:
+    """A drafted mapping for ``sheet`` (``read.propose.Proposal``: text, matches, what to
+    fill in); with ``out`` it is written there, never over an existing file or the sheet."""
+    from strata13.compile.read.propose import propose
+
+    proposal = propose(Path(sheet), sheet_name)
+    if out is not None:
+        target = Path(out)
+        if target.exists():
+            raise OptionError(
+                f"--out {target} exists; a drafted mapping never replaces a file.",
+                "Give a new file name, or delete the old one first.",
+            )
+        if target.suffix.lower() != ".toml":
+            raise OptionError(f"--out {target} is not a .toml file.", "Name it MAP.toml.")
+        target.write_text(proposal.text, encoding="utf-8")
+    return proposal
 
 
 def init_store(
@@ -403,6 +434,14 @@ def query_arrow(store: Store, filters: Filters | None = None, as_of: int | None 
         con.close()
 
 
+def per_sample(records: pa.Table) -> pa.Table:
+    """Records averaged to one row per sample: the mean of each δ value and age with the
+    number of analyses and their SD (``query.samples.per_sample``)."""
+    from strata13.compile.query.samples import per_sample as _per_sample
+
+    return _per_sample(records)
+
+
 def query(store: Store, filters: Filters | None = None, as_of: int | None = None) -> pd.DataFrame:
     """Records matching ``filters`` as a pandas DataFrame (columns of the records view)."""
     return query_arrow(store, filters, as_of).to_pandas()
@@ -463,7 +502,13 @@ def _export_records(
     con, version = store.reader(as_of)
     try:
         stored = store.settings(version)
-        long = ("screen_rules", "rotation_model_csv", "plate_polygons_geojson", "materials_csv")
+        long = (
+            "screen_rules",
+            "rotation_model_toml",
+            "rotation_model_csv",  # a store's retired model, until replaced
+            "plate_polygons_geojson",
+            "materials_csv",
+        )
         result: ExportResult = _export.export(
             con,
             version,
@@ -537,11 +582,17 @@ def history(store: Store) -> list[Version]:
 
 
 def reharmonise(
-    store: Store, vsmow_constants: str | None = None, materials: str | Path | None = None
+    store: Store,
+    vsmow_constants: str | None = None,
+    materials: str | Path | None = None,
+    check_tolerance: str | None = None,
 ) -> RecomputeResult:
     """Re-derive every record with new harmonisation settings (one commit, or none when
-    nothing changes); returns a RecomputeResult with counts and sizes of the changes."""
+    nothing changes); returns a RecomputeResult with counts and sizes of the changes.
+    ``check_tolerance``: how far an in-house run's check material may lie from its accepted
+    value ("from-uncertainty", the default rule, or a tolerance in ‰)."""
     from strata13.compile.derive.recompute import recompute
+    from strata13.compile.derive.settings import check_tolerance_policy
     from strata13.compile.harmonise.oxygen import relation
 
     change: dict[str, Any] = {}
@@ -549,6 +600,8 @@ def reharmonise(
         change["vsmow_constants"] = relation(vsmow_constants).name
     if materials is not None:
         change |= materials_settings(materials)
+    if check_tolerance is not None:
+        change["check_tolerance"] = check_tolerance_policy(check_tolerance)
     return recompute(store, change, "reharmonise")
 
 
@@ -579,11 +632,16 @@ def redate(
     extrapolation: bool | None = None,
     draws: int | None = None,
     blank_boundary_sigma: str | None = None,
+    accumulation_shape: float | None = None,
+    accumulation_segment_m: float | None = None,
 ) -> RecomputeResult:
     """Change the store's chart or age-model settings and re-derive every age (one commit,
     or none when nothing changes); returns a RecomputeResult. ``blank_boundary_sigma``:
     what a chart boundary with a blank error gets as 1σ ("borrow" from the nearest chart
-    that states one, "refuse", or a σ in Myr)."""
+    that states one, "refuse", or a σ in Myr). ``accumulation_shape`` and
+    ``accumulation_segment_m``: the store's accumulation prior between ties (the time one
+    segment of that many metres took is Gamma(shape)); a section's own prior in its mapping
+    block still wins."""
     from strata13.compile.derive.recompute import recompute
 
     change: dict[str, Any] = {}
@@ -602,6 +660,19 @@ def redate(
         from strata13.compile.derive.settings import blank_sigma_policy
 
         change["blank_boundary_sigma"] = blank_sigma_policy(blank_boundary_sigma)
+    for key, value, option, setting in (
+        ("shape", accumulation_shape, "--accumulation-shape", "age_accumulation_shape"),
+        (
+            "segment_m",
+            accumulation_segment_m,
+            "--accumulation-segment",
+            "age_accumulation_segment_m",
+        ),
+    ):
+        if value is not None:
+            from strata13.compile.ages.agemodel import prior_value
+
+            change[setting] = prior_value(key, value, option, OptionError)
     return recompute(store, change, "redate")
 
 
@@ -683,12 +754,17 @@ def excursion(
     baseline: tuple[float, float, str] | None = None,
     fraction: float = 0.10,
     direction: str = "auto",
+    draws: int | None = None,
+    seed: int = 0,
+    bootstrap: bool = True,
     out: str | Path | None = None,
     command: str | None = None,
 ) -> ExcursionResult:
-    """Per-section excursion metrics in the filtered interval (tables, a figure and a
-    manifest naming ``command`` in ``out`` when given). A fraction outside (0, 1) or an
-    unknown direction is a wrong instruction (OptionError, exit 2)."""
+    """Per-section excursion metrics in the filtered interval with 1σ and 95 % ranges over
+    ``draws`` draws (age draws and, with ``bootstrap``, resampled samples; None: the default
+    500, 0: none), seeded by ``seed``; tables, a figure and a manifest naming ``command`` in
+    ``out`` when given. A fraction outside (0, 1) or an unknown direction is a wrong
+    instruction (OptionError, exit 2)."""
     import math
 
     from strata13.compile.synthesis.excursion import DIRECTIONS
@@ -711,6 +787,9 @@ def excursion(
         baseline=baseline,
         fraction=fraction,
         direction=direction,
+        draws=draws,
+        seed=seed,
+        bootstrap=bootstrap,
         out=Path(out) if out is not None else None,
         command=command,
     )
@@ -819,6 +898,28 @@ def scales(store: Store | None = None) -> dict[str, list[dict[str, Any]]]:
         "materials": [{**asdict(m), "in_store": mark(m)} for m in table],
         "relations": relations,
     }
+
+
+def scale_disagreements(store: Store | None = None) -> list[dict[str, Any]]:
+    """Reference materials whose published value sets disagree, per isotope: every value
+    on VPDB (δ18O on VSMOW converted with the store's relation, IUPAC without a store), its
+    1σ, and its difference from the value the store accepts (without a store: the default
+    choice, ``schemas.materials.default_choice``)."""
+    from strata13.compile.derive.settings import DEFAULT_VSMOW_CONSTANTS
+    from strata13.schemas.materials import (
+        default_choice,
+        disagreements,
+        shipped_materials,
+        store_table,
+    )
+
+    if store is None:
+        table = list(shipped_materials())
+        return disagreements(table, default_choice(table), DEFAULT_VSMOW_CONSTANTS)
+    settings = store.settings()
+    table, choice = store_table(settings)
+    relation = settings.get("vsmow_constants") or DEFAULT_VSMOW_CONSTANTS
+    return disagreements(table, choice, relation)
 
 
 def explain(store: Store, record: str) -> dict[str, Any]:

@@ -63,7 +63,7 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
         store_dir,
         regions=data / "regions.geojson",
         made_by="demo",
-        rotations=(data / "rotations.csv", data / "plates.geojson"),
+        rotations=(data / "rotations.toml", data / "plates.geojson"),
     )
     yield "say", f"store: {store.path}   (try: strata13 sources --store {store.path})"
     for sheet, mapping in SHEETS:
@@ -78,6 +78,8 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                 + (f" (pending: {pend})" if pend else "")
             ),
         )
+        for line in api.accepted_lines(r.run_qc):
+            yield "note", f"  {line}"
         for q in r.run_qc:
             yield (
                 "say",
@@ -88,8 +90,12 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                     + ", ".join(
                         f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items()
                     )
+                    + f" ({q['check_status']}); precision 1σ "
+                    + (f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—")
                 ),
             )
+        for w in r.warnings:
+            yield "say", f"  warning: {w}"
     r = api.ingest(store, None, sheets / TIES)
     yield (
         "say",
@@ -224,14 +230,24 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     yield (
         "say",
         (
-            "excursion per section (Toarcian, negative; full table and the figure "
-            f"aligned on onset in {figures / 'excursion'}):"
+            f"excursion per section (Toarcian, negative; 1σ over {excursion.draws} draws of "
+            "ages and resampled samples; full table and the figure aligned on onset in "
+            f"{figures / 'excursion'}):"
         ),
     )
     yield (
         "table",
         (
-            ["section_id", "group", "baseline", "peak_age_ma", "magnitude", "onset_age_ma"],
+            [
+                "section_id",
+                "group",
+                "baseline",
+                "peak_age_ma",
+                "magnitude",
+                "magnitude_sigma_permil",
+                "onset_age_ma",
+                "onset_age_sigma_myr",
+            ],
             [
                 (
                     r.section_id,
@@ -239,7 +255,9 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
                     round(r.baseline, 2),
                     round(r.peak_age_ma, 2),
                     round(r.magnitude, 2),
+                    round(r.magnitude_sigma_permil, 2),
                     round(r.onset_age_ma, 2),
+                    round(r.onset_age_sigma_myr, 2),
                 )
                 for r in excursion.per_section.itertuples()
             ],

@@ -8,6 +8,7 @@ quarantine. A Ctrl-C is answered truthfully: the commit either landed or it did 
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -50,6 +51,8 @@ class IngestResult:
     ties: int = 0  # age ties this source gives
     standards: int = 0  # reference-material rows of in-house runs (kept in the runs table)
     run_qc: list[dict[str, Any]] = field(default_factory=list)  # per run and isotope
+    # loud run QC findings (a check beyond its tolerance, a slope far from 1), one sentence each
+    warnings: list[str] = field(default_factory=list)
     redated: int = 0  # records of other sources whose age changed with this source's ties
     orphaned: int = 0  # stored corrections whose record this ingest no longer has
 
@@ -80,11 +83,13 @@ def ingest(
         from strata13.compile.read.inputs import check_file
 
         check_file(sheet, "sheet", "Check the path of the sheet.")
-    if sheet is not None and sheet.resolve() != mapping.table.file:
-        raise OptionError(
-            f"{sheet} is not the file {mapping_path.name} maps ({mapping.table.file.name}).",
-            "Give the sheet named in the mapping's [table] file, or edit it.",
-        )
+    table = mapping.table
+    another_file = sheet is not None and sheet.resolve() != table.file
+    if sheet is not None and another_file:
+        # the mapping's layout for another file of the same source (a lab's next run file):
+        # a file named on the command line is the user's own, honoured as given
+        table = dataclasses.replace(table, file=sheet.resolve())
+        mapping = dataclasses.replace(mapping, table=table)
     step("reading and validating the sheet")
     prepared = prepare(mapping)
     report = prepared.report
@@ -92,7 +97,7 @@ def ingest(
     if report.errors and not keep_valid:
         raise ValidationFailed(
             f"{len(report.errors)} problem{'s' if len(report.errors) != 1 else ''} in "
-            f"{mapping.table.file.name}; nothing was written.",
+            f"{table.file.name}; nothing was written.",
             report,
             "Fix the cells listed, or use --keep-valid to commit the valid rows and "
             "quarantine the rest.",
@@ -101,18 +106,129 @@ def ingest(
     if prepared.records.num_rows == 0:
         if report.rows_read == report.rows_blank:
             raise DomainError(
-                f"{mapping.table.file.name} has no data rows under its header; "
-                "nothing was written.",
+                f"{table.file.name} has no data rows under its header; nothing was written.",
                 "Check the sheet and header_row in the mapping's [table]; a source "
                 "is never replaced by an empty one.",
             )
         raise ValidationFailed(
-            f"all {report.rows_rejected} rows of {mapping.table.file.name} "
+            f"all {report.rows_rejected} rows of {table.file.name} "
             "were refused; nothing was written.",
             report,
             "Fix the cells listed; a source is never replaced by an empty one.",
         )
-    return _land(store, prepared, result, dry_run, step, create)
+    return _land(store, prepared, result, dry_run, step, create, keep_others=another_file)
+
+
+def with_other_files(reads: Transaction | Reader, prepared: Any) -> Any:
+    """The prepared file joined with the rows the source holds from its other files.
+
+    A source may hold several files (the runs of one lab, the parts of a supplement), each
+    ingested as `ingest FILE --map MAP` with FILE another file than the mapping's own (an
+    ingest of the mapping's own file is the whole source and replaces every file).
+    Re-ingesting one file replaces only the records, samples, quarantined rows and runs it
+    brings; the source's other files keep theirs, and sections and localities are unioned.
+    The other files' records are re-derived with the new ones, so age models and screens
+    see the whole source.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    m = prepared.mapping
+    if m.table is None:
+        return prepared
+    sid, name = m.source_id, m.table.file.name
+    # rows stored before records named their file come from the source's one file
+    same_file = (
+        "coalesce(file_name, (SELECT any_value(file_name) FROM sources WHERE source_id = ?)) "
+        "IS NOT DISTINCT FROM ?"
+    )
+    kept = reads.fetch(
+        f"SELECT * FROM records WHERE source_id = ? AND NOT ({same_file}) ORDER BY record_id",
+        [sid, sid, name],
+    )
+    if not kept.num_rows:
+        return prepared
+    clash = pc.is_in(kept.column("record_id"), value_set=prepared.records.column("record_id"))
+    if pc.any(clash).as_py():
+        row = kept.filter(clash).slice(0, 1).to_pylist()[0]
+        earlier = row["file_name"] or "an earlier file"
+        raise DomainError(
+            f"{name}: sample {row['sample_id']!r} (section {row['section_id']!r}, replicate "
+            f"{row['replicate']}) is already stored for {sid} from {earlier}; nothing was "
+            "written.",
+            "Give the repeated analysis its own replicate (or run and position), or "
+            "re-ingest the file that holds it.",
+        )
+    records = pa.concat_tables(
+        [prepared.records, kept.select(prepared.records.column_names).cast(prepared.records.schema)]
+    )
+    samples = _union(reads, "samples", sid, prepared.samples, ("section_id", "sample_id"), records)
+    sections = _union(reads, "sections", sid, prepared.sections, ("section_id",), records)
+    localities = _union(reads, "localities", sid, prepared.localities, ("locality_id",), records)
+    quarantine = [
+        q
+        for q in reads.fetch(
+            f"SELECT * FROM quarantine WHERE source_id = ? AND NOT ({same_file})",
+            [sid, sid, name],
+        ).to_pylist()
+    ]
+    runs = prepared.runs
+    stored_runs = reads.fetch("SELECT * FROM runs WHERE source_id = ?", [sid])
+    if stored_runs.num_rows:
+        new_ids = runs.column("run_id") if runs is not None else pa.array([], pa.string())
+        old = stored_runs.filter(pc.invert(pc.is_in(stored_runs.column("run_id"), new_ids)))
+        runs = old if runs is None else pa.concat_tables([runs, old.cast(runs.schema)])
+    for q in quarantine:
+        q.pop("source_id", None)
+        q.pop("ingested_version", None)
+    return dataclasses.replace(
+        prepared,
+        records=records,
+        samples=samples,
+        sections=sections,
+        localities=localities,
+        runs=runs,
+        quarantine=list(prepared.quarantine) + quarantine,
+    )
+
+
+def _file_names(records: pa.Table, m: Any) -> str:
+    """The files a source's records come from ("; "-separated, sorted)."""
+    import pyarrow.compute as pc
+
+    if m.table is None:
+        return str(m.path.name)
+    names = {n for n in pc.unique(records.column("file_name")).to_pylist() if n}
+    return "; ".join(sorted(names | {m.table.file.name}))
+
+
+def _union(
+    reads: Transaction | Reader,
+    table: str,
+    sid: str,
+    new: pa.Table,
+    key: tuple[str, ...],
+    records: pa.Table,
+) -> pa.Table:
+    """The new rows of a per-source table, plus the stored ones whose key they lack and
+    whose records are still there."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    old = reads.fetch(f"SELECT * FROM {table} WHERE source_id = ?", [sid])
+    if not old.num_rows:
+        return new
+
+    def keys(t: pa.Table) -> pa.Array:
+        return pc.binary_join_element_wise(
+            *[pc.fill_null(t.column(k).cast(pa.string()), "") for k in key], "\x1f"
+        )
+
+    keep = pc.and_(
+        pc.invert(pc.is_in(keys(old), value_set=keys(new))),
+        pc.is_in(keys(old), value_set=keys(records.select(list(key)))),
+    )
+    return pa.concat_tables([new, old.filter(keep).select(new.column_names).cast(new.schema)])
 
 
 def _check_run_materials(store: Store, mapping: Any) -> None:
@@ -124,13 +240,41 @@ def _check_run_materials(store: Store, mapping: Any) -> None:
 
     table, _ = store_table(store.settings())
     known = sorted({m.material for m in table})
-    for name in [*mapping.run["anchors"], *mapping.run["checks"]]:
+    names = [*mapping.run["anchors"], *mapping.run["checks"]]
+    for name in names:
         if name not in known:
             raise DomainError(
                 f"{mapping.path.name}: [run] names reference material {name!r}, "
                 "which the store's material table does not have; nothing was "
                 "written." + did_you_mean(name, known),
                 "Name a material `strata13 scales` lists, or add it with --materials FILE.",
+            )
+    _check_run_value_sets(mapping, table, names)
+
+
+def _check_run_value_sets(mapping: Any, table: Any, names: list[str]) -> None:
+    """A value set the [run] names must exist: for its material, or (one name for all) for
+    at least one of the run's materials."""
+    from strata13.schemas.materials import value_sets
+
+    from strata13.suggest import did_you_mean
+
+    named = mapping.run.get("value_set")
+    if named is None:
+        return
+    pairs = named.items() if isinstance(named, dict) else [(None, named)]
+    for mat, wanted in pairs:
+        have = (
+            value_sets(table, mat)
+            if mat
+            else sorted({v for n in names for v in value_sets(table, n)})
+        )
+        if wanted not in have:
+            raise DomainError(
+                f"{mapping.path.name}: [run] value_set {wanted!r} is not a value set of "
+                f"{mat or 'any of the run materials'} in the store's material table; nothing "
+                "was written." + did_you_mean(wanted, have),
+                f"Value sets there: {', '.join(have)} (see `strata13 scales`).",
             )
 
 
@@ -162,17 +306,26 @@ def _ingest_ties_only(
 
 
 def _land(
-    store: Store, prepared: Any, result: IngestResult, dry_run: bool, step: Any, create: Any
+    store: Store,
+    prepared: Any,
+    result: IngestResult,
+    dry_run: bool,
+    step: Any,
+    create: Any,
+    keep_others: bool = False,
 ) -> IngestResult:
-    """Derive and commit one prepared source (or, for a dry run, only derive it)."""
+    """Derive and commit one prepared source (or, for a dry run, only derive it);
+    ``keep_others``: the file is one of several of its source (with_other_files)."""
     from strata13.compile.ages.ties import ties_table
 
     mapping = prepared.mapping
     new_ties = ties_table(mapping.ties)
     if dry_run:
-        derived = _dry_run(store, prepared, new_ties)
+        derived, result.redated = _dry_run(store, prepared, new_ties, keep_others)
+        result.ties = new_ties.num_rows
         result.standards = prepared.runs.num_rows if prepared.runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
+        result.warnings = run_warnings(result.run_qc)
         result.pending = _pending_counts(derived.table)
         result.committed = derived.table.num_rows
         return result
@@ -188,13 +341,23 @@ def _land(
         old_ties = tx.fetch("SELECT * FROM age_ties WHERE tie_source_id = ?", [sid])
         ties = _all_ties(tx, sid, new_ties)
         _check_tie_targets(tx, prepared, new_ties)
+        if keep_others:
+            prepared = with_other_files(tx, prepared)
         runs = prepared.runs
         fixes = tx.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
-        derived = derive(prepared.records, settings, ties, runs=runs, corrections=fixes)
+        derived = derive(
+            prepared.records,
+            settings,
+            ties,
+            runs=runs,
+            corrections=fixes,
+            sections=prepared.sections,
+        )
         records = derived.table
         result.orphaned = _orphans(fixes, records)
         result.standards = runs.num_rows if runs is not None else 0
         result.run_qc = derived.run_qc.to_pylist() if derived.run_qc is not None else []
+        result.warnings = run_warnings(result.run_qc)
         # sources whose sections this source's ties date (now or before) are re-dated too
         targets = {
             t
@@ -223,6 +386,7 @@ def _land(
             and old[0][-1] == len(prepared.quarantine)
             and _same_rows(old_ties, new_ties)
             and _same_runs(tx, sid, prepared.runs)
+            and _same_sections(tx, sid, prepared.sections)
             and not (result.added or result.removed or result.changed or result.moved)
         ):
             result.unchanged = True
@@ -286,25 +450,49 @@ def _all_ties(reads: Transaction | Reader, source_id: str, new_ties: pa.Table) -
     return pa.concat_tables([others.select(new_ties.column_names).cast(new_ties.schema), new_ties])
 
 
-def _dry_run(store: Store, prepared: Any, new_ties: pa.Table) -> Any:
-    """Derive as an ingest would, against the store's ties (if the store exists)."""
+def _dry_run(
+    store: Store, prepared: Any, new_ties: pa.Table, keep_others: bool = False
+) -> tuple[Any, int]:
+    """Derive as an ingest would, against the store's ties (if the store exists); also the
+    number of stored records of other sources whose ages the new ties would change."""
     from strata13.compile.store.lake import is_store
 
     settings = settings_from_store(store)
     if not is_store(store.path):
         _check_tie_targets(None, prepared, new_ties)
-        return derive(prepared.records, settings, new_ties, runs=prepared.runs)
+        derived = derive(
+            prepared.records, settings, new_ties, runs=prepared.runs, sections=prepared.sections
+        )
+        return derived, 0
+    sid = prepared.mapping.source_id
     con, _ = store.reader()
     try:
         reads = Reader(con)
-        ties = _all_ties(reads, prepared.mapping.source_id, new_ties)
+        ties = _all_ties(reads, sid, new_ties)
+        if keep_others:
+            prepared = with_other_files(reads, prepared)
         _check_tie_targets(reads, prepared, new_ties)
-        fixes = reads.fetch(
-            "SELECT * FROM corrections WHERE source_id = ?", [prepared.mapping.source_id]
-        )
+        fixes = reads.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
+        old_ties = reads.fetch("SELECT source_id FROM age_ties WHERE tie_source_id = ?", [sid])
+        targets = {
+            t
+            for t in old_ties.column("source_id").to_pylist()
+            + new_ties.column("source_id").to_pylist()
+            if t and t != sid
+        }
+        others = derive_stored(reads, sorted(targets), settings, ties)
+        redated = sum(_age_changes(r, d.table) for r, d in others.values())
     finally:
         con.close()
-    return derive(prepared.records, settings, ties, runs=prepared.runs, corrections=fixes)
+    derived = derive(
+        prepared.records,
+        settings,
+        ties,
+        runs=prepared.runs,
+        corrections=fixes,
+        sections=prepared.sections,
+    )
+    return derived, redated
 
 
 def _check_tie_targets(
@@ -368,6 +556,13 @@ def _same_runs(tx: Transaction, source_id: str, runs: pa.Table | None) -> bool:
     return bool(_same_rows(old.select(runs.column_names), runs))
 
 
+def _same_sections(tx: Transaction, source_id: str, sections: pa.Table) -> bool:
+    """Whether the source's stored sections (datum, names, accumulation prior …) equal the
+    incoming ones: a changed prior re-dates the source even when no record changed."""
+    old = tx.fetch("SELECT * FROM sections WHERE source_id = ?", [source_id])
+    return bool(_same_rows(old.select(sections.column_names), sections))
+
+
 def _age_changes(before: pa.Table, after: pa.Table) -> int:
     import numpy as np
 
@@ -422,7 +617,7 @@ def _write(
                 "lab": src.get("lab"),
                 "republishes": _meta(src)[META.index("republishes")],
                 "note": src.get("note"),
-                "file_name": m.table.file.name if m.table is not None else m.path.name,
+                "file_name": _file_names(records, m),
                 "file_sha256": prepared.file_sha256,
                 "mapping_sha256": m.sha256,
                 "n_records": records.num_rows,
@@ -478,3 +673,37 @@ def reconcile(result: IngestResult) -> str:
         f"read {r.rows_read} rows = {result.committed} committed{std} + "
         f"{result.quarantined} quarantined + {r.rows_blank} blank"
     )
+
+
+def run_warnings(run_qc: list[dict[str, Any]]) -> list[str]:
+    """One sentence per loud run QC finding: a check material beyond its tolerance, a
+    normalisation slope far from 1 (the run_qc rows' ``warnings``)."""
+    return [
+        f"run {q['run_id']} {q['isotope']} ({q['source_id']}): {w}"
+        for q in run_qc
+        if q.get("warnings")
+        for w in str(q["warnings"]).split("; ")
+    ]
+
+
+def accepted_lines(run_qc: list[dict[str, Any]]) -> list[str]:
+    """The accepted reference-material values a source's runs were normalised to, one line
+    per isotope and material: value on VPDB, value set and status, the published value
+    and scale (and the relation that converted it), who chose the value set, the source."""
+    import json
+
+    seen: dict[tuple[str, str, str], str] = {}
+    for q in run_qc:
+        for mat, a in sorted(json.loads(q.get("accepted_json") or "{}").items()):
+            via = (
+                f" = {a['published']:+g} ‰ {a['published_scale']} via {a['converted_with']}"
+                if a.get("converted_with")
+                else ""
+            )
+            seen.setdefault(
+                (q["source_id"], q["isotope"], mat),
+                f"accepted {q['isotope']} {mat} ({a['role']}): {a['value_vpdb']:+.3f} ‰ VPDB"
+                f"{via} — {a['value_set']}, {a['status']}; {a['chosen_by']}; source: "
+                f"{a['source']}",
+            )
+    return list(seen.values())

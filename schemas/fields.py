@@ -203,6 +203,7 @@ FIELDS: tuple[Field, ...] = (
         "‰",
         (0.0, 5.0),
         "analytical precision",
+        column="d13c_carb_precision_reported",
     ),
     Field(
         "d18o_carb_precision",
@@ -212,6 +213,7 @@ FIELDS: tuple[Field, ...] = (
         "‰",
         (0.0, 5.0),
         "analytical precision",
+        column="d18o_carb_precision_reported",
     ),
     Field(
         "d13c_org_precision",
@@ -221,6 +223,7 @@ FIELDS: tuple[Field, ...] = (
         "‰",
         (0.0, 5.0),
         "analytical precision",
+        column="d13c_org_precision_reported",
     ),
     # screening inputs
     Field(
@@ -349,6 +352,13 @@ FIELDS: tuple[Field, ...] = (
 )
 
 BY_NAME: dict[str, Field] = {f.name: f for f in FIELDS}
+
+# The rows of an in-house run that measure a reference material are exempt from the sample
+# ranges above (LSVEC, IAEA-CO-9 and USGS44 lie near −42 … −47 ‰ δ13C); they keep this
+# wide sanity bound on their raw δ values instead, which still catches unit slips
+# (common practice).
+REFERENCE_RANGE = (-100.0, 100.0)
+REFERENCE_RANGE_NAME = "reference-material δ range"
 
 # Per-sheet keys that are not columns of their own: the scale of each δ column and the
 # basis of each concentration column, settable as constants or per column.

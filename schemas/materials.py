@@ -260,3 +260,125 @@ def store_table(settings: dict[str, Any]) -> tuple[list[MaterialValue], dict[str
     )
     table = [*user, *shipped_materials()]
     return table, settings.get("material_values") or default_choice(table, len(user))
+
+
+# ------------------------------------------------------- uncertainties, choices, disagreement
+
+ONE_SIGMA_KINDS = ("SD", "k=1", "1σ", "1s")  # the stated number is 1σ
+TWO_SIGMA_KINDS = ("k=2", "2σ", "2s")  # an expanded uncertainty with coverage factor 2
+
+
+def sigma_1s(m: MaterialValue, isotope: str, vsmow_relation: str | None = None) -> float | None:
+    """The 1σ of ``m``'s value of ``isotope`` (‰, on VPDB when a relation converts it):
+    0 for a value exact by definition, half of a k = 2 uncertainty, None when the table
+    states none or states it in a form not listed here (never guessed as 0)."""
+    unc = getattr(m, f"{isotope}_unc")
+    kind = getattr(m, f"{isotope}_unc_kind").strip()
+    if kind == "exact":
+        return 0.0
+    if unc is None:
+        return None
+    if kind in ONE_SIGMA_KINDS:
+        sigma = float(unc)
+    elif kind in TWO_SIGMA_KINDS:
+        sigma = float(unc) / 2.0
+    else:
+        return None
+    if isotope == "d18o" and m.d18o_scale == "VSMOW" and vsmow_relation is not None:
+        sigma *= abs(oxygen_relations()[vsmow_relation].to_vpdb()[0])
+    return sigma
+
+
+def value_sets(table: list[MaterialValue] | tuple[MaterialValue, ...], material: str) -> list[str]:
+    """The value sets the table holds for ``material``, in table order."""
+    return list(dict.fromkeys(m.value_set for m in table if m.material == material))
+
+
+def run_choice(
+    materials: list[str],
+    named: str | dict[str, str] | None,
+    table: list[MaterialValue] | tuple[MaterialValue, ...],
+    choice: dict[str, dict[str, str]],
+) -> tuple[dict[str, dict[str, str]], dict[tuple[str, str], str]]:
+    """The value set per material and isotope a run uses, and who chose each.
+
+    ``named`` is the mapping's ``[run] value_set``: one name for every material of the run
+    or a name per material. A material and isotope the name has no value for keeps the
+    store's choice, and says so.
+    """
+    out = {m: dict(v) for m, v in choice.items()}
+    why: dict[tuple[str, str], str] = {}
+    for mat in materials:
+        wanted = named.get(mat) if isinstance(named, dict) else named
+        for iso in ISOTOPES:
+            have = any(
+                m.material == mat and m.value_set == wanted and getattr(m, iso) is not None
+                for m in table
+            )
+            if wanted is not None and have:
+                out.setdefault(mat, {})[iso] = wanted
+                why[(mat, iso)] = "chosen by the mapping's [run] value_set"
+            elif wanted is not None:
+                why[(mat, iso)] = f"chosen by the store's settings (no {wanted!r} {iso} value)"
+            else:
+                why[(mat, iso)] = "chosen by the store's settings"
+    return out, why
+
+
+def disagreements(
+    table: list[MaterialValue] | tuple[MaterialValue, ...],
+    choice: dict[str, dict[str, str]],
+    vsmow_relation: str,
+) -> list[dict[str, Any]]:
+    """Per material and isotope with two or more published values that differ: each value
+    as the store would use it (δ18O on VSMOW converted to VPDB with ``vsmow_relation``;
+    δ13C on its own scale, VPDB or VPDB-LSVEC), its 1σ, and how far it lies from the value
+    the store (or the default choice) accepts."""
+    out = []
+    for iso in ISOTOPES:
+        by_mat: dict[str, list[MaterialValue]] = {}
+        for m in table:
+            if getattr(m, iso) is not None:
+                by_mat.setdefault(m.material, []).append(m)
+        for mat, rows in by_mat.items():
+            chosen = choice.get(mat, {}).get(iso)
+            values = [
+                (accepted_value(mat, iso, [r], {mat: {iso: r.value_set}}, vsmow_relation)[0], r)
+                for r in rows
+            ]
+            if len({round(v, 6) for v, _ in values}) < 2:
+                continue
+            ref = next((v for v, r in values if r.value_set == chosen), None)
+            ref_scale = next(
+                (getattr(r, f"{iso}_scale") for v, r in values if r.value_set == chosen), None
+            )
+            for v, r in values:
+                scale = getattr(r, f"{iso}_scale")
+                out.append(
+                    {
+                        "material": mat,
+                        "isotope": iso,
+                        "value_set": r.value_set,
+                        "status": r.status,
+                        "published": getattr(r, iso),
+                        "published_scale": scale,
+                        "value": round(v, 6),
+                        "scale": "VPDB" if iso == "d18o" and scale == "VSMOW" else scale,
+                        "sigma_1s": sigma_1s(r, iso, vsmow_relation),
+                        "minus_accepted": None if ref is None else round(v - ref, 6),
+                        "accepted": r.value_set == chosen,
+                        "note": _scale_note(iso, scale, ref_scale, vsmow_relation),
+                        "source": r.source,
+                    }
+                )
+    return sorted(out, key=lambda r: (r["material"], r["isotope"], r["value_set"]))
+
+
+def _scale_note(iso: str, scale: str, ref_scale: str | None, relation: str) -> str:
+    """What a difference between two values of one material rests on."""
+    notes = []
+    if iso == "d18o" and scale == "VSMOW":
+        notes.append(f"converted from VSMOW with {relation}")
+    if ref_scale is not None and {scale, ref_scale} == {"VPDB", "VPDB-LSVEC"}:
+        notes.append("VPDB and VPDB-LSVEC are two scales: part of the difference is the scale")
+    return "; ".join(notes)

@@ -82,7 +82,7 @@ ANALYSES: list[tuple[str, str]] = [
     ("age_basis", TEXT),
     ("time_scale", TEXT),
     ("age_status", TEXT),
-    ("plate_id", INT),
+    ("plate_id", TEXT),  # the plate's name in the rotation model (INTEGER before names)
     ("paleolat", REAL),
     ("paleolon", REAL),
     ("paleo_model", TEXT),
@@ -108,10 +108,22 @@ ANALYSES: list[tuple[str, str]] = [
     ("run_position", REAL),
     ("big_delta_13c", REAL),  # Δ13C = δ13C carb − δ13C org
     ("corrected_fields", TEXT),  # JSON list of the fields a stored correction changed
-    ("plate_override", INT),  # the mapping's plate for the record's locality (displaced terranes)
+    ("plate_override", TEXT),  # the mapping's plate (a name) for the locality (displaced terranes)
     ("paleolat_sigma", REAL),  # 1σ of paleolatitude from the model's pole uncertainties
     ("screen_reason", TEXT),  # why the record has its screen state (rules named)
+    # analytical precision (1σ) as the sheet states it; ``{d}_precision`` is derived from it
+    # (or, for an in-house run, from the run's replicate standards when the sheet gives none)
+    *((f"{d}_precision_reported", REAL) for d in DELTA_FIELDS),
+    ("file_name", TEXT),  # the file the record was read from (a source may hold several)
 ]
+
+# Columns whose stored type changed: (table, column) -> the type they had before. A store
+# written before keeps reading (its views cast them to today's type) and the first write
+# converts them in place (``Store.migrate``): the old plate numbers become text.
+RETYPED: dict[tuple[str, str], str] = {
+    ("analyses", "plate_id"): INT,
+    ("analyses", "plate_override"): INT,
+}
 
 SOURCES = [
     ("source_id", TEXT),
@@ -151,6 +163,10 @@ SECTIONS = [
     ("offset_from", TEXT),
     ("offset_source", TEXT),
     ("note", TEXT),
+    # the section's own accumulation prior for its age model ([[sections]] accumulation);
+    # empty: the store's setting
+    ("accumulation_shape", REAL),
+    ("accumulation_segment_m", REAL),
 ]
 SAMPLES = [
     ("source_id", TEXT),
@@ -168,6 +184,7 @@ QUARANTINE = [
     ("cells_json", TEXT),
     ("reasons", TEXT),
     ("ingested_version", BIGINT),
+    ("file_name", TEXT),
 ]
 SETTINGS = [("key", TEXT), ("value_json", TEXT), ("hash", TEXT)]
 COMMITS = [
@@ -206,6 +223,10 @@ RUN_QC = [
     ("precision_1s", REAL),
     ("drift_per_position", REAL),
     ("warnings", TEXT),
+    ("drift_sigma", REAL),  # 1σ of drift_per_position
+    ("check_status", TEXT),  # pass | warn | untested (the worst of the run's checks)
+    ("check_detail", TEXT),  # each check: offset, tolerance and how it was set
+    ("accepted_json", TEXT),  # the accepted values used: material, value set, source
 ]
 # source_id/section_id: the section a tie dates; tie_source_id: the source that gave the tie
 # (a tie source of its own survives re-ingests of the data it dates). age_sigma_ma is 1σ.
@@ -294,6 +315,7 @@ DERIVED: frozenset[str] = frozenset(
         *DELTA_FIELDS,
         *(f"{d}_chain" for d in DELTA_FIELDS),
         *(f"{d}_status" for d in DELTA_FIELDS),
+        *(f"{d}_precision" for d in DELTA_FIELDS),
         "age_ma",
         "age_sigma_ma",
         "age_basis",

@@ -18,13 +18,14 @@ from strata13.compile.ages.agemodel import (
     AT_HIATUS,
     EXTRAPOLATED,
     OUTSIDE,
+    Accumulation,
     Tie,
     draw_section,
     shared_offsets,
     summarise,
 )
 
-from strata13.errors import DomainError
+from strata13.errors import ConfigError, DomainError, OptionError
 
 N = 4000  # draws for the statistical checks: SE of a σ estimate ≈ σ/√(2N) ≈ 1.1 %
 
@@ -67,7 +68,9 @@ def sections(draw: st.DrawFn) -> tuple[list[Tie], np.ndarray, str, dict[str, obj
     pos = np.concatenate([pos, [t.position_m for t in ties]])
     opts = {
         "allow_extrapolation": draw(st.booleans()),
-        "segment_m": draw(st.sampled_from([0.05, 1.0, 7.5])),
+        "prior": Accumulation(
+            draw(st.sampled_from([0.05, 1.0, 4.0])), draw(st.sampled_from([0.05, 1.0, 7.5]))
+        ),
         "max_segments": draw(st.sampled_from([3, 2000])),
     }
     return ties, pos, kind, opts
@@ -114,31 +117,83 @@ def test_spread_and_median_at_the_ties() -> None:
     assert abs(s.median[0] - 180.0) < 0.05 and abs(s.median[1] - 190.0) < 0.03
 
 
-@pytest.mark.parametrize("w", [0.25, 0.5])
+@pytest.mark.parametrize("w", [0.25, 0.5, 0.255, 0.505])
 def test_spread_between_ties(w: float) -> None:
     # Closed form of error propagation (linear interpolation between independent ties):
     # σ(w) ≥ sqrt((1−w)²σ₁² + w²σ₂²), the steady-accumulation lower bound. And the exact
     # gamma-bridge closed form: the fraction of time elapsed at w is Beta(βwL, β(1−w)L)
     # (Dirichlet aggregation), var = w(1−w)/(βL+1), so by the law of total variance
     # σ² = (1−w)²σ₁² + w²σ₂² + E[D²]·w(1−w)/(βL+1), E[D²] = (μ₂−μ₁)² + σ₁² + σ₂².
+    # 25.5 m and 50.5 m lie inside 1 m segments, where the one-jump bridge keeps that σ.
     s1, s2, length = 0.5, 0.3, 100.0
     r = draw_section([w * length], _two_ties(s1, s2), "depth", N, 12)
     sigma = summarise(r.draws).sigma[0]
     linear = math.sqrt((1 - w) ** 2 * s1**2 + w**2 * s2**2)
     assert sigma >= linear
     d2 = 10.0**2 + s1**2 + s2**2
-    exact = math.sqrt(linear**2 + d2 * w * (1 - w) / (agemodel.SHAPE_PER_M * length + 1))
+    beta = Accumulation().shape_per_m
+    exact = math.sqrt(linear**2 + d2 * w * (1 - w) / (beta * length + 1))
     assert sigma == pytest.approx(exact, rel=0.05)
 
 
-def test_segment_length_does_not_change_the_knot_ages() -> None:
-    # Gamma-process property (shape ∝ length): the law at a knot does not depend on how the
-    # interval is cut; 0.5 m and 5 m segments give the same σ at 50 m within MC tolerance.
+def _beta_sd(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """SD of Beta(a, b): Var = a·b / ((a+b)²(a+b+1)) (the Beta distribution's closed form)."""
+    return np.sqrt(a * b / ((a + b) ** 2 * (a + b + 1)))
+
+
+@pytest.mark.parametrize("prior", [Accumulation(), Accumulation(2.0, 0.5), Accumulation(0.4, 2.0)])
+def test_sigma_between_fixed_ties_is_the_gamma_bridge_and_unimodal(prior: Accumulation) -> None:
+    # Closed form of the gamma bridge (Dirichlet increments): with two exact ties 10 m apart
+    # (n equal segments of the prior's length), the fraction of the interval's time elapsed
+    # at depth z is Beta(βz, β(L−z)), β = shape / segment_m, so σ_age(z) = (A₂−A₁)·SD of
+    # that Beta — at segment edges (where the draws follow the Beta law itself; checked
+    # with scipy.stats.kstest) and between them (where the one-jump bridge keeps the first
+    # two moments). Tolerance: 4 Monte Carlo standard errors of each sample variance,
+    # SE(s²) = sqrt((m₄ − s⁴)/N) from the draws themselves.
+    from scipy import stats
+
+    length, young, old, n = 10.0, 180.0, 182.0, 20_000
+    ties = [Tie(0.0, young, 0.0, "radiometric"), Tie(length, old, 0.0, "radiometric")]
+    z = np.linspace(0.05, length - 0.05, 199)
+    d = draw_section(z, ties, "depth", n, 21, prior=prior).draws
+    beta = prior.shape_per_m
+    want = (old - young) * _beta_sd(beta * z, beta * (length - z))
+    dev = d - d.mean(axis=0)
+    var = (dev**2).sum(axis=0) / (n - 1)
+    se = np.sqrt(((dev**4).mean(axis=0) - var**2) / n)
+    assert np.all(np.abs(var - want**2) < 4 * se)
+    # unimodal: no position lies below the highest σ on both its sides (no local dip)
+    sd = np.sqrt(var)
+    left, right = np.maximum.accumulate(sd), np.maximum.accumulate(sd[::-1])[::-1]
+    dip = np.minimum(left, right) - sd
+    assert dip.max() < 0.01 * sd.max()
+    edges = np.flatnonzero(np.isclose(z / prior.segment_m, np.round(z / prior.segment_m)))
+    for i in edges[:: max(1, len(edges) // 4)]:
+        frac = (d[:, i] - young) / (old - young)
+        law = stats.beta(beta * z[i], beta * (length - z[i]))
+        assert stats.kstest(frac, law.cdf).pvalue > 0.001, z[i]
+
+
+def test_shape_per_metre_not_the_cut_sets_sigma() -> None:
+    # Gamma-process property (shape ∝ length): σ at a point depends on the shape per metre
+    # only; 1 per 1 m and 5 per 5 m (both one per metre) agree at 50 m and at 52.5 m.
     sig = [
-        summarise(draw_section([50.0], _two_ties(), "depth", N, 3, segment_m=m).draws).sigma[0]
-        for m in (0.5, 5.0)
+        summarise(draw_section([50.0, 52.5], _two_ties(), "depth", N, 3, prior=p).draws).sigma
+        for p in (Accumulation(1.0, 1.0), Accumulation(5.0, 5.0))
     ]
     assert sig[0] == pytest.approx(sig[1], rel=0.06)
+
+
+def test_the_prior_is_checked() -> None:
+    # The prior's sanity bounds (agemodel.PRIOR_RANGES): one sentence naming where, and what
+    # the value means, for anything else.
+    for key, bad in (("shape", 0.0), ("shape", -1), ("segment_m", float("nan")), ("shape", True)):
+        with pytest.raises(OptionError) as err:
+            agemodel.prior_value(key, bad, "--x", OptionError)
+        assert "--x" in str(err.value) and key in err.value.hint
+    with pytest.raises(ConfigError, match="from 0.001 to 1000"):
+        agemodel.prior_value("segment_m", "1 m", "map.toml: section 's' accumulation", ConfigError)
+    assert agemodel.prior_value("shape", 2, "--x", OptionError) == 2.0
 
 
 def test_position_error_adds_through_the_rate() -> None:
@@ -237,6 +292,12 @@ def test_reproducible_with_a_seed_and_independent_of_chunking() -> None:
     c = draw_section(pos, _two_ties(), "depth", 300, 10)
     assert np.array_equal(a.draws, b.draws)
     assert not np.array_equal(a.draws, c.draws)
+    # segments of shapes other than 1 (a 0.5 m rest, a prior of shape 2) use another stream
+    ties = [*_two_ties(), Tie(100.5, 190.2, 0.1, "radiometric")]
+    prior = Accumulation(2.0, 1.0)
+    d = draw_section(pos, ties, "depth", 300, 9, prior=prior)
+    e = draw_section(pos, ties, "depth", 300, 9, prior=prior, chunk_draws=13)
+    assert np.array_equal(d.draws, e.draws)
 
 
 def test_height_and_depth_are_mirror_images() -> None:
@@ -252,12 +313,37 @@ def test_height_and_depth_are_mirror_images() -> None:
 # ------------------------------------------------------------------ refusals
 
 
+def test_ties_inverted_within_their_errors_are_kept_in_order_by_the_draws() -> None:
+    # The rule (common practice): an older tie above a younger one contradicts only beyond
+    # 2σ of the age difference, 2·sqrt(σ₁² + σ₂²). 0.3 Myr with σ 0.3 and 0.2 (limit 0.72) is
+    # not a contradiction: the truncated draws put the two in order in every draw.
+    ties = [Tie(4.0, 183.1, 0.2, "radiometric"), Tie(10.0, 183.4, 0.3, "radiometric")]
+    ordered = agemodel.validate_ties(ties, "height")
+    assert [t.position_m for t in ordered] == [10.0, 4.0]
+    r = draw_section([10.0, 7.0, 4.0], ties, "height", 2000, 3)
+    assert np.isfinite(r.draws).all() and (np.diff(r.draws, axis=1) >= 0).all()
+    limit = 2 * math.hypot(0.3, 0.2)
+    for gap, ok in ((limit - 0.01, True), (limit + 0.01, False)):
+        pair = [Tie(4.0, 183.1, 0.2, "radiometric"), Tie(10.0, 183.1 + gap, 0.3, "radiometric")]
+        if ok:
+            agemodel.validate_ties(pair, "height")
+        else:
+            with pytest.raises(DomainError, match="beyond the ties' errors"):
+                agemodel.validate_ties(pair, "height")
+
+
 def test_inverted_ties_are_refused_naming_both() -> None:
-    ties = [Tie(10.0, 185.2, 0.3, "radiometric"), Tie(4.0, 183.1, 0.5, "radiometric")]
+    # 2.1 Myr older above, beyond 2·sqrt(0.3² + 0.5²) = 1.17 Myr: refused, both ties named
+    # with their positions, ages, σ and sources
+    ties = [
+        Tie(10.0, 185.2, 0.3, "radiometric", note="ash A", source="src-a"),
+        Tie(4.0, 183.1, 0.5, "radiometric", note="ash B", source="src-b"),
+    ]
     with pytest.raises(DomainError) as err:
         agemodel.validate_ties(ties, "height")
     text = str(err.value)
-    assert all(s in text for s in ("185.2", "183.1", "10 m", "4 m", "height"))
+    assert all(s in text for s in ("185.2", "183.1", "10 m", "4 m", "height", "± 0.3", "± 0.5"))
+    assert all(s in text for s in ("ash A", "ash B", "src-a", "src-b", "1.166"))
     assert err.value.hint
     agemodel.validate_ties(ties, "depth")  # the same ties read as depths are in order
 

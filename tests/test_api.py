@@ -65,6 +65,7 @@ def test_signatures_resolve() -> None:
     from strata13.compile.integrity.overlaps import Tolerances
     from strata13.compile.query.regions import Region
     from strata13.compile.query.sqlguard import SqlResult
+    from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
     from strata13.schemas.timescales import TimeScale
 
@@ -78,6 +79,7 @@ def test_signatures_resolve() -> None:
         "CorrectResult": CorrectResult,
         "Region": Region,
         "SqlResult": SqlResult,
+        "Proposal": Proposal,
         "Screening": Screening,
         "TimeScale": TimeScale,
         "Tolerances": Tolerances,

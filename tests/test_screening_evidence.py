@@ -181,3 +181,15 @@ def test_the_shipped_rule_set_declares_evidence_for_every_screened_carbonate() -
     # cements fail outright (no-cements), so they need no evidence entry
     assert screened - covered == {"cement"}
     assert all(e.citation == "common practice" for e in rs.evidence)
+
+
+def test_cross_plot_titles_keep_a_correlation_near_one_from_reading_as_one() -> None:
+    from strata13.compile.screening.plots import _line
+
+    line = _line(
+        {"r": 0.996042, "r2": 0.9921, "n": 16, "n_eff": 3.87, "p": 0.0055, "outcome": "warn"}
+    )
+    assert line.startswith("r = 0.996, r² = 0.99,")
+    assert _line(
+        {"r": -0.99996, "r2": 0.99992, "n": 9, "n_eff": 9.0, "p": 0.01, "outcome": "warn"}
+    ).startswith("r = -0.99996, r² = 0.9999,")

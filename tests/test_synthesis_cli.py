@@ -571,7 +571,7 @@ def test_organic_carbon_is_drawn_and_labelled_as_such(
     assert bins["n_samples"].sum() == len(org)
     assert (bins["median"] < -20).all()  # organic δ13C, not carbonate
     text = svg_text(out / "curve.svg")
-    assert "δ13C org" in text and "δ13C carb" not in text
+    assert "δ¹³C org" in text and "δ¹³C carb" not in text
     m = manifest(out)
     assert m["parameters"]["isotope"] == "org" and m["samples"] == len(org)
 

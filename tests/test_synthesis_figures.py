@@ -89,7 +89,7 @@ def test_curve_figure_size_and_png_pixels(tmp_path: Path) -> None:
     assert imread(png).shape[:2] == (round(4.5 * DPI), round(7.0 * DPI))
     ax = fig.axes[0]
     assert ax.get_xlim()[0] > ax.get_xlim()[1]  # older on the left (OLDER_ON_LEFT)
-    assert ax.get_ylabel() == "δ13C carb (‰ VPDB)"
+    assert ax.get_ylabel() == "δ¹³C carb (‰ VPDB)"
     assert fig.axes[1].get_xlabel() == "Age (Ma)"  # on the stage strip under the plot
 
 
@@ -118,7 +118,7 @@ def test_one_group_and_band_hidden_everywhere() -> None:
     labels = [t.get_text() for t in legend.get_texts()]
     assert labels == ["Only (n = 60)"]
     assert not [c for c in fig.axes[0].collections if "Between" in type(c).__name__]
-    assert fig.axes[0].get_ylabel() == "δ13C org (‰ VPDB)"
+    assert fig.axes[0].get_ylabel() == "δ¹³C org (‰ VPDB)"
 
 
 def test_legend_overlaps_no_axes_and_notes() -> None:
@@ -211,22 +211,77 @@ def test_excursion_figure(tmp_path: Path) -> None:
     df = _sections()
     ps = excursion.per_section(df, baseline_window=(189.0, 190.0, "ma"))
     ps.loc[ps["section_id"] == "Late", "onset_position_m"] = np.nan  # as if flagged
-    fig = figures.excursion_figure(df, ps, size=(9.0, 5.0), title="Invented")
+    fig = figures.excursion_figure(df, ps, size=(9.0, 5.0), title="Invented δ13C")
     fig.canvas.draw()
     assert tuple(fig.get_size_inches()) == (9.0, 5.0)
-    axes = fig.axes
-    assert len(axes) == 3 and axes[0].get_shared_y_axes().joined(axes[0], axes[2])
+    *panels, ages = fig.axes
+    assert len(panels) == 3 and panels[0].get_shared_y_axes().joined(panels[0], panels[2])
     assert "Late" in fig.get_suptitle()
     # the depth core's peak lies above its onset on the shared axis
     s1 = ps.set_index("section_id").loc["S1"]
-    line = axes[1].lines[0]
+    line = panels[1].lines[0]
     y_peak = line.get_ydata()[np.argmin(line.get_xdata())]
     assert y_peak == pytest.approx(s1["onset_position_m"] - s1["peak_position_m"])
     assert y_peak > 0
+    # mass numbers as superscripts, as a journal prints them, with the scale
+    assert panels[0].get_xlabel() == "δ¹³C carb (‰ VPDB)"
+    assert fig.get_suptitle().startswith("Invented δ¹³C")
+    # the age panel: one row per section with an age (Late has none: its window is empty),
+    # older to the left, and no
+    # range bars without the uncertainty columns
+    assert [t.get_text() for t in ages.get_yticklabels()] == ["S0", "S1", "S2"]
+    assert ages.xaxis_inverted()
+    assert all(len(ln.get_xdata()) == 1 for ln in ages.lines)  # centres only
     png, _ = figures.save_figure(fig, tmp_path / "e.png", None)
     assert png is not None and imread(png).shape[:2] == (5 * DPI, 9 * DPI)
     with pytest.raises(DomainError, match="onset"):
         figures.excursion_figure(df, ps.assign(onset_position_m=np.nan))
+
+
+def test_excursion_figure_draws_the_ranges() -> None:
+    # Source: the table drawn: every 95 % range of an age is a bar from its 2.5 to its 97.5
+    # percentile, every range of an onset or recovery position a shaded band; group means
+    # follow the sections.
+    from strata13.compile.synthesis import excursion_draws as ed
+
+    df = _sections()
+    ps = excursion.per_section(df, baseline_window=(189.0, 190.0, "ma"))
+    rng = np.random.default_rng(0)
+    ages = rng.normal(0.0, 0.05, (200, len(df))) + df["age_ma"].to_numpy()[None, :]
+    md = ed.draw_metrics(df, ps, 200, 0, ages, baseline_window=(189.0, 190.0, "ma"))
+    table = ed.with_uncertainty(ps, md)
+    summ = ed.summary(table.assign(group="invented"), "group", md)
+    fig = figures.excursion_figure(df, table, summary=summ, ranges_note="ranges of 200 draws")
+    fig.canvas.draw()
+    *panels, ax = fig.axes
+    rows = [t.get_text() for t in ax.get_yticklabels()]
+    assert rows == ["S0", "S1", "S2", "mean · invented"]
+    bars = sorted(
+        (round(min(ln.get_xdata()), 9), round(max(ln.get_xdata()), 9))
+        for ln in ax.lines
+        if str(ln.get_gid()).endswith("age 95 % range")
+    )
+    want = []
+    for _, r in table.iterrows():
+        for m in ("onset", "peak", "recovery"):
+            if np.isfinite(r[f"{m}_age_p2_5_ma"]):
+                want.append((round(r[f"{m}_age_p2_5_ma"], 9), round(r[f"{m}_age_p97_5_ma"], 9)))
+    s = summ[summ["scope"] == "group"].iloc[0]
+    for m in ("onset", "peak", "recovery"):
+        if np.isfinite(s[f"{m}_age_ma_mean_p2_5"]):
+            want.append(
+                (round(s[f"{m}_age_ma_mean_p2_5"], 9), round(s[f"{m}_age_ma_mean_p97_5"], 9))
+            )
+    assert bars == sorted(want)
+    shown = table[np.isfinite(table["onset_position_m"])]
+    spans = [len(p.patches) for p in panels]
+    want_spans = [
+        int(np.isfinite(r["onset_position_p2_5_m"]))
+        + int(np.isfinite(r["recovery_position_p2_5_m"]))
+        for _, r in shown.iterrows()
+    ]
+    assert spans == want_spans and sum(spans) > 0
+    assert fig.legends[0].get_title().get_text() == "ranges of 200 draws"
 
 
 # Colour-vision simulation matrices, Machado, Oliveira & Fernandes (2009), severity 1.0,

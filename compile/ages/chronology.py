@@ -137,6 +137,7 @@ class SectionModel:
     records: int
     basis_counts: dict[str, int]
     reason: str = ""  # why there is no model, when there is none
+    prior_text: str = ""  # the accumulation prior the model used, and whose it is
 
 
 def find_section(con: Any, name: str) -> tuple[str, str]:
@@ -190,6 +191,9 @@ def section_model(store: Store, name: str) -> SectionModel:
             "source_id = ? AND section_id = ?",
             [src, sec],
         ).fetchone()
+        secs = con.execute(
+            "SELECT * FROM sections WHERE source_id = ? AND section_id = ?", [src, sec]
+        ).to_arrow_table()
         counts = dict(
             con.execute(
                 "SELECT coalesce(age_basis, 'undated'), count(*) FROM records "
@@ -200,10 +204,18 @@ def section_model(store: Store, name: str) -> SectionModel:
     finally:
         con.close()
     assert kind is not None  # an aggregate without GROUP BY returns one row
+    from strata13.compile.derive.ages import default_prior, priors
     from strata13.compile.derive.settings import Settings
 
-    policy = Settings.from_stored(store.settings()).blank_boundary_sigma
-    placed = ties_on_scale(ties, scale, policy) if ties else []
+    settings = Settings.from_stored(store.settings())
+    policy = settings.blank_boundary_sigma
+    prior, whose = priors(settings, secs).get((src, sec), (default_prior(settings), "store"))
+    unplaced = ""
+    try:
+        placed = ties_on_scale(ties, scale, policy) if ties else []
+    except DomainError as exc:  # the store's chart cannot place a tie: shown as given
+        placed = [t | {"age": None, "sigma": None, "shared_key": None} for t in ties]
+        unplaced = f"a tie cannot be placed on {scale}: {exc.message}"
     positions: list[float] = []
     blocks = []
     for pos_json, n_draws, blob in chunks:
@@ -221,9 +233,10 @@ def section_model(store: Store, name: str) -> SectionModel:
         draws,
         int(kind[1]),
         counts,
+        prior_text=f"{prior.describe()} ({'the section' if whose == 'section' else 'the store'}'s)",
     )
     if not draws.size:
-        model.reason = _no_model_reason(model)
+        model.reason = unplaced or _no_model_reason(model)
     return model
 
 
@@ -250,6 +263,7 @@ def _model_tie(t: dict[str, Any]) -> Any:
         basis=t["basis"],
         boundary_key=t["shared_key"],
         note=t.get("boundary") or t.get("note") or "",
+        source=t.get("tie_source_id") or "",
     )
 
 

@@ -182,8 +182,116 @@ def parse_tie(
     }
 
 
+TIE_COLUMN_KEYS = {"key", "unit", "confidence"}
+
+
+def tie_columns(columns: Any, path: Path) -> dict[str, tuple[str, dict[str, str]]]:
+    """``[ties_table] columns``: header → tie key, or { key, unit, confidence } where the
+    header carries the position's unit or the uncertainty's level ("Height (ft)", "±2σ")."""
+    from strata13.compile.read.readers import norm_header
+
+    if columns is None:
+        return {}
+    where = f"{path.name}: [ties_table] columns"
+    if not isinstance(columns, dict):
+        raise ConfigError(
+            f"{where} must be a table of header = key.",
+            'Example: columns = { "Height (ft)" = { key = "position", unit = "ft" }, '
+            '"Age" = "age" }',
+        )
+    out: dict[str, tuple[str, dict[str, str]]] = {}
+    for header, spec in columns.items():
+        extra: dict[str, str] = {}
+        if isinstance(spec, dict):
+            for k in spec:
+                if k not in TIE_COLUMN_KEYS:
+                    raise ConfigError(
+                        f"{where}: {header!r} has unknown key {k!r}."
+                        + did_you_mean(str(k), TIE_COLUMN_KEYS),
+                        f"Keys: {', '.join(sorted(TIE_COLUMN_KEYS))}.",
+                    )
+            key = spec.get("key")
+            extra = {k: v for k, v in spec.items() if k != "key"}
+        else:
+            key = spec
+        if not isinstance(key, str) or key not in TIE_KEYS:
+            raise ConfigError(
+                f"{where}: {header!r} = {key!r} is not a tie key."
+                + did_you_mean(str(key), TIE_KEYS),
+                f"Tie keys: {', '.join(sorted(TIE_KEYS))}.",
+            )
+        if not all(isinstance(v, str) for v in extra.values()):
+            raise ConfigError(f"{where}: {header!r}: unit and confidence are text.", "")
+        if "unit" in extra and key != "position":
+            raise ConfigError(f"{where}: {header!r}: a unit goes with the position key.", "")
+        if "confidence" in extra and key != "uncertainty":
+            raise ConfigError(
+                f"{where}: {header!r}: a confidence goes with the uncertainty key.", ""
+            )
+        out[norm_header(header)] = (key, extra)
+    return out
+
+
+def _table_rows(table_file: Path, path: Path, columns: Any) -> list[tuple[int, dict[str, Any]]]:
+    """The tie table's rows as tie keys: ``#`` comment lines skipped, the delimiter sniffed,
+    headers mapped by ``columns`` (or named as the keys themselves)."""
+    from strata13.compile.read.readers import norm_header, sniff_delimiter
+
+    text = read_text(
+        table_file,
+        f"{path.name}: [ties_table] file",
+        "Check the file name, relative to the mapping file.",
+    )
+    lines = [
+        (n, ln) for n, ln in enumerate(text.splitlines(), 1) if not ln.lstrip().startswith("#")
+    ]
+    body = [ln for _, ln in lines]
+    delimiter = sniff_delimiter("\n".join(body[:20])) if body else ","
+    mapped = tie_columns(columns, path)
+    reader = csv.DictReader(body, delimiter=delimiter)
+    headers = [h for h in reader.fieldnames or [] if h]
+    keys: dict[str, tuple[str, dict[str, str]]] = {}
+    for h in headers:
+        hit = mapped.get(norm_header(h))
+        if hit is None and h.strip() in TIE_KEYS and not mapped:
+            hit = (h.strip(), {})
+        if hit is not None:
+            keys[h] = hit
+    unknown = [h for h in headers if h not in keys]
+    if unknown and not mapped:
+        raise ConfigError(
+            f"{table_file.name}: unknown column {unknown[0]!r}."
+            + did_you_mean(unknown[0], TIE_KEYS),
+            f"Columns: {', '.join(sorted(TIE_KEYS))}, or map the headers in [ties_table] columns.",
+        )
+    missing = [h for h in mapped if h not in {norm_header(x) for x in headers}]
+    if missing:
+        raise ConfigError(
+            f"{table_file.name}: [ties_table] columns names {missing[0]!r}, which is not a "
+            "header of the file." + did_you_mean(missing[0], headers),
+            f"Headers: {', '.join(headers)}.",
+        )
+    out = []
+    for (line, _), row in zip(lines[1:], reader, strict=False):
+        clean: dict[str, Any] = {}
+        for h, v in row.items():
+            if h not in keys or v in (None, ""):
+                continue
+            key, extra = keys[h]
+            clean[key] = v
+            clean.update(extra)
+        if clean:
+            out.append((line, clean))
+    return out
+
+
 def read_ties(
-    path: Path, blocks: Any, table_file: Path | None, source_id: str, default_chart: str | None
+    path: Path,
+    blocks: Any,
+    table_file: Path | None,
+    source_id: str,
+    default_chart: str | None,
+    columns: Any = None,
 ) -> list[dict[str, Any]]:
     """Every tie of a mapping file: its ``[[ties]]`` blocks, then its ``[ties_table]`` rows."""
     if not isinstance(blocks, list) or not all(isinstance(b, dict) for b in blocks):
@@ -195,23 +303,8 @@ def read_ties(
         for i, b in enumerate(blocks)
     ]
     if table_file is not None:
-        text = read_text(
-            table_file,
-            f"{path.name}: [ties_table] file",
-            "Check the file name, relative to the mapping file.",
-        )
-        reader = csv.DictReader(text.splitlines())
-        unknown = [h for h in reader.fieldnames or [] if h and h.strip() not in TIE_KEYS]
-        if unknown:
-            raise ConfigError(
-                f"{table_file.name}: unknown column {unknown[0]!r}."
-                + did_you_mean(unknown[0], TIE_KEYS),
-                f"Columns: {', '.join(sorted(TIE_KEYS))}.",
-            )
-        for line, row in enumerate(reader, start=2):
-            clean = {k.strip(): v for k, v in row.items() if k and v not in (None, "")}
-            if clean:
-                ties.append(parse_tie(clean, f"line {line}", table_file, source_id, default_chart))
+        for line, clean in _table_rows(table_file, path, columns):
+            ties.append(parse_tie(clean, f"line {line}", table_file, source_id, default_chart))
     ids = [t["tie_id"] for t in ties if t["tie_id"]]
     dup = {i for i in ids if ids.count(i) > 1}
     if dup:

@@ -11,7 +11,13 @@ from typing import TYPE_CHECKING, Any
 
 from strata13.compile.check.report import Issue, Report
 from strata13.compile.read.readers import RawTable
-from strata13.schemas.fields import BY_NAME, CONC_FIELDS, FIELDS
+from strata13.schemas.fields import (
+    BY_NAME,
+    CONC_FIELDS,
+    FIELDS,
+    REFERENCE_RANGE,
+    REFERENCE_RANGE_NAME,
+)
 
 if TYPE_CHECKING:
     import numpy as np
@@ -88,8 +94,12 @@ def schema_check(
     rows: RowErrors,
     letters: dict[str, tuple[str, str]],
     raw_text: Any = lambda col, i: None,
+    standards: np.ndarray | None = None,
 ) -> None:
-    """Run the pandera schema lazily and turn its failure cases into cell errors."""
+    """Run the pandera schema lazily and turn its failure cases into cell errors.
+
+    ``standards`` marks an in-house run's reference-material rows: their δ values are held
+    to ``REFERENCE_RANGE``, not to the sample ranges."""
     import pandera.errors as pe
     import pyarrow as pa
     from strata13.schemas.records import record_schema
@@ -133,7 +143,14 @@ def schema_check(
                 continue
             letter, header = letters.get(str(col), ("", str(col)))
             f = next((x for x in FIELDS if x.stored == col), None)
-            if check.startswith("in_range") and f is not None and f.plausible:
+            standard = standards is not None and bool(standards[int(idx)])
+            if standard and f is not None and f.kind == "delta" and check.startswith("in_range"):
+                lo, hi = REFERENCE_RANGE
+                if lo <= _number(r.get("failure_case")) <= hi:
+                    continue  # a reference material: the sample range does not apply
+                rule = f"plausible {REFERENCE_RANGE_NAME}"
+                hint = f"outside {lo:g} … {hi:g} ‰ for a reference material; check the unit"
+            elif check.startswith("in_range") and f is not None and f.plausible:
                 lo, hi = f.plausible
                 rule = f"plausible {f.plausible_name or 'range'}"
                 hint = (
@@ -154,6 +171,14 @@ def schema_check(
                 rule,
                 hint,
             )
+
+
+def _number(value: Any) -> float:
+    """A failure case as a number (NaN when it is not one)."""
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return float("nan")
 
 
 TEXT_CHECKED = ("record_id", "source_id", "section_id", "sample_id")

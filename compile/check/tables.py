@@ -16,16 +16,26 @@ if TYPE_CHECKING:
     import pyarrow as pa
 
 
-def record_id(source: str, section: str, sample: str, replicate: int) -> str:
-    """Stable id: a hash of (source, section, sample, replicate)."""
+def record_id(source: str, section: str, sample: str, replicate: int | str) -> str:
+    """Stable id: a hash of (source, section, sample, replicate); an in-house run's
+    analysis gives its run key (:func:`run_key`) for the replicate."""
     key = "\x1f".join([source, section, sample, str(replicate)])
     return hashlib.sha256(key.encode("utf-8")).hexdigest()[:20]
 
 
-def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Array, Any]:
+def run_key(run_id: Any, position: float | None) -> str:
+    """The replicate part of an in-house run analysis's record id: its run and position."""
+    pos = "" if position is None or position != position else f"{float(position):.10g}"
+    return f"run {run_id} position {pos}"
+
+
+def record_ids(
+    sid: str, sec: Any, sample: Any, replicate: Any, keys: Any = None
+) -> tuple[pa.Array, Any]:
     """``record_id`` of every row (DuckDB's sha256 over the same key text as
     :func:`record_id`) and, for a repeated id, the row index of its first occurrence
-    (−1 otherwise)."""
+    (−1 otherwise). ``keys``: text standing for the replicate number in the hash where not
+    None (an in-house run's analyses are keyed by run and position)."""
     import duckdb
     import numpy as np
     import pyarrow as pa
@@ -37,6 +47,7 @@ def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arra
             "sec": strings(sec),
             "sample": strings(sample),
             "rep": pa.array(np.asarray(replicate, dtype=np.int64)),
+            "key": strings(keys) if keys is not None else pa.nulls(n, pa.string()),
             "i": pa.array(np.arange(n, dtype=np.int64)),
         }
     )
@@ -46,7 +57,8 @@ def record_ids(sid: str, sec: Any, sample: Any, replicate: Any) -> tuple[pa.Arra
         ids = (
             con.execute(
                 "SELECT CASE WHEN sec IS NULL OR sample IS NULL THEN NULL ELSE "
-                "substr(sha256(concat_ws(chr(31), ?, sec, sample, CAST(rep AS VARCHAR))), 1, 20) "
+                "substr(sha256(concat_ws(chr(31), ?, sec, sample, "
+                "coalesce(key, CAST(rep AS VARCHAR)))), 1, 20) "
                 "END AS id FROM k ORDER BY i",
                 [sid],
             )
@@ -143,6 +155,11 @@ def complete(table: pa.Table) -> pa.Table:
     return pa.Table.from_arrays(cols, schema=schema)
 
 
+# where a record sits (file, sheet, row): provenance, not content, so a moved row is the
+# same record with new provenance
+WHERE_FROM = ("file_name", "sheet", "sheet_row")
+
+
 def row_hashes(table: pa.Table) -> pa.Array:
     """A content hash per record over its reported columns, for re-ingest diffs.
 
@@ -162,7 +179,7 @@ def row_hashes(table: pa.Table) -> pa.Array:
     h = np.zeros(n, dtype=np.uint64)
     for name in table.column_names:
         col = table.column(name)
-        if name in DERIVED_COLUMNS or name in ("sheet", "sheet_row") or col.null_count == n:
+        if name in DERIVED_COLUMNS or name in WHERE_FROM or col.null_count == n:
             continue
         k = hash_array(np.array([name], dtype=object))[0] | np.uint64(1)
         if pa.types.is_string(col.type):  # hash each distinct text once, spread by index
@@ -223,6 +240,8 @@ def sections_table(sid: str, blocks: dict[str, dict[str, Any]], sec: Any, loc: A
                 "offset_from": b.get("offset_from"),
                 "offset_source": b.get("offset_source"),
                 "note": b.get("note"),
+                "accumulation_shape": (b.get("accumulation") or {}).get("shape"),
+                "accumulation_segment_m": (b.get("accumulation") or {}).get("segment_m"),
             }
         )
     return pa.Table.from_pylist(rows, schema=arrow_schema(SECTIONS))

@@ -116,7 +116,7 @@ def _match_columns(
     missing = []
     for c in spec.columns:
         key = norm_header(c.header)
-        hits = [(j, None) for j in exact.get(key, [])] or bare.get(
+        hits = [(j, strip_unit(raw.headers[j])[1]) for j in exact.get(key, [])] or bare.get(
             norm_header(strip_unit(c.header)[0]), []
         )
         if len(hits) > 1:
@@ -231,6 +231,7 @@ class _Preparing:
     sample: np.ndarray = field(init=False)
     sample_cell: tuple[str, str] = field(init=False)  # (letter, header) of sample_id
     replicate: np.ndarray = field(init=False)
+    replicate_keys: np.ndarray | None = None  # an in-house run's: run and position (record id)
     ids: pa.Array = field(init=False)  # record id of each row
     frame: pa.Table = field(init=False)  # every row, analyses columns
     records: pa.Table = field(init=False)  # the valid rows, completed and hashed
@@ -371,7 +372,8 @@ def _number_column(st: _Preparing, c: ColumnMap, j: int, header_unit: str | None
         _check_whole_numbers(st, values, j)
     st.cols[f.stored] = values
     if f.kind == "conc":
-        _concentration_columns(st, c, parsed.qualifier)
+        factor = UNITS[f.unit_kind][unit] if f.unit_kind and unit else 1.0
+        _concentration_columns(st, c, parsed.qualifier, factor)
     elif parsed.qualifier.null_count < len(parsed.qualifier):
         _refuse_censored(st, c, j, parsed.qualifier)
     if f.kind == "delta" and c.scale:
@@ -423,17 +425,27 @@ def _check_whole_numbers(st: _Preparing, values: Any, j: int) -> None:
         )
 
 
-def _concentration_columns(st: _Preparing, c: ColumnMap, qualifier: Any) -> None:
-    """A concentration keeps its qualifier ('<x', 'bdl'), detection limit and basis beside it."""
+def _concentration_columns(st: _Preparing, c: ColumnMap, qualifier: Any, factor: float) -> None:
+    """A concentration keeps its qualifier, detection limit and basis beside it. A censored
+    value is stored one way whatever its spelling: "<5" and "bdl" with a stated detection
+    limit of 5 both become value 5, qualifier "<", detection limit 5 (in the stored unit);
+    "bdl" with no limit stated stays "bdl" with no value (its bound is unknown)."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    st.cols[f"{c.field}_qualifier"] = qualifier
+    f = BY_NAME[c.field]
+    values = st.cols[f.stored]
     if c.detection_limit is not None:
         is_bdl = pc.fill_null(pc.equal(qualifier, "bdl"), False)
-        st.cols[f"{c.field}_dl"] = pc.if_else(
-            is_bdl, pa.scalar(c.detection_limit), pa.scalar(None, pa.float64())
-        )
+        limit = pa.scalar(c.detection_limit * factor, pa.float64())
+        values = pc.if_else(is_bdl, limit, pc.cast(values, pa.float64()))
+        qualifier = pc.if_else(is_bdl, pa.scalar("<"), qualifier)
+        st.cols[f.stored] = values
+    below = pc.fill_null(pc.equal(qualifier, "<"), False)
+    st.cols[f"{c.field}_qualifier"] = qualifier
+    st.cols[f"{c.field}_dl"] = pc.if_else(
+        below, pc.cast(values, pa.float64()), pa.scalar(None, pa.float64())
+    )
     if c.basis:
         st.cols[f"{c.field}_basis"] = c.basis
 
@@ -599,6 +611,29 @@ def _read_replicates(st: _Preparing) -> None:
 
     rep = pd.to_numeric(pd.Series(st.column("replicate")), errors="coerce").to_numpy(dtype=float)
     st.replicate = np.where(np.isnan(rep), 1, np.nan_to_num(rep)).astype(np.int64)
+    if st.mapping.run is not None and "replicate" not in st.cols:
+        _run_replicates(st)
+
+
+def _run_replicates(st: _Preparing) -> None:
+    """An in-house run sheet without a replicate column: a sample measured again (in
+    another run or at another position) is another analysis of that sample, not a
+    duplicate. Its replicate number counts the sample's analyses in order of run and run
+    position; its record id is keyed by run and position instead of that number, so an
+    analysis keeps its id (and a stored correction stays with it) when runs are added."""
+    import numpy as np
+    import pandas as pd
+    from strata13.compile.check.tables import run_key
+
+    run = [None if r is None else str(r) for r in st.column("run_id")]
+    pos = pd.to_numeric(pd.Series(st.column("run_position")), errors="coerce").to_numpy(dtype=float)
+    st.replicate_keys = np.array([run_key(r, p) for r, p in zip(run, pos, strict=True)])
+    frame = pd.DataFrame(
+        {"sec": st.sec, "sample": st.sample, "run": [r or "" for r in run], "pos": pos}
+    )
+    ordered = frame.sort_values(["run", "pos"], kind="stable", na_position="last")
+    number = ordered.groupby(["sec", "sample"], dropna=False, sort=False).cumcount() + 1
+    st.replicate = number.reindex(frame.index).to_numpy(dtype=np.int64)
 
 
 def _check_delta_scales(st: _Preparing) -> None:
@@ -663,6 +698,7 @@ def _check_duplicate_records(st: _Preparing) -> None:
         st.arrow_or("section_id", st.sec),
         st.arrow_or("sample_id", st.sample),
         st.replicate,
+        st.replicate_keys,
     )
     run = st.mapping.run
     standards = (
@@ -679,8 +715,14 @@ def _check_duplicate_records(st: _Preparing) -> None:
             header,
             st.sample[i],
             "duplicate record",
-            f"section {st.sec[i]}, sample {st.sample[i]}, replicate {st.replicate[i]} is "
-            f"already in row {first_row}; give replicates a replicate number",
+            (
+                f"section {st.sec[i]}, sample {st.sample[i]} at {st.replicate_keys[i]} is "
+                f"already in row {first_row}; check the run and run_position"
+                if st.replicate_keys is not None
+                else f"section {st.sec[i]}, sample {st.sample[i]}, replicate "
+                f"{st.replicate[i]} is already in row {first_row}; give replicates a "
+                "replicate number"
+            ),
         )
 
 
@@ -698,6 +740,7 @@ def _assemble_frame(st: _Preparing) -> None:
     out["replicate"] = st.replicate
     out["sheet"] = const(st.raw.sheet, n, "VARCHAR")
     out["sheet_row"] = st.raw.row_numbers
+    out["file_name"] = const(st.spec.file.name, st.n, "VARCHAR")
     if "position_kind" not in st.cols:
         out["position_kind"] = _position_kinds(st)
     types = dict(ANALYSES)
@@ -717,6 +760,9 @@ def _analyses_columns(st: _Preparing) -> dict[str, Any]:
             st.cols.get(name), (pa.Array, pa.ChunkedArray)
         ):
             out[name] = st.sec if name == "section_id" else st.loc
+        elif name == "locality_name" and name not in st.cols and st.locality_blocks:
+            names = {k: b.get("name") for k, b in st.locality_blocks.items()}  # the block's
+            out[name] = np.array([names.get(str(x)) if x else None for x in st.loc], object)
         elif name in st.cols:
             v = st.cols[name]
             out[name] = (
@@ -747,6 +793,17 @@ def _position_kinds(st: _Preparing) -> Any:
     return pd.Series(st.sec, dtype=object).map(kinds).to_numpy()
 
 
+def _standard_rows(st: _Preparing) -> np.ndarray | None:
+    """The rows of an in-house run whose sample id names one of its reference materials."""
+    import numpy as np
+
+    run = st.mapping.run
+    if run is None:
+        return None
+    names = {m.lower() for m in [*run["anchors"], *run["checks"]]}
+    return np.array([str(s).strip().lower() in names for s in st.sample], dtype=bool)
+
+
 def _check_frame(st: _Preparing) -> None:
     """The pandera schema, superposition and plausibility, on the assembled table."""
     raw = st.raw
@@ -758,7 +815,7 @@ def _check_frame(st: _Preparing) -> None:
         j = col_index.get(letter)
         return raw.column(j)[i].as_py() if j is not None else None
 
-    schema_check(st.frame, st.rows, st.letters, raw_text)
+    schema_check(st.frame, st.rows, st.letters, raw_text, _standard_rows(st))
     superposition(st.frame, st.rows, st.letters)
     plausibility(st.frame, raw, st.report, st.letters)
 
@@ -775,6 +832,7 @@ def _quarantine_bad_rows(st: _Preparing) -> None:
         st.quarantine.append(
             {
                 "sheet": raw.sheet,
+                "file_name": st.spec.file.name,
                 "sheet_row": int(raw.row_numbers[i]),
                 "cells_json": json.dumps(cells, ensure_ascii=False),
                 "reasons": "; ".join(rows.reasons.get(int(i), [])),
@@ -786,6 +844,7 @@ def _quarantine_bad_rows(st: _Preparing) -> None:
             st.quarantine.append(
                 {
                     "sheet": raw.sheet,
+                    "file_name": st.spec.file.name,
                     "sheet_row": int(digits) if digits else None,
                     "cells_json": json.dumps({"line": issue.value}, ensure_ascii=False),
                     "reasons": f"{issue.cell}: row shape",

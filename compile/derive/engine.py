@@ -45,6 +45,7 @@ class Given:
     runs: pa.Table | None = None  # reference-material measurements of in-house runs
     corrections: pa.Table | None = None  # the store's corrections
     strict: bool = True  # ingest: contradictory ties refuse; recompute: listed in conflicts
+    sections: pa.Table | None = None  # sections rows: a section's own accumulation prior
 
 
 @dataclass
@@ -87,12 +88,14 @@ def derive(
     strict: bool = True,
     runs: pa.Table | None = None,
     corrections: pa.Table | None = None,
+    sections: pa.Table | None = None,
 ) -> Derived:
     """Fill the derived columns of ``records`` from its reported columns, ``settings`` and
     the age ties of its sections (``ties``: age_ties rows; others are ignored).
 
     ``runs``: the reference-material measurements of in-house runs (runs rows);
-    ``corrections``: the store's corrections (applied on top of the reported values).
+    ``corrections``: the store's corrections (applied on top of the reported values);
+    ``sections``: sections rows (a section's own accumulation prior for its age model).
     ``strict`` (ingest): contradictory ties are refused. A recompute passes False: a section
     whose ties contradict each other on the new chart keeps its other ages, and
     ``Derived.conflicts`` lists it.
@@ -102,7 +105,7 @@ def derive(
     from strata13.compile.derive import corrections as fixes
     from strata13.schemas.records import RUN_QC, arrow_schema
 
-    given = Given(ties, runs, corrections, strict)
+    given = Given(ties, runs, corrections, strict, sections)
     stages: tuple[Stage, ...] = (
         fixes.stage,
         harmonise.stage,

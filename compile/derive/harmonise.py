@@ -8,11 +8,11 @@ by run; anything else is pending with its reason. Every value gets its chain of 
 from __future__ import annotations
 
 import json
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.derive.engine import Given, Recorded
-from strata13.compile.derive.settings import Settings
+from strata13.compile.derive.settings import Settings, check_tolerance_permil
 from strata13.compile.derive.steps import IDENTITY, Step, add_chain, chain_id, set_column
 from strata13.schemas.fields import DELTA_FIELDS
 
@@ -113,6 +113,82 @@ def _with_offset(steps: list[Step], spec: dict[str, Any] | None) -> list[Step]:
     return [*steps, offset]
 
 
+@dataclass(frozen=True)
+class _RunOut:
+    """One run's normalised values: its chain, its rows (a mask over the source's raw rows),
+    the values (NaN where pending), the pending reasons and the run's precision (1σ)."""
+
+    steps: list[Step]
+    rows: Any
+    values: Any
+    pending: Any
+    precision: float | None
+
+
+def _run_accepted(
+    spec: dict[str, Any], iso: str, materials: Any, relation: str
+) -> dict[str, dict[str, Any]]:
+    """The accepted value of each anchor and check material of a run, with its value set,
+    1σ, published form and source, and who chose the value set (the mapping's [run]
+    value_set or the store). A check without a value of this isotope is left out."""
+    from strata13.schemas.materials import accepted_value, run_choice, sigma_1s
+
+    table, choice = materials
+    names = [*spec["anchors"], *spec.get("checks", [])]
+    chosen, why = run_choice(names, spec.get("value_set"), table, choice)
+    out = {}
+    for m in names:
+        role = "anchor" if m in spec["anchors"] else "check"
+        try:
+            value, row = accepted_value(m, iso, table, chosen, relation)
+        except DomainError:
+            if role == "anchor":
+                raise
+            continue
+        vsmow = iso == "d18o" and row.d18o_scale == "VSMOW"
+        out[m] = {
+            "role": role,
+            "value_vpdb": value,
+            "sigma_1s": sigma_1s(row, iso, relation),
+            "value_set": row.value_set,
+            "status": row.status,
+            "published": getattr(row, iso),
+            "published_scale": getattr(row, f"{iso}_scale"),
+            "converted_with": relation if vsmow else None,
+            "chosen_by": why[(m, iso)],
+            "source": row.source,
+        }
+    return out
+
+
+DOLOSTONE_PENDING = (
+    "pending: a dolostone with no mineralogy stated; the acid-fractionation step of a run "
+    "normalised to calcite standards needs the mineralogy of the sample (state mineralogy "
+    "in a column or in [constants]: calcite, or dolomite)"
+)
+MINERAL_PENDING = (
+    "pending: no acid-fractionation relation for {} against calcite standards is shipped"
+)
+NO_POSITION_PENDING = (
+    "pending: drift correction needs the sample's run_position (fill it, or set drift = false)"
+)
+
+
+def _acid_pending(mineral: list[Any], lithology: list[Any]) -> list[str | None]:
+    """Why each sample's δ18O cannot be carried by calcite standards, or None: a stated
+    mineralogy other than calcite, or a dolostone whose mineralogy is not stated (never
+    silently read as calcite). Other samples with no mineralogy are read as calcite."""
+    out: list[str | None] = []
+    for m, lith in zip(mineral, lithology, strict=True):
+        if m in (None, "unknown") and lith == "dolostone":
+            out.append(DOLOSTONE_PENDING)
+        elif (m or "calcite") not in CALCITE_LIKE:
+            out.append(MINERAL_PENDING.format(m))
+        else:
+            out.append(None)
+    return out
+
+
 def _run_values(
     d: str,
     table: pa.Table,
@@ -122,12 +198,13 @@ def _run_values(
     runs: pa.Table | None,
     materials: Any,
     relation: str,
-) -> tuple[list[tuple[list[Step], Any, Any]], list[dict[str, Any]]]:
-    """Normalise raw in-house run values, run by run, to the store's accepted values of the
-    run's anchor materials (compile.harmonise.runs); returns per-run chains and the QC."""
+    check_setting: float | None = None,
+) -> tuple[list[_RunOut], list[dict[str, Any]]]:
+    """Normalise raw in-house run values, run by run, to the accepted values of the run's
+    anchor materials (compile.harmonise.runs): drift fitted within material first when the
+    [run] asks, check materials judged, the run's precision measured; returns each run's
+    values and chain, and the QC rows."""
     import numpy as np
-    from strata13.compile.harmonise import runs as run_math
-    from strata13.schemas.materials import accepted_value
 
     iso = "d18o" if d.startswith("d18o") else "d13c"
     measured = "d18o_measured" if iso == "d18o" else "d13c_measured"
@@ -135,10 +212,21 @@ def _run_values(
     src = table.column("source_id").take(idx).to_pylist()
     run_ids = table.column("run_id").take(idx).to_pylist()
     pos = table.column("run_position").take(idx).to_numpy(zero_copy_only=False).astype(float)
+    acid = (
+        _acid_pending(
+            table.column("mineralogy").take(idx).to_pylist(),
+            table.column("lithology").take(idx).to_pylist(),
+        )
+        if iso == "d18o"
+        else [None] * len(idx)
+    )
     std = runs.to_pylist() if runs is not None else []
-    out: list[tuple[list[Step], Any, Any]] = []
+    out: list[_RunOut] = []
     qcs: list[dict[str, Any]] = []
-    mat_table, choice = materials
+    try:
+        accepted = _run_accepted(spec, iso, materials, relation)
+    except DomainError as exc:
+        raise DomainError(f"source {src[0]}, [run] {iso}: {exc.message}", exc.hint) from None
     for key in sorted(set(zip(src, run_ids, strict=True)), key=str):
         sel = np.array([(a, b) == key for a, b in zip(src, run_ids, strict=True)])
         here = [r for r in std if (r["source_id"], r["run_id"]) == key and r[measured] is not None]
@@ -148,87 +236,46 @@ def _run_values(
                 f"source {key[0]}: a raw value has no run_id.",
                 "Every row of an in-house run sheet needs its run.",
             )
-
-        def meas(material: str, rows_: list[dict[str, Any]] = here) -> list[float]:
-            return [float(r[measured]) for r in rows_ if r["material"] == material]
-
-        anchors = {}
-        for m in spec["anchors"]:
-            if meas(m):
-                anchors[m] = (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
-        checks = {
-            m: (meas(m), accepted_value(m, iso, mat_table, choice, relation)[0])
-            for m in spec.get("checks", [])
-            if meas(m)
-        }
-        raw = reported[rows][sel]
-        drift = None
-        if spec.get("drift"):
-            ref = [
-                (r["run_position"], float(r[measured]))
-                for r in here
-                if r["run_position"] is not None
-            ]
-            by_mat: dict[str, list[float]] = {}
-            for r in here:
-                by_mat.setdefault(r["material"], []).append(float(r[measured]))
-            offsets = [
-                float(r[measured]) - float(np.mean(by_mat[r["material"]]))
-                for r in here
-                if r["run_position"] is not None
-            ]
-            raw, drift = run_math.drift_correct(
-                raw, pos[sel], np.array([p for p, _ in ref]), np.array(offsets)
-            )
-            pp = np.array([r["run_position"] or 0.0 for r in here])
-            for m in list(anchors):
-                got = [
-                    float(r[measured]) - drift * p
-                    for r, p in zip(here, pp, strict=True)
-                    if r["material"] == m
-                ]
-                anchors[m] = (got, anchors[m][1])
         try:
-            values, step, qc = run_math.normalise_run(
+            got = _one_run(
                 str(key[1]),
-                raw,
-                anchors,
-                checks,
-                spec.get("slope_tolerance", 0.05),
-                f"{where}: reference materials measured in the run",
+                where,
+                reported[rows][sel],
+                pos[sel],
+                here,
+                measured,
+                spec,
+                accepted,
+                check_setting,
             )
         except DomainError as exc:
             raise DomainError(f"{where}, {iso}: {exc.message}", exc.hint) from None
-        params = {**step.parameters, "accepted_from": "the store's reference-material values"}
-        if drift is not None:  # the value after depends on the run position too: no map
-            params["drift_per_position"] = drift
-        step = replace(step, parameters=params, maps=None if drift is not None else step.maps)
+        values, step, qc, drift, drift_pending = got
+        pending = np.array(
+            [
+                p or a
+                for p, a in zip(drift_pending, np.asarray(acid, dtype=object)[sel], strict=True)
+            ],
+            dtype=object,
+        )
+        values = np.where([p is None for p in pending], values, np.nan)
         if iso == "d18o":
             step = step.flagged(
                 "acid fractionation: carried by the normalisation "
                 "to calcite standards reacted alongside (calcite samples; a "
-                "mineralogy not stated is read as calcite)"
+                "mineralogy not stated is read as calcite, except in a dolostone)"
             )
-            mineral = table.column("mineralogy").take(idx).to_pylist()
-            other = np.array([(m or "calcite") not in CALCITE_LIKE for m in mineral]) & sel
-            if other.any():  # no shipped relation corrects dolomite against calcite standards
-                values = np.where(other[sel], np.nan, values)
-        out.append(
-            (
-                [
-                    Step(
-                        "reported on the lab's working gas (raw)",
-                        "as measured",
-                        where,
-                        {"scale": "raw"},
-                        maps=IDENTITY,
-                    ),
-                    step,
-                ],
-                sel,
-                values,
-            )
+        raw_step = Step(
+            "reported on the lab's working gas (raw)",
+            "as measured",
+            where,
+            {"scale": "raw"},
+            maps=IDENTITY,
         )
+        out.append(_RunOut([raw_step, step], sel, values, pending, qc.precision_1s))
+        used = {
+            m: {**a, "measured": sum(r["material"] == m for r in here)} for m, a in accepted.items()
+        }
         qcs.append(
             {
                 "source_id": key[0],
@@ -237,14 +284,92 @@ def _run_values(
                 "slope": qc.slope,
                 "intercept": qc.intercept,
                 "n_anchors": qc.n_anchors,
-                "anchors": ", ".join(sorted(anchors)),
+                "anchors": ", ".join(sorted(step.parameters["anchors"])),
                 "residuals_json": json.dumps(qc.residuals, sort_keys=True),
                 "precision_1s": qc.precision_1s,
-                "drift_per_position": drift,
+                "drift_per_position": None if drift is None else drift.slope,
                 "warnings": "; ".join(qc.warnings) or None,
+                "drift_sigma": None if drift is None else drift.sigma,
+                "check_status": qc.check_status,
+                "check_detail": "; ".join(c.describe() for c in qc.checks) or None,
+                "accepted_json": json.dumps(used, sort_keys=True, ensure_ascii=False),
             }
         )
     return out, qcs
+
+
+def _one_run(
+    run_id: str,
+    where: str,
+    raw: Any,
+    positions: Any,
+    here: list[dict[str, Any]],
+    measured: str,
+    spec: dict[str, Any],
+    accepted: dict[str, dict[str, Any]],
+    check_setting: float | None,
+) -> tuple[Any, Step, Any, Any, list[str | None]]:
+    """One run: (values, normalisation step, QC, drift fit or None, pending reasons)."""
+    import numpy as np
+    from strata13.compile.harmonise import runs as run_math
+
+    values_of: dict[str, list[float]] = {r["material"]: [] for r in here}
+    pending: list[str | None] = [None] * len(raw)
+    drift = None
+    if spec.get("drift"):
+        blank = [r for r in here if r["run_position"] is None]
+        if blank:
+            raise DomainError(
+                f"drift correction needs the run position of every standard; "
+                f"{blank[0]['material']} in sheet row {blank[0]['sheet_row']} has none.",
+                "Fill its run position, or set drift = false in [run].",
+            )
+        p = np.array([float(r["run_position"]) for r in here])
+        v = np.array([float(r[measured]) for r in here])
+        drift = run_math.fit_drift(p, v, [r["material"] for r in here])
+        corrected = run_math.remove_drift(v, p, drift.slope)
+        raw = run_math.remove_drift(raw, positions, drift.slope)
+        pending = [NO_POSITION_PENDING if np.isnan(x) else None for x in positions]
+    else:
+        corrected = np.array([float(r[measured]) for r in here])
+    for r, c in zip(here, corrected, strict=True):
+        values_of[r["material"]].append(float(c))
+    anchors = {
+        m: (values_of[m], a["value_vpdb"])
+        for m, a in accepted.items()
+        if a["role"] == "anchor" and values_of.get(m)
+    }
+    checks = {
+        m: (values_of[m], a["value_vpdb"])
+        for m, a in accepted.items()
+        if a["role"] == "check" and values_of.get(m)
+    }
+    sigmas = {m: a["sigma_1s"] for m, a in accepted.items() if a["role"] == "check"}
+    values, step, qc = run_math.normalise_run(
+        run_id,
+        raw,
+        anchors,
+        checks,
+        spec.get("slope_tolerance", run_math.SLOPE_TOLERANCE),
+        f"{where}: reference materials measured in the run",
+        check_sigmas=sigmas,
+        check_setting=check_setting,
+        drift_fitted=drift is not None,
+    )
+    params = {
+        **step.parameters,
+        "accepted": {  # in full (scale, source, who chose) in run_qc.accepted_json
+            m: f"{a['value_vpdb']:+.3f} ‰ VPDB ({a['value_set']})" for m, a in accepted.items()
+        },
+        "precision_1s": qc.precision_1s,
+        "precision_rule": "pooled within-material SD of the run's replicated reference "
+        "materials after normalisation; fills the record's precision where the sheet "
+        "states none (a sheet's own precision wins)",
+    }
+    if drift is not None:  # the value after depends on the run position too: no map
+        params |= {"drift_per_position": drift.slope, "drift_sigma": drift.sigma}
+    step = replace(step, parameters=params, maps=None if drift is not None else step.maps)
+    return values, step, qc, drift, pending
 
 
 def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, Recorded]:
@@ -280,6 +405,7 @@ def harmonise(
     from strata13.schemas.materials import store_table
 
     constants = settings.vsmow_constants
+    check_setting = check_tolerance_permil(settings)
     materials = store_table(settings.stored())
     run_qc = [] if run_qc is None else run_qc
     fixes = fixes or {}
@@ -289,6 +415,9 @@ def harmonise(
         for i, (value, _why, _rep) in fixed.items():
             reported[i] = value  # derived from the corrected value; *_reported stays as published
         scale = np.asarray(table.column(f"{d}_scale").to_numpy(zero_copy_only=False), object)
+        precision = (
+            table.column(f"{d}_precision_reported").to_numpy(zero_copy_only=False).astype(float)
+        )
         has = ~np.isnan(reported)
         out = np.full(len(reported), np.nan)
         chain = np.full(len(reported), None, dtype=object)
@@ -309,8 +438,8 @@ def harmonise(
                 # a raw run's mapping always gives its normalisation (the [run] block)
                 assert spec is not None
                 try:
-                    run_steps, qc = _run_values(
-                        d, table, rows, reported, spec, runs, materials, constants
+                    run_out, qc = _run_values(
+                        d, table, rows, reported, spec, runs, materials, constants, check_setting
                     )
                 except DomainError as exc:
                     if strict:
@@ -318,18 +447,18 @@ def harmonise(
                     status[rows] = f"pending: {exc.message}"
                     continue
                 run_qc += qc
-                for r_steps, r_rows, r_vals in run_steps:  # one chain per run
-                    values_rows = np.flatnonzero(rows)[r_rows]
-                    cid = add_chain(chains, _with_offset(r_steps, spec))
-                    out[values_rows] = _offset_values(r_vals, spec)
+                for r in run_out:  # one chain per run
+                    values_rows = np.flatnonzero(rows)[r.rows]
+                    cid = add_chain(chains, _with_offset(r.steps, spec))
+                    out[values_rows] = _offset_values(r.values, spec)
                     chain[values_rows] = cid
                     status[values_rows] = "harmonised"
-                    gap = values_rows[np.isnan(np.asarray(r_vals, float))]
-                    chain[gap] = None
-                    status[gap] = (
-                        "pending: no acid-fractionation relation for this "
-                        "mineralogy against calcite standards is shipped"
-                    )
+                    gap = np.array([p is not None for p in r.pending], dtype=bool)
+                    chain[values_rows[gap]] = None
+                    status[values_rows[gap]] = r.pending[gap]
+                    if r.precision is not None:  # the sheet's own precision wins
+                        fill = values_rows[~gap & np.isnan(precision[values_rows])]
+                        precision[fill] = r.precision
                 continue
             if sc in ("VPDB", "PDB", "VPDB-LSVEC") and stated and spec is not None:
                 try:
@@ -383,6 +512,9 @@ def harmonise(
         table = set_column(table, d, pa.array(out, type=pa.float64(), from_pandas=True))
         table = set_column(table, f"{d}_chain", pa.array(chain, type=pa.string()))
         table = set_column(table, f"{d}_status", pa.array(status, type=pa.string()))
+        table = set_column(
+            table, f"{d}_precision", pa.array(precision, type=pa.float64(), from_pandas=True)
+        )
     return table
 
 

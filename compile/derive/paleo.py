@@ -14,6 +14,9 @@ if TYPE_CHECKING:
     import pyarrow as pa
 
 
+RETIRED_MODEL_KEY = "rotation_model_csv"  # the setting of stores made before the TOML format
+
+
 @functools.lru_cache(maxsize=4)
 def _paleo_model(model_text: str, polygons_text: str) -> tuple[Any, Any]:
     """The store's rotation model and plate polygons, parsed once per content."""
@@ -23,6 +26,20 @@ def _paleo_model(model_text: str, polygons_text: str) -> tuple[Any, Any]:
         rotations.parse_model(model_text, "the store's rotation model"),
         plates.parse_polygons(json.loads(polygons_text), "the store's plate polygons"),
     )
+
+
+def refuse_retired_model(settings: Settings) -> None:
+    """A store whose model is in the retired CSV layout is re-derived only after its model is
+    replaced: placing its records without a model would drop their positions unsaid."""
+    from strata13.errors import StoreError
+
+    if not settings.rotation_model_toml and settings.extra.get(RETIRED_MODEL_KEY):
+        raise StoreError(
+            "the store's rotation model is in the retired CSV layout, which this strata13 no "
+            "longer reads, so its records cannot be re-derived.",
+            "Write the model as a TOML document (README 'Paleogeography') and run "
+            "`strata13 replace-rotations MODEL.toml POLYGONS.geojson` first.",
+        )
 
 
 def stage(table: pa.Table, settings: Settings, given: Given) -> tuple[pa.Table, Recorded]:
@@ -38,8 +55,9 @@ def place(table: pa.Table, settings: Settings) -> pa.Table:
     import pyarrow as pa
     from strata13.compile.paleo import plates, rotations
 
+    refuse_retired_model(settings)
     n = table.num_rows
-    model_text = settings.rotation_model_csv
+    model_text = settings.rotation_model_toml
     if not model_text or n == 0:
         return set_column(
             table,
@@ -51,15 +69,14 @@ def place(table: pa.Table, settings: Settings) -> pa.Table:
     lon = table.column("lon").to_numpy(zero_copy_only=False).astype(float)
     age = table.column("age_ma").to_numpy(zero_copy_only=False).astype(float)
     has_xy = ~(np.isnan(lat) | np.isnan(lon))
-    plate = np.full(n, plates.UNASSIGNED, dtype=np.int64)
+    plate = np.full(n, plates.UNASSIGNED, dtype=object)
     if has_xy.any():
-        got = plates.assign(lat[has_xy], lon[has_xy], polygons)
-        plate[has_xy] = got.plate_id
-    override = table.column("plate_override").to_numpy(zero_copy_only=False)
-    forced = np.array([v is not None and v == v for v in override], dtype=bool)
-    plate[forced] = np.asarray(override[forced], dtype=np.int64)
-    rec = rotations.reconstruct(lat, lon, plate.astype(float), age, model)
-    sigma = rotations.paleolat_sigma(lat, lon, plate.astype(float), age, model)
+        plate[has_xy] = plates.assign(lat[has_xy], lon[has_xy], polygons).plate
+    override = np.asarray(table.column("plate_override").to_pylist(), dtype=object)
+    forced = np.array([isinstance(v, str) and v != "" for v in override], dtype=bool)
+    plate[forced] = override[forced]
+    rec = rotations.reconstruct(lat, lon, plate, age, model)
+    sigma = rotations.paleolat_sigma(lat, lon, plate, age, model)
     # numpy's stubs reject None as a value of where(); on object output it is the null
     placed = np.asarray(rec.status, dtype=object) == ""
     status = np.where(placed, "placed", None).astype(object)  # type: ignore[call-overload]
@@ -71,7 +88,8 @@ def place(table: pa.Table, settings: Settings) -> pa.Table:
     )
     ok = status == "placed"
     out = table
-    out = set_column(out, "plate_id", pa.array(plate, mask=plate < 0).cast(pa.int32()))
+    named = plate != plates.UNASSIGNED
+    out = set_column(out, "plate_id", pa.array(plate, pa.string(), mask=~named))
     for name, values in (
         ("paleolat", rec.paleolat),
         ("paleolon", rec.paleolon),

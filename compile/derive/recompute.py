@@ -41,6 +41,8 @@ class RecomputeResult:
     settings_after: dict[str, Any] = field(default_factory=dict)
     conflicts: list[str] = field(default_factory=list)  # sections left without an age model
     screen_changed: int = 0  # records whose overall screen result changed
+    # in-house runs whose check status changed: "source run isotope: before → after"
+    checks_changed: list[str] = field(default_factory=list)
 
 
 def _changes(old: Any, new: Any) -> tuple[int, float, float]:
@@ -61,6 +63,25 @@ def _changes(old: Any, new: Any) -> tuple[int, float, float]:
     )
 
 
+def _checks_changed(before: Any, after: Any) -> list[str]:
+    """Runs (per isotope) whose check status differs between two run_qc tables."""
+
+    def states(t: Any) -> dict[tuple[str, str, str], str | None]:
+        if t is None or "check_status" not in t.column_names:
+            return {}
+        return {
+            (r["source_id"], r["run_id"], r["isotope"]): r["check_status"]
+            for r in t.select(["source_id", "run_id", "isotope", "check_status"]).to_pylist()
+        }
+
+    old, new = states(before), states(after)
+    return [
+        f"{k[0]} run {k[1]} {k[2]}: {old.get(k) or '—'} → {new.get(k) or '—'}"
+        for k in sorted(set(old) | set(new))
+        if old.get(k) != new.get(k)
+    ]
+
+
 def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeResult:
     """Apply ``change`` to the store's settings and re-derive every record (one commit)."""
     with store.transaction(command) as tx:
@@ -71,7 +92,10 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
         ties = tx.fetch("SELECT * FROM age_ties")
         runs = tx.fetch("SELECT * FROM runs")
         fixes = tx.fetch("SELECT * FROM corrections")
-        derived = derive(table, settings, ties, strict=False, runs=runs, corrections=fixes)
+        secs = tx.fetch("SELECT * FROM sections")
+        derived = derive(
+            table, settings, ties, strict=False, runs=runs, corrections=fixes, sections=secs
+        )
         result = RecomputeResult(
             command,
             None,
@@ -79,6 +103,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             settings_before=before,
             settings_after=after,
             conflicts=derived.conflicts,
+            checks_changed=_checks_changed(tx.fetch("SELECT * FROM run_qc"), derived.run_qc),
         )
         status_changed = False
         for col in table.column_names:
@@ -98,7 +123,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             ).as_py()
             or 0
         )
-        if after == before and not result.changed and not status_changed:
+        if after == before and not (result.changed or status_changed or result.checks_changed):
             tx.abandon()
             return result
         h = settings.hash()
@@ -110,6 +135,7 @@ def recompute(store: Store, change: dict[str, Any], command: str) -> RecomputeRe
             if k
             not in (
                 "screen_rules",
+                "rotation_model_toml",
                 "rotation_model_csv",
                 "plate_polygons_geojson",
                 "materials_csv",

@@ -12,14 +12,19 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:
     import pyarrow as pa
     from strata13.compile.derive.engine import Derived, Settings
+    from strata13.compile.store.reader import Reader
     from strata13.compile.store.transaction import Transaction
 
 
 def derive_stored(
-    tx: Transaction, sources: Sequence[str], settings: Settings, ties: pa.Table | None = None
+    tx: Transaction | Reader,
+    sources: Sequence[str],
+    settings: Settings,
+    ties: pa.Table | None = None,
 ) -> dict[str, tuple[pa.Table, Derived]]:
-    """Re-derive stored sources from their records, runs, corrections and the given or
-    stored ties: {source: (stored records, Derived)}; a source with no records is left out."""
+    """Re-derive stored sources from their records, runs, corrections, sections and the
+    given or stored ties: {source: (stored records, Derived)}; a source with no records is
+    left out. A Reader does it for a dry run (nothing is written either way)."""
     from strata13.compile.derive.engine import derive
 
     if ties is None:
@@ -31,5 +36,9 @@ def derive_stored(
             continue
         runs = tx.fetch("SELECT * FROM runs WHERE source_id = ?", [sid])
         fixes = tx.fetch("SELECT * FROM corrections WHERE source_id = ?", [sid])
-        out[sid] = (recs, derive(recs, settings, ties, runs=runs, corrections=fixes))
+        secs = tx.fetch("SELECT * FROM sections WHERE source_id = ?", [sid])
+        out[sid] = (
+            recs,
+            derive(recs, settings, ties, runs=runs, corrections=fixes, sections=secs),
+        )
     return out

@@ -87,13 +87,20 @@ def heatmap(
     FigureCanvasAgg(fig)
     ax = fig.add_subplot(1, 1, 1)
     masked = np.ma.masked_equal(grid, 0)
-    im = ax.imshow(masked, aspect="auto", cmap="viridis", vmin=1, vmax=max(1, int(grid.max())))
+    top = max(1, int(grid.max()))
+    # counts are whole numbers: one colour per count (a discrete scale), ticks on integers
+    from matplotlib import colormaps
+    from matplotlib.colors import BoundaryNorm
+
+    cmap = colormaps["viridis"].resampled(top)
+    norm = BoundaryNorm(np.arange(0.5, top + 1.5), cmap.N)
+    im = ax.imshow(masked, aspect="auto", cmap=cmap, norm=norm)
     ax.set_facecolor("white")
     for i in range(len(rows)):
         for j in range(len(bins)):
             if grid[i, j] == 0:
                 ax.add_patch(_hatch(j, i))
-            dark = 0 < grid[i, j] < 0.6 * max(1, int(grid.max()))  # dark end of viridis
+            dark = 0 < grid[i, j] < 0.6 * top  # dark end of viridis
             ax.text(
                 j,
                 i,
@@ -109,7 +116,7 @@ def heatmap(
     )
     ax.set_xlabel("Age bin (Ma), older to the left")
     ax.set_title(title, fontsize=9)
-    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02, ticks=range(1, top + 1))
     cb.set_label("sections (samples in brackets); hatched: no data", fontsize=8)
     fig.tight_layout()
     save_figure(fig, path_png, path_svg, note)

@@ -645,8 +645,10 @@ def _reasons(
 
 
 def read_decisions(path: str | Path) -> list[Decision]:
-    """The user's verdicts on proposed pairs, from a CSV with the header
-    ``record_a,record_b,decision,note`` (the note column may be left out or empty).
+    """The user's verdicts on proposed pairs, from a CSV with the columns
+    ``record_a,record_b,decision,note`` (the note may be left out or empty) in any order;
+    other columns are ignored, so the CSV ``overlaps --format csv`` writes is accepted
+    once its decision column is filled (rows left undecided there are skipped).
 
     Blank lines and lines starting with ``#`` are skipped; decisions are case-insensitive.
     Every bad line is named at once (ConfigError): an unknown decision, a missing id, a
@@ -669,11 +671,14 @@ def read_decisions(path: str | Path) -> list[Decision]:
     ]
     hint = "Write one pair a line: record_a,record_b,confirm|reject,note (the note may be empty)."
     header = [c.strip().lower() for c in rows[0][1]] if rows else []
-    if header not in (list(DECISION_HEADER), list(DECISION_HEADER[:3])):
+    if not set(DECISION_HEADER[:3]) <= set(header):
         raise ConfigError(
-            f"the decisions file {p} does not start with the header {','.join(DECISION_HEADER)}.",
-            hint,
+            f"the decisions file {p} has no header with {','.join(DECISION_HEADER[:3])} "
+            "(and optionally note).",
+            hint + " The CSV of `overlaps --format csv` works once its decisions are filled.",
         )
+    at = {name: header.index(name) for name in DECISION_HEADER if name in header}
+    proposals = bool(set(header) - set(DECISION_HEADER))  # `overlaps --format csv` output
     problems: list[str] = []
     seen: dict[frozenset[str], tuple[int, str]] = {}
     out: list[Decision] = []
@@ -682,14 +687,17 @@ def read_decisions(path: str | Path) -> list[Decision]:
         if len(cells) > len(header):
             problems.append(f"line {line}: {len(cells)} fields, at most {len(header)} expected")
             continue
-        cells += [""] * (4 - len(cells))
-        ra, rb, decision, note = cells[0], cells[1], cells[2].lower(), cells[3]
+        cells += [""] * (len(header) - len(cells))
+        ra, rb, raw_decision = (cells[at[k]] for k in DECISION_HEADER[:3])
+        decision, note = raw_decision.lower(), cells[at["note"]] if "note" in at else ""
+        if not raw_decision and proposals:
+            continue  # a proposed pair left undecided
         if not ra or not rb:
             problems.append(f"line {line}: a record id is missing")
         elif ra == rb:
             problems.append(f"line {line}: record {ra} is paired with itself")
         elif decision not in DECISIONS:
-            problems.append(f"line {line}: decision '{cells[2]}' is not confirm or reject")
+            problems.append(f"line {line}: decision '{raw_decision}' is not confirm or reject")
         else:
             key = frozenset((ra, rb))
             if key in seen and seen[key][1] != decision:

@@ -32,6 +32,7 @@ from strata13.schemas.vocabularies import vocabulary
 from strata13.errors import ConfigError
 from strata13.suggest import did_you_mean
 
+PLACEHOLDER = "FILL IN"  # what `propose-map` writes where only the user knows the value
 SLUG = re.compile(r"^[a-z0-9][a-z0-9-]{1,62}[a-z0-9]$")
 TOP_KEYS = {
     "source",
@@ -60,7 +61,9 @@ SECTION_KEYS = {
     "offset_from",
     "offset_source",
     "note",
+    "accumulation",
 }
+ACCUMULATION_KEYS = {"shape", "segment_m"}  # a section's own accumulation prior
 LOCALITY_KEYS = {"id", "name", "lat", "lon", "precision_km", "aliases", "note", "plate"}
 
 
@@ -156,6 +159,12 @@ def _table(block: dict[str, Any], where: str, path: Path, with_columns: bool) ->
         raise ConfigError(
             f"{path.name}: {where} sheet must be a name or a number.",
             'Example: sheet = "Table S1" or sheet = 2',
+        )
+    if sheet is not None and spec.file.suffix.lower() in (".csv", ".tsv", ".txt"):
+        raise ConfigError(
+            f"{path.name}: {where} sheet = {sheet!r} does not apply to {spec.file.name}, "
+            "a text file with one table.",
+            "Remove sheet, or name the workbook (xlsx, ods) that holds that sheet.",
         )
     spec.sheet = sheet
     hr = block.get("header_row")
@@ -331,7 +340,33 @@ def _read_document(path: Path) -> _Loading:
             f"{path.name} is not valid TOML ({exc}).",
             "Check quotes and brackets on the line named.",
         ) from None
+    _refuse_placeholders(doc, path)
     return _Loading(path, raw, doc)
+
+
+def _refuse_placeholders(doc: dict[str, Any], path: Path) -> None:
+    """A drafted mapping (`propose-map`) marks what only the user knows "FILL IN: …";
+    every such value is named at once until it is replaced."""
+    found: list[str] = []
+
+    def walk(value: Any, where: str) -> None:
+        if isinstance(value, str) and value.strip().startswith(PLACEHOLDER):
+            found.append(f"{where} ({value.strip()[len(PLACEHOLDER) :].strip(' :')})")
+        elif isinstance(value, dict):
+            for k, v in value.items():
+                walk(v, f"{where} {k}" if where.startswith("[") else f"[{k}]")
+        elif isinstance(value, list):
+            for i, v in enumerate(value, 1):
+                walk(v, f"{where} #{i}" if isinstance(v, dict) else where)
+
+    walk(doc, "")
+    if found:
+        raise ConfigError(
+            f"{path.name} has {len(found)} value{'s' * (len(found) > 1)} to fill in: "
+            + "; ".join(found)
+            + ".",
+            f"Replace each {PLACEHOLDER!r} value with what the paper or the lab says.",
+        )
 
 
 def _check_blocks(st: _Loading) -> None:
@@ -514,6 +549,7 @@ def _check_sections_and_localities(st: _Loading) -> None:
     _check_block_ids("localities", localities, LOCALITY_KEYS, path)
     _check_plates(localities, path)
     _resolve_section_terms(sections, path)
+    _check_accumulation(sections, path)
     st.sections, st.localities = sections, localities
 
 
@@ -538,16 +574,17 @@ def _check_block_ids(kind: str, blocks: list[Any], keys: set[str], path: Path) -
 
 
 def _check_plates(localities: list[dict[str, Any]], path: Path) -> None:
-    """A locality's plate override is a plate id of the rotation model, a whole number."""
+    """A locality's plate override names a plate of the rotation model (a slug)."""
+    from strata13.compile.paleo.names import plate_name_problem
+
     for loc_block in localities:
         plate = loc_block.get("plate")
-        if plate is not None and (
-            not isinstance(plate, int) or isinstance(plate, bool) or plate < 1
-        ):
+        why = None if plate is None else plate_name_problem(plate)
+        if why:
             raise ConfigError(
-                f"{path.name}: locality {loc_block['id']!r} plate = {plate!r} is not a plate id.",
-                "Give the plate id (a whole number ≥ 1) of "
-                "the rotation model this locality rides on.",
+                f"{path.name}: locality {loc_block['id']!r} plate = {why}.",
+                "Give the name of the rotation model's plate this locality rides on, e.g. "
+                'plate = "calderin-block".',
             )
 
 
@@ -565,6 +602,27 @@ def _resolve_section_terms(sections: list[dict[str, Any]], path: Path) -> None:
                         f"Known: {', '.join(vocabulary(vocab).terms)}.",
                     )
                 s[key] = term
+
+
+def _check_accumulation(sections: list[dict[str, Any]], path: Path) -> None:
+    """A section's ``accumulation = { shape = …, segment_m = … }``: its own prior for the
+    age model (either key alone keeps the store's value of the other)."""
+    from strata13.compile.ages.agemodel import prior_value
+
+    for s in sections:
+        if "accumulation" not in s:
+            continue
+        block = s["accumulation"]
+        where = f"section {s['id']!r} accumulation"
+        if not isinstance(block, dict) or not block:
+            raise ConfigError(
+                f"{path.name}: {where} = {block!r} is not a table of shape and segment_m.",
+                "Write accumulation = { shape = 1.0, segment_m = 1.0 } (either key may go).",
+            )
+        _unknown_keys(where, block, ACCUMULATION_KEYS, path)
+        s["accumulation"] = {
+            k: prior_value(k, v, f"{path.name}: {where} {k}", ConfigError) for k, v in block.items()
+        }
 
 
 def _check_rows_have_a_section(st: _Loading) -> None:
@@ -644,7 +702,7 @@ def _apply_offsets(st: _Loading) -> None:
         st.normalisation.setdefault(fld, {"method": "not stated", "anchors": {}})["offset"] = off
 
 
-RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "note"}
+RUN_KEYS = {"anchors", "checks", "drift", "slope_tolerance", "value_set", "note"}
 
 
 def _run(block: Any, path: Path) -> dict[str, Any] | None:
@@ -683,12 +741,42 @@ def _run(block: Any, path: Path) -> dict[str, Any] | None:
     drift = block.get("drift", False)
     if not isinstance(drift, bool):
         raise ConfigError(f"{path.name}: [run] drift must be true or false.", "")
-    return {
+    out = {
         "anchors": [str(a) for a in anchors],
         "checks": [str(c) for c in checks],
         "drift": drift,
         "slope_tolerance": float(tol),
     }
+    if "value_set" in block:
+        out["value_set"] = _run_value_set(block["value_set"], [*anchors, *checks], path)
+    return out
+
+
+def _run_value_set(given: Any, materials: list[str], path: Path) -> str | dict[str, str]:
+    """``[run] value_set``: the published value set the run's materials are normalised to,
+    one name for all (``"IAEA sheet"``) or one per material (``{ "NBS-18" = "IAEA sheet" }``);
+    the names are checked against the store's table at ingest."""
+    hint = 'Example: value_set = "IAEA sheet", or value_set = { "NBS-18" = "IAEA sheet" }'
+    if isinstance(given, str) and given.strip():
+        return given.strip()
+    if (
+        isinstance(given, dict)
+        and given
+        and all(isinstance(v, str) and v.strip() for v in given.values())
+    ):
+        for mat in given:
+            if mat not in materials:
+                raise ConfigError(
+                    f"{path.name}: [run] value_set names {mat!r}, which is not one of the "
+                    "run's anchors or checks." + did_you_mean(mat, materials),
+                    hint,
+                )
+        return {str(k): str(v).strip() for k, v in given.items()}
+    raise ConfigError(
+        f"{path.name}: [run] value_set must be a value-set name or a table of material = "
+        "value-set name.",
+        hint,
+    )
 
 
 def _offsets(block: Any, path: Path) -> dict[str, dict[str, Any]]:
@@ -783,7 +871,7 @@ def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any
         block = doc["ties_table"]
         if not isinstance(block, dict):
             raise ConfigError(f'{path.name}: [ties_table] must be a table with file = "…".', "")
-        _unknown_keys("[ties_table]", block, {"file"}, path)
+        _unknown_keys("[ties_table]", block, {"file", "columns"}, path)
         if "file" not in block:
             raise ConfigError(
                 f'{path.name}: [ties_table] needs file = "…".',
@@ -791,10 +879,12 @@ def _ties(doc: dict[str, Any], path: Path, source_id: str) -> list[dict[str, Any
             )
         table_file = safe_path(path.parent, block["file"], "[ties_table] file", path)
     chart = (doc.get("constants") or {}).get("age_time_scale")
+    columns = (doc.get("ties_table") or {}).get("columns")
     return read_ties(
         path,
         doc.get("ties", []),
         table_file,
         source_id,
         str(chart) if isinstance(chart, str) else None,
+        columns,
     )

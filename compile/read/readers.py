@@ -131,6 +131,33 @@ def _cell_text(value: Any) -> str | None:
 def _read_spreadsheet(
     path: Path, sheet: str | int | None, header_row: int | None, expected: list[str]
 ) -> RawTable:
+    cells = sheet_cells(path, sheet)
+    return _table_from_grid(
+        path.name,
+        cells.sheet,
+        cells.grid,
+        header_row,
+        expected,
+        cells.issues,
+        cells.row_offset + 1,
+        cells.col_offset,
+    )
+
+
+@dataclass
+class SheetCells:
+    """A workbook sheet's used area as text, where it starts, and what reading it found."""
+
+    sheet: str
+    grid: list[list[str | None]]
+    row_offset: int  # 0-based sheet row of grid[0]
+    col_offset: int  # 0-based sheet column of grid[r][0]
+    issues: list[Issue]
+
+
+def sheet_cells(path: Path, sheet: str | int | None) -> SheetCells:
+    """The used area of one sheet of a workbook, surveyed first (a huge or damaged file is
+    refused in one sentence), merged ranges filled, formulas without a value reported."""
     import python_calamine as pcal
     from strata13.compile.read.survey import precheck, survey
 
@@ -210,9 +237,7 @@ def _read_spreadsheet(
             )
         )
     text_grid = [[_cell_text(v) for v in row] for row in grid]
-    return _table_from_grid(
-        path.name, name, text_grid, header_row, expected, issues, r_off + 1, c_off
-    )
+    return SheetCells(name, text_grid, r_off, c_off, issues)
 
 
 def _calamine_reason(exc: BaseException) -> str:
@@ -236,7 +261,8 @@ def _sheet_name(path: Path, names: list[str], sheet: str | int | None) -> str:
     if isinstance(sheet, int):
         if not 1 <= sheet <= len(names):
             raise ConfigError(
-                f"{path.name} has {len(names)} sheets; sheet {sheet} does not exist.",
+                f"{path.name} has {len(names)} sheet{'s' * (len(names) != 1)}; "
+                f"sheet {sheet} does not exist.",
                 f"Sheets: {', '.join(names)}.",
             )
         return names[sheet - 1]

@@ -17,8 +17,8 @@ import numpy as np
 if TYPE_CHECKING:
     import pyarrow as pa
 
-X_LABEL = "δ18O carb (‰ VPDB)"
-Y_LABEL = "δ13C carb (‰ VPDB)"
+X_LABEL = "δ¹⁸O carb (‰ VPDB)"  # mass numbers as superscripts, as a journal prints them
+Y_LABEL = "δ¹³C carb (‰ VPDB)"
 # marker, face colour, edge colour, label — failed and warned stand out from the rest
 STYLES = {
     "pass": ("o", "#4a7fb0", "#2b5a85", "passed"),
@@ -153,6 +153,16 @@ def _line(g: dict[str, Any]) -> str:
         )
 
     return (
-        f"r = {f(g['r'], '.2f')}, r² = {f(g['r2'], '.2f')}, n = {g['n']}, "
-        f"n_eff = {f(g['n_eff'], '.1f')}, p = {f(g['p'], '.2g')} ({g['outcome']})"
+        f"r = {f(g['r'], _near_one(g['r']))}, r² = {f(g['r2'], _near_one(g['r2']))}, "
+        f"n = {g['n']}, n_eff = {f(g['n_eff'], '.1f')}, p = {f(g['p'], '.2g')} "
+        f"({g['outcome']})"
     )
+
+
+def _near_one(v: Any) -> str:
+    """Decimals that keep a correlation near ±1 from reading as exactly 1 (0.996, not 1.00)."""
+    d = 2
+    if isinstance(v, float) and np.isfinite(v):
+        while d < 6 and abs(v) != 1.0 and round(abs(v), d) == 1.0:
+            d += 1
+    return f".{d}f"

@@ -32,7 +32,7 @@ from strata13.compile.store.files import Orphans
 from strata13.compile.store.relations import bind_views
 from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
-from strata13.schemas.records import TABLES
+from strata13.schemas.records import RETYPED, TABLES
 
 from strata13.errors import Interrupted, NotAStoreError, StoreError
 
@@ -325,8 +325,9 @@ class Store:
             con.close()
 
     def migrate(self, con: duckdb.DuckDBPyConnection) -> list[str]:
-        """Add the columns today's schema has and the store's tables lack (inside the
-        caller's transaction, under the writer lock). Returns what was added."""
+        """Add the columns today's schema has and the store's tables lack, and convert the
+        columns whose type changed (``records.RETYPED``: the values cast to today's type),
+        inside the caller's transaction, under the writer lock. Returns what was changed."""
         added = []
         existing = {
             r[0]
@@ -342,7 +343,10 @@ class Store:
                 continue
             have = {r[0]: r[1] for r in con.execute(f"DESCRIBE lake.{name}").fetchall()}
             for col, sqltype in columns:
-                if col in have and have[col] != sqltype:
+                if col in have and have[col] == RETYPED.get((name, col)) != sqltype:
+                    _retype(con, name, col, sqltype)
+                    added.append(f"{name}.{col} ({have[col]} → {sqltype})")
+                elif col in have and have[col] != sqltype:
                     raise StoreError(
                         f"{self.path}: column {name}.{col} is {have[col]} but this "
                         f"strata13 writes {sqltype}.",
@@ -352,6 +356,8 @@ class Store:
                 if col not in have:
                     con.execute(f'ALTER TABLE lake.{name} ADD COLUMN "{col}" {sqltype}')
                     added.append(f"{name}.{col}")
+            if name == "analyses":
+                _keep_reported_precision(con, have)
         return added
 
     # ------------------------------------------------------------ reading helpers
@@ -404,9 +410,32 @@ def _size(files: list[Path]) -> int:
     return total
 
 
+def _retype(con: duckdb.DuckDBPyConnection, table: str, col: str, sqltype: str) -> None:
+    """Give ``col`` its new type, every value cast (DuckLake alters only to wider types, so
+    the column is renamed, recreated, filled and the old one dropped; earlier versions keep
+    their own)."""
+    old = f"{col}__before_retype"
+    con.execute(f'ALTER TABLE lake.{table} RENAME COLUMN "{col}" TO "{old}"')
+    con.execute(f'ALTER TABLE lake.{table} ADD COLUMN "{col}" {sqltype}')
+    con.execute(f'UPDATE lake.{table} SET "{col}" = CAST("{old}" AS {sqltype})')
+    con.execute(f'ALTER TABLE lake.{table} DROP COLUMN "{old}"')
+
+
 def _row_table(table: str, row: dict[str, Any]) -> Any:
     """One row as an Arrow table typed like ``table``."""
     import pyarrow as pa
     from strata13.schemas.records import arrow_schema
 
     return pa.Table.from_pylist([row], schema=arrow_schema(TABLES[table]))
+
+
+def _keep_reported_precision(con: duckdb.DuckDBPyConnection, had: dict[str, str]) -> None:
+    """Stores written before the reported/derived split of analytical precision kept the
+    sheet's precision in ``{d}_precision``; the migration that adds
+    ``{d}_precision_reported`` copies it there, so re-deriving keeps what the sheet said."""
+    from strata13.schemas.fields import DELTA_FIELDS
+
+    for d in DELTA_FIELDS:
+        old, new = f"{d}_precision", f"{d}_precision_reported"
+        if old in had and new not in had:
+            con.execute(f'UPDATE lake.analyses SET "{new}" = "{old}" WHERE "{old}" IS NOT NULL')

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from strata13.schemas.records import RECORDS_COLUMNS, TABLES
+from strata13.schemas.records import RECORDS_COLUMNS, RETYPED, TABLES
 
 if TYPE_CHECKING:
     import duckdb
@@ -85,13 +85,24 @@ def _columns_at(con: duckdb.DuckDBPyConnection, version: int) -> dict[str, set[s
     }
 
 
+def _column(table: str, col: str, sqltype: str, present: bool) -> str:
+    """One view column: as stored, NULL of its type when the version lacks it, or cast to
+    today's type when its type changed since (``records.RETYPED``)."""
+    if not present:
+        return f'CAST(NULL AS {sqltype}) AS "{col}"'
+    if (table, col) in RETYPED:
+        return f'CAST("{col}" AS {sqltype}) AS "{col}"'
+    return f'"{col}"'
+
+
 def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = False) -> None:
     """Create a reader's temp views over ``lake``, all pinned to ``version``.
 
-    A version written before a column existed shows it as NULL: the views always have
-    today's columns, so old versions stay readable. For the ``latest`` version the
-    catalog's own column list is read in one query; an older version is probed table by
-    table. (A writer reads the same names without views: ``transaction``.)
+    A version written before a column existed shows it as NULL, and a column whose type
+    changed is cast to today's type: the views always have today's columns, so old
+    versions stay readable. For the ``latest`` version the catalog's own column list is
+    read in one query; an older version is probed table by table. (A writer reads the same
+    names without views: ``transaction``.)
     """
     import duckdb
 
@@ -106,9 +117,7 @@ def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = Fals
             cols = ", ".join(f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted)
             statements.append(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} WHERE false")
             continue
-        cols = ", ".join(
-            f'"{c}"' if c in have else f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted
-        )
+        cols = ", ".join(_column(table, c, types[c], c in have) for c in wanted)
         statements.append(
             f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}"
         )

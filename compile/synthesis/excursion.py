@@ -25,7 +25,10 @@ setting at a time: the caller's filter or ``group_col`` keeps them apart):
   fraction of the way at which the departure, linear between them, equals the threshold;
   position and age use that same fraction. (Linear, because it assumes nothing about the
   record between samples beyond continuity; its error is second order in the spacing.)
+* **Duration** = onset age − recovery age (Myr), NaN unless both are found.
 * **Spacing**: median of the gaps between consecutive positions (m).
+* **Uncertainty** (every metric's 1σ and 95 % range over age draws and a resampling of the
+  samples) is ``excursion_draws``'s; it measures each draw with these same definitions.
 
 Bad input — which raises and which flags:
 
@@ -75,11 +78,12 @@ PER_SECTION_COLUMNS = (
     "onset_age_ma",
     "recovery_position_m",
     "recovery_age_ma",
+    "duration_myr",
     "n_samples",
     "median_spacing_m",
     "flags",
 )
-SUMMARY_STATS = ("magnitude", "peak_age_ma", "onset_age_ma")
+SUMMARY_STATS = ("magnitude", "peak_age_ma", "onset_age_ma", "recovery_age_ma", "duration_myr")
 
 
 class Window(NamedTuple):
@@ -105,6 +109,7 @@ class Metrics:
     onset_age_ma: float
     recovery_position_m: float
     recovery_age_ma: float
+    duration_myr: float  # onset age − recovery age
     n_samples: int
     median_spacing_m: float
     flags: str
@@ -132,68 +137,24 @@ def metrics(
     shortfalls of the data come back as flags (module docstring)."""
     _check_request(fraction, direction)
     window = _window(baseline_window)
-    if len(section_df) == 0:
-        raise DomainError(
-            "The interval holds no samples of this section.",
-            "Widen the interval or check the section and filters.",
-        )
-    vcol = _value_column(section_df, value_col)
-    for col in ("position_m", "age_ma"):
-        if col not in section_df.columns:
-            raise DomainError(
-                f"The samples have no {col!r} column.",
-                "Pass records with position_m and age_ma (NaN allowed).",
-            )
-    flags: list[str] = []
-    kind = position_kind
-    if kind is None:
-        kinds = (
-            set(section_df["position_kind"].dropna().astype(str))
-            if "position_kind" in section_df.columns
-            else set()
-        )
-        if len(kinds) > 1:
-            return _empty(len(section_df), ["mixed_position_kinds"], "")
-        kind = kinds.pop() if kinds else "height"
-    if kind not in ("height", "depth"):
-        raise DomainError(
-            f"Position kind {kind!r} is neither 'height' nor 'depth'.",
-            "Give the section's position kind: height or depth.",
-        )
-
-    pos = pd.to_numeric(section_df["position_m"], errors="coerce").to_numpy(float)
-    age = pd.to_numeric(section_df["age_ma"], errors="coerce").to_numpy(float)
-    val = pd.to_numeric(section_df[vcol], errors="coerce").to_numpy(float)
-    has_pos = bool(np.isfinite(pos).any())
-    keep = np.isfinite(val) & (np.isfinite(pos) if has_pos else np.isfinite(age))
-    if not has_pos:
-        flags.append("no_positions")
-    if not keep.all():
-        flags.append("missing_dropped")
-    pos, age, val = pos[keep], age[keep], val[keep]
-    if has_pos:  # oldest first: heights ascending, depths descending; ties by age, oldest first
-        key = pos if kind == "height" else -pos
-        order = np.lexsort((-np.nan_to_num(age, nan=-np.inf), key))
-    else:
-        order = np.argsort(-age, kind="stable")
-    pos, age, val = pos[order], age[order], val[order]
+    prep = prepare(section_df, position_kind, value_col)
+    if isinstance(prep, Metrics):
+        return prep
+    pos, age, val, has_pos, flags = prep.pos, prep.age, prep.val, prep.has_pos, list(prep.flags)
     n = int(val.size)
     spacing = float(np.median(np.abs(np.diff(pos)))) if has_pos and n >= 2 else NAN
     if n < MIN_BASELINE + 1:
         return _empty(n, [*flags, "too_few_samples"], "", spacing)
 
     # -- baseline window
+    inside = baseline_members(prep, window)
     if window is None:
-        k = max(MIN_BASELINE, math.ceil(BASELINE_FRACTION * n))
-        inside = np.zeros(n, bool)
-        inside[:k] = True
+        k = int(inside.sum())
         described = f"oldest {k} of {n} samples"
         if has_pos:
             described += f" ({_fmt(pos[0])}–{_fmt(pos[k - 1])} m)"
     else:
         lo, hi = sorted((float(window.lo), float(window.hi)))
-        coord = age if window.unit == "ma" else pos
-        inside = np.isfinite(coord) & (coord >= lo) & (coord <= hi)
         described = (
             f"{_fmt(hi)}–{_fmt(lo)} Ma" if window.unit == "ma" else f"{_fmt(lo)}–{_fmt(hi)} m"
         )
@@ -250,8 +211,90 @@ def metrics(
         onset_age_ma=onset[1],
         recovery_position_m=recovery[0] if has_pos else NAN,
         recovery_age_ma=recovery[1],
+        duration_myr=onset[1] - recovery[1],
         flags="; ".join(flags),
     )
+
+
+class Prepared(NamedTuple):
+    """One section's usable samples in stratigraphic order (oldest first): positions (NaN
+    without any), ages and values; ``rows`` are their row numbers in the frame given."""
+
+    pos: np.ndarray
+    age: np.ndarray
+    val: np.ndarray
+    rows: np.ndarray
+    has_pos: bool
+    kind: str
+    flags: tuple[str, ...]
+
+
+def prepare(
+    section_df: pd.DataFrame, position_kind: str | None = None, value_col: str | None = None
+) -> Prepared | Metrics:
+    """The samples ``metrics`` measures, in the order it measures them (module docstring:
+    stratigraphic order, what is left out); a Metrics of NaN when the position kinds are
+    mixed. Raises DomainError for an empty frame, a missing column or an unknown kind."""
+    if len(section_df) == 0:
+        raise DomainError(
+            "The interval holds no samples of this section.",
+            "Widen the interval or check the section and filters.",
+        )
+    vcol = _value_column(section_df, value_col)
+    for col in ("position_m", "age_ma"):
+        if col not in section_df.columns:
+            raise DomainError(
+                f"The samples have no {col!r} column.",
+                "Pass records with position_m and age_ma (NaN allowed).",
+            )
+    flags: list[str] = []
+    kind = position_kind
+    if kind is None:
+        kinds = (
+            {str(k) for k in pd.unique(section_df["position_kind"].to_numpy()) if not pd.isna(k)}
+            if "position_kind" in section_df.columns
+            else set()
+        )
+        if len(kinds) > 1:
+            return _empty(len(section_df), ["mixed_position_kinds"], "")
+        kind = kinds.pop() if kinds else "height"
+    if kind not in ("height", "depth"):
+        raise DomainError(
+            f"Position kind {kind!r} is neither 'height' nor 'depth'.",
+            "Give the section's position kind: height or depth.",
+        )
+
+    pos, age, val = (_floats(section_df[c]) for c in ("position_m", "age_ma", vcol))
+    has_pos = bool(np.isfinite(pos).any())
+    keep = np.isfinite(val) & (np.isfinite(pos) if has_pos else np.isfinite(age))
+    if not has_pos:
+        flags.append("no_positions")
+    if not keep.all():
+        flags.append("missing_dropped")
+    rows = np.flatnonzero(keep)
+    pos, age, val = pos[keep], age[keep], val[keep]
+    if has_pos:  # oldest first: heights ascending, depths descending; ties by age, oldest first
+        key = pos if kind == "height" else -pos
+        order = np.lexsort((-np.nan_to_num(age, nan=-np.inf), key))
+    else:
+        order = np.argsort(-age, kind="stable")
+    return Prepared(pos[order], age[order], val[order], rows[order], has_pos, kind, tuple(flags))
+
+
+def baseline_members(prep: Prepared, window: Window | None) -> np.ndarray:
+    """Which of a section's prepared samples form its baseline window: the oldest
+    max(``MIN_BASELINE``, ⌈``BASELINE_FRACTION``·n⌉), or those inside an explicit window
+    (bounds inclusive, on the ages or the positions)."""
+    n = int(prep.val.size)
+    if window is None:
+        inside = np.zeros(n, bool)
+        inside[: max(MIN_BASELINE, math.ceil(BASELINE_FRACTION * n))] = True
+        return inside
+    lo, hi = sorted((float(window.lo), float(window.hi)))
+    coord = prep.age if window.unit == "ma" else prep.pos
+    with np.errstate(invalid="ignore"):
+        within: np.ndarray = np.isfinite(coord) & (coord >= lo) & (coord <= hi)
+    return within
 
 
 def per_section(
@@ -306,12 +349,12 @@ def per_section(
 
 def summary(per_section: pd.DataFrame, group_col: str | None = "group") -> pd.DataFrame:
     """Mean, SD (n − 1 in the denominator; NaN below two values) and n of the magnitude,
-    peak age and onset age: one row across all sections (``scope`` "all", ``group`` None),
-    then one per value of ``group_col`` (``scope`` "group"), sorted. Rows with NaN in a
-    quantity do not count towards its n.
+    peak, onset and recovery ages and the duration: one row across all sections (``scope``
+    "all", ``group`` None), then one per value of ``group_col`` (``scope`` "group"), sorted.
+    Rows with NaN in a quantity do not count towards its n.
 
     Columns: scope, group, n_sections, then ``<q>_mean``, ``<q>_sd``, ``<q>_n`` for q in
-    magnitude, peak_age_ma, onset_age_ma."""
+    ``SUMMARY_STATS``. ``excursion_draws.summary`` adds their uncertainty."""
     missing = [c for c in SUMMARY_STATS if c not in per_section.columns]
     if missing:
         raise DomainError(
@@ -358,7 +401,7 @@ def _cross(
 
 def _empty(n: int, flags: list[str], window: str, spacing: float = NAN) -> Metrics:
     return Metrics(
-        NAN, window, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, n, spacing, "; ".join(flags)
+        NAN, window, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, n, spacing, "; ".join(flags)
     )
 
 
@@ -409,6 +452,15 @@ def _value_column(df: pd.DataFrame, value_col: str | None) -> str:
         "The samples have neither a 'value' nor a 'd13c_carb' column.",
         "Name the column holding the δ13C values with value_col.",
     )
+
+
+def _floats(col: pd.Series) -> np.ndarray:
+    """A column as float64, text that is no number as NaN (numeric columns at once)."""
+    if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
+        out: np.ndarray = col.to_numpy(dtype=float, na_value=np.nan)
+    else:
+        out = pd.to_numeric(col, errors="coerce").to_numpy(float)
+    return out
 
 
 def _fmt(x: float) -> str:

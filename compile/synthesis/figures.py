@@ -77,8 +77,10 @@ def curve_figure(
     value_label: str = CARB_LABEL,
     merged: bool = False,
     note: str = "",
+    band_label: str = "curve band (lo–hi)",
 ) -> Figure:
-    """δ13C against age: points by group, the LOESS curve of each group and its band.
+    """δ13C against age: points by group, the LOESS curve of each group and its band
+    (``band_label`` says what the band is in the legend).
 
     Inputs (pandas DataFrames):
 
@@ -220,7 +222,7 @@ def curve_figure(
         if len(c):
             ax.plot(c["age_ma"], c["fit"], color=colour, linewidth=2.0, zorder=4, path_effects=halo)
     if band_drawn:
-        handles.append(Patch(color="0.5", alpha=0.3, linewidth=0, label="curve band (lo–hi)"))
+        handles.append(Patch(color="0.5", alpha=0.3, linewidth=0, label=band_label))
     if bin_table is not None and len(bin_table):
         for g, part in sorted(
             bin_table.dropna(subset=["age_ma", "value"]).groupby("group", sort=False, dropna=False),
@@ -263,7 +265,7 @@ def curve_figure(
         )
 
     ax.set_xlim((old, young) if OLDER_ON_LEFT else (young, old))
-    ax.set_ylabel(value_label)
+    ax.set_ylabel(pretty(value_label))
     ax.grid(True, color="0.88", linewidth=0.5)
     ax.set_axisbelow(True)
     bottom = strip if strip is not None else ax
@@ -291,6 +293,20 @@ def curve_figure(
     return fig
 
 
+def pretty(label: str) -> str:
+    """A δ label with its mass numbers as superscripts (δ13C → δ¹³C, δ18O → δ¹⁸O), as a
+    journal prints it; the glyphs are in matplotlib's default font."""
+    return label.replace("δ13C", "δ¹³C").replace("δ18O", "δ¹⁸O")
+
+
+EXCURSION_STYLE = {  # metric -> (colour, marker, label): one look in both panels
+    "onset": (PALETTE[1], "s", "onset"),
+    "peak": (PALETTE[0], "o", "peak"),
+    "recovery": (PALETTE[2], "D", "recovery"),
+}
+RANGE_ALPHA = 0.22  # shading of a 95 % range
+
+
 def excursion_figure(
     df: pd.DataFrame,
     per_section: pd.DataFrame,
@@ -299,21 +315,29 @@ def excursion_figure(
     value_col: str | None = None,
     value_label: str = CARB_LABEL,
     title: str = "",
+    summary: pd.DataFrame | None = None,
+    ranges_note: str = "",
 ) -> Figure:
-    """Each section's δ13C against its position relative to the onset, one panel per
-    section side by side, sharing that vertical axis (0 = onset, up = younger: height −
-    onset height, or onset depth − depth). The baseline is a dashed vertical line, the
-    onset a solid and the recovery a dotted horizontal line.
+    """Two panels. Above, each section's δ13C against its position relative to the onset,
+    one panel per section side by side, sharing that vertical axis (0 = onset, up =
+    younger: height − onset height, or onset depth − depth): the baseline a dashed vertical
+    line, the onset a solid and the recovery a dotted horizontal line, each with its 95 %
+    range of positions shaded when the table has one. Below, across the figure, the onset,
+    peak and recovery ages of every section (centre marker, 95 % range as a bar; older to
+    the left), then the group means of ``summary`` (rows of scope "group", when given).
 
     ``df`` holds the records (source_id, section_id, position_m, the value column —
     ``value_col``, else value, else d13c_carb — and ``group_col`` when per_section was
-    made with one); ``per_section`` is excursion.per_section()'s table. Sections without
-    an onset cannot be aligned: they are named in the figure title instead. ``size``
-    defaults to 1.9 in per panel (at least 4 in) by 6 in. DomainError when no section has
-    an onset."""
+    made with one); ``per_section`` is excursion.per_section()'s table, with the columns of
+    excursion_draws.with_uncertainty() for the ranges (without them only centres are drawn).
+    Sections without an onset cannot be aligned: they are named in the figure title
+    instead (and still have a row of ages). ``ranges_note`` says what the ranges are made of.
+    ``size`` defaults to 1.9 in per section panel (at least 6 in) by 5.4 in plus 0.3 in per
+    row of ages. DomainError when no section has an onset."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
 
     vcol = _value_column(df, value_col)
     for col in ("source_id", "section_id", "position_m", *([group_col] if group_col else [])):
@@ -329,11 +353,14 @@ def excursion_figure(
             "No section has an onset to align on.",
             "Check the flags of the per-section table (starts_in_excursion, too_few_samples …).",
         )
+    age_rows = _age_rows(per_section, summary)
     n = len(shown)
-    size = size if size is not None else (max(4.0, 1.9 * n + 1.2), 6.0)
+    size = size if size is not None else (max(6.0, 1.9 * n + 1.6), 5.4 + 0.3 * len(age_rows))
     fig = Figure(figsize=size, dpi=DPI, layout="constrained")
     FigureCanvasAgg(fig)
-    axes = fig.subplots(1, n, sharey=True, squeeze=False)[0]
+    grid = fig.add_gridspec(2, n, height_ratios=(4.0, max(1.2, 0.3 * len(age_rows))))
+    axes = [fig.add_subplot(grid[0, 0])]
+    axes += [fig.add_subplot(grid[0, i], sharey=axes[0]) for i in range(1, n)]
     any_depth = False
     for ax, (_, row) in zip(axes, shown.iterrows(), strict=True):
         sel = (df["source_id"] == row["source_id"]) & (df["section_id"] == row["section_id"])
@@ -346,7 +373,11 @@ def excursion_figure(
         val = pd.to_numeric(part[vcol], errors="coerce").to_numpy(float)
         keep = np.isfinite(pos) & np.isfinite(val)
         onset = float(row["onset_position_m"])
-        y = (onset - pos[keep]) if depth else (pos[keep] - onset)
+
+        def rel(x: float, onset: float = onset, depth: bool = depth) -> float:
+            return (onset - x) if depth else (x - onset)
+
+        y = np.array([rel(v) for v in pos[keep]])
         order = np.argsort(y, kind="stable")
         ax.plot(
             val[keep][order],
@@ -358,15 +389,14 @@ def excursion_figure(
             zorder=3,
         )
         ax.axvline(float(row["baseline"]), color="0.35", linestyle="--", linewidth=1.0)
-        ax.axhline(0.0, color=PALETTE[1], linewidth=1.3)
-        rec = float(row["recovery_position_m"])
-        if np.isfinite(rec):
-            ax.axhline(
-                (onset - rec) if depth else (rec - onset),
-                color=PALETTE[1],
-                linestyle=":",
-                linewidth=1.3,
-            )
+        for metric, style in (("onset", "-"), ("recovery", ":")):
+            colour = EXCURSION_STYLE[metric][0]
+            centre = _num(row, f"{metric}_position_m")
+            if np.isfinite(centre):
+                ax.axhline(rel(centre), color=colour, linestyle=style, linewidth=1.3)
+            lo, hi = _num(row, f"{metric}_position_p2_5_m"), _num(row, f"{metric}_position_p97_5_m")
+            if np.isfinite(lo) and np.isfinite(hi):
+                ax.axhspan(rel(lo), rel(hi), color=colour, alpha=RANGE_ALPHA, linewidth=0)
         label = str(row["section_id"]) + "\n" + str(row["source_id"])
         if group_col and row["group"] is not None:
             label += f"\n{row['group']}"
@@ -374,25 +404,136 @@ def excursion_figure(
         ax.grid(True, color="0.9", linewidth=0.5)
         ax.set_axisbelow(True)
         ax.tick_params(labelsize="small")
+        ax.set_xlabel(pretty(value_label), fontsize="small")
+    for ax in axes[1:]:
+        ax.tick_params(labelleft=False)
     axes[0].set_ylabel(
         "Position above onset (m)" + ("; depths: onset − depth" if any_depth else "")
     )
-    fig.supxlabel(value_label, fontsize="medium")
-    lines = [title] if title else []
+    _age_panel(fig.add_subplot(grid[1, :]), age_rows)
+    lines = [pretty(title)] if title else []
     if len(skipped):
-        lines.append(
-            "not shown, no onset to align on: " + ", ".join(map(str, skipped["section_id"]))
-        )
+        lines.append("not aligned, no onset: " + ", ".join(map(str, skipped["section_id"])))
     if lines:
         fig.suptitle("\n".join(lines), fontsize="medium")
     handles = [
         Line2D([], [], color=PALETTE[0], marker="o", markersize=3, linewidth=0.9, label="samples"),
         Line2D([], [], color="0.35", linestyle="--", label="baseline"),
-        Line2D([], [], color=PALETTE[1], linewidth=1.3, label="onset"),
-        Line2D([], [], color=PALETTE[1], linestyle=":", linewidth=1.3, label="recovery"),
+        Line2D([], [], color=EXCURSION_STYLE["onset"][0], linewidth=1.3, label="onset"),
+        Line2D(
+            [],
+            [],
+            color=EXCURSION_STYLE["recovery"][0],
+            linestyle=":",
+            linewidth=1.3,
+            label="recovery",
+        ),
+        Patch(color="0.5", alpha=RANGE_ALPHA * 2, linewidth=0, label="95 % range of position"),
     ]
-    fig.legend(handles=handles, loc="outside right upper", fontsize="small", frameon=False)
+    handles += [
+        Line2D(
+            [],
+            [],
+            color=c,
+            marker=m,
+            linestyle="-",
+            linewidth=1.6,
+            markersize=5,
+            label=f"{lab} age (bar: 95 % range)",
+        )
+        for c, m, lab in EXCURSION_STYLE.values()
+    ]
+    legend = fig.legend(handles=handles, loc="outside right upper", fontsize="small", frameon=False)
+    if ranges_note:
+        from matplotlib.font_manager import FontProperties
+
+        legend.set_title(ranges_note, prop=FontProperties(size="x-small"))
     return fig
+
+
+def _num(row: Any, col: str) -> float:
+    """A numeric cell of a table row, NaN when the column is absent or blank."""
+    try:
+        v = float(row[col])
+    except (KeyError, TypeError, ValueError):
+        return float("nan")
+    return v
+
+
+def _age_rows(per_section: pd.DataFrame, summary: pd.DataFrame | None) -> list[dict[str, Any]]:
+    """The rows of the age panel: each section with an age, then each group mean."""
+    out: list[dict[str, Any]] = []
+    for _, r in per_section.iterrows():
+        label = f"{r['section_id']}"
+        if r.get("group") is not None and not pd.isna(r.get("group")):
+            label += f" · {r['group']}"
+        cells = {}
+        for m in EXCURSION_STYLE:
+            cells[m] = (
+                _num(r, f"{m}_age_ma"),
+                _num(r, f"{m}_age_p2_5_ma"),
+                _num(r, f"{m}_age_p97_5_ma"),
+            )
+        if any(np.isfinite(c[0]) for c in cells.values()):
+            out.append({"label": label, "cells": cells, "mean": False})
+    if summary is not None and "scope" in summary.columns:
+        for _, r in summary[summary["scope"] == "group"].iterrows():
+            cells = {
+                m: (
+                    _num(r, f"{m}_age_ma_mean"),
+                    _num(r, f"{m}_age_ma_mean_p2_5"),
+                    _num(r, f"{m}_age_ma_mean_p97_5"),
+                )
+                for m in EXCURSION_STYLE
+            }
+            if any(np.isfinite(c[0]) for c in cells.values()):
+                out.append({"label": f"mean · {r['group']}", "cells": cells, "mean": True})
+    return out
+
+
+def _age_panel(ax: Axes, rows: list[dict[str, Any]]) -> None:
+    """Onset, peak and recovery ages per row: the centre as a marker, the 95 % range as a
+    bar through it; group means below a rule, in bold; older to the left."""
+    offsets = {"onset": -0.22, "peak": 0.0, "recovery": 0.22}
+    for y, row in enumerate(rows):
+        for m, (centre, lo, hi) in row["cells"].items():
+            colour, marker, _ = EXCURSION_STYLE[m]
+            yy = y + offsets[m]
+            if np.isfinite(lo) and np.isfinite(hi):
+                ax.plot(
+                    [lo, hi],
+                    [yy, yy],
+                    color=colour,
+                    linewidth=1.6,
+                    solid_capstyle="butt",
+                    gid=f"{m} age 95 % range",
+                )
+            if np.isfinite(centre):
+                ax.plot(
+                    [centre],
+                    [yy],
+                    marker=marker,
+                    color=colour,
+                    markersize=4.5,
+                    markeredgecolor="white",
+                    markeredgewidth=0.5,
+                    linestyle="none",
+                    zorder=3,
+                )
+    first_mean = next((i for i, r in enumerate(rows) if r["mean"]), None)
+    if first_mean is not None:
+        ax.axhline(first_mean - 0.5, color="0.6", linewidth=0.6)
+    ax.set_yticks(range(len(rows)), [r["label"] for r in rows], fontsize="small")
+    for tick, r in zip(ax.get_yticklabels(), rows, strict=True):
+        if r["mean"]:
+            tick.set_fontweight("bold")
+    ax.set_ylim(len(rows) - 0.5, -0.5)  # first row on top
+    if OLDER_ON_LEFT:
+        ax.xaxis.set_inverted(True)
+    ax.set_xlabel(AGE_LABEL + " — older to the left", fontsize="small")
+    ax.grid(True, axis="x", color="0.9", linewidth=0.5)
+    ax.set_axisbelow(True)
+    ax.tick_params(labelsize="small")
 
 
 # printed on every figure drawn from a store the demo made

@@ -30,8 +30,48 @@ if TYPE_CHECKING:
     from strata13.compile.store.lake import Store
 
 BY = ("region", "paleolat-band", "source", "setting", "component")
+BAND = "paleolat-band"  # takes a width: --by paleolat-band:15
+DEFAULT_BAND_DEG = 30.0
 ISOTOPES = {"carb": "d13c_carb", "org": "d13c_org"}
 GRID_POINTS = 241
+
+
+def band_width(by: str | None) -> float | None:
+    """The band width (degrees) of ``--by paleolat-band[:DEG]``, None for another grouping.
+
+    A width divides 180 (5, 10, 15, 30, 45, 7.5 …), so the bands tile the globe from pole to
+    pole with the equator on an edge."""
+    if by is None or by.split(":", 1)[0] != BAND:
+        if by is not None and ":" in by:
+            raise OptionError(
+                f"--by {by!r}: only {BAND} takes a value after ':'.", "Example: --by region"
+            )
+        return None
+    _, sep, text = by.partition(":")
+    if not sep:
+        return DEFAULT_BAND_DEG
+    try:
+        width = float(text)
+    except ValueError:
+        width = math.nan
+    parts = 180.0 / width if width > 0 else math.nan
+    if not (0 < width <= 180 and abs(parts - round(parts)) < 1e-9):
+        raise OptionError(
+            f"--by {by!r}: the band width {text!r} is not a number of degrees that divides 180.",
+            f"Example: --by {BAND}:15 (bands of 15°; the default is {DEFAULT_BAND_DEG:g}°).",
+        )
+    return width
+
+
+def band_labels(paleolat: pd.Series, width: float) -> pd.Series:
+    """Each paleolatitude's band, e.g. '+30° to +60°' (90°N falls in the top band)."""
+    import numpy as np
+    import pandas as pd
+
+    low = np.minimum(np.floor(paleolat / width) * width, 90.0 - width)
+    return low.map(
+        lambda b: "no paleolatitude" if pd.isna(b) else f"{b + 0.0:+g}° to {b + width:+g}°"
+    )
 
 
 @dataclass
@@ -58,10 +98,11 @@ class CurveRequest:
                 f"--isotope {self.isotope!r} is not carb or org.",
                 "Curves are of carbonate (carb) or organic (org) δ13C.",
             )
-        if self.by is not None and self.by not in BY:
+        if self.by is not None and self.by.split(":", 1)[0] not in BY:
             raise OptionError(
                 f"--by {self.by!r} is not one of {', '.join(BY)}.", "Example: --by region"
             )
+        band_width(self.by)
         if self.bin_myr is not None and not self.bin_myr > 0:
             raise OptionError(
                 f"--bin-myr {self.bin_myr:g} must be above 0.", "Example: --bin-myr 0.5"
@@ -131,7 +172,6 @@ def samples_for(
     store: Store, filters: Filters, req: CurveRequest, *, as_of: int | None = None
 ) -> Samples:
     """The filtered records, one value per sample, each with its group label."""
-    import numpy as np
     import pandas as pd
     from strata13.compile.query.filters import run, screen_left_out
     from strata13.compile.synthesis.curve import average_replicates
@@ -187,16 +227,13 @@ def samples_for(
         )
     elif req.by == "region":
         label = pd.Series(_region_names(store, data["lon"], data["lat"]), index=data.index)
-    elif req.by == "paleolat-band":
+    elif (width := band_width(req.by)) is not None:
         if data["paleolat"].isna().all():
             raise DomainError(
                 "no matching record has a paleolatitude (the store has no rotation model yet).",
                 "Group --by region, source, setting or component instead.",
             )
-        band = np.floor(data["paleolat"] / 30.0) * 30.0
-        label = band.map(
-            lambda b: "no paleolatitude" if pd.isna(b) else f"{b:+.0f}° to {b + 30:+.0f}°"
-        )
+        label = band_labels(data["paleolat"], width)
     else:
         label = data[{"source": "source_id"}.get(req.by, req.by)].fillna(f"{req.by} not stated")
     if not merged and req.by is not None and req.by != "component":
@@ -559,6 +596,8 @@ def make_curve(
         value_label=s.value_label,
         merged=s.merged,
         note=_figure_band_note(req, curves),  # a hidden band says why on the figure too
+        band_label=f"{cv.BAND[1] - cv.BAND[0]:g} % section bootstrap"
+        + (" with age draws" if req.age_draws else ""),
     )
     save_figure(fig, art.path("curve.png"), art.path("curve.svg"), data_note(store))
     art.add("curve.png")
@@ -610,14 +649,72 @@ def _title(filters: Filters, s: Samples, req: CurveRequest) -> str:
 
 @dataclass
 class ExcursionResult:
-    """Per-section metrics, the summary across sections and groups, the files written
-    (name -> sha256; empty without ``out``) and the store version."""
+    """Per-section metrics with their uncertainty, the summary across sections and groups,
+    the files written (name -> sha256; empty without ``out``), the store version and the
+    draws measured (``draws``, ``seed``, ``bootstrap``)."""
 
     per_section: pd.DataFrame
     summary: pd.DataFrame
     files: dict[str, str]
     version: int
-    notes: list[str] = field(default_factory=list)  # what the filters left out, with counts
+    notes: list[str] = field(default_factory=list)  # what was left out or held, with counts
+    draws: int = 0
+    seed: int = 0
+    bootstrap: bool = True
+    manifest: dict[str, Any] = field(default_factory=dict)
+
+
+def _age_draw_notes(ages: Any, n_draws: int, n_samples: int) -> tuple[list[str], dict[str, Any]]:
+    """Where the samples' drawn ages come from, with counts (a fixed age says so: its error
+    is unknown, not zero), and whether the stored draws are reused."""
+    from_model = sum(int(rows.size) for rows, _, _ in ages.sections)
+    normal, uniform = int(ages.normal.size), int(ages.uniform.size)
+    fixed = n_samples - from_model - normal - uniform
+    counts = {
+        "age model draws": from_model,
+        "normal with their age σ": normal,
+        "uniform over their stage": uniform,
+        "held fixed (no age σ)": fixed,
+    }
+    notes = [
+        f"draws: {n_draws}; ages of the {n_samples} samples: "
+        + ", ".join(f"{n} {what}" for what, n in counts.items() if n)
+    ]
+    if fixed:
+        notes.append(
+            f"{fixed} samples have no age σ: their ages are held fixed in the draws (their age "
+            "error is unknown, not zero), so the age ranges leave it out"
+        )
+    stored = [int(d.shape[0]) for _, _, d in ages.sections]
+    if stored and n_draws > min(stored):
+        notes.append(
+            f"the store keeps {min(stored)} age draws per section; the {n_draws} draws reuse "
+            "them in turn (the resampled samples differ)"
+        )
+    return notes, counts | {"stored_per_section": min(stored) if stored else None}
+
+
+def _missed_draws(table: pd.DataFrame, n_draws: int) -> str:
+    """The sections whose onset or recovery (found on all samples) some draws did not find,
+    with the count that did: "S1 (group) onset 480, recovery 470; …"."""
+    out = []
+    for row in table.itertuples(index=False):
+        got = [
+            f"{name} {int(getattr(row, f'{name}_found_draws'))}"
+            for name in ("onset", "recovery")
+            if math.isfinite(getattr(row, f"{name}_age_ma"))
+            and int(getattr(row, f"{name}_found_draws")) < n_draws
+        ]
+        if got:
+            out.append(f"{row.section_id} ({row.group}) {', '.join(got)}")
+    return "; ".join(out) if n_draws else ""
+
+
+def _write_parquet(df: pd.DataFrame, path: Path) -> None:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    pq.write_table(pa.Table.from_pandas(df, preserve_index=False), path, compression="zstd")
 
 
 def make_excursion(
@@ -628,12 +725,19 @@ def make_excursion(
     baseline: tuple[float, float, str] | None = None,
     fraction: float = 0.10,
     direction: str = "auto",
+    draws: int | None = None,
+    seed: int = 0,
+    bootstrap: bool = True,
     out: Path | None = None,
     command: str | None = None,
 ) -> ExcursionResult:
-    """Per-section excursion metrics in the filtered interval (and, with ``out``, the
-    tables, the figure aligned on onset and a manifest naming ``command``)."""
+    """Per-section excursion metrics in the filtered interval with their uncertainty over
+    ``draws`` draws (``excursion_draws``: age draws and, with ``bootstrap``, resampled
+    samples; default ``DEFAULT_DRAWS``, 0 for none) and their summary; with ``out``, the
+    tables (CSV and Parquet), a column list, the figure and a manifest naming ``command``."""
+    from strata13.compile.synthesis import curve as cv
     from strata13.compile.synthesis import excursion as ex
+    from strata13.compile.synthesis import excursion_draws as ed
     from strata13.compile.synthesis.figures import excursion_figure, save_figure
 
     if filters.interval is None:
@@ -641,6 +745,7 @@ def make_excursion(
             "excursion needs --interval (the interval holding the excursion).",
             "Example: --interval Toarcian",
         )
+    n_draws = ed.check_draws(ed.DEFAULT_DRAWS if draws is None else draws)
     # never mix components within a section's record: by default one row per section and
     # component (the samples of bulk and micrite alternate in some cores)
     req = CurveRequest(by=by or "component")
@@ -649,47 +754,115 @@ def make_excursion(
     df = s.frame
     group_col = "group"
     per = ex.per_section(df, group_col, baseline, fraction, direction)
-    summ = ex.summary(per, "group")
+    notes = list(s.notes)
+    sources: dict[str, Any] = {}
+    ages = None
+    if n_draws:
+        keys = set(zip(df["source_id"], df["section_id"], strict=True))
+        ages = cv.sample_age_draws(df, n_draws, seed, _section_draws(store, s.version, keys))
+        more, sources = _age_draw_notes(ages, n_draws, len(df))
+        notes += more
+        if not bootstrap:
+            notes.append("--no-bootstrap: the draws vary the ages only, not the samples")
+    else:
+        notes.append("--draws 0: no uncertainty (the spread columns are blank)")
+    md = ed.draw_metrics(
+        df,
+        per,
+        n_draws,
+        seed,
+        ages,
+        bootstrap=bootstrap,
+        group_col=group_col,
+        baseline_window=baseline,
+        fraction=fraction,
+        direction=direction,
+    )
+    table = ed.with_uncertainty(per, md)
+    summ = ed.summary(per, group_col, md)
+    missed = _missed_draws(table, n_draws)
+    if missed:
+        notes.append(
+            f"not found in every one of the {n_draws} draws (spread over the draws that found "
+            f"it; counts in *_found_draws): {missed}"
+        )
     files: dict[str, str] = {}
+    manifest: dict[str, Any] = {}
     if out is not None:
         art = Artifact(out)
         art.open()
-        _write_csv(per, art.path("excursion_sections.csv"))
-        art.add("excursion_sections.csv")
-        _write_csv(summ, art.path("excursion_summary.csv"))
-        art.add("excursion_summary.csv")
+        for name, frame in (("excursion_sections", table), ("excursion_summary", summ)):
+            _write_csv(frame, art.path(f"{name}.csv"))
+            art.add(f"{name}.csv")
+            _write_parquet(frame, art.path(f"{name}.parquet"))
+            art.add(f"{name}.parquet")
+        _write_csv(ed.column_notes(), art.path("excursion_columns.csv"))
+        art.add("excursion_columns.csv")
+        what = "ages drawn, samples resampled" if bootstrap else "ages drawn, samples fixed"
         try:
             fig = excursion_figure(
                 df,
-                per,
+                table,
                 group_col=group_col,
                 value_label=s.value_label,
                 title="δ13C aligned on the excursion onset",
+                summary=summ,
+                ranges_note=f"ranges: 2.5–97.5 % of {n_draws} draws\n({what})"
+                if n_draws
+                else "no ranges (--draws 0)",
             )
             save_figure(fig, art.path("excursion.png"), art.path("excursion.svg"), data_note(store))
             art.add("excursion.png")
             art.add("excursion.svg")
         except DomainError as exc:
             art.write_text("excursion_figure_skipped.txt", exc.message + "\n")
-        art.finish(
-            {
-                "tool": "strata13",
-                "what": "excursion",
-                **({"command": command} if command is not None else {}),
-                "store_version": s.version,
-                "settings_hash": _settings_hash(s.settings),
-                "time_scale": s.settings.get("time_scale"),
-                "parameters": {
-                    "by": req.by,
-                    "baseline": list(baseline) if baseline is not None else None,
-                    "fraction": fraction,
-                    "direction": direction,
-                },
-                "filters": filters.describe(),
-                "samples": int(len(df)),
-                "screen_left_out": s.screen_left_out,
-                "notes": list(s.notes),
-            }
-        )
+        manifest = {
+            "tool": "strata13",
+            "what": "excursion",
+            **({"command": command} if command is not None else {}),
+            "store_version": s.version,
+            "settings_hash": _settings_hash(s.settings),
+            "time_scale": s.settings.get("time_scale"),
+            "parameters": {
+                "by": req.by,
+                "baseline": list(baseline) if baseline is not None else None,
+                "fraction": fraction,
+                "direction": direction,
+                "draws": n_draws,
+                "seed": seed,
+                "bootstrap": bootstrap,
+            },
+            "uncertainty": {
+                "draws": n_draws,
+                "seed": seed,
+                "bootstrap": bootstrap,
+                "method": "each draw: one age draw of every sample (the index shared by all "
+                "sections)"
+                + (
+                    " and the section's samples resampled with replacement, kept in "
+                    "stratigraphic order"
+                    if bootstrap
+                    else ""
+                )
+                + "; centre = the metric of all samples at central ages; 1σ (n − 1) and the "
+                "2.5/97.5 percentiles of the draws",
+                "ages": sources,
+            },
+            "filters": filters.describe(),
+            "samples": int(len(df)),
+            "screen_left_out": s.screen_left_out,
+            "notes": notes,
+        }
+        art.finish(manifest)
         files = dict(art.files)
-    return ExcursionResult(per, summ, files, s.version, list(s.notes))
+    return ExcursionResult(
+        table,
+        summ,
+        files,
+        s.version,
+        notes,
+        n_draws,
+        seed,
+        bootstrap,
+        json.loads(json.dumps(manifest, default=str)),
+    )
