@@ -78,7 +78,7 @@ CASES = [
     ),
     (
         {"tail": '[[localities]]\nid = "l1"\nlat = nan\nlon = 1.0\n'},
-        "(line 18): [[localities]] 1 lat = nan must be a finite number.",
+        "(line 18): [[localities]] 1 lat = nan must be text or a finite number.",
     ),
     (
         {"tail": '[[sections]]\nid = "s1"\ndatum_offset_m = "ten"\n'},

@@ -183,6 +183,7 @@ SHAPE = Table(
                     "offset_from": TEXT,
                     "offset_source": TEXT,
                     "note": TEXT,
+                    "accumulation": Table({"shape": NUMBER, "segment_m": NUMBER}),
                 }
             )
         ),
@@ -191,12 +192,12 @@ SHAPE = Table(
                 {
                     "id": TEXT_OR_WHOLE,
                     "name": TEXT,
-                    "lat": NUMBER,
-                    "lon": NUMBER,
+                    "lat": TEXT_OR_NUMBER,
+                    "lon": TEXT_OR_NUMBER,
                     "precision_km": NUMBER,
                     "aliases": TEXT_LIST,
                     "note": TEXT,
-                    "plate": WHOLE,
+                    "plate": TEXT_OR_WHOLE,
                 }
             )
         ),
