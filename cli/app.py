@@ -127,8 +127,8 @@ def _interrupted(message: str = "") -> int:
 
 
 def _verdict() -> str:
-    record = sys.modules.get("strata13.compile.interrupts")  # loaded once a command ran
-    return str(record.verdict()) if record is not None else "interrupted: nothing was written"
+    lib = sys.modules.get("strata13.compile.api")  # loaded once a command ran
+    return str(lib.interrupt_verdict()) if lib is not None else "interrupted: nothing was written"
 
 
 def _is_duckdb_interrupt(exc: BaseException) -> bool:

@@ -162,11 +162,9 @@ def redate(
         old, new = res.settings_before.get(key), res.settings_after.get(key)
         if new is not None and old != new:
             render.message(f"  {label}: {'default' if old is None else f'{old:g}'} → {new:g}")
-    from strata13.compile.derive.recompute import UNITS
-
     for col, n in sorted(res.changed.items()):
         if res.max_change[col] > 0:
-            unit = UNITS.get(col, "")
+            unit = api.change_unit(col)
             render.message(
                 f"  {col}: {n} values changed; largest change "
                 f"{res.max_change[col]:.4g}{unit}, median "

@@ -52,10 +52,8 @@ def reharmonise(
         )
         return
     render.message(f"reharmonised {res.records} records as version {res.version}.")
-    from strata13.compile.derive.recompute import UNITS
-
     for col, n in sorted(res.changed.items()):
-        unit = UNITS.get(col, "")
+        unit = api.change_unit(col)
         render.message(
             f"  {col}: {n} values changed; largest change "
             f"{res.max_change[col]:.4g}{unit}, median {res.median_change[col]:.4g}{unit}"

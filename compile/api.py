@@ -75,6 +75,8 @@ __all__ = [
     "check_sources",
     "check_vocab",
     "compact",
+    "interrupt_verdict",
+    "change_unit",
     "confirm_overlaps",
     "correct",
     "corrections",
@@ -549,6 +551,21 @@ def sql(
         return result
     finally:
         con.close()
+
+
+def change_unit(column: str) -> str:
+    """The unit a recompute reports a column's changes in (" ‰", " Myr", "°"; "" if none)."""
+    from strata13.compile.derive.recompute import UNITS
+
+    return UNITS.get(column, "")
+
+
+def interrupt_verdict() -> str:
+    """What an interrupted command says: the version this process committed, or that it
+    wrote nothing."""
+    from strata13.compile import interrupts
+
+    return interrupts.verdict()
 
 
 def compact(store: Store, dry_run: bool = False) -> Orphans:

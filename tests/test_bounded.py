@@ -42,7 +42,7 @@ def test_redate_reports_paleolatitude_changes_in_degrees(demo_store: Path) -> No
     folder = demo_folder()
     placed = run_cli(
         "replace-rotations",
-        folder / "rotations.csv",
+        folder / "rotations.toml",
         folder / "plates.geojson",
         "--store",
         demo_store,

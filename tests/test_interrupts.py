@@ -118,9 +118,9 @@ def _command(name: str, store: Path, tmp_path: Path) -> list[str]:
     if name == "reharmonise":
         return ["reharmonise", "--vsmow-constants", "Coplen-1983"]
     if name == "replace-rotations":
-        model = tmp_path / "rotations.csv"
-        text = (demo_folder() / "rotations.csv").read_text(encoding="utf-8")
-        model.write_text(text.replace("# model: ", "# model: b-", 1), encoding="utf-8")
+        model = tmp_path / "rotations.toml"
+        text = (demo_folder() / "rotations.toml").read_text(encoding="utf-8")
+        model.write_text(text.replace('name = "', 'name = "b-', 1), encoding="utf-8")
         return ["replace-rotations", str(model), str(demo_folder() / "plates.geojson")]
     if name == "overlaps":
         return ["overlaps", "--confirm", str(_decisions(s, tmp_path / "decisions.csv"))]

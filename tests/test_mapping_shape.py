@@ -78,11 +78,11 @@ CASES = [
     ),
     (
         {"tail": '[[localities]]\nid = "l1"\nlat = nan\nlon = 1.0\n'},
-        "(line 18): [[localities]] 1 lat = nan must be text or a finite number.",
+        "(line 18): [[localities]] 1 ('l1') lat = nan must be text or a finite number.",
     ),
     (
         {"tail": '[[sections]]\nid = "s1"\ndatum_offset_m = "ten"\n'},
-        "(line 18): [[sections]] 1 datum_offset_m = 'ten' must be a finite number.",
+        "(line 18): [[sections]] 1 ('s1') datum_offset_m = 'ten' must be a finite number.",
     ),
     (
         {"tail": '[run]\nanchors = "NBS-19"\n'},

@@ -229,6 +229,7 @@ SHAPE = Table(
                 "checks": TEXT_LIST,
                 "drift": BOOL,
                 "slope_tolerance": NUMBER,
+                "value_set": TEXT,
                 "note": TEXT,
             }
         ),
@@ -248,7 +249,7 @@ def check_shape(doc: dict[str, Any], raw: bytes, path: Path) -> None:
     says = shape.says
     example = getattr(shape, "example", "")
     raise ConfigError(
-        f"{path.name}{at}: {_label(where)} = {_show(value)} must be {says}.",
+        f"{path.name}{at}: {_label(where, doc)} = {_show(value)} must be {says}.",
         f"Example: {_label(where[-1:]) if where else 'key'} = {example}"
         if example
         else "See the commented example demo_compilation/sheets/quillar_2011.toml.",
@@ -296,15 +297,22 @@ def _show(value: Any) -> str:
     return text if len(text) <= 60 else text[:57] + "…"
 
 
-def _label(where: tuple[Any, ...]) -> str:
-    """A key as the user wrote it: [table] encoding, [[sections]] 2 datum_offset_m …"""
+def _label(where: tuple[Any, ...], doc: dict[str, Any] | None = None) -> str:
+    """A key as the user wrote it: [table] encoding, [[sections]] 2 ("g-1") datum_offset_m …
+    (an entry of a list of tables is named by its place and, when it has one, its id)."""
     if not where:
         return "the file"
     if len(where) == 1:
         return str(where[0])
     head, rest = where[0], list(where[1:])
     if isinstance(rest[0], int):
-        block = f"[[{head}]] {rest.pop(0) + 1}"
+        index = rest.pop(0)
+        block = f"[[{head}]] {index + 1}"
+        entry = (doc or {}).get(head)
+        if isinstance(entry, list) and index < len(entry) and isinstance(entry[index], dict):
+            ident = entry[index].get("id")
+            if isinstance(ident, (str, int)) and not isinstance(ident, bool):
+                block += f" ({ident!r})"
     elif head in ("normalisation", "offsets") and len(rest) > 1:
         block = f"[{head}.{rest.pop(0)}]"
     else:
