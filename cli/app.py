@@ -9,6 +9,7 @@ from typing import Annotated, Any
 import typer
 from strata13.cli import (
     chrono,
+    compact,
     demo,
     explain,
     export,
@@ -76,6 +77,7 @@ app.command("correct", context_settings={"ignore_unknown_options": True})(integr
 app.command("corrections")(integrity.corrections)
 app.command("overlaps")(integrity.overlaps)
 app.command("coverage")(integrity.coverage)
+app.command("compact")(compact.compact)
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -107,19 +109,26 @@ def main(argv: list[str] | None = None) -> None:
         api = library()
         pressed = seen.is_set() or (api is not None and api.interrupted())
         if pressed and code != 130:  # swallowed by a library, but the user asked
-            code = _interrupted("")
+            code = _interrupted()
     except KeyboardInterrupt:
-        code = _interrupted("")
+        code = _interrupted()
     sys.exit(code)
 
 
-def _interrupted(message: str) -> int:
+def _interrupted(message: str = "") -> int:
+    """Exit 130 with the truth: the version this process committed, or that it wrote
+    nothing (the library keeps that record, ``compile/interrupts.py``)."""
     try:
-        sys.stderr.write(f"error: {message or 'interrupted'}\n")
+        sys.stderr.write(f"error: {_verdict()}\n")
         sys.stderr.flush()
     except (KeyboardInterrupt, OSError):
         pass
     return 130
+
+
+def _verdict() -> str:
+    lib = sys.modules.get("strata13.compile.api")  # loaded once a command ran
+    return str(lib.interrupt_verdict()) if lib is not None else "interrupted: nothing was written"
 
 
 def _is_duckdb_interrupt(exc: BaseException) -> bool:
@@ -137,7 +146,7 @@ def _run(args: list[str]) -> int:
 
     from strata13.cli import render
 
-    from strata13.errors import Strata13Error
+    from strata13.errors import Interrupted, Strata13Error
 
     debug = "--debug" in args
     args = [a for a in args if a != "--debug"]  # accepted anywhere on the line
@@ -145,11 +154,11 @@ def _run(args: list[str]) -> int:
     try:
         rv = command.main(args=args, prog_name="strata13", standalone_mode=False)
         if rv == 130:  # typer turns Ctrl-C into a return value here
-            return _interrupted("")
+            return _interrupted()
         return rv if isinstance(rv, int) else 0
     except typer.Exit as exc:
         if exc.exit_code == 130:  # typer turns Ctrl-C into Exit(130); say what happened
-            return _interrupted("")
+            return _interrupted()
         return exc.exit_code
     except cx.UsageError as exc:
         if isinstance(exc, getattr(cx, "NoArgsIsHelpError", ())):
@@ -161,8 +170,8 @@ def _run(args: list[str]) -> int:
             (usage.replace("\n", " ") + "  (--help for more)") if usage else "Run strata13 --help.",
         )
         return 2
-    except (typer.Abort, KeyboardInterrupt) as exc:
-        return _interrupted(getattr(exc, "message", ""))
+    except (typer.Abort, KeyboardInterrupt, Interrupted):
+        return _interrupted()
     except Strata13Error as exc:
         if debug:
             import traceback
@@ -175,7 +184,7 @@ def _run(args: list[str]) -> int:
         return exc.exit_code if exc.exit_code in (1, 2) else 2
     except Exception as exc:  # an internal fault: one line, details with --debug
         if _is_duckdb_interrupt(exc):
-            return _interrupted("")
+            return _interrupted()
         if debug:
             raise
         render.error(

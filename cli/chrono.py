@@ -164,10 +164,11 @@ def redate(
             render.message(f"  {label}: {'default' if old is None else f'{old:g}'} → {new:g}")
     for col, n in sorted(res.changed.items()):
         if res.max_change[col] > 0:
+            unit = api.change_unit(col)
             render.message(
                 f"  {col}: {n} values changed; largest change "
-                f"{res.max_change[col]:.4g} Myr, median "
-                f"{res.median_change[col]:.4g} Myr"
+                f"{res.max_change[col]:.4g}{unit}, median "
+                f"{res.median_change[col]:.4g}{unit}"
             )
         else:
             render.message(f"  {col}: {n} values newly set or cleared (none moved)")

@@ -119,6 +119,14 @@ class FilterArgs:
 
         from strata13.errors import OptionError
 
+        for flag, given in (
+            ("--interval", self.interval),
+            ("--region", self.region),
+            ("--paleolat", self.paleolat),
+            ("--time-scale", self.time_scale),
+        ):
+            if given is not None and not given.strip():  # an empty value is not "no filter"
+                raise OptionError(f"{flag} is empty.", f"Give a value, or leave {flag} out.")
         if self.frame not in ("present", "paleo"):
             raise OptionError(
                 f"--frame {self.frame!r} is not present or paleo.",

@@ -53,9 +53,10 @@ def reharmonise(
         return
     render.message(f"reharmonised {res.records} records as version {res.version}.")
     for col, n in sorted(res.changed.items()):
+        unit = api.change_unit(col)
         render.message(
             f"  {col}: {n} values changed; largest change "
-            f"{res.max_change[col]:.4g} ‰, median {res.median_change[col]:.4g} ‰"
+            f"{res.max_change[col]:.4g}{unit}, median {res.median_change[col]:.4g}{unit}"
         )
     for line in res.checks_changed:
         render.message(f"  check status of {line}")

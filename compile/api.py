@@ -53,6 +53,7 @@ if TYPE_CHECKING:
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
+    from strata13.compile.store.files import Orphans
     from strata13.schemas.timescales import TimeScale
 
 __all__ = [
@@ -73,6 +74,9 @@ __all__ = [
     "agemodel",
     "check_sources",
     "check_vocab",
+    "compact",
+    "interrupt_verdict",
+    "change_unit",
     "confirm_overlaps",
     "correct",
     "corrections",
@@ -549,6 +553,28 @@ def sql(
         con.close()
 
 
+def change_unit(column: str) -> str:
+    """The unit a recompute reports a column's changes in (" ‰", " Myr", "°"; "" if none)."""
+    from strata13.compile.derive.recompute import UNITS
+
+    return UNITS.get(column, "")
+
+
+def interrupt_verdict() -> str:
+    """What an interrupted command says: the version this process committed, or that it
+    wrote nothing."""
+    from strata13.compile import interrupts
+
+    return interrupts.verdict()
+
+
+def compact(store: Store, dry_run: bool = False) -> Orphans:
+    """Remove (or with ``dry_run`` only list) the data files no version of the store
+    references; every version stays readable and no version is made."""
+    found: Orphans = store.compact(dry_run)
+    return found
+
+
 def sources(store: Store) -> list[dict[str, Any]]:
     """The store's sources, one dict each (id, kind, year, records, quarantined rows,
     version ingested, file name, citation), ordered by id."""
@@ -754,9 +780,23 @@ def excursion(
     """Per-section excursion metrics in the filtered interval with 1σ and 95 % ranges over
     ``draws`` draws (age draws and, with ``bootstrap``, resampled samples; None: the default
     500, 0: none), seeded by ``seed``; tables, a figure and a manifest naming ``command`` in
-    ``out`` when given."""
+    ``out`` when given. A fraction outside (0, 1) or an unknown direction is a wrong
+    instruction (OptionError, exit 2)."""
+    import math
+
+    from strata13.compile.synthesis.excursion import DIRECTIONS
     from strata13.compile.synthesis.run import make_excursion
 
+    if direction not in DIRECTIONS:
+        raise OptionError(
+            f"--direction {direction!r} is not one of {', '.join(DIRECTIONS)}.",
+            "Use auto (the sign of the larger departure), negative or positive.",
+        )
+    if not (math.isfinite(fraction) and 0.0 < fraction < 1.0):
+        raise OptionError(
+            f"--fraction {fraction:g} is not between 0 and 1 (exclusive).",
+            "Give a fraction of the magnitude such as 0.1 (10 %).",
+        )
     return make_excursion(
         store,
         filters,
@@ -988,8 +1028,11 @@ def run_demo(out: str | Path) -> Iterator[tuple[str, Any]]:
 
 
 def interrupt() -> None:
-    """Mark that the user pressed Ctrl-C (long loops of the library stop at their next step)."""
-    _pressed.set()
+    """Mark that the user pressed Ctrl-C: long loops of the library stop at their next step
+    and running DuckDB statements are interrupted."""
+    from strata13.compile.interrupts import stop
+
+    stop()
 
 
 def interrupted() -> bool:

@@ -891,9 +891,9 @@ def test_a_section_block_sets_its_own_accumulation_prior(
     [
         ("{ shap = 4.0 }", "Did you mean 'shape'"),
         ("{ shape = -1.0 }", "is not a number from 0.01 to 1000"),
-        ('{ segment_m = "1 m" }', "is not a number from 0.001 to 1000"),
-        ("{ shape = true }", "is not a number"),
-        ("3", "is not a table of shape and segment_m"),
+        ('{ segment_m = "1 m" }', "accumulation segment_m = '1 m' must be a finite number"),
+        ("{ shape = true }", "accumulation shape = True must be a finite number"),
+        ("3", "accumulation = 3 must be a table"),
     ],
 )
 def test_a_bad_accumulation_block_is_refused_in_one_sentence(

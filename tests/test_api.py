@@ -67,6 +67,7 @@ def test_signatures_resolve() -> None:
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
+    from strata13.compile.store.files import Orphans
     from strata13.schemas.timescales import TimeScale
 
     local = {
@@ -79,6 +80,7 @@ def test_signatures_resolve() -> None:
         "CorrectResult": CorrectResult,
         "Region": Region,
         "SqlResult": SqlResult,
+        "Orphans": Orphans,
         "Proposal": Proposal,
         "Screening": Screening,
         "TimeScale": TimeScale,

@@ -86,6 +86,14 @@ def test_zz200000_is_refused_and_a_stray_cell_within_the_cap_is_read(tmp_path: P
     assert raw.letters[:3] == ["A", "B", "C"] and raw.row_numbers.tolist()[0] == 2
 
 
+def test_a_large_mostly_empty_area_is_refused(tmp_path: Path) -> None:
+    """A1048576 under a three-column table: 3.1 million cells, 7 filled (under 1 %)."""
+    with pytest.raises(
+        InputFileError, match=r"only 7 of them are filled, because of cell A1048576"
+    ):
+        read_table(workbook(tmp_path / "tall.xlsx", {"A1048576": 1}))
+
+
 def test_a_table_away_from_a1_keeps_its_letters_rows_and_formula_cell(tmp_path: Path) -> None:
     wb = openpyxl.Workbook()
     ws = wb.active

@@ -362,7 +362,9 @@ def test_junk_cells_never_crash_ingest_and_refusal_changes_nothing(
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("when,said", [("before", "did not land"), ("after", "landed")])
+@pytest.mark.parametrize(
+    "when,said", [("before", "nothing was written"), ("after", "commit landed as version")]
+)
 def test_ctrl_c_exits_130_and_tells_whether_the_commit_landed(
     tmp_path: Path, when: str, said: str
 ) -> None:

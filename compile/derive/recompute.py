@@ -17,6 +17,16 @@ from strata13.compile.derive.engine import DERIVED_COLUMNS, Settings, derive
 from strata13.compile.store.lake import Store
 
 COMPARED = ("d13c_carb", "d18o_carb", "d13c_org", "age_ma", "age_sigma_ma", "paleolat", "paleolon")
+# the unit each compared column's changes are reported in
+UNITS = {
+    "d13c_carb": " ‰",
+    "d18o_carb": " ‰",
+    "d13c_org": " ‰",
+    "age_ma": " Myr",
+    "age_sigma_ma": " Myr",
+    "paleolat": "°",
+    "paleolon": "°",
+}
 
 
 @dataclass

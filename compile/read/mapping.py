@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from strata13.compile.ages.ties import read_ties
+from strata13.compile.read.mapping_shape import check_shape
 from strata13.schemas.fields import (
     BASIS_KEYS,
     BY_NAME,
@@ -310,6 +311,7 @@ class _Loading:
 def load_mapping(path: Path) -> Mapping:
     """Read and check a mapping file. Raises InputFileError or ConfigError (exit 2)."""
     st = _read_document(path)
+    check_shape(st.doc, st.raw, path)  # every value of the right type, once (mapping_shape)
     _check_blocks(st)
     _check_source(st)
     _read_ties(st)

@@ -418,7 +418,7 @@ def decode_bytes(data: bytes, encoding: str = "auto") -> tuple[str, str]:
     if encoding != "auto":
         try:
             return data.decode(encoding), encoding
-        except (UnicodeDecodeError, LookupError) as exc:
+        except (UnicodeError, LookupError, ValueError) as exc:
             raise ConfigError(
                 f"the file cannot be decoded as {encoding} ({exc}).",
                 'Set encoding = "auto" in the mapping file\'s [table].',

@@ -31,6 +31,8 @@ from typing import IO, Any
 from strata13.errors import InputFileError
 
 MAX_CELLS = 10_000_000  # rows × columns of a sheet's used area (about 1 GB to build)
+SPARSE_CELLS = 1_000_000  # above this used area, at least 1 % of it must be filled
+MIN_FILLED = 0.01
 MAX_PART_BYTES = 1 << 30  # one part of the archive, unpacked
 MAX_TOTAL_BYTES = 2 << 30  # all parts together, unpacked
 _CHUNK = 1 << 22
@@ -491,6 +493,16 @@ def verdict(path: Path, s: Survey) -> Survey:
             f"sheet {s.sheet!r} of {path.name} spans {s.rows:,} rows × {s.cols:,} columns "
             f"({area:,} cells, {s.filled:,} of them filled) because of cell {far}; strata13 "
             f"reads at most {MAX_CELLS:,} cells of a sheet.",
+            f"Delete what lies far from the table (cell {far}) and save again, or copy the "
+            "table to a new sheet.",
+        )
+    if area > SPARSE_CELLS and s.filled < MIN_FILLED * area:
+        far = s.far_row_cell if s.rows >= s.cols else s.far_col_cell
+        raise InputFileError(
+            f"sheet {s.sheet!r} of {path.name} spans {s.rows:,} rows × {s.cols:,} columns "
+            f"({area:,} cells) but only {s.filled:,} of them are filled, because of cell "
+            f"{far}; strata13 reads a sheet this large only when at least "
+            f"{MIN_FILLED:.0%} of it is filled.",
             f"Delete what lies far from the table (cell {far}) and save again, or copy the "
             "table to a new sheet.",
         )

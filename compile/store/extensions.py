@@ -107,4 +107,7 @@ def connect() -> duckdb.DuckDBPyConnection:
             ) from None
     if not checked:  # every LOAD above ran with DuckDB's signature check on
         _remember([i for i in ids if i is not None])
+    from strata13.compile import interrupts
+
+    interrupts.watch(con)  # a Ctrl-C interrupts what it runs
     return con

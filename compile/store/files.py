@@ -75,10 +75,4 @@ def orphans(con: duckdb.DuckDBPyConnection) -> Orphans:
         "SELECT * FROM ducklake_delete_orphaned_files('lake', dry_run => true, cleanup_all => true)"
     ).fetchall()
     files = sorted(Path(str(r[0])) for r in rows)
-    size = 0
-    for p in files:
-        try:
-            size += p.stat().st_size
-        except OSError:
-            continue
-    return Orphans(files, size)
+    return Orphans(files, sum(p.stat().st_size for p in files if p.is_file()))

@@ -28,6 +28,7 @@ from typing import TYPE_CHECKING, Any
 
 from strata13.compile.store.catalog import CATALOG_FILE, SqliteCatalog, attach
 from strata13.compile.store.extensions import connect
+from strata13.compile.store.files import Orphans
 from strata13.compile.store.relations import bind_views
 from strata13.compile.store.transaction import Transaction
 from strata13.schemas.fields import SCHEMA_VERSION
@@ -159,9 +160,21 @@ class Store:
                     f"{path} was created by another process meanwhile.",
                     "Run the command again; it will use that store.",
                 ) from None
-        except BaseException:
+        except BaseException as exc:
+            from strata13.compile import interrupts
+
+            renamed = not tmp.exists() and is_store(path)  # the rename was ours and done
             shutil.rmtree(tmp, ignore_errors=True)
+            interrupts.forget(tmp.resolve())
+            if renamed:
+                interrupts.landed(path.resolve(), 1)
+            if interrupts.is_interrupt(exc):
+                raise Interrupted(interrupts.verdict(), renamed) from None
             raise
+        from strata13.compile import interrupts
+
+        interrupts.forget(tmp.resolve())
+        interrupts.landed(path.resolve(), 1)
         return cls(path)
 
     @property
@@ -221,7 +234,7 @@ class Store:
         with self.writer() as con:
             con.execute("BEGIN")
             tx = Transaction(con, self.path / DATA, command, detail)
-            before: int | None = None
+            started = tx.latest_version()  # under the lock: only this writer can move it
             try:
                 self.migrate(con)
                 yield tx
@@ -229,30 +242,50 @@ class Store:
                     con.execute("ROLLBACK")
                     return
                 interrupts.check()  # a Ctrl-C a library swallowed still stops the commit
-                before = tx.latest_version()
                 version = tx._write_commit_row()
                 con.execute("COMMIT")
+                interrupts.landed(self.path, version)
                 tx.version = version
-            except KeyboardInterrupt:
+            except BaseException as exc:
                 with contextlib.suppress(Exception):
                     con.execute("ROLLBACK")
-                landed = before is not None and self.latest_version() > before
-                if not landed:
+                if not interrupts.is_interrupt(exc):
                     tx._discard_files()
-                raise Interrupted(
-                    "interrupted: "
-                    + (
-                        "the commit landed"
-                        if landed
-                        else "the commit did not land; the store is unchanged"
-                    ),
-                    landed,
-                ) from None
-            except BaseException:
-                with contextlib.suppress(Exception):
-                    con.execute("ROLLBACK")
-                tx._discard_files()
-                raise
+                    raise
+                raise self._interrupted(tx, started) from None
+
+    def _interrupted(self, tx: Transaction, started: int) -> Interrupted:
+        """The truth after Ctrl-C in a transaction: compare the latest version (the lock is
+        still held) with the one the transaction started from."""
+        from strata13.compile import interrupts
+
+        try:
+            now = self.latest_version()
+        except BaseException:  # the catalog cannot be asked: say what the files say
+            now = started + (1 if tx._files and tx._landed() else 0)
+        if now > started:
+            interrupts.landed(self.path, now)
+            return Interrupted(f"interrupted: the commit landed as version {now}", True)
+        tx._discard_files()
+        return Interrupted("interrupted: nothing was written", False)
+
+    def compact(self, dry_run: bool = False) -> Orphans:
+        """Remove the Parquet files in the data folder that no version references (left by
+        writers killed between writing a file and committing). Every version stays
+        readable: only files the catalog never listed go. Runs under the writer lock, so
+        the files of a transaction still in flight are never among them; makes no version.
+        """
+        from strata13.compile.store.files import orphans
+
+        data = (self.path / DATA).resolve()
+        with self.writer() as con:
+            found = orphans(con)
+            mine = [p for p in found.files if p.resolve().is_relative_to(data)]
+            size = _size(mine)
+            if not dry_run:
+                for p in mine:
+                    p.unlink(missing_ok=True)
+        return Orphans(mine, size)
 
     def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
         """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
@@ -365,6 +398,16 @@ class Store:
             Version(int(v), str(snaps.get(v, ""))[:19], c, d, json.loads(s or "{}"))
             for v, c, d, s in rows
         ]
+
+
+def _size(files: list[Path]) -> int:
+    total = 0
+    for p in files:
+        try:
+            total += p.stat().st_size
+        except OSError:
+            continue
+    return total
 
 
 def _retype(con: duckdb.DuckDBPyConnection, table: str, col: str, sqltype: str) -> None:
