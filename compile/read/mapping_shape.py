@@ -229,7 +229,9 @@ SHAPE = Table(
                 "checks": TEXT_LIST,
                 "drift": BOOL,
                 "slope_tolerance": NUMBER,
-                "value_set": Either((TEXT, MapOf(TEXT)), 'a value-set name or { "material" = "name", … }'),
+                "value_set": Either(
+                    (TEXT, MapOf(TEXT)), 'a value-set name or { "material" = "name", … }'
+                ),
                 "note": TEXT,
             }
         ),
