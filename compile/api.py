@@ -304,9 +304,11 @@ def init_store(
     age_extrapolation: bool = False,
     materials: str | Path | None = None,
     rotations: tuple[str | Path, str | Path] | None = None,
+    catalog: str | None = None,
 ) -> Store:
     """Create a store with its settings (time scale, screening rules, whether age models
-    extrapolate beyond their ties) and optional named regions."""
+    extrapolate beyond their ties) and optional named regions; ``catalog`` is
+    ``postgres:CONNINFO`` for a group's shared catalog (default: the embedded file)."""
     from strata13.compile.query.regions import load_regions_file
 
     named = load_regions_file(Path(regions)) if regions else []
@@ -325,6 +327,7 @@ def init_store(
         settings.hash(),
         [(n, g, Path(regions).name) for n, g in named] if regions else [],
         made_by=made_by,
+        catalog=catalog,
     )
 
 
