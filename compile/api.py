@@ -54,6 +54,7 @@ if TYPE_CHECKING:
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
     from strata13.compile.store.files import Orphans
+    from strata13.compile.store.move import Moved
     from strata13.schemas.timescales import TimeScale
 
 __all__ = [
@@ -576,6 +577,15 @@ def compact(store: Store, dry_run: bool = False) -> Orphans:
     references; every version stays readable and no version is made."""
     found: Orphans = store.compact(dry_run)
     return found
+
+
+def move_catalog(store: Store, to: str) -> Moved:
+    """Copy the store's catalog with every version to ``to`` (``postgres:CONNINFO`` of an
+    empty database, or ``embedded``) and use it from now on; the data files stay."""
+    from strata13.compile.store.move import move_catalog as move
+
+    moved: Moved = move(store, to)
+    return moved
 
 
 def sources(store: Store) -> list[dict[str, Any]]:

@@ -224,6 +224,13 @@ class Store:
         Only :meth:`transaction` should use it; one connection, one thread.
         """
         with self.catalog.writer_lock(command, LOCK_TIMEOUT_S) as lock:
+            named = _marker_catalog(self.path)
+            if named is not None and named != self.catalog.spec():
+                raise StoreError(
+                    f"the store's catalog moved to {named.split(' password')[0]} while this "
+                    "command waited for the writer lock, so nothing was written.",
+                    "Run the command again.",
+                )
             con = connect(self.catalog.extensions)
             self._lock = lock
             try:
