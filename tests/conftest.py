@@ -101,7 +101,8 @@ class PgServer:
             con.execute(statement)
 
     def database(self) -> str:
-        """A new, empty database owned by the writer role; its name."""
+        """A new, empty database owned by the writer role, readable by the reader role
+        (the grants a group's administrator makes); its name."""
         import uuid
 
         name = f"t_{uuid.uuid4().hex[:12]}"
@@ -115,72 +116,84 @@ class PgServer:
         )
         return name
 
-    def conninfo(self, dbname: str, role: str = WRITER) -> str:
-        """How a member names the catalog: no password (it is in the password file)."""
-        return f"host={self.host} port={self.port} user={role} dbname={dbname}"
+    def conninfo(self, dbname: str) -> str:
+        """How a group names the catalog: no role and no password (each member's PGUSER
+        and password file say those)."""
+        return f"host={self.host} port={self.port} dbname={dbname}"
 
 
-def _start_pg(tmp_path_factory: pytest.TempPathFactory) -> tuple[str, Path | None]:
-    """The administrator's connection string: CI's server (STRATA13_TEST_PG), or one
-    started here in a temporary folder."""
-    import os
-
-    given = os.environ.get("STRATA13_TEST_PG")
-    if given:
-        return given, None
-    from tests import pg_server
-
-    folder = Path(tempfile_dir())
-    return pg_server.start(folder), folder
-
-
-def tempfile_dir() -> str:
-    """A short folder for the server (socket paths are limited to ~100 characters)."""
-    import tempfile
-
-    return tempfile.mkdtemp(prefix="s13pg-")
-
-
-@pytest.fixture(scope="session")
-def pg_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[PgServer]:
-    """A real server; skipped with the reason when none can be had, failed instead when
-    STRATA13_REQUIRE_PG is set (CI sets it: there the tests must not skip)."""
-    import os
-
+def _prepare(admin: str, folder: Path | None, passdir: Path) -> PgServer:
+    """Make the members' roles and their password file on the server ``admin`` reaches."""
     import psycopg
-
-    try:
-        admin, folder = _start_pg(tmp_path_factory)
-        with psycopg.connect(admin, autocommit=True) as con:
-            for role in (WRITER, READER):
-                con.execute(
-                    f"DO $$BEGIN CREATE ROLE {role} LOGIN PASSWORD '{role}-pw'; "
-                    "EXCEPTION WHEN duplicate_object THEN NULL; END$$"
-                )
-    except Exception as exc:
-        reason = f"no PostgreSQL server could be started or reached ({exc})"
-        if os.environ.get("STRATA13_REQUIRE_PG"):
-            pytest.fail(reason + "; STRATA13_REQUIRE_PG is set, so this is a failure")
-        pytest.skip(reason)
     from psycopg.conninfo import conninfo_to_dict
 
+    with psycopg.connect(admin, autocommit=True) as con:
+        for role in (WRITER, READER):
+            con.execute(
+                f"DO $$BEGIN CREATE ROLE {role} LOGIN PASSWORD '{role}-pw'; "
+                "EXCEPTION WHEN duplicate_object THEN NULL; END$$"
+            )
     port = int(str(conninfo_to_dict(admin).get("port", 5432)))
-    passfile = tmp_path_factory.mktemp("pgpass") / "pgpass"
+    passfile = passdir / "pgpass"
     passfile.write_text(
         "".join(f"127.0.0.1:{port}:*:{r}:{r}-pw\n" for r in (WRITER, READER)), encoding="utf-8"
     )
     passfile.chmod(0o600)
-    yield PgServer(admin, "127.0.0.1", port, passfile, folder)
-    if folder is not None:
-        from tests import pg_server as server
+    return PgServer(admin, "127.0.0.1", port, passfile, folder)
 
-        server.stop(folder)
+
+def _no_server(exc: Exception) -> None:
+    """Skip with the reason, or fail when STRATA13_REQUIRE_PG is set (CI sets it)."""
+    import os
+
+    reason = f"no PostgreSQL server could be started or reached ({exc})"
+    if os.environ.get("STRATA13_REQUIRE_PG"):
+        pytest.fail(reason + "; STRATA13_REQUIRE_PG is set, so this is a failure")
+    pytest.skip(reason)
+
+
+def own_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[PgServer]:
+    """A server started for the caller alone (tests that stop it)."""
+    import tempfile
+
+    from tests import pg_server
+
+    folder = Path(tempfile.mkdtemp(prefix="s13pg-"))  # short: socket paths are limited
+    try:
+        server = _prepare(pg_server.start(folder), folder, tmp_path_factory.mktemp("pgpass"))
+    except Exception as exc:
+        pg_server.stop(folder)
+        _no_server(exc)
+        raise
+    try:
+        yield server
+    finally:
+        pg_server.stop(folder)
+
+
+@pytest.fixture(scope="session")
+def pg_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[PgServer]:
+    """A real server: CI's (STRATA13_TEST_PG, the administrator's connection string) or
+    one started here; skipped with the reason when none can be had (failed in CI)."""
+    import os
+
+    given = os.environ.get("STRATA13_TEST_PG")
+    if not given:
+        yield from own_server(tmp_path_factory)
+        return
+    try:
+        server = _prepare(given, None, tmp_path_factory.mktemp("pgpass"))
+    except Exception as exc:
+        _no_server(exc)
+        raise
+    yield server
 
 
 @pytest.fixture()
 def pg(pg_server: PgServer, monkeypatch: pytest.MonkeyPatch) -> PgServer:
-    """The server, with this test's libpq reading the members' password file."""
+    """The server, this test's libpq acting as the writer member (PGUSER, password file)."""
     monkeypatch.setenv("PGPASSFILE", str(pg_server.passfile))
+    monkeypatch.setenv("PGUSER", WRITER)
     return pg_server
 
 

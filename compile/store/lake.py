@@ -279,6 +279,12 @@ class Store:
                 if not interrupts.is_interrupt(exc):
                     tx._discard_files()
                     gone = self.catalog.unreachable(exc)
+                    if gone is None and self._lock is not None and not self._lock.still_held():
+                        gone = StoreError(
+                            f"the writer lock of {self.catalog.describe()} was lost (its "
+                            f"connection was cut) while {command} was writing ({exc}).",
+                            "Nothing was written; run the command again.",
+                        )
                     if gone is None:
                         raise
                     raise self._lost(gone, started, committing) from None

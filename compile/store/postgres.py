@@ -44,12 +44,20 @@ _GONE = (
     "could not send data",
     "could not receive data",
     "eof detected",
-    "connection to server",
     "the database system is shutting down",
     "the database system is starting up",
     "connection timed out",
     "timeout expired",
     "broken pipe",
+)
+# what they say when the server is there but refuses this role
+_REFUSED = (
+    "fe_sendauth",
+    "password authentication failed",
+    "no password supplied",
+    "does not exist",
+    "permission denied",
+    "no pg_hba.conf entry",
 )
 _SHOWN_KEYS = ("service", "host", "hostaddr", "port", "dbname", "user")
 last_lock_wait_s: float | None = None  # how long the last writer_lock waited (benchmarks)
@@ -125,17 +133,44 @@ class PostgresCatalog:
         return "postgres:" + self.conninfo
 
     def unreachable(self, exc: BaseException) -> StoreError | None:
-        text = str(exc)
-        if not any(g in text.lower() for g in _GONE):
+        """The sentence for a DuckDB or libpq failure that is the server refusing this
+        role, or going away (asked of the server when the message does not say)."""
+        if not type(exc).__module__.startswith(("duckdb", "_duckdb", "psycopg")):
             return None
+        text = str(exc)
         lines = [x.strip() for x in text.splitlines() if x.strip()]
-        why = next((x for x in reversed(lines) if any(g in x.lower() for g in _GONE)), text)
-        why = why.split("failed: ")[-1].rstrip(".")[:160]
+        refused = next((x for x in lines if any(r in x.lower() for r in _REFUSED)), None)
+        if refused is not None and "connect" in text.lower():
+            return StoreError(
+                f"the server of the store catalog {self.describe()} refused the connection "
+                f"({refused.split('failed: ')[-1].rstrip('.')[:160]}).",
+                "Check your role (PGUSER or the service file) and its password "
+                "(~/.pgpass, PGPASSWORD); nothing was written.",
+            )
+        why = next((x for x in reversed(lines) if any(g in x.lower() for g in _GONE)), None)
+        if why is None:
+            if self._answers():
+                return None
+            why = "the server does not answer"
         return StoreError(
-            f"the store catalog {self.describe()} cannot be reached ({why}).",
+            f"the store catalog {self.describe()} cannot be reached "
+            f"({why.split('failed: ')[-1].rstrip('.')[:160]}).",
             "Nothing was written. Check that the PostgreSQL server is running and that "
             "your libpq settings reach it, then run the command again.",
         )
+
+    def _answers(self) -> bool:
+        """Whether the server takes a connection now (a short try)."""
+        import psycopg
+        from psycopg import conninfo as ci
+
+        try:
+            quick = ci.make_conninfo(self.conninfo, connect_timeout="3")
+            with psycopg.connect(quick, autocommit=True) as con:
+                con.execute("SELECT 1")
+            return True
+        except psycopg.Error:
+            return False
 
     def connect(self) -> psycopg.Connection[Any]:
         """A psycopg connection to the catalog's database (autocommit)."""
