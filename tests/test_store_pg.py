@@ -82,8 +82,9 @@ def test_a_writer_that_cannot_get_the_lock_names_its_holder_and_changes_nothing(
         m = write_source(tmp_path, [("b", 1, "2.0")], "b.csv")
         ran = run_cli("ingest", "--map", m, "--store", store.path)
         assert ran.code == 1, ran.err
-        assert f"ingest (pid {holder.pid} on {socket.gethostname()}, since " in ran.err
-        assert " UTC) for over 1 s, so nothing was written" in ran.err
+        assert "has been held for over 1 s by ingest (pid " in ran.err
+        assert f"(pid {holder.pid} on {socket.gethostname()}, since " in ran.err
+        assert " UTC), so nothing was written" in ran.err
         assert store.latest_version() == v
     finally:
         holder.kill()
