@@ -227,7 +227,7 @@ class Store:
             named = _marker_catalog(self.path)
             if named is not None and named != self.catalog.spec():
                 raise StoreError(
-                    f"the store's catalog moved to {named.split(' password')[0]} while this "
+                    f"the store's catalog moved to {named} while this "
                     "command waited for the writer lock, so nothing was written.",
                     "Run the command again.",
                 )
