@@ -95,6 +95,7 @@ __all__ = [
     "interval",
     "is_store",
     "materials_settings",
+    "move_catalog",
     "neutralise",
     "open_store",
     "per_sample",
