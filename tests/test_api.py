@@ -68,6 +68,7 @@ def test_signatures_resolve() -> None:
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
     from strata13.compile.store.files import Orphans
+    from strata13.compile.store.move import Moved
     from strata13.schemas.timescales import TimeScale
 
     local = {
@@ -81,6 +82,7 @@ def test_signatures_resolve() -> None:
         "Region": Region,
         "SqlResult": SqlResult,
         "Orphans": Orphans,
+        "Moved": Moved,
         "Proposal": Proposal,
         "Screening": Screening,
         "TimeScale": TimeScale,
