@@ -154,11 +154,13 @@ def _no_server(exc: Exception) -> None:
 
 def own_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[PgServer]:
     """A server started for the caller alone (tests that stop it)."""
+    import atexit
     import tempfile
 
     from tests import pg_server
 
     folder = Path(tempfile.mkdtemp(prefix="s13pg-"))  # short: socket paths are limited
+    atexit.register(_remove_server, folder)  # also when a worker ends before teardown
     try:
         server = _prepare(pg_server.start(folder), folder, tmp_path_factory.mktemp("pgpass"))
     except Exception as exc:
@@ -171,6 +173,14 @@ def own_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[PgServer]:
     finally:
         pg_server.stop(folder)
         shutil.rmtree(folder, ignore_errors=True)
+
+
+def _remove_server(folder: Path) -> None:
+    from tests import pg_server
+
+    with contextlib.suppress(Exception):
+        pg_server.stop(folder)
+    shutil.rmtree(folder, ignore_errors=True)
 
 
 @pytest.fixture(scope="session")
