@@ -96,7 +96,7 @@ def ingest(
     result = IngestResult(mapping.source_id, report, None, dry_run=dry_run)
     if report.errors and not keep_valid:
         raise ValidationFailed(
-            f"{len(report.errors)} problem{'s' if len(report.errors) != 1 else ''} in "
+            f"{report.count('error')} problem{'s' if report.count('error') != 1 else ''} in "
             f"{table.file.name}; nothing was written.",
             report,
             "Fix the cells listed, or use --keep-valid to commit the valid rows and "
