@@ -82,8 +82,7 @@ def measure(records: int = 5000, repeat: int = 7) -> dict[str, Any]:
     bare = [
         sys.executable,
         "-c",
-        "import duckdb, pandas\n"
-        f"duckdb.sql(\"SELECT * FROM read_parquet('{glob}')\").df()",
+        f"import duckdb, pandas\nduckdb.sql(\"SELECT * FROM read_parquet('{glob}')\").df()",
     ]
     runs = {name: [exe, *args, "--store", str(store)] for name, args in COMMANDS.items()}
     runs["baseline"] = bare
