@@ -284,6 +284,14 @@ SCREEN_RESULTS = [
     ("detail", TEXT),
     ("source_id", TEXT),
 ]
+# per source and rule, the outcome and detail most of its records share: screen_results
+# then stores only the rows that differ (compile/store/screen_rows.py)
+SCREEN_COMMON = [
+    ("source_id", TEXT),
+    ("rule", TEXT),
+    ("outcome", TEXT),
+    ("detail", TEXT),
+]
 
 TABLES: dict[str, list[tuple[str, str]]] = {
     "analyses": ANALYSES,
@@ -300,6 +308,7 @@ TABLES: dict[str, list[tuple[str, str]]] = {
     "age_ties": AGE_TIES,
     "age_draws": AGE_DRAWS,
     "screen_results": SCREEN_RESULTS,
+    "screen_common": SCREEN_COMMON,
     "run_qc": RUN_QC,
     "corrections": CORRECTIONS,
     "duplicates": DUPLICATES,

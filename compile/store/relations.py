@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from strata13.compile.store import screen_rows
 from strata13.schemas.records import RECORDS_COLUMNS, RETYPED, TABLES
 
 if TYPE_CHECKING:
@@ -50,10 +51,14 @@ def _columns(table: str) -> list[str]:
     return RECORDS_COLUMNS if table == "analyses" else [c for c, _ in TABLES[table]]
 
 
+# catalog tables no view is named after, read only inside another view
+HIDDEN = ("screen_common",)  # the compact screen results' common outcomes (screen_rows.py)
+
+
 def tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
     """The tables that existed at ``version`` (later schema versions add tables)."""
     names = set()
-    for name in READ_VIEWS:
+    for name in (*READ_VIEWS, *HIDDEN):
         try:
             con.execute(f"SELECT 1 FROM lake.{name} AT (VERSION => {int(version)}) LIMIT 0")
         except Exception:  # duckdb.Error: the table did not exist at that version
@@ -118,9 +123,10 @@ def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = Fals
             statements.append(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} WHERE false")
             continue
         cols = ", ".join(_column(table, c, types[c], c in have) for c in wanted)
-        statements.append(
-            f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}"
-        )
+        body = f"SELECT {cols} FROM lake.{table}{at}"
+        if table == "screen_results" and screen_rows.COMMON in present:
+            body = screen_rows.view_sql(cols, at)
+        statements.append(f"CREATE OR REPLACE TEMP VIEW {view} AS {body}")
     try:
         con.execute("BEGIN")  # one read transaction: one catalog load for all the views
         for sql in statements:
