@@ -8,7 +8,6 @@ from pathlib import Path
 import duckdb
 import pyarrow as pa
 import pyarrow.parquet as pq
-
 from strata13.compile.store import screen_rows
 from strata13.schemas.records import SCREEN_RESULTS, arrow_schema
 

@@ -20,7 +20,6 @@ from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
     import pyarrow as pa
-
     from strata13.compile.store.transaction import Transaction
 
 COMMON = "screen_common"  # catalog table: (source_id, rule, outcome, detail)
