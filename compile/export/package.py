@@ -107,11 +107,13 @@ def export(
     *,
     reproduce: str | None = None,
     extra: dict[str, Any] | None = None,
+    demo: bool = False,
 ) -> ExportResult:
     """Write the export folder ``art`` for ``version`` (``con`` is a reader pinned to it)
     and its manifest, last; ``settings`` (time scale, screening rule set and its hash, …)
     go into the manifest, ``reproduce`` (the command line) replaces the default one, and
-    ``extra`` adds entries (the curve's manifest). Files already registered in ``art``
+    ``extra`` adds entries (the curve's manifest); ``demo`` (a store the demo made) puts
+    the invented-data warning first in README.txt. Files already registered in ``art``
     (the curve) are listed with these."""
     import pyarrow.parquet as pq
 
@@ -174,7 +176,7 @@ def export(
         or f"strata13 export --store {store_path.name} --as-of {version} --out DIR",
         **(extra or {}),
     }
-    art.write_text("README.txt", readme(fields, sorted(art.files), entries, related, table))
+    art.write_text("README.txt", readme(fields, sorted(art.files), entries, related, demo=demo))
     art.finish(fields)
     return ExportResult(out, version, int(table.num_rows), dict(art.files))
 

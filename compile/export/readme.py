@@ -101,10 +101,12 @@ def readme(
     files: list[str],
     entries: list[Entry],
     related: dict[str, pa.Table],
-    records: pa.Table,
+    *,
+    demo: bool = False,
 ) -> str:
     """The README.txt text (``fields``: the manifest's fields; ``files``: every file
-    written so far, this one and the manifest are added)."""
+    written so far, this one and the manifest are added; ``demo``: the store was made by
+    ``strata13 demo``)."""
     counts = fields["counts"]
     settings = fields.get("settings") or {}
     filters = fields.get("filters") or {}
@@ -116,12 +118,13 @@ def readme(
     )
     out = [title, "=" * min(len(title), 88), ""]
     fake = invented(entries)
-    if fake:
+    if demo or fake:
+        why = "The store was made by `strata13 demo`" if demo else "This is not the demo, but"
         out += [
             _wrap(
-                f"WARNING: INVENTED DATA. {fake} of the {n_sources} cited sources describe "
-                "their data as invented (this is the strata13 demo). No value in this "
-                "package is a measurement; do not use it as a record of anything."
+                f"WARNING: INVENTED DATA. {why}; {fake} of the {n_sources} cited sources "
+                "describe their data as invented. No value from an invented source is a "
+                "measurement; do not use it as a record of anything."
             ),
             "",
         ]
