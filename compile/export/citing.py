@@ -46,38 +46,51 @@ def _sources(con: Any, ids: set[str]) -> dict[str, dict[str, Any]]:
 
 
 def _source_roles(
-    con: Any, records: list[dict[str, Any]], ties: list[dict[str, Any]]
+    con: Any, ties: list[dict[str, Any]]
 ) -> tuple[dict[str, dict[str, Any]], dict[str, list[str]], dict[str, str]]:
-    """(stored sources, id -> what it is cited for, unknown original -> what for)."""
-    data = Counter(r["source_id"] for r in records)
-    runs: dict[str, set[str]] = {}
-    for r in records:
-        if r["run_id"]:
-            runs.setdefault(r["source_id"], set()).add(r["run_id"])
-    dated = Counter(
-        (r["source_id"], r["section_id"]) for r in records if r["age_basis"] == "age model"
+    """(stored sources, id -> what it is cited for, unknown original -> what for), from the
+    exported records registered as ``_exported``."""
+    data = dict(con.execute("SELECT source_id, count(*) FROM _exported GROUP BY 1").fetchall())
+    runs: dict[str, list[str]] = dict(
+        con.execute(
+            "SELECT source_id, list(DISTINCT run_id ORDER BY run_id) FROM _exported "
+            "WHERE run_id IS NOT NULL GROUP BY 1"
+        ).fetchall()
     )
+    dated = {
+        (src, sec): n
+        for src, sec, n in con.execute(
+            "SELECT source_id, section_id, count(*) FROM _exported "
+            "WHERE age_basis = 'age model' GROUP BY 1, 2"
+        ).fetchall()
+    }
     tie_sections: dict[str, set[tuple[str, str]]] = {}
     for t in ties:
         if t["tie_source_id"]:
             tie_sections.setdefault(t["tie_source_id"], set()).add(
                 (t["source_id"], t["section_id"])
             )
-    originals = Counter(
-        (r["original_source_id"], r["source_id"]) for r in records if r["original_source_id"]
+    originals: Counter[tuple[str, str]] = Counter(
+        {
+            (o, by): n
+            for o, by, n in con.execute(
+                "SELECT original_source_id, source_id, count(*) FROM _exported "
+                "WHERE original_source_id IS NOT NULL GROUP BY 1, 2"
+            ).fetchall()
+        }
     )
     stored = _sources(con, set(data) | set(tie_sections) | {o for o, _ in originals})
     for sid in list(data):
         for o in (stored.get(sid, {}).get("republishes") or "").split("|"):
-            if o.strip() and not any(k[1] == sid and k[0] == o for k in originals):
-                originals[(o.strip(), sid)] += 0  # said re-published, no record names it
+            if o.strip() and (o.strip(), sid) not in originals:
+                originals[(o.strip(), sid)] = 0  # said re-published, no record names it
     stored |= _sources(con, {o for o, _ in originals} - set(stored))
     roles: dict[str, list[str]] = {}
     for sid, k in sorted(data.items()):
         kind = stored.get(sid, {}).get("kind")
         if kind == "in-house" and sid in runs:
             roles.setdefault(sid, []).append(
-                f"in-house runs {', '.join(sorted(runs[sid]))}: data of {_n(k)}"
+                f"in-house runs {', '.join(runs[sid])}: data of {_n(k)}"
             )
         else:
             roles.setdefault(sid, []).append(f"data of {_n(k)}")
@@ -93,7 +106,7 @@ def _source_roles(
         else:
             unknown[orig] = what
     for sid, secs in sorted(tie_sections.items()):
-        n = sum(dated[s] for s in secs)
+        n = sum(dated.get(s, 0) for s in secs)
         names = ", ".join(f"{s}/{c}" for s, c in sorted(secs))
         roles.setdefault(sid, []).append(
             f"age ties dating {_n(n)} (sections {names})"
@@ -103,7 +116,7 @@ def _source_roles(
 
 
 def _charts(
-    records: list[dict[str, Any]], ties: list[dict[str, Any]], store_chart: str
+    con: Any, ties: list[dict[str, Any]], store_chart: str
 ) -> list[tuple[str, str, str, str]]:
     from strata13.schemas.timescales import load
     from strata13.schemas.vocabularies import vocabulary
@@ -111,9 +124,15 @@ def _charts(
     from strata13.errors import Strata13Error
 
     uses: dict[str, list[str]] = {}
-    dated = sum(1 for r in records if r["age_ma"] is not None)
+    row = con.execute("SELECT count(age_ma) FROM _exported").fetchone()
+    dated = int(row[0]) if row else 0
     uses.setdefault(store_chart, []).append(f"the time scale of every age ({_n(dated)})")
-    reported = Counter(r["age_reported_scale"] for r in records if r["age_reported_scale"])
+    reported = dict(
+        con.execute(
+            "SELECT age_reported_scale, count(*) FROM _exported "
+            "WHERE age_reported_scale IS NOT NULL GROUP BY 1"
+        ).fetchall()
+    )
     for chart, k in sorted(reported.items()):
         if chart != store_chart:
             uses.setdefault(chart, []).append(f"chart of the reported ages of {_n(k)}")
@@ -177,45 +196,63 @@ def _materials(run_qc: list[dict[str, Any]]) -> list[tuple[str, str, str, str]]:
     return out
 
 
-def _oxygen(chains: list[dict[str, Any]]) -> list[tuple[str, str, str, str]]:
+def _oxygen(chains: pa.Table) -> list[tuple[str, str, str, str]]:
+    import pyarrow.compute as pc
     from strata13.schemas.materials import oxygen_relations
 
-    used: dict[str, set[str]] = {}
-    for c in chains:
-        if c["quantity"] == "d18o_carb" and "VSMOW" in (c["step"] or "") and "→" in c["step"]:
-            name = (c["parameters"] or "").split("constants = ")[-1].split(";")[0].strip()
-            used.setdefault(name, set()).add(c["record_id"])
+    steps = chains.filter(
+        pc.and_(
+            pc.equal(chains.column("quantity"), "d18o_carb"),
+            pc.match_substring(chains.column("step"), "VSMOW →"),
+        )
+    )
+    used: dict[str, int] = {}
+    for params in pc.unique(steps.column("parameters")).to_pylist():
+        name = (params or "").split("constants = ")[-1].split(";")[0].strip()
+        n = steps.filter(pc.equal(steps.column("parameters"), params))
+        used[name] = used.get(name, 0) + len(pc.unique(n.column("record_id")))
     relations = oxygen_relations()
     return [
         (
             f"vsmow-vpdb-{name.lower()}",
             f"δ18O VSMOW–VPDB relation {name}",
             relations[name].source if name in relations else name,
-            f"δ18O reported on VSMOW converted to VPDB ({_n(len(ids))})",
+            f"δ18O reported on VSMOW converted to VPDB ({_n(n)})",
         )
-        for name, ids in sorted(used.items())
+        for name, n in sorted(used.items())
     ]
 
 
-def _rules(screens: list[dict[str, Any]]) -> list[tuple[str, str, str, str]]:
-    by_citation: dict[str, dict[str, set[str]]] = {}
-    for s in screens:
-        if s["outcome"] == "not applicable" or not s["citation"]:
-            continue
-        by_citation.setdefault(s["citation"], {}).setdefault(s["rule"], set()).add(s["record_id"])
+def _rules(screens: pa.Table) -> list[tuple[str, str, str, str]]:
+    import pyarrow.compute as pc
+
+    tested = screens.filter(
+        pc.and_(
+            pc.not_equal(screens.column("outcome"), "not applicable"),
+            pc.is_valid(screens.column("citation")),
+        )
+    )
+    names: dict[str, list[str]] = {}
+    for row in tested.group_by(["citation", "rule"]).aggregate([]).to_pylist():
+        names.setdefault(row["citation"], []).append(row["rule"])
+    counts = {
+        row["citation"]: row["record_id_count_distinct"]
+        for row in tested.group_by("citation")
+        .aggregate([("record_id", "count_distinct")])
+        .to_pylist()
+    }
     out = []
-    for citation, rules in sorted(by_citation.items()):
+    for citation, rules in sorted(names.items()):
         if citation.strip().lower() == COMMON_PRACTICE:
             continue
-        names = sorted(rules)
-        n = len(set().union(*rules.values()))
+        rules = sorted(rules)
         out.append(
             (
-                f"rule-{names[0]}",
-                f"Screening rule{'s' if len(names) > 1 else ''} {', '.join(names)} "
+                f"rule-{rules[0]}",
+                f"Screening rule{'s' if len(rules) > 1 else ''} {', '.join(rules)} "
                 "(a rule of thumb)",
                 citation,
-                f"diagenetic screening of {_n(n)}",
+                f"diagenetic screening of {_n(counts[citation])}",
             )
         )
     return out
@@ -231,26 +268,17 @@ def references(
 ) -> list[Entry]:
     """Every entry the exported ``records`` (with the package tables ``related``) depend
     on: sources first (by key), then methods."""
-    rows = records.select(
-        [
-            "record_id",
-            "source_id",
-            "section_id",
-            "run_id",
-            "original_source_id",
-            "age_basis",
-            "age_ma",
-            "age_reported_scale",
-        ]
-    ).to_pylist()
-    ties = related["ties"].to_pylist()
-    stored, roles, unknown = _source_roles(con, rows, ties)
-    entries = source_entries(stored, roles, unknown)
+    from strata13.compile.export.tables import exported
+
+    ties = related["ties"].to_pylist()  # a few per section
     chart = str(settings.get("time_scale") or "")
-    methods = _charts(rows, ties, chart) if chart else []
+    with exported(con, records):
+        stored, roles, unknown = _source_roles(con, ties)
+        methods = _charts(con, ties, chart) if chart else []
+    entries = source_entries(stored, roles, unknown)
     methods += _materials(related["run_qc"].to_pylist())
-    methods += _oxygen(related["chains"].to_pylist())
-    methods += _rules(related["screen_results"].to_pylist())
+    methods += _oxygen(related["chains"])
+    methods += _rules(related["screen_results"])
     if with_curve:
         methods.append(
             (
