@@ -17,6 +17,8 @@ import pandas as pd
 import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from strata13.compile import api
 from strata13.compile.integrity.corrections import Correction
 from strata13.compile.read.mapping import load_mapping
@@ -310,3 +312,37 @@ def test_bibliographic_fields_reach_the_store(store_path: Path) -> None:
             "55-70",
         )
     ]
+
+
+text_st = st.text(
+    alphabet=st.characters(codec="utf-8", exclude_categories=("Cs", "Cc")), min_size=1, max_size=40
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(title=text_st, citation=text_st, author=text_st)
+def test_any_source_text_gives_bibtex_that_parses(title: str, citation: str, author: str) -> None:
+    """Whatever a mapping's text holds (braces, @, %, &, quotes, unicode), the entry
+    parses as one entry and keeps its words (LaTeX escapes aside)."""
+    from strata13.compile.export.bibliography import bibtex, source_entries
+
+    source = {"source_id": "some-source", "citation": citation, "title": title, "year": 2020}
+    source["authors"] = author.replace("|", " ")
+    (entry,) = source_entries({"some-source": source}, {"some-source": ["data of 1"]}, {})
+    lib = bibtexparser.parse_string(bibtex([entry]))
+    assert not lib.failed_blocks and len(lib.entries) == 1
+    got = {f.key: str(f.value) for f in lib.entries[0].fields}
+
+    def plain(s: str) -> str:
+        return "".join(ch for ch in s.replace("\\", "") if ch not in "{} \t\n")
+
+    assert plain(got["title"]) == plain(title)
+
+
+def test_an_empty_export_is_a_package_too(store_path: Path, tmp_path: Path) -> None:
+    res = api.export(api.open_store(store_path), tmp_path / "e", api.Filters(interval=(1.0, 2.0)))
+    assert res.records == 0
+    for name in _tables(tmp_path / "e"):
+        assert pq.read_table(tmp_path / "e" / f"{name}.parquet").num_rows == 0
+    _library(tmp_path / "e")  # parses (the chart and nothing else)
+    assert "0 records" in (tmp_path / "e" / "README.txt").read_text(encoding="utf-8")

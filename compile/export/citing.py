@@ -171,7 +171,7 @@ def _vocab_lines(name: str) -> list[str]:
 
 
 def _materials(run_qc: list[dict[str, Any]]) -> list[tuple[str, str, str, str]]:
-    used: dict[tuple[str, str, str], set[str]] = {}
+    used: dict[tuple[str, str, str], set[tuple[str, str]]] = {}
     for q in run_qc:
         try:
             accepted = json.loads(q["accepted_json"] or "{}")
@@ -181,16 +181,20 @@ def _materials(run_qc: list[dict[str, Any]]) -> list[tuple[str, str, str, str]]:
             if not isinstance(a, dict):
                 continue
             k = (material, str(a.get("value_set") or ""), str(a.get("source") or ""))
-            used.setdefault(k, set()).add(f"{q['run_id']} {q['isotope']}")
+            used.setdefault(k, set()).add((str(q["run_id"]), str(q["isotope"])))
     out = []
-    for (material, value_set, source), runs in sorted(used.items()):
+    for (material, value_set, source), pairs in sorted(used.items()):
+        by_run: dict[str, list[str]] = {}
+        for run, iso in sorted(pairs):
+            by_run.setdefault(run, []).append({"d13c": "δ13C", "d18o": "δ18O"}.get(iso, iso))
+        runs = [f"{r} ({', '.join(isos)})" for r, isos in by_run.items()]
         key = "rm-" + "".join(ch if ch.isalnum() else "-" for ch in f"{material}-{value_set}")
         out.append(
             (
                 key.lower().strip("-"),
                 f"Accepted values of {material} ({value_set})",
                 source or f"{material} {value_set}",
-                f"reference-material values normalising runs {', '.join(sorted(runs))}",
+                f"reference-material values normalising runs {', '.join(runs)}",
             )
         )
     return out

@@ -54,6 +54,8 @@ def describe_file(name: str) -> str:
             return f"figure of the composite curve, {ext.upper()} ({folder}/)"
         return f"part of the composite curve ({folder}/)"
     if stem in TABLE_MEANINGS:
+        if ext == "parquet":
+            return f"the same table as {stem}.csv, as Parquet (column types as in columns.csv)"
         return f"{TABLE_MEANINGS[stem]}; {fmt}"
     return fmt
 
