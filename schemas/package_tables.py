@@ -172,6 +172,13 @@ def _conc_meanings() -> dict[str, tuple[str, str, str]]:
 
 RECORD_MEANINGS: dict[str, tuple[str, str, str]] = {
     "record_id": ("", "stable id of the analysis: hash of source, section, sample, replicate", ""),
+    "lat": ("°", "present-day latitude of the locality, WGS84, decimal degrees", ""),
+    "lon": ("°", "present-day longitude of the locality, WGS84, decimal degrees", ""),
+    "position_m": (
+        M,
+        "stratigraphic position of a point sample, from the section's datum (position_kind)",
+        "",
+    ),
     "source_id": ("", "the source the record was read from (bibliography key)", ""),
     "age_ma": (MA, "age on the store's time scale", ""),
     "age_sigma_ma": (MA, "1σ of age_ma", ""),
@@ -205,10 +212,13 @@ def _field_meaning(f: Field) -> tuple[str, str, str]:
     from strata13.schemas.vocabularies import vocabulary
 
     allowed = "|".join(vocabulary(f.vocab).terms) if f.vocab else ""
-    unit = f.stored_unit or ("°" if f.kind == "coord" or f.unit_kind == "degrees" else "")
+    degrees = f.kind == "coord" or f.unit_kind == "degrees"
+    unit = "°" if degrees else f.stored_unit or ""
     doc = f.doc
-    if f.kind in ("delta", "conc") or f.stored.endswith("_reported"):
-        doc = f"{doc} (as reported, in stored units)"
+    if f.kind == "conc":
+        doc = f"{doc} as reported, converted to {unit}"
+    elif f.unit_kind and f.kind != "delta" and f.stored.endswith("_reported"):
+        doc = f"{doc}, as the sheet states it"
     return unit, doc, allowed
 
 
