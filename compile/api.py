@@ -521,6 +521,7 @@ def _export_records(
             {k: v for k, v in stored.items() if k not in long},
             reproduce=command,
             extra=extra,
+            demo=store.made_by == "demo",
         )
         return result
     except (duckdb.IOException, duckdb.InvalidInputException) as exc:

@@ -141,6 +141,16 @@ SOURCES = [
     ("n_records", BIGINT),
     ("ingested_version", BIGINT),
     ("schema_version", TEXT),
+    # bibliographic fields from the mapping's [source] block (the export's BibTeX); authors
+    # are "|"-separated names as written ("Pell, I.|Sarrow, D."); appended so stores migrate
+    ("entry_type", TEXT),
+    ("authors", TEXT),
+    ("title", TEXT),
+    ("journal", TEXT),
+    ("volume", TEXT),
+    ("issue", TEXT),
+    ("pages", TEXT),
+    ("publisher", TEXT),
 ]
 LOCALITIES = [
     ("source_id", TEXT),
