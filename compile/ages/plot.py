@@ -157,11 +157,12 @@ def _figure(
             pos[dated],
             linestyle="none",
             marker="o",
-            markersize=1.6,
-            markerfacecolor="0.2",
-            markeredgewidth=0,
+            markersize=2.6,
+            markerfacecolor="white",
+            markeredgecolor="#08306b",
+            markeredgewidth=0.6,
             label=f"sample at its median age (n = {int(dated.sum())})",
-            zorder=2.5,
+            zorder=2.8,
         )
     for i, level in enumerate(levels):
         ax.axhline(

@@ -21,6 +21,7 @@ from typing import TYPE_CHECKING, Any
 from strata13.errors import OptionError
 
 if TYPE_CHECKING:
+    from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
 MM_PER_INCH = 25.4
@@ -139,6 +140,15 @@ def new_figure(width: str, height_in: float) -> Figure:
     FigureCanvasAgg(fig)
     setattr(fig, WIDTH_ATTR, width)
     return fig
+
+
+def tidy_ticks(ax: Axes) -> None:
+    """Ticks at 1, 2 or 5 times a power of ten on both axes (−3.5, −3.0 …, never −3.25),
+    so tick labels carry no more digits than the data need."""
+    from matplotlib.ticker import MaxNLocator
+
+    for axis in (ax.xaxis, ax.yaxis):
+        axis.set_major_locator(MaxNLocator(nbins="auto", steps=[1, 2, 5, 10]))
 
 
 def figure_width(fig: Figure) -> str:

@@ -25,13 +25,13 @@ if TYPE_CHECKING:
 
 Y_LABEL = CARB_LABEL
 NO_COMPONENT = "component not stated"
-HEIGHT_IN = {"single": 3.6, "double": 3.4}
+HEIGHT_IN = {"single": 3.6, "double": 4.2}
 # marker, marker area (pt²), edge colour — failed and warned stand out from the rest
 STYLES = {
-    "pass": ("o", 14.0, "white"),
-    "untested": ("o", 14.0, "0.45"),
-    "warn": ("^", 26.0, "#6b3d00"),
-    "fail": ("X", 34.0, "#4d0000"),
+    "pass": ("o", 16.0, "white"),
+    "untested": ("o", 16.0, "0.45"),
+    "warn": ("^", 30.0, "#3d2300"),
+    "fail": ("X", 40.0, "#2b0000"),
 }
 OUTCOME_WORDS = {
     "pass": "passed",
@@ -141,7 +141,7 @@ def _one(
     """One section's cross-plot: colour = component, marker = worst screening outcome,
     the least-squares line of δ13C on δ18O through all its points, the rules' lines above."""
     from matplotlib.lines import Line2D
-    from strata13.compile.plotting.style import D18O_LABEL, math, new_figure, plain
+    from strata13.compile.plotting.style import D18O_LABEL, math, new_figure, plain, tidy_ticks
 
     text_lines = sum(line.count("\n") + 1 for line in lines)
     fig = new_figure(width, HEIGHT_IN[width] + 0.13 * text_lines)
@@ -176,7 +176,7 @@ def _one(
                 [],
                 color="0.2",
                 linewidth=0.9,
-                label=f"least squares, slope {_signed(slope, '.2f')}",
+                label=math(f"least squares, δ13C on δ18O: slope {_signed(slope, '.2f')}"),
             )
         )
     counts = {k: int((mark == k).sum()) for k in ("pass", "warn", "fail", "untested")}
@@ -194,6 +194,7 @@ def _one(
         for k in ("pass", "warn", "fail", "untested")
         if counts[k]
     ]
+    tidy_ticks(ax)
     ax.set_xlabel(math(D18O_LABEL))
     ax.set_ylabel(math(Y_LABEL))
     ax.set_title(plain("\n".join([f"{section} ({source})", *lines])), loc="left")
