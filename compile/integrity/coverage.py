@@ -149,9 +149,7 @@ def _heatmap_figure(
     ax.set_yticks(range(len(rows)), [plain(r) for r in rows])
     ax.tick_params(axis="y", length=0)
     age.set_age_axis(ax, old, young)
-    ax.set_title(
-        plain(title) + "\neach cell: sections (samples); hatched: no data", loc="left"
-    )
+    ax.set_title(plain(title) + "\neach cell: sections (samples); hatched: no data", loc="left")
     if im is not None:
         cb = fig.colorbar(im, ax=ax, ticks=range(1, top + 1), fraction=0.04, pad=0.02)
         cb.set_label("sections per cell")

@@ -147,6 +147,8 @@ def _curve_figure(
         None if robustness is None else _frame(_age_alias(robustness), ROBUST_COLUMNS, "robustness")
     )
     bin_table = _bins_frame(bins) if isinstance(bins, pd.DataFrame) else None
+    stats_form = isinstance(bins, pd.DataFrame) and "age_ma" not in bins.columns
+    bin_label = "bin median (bar: interquartile range)" if stats_form else "bin summaries (lo–hi)"
     bin_edges = (
         None
         if bins is None or bin_table is not None
@@ -287,7 +289,7 @@ def _curve_figure(
                 markerfacecolor="white",
                 markeredgecolor="0.3",
                 linewidth=0,
-                label="bin median (bar: interquartile)",
+                label=bin_label,
             )
         )
 
