@@ -233,7 +233,7 @@ def test_excursion_figure(tmp_path: Path) -> None:
     assert y_peak == pytest.approx(s1["onset_position_m"] - s1["peak_position_m"])
     assert y_peak > 0
     # mass numbers as superscripts (mathtext), as a journal prints them, with the scale
-    assert panels[0].get_xlabel() == r"$\delta^{13}\mathrm{C}_{\mathrm{carb}}$ (‰ VPDB)"
+    assert fig.subfigs[0].get_supxlabel() == r"$\delta^{13}\mathrm{C}_{\mathrm{carb}}$ (‰ VPDB)"
     assert fig.get_suptitle().startswith(r"Invented $\delta^{13}\mathrm{C}$")
     # one δ axis for all panels by default: magnitudes compare by eye
     assert panels[0].get_shared_x_axes().joined(panels[0], panels[2])

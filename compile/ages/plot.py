@@ -188,7 +188,7 @@ def _figure(
             label=f"{basis} tie (±2σ)",
             zorder=3,
         )
-    age.set_age_axis(ax, old, young)
+    age.set_age_axis(ax, old, young, width=width)
     ax.set_ylabel("Height (m)" if position_kind == "height" else "Depth (m)")
     if position_kind == "depth":
         ax.invert_yaxis()

@@ -100,7 +100,7 @@ def _heatmap_figure(
     from matplotlib import colormaps
     from matplotlib.colors import BoundaryNorm
     from strata13.compile.plotting import axes as age
-    from strata13.compile.plotting.style import new_figure, plain
+    from strata13.compile.plotting.style import new_figure, plain, wrap
 
     table = table.copy()
     table["row"] = table["group"] + " · " + table["component"]
@@ -148,8 +148,9 @@ def _heatmap_figure(
     ax.set_ylim(len(rows) - 0.5, -0.5)
     ax.set_yticks(range(len(rows)), [plain(r) for r in rows])
     ax.tick_params(axis="y", length=0)
-    age.set_age_axis(ax, old, young)
-    ax.set_title(plain(title) + "\neach cell: sections (samples); hatched: no data", loc="left")
+    age.set_age_axis(ax, old, young, width=width)
+    text = title + "\neach cell: sections (samples); hatched: no data"
+    ax.set_title(plain(wrap(text, width, 0.95)), loc="left")
     if im is not None:
         cb = fig.colorbar(im, ax=ax, ticks=range(1, top + 1), fraction=0.04, pad=0.02)
         cb.set_label("sections per cell")

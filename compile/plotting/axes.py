@@ -27,9 +27,17 @@ STRIP_IN = 0.2  # height of the stage strip in inches
 Stage = tuple[str, float, float]  # name, base (older) Ma, top (younger) Ma
 
 
-def set_age_axis(ax: Axes, old: float, young: float, label: bool = True) -> None:
-    """Age from ``old`` (left) to ``young`` (right) on the x axis of ``ax``."""
+def set_age_axis(
+    ax: Axes, old: float, young: float, label: bool = True, width: str = "double"
+) -> None:
+    """Age from ``old`` (left) to ``young`` (right) on the x axis of ``ax``, with round
+    ticks (1, 2 or 5 × a power of ten) spaced for the column ``width``."""
+    from matplotlib.ticker import MaxNLocator
+
     ax.set_xlim((old, young) if OLDER_ON_LEFT else (young, old))
+    ax.xaxis.set_major_locator(
+        MaxNLocator(nbins=5 if width == "single" else 9, steps=[1, 2, 5, 10])
+    )
     if label:
         ax.set_xlabel(AGE_LABEL)
 

@@ -142,6 +142,16 @@ def new_figure(width: str, height_in: float) -> Figure:
     return fig
 
 
+def wrap(text: str, width: str, share: float = 1.0, size_pt: float | None = None) -> str:
+    """``text`` broken into lines that fit ``share`` of the column's print width in type of
+    ``size_pt`` (the body size by default); a DejaVu Sans character averages about 0.55 em."""
+    import textwrap
+
+    pt = size_pt if size_pt is not None else body_pt(width)
+    chars = max(20, int(width_in(width) * share * 72.0 / (0.55 * pt)))
+    return "\n".join(w for line in text.split("\n") for w in textwrap.wrap(line, chars) or [""])
+
+
 def tidy_ticks(ax: Axes) -> None:
     """Ticks at 1, 2 or 5 times a power of ten on both axes (−3.5, −3.0 …, never −3.25),
     so tick labels carry no more digits than the data need."""

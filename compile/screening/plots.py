@@ -141,7 +141,14 @@ def _one(
     """One section's cross-plot: colour = component, marker = worst screening outcome,
     the least-squares line of δ13C on δ18O through all its points, the rules' lines above."""
     from matplotlib.lines import Line2D
-    from strata13.compile.plotting.style import D18O_LABEL, math, new_figure, plain, tidy_ticks
+    from strata13.compile.plotting.style import (
+        D18O_LABEL,
+        math,
+        new_figure,
+        plain,
+        tidy_ticks,
+        wrap,
+    )
 
     text_lines = sum(line.count("\n") + 1 for line in lines)
     fig = new_figure(width, HEIGHT_IN[width] + 0.13 * text_lines)
@@ -197,7 +204,8 @@ def _one(
     tidy_ticks(ax)
     ax.set_xlabel(math(D18O_LABEL))
     ax.set_ylabel(math(Y_LABEL))
-    ax.set_title(plain("\n".join([f"{section} ({source})", *lines])), loc="left")
+    title = "\n".join([f"{section} ({source})", *lines])
+    ax.set_title(plain(wrap(title, width, 0.95 if width == "single" else 0.7)), loc="left")
     ax.grid(True, color="0.9", linewidth=0.4)
     ax.set_axisbelow(True)
     fig.legend(

@@ -139,7 +139,7 @@ def _curve_figure(
     from matplotlib import patheffects
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
-    from strata13.compile.plotting.style import new_figure, width_in
+    from strata13.compile.plotting.style import new_figure, wrap
 
     samples = _frame(samples, SAMPLE_COLUMNS, "samples")
     curve = _frame(_age_alias(curve), CURVE_COLUMNS[:3], "curve")
@@ -293,17 +293,14 @@ def _curve_figure(
             )
         )
 
-    age.set_age_axis(ax, old, young)
+    age.set_age_axis(ax, old, young, width=width)
     ax.set_ylabel(math(value_label))
     ax.grid(True, color="0.88", linewidth=0.4)
     ax.set_axisbelow(True)
     notes = ([MERGED_NOTE] if merged else []) + ([note] if note else [])
     if notes:
-        import textwrap
-
-        chars = int(width_in(width) * 72 / 4.0)  # about 4 pt per character of body type
-        lines = [w for n in notes for w in textwrap.wrap(n, chars)]
-        ax.set_title(math("\n".join(lines)), style="italic", loc="left")
+        share = 0.8 if below else 0.6  # the plot's share of the width (legend at the side)
+        ax.set_title(math(wrap("\n".join(notes), width, share)), style="italic", loc="left")
     if title:
         fig.suptitle(math(title))
     fig.legend(
@@ -374,8 +371,8 @@ def excursion_figure(
         )
 
 
-PANELS_PER_ROW = {"single": 3, "double": 5}
-PANEL_HEIGHT_IN = {"single": 1.7, "double": 1.9}
+PANELS_PER_ROW = {"single": 4, "double": 6}
+PANEL_HEIGHT_IN = {"single": 1.45, "double": 1.8}
 
 
 def _excursion_figure(
@@ -418,14 +415,16 @@ def _excursion_figure(
     ages_h = 0.6 + 0.16 * len(age_rows) + age.STRIP_IN
     legend_h = 0.55 if width == "double" else 0.85
     fig = new_figure(width, panels_h + ages_h + legend_h + 0.5)
+    # two subfigures, so the panels carry one δ label and one position label between them
     outer = fig.add_gridspec(2, 1, height_ratios=(panels_h, ages_h))
-    grid = outer[0].subgridspec(rows, cols)
+    top, bottom = fig.add_subfigure(outer[0]), fig.add_subfigure(outer[1])
+    grid = top.add_gridspec(rows, cols)
     axes: list[Axes] = []
     for i in range(n):
         share = {"sharey": axes[0]} if axes else {}
         if axes and shared_axis:
             share["sharex"] = axes[0]
-        axes.append(fig.add_subplot(grid[i // cols, i % cols], **share))
+        axes.append(top.add_subplot(grid[i // cols, i % cols], **share))
     any_depth = False
     for ax, (_, row) in zip(axes, shown.iterrows(), strict=True):
         sel = (df["source_id"] == row["source_id"]) & (df["section_id"] == row["section_id"])
@@ -462,7 +461,10 @@ def _excursion_figure(
             lo, hi = _num(row, f"{metric}_position_p2_5_m"), _num(row, f"{metric}_position_p97_5_m")
             if np.isfinite(lo) and np.isfinite(hi):
                 ax.axhspan(rel(lo), rel(hi), color=colour, alpha=RANGE_ALPHA, linewidth=0)
-        label = str(row["section_id"]) + "\n" + str(row["source_id"])
+        # the source only where a section id alone is ambiguous in this figure
+        label = str(row["section_id"])
+        if ambiguous(shown, row["section_id"]):
+            label += f"\n{row['source_id']}"
         if group_col and row["group"] is not None:
             label += f"\n{row['group']}"
         ax.set_title(plain(label), fontsize="small", linespacing=1.1)
@@ -473,11 +475,11 @@ def _excursion_figure(
             ax.tick_params(labelleft=False)
         if i + cols < n and shared_axis:  # a panel below shows the same δ axis
             ax.tick_params(labelbottom=False)
-        else:
-            ax.set_xlabel(math(value_label))
-    axes[0].set_ylabel("Above onset (m)")
-    age_ax, strip = age.age_axes(fig, outer[1], age.stages_in(stages, *_age_span(age_rows)), ages_h)
-    _age_panel(age_ax, age_rows, age)
+    top.supxlabel(math(value_label), fontsize=None)
+    top.supylabel("Above onset (m)", fontsize=None)
+    age_stages = age.stages_in(stages, *_age_span(age_rows))
+    age_ax, strip = age.age_axes(bottom, bottom.add_gridspec(1, 1)[0], age_stages, ages_h)
+    _age_panel(age_ax, age_rows, age, width)
     lines = [math(title)] if title else []
     if len(skipped):
         lines.append(plain("not aligned, no onset: " + ", ".join(map(str, skipped["section_id"]))))
@@ -521,7 +523,7 @@ def _excursion_figure(
     if ranges_note:
         legend.set_title(ranges_note.replace("\n", " "))
     if strip is not None:
-        age.stage_strip(fig, age_ax, strip, age.stages_in(stages, *_age_span(age_rows)))
+        age.stage_strip(fig, age_ax, strip, age_stages)
     return fig
 
 
@@ -532,6 +534,11 @@ def _num(row: Any, col: str) -> float:
     except (KeyError, TypeError, ValueError):
         return float("nan")
     return v
+
+
+def ambiguous(shown: pd.DataFrame, section_id: Any) -> bool:
+    """Whether two sources in ``shown`` have a section of this id."""
+    return bool(shown.loc[shown["section_id"] == section_id, "source_id"].nunique() > 1)
 
 
 def _age_span(rows: list[dict[str, Any]]) -> tuple[float, float]:
@@ -575,7 +582,7 @@ def _age_rows(per_section: pd.DataFrame, summary: pd.DataFrame | None) -> list[d
     return out
 
 
-def _age_panel(ax: Axes, rows: list[dict[str, Any]], age: Any) -> None:
+def _age_panel(ax: Axes, rows: list[dict[str, Any]], age: Any, width: str) -> None:
     """Onset, peak and recovery ages per row: the centre as a marker, the 95 % range as a
     bar through it; group means below a rule, in bold; older to the left."""
     offsets = {"onset": -0.22, "peak": 0.0, "recovery": 0.22}
@@ -612,7 +619,7 @@ def _age_panel(ax: Axes, rows: list[dict[str, Any]], age: Any) -> None:
         if r["mean"]:
             tick.set_fontweight("bold")
     ax.set_ylim(len(rows) - 0.5, -0.5)  # first row on top
-    age.set_age_axis(ax, *_age_span(rows))
+    age.set_age_axis(ax, *_age_span(rows), width=width)
     ax.grid(True, axis="x", color="0.9", linewidth=0.4)
     ax.set_axisbelow(True)
 
