@@ -73,6 +73,7 @@ __all__ = [
     "accepted_lines",
     "agemodel",
     "check_sources",
+    "check_width",
     "check_vocab",
     "compact",
     "interrupt_verdict",
@@ -85,6 +86,7 @@ __all__ = [
     "excursion",
     "explain",
     "export",
+    "figure_files",
     "figure_note",
     "history",
     "ingest",
@@ -734,17 +736,20 @@ def screen_report(
 
 
 def screen_plots(
-    store: Store, records: pa.Table, screening: Screening, out: str | Path
+    store: Store, records: pa.Table, screening: Screening, out: str | Path, width: str = "double"
 ) -> list[Path]:
-    """One δ13C–δ18O cross-plot per section (PNG) into folder ``out``."""
+    """One δ13C–δ18O cross-plot per section (PNG, SVG and PDF) into folder ``out``, one
+    journal column ``width`` wide (single | double); returns the files."""
     from strata13.compile.export.outputs import output_dir
+    from strata13.compile.plotting.style import check_width
     from strata13.compile.screening.plots import cross_plots
 
+    check_width(width)
     folder = Path(out)
     output_dir(folder, option="--plot", stores=[store.path])
     folder.mkdir(parents=True, exist_ok=True)
     files: list[Path] = cross_plots(
-        records, screening.results, screening.groups, folder, figure_note(store)
+        records, screening.results, screening.groups, folder, figure_note(store), width
     )
     return files
 
@@ -777,12 +782,15 @@ def excursion(
     bootstrap: bool = True,
     out: str | Path | None = None,
     command: str | None = None,
+    width: str = "double",
+    shared_axis: bool = True,
 ) -> ExcursionResult:
     """Per-section excursion metrics in the filtered interval with 1σ and 95 % ranges over
     ``draws`` draws (age draws and, with ``bootstrap``, resampled samples; None: the default
     500, 0: none), seeded by ``seed``; tables, a figure and a manifest naming ``command`` in
-    ``out`` when given. A fraction outside (0, 1) or an unknown direction is a wrong
-    instruction (OptionError, exit 2)."""
+    ``out`` when given. The figure is one journal column ``width`` wide (single | double);
+    ``shared_axis`` gives its section panels one δ axis, so magnitudes compare by eye. A
+    fraction outside (0, 1) or an unknown direction is a wrong instruction (OptionError, exit 2)."""
     import math
 
     from strata13.compile.synthesis.excursion import DIRECTIONS
@@ -810,6 +818,8 @@ def excursion(
         bootstrap=bootstrap,
         out=Path(out) if out is not None else None,
         command=command,
+        width=width,
+        shared_axis=shared_axis,
     )
 
 
@@ -859,25 +869,45 @@ def coverage(
     bin_myr: float | None = None,
     out: str | Path | None = None,
     command: str | None = None,
+    width: str = "double",
 ) -> tuple[pd.DataFrame, dict[str, str], list[str]]:
     """Samples and sections per time bin × group × component (zeros kept), the files
     written (name -> sha256) and the notes (what the filters left out, with counts); with
-    ``out`` a CSV, a heatmap and a manifest naming ``command``."""
+    ``out`` a CSV, a heatmap (PNG, SVG, PDF; one journal column ``width`` wide) and a
+    manifest naming ``command``."""
     from strata13.compile.integrity.coverage import coverage as _coverage
 
     result: tuple[pd.DataFrame, dict[str, str], list[str]] = _coverage(
-        store, filters, by, bin_myr, Path(out) if out is not None else None, command=command
+        store, filters, by, bin_myr, Path(out) if out is not None else None, command, width
     )
     return result
 
 
-def plot_agemodel(model: SectionModel, path: str | Path, note: str | None = None) -> Path:
-    """Write a section model's age–position figure (PNG); ``note`` (see ``figure_note``)
-    goes in small type in its corner."""
+def plot_agemodel(
+    model: SectionModel, path: str | Path, note: str | None = None, width: str = "double"
+) -> list[Path]:
+    """Write a section model's age–position figure as PNG, SVG and PDF beside ``path``
+    (x.png → x.png, x.svg, x.pdf), one journal column ``width`` wide (single | double);
+    ``note`` (see ``figure_note``) is its caption line. Returns the three files."""
     from strata13.compile.ages.chronology import plot_model
+    from strata13.compile.plotting.style import check_width
 
-    written: Path = plot_model(model, Path(path), note)
+    written: list[Path] = plot_model(model, Path(path), note, check_width(width))
     return written
+
+
+def check_width(width: str) -> str:
+    """A figure width name (single | double, journal columns), or OptionError."""
+    from strata13.compile.plotting.style import check_width as _check
+
+    return _check(width)
+
+
+def figure_files(path: str | Path) -> list[Path]:
+    """The three files a figure written to ``path`` occupies (x.png → x.png, x.svg, x.pdf)."""
+    from strata13.compile.plotting.save import paths_for
+
+    return list(paths_for(path).values())
 
 
 def figure_note(store: Store) -> str | None:
