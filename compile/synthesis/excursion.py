@@ -359,7 +359,7 @@ def summary(per_section: pd.DataFrame, group_col: str | None = "group") -> pd.Da
     if missing:
         raise DomainError(
             f"The table has no {', '.join(missing)} column.",
-            "Pass the table that per_section() returned.",
+            "Pass the per-section table of excursion metrics unchanged.",
         )
     if group_col is not None and group_col not in per_section.columns:
         raise DomainError(
