@@ -1,8 +1,10 @@
 """Run the README's tour and compare its output with the README, or rewrite the README's
-output blocks from the run, so the tour always shows real, current output.
+output blocks from the run, so the tour always shows real, current output; the same for the
+README's list of mapping fields, written from the field registry (``schemas/fields.py``).
 
     python tools/readme_tour.py            # compare; exit 1 and a diff if the README drifted
     python tools/readme_tour.py --write    # rewrite the tour's output from a fresh run
+    python tools/readme_tour.py --fields   # compare or (with --write) rewrite only the fields
 
 A tour block is a ```text block right after a ``<!-- tour -->`` line. Its lines starting
 with ``$ `` are commands, the lines after each its output (stdout and stderr as a terminal
@@ -17,7 +19,8 @@ in DEVELOPERS.md):
 2. A line longer than 150 characters is cut to 149 and ``…``.
 3. An output whose last shown line is ``… (N more lines)`` shows its first lines only; the
    rewrite keeps as many as the README shows and recounts N, the comparison checks both.
-   An output of more than 15 lines the README shows whole is shortened to 10 by the rewrite.
+   A command the README shows without output (a new one) gets its first 10 lines and the
+   count when its output is longer than 15 lines; any other output is shown whole.
 4. Compared, not rewritten: SHA-256 digests (``sha256`` and 16 or more hex digits; the
    bytes of figures depend on the plotting library and its fonts), durations (``12.3 s``,
    ``45 ms``) and the strata13 version (``strata13 0.1.0``) are replaced by placeholders on
@@ -34,6 +37,7 @@ import shutil
 import subprocess
 import sys
 import tempfile
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -131,7 +135,7 @@ def environment() -> dict[str, str]:
     return env
 
 
-def run_tour(text: str, folder: Path) -> list[list[list[str]]]:
+def run_tour(text: str, folder: Path, times: bool = False) -> list[list[list[str]]]:
     """Every tour block's commands run in ``folder``: the output of each, as shown."""
     shutil.copytree(ROOT / "demo_compilation", folder / "demo_compilation")
     env = environment()
@@ -142,6 +146,7 @@ def run_tour(text: str, folder: Path) -> list[list[list[str]]]:
             if step.command.startswith("#"):
                 outs.append(step.shown)  # a comment line to the reader
                 continue
+            began = time.perf_counter()
             done = subprocess.run(
                 ["bash", "-c", step.command],
                 cwd=folder,
@@ -152,6 +157,10 @@ def run_tour(text: str, folder: Path) -> list[list[list[str]]]:
                 text=True,
                 timeout=300,
             )
+            if times:
+                print(
+                    f"{time.perf_counter() - began:6.1f} s  $ {step.command[:90]}", file=sys.stderr
+                )
             outs.append(shown_output(done.stdout, folder, step.keep))
         results.append(outs)
     return results
@@ -174,22 +183,76 @@ def rewritten(text: str, results: list[list[list[str]]]) -> str:
     for block, outs in reversed(list(zip(blocks(text), results, strict=True))):
         body = []
         for step, out in zip(block.steps, outs, strict=True):
-            if step.keep is None and len(out) > LONG:
+            if step.keep is None and not step.shown and len(out) > LONG:
                 out = [*out[:SHORT], f"… ({len(out) - SHORT} more lines)"]
             body += [f"$ {step.command}", *out]
         lines[block.start : block.end] = body
     return "\n".join(lines)
 
 
+FIELDS_BEGIN = "<!-- fields: written by tools/readme_tour.py from schemas/fields.py -->"
+FIELDS_END = "<!-- /fields -->"
+
+
+def field_table() -> str:
+    """The README's table of every field a mapping may feed, from the field registry."""
+    from strata13.schemas.fields import (
+        BASIS_KEYS,
+        CONC_BASES,
+        DELTA_SCALES,
+        FIELDS,
+        SCALE_KEYS,
+        UNITS,
+    )
+    from strata13.schemas.vocabularies import vocabulary
+
+    def cell(text: str) -> str:
+        return text.replace("|", "\\|")
+
+    rows = [
+        "| field | stored as | units accepted | plausible range | terms | what |",
+        "|---|---|---|---|---|---|",
+    ]
+    for f in FIELDS:
+        units = ", ".join(UNITS[f.unit_kind]) if f.unit_kind else ""
+        span = f"{f.plausible[0]:g} … {f.plausible[1]:g}" if f.plausible else ""
+        terms = ", ".join(vocabulary(f.vocab).terms) if f.vocab else ""
+        rows.append(
+            f"| `{f.name}` | `{f.stored}` | {cell(units)} | {span} | {cell(terms)} | {cell(f.doc)} |"
+        )
+    for key, delta in SCALE_KEYS.items():
+        scales = ", ".join(DELTA_SCALES[delta])
+        rows.append(f"| `{key}` | `{key}` |  |  | {scales} | reference scale of `{delta}` |")
+    for key, conc in BASIS_KEYS.items():
+        rows.append(f"| `{key}` | `{key}` |  |  | {', '.join(CONC_BASES)} | basis of `{conc}` |")
+    return "\n".join(rows)
+
+
+def with_fields(text: str) -> str:
+    """The README with its fields table rewritten."""
+    if FIELDS_BEGIN not in text or FIELDS_END not in text:
+        raise SystemExit(f"README: the fields table needs {FIELDS_BEGIN} … {FIELDS_END}")
+    head, rest = text.split(FIELDS_BEGIN, 1)
+    _, tail = rest.split(FIELDS_END, 1)
+    return f"{head}{FIELDS_BEGIN}\n{field_table()}\n{FIELDS_END}{tail}"
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--write", action="store_true", help="rewrite the README's output")
+    parser.add_argument("--times", action="store_true", help="say how long each command took")
+    parser.add_argument("--fields", action="store_true", help="only the fields table")
     args = parser.parse_args(argv)
     text = README.read_text(encoding="utf-8")
+    if args.fields:
+        if args.write:
+            README.write_text(with_fields(text), encoding="utf-8")
+            return 0
+        return 0 if with_fields(text) == text else 1
     with tempfile.TemporaryDirectory(prefix="strata13-tour-") as tmp:
-        results = run_tour(text, Path(tmp))
+        results = run_tour(text, Path(tmp), times=args.times)
     if args.write:
-        README.write_text(rewritten(text, results), encoding="utf-8")
+        README.write_text(with_fields(rewritten(text, results)), encoding="utf-8")
         print(f"rewrote the output of {sum(len(r) for r in results)} tour commands in {README}")
         return 0
     found = differences(text, results)
