@@ -8,7 +8,6 @@ import re
 import sys
 import tomllib
 from pathlib import Path
-
 from typing import Any
 
 from strata13.compile.ages.ties import TIE_KEYS

@@ -217,9 +217,8 @@ def field_table() -> str:
         units = ", ".join(UNITS[f.unit_kind]) if f.unit_kind else ""
         span = f"{f.plausible[0]:g} … {f.plausible[1]:g}" if f.plausible else ""
         terms = ", ".join(vocabulary(f.vocab).terms) if f.vocab else ""
-        rows.append(
-            f"| `{f.name}` | `{f.stored}` | {cell(units)} | {span} | {cell(terms)} | {cell(f.doc)} |"
-        )
+        cells = [f"`{f.name}`", f"`{f.stored}`", cell(units), span, cell(terms), cell(f.doc)]
+        rows.append("| " + " | ".join(cells) + " |")
     for key, delta in SCALE_KEYS.items():
         scales = ", ".join(DELTA_SCALES[delta])
         rows.append(f"| `{key}` | `{key}` |  |  | {scales} | reference scale of `{delta}` |")
