@@ -9,19 +9,6 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, WidthOpt, check_format
 
-STAGE_HEADERS = [
-    "name",
-    "rank",
-    "parent",
-    "base_ma",
-    "top_ma",
-    "±",
-    "level",
-    "1σ",
-    "1σ from",
-    "~",
-    "note",
-]
 TIE_COLUMNS = [
     "position_m",
     "basis",
@@ -69,7 +56,7 @@ def stages(
         render.note(n)
     cols = list(rows[0]) if rows else []
     render.table(
-        STAGE_HEADERS if fmt == "table" else cols,
+        cols,
         [[r[c] for c in cols] for r in rows],
         fmt,
         out,

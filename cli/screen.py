@@ -100,24 +100,25 @@ def screen(
         wanted = filters.build(s) if filters != NO_FILTERS else None
         records, screening, counts = api.screen_report(s, wanted)
         if summary:
-            cols = counts.column_names
-            render.table(
-                cols,
-                [list(r.values()) for r in counts.to_pylist()],
+            g = screening.groups
+            render.tables(
+                [
+                    render.Part(
+                        "outcomes",
+                        counts.column_names,
+                        [list(r.values()) for r in counts.to_pylist()],
+                        "screen results per source, section, rule and outcome",
+                    ),
+                    render.Part(
+                        "covariance",
+                        GROUP_COLUMNS,
+                        [[r[c] for c in GROUP_COLUMNS] for r in g.to_pylist()],
+                        "covariance per group (δ13C vs δ18O)",
+                    ),
+                ][: 2 if g.num_rows else 1],
                 fmt,
                 out,
-                title="screen results per source, section, rule and outcome",
             )
-            g = screening.groups
-            if g.num_rows:
-                render.table(
-                    GROUP_COLUMNS,
-                    [[r[c] for c in GROUP_COLUMNS] for r in g.to_pylist()],
-                    "table",
-                    None,
-                    title="covariance per group (δ13C vs δ18O)",
-                    stderr=True,
-                )
             overall = screening.overall.column("screen").value_counts().to_pylist()
             render.note(
                 "overall: "

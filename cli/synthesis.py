@@ -288,21 +288,25 @@ def excursion(
     )
     for note in res.notes:
         render.note(note)
-    per = res.per_section
-    render.table(
-        list(per.columns),
-        per.itertuples(index=False, name=None),
+    per, summary = res.per_section, res.summary
+    render.tables(
+        [
+            render.Part(
+                "per_section",
+                list(per.columns),
+                [list(r) for r in per.itertuples(index=False, name=None)],
+                "excursion per section",
+            ),
+            render.Part(
+                "summary",
+                list(summary.columns),
+                [list(r) for r in summary.itertuples(index=False, name=None)],
+                "summary",
+            ),
+        ],
         fmt,
         None,
-        title="excursion per section",
-    )
-    render.table(
-        list(res.summary.columns),
-        res.summary.itertuples(index=False, name=None),
-        "table",
-        None,
-        title="summary",
-        stderr=True,
+        elsewhere=f"it is in {out}" if out is not None else "--out DIR writes it",
     )
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")

@@ -243,7 +243,7 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
         raise ConfigError(
             f"{path.name}: {where} names unknown field {name!r}."
             + did_you_mean(name, field_names()),
-            "The fields are listed in DEVELOPERS.md (schemas/fields.py).",
+            "Every field is listed in the README (Mapping files, Fields).",
         )
     f = BY_NAME.get(name)
     unit = spec.get("unit")
@@ -571,7 +571,7 @@ def _check_constants(st: _Loading) -> None:
             raise ConfigError(
                 f"{path.name}: [constants] names unknown field {key!r}."
                 + did_you_mean(key, field_names()),
-                "The fields are listed in DEVELOPERS.md.",
+                "Every field is listed in the README (Mapping files, Fields).",
             )
         if key in st.seen:
             raise ConfigError(
