@@ -54,6 +54,7 @@ if TYPE_CHECKING:
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
     from strata13.compile.store.files import Orphans
+    from strata13.compile.store.move import Moved
     from strata13.schemas.timescales import TimeScale
 
 __all__ = [
@@ -306,9 +307,11 @@ def init_store(
     age_extrapolation: bool = False,
     materials: str | Path | None = None,
     rotations: tuple[str | Path, str | Path] | None = None,
+    catalog: str | None = None,
 ) -> Store:
     """Create a store with its settings (time scale, screening rules, whether age models
-    extrapolate beyond their ties) and optional named regions."""
+    extrapolate beyond their ties) and optional named regions; ``catalog`` is
+    ``postgres:CONNINFO`` for a group's shared catalog (default: the embedded file)."""
     from strata13.compile.query.regions import load_regions_file
 
     named = load_regions_file(Path(regions)) if regions else []
@@ -327,6 +330,7 @@ def init_store(
         settings.hash(),
         [(n, g, Path(regions).name) for n, g in named] if regions else [],
         made_by=made_by,
+        catalog=catalog,
     )
 
 
@@ -576,6 +580,15 @@ def compact(store: Store, dry_run: bool = False) -> Orphans:
     references; every version stays readable and no version is made."""
     found: Orphans = store.compact(dry_run)
     return found
+
+
+def move_catalog(store: Store, to: str) -> Moved:
+    """Copy the store's catalog with every version to ``to`` (``postgres:CONNINFO`` of an
+    empty database, or ``embedded``) and use it from now on; the data files stay."""
+    from strata13.compile.store.move import move_catalog as move
+
+    moved: Moved = move(store, to)
+    return moved
 
 
 def sources(store: Store) -> list[dict[str, Any]]:
