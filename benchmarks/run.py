@@ -23,6 +23,9 @@ it. Cases:
 * start   — ``strata13 query``, ``sources``, ``history`` and ``sql`` on a 5 000-record store
   as subprocesses against a bare duckdb + pandas read of the same Parquet (see
   ``start.py``). Targets: ≤ 0.5 s wall and ≤ 3× the baseline's CPU time.
+* sources — 200 sources of 5 000 rows ingested one after another (quick: 20): the last three
+  ingests against the first three, and an interval query after all of them against bare
+  DuckDB (see ``sources.py``). Targets: ≤ 1.5× and ≤ 2×.
 * excursion — the excursion metrics' uncertainty over 500 draws of 100 sections against the
   scalar metrics once per section and draw (see ``excursion.py``). Target: ratio ≤ 0.1.
 
@@ -578,6 +581,7 @@ LIBRARY_CASES = {
     "excursion": ("excursion", 100, 500),
     "paleo": ("paleo", 100_000, 1_000_000),
     "start": ("start", 5000, 5000),
+    "sources": ("sources", 20, 200),
 }
 
 
