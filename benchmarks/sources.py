@@ -3,12 +3,11 @@
     python benchmarks/sources.py [--sources 200] [--rows 5000]
 
 After a warm-up ingest into a throwaway store (imports, extensions), ingests ``--sources``
-generated sheets of ``--rows`` rows each (benchmarks/generate.py, one source each,
-distinct seeds) one after another into one store, in this process, and compares the median of the first three ingests with the median of the last
-three (target, issue 18: within 1.5×). Then an interval query over the whole store against
-a bare DuckDB read of the same Parquet with the same interval, and the number of data files
-the store holds (each ingest adds a few; ``strata13 compact`` removes only unreferenced
-ones).
+generated sheets of ``--rows`` rows each (benchmarks/generate.py, one source each, distinct
+seeds) one after another into one store, in this process, and compares the median of the
+first three ingests with the median of the last three (target, issue 18: within 1.5×).
+Then an interval query over the whole store against a bare DuckDB read of the same Parquet
+with the same interval, and the number of data files the store holds.
 """
 
 from __future__ import annotations
