@@ -97,6 +97,7 @@ __all__ = [
     "interval",
     "is_store",
     "materials_settings",
+    "move_catalog",
     "neutralise",
     "open_store",
     "per_sample",
@@ -551,7 +552,7 @@ def sql(
     from strata13.compile.store.lake import DATA
 
     check_limits(timeout_s, row_cap, max_mb)
-    con, version = store.reader()
+    con, version = store.reader(fresh=True)  # the sandbox locks this connection alone
     try:
         files = version_files(con, store.path / DATA, version)
         result: SqlResult = run_sql(con, statement, timeout_s, row_cap, files, max_mb)

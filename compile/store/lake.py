@@ -75,6 +75,8 @@ class Store:
         self.path = path.resolve()
         self.catalog = catalog or from_spec(_marker_catalog(self.path), self.path)
         self._lock: WriterLock | None = None  # the writer lock while a writer holds it
+        # shared read connections by requested version (None: the latest), see reader()
+        self._readers: dict[int | None, tuple[duckdb.DuckDBPyConnection, int]] = {}
 
     # ------------------------------------------------------------ creation and opening
     @classmethod
@@ -223,6 +225,7 @@ class Store:
 
         Only :meth:`transaction` should use it; one connection, one thread.
         """
+        self._drop_readers()
         with self.catalog.writer_lock(command, LOCK_TIMEOUT_S) as lock:
             named = _marker_catalog(self.path)
             if named is not None and named != self.catalog.spec():
@@ -239,6 +242,7 @@ class Store:
             finally:
                 self._lock = None
                 con.close()
+                self._drop_readers()  # reads made while writing saw the version before
 
     @contextlib.contextmanager
     def transaction(self, command: str, detail: str = "") -> Iterator[Transaction]:
@@ -345,8 +349,42 @@ class Store:
                     p.unlink(missing_ok=True)
         return Orphans(mine, size)
 
-    def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
-        """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
+    def reader(
+        self, version: int | None = None, *, fresh: bool = False
+    ) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A read-only connection whose views all show one snapshot (the latest or ``version``).
+
+        The first read opens, attaches and binds the views once; later reads of the same
+        Store get a cursor of that connection (DuckDB shares attached catalogs and the
+        in-memory schema between cursors), so a command that reads several times pays for
+        the start once. A read of the latest version checks the catalog's newest snapshot
+        and rebinds when another writer moved it; a write through this Store drops the
+        shared connection. ``fresh`` gives a connection of its own (the ``sql`` sandbox locks
+        its connection's configuration, which must not reach later reads).
+        """
+        if fresh:
+            return self._open_reader(version, shared=False)
+        hit = self._readers.get(version)
+        if hit is not None:
+            con, v = hit
+            if version is not None or self._latest(con) == v:
+                return con.cursor(), v
+            self._drop_readers()
+        con, v = self._open_reader(version, shared=True)
+        self._readers[version] = (con, v)
+        return con.cursor(), v
+
+    def _drop_readers(self) -> None:
+        """Close the shared read connections (after a write they may show an old version)."""
+        for con, _ in self._readers.values():
+            con.close()
+        self._readers.clear()
+
+    def _open_reader(
+        self, version: int | None, shared: bool
+    ) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A new read-only connection with the views bound (``shared``: in its in-memory
+        schema, visible to its cursors; else as temp views of this connection alone)."""
         import duckdb
 
         con = connect(self.catalog.extensions)
@@ -364,7 +402,7 @@ class Store:
                 "See `strata13 history`.",
             )
         try:
-            bind_views(con, v, latest=v == latest)
+            bind_views(con, v, latest=v == latest, shared=shared)
         except duckdb.Error as exc:
             con.close()
             raise StoreError(
