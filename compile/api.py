@@ -53,7 +53,7 @@ if TYPE_CHECKING:
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
-    from strata13.compile.store.files import Orphans
+    from strata13.compile.store.lake import Compacted
     from strata13.compile.store.move import Moved
     from strata13.schemas.timescales import TimeScale
 
@@ -576,10 +576,11 @@ def interrupt_verdict() -> str:
     return interrupts.verdict()
 
 
-def compact(store: Store, dry_run: bool = False) -> Orphans:
+def compact(store: Store, dry_run: bool = False, merge: bool = True) -> Compacted:
     """Remove (or with ``dry_run`` only list) the data files no version of the store
-    references; every version stays readable and no version is made."""
-    found: Orphans = store.compact(dry_run)
+    references and merge the small data files ingests leave (``merge``); every version
+    stays readable with the same rows."""
+    found: Compacted = store.compact(dry_run, merge)
     return found
 
 

@@ -59,6 +59,16 @@ def is_store(path: Path) -> bool:
     return (path / MARKER).is_file()
 
 
+@dataclass(frozen=True)
+class Compacted:
+    """What ``compact`` did: unreferenced files removed, data files merged."""
+
+    orphans: Orphans
+    files_before: int  # data files the newest version read before the merge
+    files_after: int
+    version: int | None  # the ``compact`` version recording the merge (None: no merge)
+
+
 @dataclass
 class Version:
     version: int
@@ -293,6 +303,17 @@ class Store:
                         raise
                     raise self._lost(gone, started, committing) from None
                 raise self._interrupted(tx, started) from None
+        if tx.version is not None and command != "compact":
+            self._merge_quietly()
+
+    def _merge_quietly(self) -> None:
+        """The automatic merge after a write; maintenance only, so a merge that cannot run
+        now (another writer holds the lock, a full disk) leaves the store as committed and
+        the next write tries again."""
+        import duckdb
+
+        with contextlib.suppress(StoreError, duckdb.Error, OSError):
+            self.merge_if_many()
 
     def _lost(self, gone: StoreError, started: int, committing: bool) -> StoreError:
         """The catalog went away mid-write: before the commit nothing was written; during
@@ -331,13 +352,16 @@ class Store:
         tx._discard_files()
         return Interrupted("interrupted: nothing was written", False)
 
-    def compact(self, dry_run: bool = False) -> Orphans:
+    def compact(self, dry_run: bool = False, merge: bool = True) -> Compacted:
         """Remove the Parquet files in the data folder that no version references (left by
-        writers killed between writing a file and committing). Every version stays
-        readable: only files the catalog never listed go. Runs under the writer lock, so
-        the files of a transaction still in flight are never among them; makes no version.
-        """
-        from strata13.compile.store.files import orphans
+        writers killed between writing a file and committing) and, with ``merge``, merge
+        the small data files every ingest leaves. Every version stays readable, with the
+        same rows: only files the catalog never listed go, and DuckLake's merge keeps old
+        versions pointing into the merged files. Runs under the writer lock, so the files of
+        a transaction still in flight are never touched. A merge is recorded in the history
+        as a ``compact`` version (DuckLake's merge itself is the version before it, with
+        the same data)."""
+        from strata13.compile.store.files import live_files, merge_small_files, orphans
 
         data = (self.path / DATA).resolve()
         with self.writer("compact") as con:
@@ -347,7 +371,28 @@ class Store:
             if not dry_run:
                 for p in mine:
                     p.unlink(missing_ok=True)
-        return Orphans(mine, size)
+            n = live_files(con)
+            before, after = (n, n) if dry_run or not merge else merge_small_files(con)
+        version = None
+        if after < before:
+            with self.transaction("compact", "data files merged") as tx:
+                merged = {"data_files_before": before, "data_files_after": after}
+                tx.record({**merged, "merge_version": tx.latest_version()}, "")
+            version = tx.version
+        return Compacted(Orphans(mine, size), before, after, version)
+
+    def merge_if_many(self) -> Compacted | None:
+        """After a write: merge the data files once the newest version reads more than
+        ``files.AUTO_MERGE_FILES`` of them (common practice: a few large files read faster
+        than many small ones); None when it does not."""
+        from strata13.compile.store.files import AUTO_MERGE_FILES, live_files
+
+        con, _ = self.reader(fresh=True)
+        try:
+            many = live_files(con) > AUTO_MERGE_FILES
+        finally:
+            con.close()
+        return self.compact(merge=True) if many else None
 
     def reader(
         self, version: int | None = None, *, fresh: bool = False
