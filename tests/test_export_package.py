@@ -162,6 +162,9 @@ def test_bibtex_parses_and_cites_the_ties_only_source_and_the_chart(package: Pat
     assert "IUPAC-2014" in entries["vsmow-vpdb-iupac-2014"]["title"]
     assert any(k.startswith("rm-iaea-603") for k in entries)
     assert any(k.startswith("rule-") for k in entries)
+    # the rotation model only when it placed records (this store has none; the demo's does)
+    placed = int((records.paleo_status == "placed").sum())
+    assert bool([k for k in entries if k.startswith("rotation-")]) == bool(placed)
     # nothing is cited that the records do not use: no curve, no LOESS
     assert "method-loess" not in entries
     text = (package / "bibliography.txt").read_text(encoding="utf-8")
