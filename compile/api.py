@@ -465,7 +465,8 @@ def export(
     command: str | None = None,
     curve_screened: str = SYNTHESIS_SCREENED,
 ) -> ExportResult:
-    """The filtered records of one version with bibliography and manifest; with ``curve``
+    """The filtered records of one version as a data package (the tables they depend on,
+    data dictionary, bibliography, README.txt, manifest: ``export.package``); with ``curve``
     (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
     manifest records every curve parameter and file, so the same command reproduces them.
     The curve reads ``filters`` with ``curve_screened`` for its screen states (default

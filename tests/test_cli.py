@@ -139,7 +139,8 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
     assert {"columns.csv", "README.txt", "chains.parquet", "ties.csv"} <= listed
     readme = (tmp_path / "d" / "export" / "README.txt").read_text(encoding="utf-8")
     assert "INVENTED DATA" in readme and "strata13 demo" in readme
-    assert "@misc{method-loess," in (tmp_path / "d" / "export" / "bibliography.bib").read_text()
+    bib = (tmp_path / "d" / "export" / "bibliography.bib").read_text(encoding="utf-8")
+    assert "@misc{method-loess," in bib and "@misc{rotation-orvanne-demo-2026," in bib
 
 
 COMMANDS = [

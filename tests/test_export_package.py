@@ -162,6 +162,9 @@ def test_bibtex_parses_and_cites_the_ties_only_source_and_the_chart(package: Pat
     assert "IUPAC-2014" in entries["vsmow-vpdb-iupac-2014"]["title"]
     assert any(k.startswith("rm-iaea-603") for k in entries)
     assert any(k.startswith("rule-") for k in entries)
+    # the rotation model only when it placed records (this store has none; the demo's does)
+    placed = int((records.paleo_status == "placed").sum())
+    assert bool([k for k in entries if k.startswith("rotation-")]) == bool(placed)
     # nothing is cited that the records do not use: no curve, no LOESS
     assert "method-loess" not in entries
     text = (package / "bibliography.txt").read_text(encoding="utf-8")
@@ -346,3 +349,60 @@ def test_an_empty_export_is_a_package_too(store_path: Path, tmp_path: Path) -> N
         assert pq.read_table(tmp_path / "e" / f"{name}.parquet").num_rows == 0
     _library(tmp_path / "e")  # parses (the chart and nothing else)
     assert "0 records" in (tmp_path / "e" / "README.txt").read_text(encoding="utf-8")
+
+
+cell_text = st.text(
+    alphabet=st.sampled_from(list("ab1.,\"'=+-@\t\r\n eE;") + ["δ", "‰"]), max_size=8
+)
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    rows=st.lists(
+        st.tuples(
+            st.none() | cell_text,
+            st.none() | st.floats(allow_nan=True, allow_infinity=True),
+            st.none() | st.integers(min_value=-(2**31), max_value=2**31 - 1),
+        ),
+        max_size=12,
+    ),
+    lone=st.booleans(),
+)
+def test_csv_writer_gives_the_bytes_of_pythons_csv_module(
+    tmp_path_factory: pytest.TempPathFactory, rows: list, lone: bool
+) -> None:
+    """The column-at-a-time CSV writer against the standard library's csv module on the same
+    cells (text neutralised, floats as repr, integers as digits, nulls empty): csv.reader
+    reads back every cell, and the bytes are csv.writer's — except that a carriage return
+    inside a cell is always quoted (Python 3.11's writer leaves it bare with a "\n"
+    terminator, which breaks the row for other readers)."""
+    import io
+
+    import pyarrow as pa
+    from strata13.compile.export.package import neutralise, write_csv
+
+    schema = pa.schema([("t", pa.string()), ("x", pa.float64()), ("n", pa.int32())])
+    table = pa.Table.from_pylist([dict(zip(schema.names, r, strict=True)) for r in rows], schema)
+    if lone:
+        table = table.select(["t"])
+    cells = [table.column_names] + [
+        [
+            ""
+            if v is None
+            else neutralise(v)
+            if k == "t"
+            else repr(float(v))
+            if k == "x"
+            else str(int(v))
+            for k, v in row.items()
+        ]
+        for row in table.to_pylist()
+    ]
+    path = tmp_path_factory.mktemp("csv") / "t.csv"
+    write_csv(table, path)
+    text = path.read_bytes().decode("utf-8")  # no newline translation
+    assert list(csv.reader(io.StringIO(text, newline=""))) == cells
+    if not any("\r" in c for r in cells for c in r):
+        ref = io.StringIO(newline="")
+        csv.writer(ref, lineterminator="\n").writerows(cells)
+        assert text == ref.getvalue()

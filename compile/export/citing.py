@@ -262,6 +262,34 @@ def _rules(screens: pa.Table) -> list[tuple[str, str, str, str]]:
     return out
 
 
+def _rotation_model(con: Any, settings: dict[str, Any]) -> list[tuple[str, str, str, str]]:
+    """The rotation model that placed the records, with the citation its document gives."""
+    from strata13.compile.paleo.rotations import parse_model
+
+    from strata13.errors import Strata13Error
+
+    text = settings.get("rotation_model_toml")
+    row = con.execute("SELECT count(*) FROM _exported WHERE paleo_status = 'placed'").fetchone()
+    placed = int(row[0]) if row else 0
+    if not text or not placed:
+        return []
+    try:
+        model = parse_model(str(text), "the store's rotation model")
+    except Strata13Error:  # the stored document no longer parses: cite it by name
+        name = str(settings.get("rotation_model_name") or "rotation model")
+        return [
+            (f"rotation-{name}", f"Rotation model {name}", name, f"paleo-positions of {_n(placed)}")
+        ]
+    return [
+        (
+            "rotation-" + "".join(ch if ch.isalnum() else "-" for ch in model.name.lower()),
+            f"Rotation model {model.name} (frame: {model.frame})",
+            model.citation or model.name,
+            f"paleo-positions of {_n(placed)}",
+        )
+    ]
+
+
 def references(
     con: Any,
     records: pa.Table,
@@ -279,6 +307,7 @@ def references(
     with exported(con, records):
         stored, roles, unknown = _source_roles(con, ties)
         methods = _charts(con, ties, chart) if chart else []
+        methods += _rotation_model(con, settings)
     entries = source_entries(stored, roles, unknown)
     methods += _materials(related["run_qc"].to_pylist())
     methods += _oxygen(related["chains"])

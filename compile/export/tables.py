@@ -34,6 +34,8 @@ KEY_COLUMNS = [
     "age_basis",
     "time_scale",
     "position_kind",
+    "paleo_status",
+    "paleo_model",
     "age_ma",
     "age_reported_ma",
     "age_reported_scale",
