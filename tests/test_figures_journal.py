@@ -194,11 +194,11 @@ def _coverage_figure(width: str) -> object:
 
     samples = pd.DataFrame(
         {
-            "age_ma": [183.9, 183.4, 182.6, 182.2],
-            "group": ["north", "north", "south", "south"],
+            "age_ma": [183.9, 183.4, 182.6, 182.2, 182.7, 182.8, 182.9],
+            "group": ["north", "north", "south", "south", "south", "south", "north"],
             "component": "bulk",
             "source_id": "s",
-            "section_id": ["A", "A", "B", "C"],
+            "section_id": ["A", "A", "B", "C", "D", "E", "F"],
         }
     )
     table = counts(samples, [184.0, 183.5, 183.0, 182.5, 182.0])
@@ -338,3 +338,22 @@ def test_cross_plot_regression_colours_and_markers() -> None:
     labels = [t.get_text() for t in fig.legends[0].get_texts()]
     assert {"bulk", "micrite", "passed (20)", "warned (kept) (6)", "failed (4)"} <= set(labels)
     assert any(f"slope {ref.slope:.2f}" in t for t in labels)
+
+
+def test_coverage_colours_are_one_per_whole_count() -> None:
+    # Source: matplotlib's BoundaryNorm contract: boundaries at k ± 0.5 map each integer k to
+    # its own colour of the resampled map, and the colour bar ticks sit on the integers
+    from matplotlib.colors import BoundaryNorm
+
+    fig = _coverage_figure("double")
+    meshes = [c for ax in fig.axes for c in ax.collections if hasattr(c, "norm")]  # type: ignore[attr-defined]
+    assert meshes
+    norm, cmap = meshes[0].norm, meshes[0].get_cmap()
+    assert isinstance(norm, BoundaryNorm)
+    top = int(norm.boundaries[-1] - 0.5)
+    assert top == 3  # three sections in the south's 183.0–182.5 Ma cell
+    assert list(norm.boundaries) == [k + 0.5 for k in range(top + 1)] and cmap.N == top
+    colours = {tuple(cmap(norm(k))) for k in range(1, top + 1)}
+    assert len(colours) == top  # every count its own colour
+    bar = [ax for ax in fig.axes if ax.get_ylabel() == "sections per cell"]  # type: ignore[attr-defined]
+    assert bar and [float(t) for t in bar[0].get_yticks()] == [float(k) for k in range(1, top + 1)]
