@@ -194,11 +194,11 @@ def _coverage_figure(width: str) -> object:
 
     samples = pd.DataFrame(
         {
-            "age_ma": [183.9, 183.4, 182.6, 182.2],
-            "group": ["north", "north", "south", "south"],
+            "age_ma": [183.9, 183.4, 182.6, 182.2, 182.7, 182.8, 182.9],
+            "group": ["north", "north", "south", "south", "south", "south", "north"],
             "component": "bulk",
             "source_id": "s",
-            "section_id": ["A", "A", "B", "C"],
+            "section_id": ["A", "A", "B", "C", "D", "E", "F"],
         }
     )
     table = counts(samples, [184.0, 183.5, 183.0, 182.5, 182.0])
@@ -298,3 +298,62 @@ def test_smoothed_band_edges_pass_through_every_percentile() -> None:
         assert np.allclose(a[at], lo[np.isin(pos, y)]) and np.allclose(m[at], med[np.isin(pos, y)])
         assert np.all(np.diff(a) <= 1e-12) and np.all(np.diff(b) <= 1e-12)  # monotone kept
         assert y.size > at.sum() or y.size <= 2
+
+
+def test_cross_plot_names_the_rule_and_outcome_with_r_to_its_digits() -> None:
+    from strata13.compile.screening.plots import _line
+
+    g = {"rule": "d13c-d18o-covariance", "r": 0.99612, "r2": 0.99226, "n": 16}
+    line = _line(g | {"n_eff": 3.9, "p": 0.0055, "outcome": "warn"})
+    assert line.startswith("rule d13c-d18o-covariance: warned (kept)")
+    assert "r = 0.996," in line and "r² = 0.99," in line  # r not 1.00; r² is 0.99 to 2 places
+    line = _line(g | {"r": -0.0631, "r2": 0.00398, "n_eff": 12.0, "p": 0.86, "outcome": "pass"})
+    assert "passed" in line and "r = −0.06," in line and "r² = 0.004," in line
+
+
+def test_cross_plot_regression_colours_and_markers() -> None:
+    # Source: scipy.stats.linregress for the least-squares line of δ13C on δ18O
+    from scipy.stats import linregress
+    from strata13.compile.screening.plots import _component_styles, _one, regression
+
+    rng = np.random.default_rng(7)
+    x = rng.normal(-2.5, 0.4, 30)
+    y = 1.1 * x + 4.0 + rng.normal(0, 0.1, 30)
+    ref = linregress(x, y)
+    slope, intercept = regression(x, y)  # type: ignore[misc]
+    assert slope == pytest.approx(ref.slope) and intercept == pytest.approx(ref.intercept)
+    assert regression(x[:2], y[:2]) is None and regression(np.ones(5), y[:5]) is None
+
+    comps = np.array(["bulk"] * 15 + ["micrite"] * 15, dtype=object)
+    mark = np.array(["pass"] * 20 + ["warn"] * 6 + ["fail"] * 4, dtype=object)
+    styles = _component_styles(["bulk", "micrite"])
+    with style.journal("single"):
+        fig = _one(x, y, mark, comps, styles, "src", "sec", ["rule r: passed"], "single")
+    ax = fig.axes[0]
+    faces = {tuple(np.round(c.get_facecolors()[0][:3], 3)) for c in ax.collections}
+    assert len(faces) == 2  # one colour per component
+    line = ax.lines[0]
+    xs, ys = line.get_xdata(), line.get_ydata()
+    assert ys[0] == pytest.approx(ref.slope * xs[0] + ref.intercept)
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert {"bulk", "micrite", "passed (20)", "warned (kept) (6)", "failed (4)"} <= set(labels)
+    assert any(f"slope {ref.slope:.2f}" in t for t in labels)
+
+
+def test_coverage_colours_are_one_per_whole_count() -> None:
+    # Source: matplotlib's BoundaryNorm contract: boundaries at k ± 0.5 map each integer k to
+    # its own colour of the resampled map, and the colour bar ticks sit on the integers
+    from matplotlib.colors import BoundaryNorm
+
+    fig = _coverage_figure("double")
+    meshes = [c for ax in fig.axes for c in ax.collections if hasattr(c, "norm")]  # type: ignore[attr-defined]
+    assert meshes
+    norm, cmap = meshes[0].norm, meshes[0].get_cmap()
+    assert isinstance(norm, BoundaryNorm)
+    top = int(norm.boundaries[-1] - 0.5)
+    assert top == 3  # three sections in the south's 183.0–182.5 Ma cell
+    assert list(norm.boundaries) == [k + 0.5 for k in range(top + 1)] and cmap.N == top
+    colours = {tuple(cmap(norm(k))) for k in range(1, top + 1)}
+    assert len(colours) == top  # every count its own colour
+    bar = [ax for ax in fig.axes if ax.get_ylabel() == "sections per cell"]  # type: ignore[attr-defined]
+    assert bar and [float(t) for t in bar[0].get_yticks()] == [float(k) for k in range(1, top + 1)]

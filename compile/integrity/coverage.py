@@ -150,7 +150,7 @@ def _heatmap_figure(
     ax.tick_params(axis="y", length=0)
     age.set_age_axis(ax, old, young, width=width)
     text = title + "\neach cell: sections (samples); hatched: no data"
-    ax.set_title(plain(wrap(text, width, 0.95)), loc="left")
+    fig.suptitle(plain(wrap(text, width, 0.95)), x=0.01, ha="left", fontsize=None)
     if im is not None:
         cb = fig.colorbar(im, ax=ax, ticks=range(1, top + 1), fraction=0.04, pad=0.02)
         cb.set_label("sections per cell")

@@ -20,7 +20,7 @@ if TYPE_CHECKING:
 AGE_LABEL = "Age (Ma)"
 OLDER_ON_LEFT = True
 TIME_DIRECTION = "older to the left: age (Ma) decreases from left to right"
-STAGE_SHADE = ("#ececec", "#f7f7f7")  # alternating stage bands in a plot
+STAGE_SHADE = ("#f2f2f2", "#fafafa")  # alternating stage bands in a plot
 STAGE_STRIP = ("#d6d6d6", "#efefef")  # alternating boxes in the name strip
 STRIP_IN = 0.2  # height of the stage strip in inches
 
@@ -36,7 +36,7 @@ def set_age_axis(
 
     ax.set_xlim((old, young) if OLDER_ON_LEFT else (young, old))
     ax.xaxis.set_major_locator(
-        MaxNLocator(nbins=5 if width == "single" else 9, steps=[1, 2, 5, 10])
+        MaxNLocator(nbins=6 if width == "single" else 9, steps=[1, 2, 5, 10])
     )
     if label:
         ax.set_xlabel(AGE_LABEL)

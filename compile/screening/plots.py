@@ -28,8 +28,8 @@ NO_COMPONENT = "component not stated"
 HEIGHT_IN = {"single": 3.6, "double": 4.2}
 # marker, marker area (pt²), edge colour — failed and warned stand out from the rest
 STYLES = {
-    "pass": ("o", 16.0, "white"),
-    "untested": ("o", 16.0, "0.45"),
+    "pass": ("o", 20.0, "white"),
+    "untested": ("o", 20.0, "0.45"),
     "warn": ("^", 30.0, "#3d2300"),
     "fail": ("X", 40.0, "#2b0000"),
 }
@@ -256,9 +256,17 @@ def _line(g: dict[str, Any]) -> str:
     outcome = OUTCOME_WORDS.get(str(g["outcome"]), str(g["outcome"]))
     return (
         f"rule {g['rule']}: {outcome}\n"
-        f"r = {f(g['r'], _near_one(g['r']))}, r² = {f(g['r2'], _near_one(g['r2']))}, "
+        f"r = {f(g['r'], _near_one(g['r']))}, r² = {f(g['r2'], _digits(g['r2']))}, "
         f"n = {g['n']}, n_eff = {f(g['n_eff'], '.1f')}, p = {f(g['p'], '.2g')}"
     )
+
+
+def _digits(v: Any) -> str:
+    """Decimals for r²: those near 1 as ``_near_one``, one significant digit below 0.01
+    (0.005, not 0.00)."""
+    if isinstance(v, float) and np.isfinite(v) and 0.0 < abs(v) < 0.005:
+        return ".1g"
+    return _near_one(v)
 
 
 def _near_one(v: Any) -> str:
