@@ -119,8 +119,8 @@ def ingest(
         prec = readable(q["precision_1s"], unit="‰", blank="—") + (
             " ‰" if q["precision_1s"] is not None else ""
         )
-        res = ", ".join(
-            f"{k} {readable(v, unit='‰', signed=True)} ‰"
+        res = ", ".join(  # a residual to the run's precision, when it has one
+            f"{k} {readable(v, unit='‰', sigma=q['precision_1s'], signed=True)} ‰"
             for k, v in json.loads(q["residuals_json"]).items()
         )
         drift = ""
@@ -130,7 +130,7 @@ def ingest(
                 f" ± {readable(sd, sigma=sd)} (1σ)" if sd is not None else " (1σ unknown)"
             )
         render.message(
-            f"run {q['run_id']} {q['isotope']}: slope {readable(q['slope'], digits=5)}, "
+            f"run {q['run_id']} {q['isotope']}: slope {readable(q['slope'], decimals=4)}, "
             f"intercept {readable(q['intercept'], unit='‰', signed=True)} ‰ ({q['anchors']}); "
             "check residuals "
             f"{res or '—'} ({q['check_status'] or 'no check'}); precision 1σ {prec}{drift}"

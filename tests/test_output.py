@@ -268,3 +268,18 @@ def test_stages_in_a_narrow_terminal(tmp_path: Path) -> None:
     _whole(lines, ["Toarcian", "184.2", "174.7", "0.153", "sigma_ma"])
     assert "columns left out to fit the terminal" in text  # and the note says what went
     assert "±" not in text and "1σ" not in text and "False" not in text
+
+
+def test_no_rows_in_a_narrow_terminal_names_the_columns() -> None:
+    lines, left = layout.lay_out(COLUMNS, [], 20)
+    assert left == [] and lines == [(f"no rows (columns: {', '.join(COLUMNS)})", False)]
+    lines, left = layout.lay_out(["a", "b"], [], 20)
+    assert [t for t, _ in lines] == ["a  b", "─  ─"]
+
+
+def test_signed_and_fixed_places() -> None:
+    assert readable(0.327, unit="‰", signed=True) == "+0.327"
+    assert readable(-8.3e-05, unit="‰", sigma=0.004, signed=True) == "-0.0001"
+    assert readable(0.0, unit="‰", signed=True) == "0"
+    assert readable(0.994812, decimals=4) == "0.9948"
+    assert readable(-0.00001, decimals=3) == "0.000"  # no minus before a zero
