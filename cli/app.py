@@ -17,6 +17,7 @@ from strata13.cli import (
     init,
     integrity,
     listing,
+    move,
     propose,
     query,
     reharmonise,
@@ -78,6 +79,7 @@ app.command("corrections")(integrity.corrections)
 app.command("overlaps")(integrity.overlaps)
 app.command("coverage")(integrity.coverage)
 app.command("compact")(compact.compact)
+app.command("move-catalog")(move.move_catalog)
 
 
 def main(argv: list[str] | None = None) -> None:

@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
+from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, WidthOpt, check_format
 
 from strata13.numbers import readable
 
@@ -174,9 +174,13 @@ def agemodel(
     plot: Annotated[
         Path | None,
         typer.Option(
-            "--plot", help="Write the age–position figure (PNG) here.", show_default=False
+            "--plot",
+            help="Write the age–position figure here: FILE.png, with FILE.svg and FILE.pdf "
+            "beside it.",
+            show_default=False,
         ),
     ] = None,
+    width: WidthOpt = "double",
     fmt: FormatOpt = "table",
     out: OutOpt = None,
     store: StoreOpt = None,
@@ -186,8 +190,10 @@ def agemodel(
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if plot is not None:
-        api.output_file(plot, option="--plot", stores=[path])
+        for figure_file in api.figure_files(plot):
+            api.output_file(figure_file, option="--plot", stores=[path])
     s = api.open_store(path)
     m = api.agemodel(s, section)
     rows = [
@@ -222,7 +228,8 @@ def agemodel(
     else:
         render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
     if plot is not None:
-        render.message(f"wrote {api.plot_agemodel(m, plot, api.figure_note(s))}")
+        files = api.plot_agemodel(m, plot, api.figure_note(s), width)
+        render.message("wrote " + ", ".join(str(f) for f in files))
 
 
 def replace_rotations(

@@ -60,6 +60,16 @@ def init(
             "ties (flagged). Off by default.",
         ),
     ] = False,
+    catalog: Annotated[
+        str | None,
+        typer.Option(
+            "--catalog",
+            help="Where the catalog lives: 'embedded' (a file in the store folder, the "
+            "default) or postgres:CONNINFO (a libpq connection string or service name of an "
+            "empty database, shared by a group; no password in it: libpq reads ~/.pgpass).",
+            show_default=False,
+        ),
+    ] = None,
 ) -> None:
     """Create a new, empty store and choose its settings."""
     from strata13.compile import api
@@ -72,6 +82,7 @@ def init(
         age_extrapolation=extrapolate,
         materials=materials,
         rotations=rotations,
+        catalog=catalog,
     )
     render.message(
         f"created store {s.path} (version 1; time scale "

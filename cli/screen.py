@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
+from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, WidthOpt, check_format
 from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
 
 GROUP_COLUMNS = [
@@ -53,10 +53,11 @@ def screen(
         Path | None,
         typer.Option(
             "--plot",
-            help="Write one δ13C–δ18O cross-plot per section (PNG) into this folder.",
+            help="Write one δ13C–δ18O cross-plot per section (PNG, SVG, PDF) into this folder.",
             show_default=False,
         ),
     ] = None,
+    width: WidthOpt = "double",
     filters: FilterArgs = NO_FILTERS,
     fmt: FormatOpt = "table",
     out: OutOpt = None,
@@ -71,6 +72,7 @@ def screen(
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if untested not in (None, "fails", "passes"):
         raise OptionError(
             f"--untested {untested!r} is not 'fails' or 'passes'.", "Example: --untested passes"
@@ -123,5 +125,6 @@ def screen(
                 + ", ".join(f"{d['values']} {d['counts']}" for d in sorted(overall, key=str))
             )
         if plot is not None:
-            files = api.screen_plots(s, records, screening, plot)
-            render.message(f"wrote {len(files)} cross-plots to {plot}")
+            files = api.screen_plots(s, records, screening, plot, width)
+            pngs = [f for f in files if f.suffix == ".png"]
+            render.message(f"wrote {len(pngs)} cross-plots (PNG, SVG, PDF) to {plot}")

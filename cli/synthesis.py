@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, StoreOpt, check_format, command_line
+from strata13.cli.common import FormatOpt, StoreOpt, WidthOpt, check_format, command_line
 from strata13.cli.filters import NO_FILTERS, SYNTHESIS_SCREENED, FilterArgs, filter_options
 
 from strata13.numbers import readable
@@ -92,6 +92,7 @@ def curve_request(
     by: str | None,
     allow_mixed: bool,
     robustness: bool,
+    width: str = "double",
 ) -> tuple[CurveRequest, dict[str, object]]:
     """The curve options as a checked request, and as a command line names them."""
     from strata13.compile import api
@@ -108,6 +109,7 @@ def curve_request(
         by,
         allow_mixed,
         robustness,
+        width=width,
     )
     req.check()
     given: dict[str, object] = {
@@ -122,6 +124,7 @@ def curve_request(
         "age_draws": age_draws,
         "allow_mixed": allow_mixed,
         "robustness": robustness,
+        "width": width,
     }
     return req, given
 
@@ -141,10 +144,12 @@ def curve(
     age_draws: DrawsOpt = 0,
     allow_mixed: MixedOpt = False,
     robustness: RobustOpt = False,
+    width: WidthOpt = "double",
     store: StoreOpt = None,
 ) -> None:
     """A composite δ13C curve per group: binned statistics, LOESS with a section-bootstrap
-    band, optional age draws and leave-one-out robustness; CSVs, PNG, SVG and a manifest."""
+    band, optional age draws and leave-one-out robustness; CSVs, the figure (PNG, SVG,
+    PDF) and a manifest."""
     from strata13.compile import api
 
     path = api.store_path(store)
@@ -161,6 +166,7 @@ def curve(
         by,
         allow_mixed,
         robustness,
+        width,
     )
     s = api.open_store(path)
     res = api.curve(
@@ -219,10 +225,19 @@ def excursion(
         typer.Option(
             "--out",
             help="Folder for the tables (CSV and Parquet), their column list, the figure "
-            "aligned on onset with the ranges, and a manifest.",
+            "aligned on onset with the ranges (PNG, SVG, PDF), and a manifest.",
             show_default=False,
         ),
     ] = None,
+    width: WidthOpt = "double",
+    shared_axis: Annotated[
+        bool,
+        typer.Option(
+            "--shared-axis/--own-axis",
+            help="One δ axis for all section panels, so magnitudes compare by eye (the "
+            "default); --own-axis scales each panel to its section.",
+        ),
+    ] = True,
     store: StoreOpt = None,
 ) -> None:
     """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset,
@@ -234,6 +249,7 @@ def excursion(
 
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if out is not None:
         api.output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
@@ -255,6 +271,8 @@ def excursion(
         "draws": draws,
         "seed": seed,
         "no_bootstrap": not bootstrap,  # the default is on: only its absence is written
+        "width": width,
+        "own_axis": not shared_axis,  # the default is shared: only its absence is written
     }
     res = api.excursion(
         s,
@@ -268,6 +286,8 @@ def excursion(
         bootstrap=bootstrap,
         out=out,
         command=command_line("excursion", s.path, options) if out is not None else None,
+        width=width,
+        shared_axis=shared_axis,
     )
     for note in res.notes:
         render.note(note)

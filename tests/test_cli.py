@@ -134,6 +134,12 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
     assert res.returncode == 0, res.stderr
     manifest = json.loads((tmp_path / "d" / "export" / "manifest.json").read_text())
     assert manifest["counts"]["records"] > 100 and manifest["counts"]["sections"] >= 6
+    # the package: dictionary, README with the invented-data warning, LOESS cited with the curve
+    listed = {f["path"] for f in manifest["files"]}
+    assert {"columns.csv", "README.txt", "chains.parquet", "ties.csv"} <= listed
+    readme = (tmp_path / "d" / "export" / "README.txt").read_text(encoding="utf-8")
+    assert "INVENTED DATA" in readme and "strata13 demo" in readme
+    assert "@misc{method-loess," in (tmp_path / "d" / "export" / "bibliography.bib").read_text()
 
 
 COMMANDS = [

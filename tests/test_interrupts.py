@@ -51,8 +51,8 @@ class Proxy:
 
 
 @contextlib.contextmanager
-def writer(self):
-    with real_writer(self) as con:
+def writer(self, *args):
+    with real_writer(self, *args) as con:
         yield Proxy(con)
 
 

@@ -56,9 +56,11 @@ def write_source(folder: Path, rows: list[tuple[str, float, str]], name: str = "
     return m
 
 
-def test_reingest_reports_added_removed_changed_and_keeps_ids(tmp_path: Path) -> None:
+def test_reingest_reports_added_removed_changed_and_keeps_ids(
+    tmp_path: Path, catalog: str | None
+) -> None:
     m = write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "1.5"), ("c", 3, "2.0")])
-    store = api.init_store(tmp_path / "st")
+    store = api.init_store(tmp_path / "st", catalog=catalog)
     first = api.ingest(store, None, m)
     assert (first.added, first.removed, first.changed) == (3, 0, 0)
     before = api.query(store)
@@ -73,9 +75,9 @@ def test_reingest_reports_added_removed_changed_and_keeps_ids(tmp_path: Path) ->
     assert again.unchanged and again.version is None
 
 
-def test_refused_ingest_leaves_store_bytes_unchanged(tmp_path: Path) -> None:
+def test_refused_ingest_leaves_store_bytes_unchanged(tmp_path: Path, catalog: str | None) -> None:
     m = write_source(tmp_path, [("a", 1, "1.0")])
-    store = api.init_store(tmp_path / "st")
+    store = api.init_store(tmp_path / "st", catalog=catalog)
     api.ingest(store, None, m)
     before = tree_bytes(store.path)
     m = write_source(tmp_path, [("a", 1, "1.0"), ("b", 2, "abc"), ("", 3, "1")])
@@ -200,8 +202,10 @@ def two_sources(tmp_path: Path, prefix: str, rows: int) -> list[Path]:
 
 
 @pytest.mark.slow
-def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(tmp_path: Path) -> None:
-    store = api.init_store(tmp_path / "st")
+def test_concurrent_ingests_both_land_and_a_reader_sees_one_snapshot(
+    tmp_path: Path, catalog: str | None
+) -> None:
+    store = api.init_store(tmp_path / "st", catalog=catalog)
     maps = two_sources(tmp_path, "conc", 50)
     con, version = store.reader()
     n_before = con.execute("SELECT count(*) FROM records").fetchone()[0]
@@ -249,8 +253,8 @@ class Proxy:
 
 
 @contextlib.contextmanager
-def writer(self):
-    with real_writer(self) as con:
+def writer(self, *args):
+    with real_writer(self, *args) as con:
         yield Proxy(con)
 
 
@@ -265,9 +269,11 @@ api.ingest(sys.argv[1], None, sys.argv[2])
 
 @pytest.mark.slow
 @pytest.mark.parametrize("when", ["before", "after"])
-def test_kill_9_around_commit_is_all_or_nothing(tmp_path: Path, when: str) -> None:
+def test_kill_9_around_commit_is_all_or_nothing(
+    tmp_path: Path, when: str, catalog: str | None
+) -> None:
     m = write_source(tmp_path, [(f"a{i}", i, "1.0") for i in range(20)])
-    store = api.init_store(tmp_path / "st")
+    store = api.init_store(tmp_path / "st", catalog=catalog)
     api.ingest(store, None, m)
     v = store.latest_version()
     m2 = write_source(tmp_path, [(f"b{i}", i, "2.0") for i in range(500)], "big.csv")
@@ -291,9 +297,9 @@ def test_kill_9_around_commit_is_all_or_nothing(tmp_path: Path, when: str) -> No
     assert api.sql(store, "SELECT count(*) FROM records").rows[0][0] == 1
 
 
-def test_fault_before_commit_leaves_store_unchanged(tmp_path: Path) -> None:
+def test_fault_before_commit_leaves_store_unchanged(tmp_path: Path, catalog: str | None) -> None:
     m = write_source(tmp_path, [(f"a{i}", i, "1.0") for i in range(5)])
-    store = api.init_store(tmp_path / "st")
+    store = api.init_store(tmp_path / "st", catalog=catalog)
     api.ingest(store, None, m)
     v = store.latest_version()
     m2 = write_source(tmp_path, [("x", 1, "3.0")], "x.csv")
@@ -431,8 +437,10 @@ def test_mapping_comment_edit_makes_no_version_but_a_citation_edit_does(tmp_path
     assert "corrected" in api.sources(store)[0]["citation"]
 
 
-def test_a_store_from_before_a_new_column_reads_and_migrates(tmp_path: Path) -> None:
-    store = api.init_store(tmp_path / "st")
+def test_a_store_from_before_a_new_column_reads_and_migrates(
+    tmp_path: Path, catalog: str | None
+) -> None:
+    store = api.init_store(tmp_path / "st", catalog=catalog)
     api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0")]))
     with store.writer() as con:  # make it look like a store written before the column existed
         con.execute("ALTER TABLE lake.analyses DROP COLUMN locality_name")

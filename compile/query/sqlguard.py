@@ -57,6 +57,7 @@ REFUSED_FUNCTION_PREFIXES = (
     "pragma_",
     "ducklake_",
     "sqlite_",
+    "postgres_",
     "parquet_",
     "read_",
     "json_serialize",

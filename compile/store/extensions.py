@@ -1,4 +1,4 @@
-"""Loading the DuckLake and SQLite extensions, with their signatures checked once per file.
+"""Loading the DuckLake, SQLite and PostgreSQL extensions, signatures checked once per file.
 
 DuckDB checks an extension's signature on every LOAD, which costs ~0.1 s per extension and
 connection — most of a small command's start. The binaries come from signed wheels in
@@ -26,12 +26,19 @@ if TYPE_CHECKING:
 WHEELS = (
     ("ducklake", "duckdb_extension_ducklake"),
     ("sqlite_scanner", "duckdb_extension_sqlite_scanner"),
+    ("postgres_scanner", "duckdb_extension_postgres_scanner"),
 )
+EMBEDDED = ("ducklake", "sqlite_scanner")  # what a store on its embedded catalog loads
+PIP_NAMES = {
+    "ducklake": "duckdb-extension-ducklake",
+    "sqlite_scanner": "duckdb-extension-sqlite-scanner",
+    "postgres_scanner": "duckdb-extension-postgres-scanner",
+}
 
 
 @cache
 def extension_files() -> dict[str, str | None]:
-    """Paths of the signed DuckLake and SQLite extension binaries shipped as wheels."""
+    """Paths of the signed extension binaries shipped as wheels (None: no wheel here)."""
     out: dict[str, str | None] = {}
     for name, module in WHEELS:
         try:
@@ -80,11 +87,11 @@ def _remember(identities: list[str]) -> None:
     _verified.cache_clear()
 
 
-def connect() -> duckdb.DuckDBPyConnection:
-    """An in-memory DuckDB with the DuckLake and SQLite extensions loaded."""
+def connect(names: tuple[str, ...] = EMBEDDED) -> duckdb.DuckDBPyConnection:
+    """An in-memory DuckDB with the extensions ``names`` loaded (the catalog says which)."""
     import duckdb
 
-    files = extension_files()
+    files = {n: p for n, p in extension_files().items() if n in names}
     ids = [_identity(p) if p else None for p in files.values()]
     checked = all(i is not None and i in _verified() for i in ids)
     config: dict[str, str | bool | int | float | list[str]] = (
@@ -102,8 +109,7 @@ def connect() -> duckdb.DuckDBPyConnection:
             con.close()
             raise StoreError(
                 f"the DuckDB extension {name} could not be loaded ({exc}).",
-                "Install duckdb-extension-ducklake and "
-                "duckdb-extension-sqlite-scanner matching your duckdb version.",
+                f"Install {PIP_NAMES.get(name, name)} matching your duckdb version.",
             ) from None
     if not checked:  # every LOAD above ran with DuckDB's signature check on
         _remember([i for i in ids if i is not None])

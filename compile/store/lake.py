@@ -1,32 +1,40 @@
-"""The store: a DuckLake lakehouse (SQLite catalog + Parquet files) in one folder.
+"""The store: a DuckLake lakehouse (a catalog + Parquet files) in one folder.
 
 Layout of a store folder::
 
-    strata13-store.json   marker: what this folder is (only init/ingest/demo create it)
-    catalog.sqlite        DuckLake catalog (WAL journal, busy timeout)
+    strata13-store.json   marker: what this folder is and where its catalog is
+    catalog.sqlite        the embedded DuckLake catalog (WAL journal, busy timeout), or
+                          none when the marker names a PostgreSQL catalog
     data/                 Parquet data files (inlining off: all data are Parquet)
-    writer.lock           flock target: one writer at a time, released by the kernel on crash
+    writer.lock           flock target of the embedded catalog: one writer at a time,
+                          released by the kernel on crash (a PostgreSQL catalog uses an
+                          advisory lock on the server instead)
 
 Every write (init, ingest, recompute, correct, overlaps confirm) is one
 :meth:`Store.transaction` across all tables; its DuckLake snapshot id is the store version.
-Writers take the OS lock *before* attaching and write from one connection and one thread;
-readers attach READ_ONLY and pin one snapshot. The catalog backend sits behind
+Writers take the catalog's writer lock *before* attaching and write from one connection
+and one thread; readers attach READ_ONLY and pin one snapshot. The catalog backend sits behind
 ``catalog.Catalog``; readers and the writer see the same relation names (``relations``).
 """
 
 from __future__ import annotations
 
 import contextlib
-import fcntl
 import json
 import os
-import time
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from strata13.compile.store.catalog import CATALOG_FILE, SqliteCatalog, attach
+from strata13.compile.store.catalog import (
+    CATALOG_FILE,
+    LOCK_FILE,
+    Catalog,
+    WriterLock,
+    attach,
+    from_spec,
+)
 from strata13.compile.store.extensions import connect
 from strata13.compile.store.files import Orphans
 from strata13.compile.store.relations import bind_views
@@ -42,7 +50,7 @@ if TYPE_CHECKING:
 MARKER = "strata13-store.json"
 CATALOG = CATALOG_FILE
 DATA = "data"
-LOCK = "writer.lock"
+LOCK = LOCK_FILE
 LOCK_TIMEOUT_S = float(os.environ.get("STRATA13_LOCK_TIMEOUT", "600"))
 __all__ = ["Store", "Transaction", "Version", "connect", "is_store"]
 
@@ -63,9 +71,12 @@ class Version:
 class Store:
     """One store folder. Open it with :meth:`open` or create it with :meth:`create`."""
 
-    def __init__(self, path: Path) -> None:
+    def __init__(self, path: Path, catalog: Catalog | None = None) -> None:
         self.path = path.resolve()
-        self.catalog = SqliteCatalog(self.path / CATALOG)
+        self.catalog = catalog or from_spec(_marker_catalog(self.path), self.path)
+        self._lock: WriterLock | None = None  # the writer lock while a writer holds it
+        # shared read connections by requested version (None: the latest), see reader()
+        self._readers: dict[int | None, tuple[duckdb.DuckDBPyConnection, int]] = {}
 
     # ------------------------------------------------------------ creation and opening
     @classmethod
@@ -93,9 +104,12 @@ class Store:
                 f"{marker.get('schema_version')}; this one reads {SCHEMA_VERSION}).",
                 "Upgrade strata13 to use this store.",
             )
-        if not (path / CATALOG).is_file():
-            raise StoreError(f"{path} has no catalog ({CATALOG}).", "Restore it from a copy.")
-        return cls(path)
+        catalog = from_spec(marker.get("catalog"), path.resolve())
+        if not catalog.exists():
+            raise StoreError(
+                f"{path} has no catalog ({catalog.describe()}).", "Restore it from a copy."
+            )
+        return cls(path, catalog)
 
     @classmethod
     def create(
@@ -105,8 +119,11 @@ class Store:
         settings_hash: str,
         regions: list[tuple[str, str, str]] | None = None,
         made_by: str = "init",
+        catalog: str | None = None,
     ) -> Store:
-        """Make a new store folder with every table, the settings and (optional) regions.
+        """Make a new store folder with every table, the settings and (optional) regions;
+        ``catalog`` names a PostgreSQL catalog (``postgres:CONNINFO``, an empty database)
+        instead of the embedded file.
 
         The store is built in a hidden sibling folder and renamed into place, so a store
         folder either does not exist or is complete; two processes creating the same store
@@ -124,13 +141,26 @@ class Store:
                 f"{path} exists and is not an empty folder.",
                 "Choose a new or empty folder for the store.",
             )
+        chosen = from_spec(catalog, path.resolve())  # a bad --catalog: before the disk
+        if not chosen.is_fresh():
+            raise StoreError(
+                f"the catalog {chosen.describe()} already holds a store's versions.",
+                "Name an empty database for a new store; a store folder that already "
+                "uses this catalog can be shared as it is.",
+            )
         path.parent.mkdir(parents=True, exist_ok=True)
         tmp = path.parent / f".{path.name}.creating-{uuid.uuid4().hex[:12]}"
         tmp.mkdir()
         try:
-            store = cls(tmp)
+            store = cls(tmp, from_spec(catalog, tmp.resolve()))
             (tmp / DATA).mkdir()
             with store.transaction("init") as tx:  # migrating an empty catalog makes every table
+                if tx.latest_version() > 0:  # another init reached the same database first
+                    raise StoreError(
+                        f"the catalog {chosen.describe()} was given a store by another "
+                        "process meanwhile.",
+                        "Name an empty database for a new store.",
+                    )
                 tx.write_settings(settings, settings_hash)
                 for name, geojson, src in regions or []:
                     tx.insert(
@@ -145,7 +175,7 @@ class Store:
                     {
                         "format": "strata13 store",
                         "schema_version": SCHEMA_VERSION,
-                        "catalog": CATALOG,
+                        "catalog": store.catalog.spec(),
                         "data": DATA + "/",
                         "made_by": made_by,
                     },
@@ -189,37 +219,30 @@ class Store:
 
     # ------------------------------------------------------------ connections
     @contextlib.contextmanager
-    def writer(self) -> Iterator[duckdb.DuckDBPyConnection]:
-        """The exclusive writer connection: flock first, then attach read-write.
+    def writer(self, command: str = "write") -> Iterator[duckdb.DuckDBPyConnection]:
+        """The exclusive writer connection: the catalog's writer lock first, then attach
+        read-write.
 
         Only :meth:`transaction` should use it; one connection, one thread.
         """
-        lock_path = self.path / LOCK
-        fd = os.open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
-        try:
-            deadline = time.monotonic() + LOCK_TIMEOUT_S
-            while True:
-                try:
-                    fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-                    break
-                except BlockingIOError:
-                    if time.monotonic() > deadline:
-                        raise StoreError(
-                            f"another strata13 process has been writing to {self.path}"
-                            f" for over {LOCK_TIMEOUT_S:g} s.",
-                            "Wait for it to finish, or check for a hung process.",
-                        ) from None
-                    time.sleep(0.05)
-            con = connect()
+        self._drop_readers()
+        with self.catalog.writer_lock(command, LOCK_TIMEOUT_S) as lock:
+            named = _marker_catalog(self.path)
+            if named is not None and named != self.catalog.spec():
+                raise StoreError(
+                    f"the store's catalog moved to {named.split(' password')[0]} while this "
+                    "command waited for the writer lock, so nothing was written.",
+                    "Run the command again.",
+                )
+            con = connect(self.catalog.extensions)
+            self._lock = lock
             try:
                 attach(con, self.catalog, self.path / DATA, read_only=False)
                 yield con
             finally:
+                self._lock = None
                 con.close()
-        finally:
-            with contextlib.suppress(OSError):
-                fcntl.flock(fd, fcntl.LOCK_UN)
-            os.close(fd)
+                self._drop_readers()  # reads made while writing saw the version before
 
     @contextlib.contextmanager
     def transaction(self, command: str, detail: str = "") -> Iterator[Transaction]:
@@ -231,7 +254,8 @@ class Store:
         """
         from strata13.compile import interrupts
 
-        with self.writer() as con:
+        committing = False
+        with self.writer(command) as con:
             con.execute("BEGIN")
             tx = Transaction(con, self.path / DATA, command, detail)
             started = tx.latest_version()  # under the lock: only this writer can move it
@@ -243,6 +267,13 @@ class Store:
                     return
                 interrupts.check()  # a Ctrl-C a library swallowed still stops the commit
                 version = tx._write_commit_row()
+                if self._lock is not None and not self._lock.still_held():
+                    raise StoreError(
+                        f"the writer lock of {self.catalog.describe()} was lost before the "
+                        "commit (its connection was cut), so nothing was written.",
+                        "Run the command again.",
+                    )
+                committing = True
                 con.execute("COMMIT")
                 interrupts.landed(self.path, version)
                 tx.version = version
@@ -251,8 +282,39 @@ class Store:
                     con.execute("ROLLBACK")
                 if not interrupts.is_interrupt(exc):
                     tx._discard_files()
-                    raise
+                    gone = self.catalog.unreachable(exc)
+                    if gone is None and self._lock is not None and not self._lock.still_held():
+                        gone = StoreError(
+                            f"the writer lock of {self.catalog.describe()} was lost (its "
+                            f"connection was cut) while {command} was writing ({exc}).",
+                            "Nothing was written; run the command again.",
+                        )
+                    if gone is None:
+                        raise
+                    raise self._lost(gone, started, committing) from None
                 raise self._interrupted(tx, started) from None
+
+    def _lost(self, gone: StoreError, started: int, committing: bool) -> StoreError:
+        """The catalog went away mid-write: before the commit nothing was written; during
+        it, the server decided, and the sentence says what it can tell."""
+        if not committing:
+            return gone
+        try:
+            now = self.latest_version()
+        except StoreError:
+            return StoreError(
+                f"the connection to {self.catalog.describe()} was lost during the commit, "
+                "so whether it landed cannot be told yet.",
+                "When the server is back, `strata13 history` shows whether it landed; "
+                "the store holds either the previous version or the new one, never half.",
+            )
+        if now > started:
+            return StoreError(
+                f"the connection to {self.catalog.describe()} was lost as the commit "
+                f"ended; it landed as version {now}.",
+                "See `strata13 history`.",
+            )
+        return gone
 
     def _interrupted(self, tx: Transaction, started: int) -> Interrupted:
         """The truth after Ctrl-C in a transaction: compare the latest version (the lock is
@@ -278,7 +340,7 @@ class Store:
         from strata13.compile.store.files import orphans
 
         data = (self.path / DATA).resolve()
-        with self.writer() as con:
+        with self.writer("compact") as con:
             found = orphans(con)
             mine = [p for p in found.files if p.resolve().is_relative_to(data)]
             size = _size(mine)
@@ -287,12 +349,50 @@ class Store:
                     p.unlink(missing_ok=True)
         return Orphans(mine, size)
 
-    def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
-        """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
+    def reader(
+        self, version: int | None = None, *, fresh: bool = False
+    ) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A read-only connection whose views all show one snapshot (the latest or ``version``).
+
+        The first read opens, attaches and binds the views once; later reads of the same
+        Store get a cursor of that connection (DuckDB shares attached catalogs and the
+        in-memory schema between cursors), so a command that reads several times pays for
+        the start once. A read of the latest version checks the catalog's newest snapshot
+        and rebinds when another writer moved it; a write through this Store drops the
+        shared connection. ``fresh`` gives a connection of its own (the ``sql`` sandbox locks
+        its connection's configuration, which must not reach later reads).
+        """
+        if fresh:
+            return self._open_reader(version, shared=False)
+        hit = self._readers.get(version)
+        if hit is not None:
+            con, v = hit
+            if version is not None or self._latest(con) == v:
+                return con.cursor(), v
+            self._drop_readers()
+        con, v = self._open_reader(version, shared=True)
+        self._readers[version] = (con, v)
+        return con.cursor(), v
+
+    def _drop_readers(self) -> None:
+        """Close the shared read connections (after a write they may show an old version)."""
+        for con, _ in self._readers.values():
+            con.close()
+        self._readers.clear()
+
+    def _open_reader(
+        self, version: int | None, shared: bool
+    ) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A new read-only connection with the views bound (``shared``: in its in-memory
+        schema, visible to its cursors; else as temp views of this connection alone)."""
         import duckdb
 
-        con = connect()
-        attach(con, self.catalog, self.path / DATA, read_only=True)
+        con = connect(self.catalog.extensions)
+        try:
+            attach(con, self.catalog, self.path / DATA, read_only=True)
+        except BaseException:
+            con.close()
+            raise
         latest = self._latest(con)
         v = latest if version is None else version
         if version is not None and not (1 <= version <= latest):
@@ -302,7 +402,7 @@ class Store:
                 "See `strata13 history`.",
             )
         try:
-            bind_views(con, v, latest=v == latest)
+            bind_views(con, v, latest=v == latest, shared=shared)
         except duckdb.Error as exc:
             con.close()
             raise StoreError(
@@ -317,7 +417,7 @@ class Store:
         return int(row[0]) if row else 0
 
     def latest_version(self) -> int:
-        con = connect()
+        con = connect(self.catalog.extensions)
         try:
             attach(con, self.catalog, self.path / DATA, read_only=True)
             return self._latest(con)
@@ -398,6 +498,17 @@ class Store:
             Version(int(v), str(snaps.get(v, ""))[:19], c, d, json.loads(s or "{}"))
             for v, c, d, s in rows
         ]
+
+
+def _marker_catalog(path: Path) -> str | None:
+    """The catalog the folder's marker names (None: the embedded file, as before markers
+    named it)."""
+    try:
+        marker = json.loads((path / MARKER).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    spec = marker.get("catalog") if isinstance(marker, dict) else None
+    return str(spec) if spec else None
 
 
 def _size(files: list[Path]) -> int:
