@@ -9,6 +9,8 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, WidthOpt, check_format
 
+from strata13.numbers import readable
+
 TIE_COLUMNS = [
     "position_m",
     "basis",
@@ -148,14 +150,16 @@ def redate(
     ):
         old, new = res.settings_before.get(key), res.settings_after.get(key)
         if new is not None and old != new:
-            render.message(f"  {label}: {'default' if old is None else f'{old:g}'} → {new:g}")
+            render.message(
+                f"  {label}: {'default' if old is None else readable(old)} → {readable(new)}"
+            )
     for col, n in sorted(res.changed.items()):
         if res.max_change[col] > 0:
             unit = api.change_unit(col)
             render.message(
                 f"  {col}: {n} values changed; largest change "
-                f"{res.max_change[col]:.4g}{unit}, median "
-                f"{res.median_change[col]:.4g}{unit}"
+                f"{readable(res.max_change[col], unit=unit.strip())}{unit}, median "
+                f"{readable(res.median_change[col], unit=unit.strip())}{unit}"
             )
         else:
             render.message(f"  {col}: {n} values newly set or cleared (none moved)")
@@ -253,7 +257,8 @@ def replace_rotations(
         if col in res.changed and res.max_change[col] > 0:
             render.message(
                 f"  {col}: {res.changed[col]} values changed; largest change "
-                f"{res.max_change[col]:.4g}°, median {res.median_change[col]:.4g}°"
+                f"{readable(res.max_change[col], unit='°')}°, median "
+                f"{readable(res.median_change[col], unit='°')}°"
             )
         elif col in res.changed:
             render.message(f"  {col}: {res.changed[col]} values newly set or cleared")

@@ -56,6 +56,8 @@ def lay_out(columns: list[str], cells: list[list[str]], width: int) -> tuple[lis
             keep.append(j)
             used += extra
     if len(keep) < n and (len(keep) < math.ceil(n / 2) or 0 not in keep):
+        if not cells:  # nothing to show record by record: say which columns there are
+            return [(f"no rows (columns: {', '.join(columns)})", False)], []
         return vertical(columns, cells, width), []
     widths = _share(width, [natural[j] for j in keep], [least[j] for j in keep])
     lines = _rows([columns[j] for j in keep], [[r[j] for j in keep] for r in cells], widths)

@@ -23,9 +23,12 @@ FORMATS = ("table", "csv", "json", "parquet")
 
 
 def _console(stderr: bool = True) -> Any:
+    """A console on stderr (messages) or stdout; prose wraps at spaces in a terminal (at its
+    width), never when piped (one message, one line)."""
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, soft_wrap=True)
+    stream = sys.stderr if stderr else sys.stdout
+    return Console(stderr=stderr, highlight=False, soft_wrap=not stream.isatty())
 
 
 def message(text: str) -> None:
@@ -120,8 +123,8 @@ def table(
             if title:
                 con.print(title, style="bold", markup=False)
             lines, left_out = layout.lay_out(list(columns), cells, layout.terminal_width())
-            for line, bold in lines:
-                con.print(line, style="bold" if bold else None, markup=False)
+            for line, bold in lines:  # laid out already: never re-wrapped
+                con.print(line, style="bold" if bold else None, markup=False, soft_wrap=True)
             if left_out:
                 con.print(layout.left_out_note(left_out, len(columns)), style="dim", markup=False)
             return

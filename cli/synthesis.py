@@ -10,6 +10,8 @@ from strata13.cli import render
 from strata13.cli.common import FormatOpt, StoreOpt, WidthOpt, check_format, command_line
 from strata13.cli.filters import NO_FILTERS, SYNTHESIS_SCREENED, FilterArgs, filter_options
 
+from strata13.numbers import readable
+
 if TYPE_CHECKING:
     from strata13.compile.api import CurveRequest
 
@@ -184,7 +186,8 @@ def curve(
         for r in top.itertuples():
             render.note(
                 f"influence [{r.group}] without {r.left_out}: largest change "
-                f"{r.max_abs_change:.3g} ‰, RMS {r.rms_change:.3g} ‰"
+                f"{readable(r.max_abs_change, unit='‰')} ‰, "
+                f"RMS {readable(r.rms_change, unit='‰')} ‰"
             )
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")

@@ -65,8 +65,24 @@ def readable(
     sigma: float | None = None,
     digits: int = SIGNIFICANT,
     blank: str = "",
+    signed: bool = False,
+    decimals: int | None = None,
 ) -> str:
-    """``x`` as text a person reads: see the module's rules. Booleans read yes/no."""
+    """``x`` as text a person reads: see the module's rules. Booleans read yes/no;
+    ``signed`` writes a plus sign before a positive value (offsets, residuals);
+    ``decimals`` fixes the places of a unitless number whose resolution is known (a slope)."""
+    if decimals is not None and isinstance(x, float) and math.isfinite(x):
+        text = f"{x:.{decimals}f}"
+        text = text[1:] if text.startswith("-") and text.strip("-0.") == "" else text
+    else:
+        text = _readable(x, unit, sigma, digits, blank)
+    if signed and isinstance(x, (int, float)) and not isinstance(x, bool):
+        if text[:1].isdigit() and text.strip("0.") != "":
+            return "+" + text
+    return text
+
+
+def _readable(x: object, unit: str | None, sigma: float | None, digits: int, blank: str) -> str:
     if x is None:
         return blank
     if isinstance(x, bool):

@@ -232,3 +232,54 @@ def test_screen_summary_keeps_its_tables_off_stderr(demo_store_session: Path) ->
     res = subprocess.run([*EXE, "scales", "--format", "csv"], capture_output=True, text=True)
     assert res.returncode == 0 and res.stdout.startswith("material,")
     assert "IUPAC-2014" not in res.stderr  # the relations table is data, not a message
+
+
+def test_stages_in_a_narrow_terminal(tmp_path: Path) -> None:
+    """A real command on a pseudo-terminal: at 60 columns the chart's table keeps every
+    number and header whole (shortened with a note, or one record per block)."""
+    import os
+    import pty
+
+    main, child = pty.openpty()
+    env = dict(os.environ, COLUMNS="60", NO_COLOR="1")
+    proc = subprocess.run(
+        [*EXE, "stages", "--interval", "Toarcian"],
+        stdout=child,
+        stderr=subprocess.PIPE,
+        env=env,
+        cwd=tmp_path,
+        timeout=120,
+    )
+    os.close(child)
+    chunks = []
+    while True:
+        try:
+            data = os.read(main, 65536)
+        except OSError:
+            break
+        if not data:
+            break
+        chunks.append(data)
+    os.close(main)
+    text = ANSI.sub("", b"".join(chunks).decode("utf-8")).replace("\r", "")
+    assert proc.returncode == 0, proc.stderr
+    lines = text.splitlines()
+    assert all(len(ln) <= 60 for ln in lines), lines  # prose wraps at spaces too
+    _whole(lines, ["Toarcian", "184.2", "174.7", "0.153", "sigma_ma"])
+    assert "columns left out to fit the terminal" in text  # and the note says what went
+    assert "±" not in text and "1σ" not in text and "False" not in text
+
+
+def test_no_rows_in_a_narrow_terminal_names_the_columns() -> None:
+    lines, left = layout.lay_out(COLUMNS, [], 20)
+    assert left == [] and lines == [(f"no rows (columns: {', '.join(COLUMNS)})", False)]
+    lines, left = layout.lay_out(["a", "b"], [], 20)
+    assert [t for t, _ in lines] == ["a  b", "─  ─"]
+
+
+def test_signed_and_fixed_places() -> None:
+    assert readable(0.327, unit="‰", signed=True) == "+0.327"
+    assert readable(-8.3e-05, unit="‰", sigma=0.004, signed=True) == "-0.0001"
+    assert readable(0.0, unit="‰", signed=True) == "0"
+    assert readable(0.994812, decimals=4) == "0.9948"
+    assert readable(-0.00001, decimals=3) == "0.000"  # no minus before a zero
