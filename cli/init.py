@@ -84,7 +84,8 @@ def init(
         rotations=rotations,
         catalog=catalog,
     )
+    where = f"; catalog {s.catalog.describe()}" if catalog else ""
     render.message(
         f"created store {s.path} (version 1; time scale "
-        f"{api.open_store(s.path).settings()['time_scale']})"
+        f"{api.open_store(s.path).settings()['time_scale']}{where})"
     )

@@ -131,7 +131,7 @@ def _prepare(admin: str, folder: Path | None, passdir: Path) -> PgServer:
         for role in (WRITER, READER):
             con.execute(
                 f"DO $$BEGIN CREATE ROLE {role} LOGIN PASSWORD '{role}-pw'; "
-                "EXCEPTION WHEN duplicate_object THEN NULL; END$$"
+                "EXCEPTION WHEN duplicate_object OR unique_violation THEN NULL; END$$"
             )
     port = int(str(conninfo_to_dict(admin).get("port", 5432)))
     passfile = passdir / "pgpass"
@@ -163,12 +163,14 @@ def own_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[PgServer]:
         server = _prepare(pg_server.start(folder), folder, tmp_path_factory.mktemp("pgpass"))
     except Exception as exc:
         pg_server.stop(folder)
+        shutil.rmtree(folder, ignore_errors=True)
         _no_server(exc)
         raise
     try:
         yield server
     finally:
         pg_server.stop(folder)
+        shutil.rmtree(folder, ignore_errors=True)
 
 
 @pytest.fixture(scope="session")

@@ -82,8 +82,9 @@ def test_a_writer_that_cannot_get_the_lock_names_its_holder_and_changes_nothing(
         m = write_source(tmp_path, [("b", 1, "2.0")], "b.csv")
         ran = run_cli("ingest", "--map", m, "--store", store.path)
         assert ran.code == 1, ran.err
-        assert f"ingest (pid {holder.pid} on {socket.gethostname()}, since " in ran.err
-        assert " UTC) for over 1 s, so nothing was written" in ran.err
+        assert "has been held for over 1 s by ingest (pid " in ran.err
+        assert f"(pid {holder.pid} on {socket.gethostname()}, since " in ran.err
+        assert " UTC), so nothing was written" in ran.err
         assert store.latest_version() == v
     finally:
         holder.kill()
@@ -297,3 +298,41 @@ def test_moving_a_store_to_the_server_and_back_keeps_every_version_byte_for_byte
     ran = run_cli("move-catalog", "--to", spec, "--store", demo_store)
     assert ran.code == 1 and "already holds" in ran.err
     assert os.path.exists(demo_store / "catalog.sqlite")
+
+
+@pytest.mark.parametrize(
+    ("catalog", "code", "says"),
+    [
+        ("mysql:host=x", 2, "neither 'embedded' nor postgres:CONNINFO"),
+        ("postgres:", 2, "needs a connection string or a service name"),
+        ("postgres:host=db dbname=s password=secret", 2, "holds a password"),
+        ("postgres:postgresql://ann:secret@db/s", 2, "holds a password"),
+        ("postgres:host=db dbname='unclosed", 2, "is not a libpq connection string"),
+        ("postgres:host=127.0.0.1 port=1 dbname=s connect_timeout=2", 1, "cannot be reached"),
+    ],
+)
+def test_a_catalog_that_cannot_be_used_is_refused_before_anything_is_made(
+    tmp_path: Path, catalog: str, code: int, says: str
+) -> None:
+    ran = run_cli("init", "--store", tmp_path / "st", "--catalog", catalog)
+    assert ran.code == code and says in ran.err and "Traceback" not in ran.err, ran.err
+    assert not any(tmp_path.iterdir())
+
+
+def test_move_catalog_refuses_a_target_it_cannot_use(tmp_path: Path) -> None:
+    store = api.init_store(tmp_path / "st")
+    before = store.latest_version()
+    ran = run_cli("move-catalog", "--to", "embedded", "--store", store.path)
+    assert ran.code == 2 and "already uses the catalog" in ran.err
+    ran = run_cli("move-catalog", "--to", "sqlite:x", "--store", store.path)
+    assert ran.code == 2 and "neither" in ran.err
+    ran = run_cli(
+        "move-catalog",
+        "--to",
+        "postgres:host=127.0.0.1 port=1 connect_timeout=2",
+        "--store",
+        store.path,
+    )
+    assert ran.code == 1 and "cannot be reached" in ran.err
+    assert json.loads((store.path / lake.MARKER).read_text())["catalog"] == "catalog.sqlite"
+    assert api.open_store(store.path).latest_version() == before

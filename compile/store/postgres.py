@@ -273,8 +273,8 @@ class PostgresCatalog:
                 if row:
                     who = f"{row[0]} (pid {row[1]} on {row[2]}, since {row[3]} UTC)"
         return StoreError(
-            f"the store catalog {self.describe()} has been held by {who} for over "
-            f"{timeout_s:g} s, so nothing was written.",
+            f"the store catalog {self.describe()} has been held for over {timeout_s:g} s "
+            f"by {who}, so nothing was written.",
             "Wait for it to finish and run the command again (STRATA13_LOCK_TIMEOUT sets "
             "the wait in seconds); a writer that died releases the lock by itself.",
         )
