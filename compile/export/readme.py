@@ -3,7 +3,8 @@
 Title, creators (placeholders where only the user knows), the licence left for the user to
 choose (said plainly), the version, what each file is, how the values were derived, how to
 cite and how to reproduce. When the exported sources describe their data as invented (the
-demo's do), the README says so first. Nothing in it depends on the clock.
+demo's do), the README says so first. Nothing in it depends on the clock, not even the
+store version's commit time (the manifest has it), so the same data give the same README.
 """
 
 from __future__ import annotations
@@ -147,9 +148,9 @@ def readme(
             "values stay subject to the terms of their original publications."
         ),
         _wrap(
-            f"Version: strata13 store version {fields['store_version']} (committed "
-            f"{fields.get('store_version_time')}), settings hash {fields['settings_hash']}, "
-            f"schema version {fields['schema_version']}, strata13 {fields['tool_version']}"
+            f"Version: strata13 store version {fields['store_version']} (its commit time is "
+            f"in manifest.json), settings hash {fields['settings_hash']}, schema version "
+            f"{fields['schema_version']}, strata13 {fields['tool_version']}"
         ),
         "Keywords: carbon isotopes; oxygen isotopes; carbonate; chemostratigraphy; "
         "data compilation",
