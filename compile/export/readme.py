@@ -133,6 +133,11 @@ def readme(
         ]
     authors = _authors(entries)
     screened = filters.get("screened") or "all"
+    screened = (
+        "every screen state (pass, warn, fail, untested)"
+        if screened == "all"
+        else f"screen states {screened.replace(',', ', ')} only"
+    )
     out += [
         "Title: " + title,
         "Creator(s): [FILL IN: the compiler's name(s), affiliation(s) and ORCID iD(s)]",
@@ -160,7 +165,7 @@ def readme(
         _wrap(
             f"{counts['records']} analyses (δ13C and δ18O of carbonate, δ13C of organic "
             f"matter where reported) from {counts['sources']} sources and "
-            f"{counts['sections']} sections or cores{_interval(filters)}, with screen states "
+            f"{counts['sections']} sections or cores{_interval(filters)}, with "
             f"{screened}. Every value is given as reported and harmonised beside it; the "
             "steps between them, the age ties and age models, the screening outcomes, the "
             "in-house runs' quality control, the user's corrections and the duplicate "
