@@ -322,7 +322,7 @@ text_st = st.text(
 )
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=200, deadline=None)
 @given(title=text_st, citation=text_st, author=text_st)
 def test_any_source_text_gives_bibtex_that_parses(title: str, citation: str, author: str) -> None:
     """Whatever a mapping's text holds (braces, @, %, &, quotes, unicode), the entry
@@ -337,6 +337,7 @@ def test_any_source_text_gives_bibtex_that_parses(title: str, citation: str, aut
     got = {f.key: str(f.value) for f in lib.entries[0].fields}
 
     def plain(s: str) -> str:
+        s = s.replace("\\textbackslash{}", "")
         return "".join(ch for ch in s.replace("\\", "") if ch not in "{} \t\n")
 
     assert plain(got["title"]) == plain(title)

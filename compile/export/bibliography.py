@@ -196,13 +196,18 @@ def _value(k: str, v: str) -> str:
     """A BibTeX field value in braces: LaTeX specials escaped outside DOIs and URLs;
     braces kept when balanced (a corporate author), escaped otherwise."""
     if k in ("doi", "url"):
-        return v.replace("{", "").replace("}", "")
-    depth, balanced = 0, True
+        return v.replace("{", "").replace("}", "").replace("\\", "/")
+    # a backslash that starts no LaTeX command or escape (one at the end would escape the
+    # closing brace) is a literal backslash
+    v = re.sub(r"\\(?![A-Za-z&%#_{}$~^\"'`])", r"\\textbackslash{}", v)
+    depth, balanced, escaped = 0, True, False
     for ch in v:
-        depth += (ch == "{") - (ch == "}")
-        balanced = balanced and depth >= 0
+        if not escaped:
+            depth += (ch == "{") - (ch == "}")
+            balanced = balanced and depth >= 0
+        escaped = ch == "\\" and not escaped
     if not balanced or depth:
-        v = v.replace("{", "\\{").replace("}", "\\}")
+        v = re.sub(r"(?<!\\)([{}])", r"\\\1", v)
     return re.sub(r"(?<!\\)([&%#])", r"\\\1", v)
 
 

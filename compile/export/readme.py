@@ -3,7 +3,8 @@
 Title, creators (placeholders where only the user knows), the licence left for the user to
 choose (said plainly), the version, what each file is, how the values were derived, how to
 cite and how to reproduce. When the exported sources describe their data as invented (the
-demo's do), the README says so first. Nothing in it depends on the clock.
+demo's do), the README says so first. Nothing in it depends on the clock, not even the
+store version's commit time (the manifest has it), so the same data give the same README.
 """
 
 from __future__ import annotations
@@ -132,6 +133,11 @@ def readme(
         ]
     authors = _authors(entries)
     screened = filters.get("screened") or "all"
+    screened = (
+        "every screen state (pass, warn, fail, untested)"
+        if screened == "all"
+        else f"screen states {screened.replace(',', ', ')} only"
+    )
     out += [
         "Title: " + title,
         "Creator(s): [FILL IN: the compiler's name(s), affiliation(s) and ORCID iD(s)]",
@@ -147,9 +153,9 @@ def readme(
             "values stay subject to the terms of their original publications."
         ),
         _wrap(
-            f"Version: strata13 store version {fields['store_version']} (committed "
-            f"{fields.get('store_version_time')}), settings hash {fields['settings_hash']}, "
-            f"schema version {fields['schema_version']}, strata13 {fields['tool_version']}"
+            f"Version: strata13 store version {fields['store_version']} (its commit time is "
+            f"in manifest.json), settings hash {fields['settings_hash']}, schema version "
+            f"{fields['schema_version']}, strata13 {fields['tool_version']}"
         ),
         "Keywords: carbon isotopes; oxygen isotopes; carbonate; chemostratigraphy; "
         "data compilation",
@@ -159,7 +165,7 @@ def readme(
         _wrap(
             f"{counts['records']} analyses (δ13C and δ18O of carbonate, δ13C of organic "
             f"matter where reported) from {counts['sources']} sources and "
-            f"{counts['sections']} sections or cores{_interval(filters)}, with screen states "
+            f"{counts['sections']} sections or cores{_interval(filters)}, with "
             f"{screened}. Every value is given as reported and harmonised beside it; the "
             "steps between them, the age ties and age models, the screening outcomes, the "
             "in-house runs' quality control, the user's corrections and the duplicate "
