@@ -20,6 +20,12 @@ it. Cases:
   (quick: 20 000 samples in 40 sections, the same draws) against as many ``numpy.interp``
   calls on fixed knots (see ``agemodel.py``). Targets: ratio ≤ 3; traced peak memory ≤ 10 %
   of all draws at once.
+* start   — ``strata13 query``, ``sources``, ``history`` and ``sql`` on a 5 000-record store
+  as subprocesses against a bare duckdb + pandas read of the same Parquet (see
+  ``start.py``). Targets: ≤ 0.5 s wall and ≤ 3× the baseline's CPU time.
+* sources — 200 sources of 5 000 rows ingested one after another (quick: 20): the last three
+  ingests against the first three, and an interval query after all of them against bare
+  DuckDB (see ``sources.py``). Targets: ≤ 1.5× and ≤ 2×.
 * excursion — the excursion metrics' uncertainty over 500 draws of 100 sections against the
   scalar metrics once per section and draw (see ``excursion.py``). Target: ratio ≤ 0.1.
 
@@ -574,6 +580,8 @@ LIBRARY_CASES = {
     "curve": ("curve", 50, 200),
     "excursion": ("excursion", 100, 500),
     "paleo": ("paleo", 100_000, 1_000_000),
+    "start": ("start", 5000, 5000),
+    "sources": ("sources", 20, 200),
 }
 
 

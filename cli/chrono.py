@@ -7,21 +7,10 @@ from typing import Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
+from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, WidthOpt, check_format
 
-STAGE_HEADERS = [
-    "name",
-    "rank",
-    "parent",
-    "base_ma",
-    "top_ma",
-    "±",
-    "level",
-    "1σ",
-    "1σ from",
-    "~",
-    "note",
-]
+from strata13.numbers import readable
+
 TIE_COLUMNS = [
     "position_m",
     "basis",
@@ -69,7 +58,7 @@ def stages(
         render.note(n)
     cols = list(rows[0]) if rows else []
     render.table(
-        STAGE_HEADERS if fmt == "table" else cols,
+        cols,
         [[r[c] for c in cols] for r in rows],
         fmt,
         out,
@@ -161,14 +150,16 @@ def redate(
     ):
         old, new = res.settings_before.get(key), res.settings_after.get(key)
         if new is not None and old != new:
-            render.message(f"  {label}: {'default' if old is None else f'{old:g}'} → {new:g}")
+            render.message(
+                f"  {label}: {'default' if old is None else readable(old)} → {readable(new)}"
+            )
     for col, n in sorted(res.changed.items()):
         if res.max_change[col] > 0:
             unit = api.change_unit(col)
             render.message(
                 f"  {col}: {n} values changed; largest change "
-                f"{res.max_change[col]:.4g}{unit}, median "
-                f"{res.median_change[col]:.4g}{unit}"
+                f"{readable(res.max_change[col], unit=unit.strip())}{unit}, median "
+                f"{readable(res.median_change[col], unit=unit.strip())}{unit}"
             )
         else:
             render.message(f"  {col}: {n} values newly set or cleared (none moved)")
@@ -183,9 +174,13 @@ def agemodel(
     plot: Annotated[
         Path | None,
         typer.Option(
-            "--plot", help="Write the age–position figure (PNG) here.", show_default=False
+            "--plot",
+            help="Write the age–position figure here: FILE.png, with FILE.svg and FILE.pdf "
+            "beside it.",
+            show_default=False,
         ),
     ] = None,
+    width: WidthOpt = "double",
     fmt: FormatOpt = "table",
     out: OutOpt = None,
     store: StoreOpt = None,
@@ -195,8 +190,10 @@ def agemodel(
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if plot is not None:
-        api.output_file(plot, option="--plot", stores=[path])
+        for figure_file in api.figure_files(plot):
+            api.output_file(figure_file, option="--plot", stores=[path])
     s = api.open_store(path)
     m = api.agemodel(s, section)
     rows = [
@@ -231,7 +228,8 @@ def agemodel(
     else:
         render.note(f"no age model ({m.reason}); {m.records} records ({basis})")
     if plot is not None:
-        render.message(f"wrote {api.plot_agemodel(m, plot, api.figure_note(s))}")
+        files = api.plot_agemodel(m, plot, api.figure_note(s), width)
+        render.message("wrote " + ", ".join(str(f) for f in files))
 
 
 def replace_rotations(
@@ -259,7 +257,8 @@ def replace_rotations(
         if col in res.changed and res.max_change[col] > 0:
             render.message(
                 f"  {col}: {res.changed[col]} values changed; largest change "
-                f"{res.max_change[col]:.4g}°, median {res.median_change[col]:.4g}°"
+                f"{readable(res.max_change[col], unit='°')}°, median "
+                f"{readable(res.median_change[col], unit='°')}°"
             )
         elif col in res.changed:
             render.message(f"  {col}: {res.changed[col]} values newly set or cleared")

@@ -16,6 +16,15 @@ StoreOpt = Annotated[
     ),
 ]
 FormatOpt = Annotated[str, typer.Option("--format", help="table | csv | json | parquet.")]
+# every figure command takes the same width option (compile/plotting/style.py WIDTHS_MM)
+WidthOpt = Annotated[
+    str,
+    typer.Option(
+        "--width",
+        help="Figure width for a journal column: single (about 85 mm) or double (about "
+        "175 mm), common practice; type sizes follow.",
+    ),
+]
 OutOpt = Annotated[
     Path | None,
     typer.Option("--out", help="Write to this file instead of stdout.", show_default=False),

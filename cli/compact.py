@@ -1,4 +1,4 @@
-"""`strata13 compact`: remove the data files no version of the store references."""
+"""`strata13 compact`: remove the data files no version references and merge small ones."""
 
 from __future__ import annotations
 
@@ -11,15 +11,20 @@ from strata13.cli.common import StoreOpt
 
 def compact(
     dry_run: Annotated[
-        bool, typer.Option("--dry-run", help="List the files that would go; remove nothing.")
+        bool, typer.Option("--dry-run", help="List the files that would go; change nothing.")
     ] = False,
+    merge: Annotated[
+        bool,
+        typer.Option("--merge/--no-merge", help="Also merge the small data files ingests leave."),
+    ] = True,
     store: StoreOpt = None,
 ) -> None:
     """Remove Parquet files that no version references (left by a writer killed before its
-    commit). Every version stays readable; no new version is made."""
+    commit) and merge small data files. Every version stays readable with the same rows."""
     from strata13.compile import api
 
-    found = api.compact(api.open_store(api.store_path(store)), dry_run)
+    done = api.compact(api.open_store(api.store_path(store)), dry_run, merge)
+    found = done.orphans
     size = f"{found.size / 1e6:.2f} MB" if found.size >= 1e5 else f"{found.size} bytes"
     if not found.files:
         render.message("no unreferenced data files; nothing to remove.")
@@ -32,3 +37,13 @@ def compact(
             f"removed {len(found.files)} data files no version referenced ({size}); "
             "every version is still readable."
         )
+    if done.version is not None:
+        render.message(
+            f"merged the data files the newest version reads: {done.files_before} → "
+            f"{done.files_after}, recorded as version {done.version}; every version reads "
+            "the same rows."
+        )
+    elif merge and not dry_run:
+        render.message(f"the newest version reads {done.files_after} data files; none merged.")
+    elif dry_run:
+        render.message(f"the newest version reads {done.files_after} data files.")

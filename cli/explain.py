@@ -9,15 +9,24 @@ from typing import Annotated
 import typer
 from strata13.cli.common import StoreOpt
 
+from strata13.numbers import readable, with_sigma
 
-def _num(v: object) -> str:
-    return (
-        "—"
-        if v is None or (isinstance(v, float) and v != v)
-        else f"{v:g}"
-        if isinstance(v, float)
-        else str(v)
-    )
+
+def _num(v: object, unit: str | None = None) -> str:
+    return readable(v, unit=unit, blank="—")
+
+
+# step parameters without a unit of ‰ (the rest are δ values, shifts and precisions in ‰)
+PER_UNIT = {"slope", "a", "drift_per_position", "drift_sigma"}
+
+
+def _param(v: object, unit: str | None = "‰") -> str:
+    """A step parameter: numbers to their meaningful digits, lists item by item."""
+    if isinstance(v, list):
+        return "[" + ", ".join(_param(x, unit) for x in v) + "]"
+    if isinstance(v, dict):
+        return "{" + ", ".join(f"{k}: {_param(x, unit)}" for k, x in v.items()) + "}"
+    return _num(v, unit)
 
 
 def explain(
@@ -41,9 +50,10 @@ def explain(
         + f", {'line' if str(info['file']).lower().endswith(('.csv', '.tsv')) else 'row'} "
         + f"{r['sheet_row']}",
         f"  sample   section {r['section_id']}, sample {r['sample_id']}, replicate "
-        f"{r['replicate']}, position {_num(r['position_m'])} m ({r['position_kind'] or '—'})",
+        f"{r['replicate']}, position {_num(r['position_m'], 'm')} m ({r['position_kind'] or '—'})",
         f"  material {r['lithology'] or '—'} / {r['component'] or '—'} / {r['mineralogy'] or '—'}",
-        f"  age      {_num(r['age_ma'])} Ma ({r['age_status'] or '—'})",
+        f"  age      {with_sigma(r['age_ma'], r.get('age_sigma_ma'), 'Ma')} "
+        f"({r['age_status'] or '—'})",
         f"  paleo    {r['paleo_status'] or '—'};  screen {r['screen']}",
     ]
     for k, step in enumerate(info["age_steps"], 1):
@@ -51,24 +61,31 @@ def explain(
         for tie in step.get("ties", []):
             sigma = tie.get("sigma_ma")
             lines.append(
-                f"        {tie['tie']}: {_num(tie.get('age_ma'))} Ma"
-                + (f" ± {_num(sigma)} (1σ)" if sigma is not None else "")
+                f"        {tie['tie']}: "
+                + (
+                    f"{with_sigma(tie.get('age_ma'), sigma, 'Ma')} (1σ)"
+                    if sigma is not None
+                    else f"{_num(tie.get('age_ma'), 'Ma')} Ma"
+                )
                 + (f"; {tie['sigma_from']}" if tie.get("sigma_from") else "")
             )
     for name, iso in info["isotopes"].items():
         if iso["reported"] is None:
             continue
         lines.append(
-            f"  {name}: reported {_num(iso['reported'])} ‰ {iso['scale'] or '(no scale)'}"
-            f" → {_num(iso['harmonised'])} ‰ VPDB  [{iso['status']}]"
+            f"  {name}: reported {_num(iso['reported'], '‰')} ‰ {iso['scale'] or '(no scale)'}"
+            f" → {_num(iso['harmonised'], '‰')} ‰ VPDB  [{iso['status']}]"
         )
         for k, step in enumerate(iso["steps"], 1):
-            params = ", ".join(f"{key}={val}" for key, val in step.get("parameters", {}).items())
+            params = ", ".join(
+                f"{key}={_param(val, None if key in PER_UNIT else '‰')}"
+                for key, val in step.get("parameters", {}).items()
+            )
             lines.append(
                 f"     {k}. {step['step']}: {step['method']}"
                 + (f" ({params})" if params else "")
-                + f" → {_num(step.get('value_after'))} ‰;"
-                f" change ≤ {_num(step.get('size_permil'))} ‰"
+                + f" → {_num(step.get('value_after'), '‰')} ‰;"
+                f" change ≤ {_num(step.get('size_permil'), '‰')} ‰"
             )
             lines.append(f"        source: {step['source']}")
             for flag in step.get("flags", []):

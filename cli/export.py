@@ -1,4 +1,4 @@
-"""`strata13 export`: the cleaned compilation, its bibliography and manifest."""
+"""`strata13 export`: the cleaned compilation as a data package (see compile/export)."""
 
 from __future__ import annotations
 
@@ -61,7 +61,10 @@ def export(
     robustness: RobustOpt = False,
     store: StoreOpt = None,
 ) -> None:
-    """Write records.parquet, records.csv, bibliography and manifest.json to a folder."""
+    """Write a data package to a folder: the records and the tables they depend on (chains,
+    ties, age models, screen results, runs, run QC, corrections, duplicate decisions) as
+    Parquet and CSV, columns.csv (the data dictionary), bibliography.bib and .txt,
+    README.txt and manifest.json (SHA-256 and size of every file)."""
     from strata13.compile import api
 
     s = api.open_store(api.store_path(store))

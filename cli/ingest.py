@@ -10,6 +10,8 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import StoreOpt
 
+from strata13.numbers import readable
+
 
 def ingest(
     map_: Annotated[Path, typer.Option("--map", help="The mapping file (TOML).")],
@@ -114,17 +116,23 @@ def ingest(
     for line in api.accepted_lines(result.run_qc):
         render.note(line)
     for q in result.run_qc:
-        prec = f"{q['precision_1s']:.3f} ‰" if q["precision_1s"] is not None else "—"
-        res = ", ".join(f"{k} {v:+.3f} ‰" for k, v in json.loads(q["residuals_json"]).items())
+        prec = readable(q["precision_1s"], unit="‰", blank="—") + (
+            " ‰" if q["precision_1s"] is not None else ""
+        )
+        res = ", ".join(  # a residual to the run's precision, when it has one
+            f"{k} {readable(v, unit='‰', sigma=q['precision_1s'], signed=True)} ‰"
+            for k, v in json.loads(q["residuals_json"]).items()
+        )
         drift = ""
         if q["drift_per_position"] is not None:
             sd = q["drift_sigma"]
-            drift = f"; drift {q['drift_per_position']:+.3g} ‰ per position" + (
-                f" ± {sd:.2g} (1σ)" if sd is not None else " (1σ unknown)"
+            drift = f"; drift {readable(q['drift_per_position'], signed=True)} ‰ per position" + (
+                f" ± {readable(sd, sigma=sd)} (1σ)" if sd is not None else " (1σ unknown)"
             )
         render.message(
-            f"run {q['run_id']} {q['isotope']}: slope {q['slope']:.4f}, intercept "
-            f"{q['intercept']:+.3f} ‰ ({q['anchors']}); check residuals "
+            f"run {q['run_id']} {q['isotope']}: slope {readable(q['slope'], decimals=4)}, "
+            f"intercept {readable(q['intercept'], unit='‰', signed=True)} ‰ ({q['anchors']}); "
+            "check residuals "
             f"{res or '—'} ({q['check_status'] or 'no check'}); precision 1σ {prec}{drift}"
         )
         if q["check_status"] in ("warn", "untested"):

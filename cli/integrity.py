@@ -11,6 +11,7 @@ from strata13.cli.common import (
     FormatOpt,
     OutOpt,
     StoreOpt,
+    WidthOpt,
     check_format,
     command_line,
 )
@@ -110,8 +111,13 @@ def coverage(
     fmt: FormatOpt = "table",
     out: Annotated[
         Path | None,
-        typer.Option("--out", help="Folder for coverage.csv and the heatmap.", show_default=False),
+        typer.Option(
+            "--out",
+            help="Folder for coverage.csv and the heatmap (PNG, SVG, PDF).",
+            show_default=False,
+        ),
     ] = None,
+    width: WidthOpt = "double",
     store: StoreOpt = None,
 ) -> None:
     """Samples and sections per time bin × region (or paleolatitude band) × component,
@@ -126,13 +132,17 @@ def coverage(
         )
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if out is not None:
         api.output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
     command = None
     if out is not None:
-        command = command_line("coverage", s.path, filters.given() | {"by": by, "bin_myr": bin_myr})
-    table, files, notes = api.coverage(s, filters.build(s), by, bin_myr, out, command=command)
+        given = {"by": by, "bin_myr": bin_myr, "width": width}
+        command = command_line("coverage", s.path, filters.given() | given)
+    table, files, notes = api.coverage(
+        s, filters.build(s), by, bin_myr, out, command=command, width=width
+    )
     for note in notes:
         render.note(note)
     render.table(list(table.columns), table.itertuples(index=False, name=None), fmt, None)

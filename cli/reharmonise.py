@@ -9,6 +9,8 @@ import typer
 from strata13.cli import render
 from strata13.cli.common import StoreOpt
 
+from strata13.numbers import readable
+
 
 def reharmonise(
     vsmow_constants: Annotated[
@@ -56,7 +58,8 @@ def reharmonise(
         unit = api.change_unit(col)
         render.message(
             f"  {col}: {n} values changed; largest change "
-            f"{res.max_change[col]:.4g}{unit}, median {res.median_change[col]:.4g}{unit}"
+            f"{readable(res.max_change[col], unit=unit.strip())}{unit}, median "
+            f"{readable(res.median_change[col], unit=unit.strip())}{unit}"
         )
     for line in res.checks_changed:
         render.message(f"  check status of {line}")

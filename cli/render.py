@@ -13,16 +13,22 @@ import json
 import math
 import sys
 from collections.abc import Iterator, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+
+from strata13.numbers import readable, unit_of
 
 FORMATS = ("table", "csv", "json", "parquet")
 
 
 def _console(stderr: bool = True) -> Any:
+    """A console on stderr (messages) or stdout; prose wraps at spaces in a terminal (at its
+    width), never when piped (one message, one line)."""
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, soft_wrap=True)
+    stream = sys.stderr if stderr else sys.stdout
+    return Console(stderr=stderr, highlight=False, soft_wrap=not stream.isatty())
 
 
 def message(text: str) -> None:
@@ -52,15 +58,16 @@ def error(text: str, hint: str = "") -> None:
         con.print(f"[yellow]hint:[/yellow] {_escape(hint)}")
 
 
-def _cell(v: Any, short: bool = False) -> str:
-    """A value as text; ``short`` (the table format, for reading) rounds floats to 6
-    significant digits — csv, json and parquet keep every digit."""
-    if v is None:
+def _cell(v: Any, short: bool = False, column: str = "") -> str:
+    """A value as text; ``short`` (the table format, for reading) rounds floats to their
+    meaningful digits by the column's unit (``strata13.numbers``) and writes booleans as
+    yes/no — csv, json and parquet keep every digit."""
+    if short:
+        return readable(v, unit=unit_of(column))
+    if v is None or (isinstance(v, float) and math.isnan(v)):
         return ""
     if isinstance(v, float):
-        if math.isnan(v):
-            return ""
-        return f"{v:.6g}" if short else repr(v)
+        return repr(v)
     return str(v)
 
 
@@ -102,26 +109,92 @@ def table(
         text = buf.getvalue()
     else:
         stream = sys.stderr if stderr else sys.stdout
+        cells = [
+            [
+                _cell(v, True, c).replace("\t", " ").replace("\n", " ")
+                for v, c in zip(r, columns, strict=True)
+            ]
+            for r in rows
+        ]
         if out is None and stream.isatty():
-            from rich.table import Table
+            from strata13.cli import layout
 
-            t = Table(title=title, show_lines=False, header_style="bold")
-            for c in columns:
-                t.add_column(c, overflow="fold")
-            for r in rows:
-                t.add_row(*[_escape(_cell(v, short=True)) for v in r])
-            _console(stderr=stderr).print(t)
+            con = _console(stderr=stderr)
+            if title:
+                con.print(title, style="bold", markup=False)
+            lines, left_out = layout.lay_out(list(columns), cells, layout.terminal_width())
+            for line, bold in lines:  # laid out already: never re-wrapped
+                con.print(line, style="bold" if bold else None, markup=False, soft_wrap=True)
+            if left_out:
+                con.print(layout.left_out_note(left_out, len(columns)), style="dim", markup=False)
             return
-        text = "".join(
-            "\t".join(_cell(v, True).replace("\t", " ").replace("\n", " ") for v in r) + "\n"
-            for r in [list(columns), *rows]
-        )
+        text = "".join("\t".join(r) + "\n" for r in [list(columns), *cells])
     if out is not None:
         out.write_text(text, encoding="utf-8")
     elif stderr:
         sys.stderr.write(text)
     else:
         sys.stdout.write(text)
+
+
+@dataclass(frozen=True)
+class Part:
+    """One of several tables a command answers with: its name (a key in json, a file-name
+    suffix), columns, rows and the title a terminal shows."""
+
+    name: str
+    columns: list[str]
+    rows: list[list[Any]]
+    title: str
+
+
+def sibling(out: Path, part: str) -> Path:
+    """Where a further table goes beside ``--out FILE``: ``FILE-<part>.<suffix>``."""
+    return out.with_name(f"{out.stem}-{part}{out.suffix}")
+
+
+def tables(parts: Sequence[Part], fmt: str, out: Path | None, elsewhere: str = "") -> None:
+    """Several tables in the format asked for, all of them to stdout or files, none to
+    stderr: in a terminal one after another; piped as tab-separated blocks with a blank
+    line between; json as one object keyed by part; with ``--out FILE`` the first table
+    to FILE and each further one to ``FILE-<part>``. Csv to stdout holds the first table
+    only (one header row per stream), and stderr says where the others are: ``elsewhere``
+    (e.g. an output folder), json, or ``--out``."""
+    first, rest = parts[0], list(parts[1:])
+    if fmt == "json" and rest:
+        doc = {
+            p.name: [dict(zip(p.columns, [_json(v) for v in r], strict=True)) for r in p.rows]
+            for p in parts
+        }
+        text = json.dumps(doc, ensure_ascii=False, indent=1) + "\n"
+        if out is not None:
+            out.write_text(text, encoding="utf-8")
+        else:
+            sys.stdout.write(text)
+        return
+    if out is not None:
+        from strata13.compile import api
+
+        for p in rest:  # a folder or a device where a further table would go: refused first
+            api.output_file(sibling(out, p.name), option="--out")
+        table(first.columns, first.rows, fmt, out, title=first.title)
+        for p in rest:
+            table(p.columns, p.rows, fmt, sibling(out, p.name), title=p.title)
+            message(f"{p.title}: {sibling(out, p.name)}")
+        return
+    if fmt == "table":
+        for k, p in enumerate(parts):
+            if k and not sys.stdout.isatty():
+                sys.stdout.write("\n")
+            table(p.columns, p.rows, "table", None, title=p.title)
+        return
+    table(first.columns, first.rows, fmt, None, title=first.title)
+    for p in rest:
+        where = elsewhere or f"--out FILE writes it to FILE-{p.name}"
+        note(
+            f"{p.title} ({plural(len(p.rows), 'row')}) is not in this {fmt}: {where}; "
+            "--format json holds every table"
+        )
 
 
 def _json(v: Any) -> Any:

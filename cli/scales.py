@@ -90,24 +90,27 @@ def scales(
         render.note(
             "minus_accepted: this value − the accepted one ("
             + ("the store's settings" if s is not None else "the default choice")
-            + "); a run's [run] value_set picks another (see README, In-house runs)"
+            + "); a run's [run] value_set picks another (README, Mapping files: [run])"
         )
         return
     info = api.scales(s)
-    render.table(
-        RELATION_COLUMNS,
-        [[r[c] for c in RELATION_COLUMNS] for r in info["relations"]],
-        "table",
-        None,
-        title="δ18O VSMOW–VPDB relations",
-        stderr=True,
-    )
-    render.table(
-        MATERIAL_COLUMNS,
-        [[m[c] for c in MATERIAL_COLUMNS] for m in info["materials"]],
+    render.tables(
+        [
+            render.Part(
+                "materials",
+                MATERIAL_COLUMNS,
+                [[m[c] for c in MATERIAL_COLUMNS] for m in info["materials"]],
+                "reference materials (‰)",
+            ),
+            render.Part(
+                "relations",
+                RELATION_COLUMNS,
+                [[r[c] for c in RELATION_COLUMNS] for r in info["relations"]],
+                "δ18O VSMOW–VPDB relations",
+            ),
+        ],
         fmt,
         out,
-        title="reference materials (‰)",
     )
     if s is None:
         render.note("shipped tables; add --store DIR to mark the values a store uses")

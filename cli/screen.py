@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, check_format
+from strata13.cli.common import FormatOpt, OutOpt, StoreOpt, WidthOpt, check_format
 from strata13.cli.filters import NO_FILTERS, FilterArgs, filter_options
 
 GROUP_COLUMNS = [
@@ -53,10 +53,11 @@ def screen(
         Path | None,
         typer.Option(
             "--plot",
-            help="Write one δ13C–δ18O cross-plot per section (PNG) into this folder.",
+            help="Write one δ13C–δ18O cross-plot per section (PNG, SVG, PDF) into this folder.",
             show_default=False,
         ),
     ] = None,
+    width: WidthOpt = "double",
     filters: FilterArgs = NO_FILTERS,
     fmt: FormatOpt = "table",
     out: OutOpt = None,
@@ -71,6 +72,7 @@ def screen(
 
     path = api.store_path(store)
     check_format(fmt, out, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if untested not in (None, "fails", "passes"):
         raise OptionError(
             f"--untested {untested!r} is not 'fails' or 'passes'.", "Example: --untested passes"
@@ -98,29 +100,31 @@ def screen(
         wanted = filters.build(s) if filters != NO_FILTERS else None
         records, screening, counts = api.screen_report(s, wanted)
         if summary:
-            cols = counts.column_names
-            render.table(
-                cols,
-                [list(r.values()) for r in counts.to_pylist()],
+            g = screening.groups
+            render.tables(
+                [
+                    render.Part(
+                        "outcomes",
+                        counts.column_names,
+                        [list(r.values()) for r in counts.to_pylist()],
+                        "screen results per source, section, rule and outcome",
+                    ),
+                    render.Part(
+                        "covariance",
+                        GROUP_COLUMNS,
+                        [[r[c] for c in GROUP_COLUMNS] for r in g.to_pylist()],
+                        "covariance per group (δ13C vs δ18O)",
+                    ),
+                ][: 2 if g.num_rows else 1],
                 fmt,
                 out,
-                title="screen results per source, section, rule and outcome",
             )
-            g = screening.groups
-            if g.num_rows:
-                render.table(
-                    GROUP_COLUMNS,
-                    [[r[c] for c in GROUP_COLUMNS] for r in g.to_pylist()],
-                    "table",
-                    None,
-                    title="covariance per group (δ13C vs δ18O)",
-                    stderr=True,
-                )
             overall = screening.overall.column("screen").value_counts().to_pylist()
             render.note(
                 "overall: "
                 + ", ".join(f"{d['values']} {d['counts']}" for d in sorted(overall, key=str))
             )
         if plot is not None:
-            files = api.screen_plots(s, records, screening, plot)
-            render.message(f"wrote {len(files)} cross-plots to {plot}")
+            files = api.screen_plots(s, records, screening, plot, width)
+            pngs = [f for f in files if f.suffix == ".png"]
+            render.message(f"wrote {len(pngs)} cross-plots (PNG, SVG, PDF) to {plot}")

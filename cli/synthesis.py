@@ -7,8 +7,10 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 from strata13.cli import render
-from strata13.cli.common import FormatOpt, StoreOpt, check_format, command_line
+from strata13.cli.common import FormatOpt, StoreOpt, WidthOpt, check_format, command_line
 from strata13.cli.filters import NO_FILTERS, SYNTHESIS_SCREENED, FilterArgs, filter_options
+
+from strata13.numbers import readable
 
 if TYPE_CHECKING:
     from strata13.compile.api import CurveRequest
@@ -90,6 +92,7 @@ def curve_request(
     by: str | None,
     allow_mixed: bool,
     robustness: bool,
+    width: str = "double",
 ) -> tuple[CurveRequest, dict[str, object]]:
     """The curve options as a checked request, and as a command line names them."""
     from strata13.compile import api
@@ -106,6 +109,7 @@ def curve_request(
         by,
         allow_mixed,
         robustness,
+        width=width,
     )
     req.check()
     given: dict[str, object] = {
@@ -120,6 +124,7 @@ def curve_request(
         "age_draws": age_draws,
         "allow_mixed": allow_mixed,
         "robustness": robustness,
+        "width": width,
     }
     return req, given
 
@@ -139,10 +144,12 @@ def curve(
     age_draws: DrawsOpt = 0,
     allow_mixed: MixedOpt = False,
     robustness: RobustOpt = False,
+    width: WidthOpt = "double",
     store: StoreOpt = None,
 ) -> None:
     """A composite δ13C curve per group: binned statistics, LOESS with a section-bootstrap
-    band, optional age draws and leave-one-out robustness; CSVs, PNG, SVG and a manifest."""
+    band, optional age draws and leave-one-out robustness; CSVs, the figure (PNG, SVG,
+    PDF) and a manifest."""
     from strata13.compile import api
 
     path = api.store_path(store)
@@ -159,6 +166,7 @@ def curve(
         by,
         allow_mixed,
         robustness,
+        width,
     )
     s = api.open_store(path)
     res = api.curve(
@@ -178,7 +186,8 @@ def curve(
         for r in top.itertuples():
             render.note(
                 f"influence [{r.group}] without {r.left_out}: largest change "
-                f"{r.max_abs_change:.3g} ‰, RMS {r.rms_change:.3g} ‰"
+                f"{readable(r.max_abs_change, unit='‰')} ‰, "
+                f"RMS {readable(r.rms_change, unit='‰')} ‰"
             )
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")
@@ -216,10 +225,19 @@ def excursion(
         typer.Option(
             "--out",
             help="Folder for the tables (CSV and Parquet), their column list, the figure "
-            "aligned on onset with the ranges, and a manifest.",
+            "aligned on onset with the ranges (PNG, SVG, PDF), and a manifest.",
             show_default=False,
         ),
     ] = None,
+    width: WidthOpt = "double",
+    shared_axis: Annotated[
+        bool,
+        typer.Option(
+            "--shared-axis/--own-axis",
+            help="One δ axis for all section panels, so magnitudes compare by eye (the "
+            "default); --own-axis scales each panel to its section.",
+        ),
+    ] = True,
     store: StoreOpt = None,
 ) -> None:
     """Per-section excursion metrics in an interval: baseline, peak, magnitude, onset,
@@ -231,6 +249,7 @@ def excursion(
 
     path = api.store_path(store)
     check_format(fmt, None, path, allowed=("table", "csv", "json"))
+    api.check_width(width)
     if out is not None:
         api.output_dir(out, option="--out", stores=[path])
     s = api.open_store(path)
@@ -252,6 +271,8 @@ def excursion(
         "draws": draws,
         "seed": seed,
         "no_bootstrap": not bootstrap,  # the default is on: only its absence is written
+        "width": width,
+        "own_axis": not shared_axis,  # the default is shared: only its absence is written
     }
     res = api.excursion(
         s,
@@ -265,24 +286,30 @@ def excursion(
         bootstrap=bootstrap,
         out=out,
         command=command_line("excursion", s.path, options) if out is not None else None,
+        width=width,
+        shared_axis=shared_axis,
     )
     for note in res.notes:
         render.note(note)
-    per = res.per_section
-    render.table(
-        list(per.columns),
-        per.itertuples(index=False, name=None),
+    per, summary = res.per_section, res.summary
+    render.tables(
+        [
+            render.Part(
+                "per_section",
+                list(per.columns),
+                [list(r) for r in per.itertuples(index=False, name=None)],
+                "excursion per section",
+            ),
+            render.Part(
+                "summary",
+                list(summary.columns),
+                [list(r) for r in summary.itertuples(index=False, name=None)],
+                "summary",
+            ),
+        ],
         fmt,
         None,
-        title="excursion per section",
-    )
-    render.table(
-        list(res.summary.columns),
-        res.summary.itertuples(index=False, name=None),
-        "table",
-        None,
-        title="summary",
-        stderr=True,
+        elsewhere=f"it is in {out}" if out is not None else "--out DIR writes it",
     )
     for name, sha in sorted(res.files.items()):
         render.note(f"  {name}  sha256 {sha[:16]}…")

@@ -53,7 +53,7 @@ if TYPE_CHECKING:
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
-    from strata13.compile.store.files import Orphans
+    from strata13.compile.store.lake import Compacted
     from strata13.compile.store.move import Moved
     from strata13.schemas.timescales import TimeScale
 
@@ -74,6 +74,7 @@ __all__ = [
     "accepted_lines",
     "agemodel",
     "check_sources",
+    "check_width",
     "check_vocab",
     "compact",
     "interrupt_verdict",
@@ -86,6 +87,7 @@ __all__ = [
     "excursion",
     "explain",
     "export",
+    "figure_files",
     "figure_note",
     "history",
     "ingest",
@@ -463,7 +465,8 @@ def export(
     command: str | None = None,
     curve_screened: str = SYNTHESIS_SCREENED,
 ) -> ExportResult:
-    """The filtered records of one version with bibliography and manifest; with ``curve``
+    """The filtered records of one version as a data package (the tables they depend on,
+    data dictionary, bibliography, README.txt, manifest: ``export.package``); with ``curve``
     (a ``synthesis.run.CurveRequest``) the curve files go to ``out/curve`` and the
     manifest records every curve parameter and file, so the same command reproduces them.
     The curve reads ``filters`` with ``curve_screened`` for its screen states (default
@@ -526,6 +529,7 @@ def _export_records(
             {k: v for k, v in stored.items() if k not in long},
             reproduce=command,
             extra=extra,
+            demo=store.made_by == "demo",
         )
         return result
     except (duckdb.IOException, duckdb.InvalidInputException) as exc:
@@ -549,7 +553,7 @@ def sql(
     from strata13.compile.store.lake import DATA
 
     check_limits(timeout_s, row_cap, max_mb)
-    con, version = store.reader()
+    con, version = store.reader(fresh=True)  # the sandbox locks this connection alone
     try:
         files = version_files(con, store.path / DATA, version)
         result: SqlResult = run_sql(con, statement, timeout_s, row_cap, files, max_mb)
@@ -573,10 +577,11 @@ def interrupt_verdict() -> str:
     return interrupts.verdict()
 
 
-def compact(store: Store, dry_run: bool = False) -> Orphans:
+def compact(store: Store, dry_run: bool = False, merge: bool = True) -> Compacted:
     """Remove (or with ``dry_run`` only list) the data files no version of the store
-    references; every version stays readable and no version is made."""
-    found: Orphans = store.compact(dry_run)
+    references and merge the small data files ingests leave (``merge``); every version
+    stays readable with the same rows."""
+    found: Compacted = store.compact(dry_run, merge)
     return found
 
 
@@ -747,17 +752,20 @@ def screen_report(
 
 
 def screen_plots(
-    store: Store, records: pa.Table, screening: Screening, out: str | Path
+    store: Store, records: pa.Table, screening: Screening, out: str | Path, width: str = "double"
 ) -> list[Path]:
-    """One δ13C–δ18O cross-plot per section (PNG) into folder ``out``."""
+    """One δ13C–δ18O cross-plot per section (PNG, SVG and PDF) into folder ``out``, one
+    journal column ``width`` wide (single | double); returns the files."""
     from strata13.compile.export.outputs import output_dir
+    from strata13.compile.plotting.style import check_width
     from strata13.compile.screening.plots import cross_plots
 
+    check_width(width)
     folder = Path(out)
     output_dir(folder, option="--plot", stores=[store.path])
     folder.mkdir(parents=True, exist_ok=True)
     files: list[Path] = cross_plots(
-        records, screening.results, screening.groups, folder, figure_note(store)
+        records, screening.results, screening.groups, folder, figure_note(store), width
     )
     return files
 
@@ -790,12 +798,15 @@ def excursion(
     bootstrap: bool = True,
     out: str | Path | None = None,
     command: str | None = None,
+    width: str = "double",
+    shared_axis: bool = True,
 ) -> ExcursionResult:
     """Per-section excursion metrics in the filtered interval with 1σ and 95 % ranges over
     ``draws`` draws (age draws and, with ``bootstrap``, resampled samples; None: the default
     500, 0: none), seeded by ``seed``; tables, a figure and a manifest naming ``command`` in
-    ``out`` when given. A fraction outside (0, 1) or an unknown direction is a wrong
-    instruction (OptionError, exit 2)."""
+    ``out`` when given. The figure is one journal column ``width`` wide (single | double);
+    ``shared_axis`` gives its section panels one δ axis, so magnitudes compare by eye. A
+    fraction outside (0, 1) or an unknown direction is a wrong instruction (OptionError, exit 2)."""
     import math
 
     from strata13.compile.synthesis.excursion import DIRECTIONS
@@ -823,6 +834,8 @@ def excursion(
         bootstrap=bootstrap,
         out=Path(out) if out is not None else None,
         command=command,
+        width=width,
+        shared_axis=shared_axis,
     )
 
 
@@ -872,25 +885,45 @@ def coverage(
     bin_myr: float | None = None,
     out: str | Path | None = None,
     command: str | None = None,
+    width: str = "double",
 ) -> tuple[pd.DataFrame, dict[str, str], list[str]]:
     """Samples and sections per time bin × group × component (zeros kept), the files
     written (name -> sha256) and the notes (what the filters left out, with counts); with
-    ``out`` a CSV, a heatmap and a manifest naming ``command``."""
+    ``out`` a CSV, a heatmap (PNG, SVG, PDF; one journal column ``width`` wide) and a
+    manifest naming ``command``."""
     from strata13.compile.integrity.coverage import coverage as _coverage
 
     result: tuple[pd.DataFrame, dict[str, str], list[str]] = _coverage(
-        store, filters, by, bin_myr, Path(out) if out is not None else None, command=command
+        store, filters, by, bin_myr, Path(out) if out is not None else None, command, width
     )
     return result
 
 
-def plot_agemodel(model: SectionModel, path: str | Path, note: str | None = None) -> Path:
-    """Write a section model's age–position figure (PNG); ``note`` (see ``figure_note``)
-    goes in small type in its corner."""
+def plot_agemodel(
+    model: SectionModel, path: str | Path, note: str | None = None, width: str = "double"
+) -> list[Path]:
+    """Write a section model's age–position figure as PNG, SVG and PDF beside ``path``
+    (x.png → x.png, x.svg, x.pdf), one journal column ``width`` wide (single | double);
+    ``note`` (see ``figure_note``) is its caption line. Returns the three files."""
     from strata13.compile.ages.chronology import plot_model
+    from strata13.compile.plotting.style import check_width
 
-    written: Path = plot_model(model, Path(path), note)
+    written: list[Path] = plot_model(model, Path(path), note, check_width(width))
     return written
+
+
+def check_width(width: str) -> str:
+    """A figure width name (single | double, journal columns), or OptionError."""
+    from strata13.compile.plotting.style import check_width as _check
+
+    return _check(width)
+
+
+def figure_files(path: str | Path) -> list[Path]:
+    """The three files a figure written to ``path`` occupies (x.png → x.png, x.svg, x.pdf)."""
+    from strata13.compile.plotting.save import paths_for
+
+    return list(paths_for(path).values())
 
 
 def figure_note(store: Store) -> str | None:

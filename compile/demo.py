@@ -172,7 +172,9 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
     figures = out / "figures"
     figures.mkdir(exist_ok=True)
     model = api.agemodel(store, "quillar-ridge")
-    path = api.plot_agemodel(model, figures / "agemodel_quillar-ridge.png", api.figure_note(store))
+    path = api.plot_agemodel(model, figures / "agemodel_quillar-ridge.png", api.figure_note(store))[
+        0
+    ]
     yield (
         "say",
         (
@@ -203,7 +205,11 @@ def run_demo(out: Path) -> Iterator[tuple[str, Any]]:
             [(r["section_id"], r["rule"], r["outcome"], r["n"]) for r in flagged],
         ),
     )
-    plots = api.screen_plots(store, records, screening, figures / "screening")
+    plots = [
+        p
+        for p in api.screen_plots(store, records, screening, figures / "screening")
+        if p.suffix == ".png"
+    ]
     yield "say", f"δ13C–δ18O cross-plots: {len(plots)} → {figures / 'screening'}"
     yield from _integrity(store, out, figures)
     from strata13.compile.synthesis.run import CurveRequest

@@ -17,7 +17,7 @@ from strata13.compile.check.report import Report
 from strata13.compile.check.validate import prepare
 from strata13.compile.derive.engine import Settings, derive
 from strata13.compile.derive.stored import derive_stored
-from strata13.compile.read.mapping import load_mapping
+from strata13.compile.read.mapping import BIB_KEYS, load_mapping
 from strata13.compile.store.lake import Store
 from strata13.compile.store.reader import Reader
 from strata13.compile.store.transaction import DERIVED_TABLES, Transaction
@@ -96,7 +96,7 @@ def ingest(
     result = IngestResult(mapping.source_id, report, None, dry_run=dry_run)
     if report.errors and not keep_valid:
         raise ValidationFailed(
-            f"{len(report.errors)} problem{'s' if len(report.errors) != 1 else ''} in "
+            f"{report.count('error')} problem{'s' if report.count('error') != 1 else ''} in "
             f"{table.file.name}; nothing was written.",
             report,
             "Fix the cells listed, or use --keep-valid to commit the valid rows and "
@@ -398,15 +398,22 @@ def _land(
     return result
 
 
-META = ("citation", "year", "doi", "url", "kind", "lab", "republishes", "note")
+META = ("citation", "year", "doi", "url", "kind", "lab", "republishes", "note", *BIB_KEYS)
 
 
 def _meta(source: dict[str, Any]) -> tuple[Any, ...]:
-    """The source's metadata as stored in the sources table."""
-    return tuple(
-        "|".join(source.get("republishes", [])) if k == "republishes" else source.get(k)
-        for k in META
-    )
+    """The source's metadata as stored in the sources table (lists "|"-joined, volume and
+    issue as text)."""
+
+    def stored(k: str) -> Any:
+        v = source.get(k)
+        if k in ("republishes", "authors"):
+            return "|".join(v or []) if k == "republishes" or v else None
+        if k in ("volume", "issue") and v is not None:
+            return str(v)
+        return v
+
+    return tuple(stored(k) for k in META)
 
 
 def _moved(tx: Transaction, source_id: str, records: pa.Table) -> int:
@@ -609,14 +616,7 @@ def _write(
         [
             {
                 "source_id": sid,
-                "citation": src.get("citation"),
-                "year": src.get("year"),
-                "doi": src.get("doi"),
-                "url": src.get("url"),
-                "kind": src.get("kind"),
-                "lab": src.get("lab"),
-                "republishes": _meta(src)[META.index("republishes")],
-                "note": src.get("note"),
+                **dict(zip(META, _meta(src), strict=True)),
                 "file_name": _file_names(records, m),
                 "file_sha256": prepared.file_sha256,
                 "mapping_sha256": m.sha256,

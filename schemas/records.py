@@ -141,6 +141,16 @@ SOURCES = [
     ("n_records", BIGINT),
     ("ingested_version", BIGINT),
     ("schema_version", TEXT),
+    # bibliographic fields from the mapping's [source] block (the export's BibTeX); authors
+    # are "|"-separated names as written ("Pell, I.|Sarrow, D."); appended so stores migrate
+    ("entry_type", TEXT),
+    ("authors", TEXT),
+    ("title", TEXT),
+    ("journal", TEXT),
+    ("volume", TEXT),
+    ("issue", TEXT),
+    ("pages", TEXT),
+    ("publisher", TEXT),
 ]
 LOCALITIES = [
     ("source_id", TEXT),
@@ -284,6 +294,14 @@ SCREEN_RESULTS = [
     ("detail", TEXT),
     ("source_id", TEXT),
 ]
+# per source and rule, the outcome and detail most of its records share: screen_results
+# then stores only the rows that differ (compile/store/screen_rows.py)
+SCREEN_COMMON = [
+    ("source_id", TEXT),
+    ("rule", TEXT),
+    ("outcome", TEXT),
+    ("detail", TEXT),
+]
 
 TABLES: dict[str, list[tuple[str, str]]] = {
     "analyses": ANALYSES,
@@ -300,6 +318,7 @@ TABLES: dict[str, list[tuple[str, str]]] = {
     "age_ties": AGE_TIES,
     "age_draws": AGE_DRAWS,
     "screen_results": SCREEN_RESULTS,
+    "screen_common": SCREEN_COMMON,
     "run_qc": RUN_QC,
     "corrections": CORRECTIONS,
     "duplicates": DUPLICATES,

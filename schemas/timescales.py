@@ -227,8 +227,8 @@ def canonical_version(text: str) -> str:
     raise OptionError(
         f"Time scale {raw!r} is not one of the shipped chart versions.",
         (f"Did you mean {sug}? " if sug else "")
-        + f"Shipped: {', '.join(shipped)}; a table of your own loads with "
-        "load_file().",
+        + f"Shipped: {', '.join(shipped)}; a chart table of your own is given as its CSV "
+        "file (README, Ages, time scales and age models).",
     )
 
 

@@ -446,12 +446,15 @@ def test_plot_is_deterministic_labelled_and_legend_clear(tmp_path: Path) -> None
         )
         for i in (1, 2)
     ]
-    first = paths[0].read_bytes()
-    assert first[:8] == b"\x89PNG\r\n\x1a\n" and first == paths[1].read_bytes()
+    assert [p.suffix for p in paths[0]] == [".png", ".svg", ".pdf"]
+    first = paths[0][0].read_bytes()
+    assert first[:8] == b"\x89PNG\r\n\x1a\n"
+    for a, b in zip(paths[0], paths[1], strict=True):  # the same input, the same bytes
+        assert a.read_bytes() == b.read_bytes()
     fig = agemodel_plot.figure(ties, pos, s, "depth", "Core B", flags=r.flags)
     ax = fig.axes[0]
     assert ax.get_xlabel() == "Age (Ma)" and ax.get_ylabel() == "Depth (m)"
-    assert ax.yaxis_inverted()
+    assert ax.yaxis_inverted() and ax.xaxis_inverted()  # depth down, older to the left
     fig.canvas.draw()
     renderer = fig.canvas.get_renderer()
     legend = fig.legends[0].get_window_extent(renderer)

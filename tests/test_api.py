@@ -67,7 +67,7 @@ def test_signatures_resolve() -> None:
     from strata13.compile.query.sqlguard import SqlResult
     from strata13.compile.read.propose import Proposal
     from strata13.compile.screening.evaluate import Screening
-    from strata13.compile.store.files import Orphans
+    from strata13.compile.store.lake import Compacted
     from strata13.compile.store.move import Moved
     from strata13.schemas.timescales import TimeScale
 
@@ -81,7 +81,7 @@ def test_signatures_resolve() -> None:
         "CorrectResult": CorrectResult,
         "Region": Region,
         "SqlResult": SqlResult,
-        "Orphans": Orphans,
+        "Compacted": Compacted,
         "Moved": Moved,
         "Proposal": Proposal,
         "Screening": Screening,

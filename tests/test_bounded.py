@@ -89,7 +89,7 @@ def test_compact_removes_unreferenced_files_and_keeps_every_version(demo_store: 
     assert res.code == 0 and "dry run: 2 unreferenced data files" in res.err, res.err
     assert tree_bytes(demo_store) == with_orphans
 
-    res = run_cli("compact", "--store", demo_store)
+    res = run_cli("compact", "--no-merge", "--store", demo_store)
     assert res.code == 0 and res.err.startswith("removed 2 data files"), res.err
     assert not any(p.exists() for p in left)
     after = tree_bytes(demo_store)
@@ -97,4 +97,47 @@ def test_compact_removes_unreferenced_files_and_keeps_every_version(demo_store: 
         with_orphans.pop(str(p.relative_to(demo_store)))
     assert after == with_orphans  # nothing else touched, no new version
     assert _counts(store) == counts
-    assert run_cli("compact", "--store", demo_store).err.startswith("no unreferenced")
+    assert run_cli("compact", "--no-merge", "--store", demo_store).err.startswith("no unreferenced")
+
+
+def test_compact_merges_small_files_and_every_version_reads_the_same_rows(
+    demo_store: Path, tmp_path: Path
+) -> None:
+    store = api.open_store(demo_store)
+    latest = store.latest_version()
+    before = {v: api.query_arrow(store, as_of=v) for v in range(1, latest + 1)}
+    files = len(list((demo_store / "data").rglob("*.parquet")))
+    assert run_cli("export", "--out", tmp_path / "a", "--as-of", 3, "--store", demo_store).code == 0
+    res = run_cli("compact", "--store", demo_store)
+    assert res.code == 0, res.err
+    assert f"recorded as version {latest + 2}" in res.err, res.err
+    store = api.open_store(demo_store)
+    for v, table in before.items():
+        assert api.query_arrow(store, as_of=v).equals(table), v
+    assert api.query_arrow(store).equals(before[latest])
+    assert len(list((demo_store / "data").rglob("*.parquet"))) < files / 2
+    last = api.history(store)[-1]
+    assert (last.version, last.command) == (latest + 2, "compact")
+    assert last.summary["merge_version"] == latest + 1
+    assert last.summary["data_files_after"] < last.summary["data_files_before"]
+    # an old version's export is byte for byte what it was before the merge
+    assert run_cli("export", "--out", tmp_path / "b", "--as-of", 3, "--store", demo_store).code == 0
+    assert tree_bytes(tmp_path / "a") == tree_bytes(tmp_path / "b")
+
+
+def test_a_write_merges_the_files_once_the_store_holds_many(
+    demo_store: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from strata13.compile.store import files
+
+    store = api.open_store(demo_store)
+    rows = api.query_arrow(store)
+    with store.transaction("test", "a write") as tx:
+        tx.record({"test": 1}, "")
+    assert api.history(store)[-1].command == "test"  # under the threshold: no merge
+    monkeypatch.setattr(files, "AUTO_MERGE_FILES", 5)
+    with store.transaction("test", "another write") as tx:
+        tx.record({"test": 2}, "")
+    last = api.history(store)[-1]
+    assert last.command == "compact" and last.version == tx.version + 2
+    assert api.query_arrow(store).equals(rows)

@@ -134,6 +134,13 @@ def test_demo_runs_and_exports(tmp_path: Path) -> None:
     assert res.returncode == 0, res.stderr
     manifest = json.loads((tmp_path / "d" / "export" / "manifest.json").read_text())
     assert manifest["counts"]["records"] > 100 and manifest["counts"]["sections"] >= 6
+    # the package: dictionary, README with the invented-data warning, LOESS cited with the curve
+    listed = {f["path"] for f in manifest["files"]}
+    assert {"columns.csv", "README.txt", "chains.parquet", "ties.csv"} <= listed
+    readme = (tmp_path / "d" / "export" / "README.txt").read_text(encoding="utf-8")
+    assert "INVENTED DATA" in readme and "strata13 demo" in readme
+    bib = (tmp_path / "d" / "export" / "bibliography.bib").read_text(encoding="utf-8")
+    assert "@misc{method-loess," in bib and "@misc{rotation-orvanne-demo-2026," in bib
 
 
 COMMANDS = [
@@ -293,10 +300,11 @@ def test_scales_lists_the_shipped_tables_without_a_store_and_marks_the_store(
     res = subprocess.run(
         [*EXE, "scales", "--format", "json"], capture_output=True, text=True, cwd=empty
     )
-    rows = json.loads(res.stdout)
+    rows = json.loads(res.stdout)["materials"]  # one document: materials and relations
     assert res.returncode == 0 and not list(empty.iterdir())  # nothing created
     # IAEA-603 as assigned by its characterization paper: +2.460 ± 0.010, k = 1
     iaea603 = next(r for r in rows if r["material"] == "IAEA-603")
     assert (iaea603["d13c"], iaea603["d13c_unc"], iaea603["d13c_unc_kind"]) == (2.46, 0.01, "k=1")
     res = run("scales", "--store", str(demo_store))
-    assert res.returncode == 0 and "IUPAC-2014" in res.stderr and "True" in res.stderr
+    # both tables are data: on stdout (booleans read yes/no)
+    assert res.returncode == 0 and "IUPAC-2014" in res.stdout and "\tyes" in res.stdout

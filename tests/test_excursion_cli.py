@@ -109,6 +109,7 @@ def test_manifest_records_draws_seed_and_method_and_files_repeat(
         "excursion_columns.csv",
         "excursion.png",
         "excursion.svg",
+        "excursion.pdf",
     ):
         assert (a / name).read_bytes() == (b / name).read_bytes(), name
 

@@ -20,6 +20,7 @@ import pytest
 from strata13.compile import api
 
 from strata13.errors import ValidationFailed
+from strata13.numbers import readable
 from tests.conftest import run_cli as run
 from tests.conftest import tree_bytes
 
@@ -303,7 +304,9 @@ def test_explain_prints_both_reanchoring_steps_with_their_numbers(demo_store_ses
     second = next(ln for ln in lines if "2. re-anchoring (two-point)" in ln)
     assert lines.index(first) < lines.index(second)
     assert f"→ {row.d13c_carb_reported:g} ‰" in first
-    assert f"→ {expected:g} ‰" in second and f"slope={MF_SLOPE!r}" in second
+    # to the meaningful digits human text shows (strata13.numbers; --json keeps every digit)
+    assert f"→ {readable(expected, unit='‰')} ‰" in second
+    assert f"slope={readable(MF_SLOPE)}" in second
     assert "-46.48" in second and "-46.6" in second
     flags = [ln.strip() for ln in lines if ln.strip().startswith("flag:")]
     assert any("withdrawn" in f for f in flags)
@@ -582,7 +585,7 @@ def test_declared_offset_is_added_after_reanchoring_and_its_why_is_the_last_step
 def test_scales_without_a_store_lists_superseded_and_disagreeing_values() -> None:
     res = run("scales", "--format", "json")
     assert res.returncode == 0, res.stderr
-    rows = json.loads(res.stdout)
+    rows = json.loads(res.stdout)["materials"]
     assert all(r["in_store"] is None for r in rows)
 
     def pick(material: str, iso: str) -> set[tuple]:
@@ -610,7 +613,9 @@ def test_scales_without_a_store_lists_superseded_and_disagreeing_values() -> Non
 def marks(store: Path) -> dict[tuple[str, str], str | None]:
     res = run("scales", "--format", "json", "--store", str(store))
     assert res.returncode == 0, res.stderr
-    return {(r["material"], r["value_set"]): r["in_store"] for r in json.loads(res.stdout)}
+    return {
+        (r["material"], r["value_set"]): r["in_store"] for r in json.loads(res.stdout)["materials"]
+    }
 
 
 def test_scales_with_a_store_marks_the_accepted_row_per_isotope(demo_store_session: Path) -> None:

@@ -680,7 +680,8 @@ def test_coverage_writes_table_and_heatmap(
 
     out = tmp_path / "cov"
     r = ok("coverage", "--interval", "Toarcian", "--bin-myr", "0.5", "--out", out, "--store", ro)
-    assert {"coverage.csv", "coverage.png", "coverage.svg"} <= {p.name for p in out.iterdir()}
+    names = {p.name for p in out.iterdir()}
+    assert {"coverage.csv", "coverage.png", "coverage.svg", "coverage.pdf"} <= names
     written = pd.read_csv(out / "coverage.csv")
     pd.testing.assert_frame_equal(
         written.reset_index(drop=True), coverage_csv.reset_index(drop=True), check_exact=False

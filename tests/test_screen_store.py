@@ -427,7 +427,11 @@ def test_plot_writes_one_readable_png_per_section(demo_store: Path, tmp_path: Pa
     sections = frame(demo_store, "SELECT DISTINCT source_id, section_id FROM records")
     files = sorted(out.glob("*.png"))
     assert len(files) == len(sections) >= 6
-    assert sorted(p.name for p in out.iterdir()) == [p.name for p in files]
+    # nothing but the figures: each a PNG with its SVG and PDF beside it
+    stems = [p.stem for p in files]
+    assert sorted(p.name for p in out.iterdir()) == sorted(
+        f"{s}.{ext}" for s in stems for ext in ("pdf", "png", "svg")
+    )
     for f in files:
         img = mpimg.imread(f)
         assert img.ndim == 3 and img.shape[0] > 100 and img.shape[1] > 100

@@ -690,7 +690,9 @@ def test_cross_plots_one_png_per_section(tmp_path: Path) -> None:
     rs = ruleset(MN_SR_10, cov_rule(min_n=5))
     res, _, g = evaluate(t, rs)
     files = plots.cross_plots(t, res, g, tmp_path / "plots")
-    assert len(files) == 2
+    assert len(files) == 6  # two sections, each as PNG, SVG and PDF
+    assert sorted({f.suffix for f in files}) == [".pdf", ".png", ".svg"]
+    files = [f for f in files if f.suffix == ".png"]
     for f in files:
         assert f.parent == tmp_path / "plots" and f.suffix == ".png"
         assert f.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

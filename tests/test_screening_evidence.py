@@ -186,10 +186,10 @@ def test_the_shipped_rule_set_declares_evidence_for_every_screened_carbonate() -
 def test_cross_plot_titles_keep_a_correlation_near_one_from_reading_as_one() -> None:
     from strata13.compile.screening.plots import _line
 
-    line = _line(
-        {"r": 0.996042, "r2": 0.9921, "n": 16, "n_eff": 3.87, "p": 0.0055, "outcome": "warn"}
-    )
-    assert line.startswith("r = 0.996, r² = 0.99,")
-    assert _line(
-        {"r": -0.99996, "r2": 0.99992, "n": 9, "n_eff": 9.0, "p": 0.01, "outcome": "warn"}
-    ).startswith("r = -0.99996, r² = 0.9999,")
+    rule = {"rule": "d13c-d18o-covariance", "outcome": "warn"}
+    line = _line(rule | {"r": 0.996042, "r2": 0.9921, "n": 16, "n_eff": 3.87, "p": 0.0055})
+    head, numbers = line.split("\n")
+    assert head == "rule d13c-d18o-covariance: warned (kept)"  # the rule and its outcome
+    assert numbers.startswith("r = 0.996, r² = 0.99,")
+    line = _line(rule | {"r": -0.99996, "r2": 0.99992, "n": 9, "n_eff": 9.0, "p": 0.01})
+    assert line.split("\n")[1].startswith("r = −0.99996, r² = 0.9999,")  # a true minus

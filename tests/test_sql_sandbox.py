@@ -285,7 +285,7 @@ def test_the_second_wall_allows_only_the_pinned_versions_files(
 
 def test_version_files_match_ducklakes_own_listing(demo_store_session: Path) -> None:
     """Outside reference: DuckLake's ducklake_list_files at each version of the store."""
-    from strata13.compile.store.relations import READ_VIEWS, tables_at
+    from strata13.compile.store.relations import HIDDEN, READ_VIEWS, tables_at
 
     store = api.open_store(demo_store_session)
     con, latest = store.reader()
@@ -293,7 +293,7 @@ def test_version_files_match_ducklakes_own_listing(demo_store_session: Path) -> 
         for version in (1, latest // 2, latest):
             ours = version_files(con, store.path / DATA, version)
             theirs: set[str] = set()
-            for table in tables_at(con, version) & set(READ_VIEWS):
+            for table in tables_at(con, version) & {*READ_VIEWS, *HIDDEN}:
                 rows = con.execute(
                     "SELECT data_file, delete_file FROM ducklake_list_files('lake', ?, "
                     "snapshot_version => ?)",

@@ -10,8 +10,11 @@ import numpy as np
 import pandas as pd
 import pytest
 from matplotlib.image import imread
+from strata13.compile.plotting import style
+from strata13.compile.plotting.save import save
+from strata13.compile.plotting.style import DPI
 from strata13.compile.synthesis import excursion, figures
-from strata13.compile.synthesis.figures import DPI, MERGED_NOTE, PALETTE
+from strata13.compile.synthesis.figures import CURVE_HEIGHT_IN, MERGED_NOTE, PALETTE
 
 from strata13.errors import DomainError
 
@@ -71,7 +74,8 @@ def _inputs(
 
 
 def test_curve_figure_size_and_png_pixels(tmp_path: Path) -> None:
-    # Source: matplotlib's own reading of the file (imread) against size × DPI.
+    # Source: matplotlib's own reading of the file (imread) against size × DPI; the width
+    # is the single column's 85 mm (common practice).
     samples, curve, robust = _inputs()
     fig = figures.curve_figure(
         samples,
@@ -80,16 +84,18 @@ def test_curve_figure_size_and_png_pixels(tmp_path: Path) -> None:
         stages=STAGES,
         bins=[182.0, 184.0, 186.0],
         title="Invented",
-        size=(7.0, 4.5),
+        width="single",
     )
     fig.canvas.draw()
-    assert tuple(fig.get_size_inches()) == (7.0, 4.5)
-    png, svg = figures.save_figure(fig, tmp_path / "c.png", tmp_path / "c.svg")
-    assert png is not None and svg is not None and svg.stat().st_size > 0
-    assert imread(png).shape[:2] == (round(4.5 * DPI), round(7.0 * DPI))
+    w, h = fig.get_size_inches()
+    assert w == pytest.approx(85.0 / 25.4) and h > CURVE_HEIGHT_IN["single"]
+    png, svg, pdf = save(fig, tmp_path / "c.png")
+    assert svg.stat().st_size > 0 and pdf.read_bytes()[:5] == b"%PDF-"
+    rows, cols = imread(png).shape[:2]
+    assert abs(rows - h * DPI) < 1 and abs(cols - w * DPI) < 1  # whole pixels
     ax = fig.axes[0]
     assert ax.get_xlim()[0] > ax.get_xlim()[1]  # older on the left (OLDER_ON_LEFT)
-    assert ax.get_ylabel() == "δ¹³C carb (‰ VPDB)"
+    assert ax.get_ylabel() == r"$\delta^{13}\mathrm{C}_{\mathrm{carb}}$ (‰ VPDB)"
     assert fig.axes[1].get_xlabel() == "Age (Ma)"  # on the stage strip under the plot
 
 
@@ -100,10 +106,11 @@ def test_svg_and_png_bytes_repeat(tmp_path: Path) -> None:
     for k in range(2):
         samples, curve, robust = _inputs()
         fig = figures.curve_figure(samples, curve, robustness=robust, stages=STAGES)
-        out.append(figures.save_figure(fig, tmp_path / f"{k}.png", tmp_path / f"{k}.svg"))
-    (p0, s0), (p1, s1) = out
+        out.append(save(fig, tmp_path / f"{k}.png"))
+    (p0, s0, d0), (p1, s1, d1) = out
     assert s0.read_bytes() == s1.read_bytes()
     assert p0.read_bytes() == p1.read_bytes()
+    assert d0.read_bytes() == d1.read_bytes() and b"CreationDate" not in d0.read_bytes()
     text = s0.read_text(encoding="utf-8")
     assert "<dc:date>" not in text and "<dc:title>strata13</dc:title>" in text
     assert b"tIME" not in p0.read_bytes() and b"Software" not in p0.read_bytes()
@@ -118,7 +125,8 @@ def test_one_group_and_band_hidden_everywhere() -> None:
     labels = [t.get_text() for t in legend.get_texts()]
     assert labels == ["Only (n = 60)"]
     assert not [c for c in fig.axes[0].collections if "Between" in type(c).__name__]
-    assert fig.axes[0].get_ylabel() == "δ¹³C org (‰ VPDB)"
+    assert fig.axes[0].get_ylabel() == style.math(figures.ORG_LABEL)
+    assert fig.axes[0].get_ylabel().startswith(r"$\delta^{13}\mathrm{C}_{\mathrm{org}}$")
 
 
 def test_legend_overlaps_no_axes_and_notes() -> None:
@@ -132,7 +140,7 @@ def test_legend_overlaps_no_axes_and_notes() -> None:
     box = fig.legends[0].get_window_extent(r)
     for ax in fig.axes:
         assert not box.overlaps(ax.get_window_extent(r))
-    assert fig.axes[0].get_title(loc="left") == MERGED_NOTE
+    assert fig.axes[0].get_title(loc="left") == style.math(MERGED_NOTE)
     labels = [t.get_text() for t in fig.legends[0].get_texts()]
     assert "refits, one left out each" in labels and "curve band (lo–hi)" in labels
     assert len([c for c in fig.axes[0].collections if "Between" in type(c).__name__]) == 2
@@ -165,7 +173,7 @@ def test_bins_table_and_missing_columns() -> None:
         }
     )
     fig = figures.curve_figure(samples, curve, bins=bins)
-    assert "bin summaries" in [t.get_text() for t in fig.legends[0].get_texts()]
+    assert "bin summaries (lo–hi)" in [t.get_text() for t in fig.legends[0].get_texts()]
     with pytest.raises(DomainError, match="fit"):
         figures.curve_figure(samples, curve.drop(columns="fit"))
     with pytest.raises(DomainError, match="nothing to plot"):
@@ -211,9 +219,10 @@ def test_excursion_figure(tmp_path: Path) -> None:
     df = _sections()
     ps = excursion.per_section(df, baseline_window=(189.0, 190.0, "ma"))
     ps.loc[ps["section_id"] == "Late", "onset_position_m"] = np.nan  # as if flagged
-    fig = figures.excursion_figure(df, ps, size=(9.0, 5.0), title="Invented δ13C")
+    fig = figures.excursion_figure(df, ps, "double", title="Invented δ13C")
     fig.canvas.draw()
-    assert tuple(fig.get_size_inches()) == (9.0, 5.0)
+    width, height = fig.get_size_inches()
+    assert width == pytest.approx(175.0 / 25.4)  # the double column (common practice)
     *panels, ages = fig.axes
     assert len(panels) == 3 and panels[0].get_shared_y_axes().joined(panels[0], panels[2])
     assert "Late" in fig.get_suptitle()
@@ -223,17 +232,22 @@ def test_excursion_figure(tmp_path: Path) -> None:
     y_peak = line.get_ydata()[np.argmin(line.get_xdata())]
     assert y_peak == pytest.approx(s1["onset_position_m"] - s1["peak_position_m"])
     assert y_peak > 0
-    # mass numbers as superscripts, as a journal prints them, with the scale
-    assert panels[0].get_xlabel() == "δ¹³C carb (‰ VPDB)"
-    assert fig.get_suptitle().startswith("Invented δ¹³C")
+    # mass numbers as superscripts (mathtext), as a journal prints them, with the scale
+    assert fig.subfigs[0].get_supxlabel() == r"$\delta^{13}\mathrm{C}_{\mathrm{carb}}$ (‰ VPDB)"
+    assert fig.get_suptitle().startswith(r"Invented $\delta^{13}\mathrm{C}$")
+    # one δ axis for all panels by default: magnitudes compare by eye
+    assert panels[0].get_shared_x_axes().joined(panels[0], panels[2])
     # the age panel: one row per section with an age (Late has none: its window is empty),
     # older to the left, and no
     # range bars without the uncertainty columns
     assert [t.get_text() for t in ages.get_yticklabels()] == ["S0", "S1", "S2"]
     assert ages.xaxis_inverted()
     assert all(len(ln.get_xdata()) == 1 for ln in ages.lines)  # centres only
-    png, _ = figures.save_figure(fig, tmp_path / "e.png", None)
-    assert png is not None and imread(png).shape[:2] == (5 * DPI, 9 * DPI)
+    png, _, _ = save(fig, tmp_path / "e.png")
+    rows, cols = imread(png).shape[:2]
+    assert abs(rows - height * DPI) < 1 and abs(cols - width * DPI) < 1  # whole pixels
+    own = figures.excursion_figure(df, ps, "double", shared_axis=False)
+    assert not own.axes[0].get_shared_x_axes().joined(own.axes[0], own.axes[2])
     with pytest.raises(DomainError, match="onset"):
         figures.excursion_figure(df, ps.assign(onset_position_m=np.nan))
 
@@ -348,4 +362,5 @@ def test_curve_module_tables_are_accepted() -> None:
     )
     fig.canvas.draw()
     labels = [t.get_text() for t in fig.legends[0].get_texts()]
-    assert "bin summaries" in labels and "refits, one left out each" in labels
+    assert "bin median (bar: interquartile range)" in labels  # the bin-statistics form
+    assert "refits, one left out each" in labels

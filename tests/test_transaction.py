@@ -88,7 +88,10 @@ def test_readers_and_the_writer_see_the_same_relation_names(tmp_path: Path) -> N
     api.ingest(store, None, write_source(tmp_path, [("a", 1, "1.0")]))
     con, _ = store.reader()
     try:
-        views = "SELECT view_name FROM duckdb_views() WHERE temporary AND NOT internal"
+        views = (  # a Store's reads bind them in the connection's in-memory schema
+            "SELECT view_name FROM duckdb_views() "
+            "WHERE (temporary OR database_name = 'memory') AND NOT internal"
+        )
         read = {r[0] for r in con.execute(views).fetchall()}
         columns = {
             v: [d[0] for d in con.execute(f"SELECT * FROM {v} LIMIT 0").description] for v in read

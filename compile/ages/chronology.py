@@ -267,12 +267,16 @@ def _model_tie(t: dict[str, Any]) -> Any:
     )
 
 
-def plot_model(model: SectionModel, path: Path, note: str | None = None) -> Path:
-    """The section's age–position figure (ties, median, 95 % band) as PNG; ``note`` in
-    small type in its corner (that demo data are invented)."""
+def plot_model(
+    model: SectionModel, path: Path, note: str | None = None, width: str = "double"
+) -> list[Path]:
+    """The section's age–position figure (samples, ties, median, 95 % band) as PNG, SVG
+    and PDF beside ``path``, one journal column ``width`` wide; ``note`` is its caption
+    line (that demo data are invented)."""
     import numpy as np
     from strata13.compile.ages import agemodel
     from strata13.compile.ages.plot import plot_section
+    from strata13.compile.plotting.axes import chart_stages
 
     if model.draws.size == 0:
         raise DomainError(
@@ -285,4 +289,14 @@ def plot_model(model: SectionModel, path: Path, note: str | None = None) -> Path
         f"{model.section_id} ({model.source_id})\nage model on {model.time_scale}, "
         f"{model.draws.shape[0]} draws"
     )
-    return plot_section(ties, model.positions, summary, model.position_kind, title, path, note=note)
+    return plot_section(
+        ties,
+        model.positions,
+        summary,
+        model.position_kind,
+        title,
+        path,
+        width,
+        note=note,
+        stages=chart_stages(model.time_scale),
+    )

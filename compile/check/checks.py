@@ -7,6 +7,7 @@ rejected and records the reason the quarantine keeps.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import TYPE_CHECKING, Any
 
 from strata13.compile.check.report import Issue, Report
@@ -45,9 +46,30 @@ class RowErrors:
         self.bad[i] = True
         self.reasons.setdefault(i, []).append(f"{cell}: {rule}")
 
+    def many(
+        self,
+        indices: np.ndarray,
+        where: tuple[str, str],
+        values: Any,
+        rule: str,
+        hint: Callable[[int], str],
+    ) -> None:
+        """The same rule broken in many rows: every row rejected with its reason, the first
+        cells reported one by one and the rest counted (``Report.add``), without building
+        a hint for cells the report only counts."""
+        letter, column = where
+        key = ("error", self.raw.sheet, letter, column, rule)
+        room = max(self.report.room(key), 0)
+        for i in indices[:room]:
+            self.error(int(i), letter, column, values[int(i)], rule, hint(int(i)))
+        rest = indices[room:]
+        if len(rest):
+            self.mark(rest, rule, letter)
+            self.report.count_more(key, len(rest))
+
     def mark(self, indices: np.ndarray, rule: str, letter: str) -> None:
+        self.bad[indices] = True
         for i in indices:
-            self.bad[int(i)] = True
             cell = f"{letter}{int(self.raw.row_numbers[int(i)])}"
             self.reasons.setdefault(int(i), []).append(f"{cell}: {rule}")
 

@@ -9,6 +9,7 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 SEVERITIES = ("error", "warning", "info")
+MAX_CELL_LINES = 200  # per column and rule; the rest are counted in one summary line
 
 
 @dataclass(frozen=True)
@@ -24,8 +25,18 @@ class Issue:
     rule: str
     hint: str
 
+    count: int = 1  # the cells this line stands for: more than one on a summary line
+
     def as_dict(self) -> dict[str, str]:
-        return asdict(self)
+        d = asdict(self)
+        del d["count"]
+        return d
+
+
+def more_cells(severity: str, sheet: str, letter: str, column: str, rule: str, n: int) -> Issue:
+    """The one summary line for ``n`` further cells of a column with the same problem."""
+    hint = f"{n} more cells in this column with the same problem"
+    return Issue(severity, sheet, letter, column, "", rule, hint, count=n)
 
 
 @dataclass
@@ -37,27 +48,58 @@ class Report:
     rows_blank: int = 0
     rows_valid: int = 0
     rows_rejected: int = 0
+    # (severity, sheet, column letter, header, rule) -> cell lines kept / cells past the cap
+    _kept: dict[tuple[str, str, str, str, str], int] = field(default_factory=dict, repr=False)
+    _more: dict[tuple[str, str, str, str, str], int] = field(default_factory=dict, repr=False)
 
     COLUMNS = ("severity", "sheet", "cell", "column", "value", "rule", "hint")
 
     def add(self, issue: Issue) -> None:
-        self.issues.append(issue)
+        """One finding; past ``MAX_CELL_LINES`` cell lines of one column and rule the rest
+        are counted into one summary line, so a sheet with a million bad cells stays
+        reportable (the count is exact, the cells are the column's)."""
+        letter = _letters(issue.cell)
+        key = (issue.severity, issue.sheet, letter, issue.column, issue.rule)
+        if issue.count != 1 and letter == issue.cell:
+            self.count_more(key, issue.count)  # a summary line: one per column and rule
+        elif not letter or letter == issue.cell:
+            self.issues.append(issue)  # a whole-file or whole-column line
+        elif self.room(key) > 0:
+            self._kept[key] = self._kept.get(key, 0) + 1
+            self.issues.append(issue)
+        else:
+            self.count_more(key, 1)
+
+    def room(self, key: tuple[str, str, str, str, str]) -> int:
+        """How many more cell lines of this (severity, sheet, letter, header, rule) are kept."""
+        return MAX_CELL_LINES - self._kept.get(key, 0)
+
+    def count_more(self, key: tuple[str, str, str, str, str], n: int) -> None:
+        self._more[key] = self._more.get(key, 0) + n
 
     def extend(self, issues: list[Issue]) -> None:
-        self.issues.extend(issues)
+        for issue in issues:
+            self.add(issue)
+
+    def _all(self) -> list[Issue]:
+        return self.issues + [more_cells(*key, n) for key, n in self._more.items()]
 
     @property
     def errors(self) -> list[Issue]:
-        return [i for i in self.issues if i.severity == "error"]
+        return [i for i in self._all() if i.severity == "error"]
 
     @property
     def warnings(self) -> list[Issue]:
-        return [i for i in self.issues if i.severity == "warning"]
+        return [i for i in self._all() if i.severity == "warning"]
+
+    def count(self, severity: str) -> int:
+        """Problems of one severity, each cell of a summary line counted."""
+        return sum(i.count for i in self._all() if i.severity == severity)
 
     def sorted(self) -> list[Issue]:
         order = {s: k for k, s in enumerate(SEVERITIES)}
         return sorted(
-            self.issues,
+            self._all(),
             key=lambda i: (order.get(i.severity, 9), i.sheet, _cell_key(i.cell), i.rule),
         )
 
@@ -86,6 +128,13 @@ class Report:
         """CSV or JSON by the file's suffix (JSON for .json, CSV otherwise)."""
         text = self.to_json() if path.suffix.lower() == ".json" else self.to_csv()
         path.write_text(text, encoding="utf-8")
+
+
+def _letters(cell: str) -> str:
+    """The column letters of a single cell such as ``D17`` (empty for a range or none)."""
+    if ":" in cell:
+        return ""
+    return cell.rstrip("0123456789")
 
 
 def _cell_key(cell: str) -> tuple[int, str]:

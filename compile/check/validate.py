@@ -10,8 +10,9 @@ from __future__ import annotations
 
 import hashlib
 import json
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, overload
 
 from strata13.compile.check.checks import (
     RowErrors,
@@ -63,7 +64,7 @@ class Prepared:
     localities: pa.Table
     sections: pa.Table
     samples: pa.Table
-    quarantine: list[dict[str, Any]]
+    quarantine: Sequence[dict[str, Any]]
     report: Report = field(default_factory=Report)
     runs: pa.Table | None = None  # in-house runs: the reference-material measurements
 
@@ -219,7 +220,7 @@ class _Preparing:
     # stored column -> numpy or Arrow array a row, or one constant for the whole sheet
     cols: dict[str, Any] = field(default_factory=dict)
     letters: dict[str, tuple[str, str]] = field(default_factory=dict)  # -> (letter, header)
-    quarantine: list[dict[str, Any]] = field(default_factory=list)
+    quarantine: Sequence[dict[str, Any]] = field(default_factory=list)
     runs: pa.Table | None = None  # an in-house run's reference-material measurements
     found: dict[str, tuple[int, str | None]] = field(init=False)  # header -> (column, unit)
     section_blocks: dict[str, dict[str, Any]] = field(init=False)
@@ -704,26 +705,24 @@ def _check_duplicate_records(st: _Preparing) -> None:
     standards = (
         {m.lower() for m in [*run["anchors"], *run["checks"]]} if run else set()
     )  # a run's standards repeat by design; they leave in _keep_valid_records
-    letter, header = st.sample_cell
-    for i in np.flatnonzero(first >= 0):
-        if standards and str(st.sample[i]).strip().lower() in standards:
-            continue
+    repeated = np.flatnonzero(first >= 0)
+    if standards:
+        keep = [str(st.sample[i]).strip().lower() not in standards for i in repeated]
+        repeated = repeated[np.array(keep, dtype=bool)]
+
+    def hint(i: int) -> str:
         first_row = st.raw.row_numbers[first[i]]
-        st.rows.error(
-            int(i),
-            letter,
-            header,
-            st.sample[i],
-            "duplicate record",
-            (
+        if st.replicate_keys is not None:
+            return (
                 f"section {st.sec[i]}, sample {st.sample[i]} at {st.replicate_keys[i]} is "
                 f"already in row {first_row}; check the run and run_position"
-                if st.replicate_keys is not None
-                else f"section {st.sec[i]}, sample {st.sample[i]}, replicate "
-                f"{st.replicate[i]} is already in row {first_row}; give replicates a "
-                "replicate number"
-            ),
+            )
+        return (
+            f"section {st.sec[i]}, sample {st.sample[i]}, replicate {st.replicate[i]} is "
+            f"already in row {first_row}; give replicates a replicate number"
         )
+
+    st.rows.many(repeated, st.sample_cell, st.sample, "duplicate record", hint)
 
 
 def _assemble_frame(st: _Preparing) -> None:
@@ -821,35 +820,66 @@ def _check_frame(st: _Preparing) -> None:
 
 
 def _quarantine_bad_rows(st: _Preparing) -> None:
-    """Rejected rows keep their cells and reasons, so that --keep-valid can set them aside."""
+    """Rejected rows keep their cells and reasons, so that --keep-valid can set them aside.
+
+    The entries are built only when read: a refused sheet (nothing written) never pays for
+    them, however many rows it has."""
     import numpy as np
 
     raw, rows = st.raw, st.rows
     st.report.rows_valid = int((~rows.bad).sum())
     st.report.rows_rejected = int(rows.bad.sum()) + raw.rejected_rows
-    for i in np.nonzero(rows.bad)[0]:
-        cells = {raw.headers[j]: raw.column(j)[int(i)].as_py() for j in range(len(raw.headers))}
-        st.quarantine.append(
-            {
-                "sheet": raw.sheet,
-                "file_name": st.spec.file.name,
-                "sheet_row": int(raw.row_numbers[i]),
-                "cells_json": json.dumps(cells, ensure_ascii=False),
-                "reasons": "; ".join(rows.reasons.get(int(i), [])),
-            }
-        )
-    for issue in raw.issues:  # rows the reader could not split: quarantined with their text
-        if issue.rule == "row shape":
-            digits = "".join(ch for ch in issue.cell if ch.isdigit())
-            st.quarantine.append(
+    bad = np.nonzero(rows.bad)[0]
+    unsplit = [i for i in raw.issues if i.rule == "row shape"]
+    file_name = st.spec.file.name
+
+    def build() -> list[dict[str, Any]]:
+        out = []
+        for i in bad:
+            cells = {h: raw.column(j)[int(i)].as_py() for j, h in enumerate(raw.headers)}
+            out.append(
                 {
                     "sheet": raw.sheet,
-                    "file_name": st.spec.file.name,
+                    "file_name": file_name,
+                    "sheet_row": int(raw.row_numbers[i]),
+                    "cells_json": json.dumps(cells, ensure_ascii=False),
+                    "reasons": "; ".join(rows.reasons.get(int(i), [])),
+                }
+            )
+        for issue in unsplit:  # rows the reader could not split: quarantined with their text
+            digits = "".join(ch for ch in issue.cell if ch.isdigit())
+            out.append(
+                {
+                    "sheet": raw.sheet,
+                    "file_name": file_name,
                     "sheet_row": int(digits) if digits else None,
                     "cells_json": json.dumps({"line": issue.value}, ensure_ascii=False),
                     "reasons": f"{issue.cell}: row shape",
                 }
             )
+        return out
+
+    st.quarantine = QuarantineRows(build, len(bad) + len(unsplit))
+
+
+class QuarantineRows(Sequence[dict[str, Any]]):
+    """The quarantine entries of one sheet, counted at once and built on first use."""
+
+    def __init__(self, build: Callable[[], list[dict[str, Any]]], n: int) -> None:
+        self._build, self._n = build, n
+        self._rows: list[dict[str, Any]] | None = None
+
+    def __len__(self) -> int:
+        return self._n
+
+    @overload
+    def __getitem__(self, k: int) -> dict[str, Any]: ...
+    @overload
+    def __getitem__(self, k: slice) -> Sequence[dict[str, Any]]: ...
+    def __getitem__(self, k: int | slice) -> dict[str, Any] | Sequence[dict[str, Any]]:
+        if self._rows is None:
+            self._rows = self._build()
+        return self._rows[k]
 
 
 def _keep_valid_records(st: _Preparing) -> None:

@@ -45,6 +45,7 @@ class Artifact:
         self.folder = folder
         self.manifest_name = manifest
         self.files: dict[str, str] = {}  # path relative to the folder -> sha256
+        self.sizes: dict[str, int] = {}  # path relative to the folder -> bytes
         self._parent = _parent
         self._prefix = _prefix
         self._finished = False
@@ -68,8 +69,9 @@ class Artifact:
             raise FileNotFoundError(p)
         digest = sha256_of(p)
         self.files[name] = digest
+        self.sizes[name] = p.stat().st_size
         if self._parent is not None:
-            self._parent._take(f"{self._prefix}{name}", digest)
+            self._parent._take(f"{self._prefix}{name}", digest, self.sizes[name])
         return digest
 
     def write_text(self, name: str, text: str) -> str:
@@ -88,7 +90,10 @@ class Artifact:
         self._check_open()
         manifest = {
             **fields,
-            "files": [{"path": k, "sha256": v} for k, v in sorted(self.files.items())],
+            "files": [
+                {"path": k, "sha256": v, "bytes": self.sizes[k]}
+                for k, v in sorted(self.files.items())
+            ],
         }
         p = self.folder / self.manifest_name
         p.write_text(
@@ -98,9 +103,10 @@ class Artifact:
         self._finished = True
         return p
 
-    def _take(self, name: str, digest: str) -> None:
+    def _take(self, name: str, digest: str, size: int) -> None:
         self._check_open()
         self.files[name] = digest
+        self.sizes[name] = size
 
     def _check_open(self) -> None:
         if self._finished:

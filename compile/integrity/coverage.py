@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     import pandas as pd
+    from matplotlib.figure import Figure
     from strata13.compile.query.filters import Filters
     from strata13.compile.store.lake import Store
 
@@ -59,14 +60,47 @@ def counts(samples: pd.DataFrame, edges: Any, groups: list[str] | None = None) -
 
 
 def heatmap(
-    table: pd.DataFrame, path_png: Path, path_svg: Path, title: str, note: str | None = None
-) -> None:
-    """Sections per cell (rows: group · component; columns: bins, older to the left), the
-    count written in every cell and empty cells hatched."""
+    table: pd.DataFrame,
+    path: Path,
+    title: str,
+    note: str | None = None,
+    width: str = "double",
+    stages: list[tuple[str, float, float]] | None = None,
+) -> list[Path]:
+    """The coverage figure as PNG, SVG and PDF beside ``path`` (``plotting.save``); returns
+    the files. See ``heatmap_figure``."""
+    from strata13.compile.plotting.save import save
+
+    return save(heatmap_figure(table, title, width, stages), path, note)
+
+
+def heatmap_figure(
+    table: pd.DataFrame,
+    title: str,
+    width: str = "double",
+    stages: list[tuple[str, float, float]] | None = None,
+) -> Figure:
+    """Sections per cell (rows: group · component; columns: the bins at their true ages,
+    older to the left, the stage strip under them), the count written in every cell and
+    empty cells hatched. Counts are whole numbers, so the colour scale is discrete: one
+    colour per count, ticks on the integers."""
+    from strata13.compile.plotting.style import journal
+
+    with journal(width):
+        return _heatmap_figure(table, title, width, stages)
+
+
+def _heatmap_figure(
+    table: pd.DataFrame,
+    title: str,
+    width: str,
+    stages: list[tuple[str, float, float]] | None,
+) -> Figure:
     import numpy as np
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-    from strata13.compile.synthesis.figures import save_figure
+    from matplotlib import colormaps
+    from matplotlib.colors import BoundaryNorm
+    from strata13.compile.plotting import axes as age
+    from strata13.compile.plotting.style import new_figure, plain, wrap
 
     table = table.copy()
     table["row"] = table["group"] + " · " + table["component"]
@@ -75,7 +109,7 @@ def heatmap(
         table[["age_old", "age_young"]]
         .drop_duplicates()
         .sort_values("age_old", ascending=False)
-        .to_numpy()
+        .to_numpy(dtype=float)
     )
     grid = np.zeros((len(rows), len(bins)), dtype=int)
     samples = np.zeros_like(grid)
@@ -83,50 +117,54 @@ def heatmap(
         i = rows.index(r.row)
         j = int(np.flatnonzero(bins[:, 0] == r.age_old)[0])
         grid[i, j], samples[i, j] = r.n_sections, r.n_samples
-    fig = Figure(figsize=(max(6.0, 0.55 * len(bins) + 3.5), max(2.5, 0.45 * len(rows) + 1.8)))
-    FigureCanvasAgg(fig)
-    ax = fig.add_subplot(1, 1, 1)
-    masked = np.ma.masked_equal(grid, 0)
+    height = 1.3 + 0.26 * len(rows) + age.STRIP_IN
+    fig = new_figure(width, height)
+    old, young = float(bins[:, 0].max()), float(bins[:, 1].min())
+    stage_list = age.stages_in(stages, old, young)
+    ax, strip = age.age_axes(fig, fig.add_gridspec(1, 1)[0], stage_list, height)
     top = max(1, int(grid.max()))
-    # counts are whole numbers: one colour per count (a discrete scale), ticks on integers
-    from matplotlib import colormaps
-    from matplotlib.colors import BoundaryNorm
-
     cmap = colormaps["viridis"].resampled(top)
     norm = BoundaryNorm(np.arange(0.5, top + 1.5), cmap.N)
-    im = ax.imshow(masked, aspect="auto", cmap=cmap, norm=norm)
-    ax.set_facecolor("white")
-    for i in range(len(rows)):
-        for j in range(len(bins)):
+    masked = np.ma.masked_equal(grid, 0)
+    im = None
+    for j, (a, b) in enumerate(bins):  # one column per bin, at its true ages
+        im = ax.pcolormesh(
+            [a, b], np.arange(len(rows) + 1) - 0.5, masked[:, j : j + 1], cmap=cmap, norm=norm
+        )
+        for i in range(len(rows)):
             if grid[i, j] == 0:
-                ax.add_patch(_hatch(j, i))
+                ax.add_patch(_hatch(a, b, i))
             dark = 0 < grid[i, j] < 0.6 * top  # dark end of viridis
             ax.text(
-                j,
+                (a + b) / 2,
                 i,
                 f"{grid[i, j]}\n({samples[i, j]})",
                 ha="center",
                 va="center",
-                fontsize=7,
+                fontsize="small",
+                linespacing=1.0,
                 color="white" if dark else "black",
             )
-    ax.set_yticks(range(len(rows)), rows, fontsize=8)
-    ax.set_xticks(
-        range(len(bins)), [f"{a:g}–{b:g}" for a, b in bins], rotation=60, ha="right", fontsize=7
-    )
-    ax.set_xlabel("Age bin (Ma), older to the left")
-    ax.set_title(title, fontsize=9)
-    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02, ticks=range(1, top + 1))
-    cb.set_label("sections (samples in brackets); hatched: no data", fontsize=8)
-    fig.tight_layout()
-    save_figure(fig, path_png, path_svg, note)
+    ax.set_ylim(len(rows) - 0.5, -0.5)
+    ax.set_yticks(range(len(rows)), [plain(r) for r in rows])
+    ax.tick_params(axis="y", length=0)
+    age.set_age_axis(ax, old, young, width=width)
+    text = title + "\neach cell: sections (samples); hatched: no data"
+    fig.suptitle(plain(wrap(text, width, 0.95)), x=0.01, ha="left", fontsize=None)
+    if im is not None:
+        cb = fig.colorbar(im, ax=ax, ticks=range(1, top + 1), fraction=0.04, pad=0.02)
+        cb.set_label("sections per cell")
+        cb.ax.minorticks_off()
+    if strip is not None:
+        age.stage_strip(fig, ax, strip, stage_list)
+    return fig
 
 
-def _hatch(x: int, y: int) -> Any:
+def _hatch(old: float, young: float, y: int) -> Any:
     from matplotlib.patches import Rectangle
 
     return Rectangle(
-        (x - 0.5, y - 0.5), 1, 1, fill=False, hatch="///", edgecolor="0.75", linewidth=0
+        (young, y - 0.5), old - young, 1, fill=False, hatch="///", edgecolor="0.75", linewidth=0
     )
 
 
@@ -137,6 +175,7 @@ def coverage(
     bin_myr: float | None = None,
     out: Path | None = None,
     command: str | None = None,
+    width: str = "double",
 ) -> tuple[pd.DataFrame, dict[str, str], list[str]]:
     """The coverage table for the filtered records (and, with ``out``, CSV, heatmap and a
     manifest naming ``command``, the filters, the store version and the settings hash);
@@ -144,6 +183,8 @@ def coverage(
     left out, with counts)."""
     from strata13.compile.derive.settings import DEFAULT_TIME_SCALE, Settings
     from strata13.compile.export.artifact import Artifact
+    from strata13.compile.plotting.axes import chart_stages
+    from strata13.compile.plotting.style import check_width
     from strata13.compile.synthesis.run import (
         CurveRequest,
         bin_edges_for,
@@ -151,7 +192,8 @@ def coverage(
         samples_for,
     )
 
-    req = CurveRequest(by=by, bin_myr=bin_myr)
+    check_width(width)
+    req = CurveRequest(by=by, bin_myr=bin_myr, width=width)
     req.check()
     s = samples_for(store, filters, req)
     df = s.frame
@@ -174,15 +216,15 @@ def coverage(
             art.path("coverage.csv"), index=False, lineterminator="\n", float_format="%.6g"
         )
         art.add("coverage.csv")
-        heatmap(
+        for path in heatmap(
             table,
             art.path("coverage.png"),
-            art.path("coverage.svg"),
             f"Coverage by {by} and component — {len(df)} samples, store version {s.version}",
             data_note(store),
-        )
-        art.add("coverage.png")
-        art.add("coverage.svg")
+            width,
+            chart_stages(scale),
+        ):
+            art.add(path.name)
         art.finish(
             {
                 "tool": "strata13",
@@ -191,7 +233,7 @@ def coverage(
                 "store_version": s.version,
                 "settings_hash": Settings.from_stored(s.settings).hash(),
                 "time_scale": scale,
-                "parameters": {"by": by, "bin_myr": bin_myr},
+                "parameters": {"by": by, "bin_myr": bin_myr, "width": width},
                 "filters": filters.describe(),
                 "samples": int(len(df)),
                 "screen_left_out": s.screen_left_out,

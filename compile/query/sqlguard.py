@@ -357,7 +357,7 @@ def _execute(
             raise _too_slow(timeout_s) from None
         raise QueryRefused(
             f"the query failed: {_first_sentence(exc)}",
-            f"Views: {', '.join(VIEWS)}; see DEVELOPERS.md for columns.",
+            f"Views: {', '.join(VIEWS)}; `strata13 sql 'DESCRIBE records'` lists a view's columns.",
         ) from None
     finally:
         timer.cancel()

@@ -21,7 +21,7 @@ import re
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
-from strata13.compile.check.report import Issue
+from strata13.compile.check.report import MAX_CELL_LINES, Issue, more_cells
 
 if TYPE_CHECKING:
     import numpy as np
@@ -53,7 +53,6 @@ MISSING_TOKENS = [
 BDL_PATTERN = r"^(bdl|b\.d\.l\.?|bd|b\.d\.|<\s*dl|<\s*lod|<\s*d\.l\.|below detection( limit)?|lod)$"
 MINUS_CHARS = "−–‒‐﹣－"  # U+2212 U+2013 U+2012 U+2010 U+FE63 U+FF0D
 NUMBER_PATTERN = r"^[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$"
-MAX_CELL_LINES = 200  # per column and rule; the rest are counted in one summary line
 
 
 @dataclass
@@ -92,17 +91,8 @@ def _cell_lines(
         for i, t in zip(idx[:MAX_CELL_LINES], texts[:MAX_CELL_LINES], strict=False)
     ]
     if len(idx) > MAX_CELL_LINES:
-        out.append(
-            Issue(
-                severity,
-                ctx.sheet,
-                ctx.letter,
-                ctx.header,
-                "",
-                rule,
-                f"{len(idx) - MAX_CELL_LINES} more cells in this column with the same problem",
-            )
-        )
+        n = len(idx) - MAX_CELL_LINES
+        out.append(more_cells(severity, ctx.sheet, ctx.letter, ctx.header, rule, n))
     return out
 
 

@@ -48,7 +48,32 @@ TOP_KEYS = {
     "run",
     "offsets",
 }
-SOURCE_KEYS = {"id", "citation", "year", "doi", "url", "kind", "lab", "republishes", "note"}
+# the source's bibliographic fields: optional, they make the export's BibTeX entry proper
+BIB_KEYS = ("entry_type", "authors", "title", "journal", "volume", "issue", "pages", "publisher")
+# BibTeX entry types a source may declare (without one: article when a journal is given)
+ENTRY_TYPES = (
+    "article",
+    "book",
+    "incollection",
+    "inproceedings",
+    "techreport",
+    "phdthesis",
+    "mastersthesis",
+    "unpublished",
+    "misc",
+)
+SOURCE_KEYS = {
+    "id",
+    "citation",
+    "year",
+    "doi",
+    "url",
+    "kind",
+    "lab",
+    "republishes",
+    "note",
+    *BIB_KEYS,
+}
 TABLE_KEYS = {"file", "sheet", "header_row", "decimal", "delimiter", "encoding"}
 COLUMN_KEYS = {"field", "unit", "scale", "basis", "detection_limit"}
 SECTION_KEYS = {
@@ -218,7 +243,7 @@ def _column(header: str, spec: Any, path: Path) -> ColumnMap:
         raise ConfigError(
             f"{path.name}: {where} names unknown field {name!r}."
             + did_you_mean(name, field_names()),
-            "The fields are listed in DEVELOPERS.md (schemas/fields.py).",
+            "Every field is listed in the README (Mapping files, Fields).",
         )
     f = BY_NAME.get(name)
     unit = spec.get("unit")
@@ -398,6 +423,7 @@ def _check_source(st: _Loading) -> None:
     source["kind"] = _source_kind(source.get("kind", "published"), path)
     _check_source_year(source.get("year"), path)
     _check_republishes(source.get("republishes", []), source["id"], path)
+    _check_bibliographic(source, path)
     st.source = source
 
 
@@ -448,6 +474,33 @@ def _check_republishes(rep: Any, sid: str, path: Path) -> None:
         raise ConfigError(
             f"{path.name}: source {sid!r} cannot re-publish itself.",
             "List the sources whose data this one re-publishes.",
+        )
+
+
+PAGES = re.compile(r"^\s*[A-Za-z]?\d+\s*(?:(?:-|–|—|--)\s*[A-Za-z]?\d+)?\s*$")
+
+
+def _check_bibliographic(source: dict[str, Any], path: Path) -> None:
+    """The optional BibTeX fields: a known entry type, authors as names, a page range as
+    numbers ("55-70" or "e10018"); each refusal says what to write instead."""
+    kind = source.get("entry_type")
+    if kind is not None and kind not in ENTRY_TYPES:
+        raise ConfigError(
+            f"{path.name}: [source] entry_type = {kind!r} is not a BibTeX entry type the "
+            "export writes." + did_you_mean(str(kind), ENTRY_TYPES),
+            f"Use one of {', '.join(ENTRY_TYPES)}.",
+        )
+    authors = source.get("authors")
+    if authors is not None and (not authors or any(not a.strip() for a in authors)):
+        raise ConfigError(
+            f"{path.name}: [source] authors must name at least one author, none blank.",
+            'Example: authors = ["Pell, I.", "Sarrow, D."] (family name, comma, initials).',
+        )
+    pages = source.get("pages")
+    if pages is not None and not PAGES.match(pages):
+        raise ConfigError(
+            f"{path.name}: [source] pages = {pages!r} is not a page or a page range.",
+            'Write pages = "55-70" (or one article number, e.g. "e10018").',
         )
 
 
@@ -518,7 +571,7 @@ def _check_constants(st: _Loading) -> None:
             raise ConfigError(
                 f"{path.name}: [constants] names unknown field {key!r}."
                 + did_you_mean(key, field_names()),
-                "The fields are listed in DEVELOPERS.md.",
+                "Every field is listed in the README (Mapping files, Fields).",
             )
         if key in st.seen:
             raise ConfigError(

@@ -166,6 +166,15 @@ SHAPE = Table(
                 "lab": TEXT,
                 "republishes": TEXT_LIST,
                 "note": TEXT,
+                # bibliographic fields for the export's BibTeX (mapping.BIB_KEYS)
+                "entry_type": TEXT,
+                "authors": TEXT_LIST,
+                "title": TEXT,
+                "journal": TEXT,
+                "volume": TEXT_OR_WHOLE,
+                "issue": TEXT_OR_WHOLE,
+                "pages": TEXT,
+                "publisher": TEXT,
             }
         ),
         "table": Table(TABLE_BLOCK),

@@ -76,3 +76,27 @@ def orphans(con: duckdb.DuckDBPyConnection) -> Orphans:
     ).fetchall()
     files = sorted(Path(str(r[0])) for r in rows)
     return Orphans(files, sum(p.stat().st_size for p in files if p.is_file()))
+
+
+# a store whose latest version reads more data files than this merges them after a write
+AUTO_MERGE_FILES = 400
+
+
+def live_files(con: duckdb.DuckDBPyConnection) -> int:
+    """How many data files the newest version reads."""
+    row = con.execute(
+        f"SELECT count(*) FROM {_META}.ducklake_data_file WHERE end_snapshot IS NULL"
+    ).fetchone()
+    return int(row[0]) if row else 0
+
+
+def merge_small_files(con: duckdb.DuckDBPyConnection) -> tuple[int, int]:
+    """Merge each table's small data files with DuckLake's own merge, which keeps every
+    version readable (old versions read their rows from the merged files), then remove
+    the files no version reads any more. Returns the live files (before, after); call
+    under the writer lock, outside a transaction (DuckLake makes the merge a version of
+    its own, holding the same data as the one before)."""
+    before = live_files(con)
+    con.execute("CALL ducklake_merge_adjacent_files('lake')").fetchall()
+    con.execute("CALL ducklake_cleanup_old_files('lake', cleanup_all => true)").fetchall()
+    return before, live_files(con)

@@ -59,6 +59,16 @@ def is_store(path: Path) -> bool:
     return (path / MARKER).is_file()
 
 
+@dataclass(frozen=True)
+class Compacted:
+    """What ``compact`` did: unreferenced files removed, data files merged."""
+
+    orphans: Orphans
+    files_before: int  # data files the newest version read before the merge
+    files_after: int
+    version: int | None  # the ``compact`` version recording the merge (None: no merge)
+
+
 @dataclass
 class Version:
     version: int
@@ -75,6 +85,8 @@ class Store:
         self.path = path.resolve()
         self.catalog = catalog or from_spec(_marker_catalog(self.path), self.path)
         self._lock: WriterLock | None = None  # the writer lock while a writer holds it
+        # shared read connections by requested version (None: the latest), see reader()
+        self._readers: dict[int | None, tuple[duckdb.DuckDBPyConnection, int]] = {}
 
     # ------------------------------------------------------------ creation and opening
     @classmethod
@@ -223,6 +235,7 @@ class Store:
 
         Only :meth:`transaction` should use it; one connection, one thread.
         """
+        self._drop_readers()
         with self.catalog.writer_lock(command, LOCK_TIMEOUT_S) as lock:
             named = _marker_catalog(self.path)
             if named is not None and named != self.catalog.spec():
@@ -239,6 +252,7 @@ class Store:
             finally:
                 self._lock = None
                 con.close()
+                self._drop_readers()  # reads made while writing saw the version before
 
     @contextlib.contextmanager
     def transaction(self, command: str, detail: str = "") -> Iterator[Transaction]:
@@ -289,6 +303,17 @@ class Store:
                         raise
                     raise self._lost(gone, started, committing) from None
                 raise self._interrupted(tx, started) from None
+        if tx.version is not None and command != "compact":
+            self._merge_quietly()
+
+    def _merge_quietly(self) -> None:
+        """The automatic merge after a write; maintenance only, so a merge that cannot run
+        now (another writer holds the lock, a full disk) leaves the store as committed and
+        the next write tries again."""
+        import duckdb
+
+        with contextlib.suppress(StoreError, duckdb.Error, OSError):
+            self.merge_if_many()
 
     def _lost(self, gone: StoreError, started: int, committing: bool) -> StoreError:
         """The catalog went away mid-write: before the commit nothing was written; during
@@ -327,13 +352,16 @@ class Store:
         tx._discard_files()
         return Interrupted("interrupted: nothing was written", False)
 
-    def compact(self, dry_run: bool = False) -> Orphans:
+    def compact(self, dry_run: bool = False, merge: bool = True) -> Compacted:
         """Remove the Parquet files in the data folder that no version references (left by
-        writers killed between writing a file and committing). Every version stays
-        readable: only files the catalog never listed go. Runs under the writer lock, so
-        the files of a transaction still in flight are never among them; makes no version.
-        """
-        from strata13.compile.store.files import orphans
+        writers killed between writing a file and committing) and, with ``merge``, merge
+        the small data files every ingest leaves. Every version stays readable, with the
+        same rows: only files the catalog never listed go, and DuckLake's merge keeps old
+        versions pointing into the merged files. Runs under the writer lock, so the files of
+        a transaction still in flight are never touched. A merge is recorded in the history
+        as a ``compact`` version (DuckLake's merge itself is the version before it, with
+        the same data)."""
+        from strata13.compile.store.files import live_files, merge_small_files, orphans
 
         data = (self.path / DATA).resolve()
         with self.writer("compact") as con:
@@ -343,10 +371,65 @@ class Store:
             if not dry_run:
                 for p in mine:
                     p.unlink(missing_ok=True)
-        return Orphans(mine, size)
+            n = live_files(con)
+            before, after = (n, n) if dry_run or not merge else merge_small_files(con)
+        version = None
+        if after < before:
+            with self.transaction("compact", "data files merged") as tx:
+                merged = {"data_files_before": before, "data_files_after": after}
+                tx.record({**merged, "merge_version": tx.latest_version()}, "")
+            version = tx.version
+        return Compacted(Orphans(mine, size), before, after, version)
 
-    def reader(self, version: int | None = None) -> tuple[duckdb.DuckDBPyConnection, int]:
-        """A read-only connection whose views all show one snapshot (the latest or ``version``)."""
+    def merge_if_many(self) -> Compacted | None:
+        """After a write: merge the data files once the newest version reads more than
+        ``files.AUTO_MERGE_FILES`` of them (common practice: a few large files read faster
+        than many small ones); None when it does not."""
+        from strata13.compile.store.files import AUTO_MERGE_FILES, live_files
+
+        con, _ = self.reader(fresh=True)
+        try:
+            many = live_files(con) > AUTO_MERGE_FILES
+        finally:
+            con.close()
+        return self.compact(merge=True) if many else None
+
+    def reader(
+        self, version: int | None = None, *, fresh: bool = False
+    ) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A read-only connection whose views all show one snapshot (the latest or ``version``).
+
+        The first read opens, attaches and binds the views once; later reads of the same
+        Store get a cursor of that connection (DuckDB shares attached catalogs and the
+        in-memory schema between cursors), so a command that reads several times pays for
+        the start once. A read of the latest version checks the catalog's newest snapshot
+        and rebinds when another writer moved it; a write through this Store drops the
+        shared connection. ``fresh`` gives a connection of its own (the ``sql`` sandbox locks
+        its connection's configuration, which must not reach later reads).
+        """
+        if fresh:
+            return self._open_reader(version, shared=False)
+        hit = self._readers.get(version)
+        if hit is not None:
+            con, v = hit
+            if version is not None or self._latest(con) == v:
+                return con.cursor(), v
+            self._drop_readers()
+        con, v = self._open_reader(version, shared=True)
+        self._readers[version] = (con, v)
+        return con.cursor(), v
+
+    def _drop_readers(self) -> None:
+        """Close the shared read connections (after a write they may show an old version)."""
+        for con, _ in self._readers.values():
+            con.close()
+        self._readers.clear()
+
+    def _open_reader(
+        self, version: int | None, shared: bool
+    ) -> tuple[duckdb.DuckDBPyConnection, int]:
+        """A new read-only connection with the views bound (``shared``: in its in-memory
+        schema, visible to its cursors; else as temp views of this connection alone)."""
         import duckdb
 
         con = connect(self.catalog.extensions)
@@ -364,7 +447,7 @@ class Store:
                 "See `strata13 history`.",
             )
         try:
-            bind_views(con, v, latest=v == latest)
+            bind_views(con, v, latest=v == latest, shared=shared)
         except duckdb.Error as exc:
             con.close()
             raise StoreError(

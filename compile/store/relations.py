@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from strata13.compile.store import screen_rows
 from strata13.schemas.records import RECORDS_COLUMNS, RETYPED, TABLES
 
 if TYPE_CHECKING:
@@ -50,10 +51,14 @@ def _columns(table: str) -> list[str]:
     return RECORDS_COLUMNS if table == "analyses" else [c for c, _ in TABLES[table]]
 
 
+# catalog tables no view is named after, read only inside another view
+HIDDEN = ("screen_common",)  # the compact screen results' common outcomes (screen_rows.py)
+
+
 def tables_at(con: duckdb.DuckDBPyConnection, version: int) -> set[str]:
     """The tables that existed at ``version`` (later schema versions add tables)."""
     names = set()
-    for name in READ_VIEWS:
+    for name in (*READ_VIEWS, *HIDDEN):
         try:
             con.execute(f"SELECT 1 FROM lake.{name} AT (VERSION => {int(version)}) LIMIT 0")
         except Exception:  # duckdb.Error: the table did not exist at that version
@@ -95,8 +100,11 @@ def _column(table: str, col: str, sqltype: str, present: bool) -> str:
     return f'"{col}"'
 
 
-def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = False) -> None:
-    """Create a reader's temp views over ``lake``, all pinned to ``version``.
+def bind_views(
+    con: duckdb.DuckDBPyConnection, version: int, latest: bool = False, shared: bool = False
+) -> None:
+    """Create a reader's views over ``lake``, all pinned to ``version``: temp views of the
+    connection, or with ``shared`` views in its in-memory schema, which its cursors see.
 
     A version written before a column existed shows it as NULL, and a column whose type
     changed is cast to today's type: the views always have today's columns, so old
@@ -107,6 +115,7 @@ def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = Fals
     import duckdb
 
     at = f" AT (VERSION => {int(version)})"
+    kind = "VIEW memory.main." if shared else "TEMP VIEW "
     present = _columns_now(con) if latest else _columns_at(con, version)
     statements = []
     for table, view in VIEW_NAMES.items():
@@ -115,12 +124,13 @@ def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = Fals
         have = present.get(table)
         if have is None:  # a table added after this version: empty, typed
             cols = ", ".join(f'CAST(NULL AS {types[c]}) AS "{c}"' for c in wanted)
-            statements.append(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} WHERE false")
+            statements.append(f"CREATE OR REPLACE {kind}{view} AS SELECT {cols} WHERE false")
             continue
         cols = ", ".join(_column(table, c, types[c], c in have) for c in wanted)
-        statements.append(
-            f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT {cols} FROM lake.{table}{at}"
-        )
+        body = f"SELECT {cols} FROM lake.{table}{at}"
+        if table == "screen_results" and screen_rows.COMMON in present:
+            body = screen_rows.view_sql(cols, at)
+        statements.append(f"CREATE OR REPLACE {kind}{view} AS {body}")
     try:
         con.execute("BEGIN")  # one read transaction: one catalog load for all the views
         for sql in statements:
@@ -131,7 +141,7 @@ def bind_views(con: duckdb.DuckDBPyConnection, version: int, latest: bool = Fals
         if not latest:
             raise
         # a writer changed the schema after ``version`` was read: probe that version
-        bind_views(con, version, latest=False)
+        bind_views(con, version, latest=False, shared=shared)
 
 
 def snapshot_time(con: duckdb.DuckDBPyConnection, version: int) -> str | None:

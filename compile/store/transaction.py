@@ -124,10 +124,23 @@ class Transaction(Reader):
         self, table: str, source_ids: Sequence[str] | None, data: pa.Table | None
     ) -> None:
         """Replace the rows of ``source_ids`` (None: every row) in ``table`` with ``data``."""
+        if table_for(table) == "screen_results":  # stored compactly: store/screen_rows.py
+            from strata13.compile.store import screen_rows
+
+            screen_rows.replace(self, source_ids, data)
+            return
+        self.delete_sources(table, source_ids)
+        self.append(table, data)
+
+    def delete_sources(self, table: str, source_ids: Sequence[str] | None) -> None:
+        """Delete the rows of ``source_ids`` (None: every row) from ``table``."""
         if source_ids is None:
             self.delete(table)
         elif source_ids:
             self.delete(table, source_id=list(source_ids))
+
+    def append(self, table: str, data: pa.Table | None) -> None:
+        """Append ``data`` to ``table``: as a Parquet file for the big tables, else rows."""
         if data is None:
             return
         if table_for(table) in PARQUET_TABLES:

@@ -317,7 +317,7 @@ def bin_stats(samples: pd.DataFrame, edges: Any, weight: str = "sections") -> pd
     if raw.size < 2 or e.size != raw.size or not np.isfinite(raw).all():
         raise OptionError(
             "bin edges must be at least two distinct finite ages.",
-            "Give edges in Ma, e.g. from bin_edges() or stage boundaries.",
+            "Give edges in Ma, e.g. multiples of a bin width or the stage boundaries.",
         )
     nb = e.size - 1
     age = samples["age_ma"].to_numpy(dtype=float, na_value=np.nan)

@@ -152,11 +152,13 @@ def metrics(
         k = int(inside.sum())
         described = f"oldest {k} of {n} samples"
         if has_pos:
-            described += f" ({_fmt(pos[0])}–{_fmt(pos[k - 1])} m)"
+            described += f" ({_fmt(pos[0], 'm')}–{_fmt(pos[k - 1], 'm')} m)"
     else:
         lo, hi = sorted((float(window.lo), float(window.hi)))
         described = (
-            f"{_fmt(hi)}–{_fmt(lo)} Ma" if window.unit == "ma" else f"{_fmt(lo)}–{_fmt(hi)} m"
+            f"{_fmt(hi, 'Ma')}–{_fmt(lo, 'Ma')} Ma"
+            if window.unit == "ma"
+            else f"{_fmt(lo, 'm')}–{_fmt(hi, 'm')} m"
         )
         described += f" ({int(inside.sum())} samples)"
         if inside.sum() < MIN_BASELINE:
@@ -359,7 +361,7 @@ def summary(per_section: pd.DataFrame, group_col: str | None = "group") -> pd.Da
     if missing:
         raise DomainError(
             f"The table has no {', '.join(missing)} column.",
-            "Pass the table that per_section() returned.",
+            "Pass the per-section table of excursion metrics unchanged.",
         )
     if group_col is not None and group_col not in per_section.columns:
         raise DomainError(
@@ -463,5 +465,7 @@ def _floats(col: pd.Series) -> np.ndarray:
     return out
 
 
-def _fmt(x: float) -> str:
-    return f"{x:.6g}"
+def _fmt(x: float, unit: str) -> str:
+    from strata13.numbers import readable
+
+    return readable(float(x), unit=unit)

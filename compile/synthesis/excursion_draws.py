@@ -289,7 +289,7 @@ def draw_metrics(
         raise DomainError(
             f"The per-section table ({len(per_section)} rows) does not list the "
             f"{len(parts)} sections of these samples in order.",
-            "Pass the table per_section() made from these samples, with the same group column.",
+            "Pass the per-section table made from these same samples, with the same group column.",
         )
     values = {q: np.full((len(per_section), n_draws), np.nan) for q in DRAWN}
     if n_draws == 0:
@@ -405,7 +405,7 @@ def with_uncertainty(per_section: pd.DataFrame, md: MetricDraws) -> pd.DataFrame
     if any(md.values[q].shape[0] != len(per_section) for q in DRAWN):
         raise DomainError(
             "The draws do not belong to this per-section table.",
-            "Pass the draws draw_metrics() made for it.",
+            "Pass the draws measured for this per-section table.",
         )
     out = per_section.copy()
     for q, stem, su, pu in SPREAD:

@@ -1,29 +1,31 @@
 """Synthesis figures: the composite δ13C curve against age, and sections aligned on their
 excursion onset.
 
-Direction of time: on the curve figure age grows to the **left** (older on the left, the
-x axis runs from old to young), so time reads left to right (``OLDER_ON_LEFT``).
+Both are drawn at a journal column's print width (``width``: single or double, see
+``plotting.style``) with the shared look of ``strata13.compile.plotting``: mathtext isotope
+labels, white background, the age axis older to the left with the stage strip under it
+(``plotting.axes``), and written by the one save function (``plotting.save``: PNG at 300
+dpi, SVG and PDF, with the caption line).
 
 Groups are told apart by colour *and* marker. The palette (``PALETTE``) is our own: six
 colours chosen to differ in lightness as well as on the blue–yellow axis, so that they stay
 apart under simulated deutan, protan and tritan vision (checked in the tests). Legends sit
-outside the axes, where they can hide nothing; stage names sit in a strip of their own
-under the plot, never over the points.
+outside the axes (at the right on a double column, below on a single one), where they can
+hide nothing.
 
 matplotlib is imported inside the functions, through its object API with the Agg canvas (no
-pyplot state, no display). ``save_figure`` writes PNG at ``DPI`` without software metadata
-and SVG with a fixed hash salt, a fixed creator and no date, so the same input gives the same
-bytes.
+pyplot state, no display).
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
-from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
+from strata13.compile.plotting.axes import AGE_LABEL, OLDER_ON_LEFT, Stage
+from strata13.compile.plotting.style import CARB_LABEL, DEFAULT_WIDTH, ORG_LABEL, math, plain
 from strata13.compile.synthesis.excursion import _value_column
 
 from strata13.errors import DomainError
@@ -32,21 +34,15 @@ if TYPE_CHECKING:
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
-DPI = 150
-OLDER_ON_LEFT = True
-TIME_DIRECTION = "older to the left: age (Ma) decreases from left to right"
-CARB_LABEL = "δ13C carb (‰ VPDB)"
-ORG_LABEL = "δ13C org (‰ VPDB)"
-AGE_LABEL = "Age (Ma)"
+__all__ = ["AGE_LABEL", "CARB_LABEL", "ORG_LABEL", "OLDER_ON_LEFT"]
+
 MERGED_NOTE = "carbonate and organic δ13C merged on request"
 # ink blue, amber, orchid, sky, umber, teal: lightness 26–73 with blue/yellow contrast
 PALETTE = ("#173f7a", "#e69519", "#b55aa8", "#74c0e8", "#5e4208", "#2f8f7f")
 MARKERS = ("o", "s", "^", "D", "v", "P")
-STAGE_SHADE = ("#ececec", "#f7f7f7")  # alternating stage bands in the plot
-STAGE_STRIP = ("#d6d6d6", "#efefef")  # alternating boxes in the name strip
 ROBUST_COLOUR = "0.55"
-SVG_SALT = "strata13"
-SVG_CREATOR = "strata13"
+# figure heights (inches) at each column width: the plot, and the excursion's panels
+CURVE_HEIGHT_IN = {"single": 3.6, "double": 3.8}
 
 SAMPLE_COLUMNS = ("group", "age_ma", "value")
 CURVE_COLUMNS = ("group", "age_ma", "fit", "lo", "hi", "band_shown")
@@ -70,17 +66,18 @@ def curve_figure(
     curve: pd.DataFrame,
     bins: pd.DataFrame | Sequence[float] | None = None,
     robustness: pd.DataFrame | None = None,
-    stages: Sequence[tuple[str, float, float]] | None = None,
+    stages: Sequence[Stage] | None = None,
     group_label: str = "group",
     title: str = "",
-    size: tuple[float, float] = (8.0, 5.0),
+    width: str = DEFAULT_WIDTH,
     value_label: str = CARB_LABEL,
     merged: bool = False,
     note: str = "",
     band_label: str = "curve band (lo–hi)",
+    robust_label: str = "refits, one left out each",
 ) -> Figure:
     """δ13C against age: points by group, the LOESS curve of each group and its band
-    (``band_label`` says what the band is in the legend).
+    (``band_label`` says what the band is in the legend), at a column ``width``.
 
     Inputs (pandas DataFrames):
 
@@ -101,10 +98,48 @@ def curve_figure(
     (``CARB_LABEL``, ``ORG_LABEL`` or the caller's); ``merged=True`` adds ``MERGED_NOTE``
     above the plot, ``note`` any further line. DomainError when there is nothing to plot
     or a column is missing."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+    from strata13.compile.plotting import axes as age
+    from strata13.compile.plotting.style import journal
+
+    with journal(width):
+        return _curve_figure(
+            samples,
+            curve,
+            bins,
+            robustness,
+            stages,
+            group_label,
+            title,
+            width,
+            value_label,
+            merged,
+            note,
+            band_label,
+            robust_label,
+            age,
+        )
+
+
+def _curve_figure(
+    samples: pd.DataFrame,
+    curve: pd.DataFrame,
+    bins: pd.DataFrame | Sequence[float] | None,
+    robustness: pd.DataFrame | None,
+    stages: Sequence[Stage] | None,
+    group_label: str,
+    title: str,
+    width: str,
+    value_label: str,
+    merged: bool,
+    note: str,
+    band_label: str,
+    robust_label: str,
+    age: Any,
+) -> Figure:
+    from matplotlib import patheffects
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
+    from strata13.compile.plotting.style import new_figure, wrap
 
     samples = _frame(samples, SAMPLE_COLUMNS, "samples")
     curve = _frame(_age_alias(curve), CURVE_COLUMNS[:3], "curve")
@@ -112,6 +147,8 @@ def curve_figure(
         None if robustness is None else _frame(_age_alias(robustness), ROBUST_COLUMNS, "robustness")
     )
     bin_table = _bins_frame(bins) if isinstance(bins, pd.DataFrame) else None
+    stats_form = isinstance(bins, pd.DataFrame) and "age_ma" not in bins.columns
+    bin_label = "bin median (bar: interquartile range)" if stats_form else "bin summaries (lo–hi)"
     bin_edges = (
         None
         if bins is None or bin_table is not None
@@ -136,24 +173,20 @@ def curve_figure(
     pad = 0.02 * (old - young) if old > young else 0.5
     old, young = old + pad, young - pad
 
-    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
-    FigureCanvasAgg(fig)
-    stage_list = _stages_in(stages, old, young)
-    if stage_list:
-        strip_h = 0.32 / max(size[1] - 1.3, 1.0)  # about a third of an inch
-        ax, strip = fig.subplots(2, 1, sharex=True, height_ratios=[1.0, strip_h])
-    else:
-        ax, strip = fig.add_subplot(), None
     styles = group_style(list(pts["group"]) + list(fit["group"]))
+    below = width == "single"  # a single column has no room for a legend at the side
+    height = CURVE_HEIGHT_IN[width] + (0.16 * (len(styles) + 3) / 2 if below else 0.0)
+    fig = new_figure(width, height)
+    stage_list = age.stages_in(stages, old, young)
+    ax, strip = age.age_axes(fig, fig.add_gridspec(1, 1)[0], stage_list, height)
     handles: list[Any] = []
 
-    for i, (_, base, top) in enumerate(stage_list):
-        ax.axvspan(base, top, color=STAGE_SHADE[i % 2], linewidth=0, zorder=0)
+    age.shade_stages(ax, stage_list)
     if bin_edges is not None:
         for e in bin_edges[np.isfinite(bin_edges)]:
-            ax.axvline(e, color="0.75", linestyle=":", linewidth=0.7, zorder=1)
+            ax.axvline(e, color="0.75", linestyle=":", linewidth=0.6, zorder=1)
         handles.append(
-            Line2D([], [], color="0.75", linestyle=":", linewidth=0.7, label="bin edges")
+            Line2D([], [], color="0.75", linestyle=":", linewidth=0.6, label="bin edges")
         )
 
     band_drawn = False
@@ -164,7 +197,7 @@ def curve_figure(
             ax.scatter(
                 p["age_ma"],
                 p["value"],
-                s=14,
+                s=6 if below else 9,
                 marker=marker,
                 color=colour,
                 alpha=0.7,
@@ -192,9 +225,9 @@ def curve_figure(
                 [],
                 color=colour,
                 marker=marker,
-                markersize=5,
-                linewidth=2.0 if len(c) else 0.0,
-                label=f"{g} (n = {len(p)})",
+                markersize=3.5,
+                linewidth=1.4 if len(c) else 0.0,
+                label=plain(f"{g} (n = {len(p)})"),
             )
         )
 
@@ -208,19 +241,15 @@ def curve_figure(
         ):
             part = part.sort_values("age_ma", kind="stable")
             ax.plot(
-                part["age_ma"], part["fit"], color=ROBUST_COLOUR, linewidth=0.6, alpha=0.7, zorder=3
+                part["age_ma"], part["fit"], color=ROBUST_COLOUR, linewidth=0.5, alpha=0.7, zorder=3
             )
-        handles.append(
-            Line2D([], [], color=ROBUST_COLOUR, linewidth=0.6, label="refits, one left out each")
-        )
+        handles.append(Line2D([], [], color=ROBUST_COLOUR, linewidth=0.5, label=robust_label))
 
-    from matplotlib import patheffects
-
-    halo = [patheffects.Stroke(linewidth=3.4, foreground="white"), patheffects.Normal()]
+    halo = [patheffects.Stroke(linewidth=2.6, foreground="white"), patheffects.Normal()]
     for g, (colour, _) in styles.items():
         c = fit[fit["group"] == g].sort_values("age_ma", kind="stable")
         if len(c):
-            ax.plot(c["age_ma"], c["fit"], color=colour, linewidth=2.0, zorder=4, path_effects=halo)
+            ax.plot(c["age_ma"], c["fit"], color=colour, linewidth=1.4, zorder=4, path_effects=halo)
     if band_drawn:
         handles.append(Patch(color="0.5", alpha=0.3, linewidth=0, label=band_label))
     if bin_table is not None and len(bin_table):
@@ -244,12 +273,12 @@ def curve_figure(
                 part["value"],
                 yerr=yerr,
                 fmt="s",
-                markersize=5,
+                markersize=3.5,
                 markerfacecolor="white",
                 markeredgecolor=colour,
                 ecolor=colour,
-                elinewidth=1.0,
-                capsize=2,
+                elinewidth=0.8,
+                capsize=1.5,
                 zorder=5,
             )
         handles.append(
@@ -260,43 +289,30 @@ def curve_figure(
                 markerfacecolor="white",
                 markeredgecolor="0.3",
                 linewidth=0,
-                label="bin summaries",
+                label=bin_label,
             )
         )
 
-    ax.set_xlim((old, young) if OLDER_ON_LEFT else (young, old))
-    ax.set_ylabel(pretty(value_label))
-    ax.grid(True, color="0.88", linewidth=0.5)
+    age.set_age_axis(ax, old, young, width=width)
+    ax.set_ylabel(math(value_label))
+    ax.grid(True, color="0.88", linewidth=0.4)
     ax.set_axisbelow(True)
-    bottom = strip if strip is not None else ax
-    bottom.set_xlabel(AGE_LABEL)
     notes = ([MERGED_NOTE] if merged else []) + ([note] if note else [])
     if notes:
-        import textwrap
-
-        width = max(40, int(11 * size[0]))  # characters that fit above the plot, about
-        lines = [w for n in notes for w in textwrap.wrap(n, width)]
-        ax.set_title("\n".join(lines), fontsize="small", style="italic", loc="left")
+        share = 0.8 if below else 0.6  # the plot's share of the width (legend at the side)
+        ax.set_title(math(wrap("\n".join(notes), width, share)), style="italic", loc="left")
     if title:
-        fig.suptitle(title)
+        fig.suptitle(math(title))
     fig.legend(
         handles=handles,
-        loc="outside right upper",
-        title=group_label,
-        fontsize="small",
-        title_fontsize="small",
+        loc="outside lower center" if below else "outside right upper",
+        ncols=2 if below else 1,
+        title=plain(group_label),
         frameon=False,
     )
     if strip is not None:  # last: names are measured against the final layout
-        ax.tick_params(labelbottom=False)
-        _stage_strip(fig, strip, stage_list)
+        age.stage_strip(fig, ax, strip, stage_list)
     return fig
-
-
-def pretty(label: str) -> str:
-    """A δ label with its mass numbers as superscripts (δ13C → δ¹³C, δ18O → δ¹⁸O), as a
-    journal prints it; the glyphs are in matplotlib's default font."""
-    return label.replace("δ13C", "δ¹³C").replace("δ18O", "δ¹⁸O")
 
 
 EXCURSION_STYLE = {  # metric -> (colour, marker, label): one look in both panels
@@ -310,21 +326,25 @@ RANGE_ALPHA = 0.22  # shading of a 95 % range
 def excursion_figure(
     df: pd.DataFrame,
     per_section: pd.DataFrame,
-    size: tuple[float, float] | None = None,
+    width: str = DEFAULT_WIDTH,
     group_col: str | None = None,
     value_col: str | None = None,
     value_label: str = CARB_LABEL,
     title: str = "",
     summary: pd.DataFrame | None = None,
     ranges_note: str = "",
+    shared_axis: bool = True,
+    stages: Sequence[Stage] | None = None,
 ) -> Figure:
-    """Two panels. Above, each section's δ13C against its position relative to the onset,
-    one panel per section side by side, sharing that vertical axis (0 = onset, up =
-    younger: height − onset height, or onset depth − depth): the baseline a dashed vertical
-    line, the onset a solid and the recovery a dotted horizontal line, each with its 95 %
-    range of positions shaded when the table has one. Below, across the figure, the onset,
-    peak and recovery ages of every section (centre marker, 95 % range as a bar; older to
-    the left), then the group means of ``summary`` (rows of scope "group", when given).
+    """Two parts at a column ``width``. Above, each section's δ13C against its position
+    relative to the onset, one panel per section (in rows of ``PANELS_PER_ROW``), all
+    sharing that vertical axis (0 = onset, up = younger: height − onset height, or onset
+    depth − depth) and, with ``shared_axis`` (the default: the panels compare magnitudes),
+    one δ axis too: the baseline a dashed vertical line, the onset a solid and the recovery
+    a dotted horizontal line, each with its 95 % range of positions shaded when the table
+    has one. Below, across the figure, the onset, peak and recovery ages of every section
+    (centre marker, 95 % range as a bar; older to the left, the ``stages`` in a strip under
+    it), then the group means of ``summary`` (rows of scope "group", when given).
 
     ``df`` holds the records (source_id, section_id, position_m, the value column —
     ``value_col``, else value, else d13c_carb — and ``group_col`` when per_section was
@@ -332,12 +352,46 @@ def excursion_figure(
     excursion_draws.with_uncertainty() for the ranges (without them only centres are drawn).
     Sections without an onset cannot be aligned: they are named in the figure title
     instead (and still have a row of ages). ``ranges_note`` says what the ranges are made of.
-    ``size`` defaults to 1.9 in per section panel (at least 6 in) by 5.4 in plus 0.3 in per
-    row of ages. DomainError when no section has an onset."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+    DomainError when no section has an onset."""
+    from strata13.compile.plotting.style import journal
+
+    with journal(width):
+        return _excursion_figure(
+            df,
+            per_section,
+            width,
+            group_col,
+            value_col,
+            value_label,
+            title,
+            summary,
+            ranges_note,
+            shared_axis,
+            stages,
+        )
+
+
+PANELS_PER_ROW = {"single": 4, "double": 6}
+PANEL_HEIGHT_IN = {"single": 1.45, "double": 1.8}
+
+
+def _excursion_figure(
+    df: pd.DataFrame,
+    per_section: pd.DataFrame,
+    width: str,
+    group_col: str | None,
+    value_col: str | None,
+    value_label: str,
+    title: str,
+    summary: pd.DataFrame | None,
+    ranges_note: str,
+    shared_axis: bool,
+    stages: Sequence[Stage] | None,
+) -> Figure:
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
+    from strata13.compile.plotting import axes as age
+    from strata13.compile.plotting.style import new_figure
 
     vcol = _value_column(df, value_col)
     for col in ("source_id", "section_id", "position_m", *([group_col] if group_col else [])):
@@ -355,12 +409,22 @@ def excursion_figure(
         )
     age_rows = _age_rows(per_section, summary)
     n = len(shown)
-    size = size if size is not None else (max(6.0, 1.9 * n + 1.6), 5.4 + 0.3 * len(age_rows))
-    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
-    FigureCanvasAgg(fig)
-    grid = fig.add_gridspec(2, n, height_ratios=(4.0, max(1.2, 0.3 * len(age_rows))))
-    axes = [fig.add_subplot(grid[0, 0])]
-    axes += [fig.add_subplot(grid[0, i], sharey=axes[0]) for i in range(1, n)]
+    rows = -(-n // PANELS_PER_ROW[width])
+    cols = -(-n // rows)  # rows as even as they come: 7 panels in 4 + 3, not 5 + 2
+    panels_h = PANEL_HEIGHT_IN[width] * rows
+    ages_h = 0.6 + 0.16 * len(age_rows) + age.STRIP_IN
+    legend_h = 0.55 if width == "double" else 0.85
+    fig = new_figure(width, panels_h + ages_h + legend_h + 0.5)
+    # two subfigures, so the panels carry one δ label and one position label between them
+    outer = fig.add_gridspec(2, 1, height_ratios=(panels_h, ages_h))
+    top, bottom = fig.add_subfigure(outer[0]), fig.add_subfigure(outer[1])
+    grid = top.add_gridspec(rows, cols)
+    axes: list[Axes] = []
+    for i in range(n):
+        share = {"sharey": axes[0]} if axes else {}
+        if axes and shared_axis:
+            share["sharex"] = axes[0]
+        axes.append(top.add_subplot(grid[i // cols, i % cols], **share))
     any_depth = False
     for ax, (_, row) in zip(axes, shown.iterrows(), strict=True):
         sel = (df["source_id"] == row["source_id"]) & (df["section_id"] == row["section_id"])
@@ -383,49 +447,56 @@ def excursion_figure(
             val[keep][order],
             y[order],
             color=PALETTE[0],
-            linewidth=0.9,
+            linewidth=0.7,
             marker="o",
-            markersize=3,
+            markersize=2,
             zorder=3,
         )
-        ax.axvline(float(row["baseline"]), color="0.35", linestyle="--", linewidth=1.0)
+        ax.axvline(float(row["baseline"]), color="0.35", linestyle="--", linewidth=0.7)
         for metric, style in (("onset", "-"), ("recovery", ":")):
             colour = EXCURSION_STYLE[metric][0]
             centre = _num(row, f"{metric}_position_m")
             if np.isfinite(centre):
-                ax.axhline(rel(centre), color=colour, linestyle=style, linewidth=1.3)
+                ax.axhline(rel(centre), color=colour, linestyle=style, linewidth=1.0)
             lo, hi = _num(row, f"{metric}_position_p2_5_m"), _num(row, f"{metric}_position_p97_5_m")
             if np.isfinite(lo) and np.isfinite(hi):
                 ax.axhspan(rel(lo), rel(hi), color=colour, alpha=RANGE_ALPHA, linewidth=0)
-        label = str(row["section_id"]) + "\n" + str(row["source_id"])
+        # the source only where a section id alone is ambiguous in this figure
+        label = str(row["section_id"])
+        if ambiguous(shown, row["section_id"]):
+            label += f"\n{row['source_id']}"
         if group_col and row["group"] is not None:
             label += f"\n{row['group']}"
-        ax.set_title(label, fontsize="small")
-        ax.grid(True, color="0.9", linewidth=0.5)
+        ax.set_title(plain(label), fontsize="small", linespacing=1.1)
+        ax.grid(True, color="0.9", linewidth=0.4)
         ax.set_axisbelow(True)
-        ax.tick_params(labelsize="small")
-        ax.set_xlabel(pretty(value_label), fontsize="small")
-    for ax in axes[1:]:
-        ax.tick_params(labelleft=False)
-    axes[0].set_ylabel(
-        "Position above onset (m)" + ("; depths: onset − depth" if any_depth else "")
-    )
-    _age_panel(fig.add_subplot(grid[1, :]), age_rows)
-    lines = [pretty(title)] if title else []
+    for i, ax in enumerate(axes):
+        if i % cols:
+            ax.tick_params(labelleft=False)
+        if i + cols < n and shared_axis:  # a panel below shows the same δ axis
+            ax.tick_params(labelbottom=False)
+    top.supxlabel(math(value_label), fontsize=None)
+    top.supylabel("Above onset (m)", fontsize=None)
+    age_stages = age.stages_in(stages, *_age_span(age_rows))
+    age_ax, strip = age.age_axes(bottom, bottom.add_gridspec(1, 1)[0], age_stages, ages_h)
+    _age_panel(age_ax, age_rows, age, width)
+    lines = [math(title)] if title else []
     if len(skipped):
-        lines.append("not aligned, no onset: " + ", ".join(map(str, skipped["section_id"])))
+        lines.append(plain("not aligned, no onset: " + ", ".join(map(str, skipped["section_id"]))))
+    if any_depth:
+        lines.append("cores: position above onset = onset depth − depth")
     if lines:
-        fig.suptitle("\n".join(lines), fontsize="medium")
+        fig.suptitle("\n".join(lines))
     handles = [
-        Line2D([], [], color=PALETTE[0], marker="o", markersize=3, linewidth=0.9, label="samples"),
-        Line2D([], [], color="0.35", linestyle="--", label="baseline"),
-        Line2D([], [], color=EXCURSION_STYLE["onset"][0], linewidth=1.3, label="onset"),
+        Line2D([], [], color=PALETTE[0], marker="o", markersize=2, linewidth=0.7, label="samples"),
+        Line2D([], [], color="0.35", linestyle="--", linewidth=0.7, label="baseline"),
+        Line2D([], [], color=EXCURSION_STYLE["onset"][0], linewidth=1.0, label="onset"),
         Line2D(
             [],
             [],
             color=EXCURSION_STYLE["recovery"][0],
             linestyle=":",
-            linewidth=1.3,
+            linewidth=1.0,
             label="recovery",
         ),
         Patch(color="0.5", alpha=RANGE_ALPHA * 2, linewidth=0, label="95 % range of position"),
@@ -437,17 +508,22 @@ def excursion_figure(
             color=c,
             marker=m,
             linestyle="-",
-            linewidth=1.6,
-            markersize=5,
+            linewidth=1.2,
+            markersize=3.5,
             label=f"{lab} age (bar: 95 % range)",
         )
         for c, m, lab in EXCURSION_STYLE.values()
     ]
-    legend = fig.legend(handles=handles, loc="outside right upper", fontsize="small", frameon=False)
+    legend = fig.legend(
+        handles=handles,
+        loc="outside lower center",
+        ncols=4 if width == "double" else 2,
+        frameon=False,
+    )
     if ranges_note:
-        from matplotlib.font_manager import FontProperties
-
-        legend.set_title(ranges_note, prop=FontProperties(size="x-small"))
+        legend.set_title(ranges_note.replace("\n", " "))
+    if strip is not None:
+        age.stage_strip(fig, age_ax, strip, age_stages)
     return fig
 
 
@@ -458,6 +534,21 @@ def _num(row: Any, col: str) -> float:
     except (KeyError, TypeError, ValueError):
         return float("nan")
     return v
+
+
+def ambiguous(shown: pd.DataFrame, section_id: Any) -> bool:
+    """Whether two sources in ``shown`` have a section of this id."""
+    return bool(shown.loc[shown["section_id"] == section_id, "source_id"].nunique() > 1)
+
+
+def _age_span(rows: list[dict[str, Any]]) -> tuple[float, float]:
+    """The oldest and youngest age of the age panel, padded by 3 % (old, young)."""
+    vals = [v for r in rows for cell in r["cells"].values() for v in cell if np.isfinite(v)]
+    if not vals:
+        return 1.0, 0.0
+    old, young = max(vals), min(vals)
+    pad = 0.03 * (old - young) if old > young else 0.5
+    return old + pad, young - pad
 
 
 def _age_rows(per_section: pd.DataFrame, summary: pd.DataFrame | None) -> list[dict[str, Any]]:
@@ -491,7 +582,7 @@ def _age_rows(per_section: pd.DataFrame, summary: pd.DataFrame | None) -> list[d
     return out
 
 
-def _age_panel(ax: Axes, rows: list[dict[str, Any]]) -> None:
+def _age_panel(ax: Axes, rows: list[dict[str, Any]], age: Any, width: str) -> None:
     """Onset, peak and recovery ages per row: the centre as a marker, the 95 % range as a
     bar through it; group means below a rule, in bold; older to the left."""
     offsets = {"onset": -0.22, "peak": 0.0, "recovery": 0.22}
@@ -504,7 +595,7 @@ def _age_panel(ax: Axes, rows: list[dict[str, Any]]) -> None:
                     [lo, hi],
                     [yy, yy],
                     color=colour,
-                    linewidth=1.6,
+                    linewidth=1.2,
                     solid_capstyle="butt",
                     gid=f"{m} age 95 % range",
                 )
@@ -514,64 +605,23 @@ def _age_panel(ax: Axes, rows: list[dict[str, Any]]) -> None:
                     [yy],
                     marker=marker,
                     color=colour,
-                    markersize=4.5,
+                    markersize=3.5,
                     markeredgecolor="white",
-                    markeredgewidth=0.5,
+                    markeredgewidth=0.4,
                     linestyle="none",
                     zorder=3,
                 )
     first_mean = next((i for i, r in enumerate(rows) if r["mean"]), None)
     if first_mean is not None:
-        ax.axhline(first_mean - 0.5, color="0.6", linewidth=0.6)
-    ax.set_yticks(range(len(rows)), [r["label"] for r in rows], fontsize="small")
+        ax.axhline(first_mean - 0.5, color="0.6", linewidth=0.5)
+    ax.set_yticks(range(len(rows)), [plain(r["label"]) for r in rows])
     for tick, r in zip(ax.get_yticklabels(), rows, strict=True):
         if r["mean"]:
             tick.set_fontweight("bold")
     ax.set_ylim(len(rows) - 0.5, -0.5)  # first row on top
-    if OLDER_ON_LEFT:
-        ax.xaxis.set_inverted(True)
-    ax.set_xlabel(AGE_LABEL + " — older to the left", fontsize="small")
-    ax.grid(True, axis="x", color="0.9", linewidth=0.5)
+    age.set_age_axis(ax, *_age_span(rows), width=width)
+    ax.grid(True, axis="x", color="0.9", linewidth=0.4)
     ax.set_axisbelow(True)
-    ax.tick_params(labelsize="small")
-
-
-# printed on every figure drawn from a store the demo made
-INVENTED_NOTE = "Invented data (strata13 demo)"
-
-
-def mark(fig: Figure, note: str | None, top: bool = False) -> None:
-    """Write ``note`` in small type in the figure's bottom right corner (``top``: the top
-    right corner, for figures whose legend sits below the axes); nothing for None."""
-    if note:
-        y, va = (0.996, "top") if top else (0.004, "bottom")
-        fig.text(0.995, y, note, ha="right", va=va, fontsize="x-small", color="0.3")
-
-
-def save_figure(
-    fig: Figure,
-    path_png: str | Path | None,
-    path_svg: str | Path | None,
-    note: str | None = None,
-) -> tuple[Path | None, Path | None]:
-    """Write ``fig`` as PNG (``DPI``, no software tag: PNG from Agg carries no date) and as
-    SVG (hash salt ``SVG_SALT``, creator ``SVG_CREATOR``, no date), either may be None.
-    ``note`` goes in small type in the bottom right corner (``INVENTED_NOTE`` for demo data).
-    The same figure inputs give the same bytes. Returns the two paths."""
-    import matplotlib
-
-    mark(fig, note)
-
-    png = None if path_png is None else Path(path_png)
-    svg = None if path_svg is None else Path(path_svg)
-    with matplotlib.rc_context(
-        {"svg.hashsalt": SVG_SALT, "svg.id": "strata13-figure", "svg.fonttype": "path"}
-    ):
-        if png is not None:
-            fig.savefig(png, format="png", dpi=DPI, metadata={"Software": None})
-        if svg is not None:
-            fig.savefig(svg, format="svg", metadata={"Date": None, "Creator": SVG_CREATOR})
-    return png, svg
 
 
 # --- helpers --------------------------------------------------------------------------
@@ -612,39 +662,3 @@ def _bins_frame(df: pd.DataFrame) -> pd.DataFrame:
             }
         )
     return _frame(df, BIN_COLUMNS, "bins")
-
-
-def _stages_in(
-    stages: Sequence[tuple[str, float, float]] | None, old: float, young: float
-) -> list[tuple[str, float, float]]:
-    """The stages overlapping [young, old], clipped to it, oldest first."""
-    out = []
-    for name, base, top in stages or ():
-        b, t = min(float(base), old), max(float(top), young)
-        if b > t:
-            out.append((str(name), b, t))
-    return sorted(out, key=lambda s: -s[1])
-
-
-def _stage_strip(fig: Figure, strip: Axes, stages: list[tuple[str, float, float]]) -> None:
-    """Alternating boxes with the stage names; a name wider than its box is dropped."""
-    strip.set_ylim(0, 1)
-    strip.set_yticks([])
-    for side in ("top", "left", "right"):
-        strip.spines[side].set_visible(False)
-    texts = []
-    for i, (name, base, top) in enumerate(stages):
-        strip.axvspan(base, top, color=STAGE_STRIP[i % 2], linewidth=0)
-        t = strip.text(
-            (base + top) / 2, 0.5, name, ha="center", va="center", fontsize="small", clip_on=True
-        )
-        t.set_in_layout(False)
-        texts.append((t, base, top))
-    fig.canvas.draw()  # lay the figure out, so text and box widths are final
-    # the Agg canvas the figures draw on has get_renderer; matplotlib's stubs type the canvas
-    # as FigureCanvasBase, which does not declare it
-    renderer = fig.canvas.get_renderer()  # type: ignore[attr-defined]
-    for t, base, top in texts:
-        x0, x1 = strip.transData.transform([(base, 0.5), (top, 0.5)])[:, 0]
-        if t.get_window_extent(renderer).width > abs(x1 - x0) - 4:
-            t.set_visible(False)

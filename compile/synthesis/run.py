@@ -89,10 +89,13 @@ class CurveRequest:
     by: str | None = None  # None: component and setting
     allow_mixed: bool = False
     robustness: bool = False
-    size: tuple[float, float] = (9.0, 5.5)
+    width: str = "double"  # the figure's journal column: single | double
     notes: list[str] = field(default_factory=list)
 
     def check(self) -> None:
+        from strata13.compile.plotting.style import check_width
+
+        check_width(self.width)
         if self.isotope not in ISOTOPES:
             raise OptionError(
                 f"--isotope {self.isotope!r} is not carb or org.",
@@ -173,9 +176,9 @@ def samples_for(
 ) -> Samples:
     """The filtered records, one value per sample, each with its group label."""
     import pandas as pd
+    from strata13.compile.plotting.style import CARB_LABEL, ORG_LABEL
     from strata13.compile.query.filters import run, screen_left_out
     from strata13.compile.synthesis.curve import average_replicates
-    from strata13.compile.synthesis.figures import CARB_LABEL, ORG_LABEL
 
     con, version = store.reader(as_of)
     try:
@@ -272,7 +275,7 @@ def samples_for(
 def data_note(store: Store) -> str | None:
     """The note every figure of this store carries: that the data are invented, for a store
     the demo made; none otherwise."""
-    from strata13.compile.synthesis.figures import INVENTED_NOTE
+    from strata13.compile.plotting.save import INVENTED_NOTE
 
     return INVENTED_NOTE if store.made_by == "demo" else None
 
@@ -484,8 +487,9 @@ def make_curve(
     import numpy as np
     import pandas as pd
     from strata13.compile.derive.settings import DEFAULT_TIME_SCALE
+    from strata13.compile.plotting.save import save
     from strata13.compile.synthesis import curve as cv
-    from strata13.compile.synthesis.figures import curve_figure, save_figure
+    from strata13.compile.synthesis.figures import curve_figure
 
     req.check()
     s = samples_for(store, filters, req, as_of=as_of)
@@ -592,16 +596,16 @@ def make_curve(
         stages=stages,
         group_label="group (component · setting)" if req.by is None else req.by,
         title=_title(filters, s, req),
-        size=req.size,
+        width=req.width,
         value_label=s.value_label,
         merged=s.merged,
         note=_figure_band_note(req, curves),  # a hidden band says why on the figure too
         band_label=f"{cv.BAND[1] - cv.BAND[0]:g} % section bootstrap"
         + (" with age draws" if req.age_draws else ""),
+        robust_label="refits, one source left out each",
     )
-    save_figure(fig, art.path("curve.png"), art.path("curve.svg"), data_note(store))
-    art.add("curve.png")
-    art.add("curve.svg")
+    for path in save(fig, art.path("curve.png"), data_note(store)):
+        art.add(path.name)
     manifest: dict[str, Any] = {
         "tool": "strata13",
         "what": "curve",
@@ -609,7 +613,7 @@ def make_curve(
         "store_version": s.version,
         "settings_hash": _settings_hash(s.settings),
         "time_scale": scale,
-        "parameters": asdict(req) | {"size": list(req.size)},
+        "parameters": asdict(req),
         "filters": filters.describe(),
         "screening_rules": {
             "name": s.settings.get("screen_rules_name"),
@@ -730,15 +734,21 @@ def make_excursion(
     bootstrap: bool = True,
     out: Path | None = None,
     command: str | None = None,
+    width: str = "double",
+    shared_axis: bool = True,
 ) -> ExcursionResult:
     """Per-section excursion metrics in the filtered interval with their uncertainty over
     ``draws`` draws (``excursion_draws``: age draws and, with ``bootstrap``, resampled
     samples; default ``DEFAULT_DRAWS``, 0 for none) and their summary; with ``out``, the
     tables (CSV and Parquet), a column list, the figure and a manifest naming ``command``."""
+    from strata13.compile.derive.settings import DEFAULT_TIME_SCALE
+    from strata13.compile.plotting.axes import chart_stages
+    from strata13.compile.plotting.save import save
+    from strata13.compile.plotting.style import check_width
     from strata13.compile.synthesis import curve as cv
     from strata13.compile.synthesis import excursion as ex
     from strata13.compile.synthesis import excursion_draws as ed
-    from strata13.compile.synthesis.figures import excursion_figure, save_figure
+    from strata13.compile.synthesis.figures import excursion_figure
 
     if filters.interval is None:
         raise OptionError(
@@ -746,6 +756,7 @@ def make_excursion(
             "Example: --interval Toarcian",
         )
     n_draws = ed.check_draws(ed.DEFAULT_DRAWS if draws is None else draws)
+    check_width(width)
     # never mix components within a section's record: by default one row per section and
     # component (the samples of bulk and micrite alternate in some cores)
     req = CurveRequest(by=by or "component")
@@ -810,10 +821,12 @@ def make_excursion(
                 ranges_note=f"ranges: 2.5–97.5 % of {n_draws} draws\n({what})"
                 if n_draws
                 else "no ranges (--draws 0)",
+                width=width,
+                shared_axis=shared_axis,
+                stages=chart_stages(s.settings.get("time_scale", DEFAULT_TIME_SCALE)),
             )
-            save_figure(fig, art.path("excursion.png"), art.path("excursion.svg"), data_note(store))
-            art.add("excursion.png")
-            art.add("excursion.svg")
+            for path in save(fig, art.path("excursion.png"), data_note(store)):
+                art.add(path.name)
         except DomainError as exc:
             art.write_text("excursion_figure_skipped.txt", exc.message + "\n")
         manifest = {
@@ -831,6 +844,8 @@ def make_excursion(
                 "draws": n_draws,
                 "seed": seed,
                 "bootstrap": bootstrap,
+                "width": width,
+                "shared_axis": shared_axis,
             },
             "uncertainty": {
                 "draws": n_draws,
