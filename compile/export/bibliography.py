@@ -199,7 +199,8 @@ def _value(k: str, v: str) -> str:
         return v.replace("{", "").replace("}", "").replace("\\", "/")
     # a backslash that starts no LaTeX command or escape (one at the end would escape the
     # closing brace) is a literal backslash
-    v = re.sub(r"\\(?![A-Za-z&%#_{}$~^\"'`])", r"\\textbackslash{}", v)
+    # (set aside while the braces are counted, so its own {} are never escaped)
+    v = re.sub(r"\\(?![A-Za-z&%#_{}$~^\"'`])", "\x00", v.replace("\x00", ""))
     depth, balanced, escaped = 0, True, False
     for ch in v:
         if not escaped:
@@ -208,7 +209,8 @@ def _value(k: str, v: str) -> str:
         escaped = ch == "\\" and not escaped
     if not balanced or depth:
         v = re.sub(r"(?<!\\)([{}])", r"\\\1", v)
-    return re.sub(r"(?<!\\)([&%#])", r"\\\1", v)
+    v = re.sub(r"(?<!\\)([&%#])", r"\\\1", v)
+    return v.replace("\x00", "\\textbackslash{}")
 
 
 def bibtex(entries: list[Entry]) -> str:
