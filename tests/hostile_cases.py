@@ -129,7 +129,7 @@ def base_xlsx() -> bytes:
             ws.append(list(row))
         buf = io.BytesIO()
         wb.save(buf)
-        _TEMPLATES["xlsx"] = buf.getvalue()
+        _TEMPLATES["xlsx"] = _timeless(buf.getvalue())
     return _TEMPLATES["xlsx"]
 
 
@@ -154,7 +154,7 @@ def base_ods() -> bytes:
         doc.spreadsheet.addElement(table)
         buf = io.BytesIO()
         doc.write(buf)
-        _TEMPLATES["ods"] = buf.getvalue()
+        _TEMPLATES["ods"] = _timeless(buf.getvalue())
     return _TEMPLATES["ods"]
 
 
@@ -210,6 +210,9 @@ def csv_variant(rng: random.Random) -> bytes:
     return rng.choice(BYTE_MUTATIONS)(rng, text.encode())
 
 
+_EPOCH = (2020, 1, 1, 0, 0, 0)  # every zip entry's time: the same seed, the same bytes
+
+
 def _rezip(data: bytes, part: str, change: Callable[[bytes], bytes | None]) -> bytes:
     out = io.BytesIO()
     with zipfile.ZipFile(io.BytesIO(data)) as zin, zipfile.ZipFile(out, "w") as zout:
@@ -220,7 +223,24 @@ def _rezip(data: bytes, part: str, change: Callable[[bytes], bytes | None]) -> b
                 if changed is None:
                     continue
                 body = changed
-            zout.writestr(info.filename, body, compress_type=zipfile.ZIP_DEFLATED)
+            entry = zipfile.ZipInfo(info.filename, date_time=_EPOCH)
+            zout.writestr(entry, body, compress_type=info.compress_type or zipfile.ZIP_DEFLATED)
+    return out.getvalue()
+
+
+def _timeless(data: bytes) -> bytes:
+    """A workbook written now with its clock removed: entry times fixed and the document's
+    own created/modified dates set to one date, so the corpus is the same on every run."""
+    stamp = re.compile(
+        rb"(<(?:dcterms:created|dcterms:modified|meta:creation-date|dc:date)"
+        rb"[^>]*>)[^<]*(<)"
+    )
+    out = io.BytesIO()
+    with zipfile.ZipFile(io.BytesIO(data)) as zin, zipfile.ZipFile(out, "w") as zout:
+        for info in zin.infolist():
+            body = stamp.sub(rb"\g<1>2020-01-01T00:00:00Z\g<2>", zin.read(info.filename))
+            entry = zipfile.ZipInfo(info.filename, date_time=_EPOCH)
+            zout.writestr(entry, body, compress_type=info.compress_type)
     return out.getvalue()
 
 
