@@ -16,6 +16,7 @@ from strata13.errors import DomainError, OptionError
 from strata13.suggest import did_you_mean
 
 if TYPE_CHECKING:
+    import numpy as np
     from strata13.compile.store.lake import Store
 
 STAGE_COLUMNS = [
@@ -216,13 +217,7 @@ def section_model(store: Store, name: str) -> SectionModel:
     except DomainError as exc:  # the store's chart cannot place a tie: shown as given
         placed = [t | {"age": None, "sigma": None, "shared_key": None} for t in ties]
         unplaced = f"a tie cannot be placed on {scale}: {exc.message}"
-    positions: list[float] = []
-    blocks = []
-    for pos_json, n_draws, blob in chunks:
-        p = json.loads(pos_json)
-        positions += p
-        blocks.append(np.frombuffer(blob, dtype="<f4").reshape(n_draws, len(p)))
-    draws = np.concatenate(blocks, axis=1) if blocks else np.empty((0, 0), dtype="<f4")
+    positions, draws = stored_draws(chunks)
     model = SectionModel(
         src,
         sec,
@@ -300,3 +295,18 @@ def plot_model(
         note=note,
         stages=chart_stages(model.time_scale),
     )
+
+
+def stored_draws(chunks: list[tuple[Any, ...]]) -> tuple[list[float], np.ndarray]:
+    """A section's age draws as stored (``age_draws`` rows of positions_json, n_draws and
+    float32 draws, in chunk order): (positions, draws × positions array)."""
+    import numpy as np
+
+    positions: list[float] = []
+    blocks = []
+    for pos_json, n_draws, blob in chunks:
+        p = json.loads(pos_json)
+        positions += p
+        blocks.append(np.frombuffer(blob, dtype="<f4").reshape(n_draws, len(p)))
+    draws = np.concatenate(blocks, axis=1) if blocks else np.empty((0, 0), dtype="<f4")
+    return positions, draws

@@ -201,15 +201,12 @@ def _draw_summary(con: Any, src: str, sec: str) -> dict[str, Any]:
         "section_id = ? ORDER BY chunk",
         [src, sec],
     ).fetchall()
-    positions: list[float] = []
-    blocks = []
-    for pos_json, n_draws, blob in chunks:
-        p = json.loads(pos_json)
-        positions += p
-        blocks.append(np.frombuffer(blob, dtype="<f4").reshape(n_draws, len(p)))
-    if not blocks:
+    from strata13.compile.ages.chronology import stored_draws
+
+    positions, stored = stored_draws(chunks)
+    if not positions:
         return {"n_draws": None, "n_positions": 0}
-    draws = np.concatenate(blocks, axis=1).astype(float)
+    draws = stored.astype(float)
     pos = np.asarray(positions)
     lo, mid, hi = np.percentile(draws, [2.5, 50, 97.5], axis=0)
     width = hi - lo
