@@ -57,7 +57,9 @@ class ExportResult:
 
 def neutralise(text: str) -> str:
     """Prefix an apostrophe to text that a spreadsheet would run as a formula."""
-    if text and text.startswith(FORMULA_START) and not _PLAIN_NUMBER.match(text):
+    # fullmatch: Python's ``$`` also matches before a final newline, RE2's (the column
+    # writer's) does not, and "-1\n" is no plain number
+    if text and text.startswith(FORMULA_START) and not _PLAIN_NUMBER.fullmatch(text):
         return "'" + text
     return text
 
