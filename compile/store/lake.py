@@ -287,6 +287,7 @@ class Store:
                 con.execute("COMMIT")
                 interrupts.landed(self.path, version)
                 tx.version = version
+                many = command != "compact" and _many_files(con)
             except BaseException as exc:
                 with contextlib.suppress(Exception):
                     con.execute("ROLLBACK")
@@ -303,17 +304,19 @@ class Store:
                         raise
                     raise self._lost(gone, started, committing) from None
                 raise self._interrupted(tx, started) from None
-        if tx.version is not None and command != "compact":
+        if tx.version is not None and many:
             self._merge_quietly()
 
     def _merge_quietly(self) -> None:
-        """The automatic merge after a write; maintenance only, so a merge that cannot run
-        now (another writer holds the lock, a full disk) leaves the store as committed and
-        the next write tries again."""
+        """The automatic merge after a write that left the newest version reading more than
+        ``files.AUTO_MERGE_FILES`` data files (common practice: a few large files read
+        faster than many small ones); maintenance only, so a merge that cannot run now
+        (another writer holds the lock, a full disk) leaves the store as committed and the
+        next write tries again."""
         import duckdb
 
         with contextlib.suppress(StoreError, duckdb.Error, OSError):
-            self.merge_if_many()
+            self.compact(merge=True)
 
     def _lost(self, gone: StoreError, started: int, committing: bool) -> StoreError:
         """The catalog went away mid-write: before the commit nothing was written; during
@@ -380,19 +383,6 @@ class Store:
                 tx.record({**merged, "merge_version": tx.latest_version()}, "")
             version = tx.version
         return Compacted(Orphans(mine, size), before, after, version)
-
-    def merge_if_many(self) -> Compacted | None:
-        """After a write: merge the data files once the newest version reads more than
-        ``files.AUTO_MERGE_FILES`` of them (common practice: a few large files read faster
-        than many small ones); None when it does not."""
-        from strata13.compile.store.files import AUTO_MERGE_FILES, live_files
-
-        con, _ = self.reader(fresh=True)
-        try:
-            many = live_files(con) > AUTO_MERGE_FILES
-        finally:
-            con.close()
-        return self.compact(merge=True) if many else None
 
     def reader(
         self, version: int | None = None, *, fresh: bool = False
@@ -595,3 +585,15 @@ def _keep_reported_precision(con: duckdb.DuckDBPyConnection, had: dict[str, str]
         old, new = f"{d}_precision", f"{d}_precision_reported"
         if old in had and new not in had:
             con.execute(f'UPDATE lake.analyses SET "{new}" = "{old}" WHERE "{old}" IS NOT NULL')
+
+
+def _many_files(con: duckdb.DuckDBPyConnection) -> bool:
+    """Whether the newest version reads more data files than ``files.AUTO_MERGE_FILES``,
+    asked on the writer's own connection right after its commit (no second attach)."""
+    import duckdb
+    from strata13.compile.store import files
+
+    try:
+        return files.live_files(con) > files.AUTO_MERGE_FILES
+    except duckdb.Error:  # maintenance only: never a reason for a landed write to fail
+        return False
